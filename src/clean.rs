@@ -1,0 +1,353 @@
+//! Cleaning steps that remove rows: missing keys, exact copies, conflicting duplicate keys.
+//! Every removed row goes to the rejects ledger with its step and reason; every step records
+//! its effect for the sample-construction table.
+
+use polars::prelude::*;
+
+use crate::load::ROW;
+use crate::report::{KeyExample, KeysSummary, SampleStep};
+use crate::{Error, Result};
+
+/// Ledger column: the cleaning step that removed the row (`step` in the output).
+pub const STEP: &str = "__step";
+/// Ledger column: why the row was removed (`reason` in the output).
+pub const REASON: &str = "__reason";
+/// Ledger column: the row that was kept instead, where there is one (`related_row`).
+pub const RELATED: &str = "__related";
+
+/// What to do with entity-period keys that appear on rows with different values.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum DuplicatePolicy {
+    /// Stop with an error (the default for `build`).
+    Fail,
+    /// Keep the row that comes first in the file.
+    KeepFirst,
+    /// Keep the row that comes last in the file.
+    KeepLast,
+    /// Drop every row of a conflicting key.
+    DropAll,
+    /// Keep the row with the largest value of the column (ties: the first such row).
+    PreferMax(String),
+    /// Keep the row with the smallest value of the column (ties: the first such row).
+    PreferMin(String),
+    /// Keep every row and only report (what `audit` does).
+    Report,
+}
+
+impl DuplicatePolicy {
+    /// Parse `[clean] duplicates`; absent means `fail`.
+    pub fn parse(value: Option<&str>) -> Result<DuplicatePolicy> {
+        let Some(value) = value else {
+            return Ok(DuplicatePolicy::Fail);
+        };
+        let bad = || Error::DuplicatePolicy {
+            value: value.to_string(),
+        };
+        Ok(match value {
+            "fail" => DuplicatePolicy::Fail,
+            "keep-first" => DuplicatePolicy::KeepFirst,
+            "keep-last" => DuplicatePolicy::KeepLast,
+            "drop-all" => DuplicatePolicy::DropAll,
+            v => match v.split_once(':') {
+                Some(("prefer-max", c)) if !c.is_empty() => DuplicatePolicy::PreferMax(c.into()),
+                Some(("prefer-min", c)) if !c.is_empty() => DuplicatePolicy::PreferMin(c.into()),
+                _ => return Err(bad()),
+            },
+        })
+    }
+
+    /// The name written into the ledger and the report.
+    pub fn label(&self) -> String {
+        match self {
+            DuplicatePolicy::Fail => "fail".into(),
+            DuplicatePolicy::KeepFirst => "keep-first".into(),
+            DuplicatePolicy::KeepLast => "keep-last".into(),
+            DuplicatePolicy::DropAll => "drop-all".into(),
+            DuplicatePolicy::PreferMax(c) => format!("prefer-max:{c}"),
+            DuplicatePolicy::PreferMin(c) => format!("prefer-min:{c}"),
+            DuplicatePolicy::Report => "report only".into(),
+        }
+    }
+}
+
+/// The panel after the key steps, with what they removed.
+pub struct KeyResult {
+    /// Rows kept.
+    pub kept: DataFrame,
+    /// Rows removed, in ledger form (source_row, step, reason, related_row, raw columns).
+    pub rejected: Vec<DataFrame>,
+    /// Counts for the report.
+    pub keys: KeysSummary,
+    /// One line per step.
+    pub steps: Vec<SampleStep>,
+}
+
+/// Names the key steps need.
+pub struct Keys<'a> {
+    /// The input file, for messages.
+    pub file: &'a std::path::Path,
+    /// The entity column.
+    pub entity: &'a str,
+    /// The period column.
+    pub period: &'a str,
+    /// The raw columns (values compared for exact copies).
+    pub columns: &'a [String],
+}
+
+/// Split off missing keys, collapse exact copies, apply the duplicate policy.
+pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Result<KeyResult> {
+    let (entity, period) = (k.entity, k.period);
+    let mut steps = vec![SampleStep::start(&raw, entity)?];
+    let mut rejected = Vec::new();
+
+    // 1. Missing entity or period.
+    let e_null = col(entity).is_null();
+    let p_null = col(period).is_null();
+    let missing = raw
+        .clone()
+        .lazy()
+        .filter(e_null.clone().or(p_null.clone()))
+        .with_columns([
+            lit("missing keys").alias(STEP),
+            when(e_null.clone().and(p_null.clone()))
+                .then(lit("entity and period missing"))
+                .when(e_null.clone())
+                .then(lit("entity missing"))
+                .otherwise(lit("period missing"))
+                .alias(REASON),
+            lit(NULL).cast(IDX_DTYPE).alias(RELATED),
+        ])
+        .collect()?;
+    let df = raw.lazy().filter(e_null.or(p_null).not()).collect()?;
+    steps.push(SampleStep::after(&steps, "missing keys", &df, entity)?);
+    let missing_key_rows = missing.height() as u64;
+    rejected.push(ledger(missing, k.columns)?);
+
+    // 2. Exact copies: same key and the same value in every column.
+    let value_cols: Vec<Expr> = k.columns.iter().map(|c| col(c.as_str())).collect();
+    let first_of_copy = col(ROW).min().over(value_cols)?;
+    let df = df
+        .lazy()
+        .with_column(first_of_copy.alias(RELATED))
+        .collect()?;
+    let is_copy = col(RELATED).neq(col(ROW));
+    let copies = df
+        .clone()
+        .lazy()
+        .filter(is_copy.clone())
+        .with_columns([
+            lit("exact copies").alias(STEP),
+            lit("exact copy of an earlier row (related_row)").alias(REASON),
+        ])
+        .collect()?;
+    let df = df
+        .lazy()
+        .filter(is_copy.not())
+        .drop(cols([RELATED]))
+        .collect()?;
+    steps.push(SampleStep::after(&steps, "exact copies", &df, entity)?);
+    let exact_duplicate_rows = copies.height() as u64;
+    rejected.push(ledger(copies, k.columns)?);
+
+    // 3. Conflicting keys: the same key on rows with different values.
+    let key = [col(entity), col(period)];
+    let df = df
+        .lazy()
+        .with_column(len().over(key.clone())?.alias("__key_rows"))
+        .collect()?;
+    let conflicting = df
+        .clone()
+        .lazy()
+        .filter(col("__key_rows").gt(lit(1)))
+        .sort([ROW], Default::default())
+        .collect()?;
+    let conflicting_rows = conflicting.height() as u64;
+    let key_counts = conflicting
+        .clone()
+        .lazy()
+        .group_by_stable(key.clone())
+        .agg([len().alias("rows")])
+        .collect()?;
+    let conflicting_keys = key_counts.height() as u64;
+    let examples = key_examples(&key_counts, entity, period)?;
+    if conflicting_keys > 0 && *policy == DuplicatePolicy::Fail {
+        let first = examples.first().expect("a conflicting key exists");
+        return Err(Error::ConflictingKeys {
+            file: k.file.to_path_buf(),
+            keys: conflicting_keys,
+            entity: first.entity.clone(),
+            period: first.period,
+        });
+    }
+    let kept_row = match policy {
+        DuplicatePolicy::KeepFirst => Some(col(ROW).min().over(key.clone())?),
+        DuplicatePolicy::KeepLast => Some(col(ROW).max().over(key.clone())?),
+        DuplicatePolicy::DropAll => Some(lit(NULL).cast(IDX_DTYPE)),
+        DuplicatePolicy::PreferMax(c) | DuplicatePolicy::PreferMin(c) => {
+            let descending = matches!(policy, DuplicatePolicy::PreferMax(_));
+            let order = SortMultipleOptions::default()
+                .with_order_descending_multi([descending, false])
+                .with_nulls_last(true);
+            Some(
+                col(ROW)
+                    .sort_by([col(c.as_str()), col(ROW)], order)
+                    .first()
+                    .over(key.clone())?,
+            )
+        }
+        DuplicatePolicy::Fail | DuplicatePolicy::Report => None,
+    };
+    let df = match kept_row {
+        None => df.lazy().drop(cols(["__key_rows"])).collect()?,
+        Some(kept_row) => {
+            let df = df
+                .lazy()
+                .with_column(
+                    when(col("__key_rows").gt(lit(1)))
+                        .then(kept_row)
+                        .otherwise(col(ROW))
+                        .alias(RELATED),
+                )
+                .drop(cols(["__key_rows"]))
+                .collect()?;
+            let dropped = col(RELATED).neq(col(ROW)).or(col(RELATED).is_null());
+            let removed = df
+                .clone()
+                .lazy()
+                .filter(dropped.clone())
+                .with_columns([
+                    lit("duplicate keys").alias(STEP),
+                    lit(format!(
+                        "same entity and period as other rows with different values; policy {}",
+                        policy.label()
+                    ))
+                    .alias(REASON),
+                ])
+                .collect()?;
+            rejected.push(ledger(removed, k.columns)?);
+            df.lazy()
+                .filter(dropped.not())
+                .drop(cols([RELATED]))
+                .collect()?
+        }
+    };
+    steps.push(SampleStep::after(&steps, "duplicate keys", &df, entity)?);
+
+    Ok(KeyResult {
+        kept: df,
+        rejected,
+        keys: KeysSummary {
+            missing_key_rows,
+            exact_duplicate_rows,
+            conflicting_keys,
+            conflicting_rows,
+            policy: policy.label(),
+            examples,
+        },
+        steps,
+    })
+}
+
+/// Put rejected rows in ledger column order.
+pub fn ledger(df: DataFrame, columns: &[String]) -> Result<DataFrame> {
+    let mut select = vec![col(ROW), col(STEP), col(REASON), col(RELATED)];
+    select.extend(columns.iter().map(|c| col(c.as_str())));
+    Ok(df.lazy().select(select).collect()?)
+}
+
+fn key_examples(key_counts: &DataFrame, entity: &str, period: &str) -> Result<Vec<KeyExample>> {
+    let head = key_counts.head(Some(5));
+    let e = head.column(entity)?.str()?;
+    let p = head.column(period)?.i64()?;
+    let n = head.column("rows")?.cast(&DataType::UInt64)?;
+    let n = n.u64()?;
+    Ok((0..head.height())
+        .map(|i| KeyExample {
+            entity: e.get(i).unwrap_or_default().to_string(),
+            period: p.get(i).unwrap_or_default(),
+            rows: n.get(i).unwrap_or_default(),
+        })
+        .collect())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn frame() -> DataFrame {
+        df!(
+            ROW => [1u32, 2, 3, 4, 5, 6, 7],
+            "firm" => [Some("a"), Some("a"), Some("a"), None, Some("b"), Some("b"), Some("c")],
+            "year" => [Some(1i64), Some(1), Some(2), Some(3), Some(1), Some(1), None],
+            "x" => [1.0, 1.0, 5.0, 2.0, 3.0, 4.0, 9.0],
+        )
+        .unwrap()
+    }
+
+    fn run(policy: DuplicatePolicy) -> Result<KeyResult> {
+        let columns = ["firm", "year", "x"].map(String::from);
+        let keys = Keys {
+            file: std::path::Path::new("t.csv"),
+            entity: "firm",
+            period: "year",
+            columns: &columns,
+        };
+        resolve_keys(frame(), &keys, &policy)
+    }
+
+    fn rows(df: &DataFrame) -> Vec<u32> {
+        df.column(ROW)
+            .unwrap()
+            .u32()
+            .unwrap()
+            .into_no_null_iter()
+            .collect()
+    }
+
+    #[test]
+    fn every_row_is_kept_or_rejected_once() {
+        for policy in [
+            DuplicatePolicy::KeepFirst,
+            DuplicatePolicy::KeepLast,
+            DuplicatePolicy::DropAll,
+            DuplicatePolicy::PreferMax("x".into()),
+            DuplicatePolicy::PreferMin("x".into()),
+            DuplicatePolicy::Report,
+        ] {
+            let r = run(policy.clone()).unwrap();
+            let mut all = rows(&r.kept);
+            for d in &r.rejected {
+                all.extend(rows(d));
+            }
+            all.sort();
+            assert_eq!(all, [1, 2, 3, 4, 5, 6, 7], "{policy:?}");
+        }
+    }
+
+    #[test]
+    fn policies_keep_the_row_they_promise() {
+        // Rows 5 and 6 share key (b, 1) with x = 3 and 4; row 2 copies row 1 exactly.
+        let kept = |p| rows(&run(p).unwrap().kept);
+        assert_eq!(kept(DuplicatePolicy::KeepFirst), [1, 3, 5]);
+        assert_eq!(kept(DuplicatePolicy::KeepLast), [1, 3, 6]);
+        assert_eq!(kept(DuplicatePolicy::DropAll), [1, 3]);
+        assert_eq!(kept(DuplicatePolicy::PreferMax("x".into())), [1, 3, 6]);
+        assert_eq!(kept(DuplicatePolicy::PreferMin("x".into())), [1, 3, 5]);
+        let r = run(DuplicatePolicy::Report).unwrap();
+        assert_eq!(r.keys.missing_key_rows, 2);
+        assert_eq!(r.keys.exact_duplicate_rows, 1);
+        assert_eq!((r.keys.conflicting_keys, r.keys.conflicting_rows), (1, 2));
+        let err = run(DuplicatePolicy::Fail).err().unwrap().to_string();
+        assert!(err.contains("entity `b`, period 1"), "{err}");
+    }
+
+    #[test]
+    fn policy_names_parse() {
+        assert_eq!(DuplicatePolicy::parse(None).unwrap(), DuplicatePolicy::Fail);
+        assert_eq!(
+            DuplicatePolicy::parse(Some("prefer-min:assets")).unwrap(),
+            DuplicatePolicy::PreferMin("assets".into())
+        );
+        assert!(DuplicatePolicy::parse(Some("newest")).is_err());
+    }
+}

@@ -1,0 +1,121 @@
+//! Command-line arguments as the user typed them (clap derive). `config` turns these into a
+//! validated `Config`; nothing outside `config` and `lib` sees clap types.
+
+use std::path::PathBuf;
+
+use clap::{Args, Parser, Subcommand, ValueEnum};
+
+/// Audit, derive and clean firm-year panels before panel regressions.
+#[derive(Debug, Parser)]
+#[command(name = "panelready", version, about, max_term_width = 100)]
+pub(crate) struct Cli {
+    #[command(subcommand)]
+    pub(crate) command: CliCommand,
+}
+
+#[derive(Debug, Subcommand)]
+pub(crate) enum CliCommand {
+    /// Derive variables and check the panel; print the readiness report, write nothing.
+    Audit(AuditArgs),
+    /// Derive, check and clean; write the hand-off bundle to `--out`.
+    Build(BuildArgs),
+    /// Generate the invented demo panel and run `build` on it.
+    Demo(DemoArgs),
+    /// List the built-in ratio definitions with their formulas, null rules and sources.
+    Ratios,
+}
+
+/// Where the data is and how to read its keys.
+#[derive(Debug, Args)]
+pub(crate) struct InputArgs {
+    /// The raw panel: a CSV or Parquet file, one row per firm-year.
+    pub(crate) data: PathBuf,
+
+    /// The rules file (TOML): panel keys, column mapping, derived variables, cleaning policy.
+    #[arg(long, value_name = "FILE")]
+    pub(crate) rules: Option<PathBuf>,
+
+    /// The entity (firm) column; overrides `[panel] entity` in the rules file.
+    #[arg(long, value_name = "COLUMN")]
+    pub(crate) entity: Option<String>,
+
+    /// The period (fiscal year) column, integers; overrides `[panel] period`.
+    #[arg(long, value_name = "COLUMN")]
+    pub(crate) period: Option<String>,
+
+    /// Read DATA as this format instead of guessing from its extension.
+    #[arg(long, value_enum, value_name = "FORMAT")]
+    pub(crate) input_format: Option<InputFormatArg>,
+}
+
+#[derive(Debug, Args)]
+pub(crate) struct AuditArgs {
+    #[command(flatten)]
+    pub(crate) input: InputArgs,
+
+    /// How to print the readiness report.
+    ///
+    /// terminal: tables for a person; md: Markdown; json: the full report for programs.
+    #[arg(long, value_enum, default_value = "terminal")]
+    pub(crate) format: ReportFormatArg,
+}
+
+#[derive(Debug, Args)]
+pub(crate) struct BuildArgs {
+    #[command(flatten)]
+    pub(crate) input: InputArgs,
+
+    /// The folder for the hand-off bundle. Built beside it and moved into place at the end,
+    /// so a failed run leaves no partial bundle. An existing bundle there is replaced.
+    #[arg(long, value_name = "DIR")]
+    pub(crate) out: PathBuf,
+}
+
+#[derive(Debug, Args)]
+pub(crate) struct DemoArgs {
+    /// The folder to write into: the generated data goes to DIR/data, the bundle to DIR/bundle.
+    #[arg(long, value_name = "DIR", default_value = "panelready-demo")]
+    pub(crate) out: PathBuf,
+
+    /// How many fictional firms to generate.
+    #[arg(long, value_name = "N", default_value_t = 600)]
+    pub(crate) firms: u32,
+
+    /// How many fiscal years the window spans.
+    #[arg(long, value_name = "T", default_value_t = 15)]
+    pub(crate) periods: u32,
+
+    /// The random seed; the same seed gives byte-identical data.
+    #[arg(long, value_name = "S", default_value_t = 2024)]
+    pub(crate) seed: u64,
+
+    /// Only generate the data; do not run `build` on it.
+    ///
+    /// Useful for large benchmark panels (`--firms 500000 --periods 20`).
+    #[arg(long)]
+    pub(crate) data_only: bool,
+}
+
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub(crate) enum InputFormatArg {
+    Csv,
+    Parquet,
+}
+
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub(crate) enum ReportFormatArg {
+    Terminal,
+    Md,
+    Json,
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use clap::CommandFactory;
+
+    #[test]
+    fn clap_definition_is_consistent() {
+        Cli::command().debug_assert();
+    }
+}

@@ -1,0 +1,401 @@
+//! Derived variables: order the rules by their dependencies, add gap-aware shifted columns
+//! by joining on (entity, period - k), evaluate each rule with its null conditions, and count
+//! how many nulls each reason produced.
+
+use std::collections::{BTreeMap, BTreeSet};
+
+use polars::prelude::*;
+
+use crate::report::{DerivedSummary, NullCount, SkippedRule};
+use crate::rules::expr::{self, Compiled, Scope, Shift};
+use crate::rules::{DeriveRule, Origin, Rules, CANONICAL_COLUMNS};
+use crate::{Error, Result};
+
+/// The reason counted when a value is null and no declared condition explains it.
+pub const INPUT_MISSING: &str = "an input is missing (or the earlier period is absent)";
+
+/// One derived variable, compiled.
+#[derive(Debug, Clone)]
+pub struct Planned {
+    /// Its name (the output column).
+    pub name: String,
+    /// Its rule as written.
+    pub rule: DeriveRule,
+    /// User or library.
+    pub origin: Origin,
+    value: Compiled,
+    conditions: Vec<(String, Compiled)>,
+}
+
+/// Every derived variable in evaluation order, and the library rules left out.
+#[derive(Debug, Clone)]
+pub struct Plan {
+    /// Variables in dependency order.
+    pub vars: Vec<Planned>,
+    /// Library ratios whose inputs the data lacks.
+    pub skipped: Vec<SkippedRule>,
+}
+
+impl Plan {
+    /// Compile and order the rules against the columns the data has.
+    pub fn new(rules: &Rules, raw: &[String]) -> Result<Plan> {
+        let raw: BTreeSet<String> = raw.iter().cloned().collect();
+        for name in rules.derive.keys() {
+            check_name(name, &raw)?;
+        }
+        let mut skipped: Vec<SkippedRule> = Vec::new();
+        loop {
+            let derived: BTreeSet<String> = rules
+                .derive
+                .keys()
+                .filter(|n| !skipped.iter().any(|s| &s.name == *n))
+                .cloned()
+                .collect();
+            let scope = Scope {
+                raw: &raw,
+                mapping: &rules.file.columns,
+                derived: &derived,
+            };
+            let mut compiled = Vec::new();
+            let mut newly_skipped = None;
+            for name in &derived {
+                let (rule, origin) = &rules.derive[name];
+                match compile_rule(name, rule, &scope) {
+                    Ok((value, conditions)) => compiled.push(Planned {
+                        name: name.clone(),
+                        rule: rule.clone(),
+                        origin: *origin,
+                        value,
+                        conditions,
+                    }),
+                    Err(Error::UnknownColumn { column, .. })
+                        if *origin == Origin::Standard
+                            && (CANONICAL_COLUMNS.contains(&column.as_str())
+                                || rules.derive.contains_key(&column)) =>
+                    {
+                        newly_skipped = Some(SkippedRule {
+                            name: name.clone(),
+                            missing: column,
+                        });
+                        break;
+                    }
+                    Err(e) => return Err(e),
+                }
+            }
+            match newly_skipped {
+                Some(s) => skipped.push(s),
+                None => {
+                    return Ok(Plan {
+                        vars: order(compiled)?,
+                        skipped,
+                    })
+                }
+            }
+        }
+    }
+
+    /// Add every derived column (and the hidden shifted columns they read) to `lf`.
+    /// Returns the frame and the hidden column names, to drop after counting.
+    pub fn apply(&self, mut lf: LazyFrame, entity: &str, period: &str) -> (LazyFrame, Vec<String>) {
+        let mut hidden: Vec<String> = Vec::new();
+        for var in &self.vars {
+            let shifts: BTreeSet<&Shift> = std::iter::once(&var.value)
+                .chain(var.conditions.iter().map(|(_, c)| c))
+                .flat_map(|c| c.shifts.iter())
+                .collect();
+            for shift in shifts {
+                let name = shift.hidden_name();
+                if hidden.contains(&name) {
+                    continue;
+                }
+                lf = add_shift(lf, shift, &name, entity, period);
+                hidden.push(name);
+            }
+            let value = match var.any_condition() {
+                Some(cond) => when(cond).then(lit(NULL)).otherwise(var.value.expr.clone()),
+                None => var.value.expr.clone(),
+            };
+            lf = lf.with_column(value.alias(var.name.as_str()));
+        }
+        (lf, hidden)
+    }
+
+    /// Per variable: non-null values and nulls by reason (first matching condition wins).
+    pub fn null_counts(&self, df: &DataFrame) -> Result<Vec<DerivedSummary>> {
+        let mut aggs = Vec::new();
+        for (i, var) in self.vars.iter().enumerate() {
+            let name = var.name.as_str();
+            aggs.push(col(name).is_not_null().sum().alias(format!("{i}_ok")));
+            let mut earlier = lit(false);
+            for (j, (_, cond)) in var.conditions.iter().enumerate() {
+                let c = cond.expr.clone().fill_null(lit(false));
+                aggs.push(
+                    c.clone()
+                        .and(earlier.clone().not())
+                        .sum()
+                        .alias(format!("{i}_{j}")),
+                );
+                earlier = earlier.or(c);
+            }
+            aggs.push(
+                col(name)
+                    .is_null()
+                    .and(earlier.not())
+                    .sum()
+                    .alias(format!("{i}_input")),
+            );
+        }
+        let counts = df.clone().lazy().select(aggs).collect()?;
+        let get = |name: String| -> Result<u64> {
+            let v = counts.column(&name)?.cast(&DataType::UInt64)?;
+            Ok(v.u64()?.get(0).unwrap_or(0))
+        };
+        let mut out = Vec::new();
+        for (i, var) in self.vars.iter().enumerate() {
+            let mut nulls = Vec::new();
+            for (j, (reason, _)) in var.conditions.iter().enumerate() {
+                nulls.push(NullCount {
+                    reason: reason.clone(),
+                    rows: get(format!("{i}_{j}"))?,
+                });
+            }
+            nulls.push(NullCount {
+                reason: INPUT_MISSING.to_string(),
+                rows: get(format!("{i}_input"))?,
+            });
+            out.push(DerivedSummary {
+                name: var.name.clone(),
+                label: var.rule.label.clone().unwrap_or_default(),
+                expr: var.rule.expr.clone(),
+                unit: var.rule.unit.clone().unwrap_or_default(),
+                source: var.rule.source.clone().unwrap_or_default(),
+                origin: var.origin,
+                non_null: get(format!("{i}_ok"))?,
+                nulls: nulls.iter().map(|n| n.rows).sum(),
+                null_reasons: nulls,
+            });
+        }
+        Ok(out)
+    }
+}
+
+impl Planned {
+    fn any_condition(&self) -> Option<Expr> {
+        self.conditions
+            .iter()
+            .map(|(_, c)| c.expr.clone().fill_null(lit(false)))
+            .reduce(|a, b| a.or(b))
+    }
+}
+
+fn compile_rule(
+    name: &str,
+    rule: &DeriveRule,
+    scope: &Scope,
+) -> Result<(Compiled, Vec<(String, Compiled)>)> {
+    let value = expr::compile(name, &rule.expr, scope)?;
+    let conditions = rule
+        .null_when
+        .iter()
+        .map(|n| Ok((n.reason.clone(), expr::compile(name, &n.when, scope)?)))
+        .collect::<Result<_>>()?;
+    Ok((value, conditions))
+}
+
+fn check_name(name: &str, raw: &BTreeSet<String>) -> Result<()> {
+    let bad = |message: &str| Error::RuleName {
+        rule: name.to_string(),
+        message: message.to_string(),
+    };
+    let mut chars = name.chars();
+    let starts_well = chars
+        .next()
+        .is_some_and(|c| c.is_ascii_alphabetic() || c == '_');
+    if !starts_well || !chars.all(|c| c.is_ascii_alphanumeric() || c == '_') {
+        return Err(bad(
+            "a derived name must be letters, digits and `_`, not starting with a digit",
+        ));
+    }
+    if name.starts_with("__") {
+        return Err(bad("names starting with `__` are reserved"));
+    }
+    if raw.contains(name) {
+        return Err(bad("a raw column already has this name"));
+    }
+    Ok(())
+}
+
+/// Topological order (Kahn), alphabetical among equals; a cycle is an error naming it.
+fn order(vars: Vec<Planned>) -> Result<Vec<Planned>> {
+    let deps = |v: &Planned| -> BTreeSet<String> {
+        let mut d: BTreeSet<String> = v.value.derived_deps.clone();
+        for (_, c) in &v.conditions {
+            d.extend(c.derived_deps.iter().cloned());
+        }
+        d
+    };
+    let mut remaining: BTreeMap<String, (BTreeSet<String>, Planned)> = vars
+        .into_iter()
+        .map(|v| (v.name.clone(), (deps(&v), v)))
+        .collect();
+    let mut out = Vec::new();
+    while !remaining.is_empty() {
+        let ready: Vec<String> = remaining
+            .iter()
+            .filter(|(_, (d, _))| d.iter().all(|n| !remaining.contains_key(n)))
+            .map(|(n, _)| n.clone())
+            .collect();
+        if ready.is_empty() {
+            return Err(Error::Cycle {
+                rules: find_cycle(&remaining),
+            });
+        }
+        for name in ready {
+            let (_, v) = remaining.remove(&name).expect("ready names are present");
+            out.push(v);
+        }
+    }
+    Ok(out)
+}
+
+fn find_cycle(remaining: &BTreeMap<String, (BTreeSet<String>, Planned)>) -> Vec<String> {
+    let mut path: Vec<String> = vec![remaining.keys().next().cloned().unwrap_or_default()];
+    loop {
+        let last = path.last().cloned().unwrap_or_default();
+        let next = remaining[&last]
+            .0
+            .iter()
+            .find(|n| remaining.contains_key(*n))
+            .cloned()
+            .unwrap_or_default();
+        if let Some(start) = path.iter().position(|n| *n == next) {
+            let mut cycle = path[start..].to_vec();
+            cycle.push(next);
+            return cycle;
+        }
+        path.push(next);
+    }
+}
+
+/// Join the value of `shift.column` at period t - k of the same entity onto period t.
+fn add_shift(lf: LazyFrame, shift: &Shift, hidden: &str, entity: &str, period: &str) -> LazyFrame {
+    let right = lf
+        .clone()
+        .select([
+            col(entity),
+            (col(period) + lit(shift.k)).alias(period),
+            col(shift.column.as_str()).alias(hidden),
+        ])
+        .unique_stable_generic(
+            Some(vec![col(entity), col(period)]),
+            UniqueKeepStrategy::First,
+        );
+    lf.join(
+        right,
+        [col(entity), col(period)],
+        [col(entity), col(period)],
+        JoinArgs {
+            maintain_order: MaintainOrderJoin::Left,
+            ..JoinArgs::new(JoinType::Left)
+        },
+    )
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn rules(text: &str) -> Rules {
+        Rules::from_text(None, text.to_string()).unwrap()
+    }
+
+    fn derive(rules: &Rules, df: DataFrame) -> DataFrame {
+        let raw: Vec<String> = df
+            .get_column_names()
+            .iter()
+            .map(|c| c.to_string())
+            .collect();
+        let plan = Plan::new(rules, &raw).unwrap();
+        let (lf, _) = plan.apply(df.lazy(), "firm", "year");
+        lf.collect().unwrap()
+    }
+
+    #[test]
+    fn lag_is_null_across_a_gap_and_at_the_first_period() {
+        // Firm a has years 1, 2, 4 (a gap at 3); firm b has year 2 only. Hand-worked.
+        let df = df!(
+            "firm" => ["a", "a", "a", "b"],
+            "year" => [1i64, 2, 4, 2],
+            "x" => [10.0, 20.0, 40.0, 7.0],
+        )
+        .unwrap();
+        let r = rules(
+            r#"
+            [derive.x_lag]
+            expr = "lag(x, 1)"
+            [derive.x_lag2]
+            expr = "lag(x, 2)"
+            [derive.x_lead]
+            expr = "lead(x)"
+            [derive.x_diff]
+            expr = "diff(x, 1)"
+            [derive.x_growth]
+            expr = "growth(x, 1)"
+            "#,
+        );
+        let out = derive(&r, df);
+        let get = |c: &str| -> Vec<Option<f64>> {
+            out.column(c).unwrap().f64().unwrap().iter().collect()
+        };
+        assert_eq!(get("x_lag"), [None, Some(10.0), None, None]);
+        assert_eq!(get("x_lag2"), [None, None, Some(20.0), None]);
+        assert_eq!(get("x_lead"), [Some(20.0), None, None, None]);
+        assert_eq!(get("x_diff"), [None, Some(10.0), None, None]);
+        assert_eq!(get("x_growth"), [None, Some(1.0), None, None]);
+    }
+
+    #[test]
+    fn null_conditions_are_counted_by_reason() {
+        let df = df!(
+            "firm" => ["a", "a", "b", "b"],
+            "year" => [1i64, 2, 1, 2],
+            "ta" => [Some(100.0), Some(-5.0), None, Some(50.0)],
+        )
+        .unwrap();
+        let r = rules(
+            r#"
+            include = ["standard"]
+            [columns]
+            total_assets = "ta"
+            "#,
+        );
+        let raw: Vec<String> = ["firm", "year", "ta"].map(String::from).into();
+        let plan = Plan::new(&r, &raw).unwrap();
+        let names: Vec<&str> = plan.vars.iter().map(|v| v.name.as_str()).collect();
+        assert_eq!(names, ["size"], "only size has all its inputs");
+        assert!(plan.skipped.iter().any(|s| s.name == "leverage"));
+        let (lf, _) = plan.apply(df.lazy(), "firm", "year");
+        let out = lf.collect().unwrap();
+        let size: Vec<Option<f64>> = out.column("size").unwrap().f64().unwrap().iter().collect();
+        assert_eq!(size, [Some(100f64.ln()), None, None, Some(50f64.ln())]);
+        let s = &plan.null_counts(&out).unwrap()[0];
+        assert_eq!((s.non_null, s.nulls), (2, 2));
+        assert_eq!(s.null_reasons[0].rows, 1, "total assets not positive");
+        assert_eq!(s.null_reasons[1].rows, 1, "input missing");
+    }
+
+    #[test]
+    fn dependencies_order_and_cycles() {
+        let raw: Vec<String> = ["firm", "year", "x"].map(String::from).into();
+        let r = rules("[derive.b]\nexpr = \"a * 2\"\n[derive.a]\nexpr = \"x + 1\"\n");
+        let plan = Plan::new(&r, &raw).unwrap();
+        let names: Vec<&str> = plan.vars.iter().map(|v| v.name.as_str()).collect();
+        assert_eq!(names, ["a", "b"]);
+        let r = rules("[derive.b]\nexpr = \"a\"\n[derive.a]\nexpr = \"lag(b, 1)\"\n");
+        let err = Plan::new(&r, &raw).unwrap_err().to_string();
+        assert_eq!(
+            err,
+            "rules `a` -> `b` -> `a` depend on each other in a cycle"
+        );
+    }
+}

@@ -1,0 +1,119 @@
+//! The one error type of panelready: each variant names the file, row, column or rule at fault.
+
+use std::path::PathBuf;
+
+/// Everything that can stop a run. Messages are lowercase, one line, with names in backticks.
+#[derive(Debug, thiserror::Error)]
+pub enum Error {
+    /// Reading or writing a file failed.
+    #[error("`{path}`: {source}")]
+    Io {
+        path: PathBuf,
+        source: std::io::Error,
+    },
+    /// The rules file is not valid TOML or has fields we do not know.
+    #[error("rules file `{path}`: {message}")]
+    RulesFile { path: PathBuf, message: String },
+    /// `include` names a library that does not exist.
+    #[error("rules file: unknown library `{name}` in `include` (known: standard)")]
+    UnknownLibrary { name: String },
+    /// Neither the rules file nor the command line names a panel key.
+    #[error("no `{key}` column: set `[panel] {key}` in the rules file or pass `--{key}`")]
+    MissingKey { key: &'static str },
+    /// A column named by the rules or the command line is not in the data.
+    #[error("`{file}`: no column `{column}` ({context})")]
+    MissingColumn {
+        file: PathBuf,
+        column: String,
+        context: String,
+    },
+    /// The period column holds something that is not a whole number.
+    #[error("`{file}`: period column `{column}` must hold integers; row {row} has `{value}`")]
+    NonIntegerPeriod {
+        file: PathBuf,
+        column: String,
+        row: u64,
+        value: String,
+    },
+    /// The input's extension does not say whether it is CSV or Parquet.
+    #[error(
+        "`{file}`: cannot tell the format from the extension; pass `--input-format csv|parquet`"
+    )]
+    UnknownFormat { file: PathBuf },
+    /// A derived variable's expression does not parse.
+    #[error("rule `{rule}`: syntax error in `{expr}`: {message}")]
+    RuleSyntax {
+        rule: String,
+        expr: String,
+        message: String,
+    },
+    /// A derived variable refers to a column that neither the data nor the rules define.
+    #[error("rule `{rule}`: unknown column `{column}`")]
+    UnknownColumn { rule: String, column: String },
+    /// A derived variable calls a function we do not offer.
+    #[error("rule `{rule}`: unknown function `{function}`")]
+    UnknownFunction { rule: String, function: String },
+    /// A panel function was called the wrong way.
+    #[error("rule `{rule}`: `{call}`: {message}")]
+    PanelFunction {
+        rule: String,
+        call: String,
+        message: String,
+    },
+    /// A derived variable's name is unusable.
+    #[error("rule `{rule}`: {message}")]
+    RuleName { rule: String, message: String },
+    /// Derived variables that depend on each other in a circle.
+    #[error("rules `{}` depend on each other in a cycle", .rules.join("` -> `"))]
+    Cycle { rules: Vec<String> },
+    /// The expression parsed, but polars could not translate it.
+    #[error("rule `{rule}`: {message}")]
+    RuleExpr { rule: String, message: String },
+    /// A `[clean] duplicates` policy that we do not know.
+    #[error("rules file: `[clean] duplicates = \"{value}\"` is not a policy (fail, keep-first, keep-last, drop-all, prefer-max:COL, prefer-min:COL)")]
+    DuplicatePolicy { value: String },
+    /// The data has conflicting duplicate keys and the policy says to stop.
+    #[error("`{file}`: {keys} entity-period keys appear on rows with different values (first: entity `{entity}`, period {period}); choose a policy in `[clean] duplicates`")]
+    ConflictingKeys {
+        file: PathBuf,
+        keys: u64,
+        entity: String,
+        period: i64,
+    },
+    /// `build --out` points at the input or a folder holding it.
+    #[error("`--out {out}` would overwrite the input `{input}`")]
+    OutOverlapsInput { out: PathBuf, input: PathBuf },
+    /// `build --out` points at a folder that is not a bundle and is not empty.
+    #[error(
+        "`--out {out}` exists, is not empty and holds no `manifest.json`; refusing to replace it"
+    )]
+    OutNotBundle { out: PathBuf },
+    /// A command-line value is out of range.
+    #[error("`--{option}`: {message}")]
+    BadOption {
+        option: &'static str,
+        message: String,
+    },
+    /// polars reported an error while computing.
+    #[error("data engine: {0}")]
+    Polars(#[from] polars::prelude::PolarsError),
+    /// Writing JSON failed.
+    #[error("json: {0}")]
+    Json(#[from] serde_json::Error),
+}
+
+impl Error {
+    /// The exit code this error maps to: usage, input and rules errors are all 2.
+    pub fn code(&self) -> i32 {
+        2
+    }
+
+    /// Wrap an I/O error with the path it concerns.
+    pub(crate) fn io(path: impl Into<PathBuf>) -> impl FnOnce(std::io::Error) -> Error {
+        let path = path.into();
+        move |source| Error::Io { path, source }
+    }
+}
+
+/// The result type used throughout panelready.
+pub type Result<T, E = Error> = std::result::Result<T, E>;

@@ -1,0 +1,170 @@
+//! panelready: read raw firm accounts, derive the standard ratios from a rules file, audit
+//! the panel for what silently wrecks panel estimates, and write a cleaned panel with a
+//! rejects ledger and a manifest that lets a colleague rebuild it bit for bit.
+//!
+//! Data flows one way: `cli` -> `config` -> `load` -> `clean` (keys) -> `derive` -> `audit`
+//! -> `bundle` / `report`. The binary is a thin wrapper around [`run`].
+
+pub mod audit;
+pub mod bundle;
+pub mod clean;
+mod cli;
+pub mod config;
+pub mod demo;
+pub mod derive;
+mod error;
+pub mod load;
+pub mod pipeline;
+pub mod report;
+pub mod rules;
+
+use std::ffi::OsString;
+use std::io::Write;
+
+use clap::Parser;
+
+pub use error::{Error, Result};
+
+use config::{AuditConfig, BuildConfig, Command, DemoConfig};
+
+/// Run panelready with command-line arguments; returns the process exit code.
+/// Errors are printed once, here, as `panelready: error: ...`.
+pub fn run<I: IntoIterator<Item = OsString>>(args: I) -> i32 {
+    let args: Vec<OsString> = args.into_iter().collect();
+    let cli = match cli::Cli::try_parse_from(&args) {
+        Ok(cli) => cli,
+        Err(e) => {
+            let _ = e.print();
+            return if e.use_stderr() { 2 } else { 0 };
+        }
+    };
+    let command_line = args
+        .iter()
+        .map(|a| a.to_string_lossy().to_string())
+        .collect::<Vec<_>>()
+        .join(" ");
+    let result = Command::from_cli(cli.command, command_line).and_then(|cmd| match cmd {
+        Command::Audit(cfg) => audit_cmd(&cfg),
+        Command::Build(cfg) => build_cmd(&cfg),
+        Command::Demo(cfg) => demo_cmd(&cfg),
+        Command::Ratios => ratios_cmd(),
+    });
+    match result {
+        Ok(code) => code,
+        Err(Error::Io { source, .. }) if source.kind() == std::io::ErrorKind::BrokenPipe => 0,
+        Err(err) => {
+            eprintln!("panelready: error: {err}");
+            err.code()
+        }
+    }
+}
+
+fn stdout_write(bytes: &[u8]) -> Result<()> {
+    let mut out = std::io::stdout().lock();
+    out.write_all(bytes)
+        .and_then(|()| out.flush())
+        .map_err(Error::io("<stdout>"))
+}
+
+fn audit_cmd(cfg: &AuditConfig) -> Result<i32> {
+    let prepared = pipeline::prepare(&cfg.input, pipeline::Mode::Audit)?;
+    let mut buf = Vec::new();
+    report::renderer(cfg.format)
+        .render(&prepared.report, &mut buf)
+        .map_err(Error::io("<report>"))?;
+    stdout_write(&buf)?;
+    Ok(0)
+}
+
+fn build_cmd(cfg: &BuildConfig) -> Result<i32> {
+    let manifest = build(cfg)?;
+    stdout_write(
+        format!(
+            "wrote {}: {} rows read, {} kept in panel.csv / panel.parquet, {} in rejected.csv\n",
+            cfg.out.display(),
+            manifest.rows.input,
+            manifest.rows.kept,
+            manifest.rows.rejected
+        )
+        .as_bytes(),
+    )?;
+    Ok(0)
+}
+
+/// Run the whole pipeline and write the bundle; the library entry point behind `build`.
+pub fn build(cfg: &BuildConfig) -> Result<bundle::Manifest> {
+    let mut prepared = pipeline::prepare(&cfg.input, pipeline::Mode::Build)?;
+    bundle::write(cfg, &mut prepared)
+}
+
+fn demo_cmd(cfg: &DemoConfig) -> Result<i32> {
+    let data_dir = cfg.out.join("data");
+    let planted = demo::write_data(&data_dir, cfg.firms, cfg.periods, cfg.seed)?;
+    let data = data_dir.join(demo::DATA_FILE);
+    let mut msg = format!(
+        "generated {} rows for {} invented firms in {}\n",
+        planted.rows,
+        planted.firms,
+        data.display()
+    );
+    if !cfg.data_only {
+        let rules = rules::Rules::from_path(&data_dir.join("rules.toml"))?;
+        let out = cfg.out.join("bundle");
+        let build_cfg = BuildConfig {
+            input: config::InputConfig::new(data, rules)?,
+            out: out.clone(),
+            command_line: format!(
+                "panelready build {} --rules {} --out {}",
+                data_dir.join(demo::DATA_FILE).display(),
+                data_dir.join("rules.toml").display(),
+                out.display()
+            ),
+        };
+        let manifest = build(&build_cfg)?;
+        msg.push_str(&format!(
+            "built the hand-off bundle in {}: {} rows kept, {} rejected (see report.md)\n",
+            out.display(),
+            manifest.rows.kept,
+            manifest.rows.rejected
+        ));
+    }
+    stdout_write(msg.as_bytes())?;
+    Ok(0)
+}
+
+fn ratios_cmd() -> Result<i32> {
+    let lib = rules::library("standard")?;
+    let mut table = comfy_table::Table::new();
+    table
+        .load_preset(comfy_table::presets::UTF8_HORIZONTAL_ONLY)
+        .set_content_arrangement(comfy_table::ContentArrangement::Dynamic)
+        .set_width(100)
+        .set_header(["ratio", "formula", "null when", "source"]);
+    for (name, rule) in &lib.derive {
+        let nulls: Vec<String> = rule
+            .null_when
+            .iter()
+            .map(|n| format!("{} ({})", n.when, n.reason))
+            .collect();
+        let nulls = if nulls.is_empty() {
+            "an input is missing".to_string()
+        } else {
+            nulls.join("; ") + "; or an input is missing"
+        };
+        table.add_row([
+            name.clone(),
+            rule.expr.clone(),
+            nulls,
+            rule.source.clone().unwrap_or_default(),
+        ]);
+    }
+    let text = format!(
+        "{table}\n\nCanonical columns (map yours in [columns]): {}\n\
+         Panel functions: lag(x, k), lead(x, k), diff(x, k), growth(x, k) = x / lag(x, k) - 1 \
+         (null when lag(x, k) <= 0); each uses period t - k of the same entity and is null when \
+         that period is absent.\n",
+        rules::CANONICAL_COLUMNS.join(", ")
+    );
+    stdout_write(text.as_bytes())?;
+    Ok(0)
+}

@@ -1,0 +1,149 @@
+//! The one-way flow shared by `audit` and `build`: load -> key steps -> derive -> checks.
+
+use polars::prelude::*;
+
+use crate::audit::{self, Context};
+use crate::clean::{self, DuplicatePolicy, Keys};
+use crate::config::InputConfig;
+use crate::derive::Plan;
+use crate::load::{self, ROW};
+use crate::report::{InputSummary, PanelSummary, Report};
+use crate::{Error, Result};
+
+/// Whether conflicting keys are resolved (build) or only reported (audit).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Mode {
+    /// Report every finding, remove nothing but missing keys and exact copies.
+    Audit,
+    /// Apply the rules file's cleaning policy.
+    Build,
+}
+
+/// The result of a run, before anything is written.
+pub struct Prepared {
+    /// The report.
+    pub report: Report,
+    /// The panel: `source_row`, raw columns, derived columns; sorted by entity, period.
+    pub panel: DataFrame,
+    /// The rejects ledger, sorted by `source_row`.
+    pub rejected: DataFrame,
+}
+
+/// Run the pipeline on one input.
+pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
+    let rules = &input.rules;
+    let policy = match mode {
+        Mode::Audit => DuplicatePolicy::Report,
+        Mode::Build => resolve_policy(
+            DuplicatePolicy::parse(rules.file.clean.duplicates.as_deref())?,
+            input,
+        ),
+    };
+    let loaded = load::load(input)?;
+    if let DuplicatePolicy::PreferMax(c) | DuplicatePolicy::PreferMin(c) = &policy {
+        if !loaded.columns.contains(c) {
+            return Err(Error::MissingColumn {
+                file: input.path.clone(),
+                column: c.clone(),
+                context: "named in `[clean] duplicates`".into(),
+            });
+        }
+    }
+    let plan = Plan::new(rules, &loaded.columns)?;
+    let raw = loaded.lf.collect()?;
+    let keys = Keys {
+        file: &input.path,
+        entity: &input.entity,
+        period: &input.period,
+        columns: &loaded.columns,
+    };
+    let resolved = clean::resolve_keys(raw, &keys, &policy)?;
+
+    let (lf, hidden) = plan.apply(resolved.kept.lazy(), &input.entity, &input.period);
+    let with_hidden = lf.collect()?;
+    let derived = plan.null_counts(&with_hidden)?;
+    let mut order = vec![col(ROW)];
+    order.extend(loaded.columns.iter().map(|c| col(c.as_str())));
+    order.extend(plan.vars.iter().map(|v| col(v.name.as_str())));
+    let panel = with_hidden
+        .lazy()
+        .drop(cols(hidden))
+        .select(order)
+        .sort(
+            [input.entity.as_str(), input.period.as_str(), ROW],
+            Default::default(),
+        )
+        .collect()?;
+
+    let mut ledger_parts = resolved.rejected.into_iter();
+    let first = ledger_parts
+        .next()
+        .expect("the key steps always return ledger parts");
+    let mut rejected = first;
+    for part in ledger_parts {
+        rejected.vstack_mut(&part)?;
+    }
+    let mut rejected = rejected.lazy().sort([ROW], Default::default()).collect()?;
+    let mut panel = panel;
+    let mut taken: Vec<String> = loaded.columns.clone();
+    taken.extend(plan.vars.iter().map(|v| v.name.clone()));
+    for (internal, base) in [
+        (ROW, "source_row"),
+        (clean::STEP, "step"),
+        (clean::REASON, "reason"),
+        (clean::RELATED, "related_row"),
+    ] {
+        let name = output_name(base, &taken);
+        if internal == ROW {
+            panel.rename(internal, name.as_str().into())?;
+        }
+        rejected.rename(internal, name.as_str().into())?;
+    }
+
+    let mut report = Report {
+        tool_version: env!("CARGO_PKG_VERSION").to_string(),
+        input: InputSummary {
+            path: input.path.display().to_string(),
+            format: input.format,
+            rows: loaded.rows,
+            columns: loaded.columns.len() as u64,
+            entity: input.entity.clone(),
+            period: input.period.clone(),
+        },
+        panel: PanelSummary::default(),
+        keys: resolved.keys,
+        derived,
+        skipped: plan.skipped.clone(),
+        sample_construction: resolved.steps,
+    };
+    let ctx = Context {
+        df: &panel,
+        entity: &input.entity,
+        period: &input.period,
+    };
+    audit::run_all(&ctx, &mut report)?;
+    Ok(Prepared {
+        report,
+        panel,
+        rejected,
+    })
+}
+
+/// The output name for a bookkeeping column: `base`, or `base_2`, `base_3`, ... when the
+/// data already has a column of that name.
+fn output_name(base: &str, taken: &[String]) -> String {
+    std::iter::once(base.to_string())
+        .chain((2..).map(|n| format!("{base}_{n}")))
+        .find(|c| !taken.contains(c))
+        .expect("some suffix is free")
+}
+
+/// `prefer-max:COL` may name a canonical column; use the raw column it maps to.
+fn resolve_policy(policy: DuplicatePolicy, input: &InputConfig) -> DuplicatePolicy {
+    let map = |c: String| input.rules.file.columns.get(&c).cloned().unwrap_or(c);
+    match policy {
+        DuplicatePolicy::PreferMax(c) => DuplicatePolicy::PreferMax(map(c)),
+        DuplicatePolicy::PreferMin(c) => DuplicatePolicy::PreferMin(map(c)),
+        p => p,
+    }
+}

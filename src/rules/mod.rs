@@ -1,0 +1,221 @@
+//! The rules file: its serde model, the built-in libraries it can include, and the
+//! translation of derived-variable expressions into polars plans (`expr`).
+
+pub(crate) mod expr;
+
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+
+use serde::Deserialize;
+
+use crate::{Error, Result};
+
+/// The built-in ratio library, a readable file in `rules/` embedded in the binary.
+pub const STANDARD_LIBRARY: &str = include_str!("../../rules/standard.toml");
+
+/// Canonical column names the built-in ratios use; map each to a raw column in `[columns]`.
+pub const CANONICAL_COLUMNS: [&str; 10] = [
+    "total_assets",
+    "net_income",
+    "ebit",
+    "interest_expense",
+    "rd_expense",
+    "current_assets",
+    "current_liabilities",
+    "short_term_debt",
+    "long_term_debt",
+    "sales",
+];
+
+/// A rules file as written by the user (or a built-in library).
+#[derive(Debug, Default, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RulesFile {
+    /// Built-in libraries to pull in: `standard` is the ratio library.
+    #[serde(default)]
+    pub include: Vec<String>,
+    /// Panel keys.
+    #[serde(default)]
+    pub panel: PanelSection,
+    /// Canonical name -> raw column name.
+    #[serde(default)]
+    pub columns: BTreeMap<String, String>,
+    /// Derived variables by name.
+    #[serde(default)]
+    pub derive: BTreeMap<String, DeriveRule>,
+    /// Cleaning policy.
+    #[serde(default)]
+    pub clean: CleanSection,
+}
+
+/// `[panel]`: which columns identify the entity and the period.
+#[derive(Debug, Default, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct PanelSection {
+    /// The entity (firm) column.
+    pub entity: Option<String>,
+    /// The period (fiscal year) column, integers.
+    pub period: Option<String>,
+}
+
+/// `[derive.NAME]`: one derived variable.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct DeriveRule {
+    /// An SQL expression over raw, canonical and other derived columns, with panel functions.
+    pub expr: String,
+    /// A human label for reports and the data dictionary.
+    #[serde(default)]
+    pub label: Option<String>,
+    /// The unit of the result.
+    #[serde(default)]
+    pub unit: Option<String>,
+    /// Where the definition comes from (a paper, a standard, "common practice").
+    #[serde(default)]
+    pub source: Option<String>,
+    /// Conditions under which the value is set to null, each with the reason reported.
+    #[serde(default)]
+    pub null_when: Vec<NullWhen>,
+}
+
+/// One null condition of a derived variable.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct NullWhen {
+    /// An SQL boolean expression; where true, the derived value is null.
+    pub when: String,
+    /// The reason, as counted in the report.
+    pub reason: String,
+}
+
+/// `[clean]`: how `build` resolves problems it finds.
+#[derive(Debug, Default, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct CleanSection {
+    /// Policy for conflicting duplicate keys; see `DuplicatePolicy`.
+    #[serde(default)]
+    pub duplicates: Option<String>,
+}
+
+/// Where a derived variable came from.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Origin {
+    /// The user's rules file.
+    User,
+    /// The built-in standard library.
+    Standard,
+}
+
+/// A rules file with its libraries merged in, ready for `Config`.
+#[derive(Debug, Clone)]
+pub struct Rules {
+    /// The file it was read from, if any.
+    pub path: Option<PathBuf>,
+    /// The file's text, hashed into the manifest.
+    pub text: String,
+    /// The parsed file (user part).
+    pub file: RulesFile,
+    /// Every derived variable, user rules overriding library rules of the same name.
+    pub derive: BTreeMap<String, (DeriveRule, Origin)>,
+}
+
+impl Rules {
+    /// Read and parse a rules file, then merge in its included libraries.
+    pub fn from_path(path: &Path) -> Result<Rules> {
+        let text = std::fs::read_to_string(path).map_err(Error::io(path))?;
+        Rules::from_text(Some(path.to_path_buf()), text)
+    }
+
+    /// Parse rules from text; `path` is only used in messages and the manifest.
+    pub fn from_text(path: Option<PathBuf>, text: String) -> Result<Rules> {
+        let shown = path.clone().unwrap_or_else(|| PathBuf::from("<rules>"));
+        let file: RulesFile = toml::from_str(&text).map_err(|e| Error::RulesFile {
+            path: shown,
+            message: one_line(&e.to_string()),
+        })?;
+        let mut derive = BTreeMap::new();
+        for name in &file.include {
+            for (rule_name, rule) in library(name)?.derive {
+                derive.insert(rule_name, (rule, Origin::Standard));
+            }
+        }
+        for (name, rule) in &file.derive {
+            derive.insert(name.clone(), (rule.clone(), Origin::User));
+        }
+        Ok(Rules {
+            path,
+            text,
+            file,
+            derive,
+        })
+    }
+
+    /// Rules with nothing in them: keys must then come from the command line.
+    pub fn empty() -> Rules {
+        Rules {
+            path: None,
+            text: String::new(),
+            file: RulesFile::default(),
+            derive: BTreeMap::new(),
+        }
+    }
+}
+
+/// A built-in library by name.
+pub fn library(name: &str) -> Result<RulesFile> {
+    match name {
+        "standard" => Ok(toml::from_str(STANDARD_LIBRARY).expect("the embedded library parses")),
+        _ => Err(Error::UnknownLibrary {
+            name: name.to_string(),
+        }),
+    }
+}
+
+/// toml's messages span several lines with a source excerpt; keep the first useful line.
+fn one_line(message: &str) -> String {
+    let lines: Vec<&str> = message.lines().map(str::trim).collect();
+    let head = lines.first().copied().unwrap_or_default();
+    let detail = lines.last().copied().unwrap_or_default();
+    if detail.is_empty() || detail == head {
+        head.to_string()
+    } else {
+        format!("{head}: {detail}")
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn standard_library_parses_and_names_a_source_for_every_ratio() {
+        let lib = library("standard").unwrap();
+        assert!(lib.derive.len() >= 6);
+        for (name, rule) in &lib.derive {
+            assert!(rule.source.is_some(), "`{name}` has no source");
+        }
+    }
+
+    #[test]
+    fn user_rules_override_library_rules() {
+        let text = r#"
+            include = ["standard"]
+            [derive.size]
+            expr = "ln(total_assets + 1)"
+        "#;
+        let rules = Rules::from_text(None, text.to_string()).unwrap();
+        let (rule, origin) = &rules.derive["size"];
+        assert_eq!(rule.expr, "ln(total_assets + 1)");
+        assert_eq!(*origin, Origin::User);
+        assert_eq!(rules.derive["leverage"].1, Origin::Standard);
+    }
+
+    #[test]
+    fn unknown_fields_and_libraries_are_errors() {
+        let err = Rules::from_text(None, "[panel]\nfirm = \"x\"\n".into()).unwrap_err();
+        assert!(err.to_string().contains("unknown field"), "{err}");
+        let err = Rules::from_text(None, "include = [\"nope\"]\n".into()).unwrap_err();
+        assert!(err.to_string().contains("`nope`"), "{err}");
+    }
+}

@@ -1,0 +1,263 @@
+//! Command-line behaviour: keys, gap-aware panel functions, errors and exit codes.
+
+use crate::util::Workdir;
+
+const RULES: &str = r#"
+[panel]
+entity = "company"
+period = "yr"
+
+[columns]
+total_assets = "ta_thousands"
+
+[derive.ta_lag]
+expr = "lag(total_assets, 1)"
+
+[derive.log_ta]
+expr = "ln(total_assets)"
+null_when = [{ when = "total_assets <= 0", reason = "assets not positive" }]
+
+[clean]
+duplicates = "keep-first"
+"#;
+
+// Firm A: 2001, 2002, 2004 (a gap at 2003); firm B: 2002 only; one row with no firm.
+const DATA: &str = "company,yr,ta_thousands\nA,2001,10\nA,2002,20\nA,2004,40\nB,2002,-5\n,2003,7\n";
+
+fn panel_rows(w: &Workdir) -> Vec<String> {
+    let text = std::fs::read_to_string(w.path("out/panel.csv")).unwrap();
+    text.lines().map(str::to_string).collect()
+}
+
+#[test]
+fn build_maps_columns_and_lags_respect_gaps() {
+    let w = Workdir::new();
+    w.write("raw.csv", DATA);
+    w.write("rules.toml", RULES);
+    w.ok(&["build", "raw.csv", "--rules", "rules.toml", "--out", "out"]);
+    // Hand-worked expectations: the lag at A's first year and across the 2003 gap is empty.
+    assert_eq!(
+        panel_rows(&w),
+        [
+            "source_row,company,yr,ta_thousands,log_ta,ta_lag",
+            &format!("1,A,2001,10,{},", 10f64.ln()),
+            &format!("2,A,2002,20,{},10", 20f64.ln()),
+            &format!("3,A,2004,40,{},", 40f64.ln()),
+            "4,B,2002,-5,,",
+        ]
+    );
+    let rejected = std::fs::read_to_string(w.path("out/rejected.csv")).unwrap();
+    let lines: Vec<&str> = rejected.lines().collect();
+    assert_eq!(
+        lines[0],
+        "source_row,step,reason,related_row,company,yr,ta_thousands"
+    );
+    assert_eq!(lines[1], "5,missing keys,entity missing,,,2003,7");
+    let manifest: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(w.path("out/manifest.json")).unwrap())
+            .unwrap();
+    assert_eq!(manifest["rows"]["input"], 5);
+    assert_eq!(manifest["rows"]["kept"], 4);
+    assert_eq!(manifest["rows"]["rejected"], 1);
+    let report: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(w.path("out/report.json")).unwrap()).unwrap();
+    let log_ta = report["derived"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|d| d["name"] == "log_ta")
+        .unwrap();
+    assert_eq!(log_ta["null_reasons"][0]["reason"], "assets not positive");
+    assert_eq!(log_ta["null_reasons"][0]["rows"], 1);
+}
+
+#[test]
+fn keys_from_the_command_line_and_parquet_input() {
+    let w = Workdir::new();
+    w.write("raw.csv", DATA);
+    w.write("rules.toml", RULES);
+    w.ok(&["build", "raw.csv", "--rules", "rules.toml", "--out", "out"]);
+    let r = w.ok(&[
+        "audit",
+        "out/panel.parquet",
+        "--entity",
+        "company",
+        "--period",
+        "yr",
+        "--format",
+        "json",
+    ]);
+    let report: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+    assert_eq!(report["panel"]["rows"], 4);
+    assert_eq!(report["panel"]["entities"], 2);
+    assert_eq!(report["input"]["format"], "parquet");
+}
+
+#[test]
+fn rule_errors_exit_2_with_one_line_naming_the_rule() {
+    let w = Workdir::new();
+    w.write("raw.csv", DATA);
+    let cases = [
+        (
+            "[derive.bad]\nexpr = \"ta_thousands / nosuch\"\n",
+            "rule `bad`: unknown column `nosuch`",
+        ),
+        (
+            "[derive.bad]\nexpr = \"ta_thousands / (2\"\n",
+            "rule `bad`: syntax error",
+        ),
+        (
+            "[derive.bad]\nexpr = \"wobble(ta_thousands)\"\n",
+            "rule `bad`: unknown function `wobble`",
+        ),
+        (
+            "[derive.a]\nexpr = \"b + 1\"\n[derive.b]\nexpr = \"a + 1\"\n",
+            "rules `a` -> `b` -> `a`",
+        ),
+        (
+            "[derive.bad]\nexpr = \"lag(ta_thousands, -1)\"\n",
+            "rule `bad`: `lag(ta_thousands, -1)`",
+        ),
+    ];
+    for (rules, want) in cases {
+        w.write(
+            "bad.toml",
+            &format!("[panel]\nentity = \"company\"\nperiod = \"yr\"\n{rules}"),
+        );
+        w.fails(
+            &["build", "raw.csv", "--rules", "bad.toml", "--out", "out"],
+            want,
+        );
+        assert!(!w.path("out").exists(), "a failed build left output behind");
+        w.fails(&["audit", "raw.csv", "--rules", "bad.toml"], want);
+    }
+}
+
+#[test]
+fn input_errors_name_the_file_row_and_column() {
+    let w = Workdir::new();
+    w.write("frac.csv", "company,yr,x\nA,2001,1\nA,2001.5,2\n");
+    w.fails(
+        &["audit", "frac.csv", "--entity", "company", "--period", "yr"],
+        "`frac.csv`: period column `yr` must hold integers; row 2 has `2001.5`",
+    );
+    w.write("text.csv", "company,yr,x\nA,2001,1\nA,FY02,2\n");
+    w.fails(
+        &["audit", "text.csv", "--entity", "company", "--period", "yr"],
+        "row 2 has `FY02`",
+    );
+    w.fails(
+        &["audit", "text.csv", "--entity", "firm", "--period", "yr"],
+        "no column `firm`",
+    );
+    w.fails(
+        &["audit", "text.csv", "--period", "yr"],
+        "no `entity` column",
+    );
+    w.fails(
+        &["audit", "nothere.csv", "--entity", "a", "--period", "b"],
+        "nothere.csv",
+    );
+    w.write("data.txt", "a,b\n");
+    w.fails(
+        &["audit", "data.txt", "--entity", "a", "--period", "b"],
+        "--input-format",
+    );
+    w.write("conflict.csv", "company,yr,x\nA,2001,1\nA,2001,2\n");
+    w.write("r.toml", "[panel]\nentity = \"company\"\nperiod = \"yr\"\n");
+    w.fails(
+        &["build", "conflict.csv", "--rules", "r.toml", "--out", "o"],
+        "entity `A`, period 2001",
+    );
+    w.write(
+        "r2.toml",
+        "[panel]\nentity = \"company\"\nperiod = \"yr\"\n[clean]\nduplicates = \"newest\"\n",
+    );
+    w.fails(
+        &["build", "conflict.csv", "--rules", "r2.toml", "--out", "o"],
+        "duplicates = \"newest\"` is not a policy",
+    );
+    w.write(
+        "r3.toml",
+        "[panel]\nentity = \"company\"\nperiod = \"yr\"\n[columns]\ntotal_assets = \"ta\"\n",
+    );
+    w.fails(
+        &["audit", "conflict.csv", "--rules", "r3.toml"],
+        "no column `ta` (mapped from `total_assets`",
+    );
+}
+
+#[test]
+fn build_refuses_to_overwrite_its_input_or_a_foreign_folder() {
+    let w = Workdir::new();
+    w.write("data/raw.csv", DATA);
+    w.write("rules.toml", RULES);
+    w.fails(
+        &[
+            "build",
+            "data/raw.csv",
+            "--rules",
+            "rules.toml",
+            "--out",
+            "data",
+        ],
+        "would overwrite the input",
+    );
+    w.write("notes/keep.txt", "mine");
+    w.fails(
+        &[
+            "build",
+            "data/raw.csv",
+            "--rules",
+            "rules.toml",
+            "--out",
+            "notes",
+        ],
+        "refusing to replace it",
+    );
+    assert_eq!(
+        std::fs::read_to_string(w.path("notes/keep.txt")).unwrap(),
+        "mine"
+    );
+    // A previous bundle is replaced as a whole.
+    w.ok(&[
+        "build",
+        "data/raw.csv",
+        "--rules",
+        "rules.toml",
+        "--out",
+        "out",
+    ]);
+    w.ok(&[
+        "build",
+        "data/raw.csv",
+        "--rules",
+        "rules.toml",
+        "--out",
+        "out",
+    ]);
+    assert_eq!(
+        std::fs::read_to_string(w.path("data/raw.csv")).unwrap(),
+        DATA,
+        "input modified"
+    );
+}
+
+#[test]
+fn ratios_lists_the_library() {
+    let w = Workdir::new();
+    let r = w.ok(&["ratios"]);
+    for name in [
+        "size",
+        "leverage",
+        "roa",
+        "rd_assets",
+        "working_capital_assets",
+        "interest_cover",
+    ] {
+        assert!(r.stdout.contains(name), "{name} missing:\n{}", r.stdout);
+    }
+    assert!(r.stdout.contains("Altman (1968)"));
+    let r = w.run(&["frobnicate"]);
+    assert_eq!(r.code, 2);
+}

@@ -1,0 +1,7 @@
+//! Integration tests: run the real `panelready` binary in a temporary folder.
+
+mod util;
+
+mod cli;
+mod demo;
+mod reference;
