@@ -6,6 +6,7 @@ use polars::prelude::*;
 
 use crate::load::ROW;
 use crate::report::{KeyExample, KeysSummary, SampleStep};
+use crate::rules::SingletonDrop;
 use crate::{Error, Result};
 
 /// Ledger column: the cleaning step that removed the row (`step` in the output).
@@ -147,6 +148,13 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
         .collect()?;
     steps.push(SampleStep::after(&steps, "exact copies", &df, entity)?);
     let exact_duplicate_rows = copies.height() as u64;
+    let exact_duplicate_keys = copies
+        .clone()
+        .lazy()
+        .select([col(entity), col(period)])
+        .unique(None, UniqueKeepStrategy::First)
+        .collect()?
+        .height() as u64;
     rejected.push(ledger(copies, k.columns)?);
 
     // 3. Conflicting keys: the same key on rows with different values.
@@ -239,6 +247,7 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
         keys: KeysSummary {
             missing_key_rows,
             exact_duplicate_rows,
+            exact_duplicate_keys,
             conflicting_keys,
             conflicting_rows,
             policy: policy.label(),
@@ -246,6 +255,98 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
         },
         steps,
     })
+}
+
+/// Which singletons `build` drops.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum SingletonPolicy {
+    /// Keep them (the default).
+    Keep,
+    /// Drop entities observed in one period only.
+    Entity,
+    /// Drop rows whose entity or period has one row, again and again until none is left.
+    EntityPeriod,
+}
+
+impl SingletonPolicy {
+    /// Parse `[clean] drop_singletons`.
+    pub fn parse(value: Option<&SingletonDrop>) -> Result<SingletonPolicy> {
+        Ok(match value {
+            None | Some(SingletonDrop::Flag(false)) => SingletonPolicy::Keep,
+            Some(SingletonDrop::Flag(true)) => SingletonPolicy::Entity,
+            Some(SingletonDrop::Mode(m)) if m == "entity" => SingletonPolicy::Entity,
+            Some(SingletonDrop::Mode(m)) if m == "entity+period" => SingletonPolicy::EntityPeriod,
+            Some(SingletonDrop::Mode(m)) => {
+                return Err(Error::SingletonPolicy { value: m.clone() })
+            }
+        })
+    }
+}
+
+/// Drop singletons by the policy; returns the kept rows and the ledger part, if any.
+pub fn drop_singletons(
+    df: DataFrame,
+    policy: SingletonPolicy,
+    k: &Keys,
+) -> Result<(DataFrame, Option<DataFrame>)> {
+    let (entity, period) = (k.entity, k.period);
+    let (keep, reason) = match policy {
+        SingletonPolicy::Keep => return Ok((df, None)),
+        SingletonPolicy::Entity => (
+            df.clone()
+                .lazy()
+                .select([col(entity), col(period)])
+                .filter(len().over([col(entity)])?.gt(lit(1)))
+                .collect()?,
+            "entity observed in one period only",
+        ),
+        SingletonPolicy::EntityPeriod => {
+            let keys = df
+                .clone()
+                .lazy()
+                .select([col(entity), col(period)])
+                .unique(None, UniqueKeepStrategy::First)
+                .collect()?;
+            (
+                crate::audit::two_way_singletons(&keys, entity, period)?.1,
+                "its entity or period had a single row under entity and period effects (dropped iteratively)",
+            )
+        }
+    };
+    let keep = keep.lazy().with_column(lit(true).alias("__keep"));
+    let marked = df
+        .lazy()
+        .join(
+            keep,
+            [col(entity), col(period)],
+            [col(entity), col(period)],
+            JoinArgs {
+                maintain_order: MaintainOrderJoin::Left,
+                ..JoinArgs::new(JoinType::Left)
+            },
+        )
+        .with_column(col("__keep").fill_null(lit(false)))
+        .collect()?;
+    let removed = marked
+        .clone()
+        .lazy()
+        .filter(col("__keep").not())
+        .with_columns(ledger_marks("singletons", reason))
+        .collect()?;
+    let kept = marked
+        .lazy()
+        .filter(col("__keep"))
+        .drop(cols(["__keep"]))
+        .collect()?;
+    Ok((kept, Some(ledger(removed, k.columns)?)))
+}
+
+fn ledger_marks(step: &str, reason: &str) -> [Expr; 3] {
+    [
+        lit(step.to_string()).alias(STEP),
+        lit(reason.to_string()).alias(REASON),
+        lit(NULL).cast(IDX_DTYPE).alias(RELATED),
+    ]
 }
 
 /// Put rejected rows in ledger column order.

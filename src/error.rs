@@ -72,6 +72,9 @@ pub enum Error {
     /// A `[clean] duplicates` policy that we do not know.
     #[error("rules file: `[clean] duplicates = \"{value}\"` is not a policy (fail, keep-first, keep-last, drop-all, prefer-max:COL, prefer-min:COL)")]
     DuplicatePolicy { value: String },
+    /// A `[clean] drop_singletons` value that we do not know.
+    #[error("rules file: `[clean] drop_singletons = \"{value}\"` is not a choice (true, false, \"entity\", \"entity+period\")")]
+    SingletonPolicy { value: String },
     /// The data has conflicting duplicate keys and the policy says to stop.
     #[error("`{file}`: {keys} entity-period keys appear on rows with different values (first: entity `{entity}`, period {period}); choose a policy in `[clean] duplicates`")]
     ConflictingKeys {

@@ -3,11 +3,11 @@
 use polars::prelude::*;
 
 use crate::audit::{self, Context};
-use crate::clean::{self, DuplicatePolicy, Keys};
+use crate::clean::{self, DuplicatePolicy, Keys, SingletonPolicy};
 use crate::config::InputConfig;
 use crate::derive::Plan;
 use crate::load::{self, ROW};
-use crate::report::{InputSummary, PanelSummary, Report};
+use crate::report::{InputSummary, Report, SampleStep};
 use crate::{Error, Result};
 
 /// Whether conflicting keys are resolved (build) or only reported (audit).
@@ -59,6 +59,13 @@ pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
     };
     let resolved = clean::resolve_keys(raw, &keys, &policy)?;
 
+    let singletons = match mode {
+        Mode::Audit => SingletonPolicy::Keep,
+        Mode::Build => SingletonPolicy::parse(rules.file.clean.drop_singletons.as_ref())?,
+    };
+    let mut steps = resolved.steps;
+    let mut ledger_parts = resolved.rejected;
+
     let (lf, hidden) = plan.apply(resolved.kept.lazy(), &input.entity, &input.period);
     let with_hidden = lf.collect()?;
     let derived = plan.null_counts(&with_hidden)?;
@@ -75,11 +82,21 @@ pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
         )
         .collect()?;
 
-    let mut ledger_parts = resolved.rejected.into_iter();
-    let first = ledger_parts
+    let (panel, removed) = clean::drop_singletons(panel, singletons, &keys)?;
+    if let Some(removed) = removed {
+        ledger_parts.push(removed);
+        steps.push(SampleStep::after(
+            &steps,
+            "singletons",
+            &panel,
+            &input.entity,
+        )?);
+    }
+
+    let mut ledger_parts = ledger_parts.into_iter();
+    let mut rejected = ledger_parts
         .next()
         .expect("the key steps always return ledger parts");
-    let mut rejected = first;
     for part in ledger_parts {
         rejected.vstack_mut(&part)?;
     }
@@ -100,27 +117,42 @@ pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
         rejected.rename(internal, name.as_str().into())?;
     }
 
-    let mut report = Report {
-        tool_version: env!("CARGO_PKG_VERSION").to_string(),
-        input: InputSummary {
-            path: input.path.display().to_string(),
-            format: input.format,
-            rows: loaded.rows,
-            columns: loaded.columns.len() as u64,
-            entity: input.entity.clone(),
-            period: input.period.clone(),
-        },
-        panel: PanelSummary::default(),
-        keys: resolved.keys,
-        derived,
-        skipped: plan.skipped.clone(),
-        sample_construction: resolved.steps,
+    let mut report = Report::new(InputSummary {
+        path: input.path.display().to_string(),
+        format: input.format,
+        rows: loaded.rows,
+        columns: loaded.columns.len() as u64,
+        entity: input.entity.clone(),
+        period: input.period.clone(),
+    });
+    report.keys = resolved.keys;
+    report.derived = derived;
+    report.skipped = plan.skipped.clone();
+    report.sample_construction = steps;
+    let compare: Vec<String> = match &rules.file.audit.compare {
+        Some(list) => list
+            .iter()
+            .map(|c| {
+                rules
+                    .file
+                    .columns
+                    .get(c)
+                    .cloned()
+                    .unwrap_or_else(|| c.clone())
+            })
+            .collect(),
+        None => plan.vars.iter().map(|v| v.name.clone()).collect(),
     };
-    let ctx = Context {
-        df: &panel,
-        entity: &input.entity,
-        period: &input.period,
-    };
+    for c in &compare {
+        if panel.schema().get(c.as_str()).is_none() {
+            return Err(Error::MissingColumn {
+                file: input.path.clone(),
+                column: c.clone(),
+                context: "named in `[audit] compare`".into(),
+            });
+        }
+    }
+    let ctx = Context::new(&panel, &input.entity, &input.period, compare)?;
     audit::run_all(&ctx, &mut report)?;
     Ok(Prepared {
         report,

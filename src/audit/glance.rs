@@ -56,6 +56,8 @@ pub fn summarize(df: &DataFrame, entity: &str, period: &str) -> Result<PanelSumm
         first_period: first,
         last_period: last,
         balanced: rows > 0 && rows == keys && rows == entities * window,
+        gamma: None,
+        nu: None,
     })
 }
 

@@ -1,23 +1,115 @@
 //! The checks: one file per check family, each behind the small `Check` trait, run in the
 //! order of `registry()`. Checks compute and fill the `Report`; they never print.
 
+mod attrition;
+mod coverage;
+mod entry_exit;
 mod glance;
 
-use polars::prelude::DataFrame;
+use polars::prelude::*;
 
 use crate::report::Report;
 use crate::Result;
 
+pub use attrition::{welch, Attrition};
+pub use coverage::{two_way_singletons, Coverage};
+pub use entry_exit::EntryExit;
 pub use glance::Glance;
 
-/// What every check sees: the panel after the key steps, with derived variables.
+/// Column names in `Context::keys` and `Context::entities`.
+pub mod names {
+    /// Periods since the entity's previous observation (null at its first).
+    pub const STEP: &str = "__step";
+    /// Observations of the entity.
+    pub const N: &str = "__n";
+    /// The entity's first period.
+    pub const FIRST: &str = "__first";
+    /// The entity's last period.
+    pub const LAST: &str = "__last";
+    /// Periods missing inside the entity's span.
+    pub const GAPS: &str = "__gaps";
+    /// The entity's spells.
+    pub const SPELLS: &str = "__spells";
+    /// The entity's longest gap.
+    pub const LONGEST: &str = "__longest";
+}
+
+/// What every check sees: the panel and two frames computed once from it.
 pub struct Context<'a> {
-    /// The panel.
+    /// The panel (after the key steps and any cleaning), with derived variables.
     pub df: &'a DataFrame,
     /// The entity column.
     pub entity: &'a str,
     /// The period column.
     pub period: &'a str,
+    /// Variables to compare between leavers and stayers.
+    pub compare: Vec<String>,
+    /// Distinct (entity, period) keys sorted by entity and period, with `__step`.
+    pub keys: DataFrame,
+    /// One row per entity: `__n`, `__first`, `__last`, `__gaps`, `__spells`, `__longest`.
+    pub entities: DataFrame,
+}
+
+impl<'a> Context<'a> {
+    /// Compute the shared frames.
+    pub fn new(
+        df: &'a DataFrame,
+        entity: &'a str,
+        period: &'a str,
+        compare: Vec<String>,
+    ) -> Result<Context<'a>> {
+        use names::*;
+        let keys = df
+            .clone()
+            .lazy()
+            .select([col(entity), col(period)])
+            .unique(None, UniqueKeepStrategy::First)
+            .sort([entity, period], Default::default())
+            .with_column((col(period) - col(period).shift(lit(1)).over([col(entity)])?).alias(STEP))
+            .collect()?;
+        let entities = keys
+            .clone()
+            .lazy()
+            .group_by([col(entity)])
+            .agg([
+                len().cast(DataType::Int64).alias(N),
+                col(period).min().alias(FIRST),
+                col(period).max().alias(LAST),
+                (lit(1i64) + col(STEP).gt(lit(1)).cast(DataType::Int64).sum()).alias(SPELLS),
+                (col(STEP) - lit(1))
+                    .max()
+                    .fill_null(lit(0i64))
+                    .alias(LONGEST),
+            ])
+            .with_column((col(LAST) - col(FIRST) + lit(1i64) - col(N)).alias(GAPS))
+            .sort([entity], Default::default())
+            .collect()?;
+        Ok(Context {
+            df,
+            entity,
+            period,
+            compare,
+            keys,
+            entities,
+        })
+    }
+
+    /// The window's first and last period, if the panel has rows.
+    pub fn window(&self) -> Result<Option<(i64, i64)>> {
+        let s = self
+            .keys
+            .clone()
+            .lazy()
+            .select([
+                col(self.period).min().alias("a"),
+                col(self.period).max().alias("b"),
+            ])
+            .collect()?;
+        Ok(s.column("a")?
+            .i64()?
+            .get(0)
+            .zip(s.column("b")?.i64()?.get(0)))
+    }
 }
 
 /// One family of checks.
@@ -30,7 +122,12 @@ pub trait Check {
 
 /// Every check, in report order.
 pub fn registry() -> Vec<Box<dyn Check>> {
-    vec![Box::new(Glance)]
+    vec![
+        Box::new(Glance),
+        Box::new(Coverage),
+        Box::new(EntryExit),
+        Box::new(Attrition),
+    ]
 }
 
 /// Run every check.
@@ -40,3 +137,21 @@ pub fn run_all(ctx: &Context, report: &mut Report) -> Result<()> {
     }
     Ok(())
 }
+
+/// Read one value of a one-row frame as f64.
+pub(crate) fn scalar_f64(df: &DataFrame, column: &str) -> Result<Option<f64>> {
+    Ok(df.column(column)?.cast(&DataType::Float64)?.f64()?.get(0))
+}
+
+/// Read one value of a one-row frame as u64.
+pub(crate) fn scalar_u64(df: &DataFrame, column: &str) -> Result<u64> {
+    Ok(df
+        .column(column)?
+        .cast(&DataType::UInt64)?
+        .u64()?
+        .get(0)
+        .unwrap_or(0))
+}
+
+#[cfg(test)]
+mod tests;

@@ -3,29 +3,39 @@
 use std::io::Write;
 
 use comfy_table::presets::UTF8_HORIZONTAL_ONLY;
-use comfy_table::{CellAlignment, ContentArrangement, Table};
+use comfy_table::{CellAlignment, ContentArrangement, Table, TableComponent};
 
-use super::{glance_rows, key_rows, null_breakdown, Render, Report};
+use super::layout::{sections, Block};
+use super::{Render, Report};
 
 /// Renders the report as tables for a person at a terminal.
 pub struct Terminal;
 
-fn table(header: &[&str]) -> Table {
+fn table(header: Vec<String>, rows: &[Vec<String>], show_header: bool) -> Table {
     let mut t = Table::new();
     t.load_preset(UTF8_HORIZONTAL_ONLY)
         .set_content_arrangement(ContentArrangement::Dynamic)
         .set_width(100)
-        .set_header(header.to_vec());
-    t
-}
-
-fn pairs(rows: &[(&str, String)]) -> Table {
-    let mut t = table(&["", ""]);
-    for (label, value) in rows {
-        t.add_row(vec![label.to_string(), value.clone()]);
+        .remove_style(TableComponent::HorizontalLines)
+        .remove_style(TableComponent::MiddleIntersections)
+        .remove_style(TableComponent::LeftBorderIntersections)
+        .remove_style(TableComponent::RightBorderIntersections);
+    let width = header.len();
+    if show_header {
+        t.set_header(header);
     }
-    if let Some(c) = t.column_mut(1) {
-        c.set_cell_alignment(CellAlignment::Right);
+    for row in rows {
+        t.add_row(row.clone());
+    }
+    for i in 1..width {
+        let numeric = rows.iter().all(|r| {
+            r.get(i)
+                .and_then(|c| c.chars().next())
+                .is_none_or(|c| c.is_ascii_digit() || "-–<".contains(c))
+        });
+        if let Some(c) = t.column_mut(i).filter(|_| numeric) {
+            c.set_cell_alignment(CellAlignment::Right);
+        }
     }
     t
 }
@@ -37,64 +47,51 @@ impl Render for Terminal {
             "{}: {} rows read (entity `{}`, period `{}`)\n",
             r.input.path, r.input.rows, r.input.entity, r.input.period
         )?;
-        writeln!(wtr, "PANEL AT A GLANCE\n{}\n", pairs(&glance_rows(r)))?;
-        writeln!(wtr, "KEYS\n{}", pairs(&key_rows(r)))?;
-        for e in &r.keys.examples {
-            writeln!(
-                wtr,
-                "  e.g. entity {} in {}: {} rows",
-                e.entity, e.period, e.rows
-            )?;
-        }
-        writeln!(wtr)?;
-        let mut t = table(&["derived variable", "with a value", "null", "why null"]);
-        for d in &r.derived {
-            t.add_row(vec![
-                d.name.clone(),
-                d.non_null.to_string(),
-                d.nulls.to_string(),
-                null_breakdown(d),
-            ]);
-        }
-        for i in [1, 2] {
-            if let Some(c) = t.column_mut(i) {
-                c.set_cell_alignment(CellAlignment::Right);
+        for section in sections(r) {
+            writeln!(wtr, "{}", section.title.to_uppercase())?;
+            for block in &section.blocks {
+                match block {
+                    Block::Pairs(rows) => {
+                        let rows: Vec<Vec<String>> = rows
+                            .iter()
+                            .map(|(a, b)| vec![a.clone(), b.clone()])
+                            .collect();
+                        writeln!(
+                            wtr,
+                            "{}",
+                            table(vec![String::new(), String::new()], &rows, false)
+                        )?;
+                    }
+                    Block::Table(header, rows) => {
+                        writeln!(wtr, "{}", table(header.clone(), rows, true))?
+                    }
+                    Block::Note(text) => writeln!(wtr, "{}", wrap(text, 98, "  "))?,
+                }
             }
+            writeln!(wtr)?;
         }
-        writeln!(wtr, "DERIVED VARIABLES\n{t}")?;
-        for s in &r.skipped {
-            writeln!(
-                wtr,
-                "  library ratio {} left out: no column `{}`",
-                s.name, s.missing
-            )?;
-        }
-        writeln!(wtr)?;
-        let mut t = table(&[
-            "step",
-            "rows before",
-            "removed",
-            "rows after",
-            "entities after",
-        ]);
-        for s in &r.sample_construction {
-            t.add_row(vec![
-                s.step.clone(),
-                s.rows_before.to_string(),
-                s.removed.to_string(),
-                s.rows_after.to_string(),
-                s.entities_after.to_string(),
-            ]);
-        }
-        for i in 1..5 {
-            if let Some(c) = t.column_mut(i) {
-                c.set_cell_alignment(CellAlignment::Right);
-            }
-        }
-        writeln!(wtr, "SAMPLE CONSTRUCTION\n{t}\n")?;
         writeln!(
             wtr,
             "These figures inform a judgement about the data; they do not show that a model is right."
         )
     }
+}
+
+/// Wrap text at `width` columns with an indent.
+fn wrap(text: &str, width: usize, indent: &str) -> String {
+    let mut out = String::new();
+    let mut line = String::from(indent);
+    for word in text.split_whitespace() {
+        if line.len() > indent.len() && line.len() + 1 + word.len() > width {
+            out.push_str(line.trim_end());
+            out.push('\n');
+            line = String::from(indent);
+        }
+        if line.len() > indent.len() {
+            line.push(' ');
+        }
+        line.push_str(word);
+    }
+    out.push_str(line.trim_end());
+    out
 }

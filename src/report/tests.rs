@@ -2,61 +2,86 @@
 
 use super::*;
 use crate::config::InputFormat;
+use crate::rules::Origin;
 
 fn sample() -> Report {
-    Report {
-        tool_version: "0.0.0".into(),
-        input: InputSummary {
-            path: "in.csv".into(),
-            format: InputFormat::Csv,
-            rows: 1234,
-            columns: 9,
-            entity: "firm".into(),
-            period: "year".into(),
-        },
-        panel: PanelSummary {
-            rows: 1201,
-            entities: 87,
-            periods: 15,
-            first_period: Some(2010),
-            last_period: Some(2024),
-            balanced: false,
-        },
-        keys: KeysSummary {
-            missing_key_rows: 3,
-            exact_duplicate_rows: 7,
-            conflicting_keys: 5,
-            conflicting_rows: 10,
-            policy: "keep-first".into(),
-            examples: vec![KeyExample {
-                entity: "VM00017".into(),
-                period: 2013,
-                rows: 2,
-            }],
-        },
-        derived: vec![DerivedSummary {
-            name: "size".into(),
-            label: "log assets".into(),
-            expr: "ln(total_assets)".into(),
-            unit: "log".into(),
-            source: "x".into(),
-            origin: Origin::Standard,
-            non_null: 1190,
-            nulls: 11,
-            null_reasons: vec![NullCount {
-                reason: "total assets not positive".into(),
-                rows: 11,
-            }],
+    let mut r = Report::new(InputSummary {
+        path: "in.csv".into(),
+        format: InputFormat::Csv,
+        rows: 1234,
+        columns: 9,
+        entity: "firm".into(),
+        period: "year".into(),
+    });
+    r.panel = PanelSummary {
+        rows: 1201,
+        entities: 87,
+        periods: 15,
+        first_period: Some(2010),
+        last_period: Some(2024),
+        balanced: false,
+        gamma: Some(0.8123),
+        nu: Some(0.7654),
+    };
+    r.keys = KeysSummary {
+        missing_key_rows: 3,
+        exact_duplicate_rows: 7,
+        exact_duplicate_keys: 6,
+        conflicting_keys: 5,
+        conflicting_rows: 10,
+        policy: "keep-first".into(),
+        examples: vec![KeyExample {
+            entity: "VM00017".into(),
+            period: 2013,
+            rows: 2,
         }],
-        skipped: vec![],
-        sample_construction: vec![SampleStep {
-            step: "missing keys".into(),
-            rows_before: 1234,
-            removed: 3,
-            rows_after: 1231,
-            entities_after: 87,
+    };
+    r.coverage.singletons = 41;
+    r.coverage.shapes = vec![Shape {
+        first: 2012,
+        last: 2024,
+        gap_periods: 2,
+        entities: 33,
+    }];
+    r.entry_exit = vec![EntryExit {
+        period: 2011,
+        present: 77,
+        entrants: Some(6),
+        leavers: None,
+        reentrants: 2,
+    }];
+    r.attrition.variables = vec![AttritionTest {
+        variable: "roa".into(),
+        n_leavers: 20,
+        n_stayers: 60,
+        mean_leavers: Some(0.0123),
+        mean_stayers: Some(0.0456),
+        t: Some(-2.5),
+        df: Some(31.2),
+        p: Some(0.0179),
+    }];
+    r.derived = vec![DerivedSummary {
+        name: "size".into(),
+        label: "log assets".into(),
+        expr: "ln(total_assets)".into(),
+        unit: "log".into(),
+        source: "x".into(),
+        origin: Origin::Standard,
+        non_null: 1190,
+        nulls: 11,
+        null_reasons: vec![NullCount {
+            reason: "total assets not positive".into(),
+            rows: 11,
         }],
-    }
+    }];
+    r.sample_construction = vec![SampleStep {
+        step: "missing keys".into(),
+        rows_before: 1234,
+        removed: 3,
+        rows_after: 1231,
+        entities_after: 87,
+    }];
+    r
 }
 
 fn render(format: ReportFormat) -> String {
@@ -69,7 +94,11 @@ fn render(format: ReportFormat) -> String {
 fn every_format_carries_the_same_figures() {
     let json: serde_json::Value = serde_json::from_str(&render(ReportFormat::Json)).unwrap();
     assert_eq!(json["panel"]["entities"], 87);
+    assert_eq!(json["panel"]["gamma"], 0.8123);
     assert_eq!(json["keys"]["conflicting_keys"], 5);
+    assert_eq!(json["coverage"]["singletons"], 41);
+    assert_eq!(json["entry_exit"][0]["leavers"], serde_json::Value::Null);
+    assert_eq!(json["attrition"]["variables"][0]["p"], 0.0179);
     assert_eq!(json["derived"][0]["null_reasons"][0]["rows"], 11);
     assert_eq!(json["sample_construction"][0]["rows_after"], 1231);
     for format in [ReportFormat::Terminal, ReportFormat::Markdown] {
@@ -78,7 +107,13 @@ fn every_format_carries_the_same_figures() {
             "1201",
             "87",
             "2010..2024",
+            "0.8123",
             "VM00017",
+            "41",
+            "2012 to 2024, 2 periods missing",
+            "77",
+            "0.0179",
+            "-2.50",
             "1190",
             "total assets not positive: 11",
             "1231",

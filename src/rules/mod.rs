@@ -46,6 +46,18 @@ pub struct RulesFile {
     /// Cleaning policy.
     #[serde(default)]
     pub clean: CleanSection,
+    /// What the audit compares.
+    #[serde(default)]
+    pub audit: AuditSection,
+}
+
+/// `[audit]`: settings of the checks.
+#[derive(Debug, Default, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct AuditSection {
+    /// Variables compared between leavers and stayers; default: every derived variable.
+    #[serde(default)]
+    pub compare: Option<Vec<String>>,
 }
 
 /// `[panel]`: which columns identify the entity and the period.
@@ -95,6 +107,20 @@ pub struct CleanSection {
     /// Policy for conflicting duplicate keys; see `DuplicatePolicy`.
     #[serde(default)]
     pub duplicates: Option<String>,
+    /// Drop singletons: `false` (default), `true` or `"entity"` for entities with one row,
+    /// `"entity+period"` for the iterated two-way rule.
+    #[serde(default)]
+    pub drop_singletons: Option<SingletonDrop>,
+}
+
+/// `[clean] drop_singletons`.
+#[derive(Debug, Clone, PartialEq, Eq, Deserialize)]
+#[serde(untagged)]
+pub enum SingletonDrop {
+    /// `true` drops entities with one row; `false` keeps everything.
+    Flag(bool),
+    /// `"entity"` or `"entity+period"`.
+    Mode(String),
 }
 
 /// Where a derived variable came from.

@@ -1,0 +1,137 @@
+//! Coverage: gaps, spells, singletons (one-way and iterated under two-way effects), the
+//! distribution of observations per entity, Ahrens–Pincus unbalancedness and the most common
+//! coverage shapes.
+
+use polars::prelude::*;
+
+use super::names::*;
+use super::{scalar_f64, scalar_u64, Check, Context};
+use crate::report::{Distribution, Report, Shape};
+use crate::Result;
+
+/// How many coverage shapes the report lists.
+const SHAPES: usize = 8;
+
+/// Coverage figures.
+pub struct Coverage;
+
+impl Check for Coverage {
+    fn name(&self) -> &'static str {
+        "coverage"
+    }
+
+    fn run(&self, ctx: &Context, report: &mut Report) -> Result<()> {
+        let n = col(N).cast(DataType::Float64);
+        let s = ctx
+            .entities
+            .clone()
+            .lazy()
+            .select([
+                col(GAPS).gt(lit(0)).sum().alias("with_gaps"),
+                col(GAPS).sum().alias("gap_periods"),
+                col(LONGEST).max().alias("longest"),
+                col(N).eq(lit(1)).sum().alias("singletons"),
+                col(SPELLS).sum().alias("spells"),
+                len().cast(DataType::Float64).alias("entities"),
+                n.clone().sum().alias("rows"),
+                (lit(1.0) / n.clone()).sum().alias("inv_sum"),
+                (n.clone() * n.clone()).sum().alias("sq_sum"),
+                n.clone().min().alias("min"),
+                n.clone()
+                    .quantile(lit(0.25), QuantileMethod::Linear)
+                    .alias("q1"),
+                n.clone()
+                    .quantile(lit(0.5), QuantileMethod::Linear)
+                    .alias("median"),
+                n.clone()
+                    .quantile(lit(0.75), QuantileMethod::Linear)
+                    .alias("q3"),
+                n.clone().max().alias("max"),
+                n.mean().alias("mean"),
+            ])
+            .collect()?;
+        let f = |c: &str| -> Result<f64> { Ok(scalar_f64(&s, c)?.unwrap_or(0.0)) };
+        let (entities, rows) = (f("entities")?, f("rows")?);
+        if entities > 0.0 {
+            // Ahrens & Pincus (1981): gamma = n / (T-bar * sum 1/T_i), nu = N^2 / (n sum T_i^2).
+            report.panel.gamma = Some(entities * entities / (rows * f("inv_sum")?));
+            report.panel.nu = Some(rows * rows / (entities * f("sq_sum")?));
+        }
+        let c = &mut report.coverage;
+        c.entities_with_gaps = scalar_u64(&s, "with_gaps")?;
+        c.gap_periods = scalar_u64(&s, "gap_periods")?;
+        c.longest_gap = scalar_u64(&s, "longest")?;
+        c.singletons = scalar_u64(&s, "singletons")?;
+        c.spells = scalar_u64(&s, "spells")?;
+        c.per_entity = Distribution {
+            min: f("min")?,
+            q1: f("q1")?,
+            median: f("median")?,
+            q3: f("q3")?,
+            max: f("max")?,
+            mean: f("mean")?,
+        };
+        let (shapes, distinct) = shapes(&ctx.entities)?;
+        c.shapes = shapes;
+        c.distinct_shapes = distinct;
+        c.singletons_two_way = two_way_singletons(&ctx.keys, ctx.entity, ctx.period)?.0;
+        Ok(())
+    }
+}
+
+fn shapes(entities: &DataFrame) -> Result<(Vec<Shape>, u64)> {
+    let grouped = entities
+        .clone()
+        .lazy()
+        .group_by([col(FIRST), col(LAST), col(GAPS)])
+        .agg([len().cast(DataType::UInt64).alias("entities")])
+        .sort_by_exprs(
+            [col("entities"), col(FIRST), col(LAST), col(GAPS)],
+            SortMultipleOptions::default().with_order_descending_multi([true, false, false, false]),
+        )
+        .collect()?;
+    let head = grouped.head(Some(SHAPES));
+    let first = head.column(FIRST)?.i64()?;
+    let last = head.column(LAST)?.i64()?;
+    let gaps = head.column(GAPS)?.i64()?;
+    let n = head.column("entities")?.u64()?;
+    let shapes = (0..head.height())
+        .map(|i| Shape {
+            first: first.get(i).unwrap_or_default(),
+            last: last.get(i).unwrap_or_default(),
+            gap_periods: gaps.get(i).unwrap_or_default() as u64,
+            entities: n.get(i).unwrap_or_default(),
+        })
+        .collect();
+    Ok((shapes, grouped.height() as u64))
+}
+
+/// Drop rows whose entity or period has a single row, again and again until none is left
+/// (Correia 2015: dropping one singleton can create another). Returns the rows removed and
+/// the keys that survive. `keys` holds distinct (entity, period) pairs.
+pub fn two_way_singletons(
+    keys: &DataFrame,
+    entity: &str,
+    period: &str,
+) -> Result<(u64, DataFrame)> {
+    let mut kept = keys
+        .clone()
+        .lazy()
+        .select([col(entity), col(period)])
+        .collect()?;
+    loop {
+        let before = kept.height();
+        kept = kept
+            .lazy()
+            .filter(
+                len()
+                    .over([col(entity)])?
+                    .gt(lit(1))
+                    .and(len().over([col(period)])?.gt(lit(1))),
+            )
+            .collect()?;
+        if kept.height() == before {
+            return Ok(((keys.height() - kept.height()) as u64, kept));
+        }
+    }
+}

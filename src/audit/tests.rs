@@ -1,0 +1,100 @@
+//! Check tests on tiny hand-worked panels.
+
+use polars::prelude::*;
+
+use super::*;
+use crate::report::Report;
+
+fn report_for(df: &DataFrame, compare: &[&str]) -> Report {
+    let mut report = blank();
+    let ctx = Context::new(
+        df,
+        "f",
+        "y",
+        compare.iter().map(|s| s.to_string()).collect(),
+    )
+    .unwrap();
+    run_all(&ctx, &mut report).unwrap();
+    report
+}
+
+fn blank() -> Report {
+    Report::new(crate::report::InputSummary {
+        path: "t.csv".into(),
+        format: crate::config::InputFormat::Csv,
+        rows: 0,
+        columns: 2,
+        entity: "f".into(),
+        period: "y".into(),
+    })
+}
+
+#[test]
+fn ahrens_pincus_hand_example() {
+    // T_i = (3, 2, 1) gives gamma = 9/11 and nu = 6/7 (Ahrens & Pincus 1981; worked by hand).
+    let df = df!("f" => ["a", "a", "a", "b", "b", "c"], "y" => [1i64, 2, 3, 1, 2, 1]).unwrap();
+    let r = report_for(&df, &[]);
+    assert!((r.panel.gamma.unwrap() - 9.0 / 11.0).abs() < 1e-12);
+    assert!((r.panel.nu.unwrap() - 6.0 / 7.0).abs() < 1e-12);
+    assert_eq!(r.coverage.singletons, 1);
+    assert_eq!(r.coverage.per_entity.median, 2.0);
+}
+
+#[test]
+fn iterated_two_way_singletons_remove_every_row() {
+    // (A,1), (A,2), (B,2), (B,3), (C,3): C is a singleton; dropping it leaves period 3 with
+    // one row, and so on until nothing is left (Correia 2015; worked by hand).
+    let df = df!("f" => ["A", "A", "B", "B", "C"], "y" => [1i64, 2, 2, 3, 3]).unwrap();
+    let r = report_for(&df, &[]);
+    assert_eq!(r.coverage.singletons, 1);
+    assert_eq!(r.coverage.singletons_two_way, 5);
+}
+
+#[test]
+fn gaps_spells_entry_exit_and_survival() {
+    // Window 1..4. a: 1,2,4 (gap at 3, back at 4); b: 1..4; c: 2,3 (enters 2, leaves 3).
+    let df = df!(
+        "f" => ["a", "a", "a", "b", "b", "b", "b", "c", "c"],
+        "y" => [1i64, 2, 4, 1, 2, 3, 4, 2, 3],
+    )
+    .unwrap();
+    let r = report_for(&df, &[]);
+    let c = &r.coverage;
+    assert_eq!(
+        (c.entities_with_gaps, c.gap_periods, c.longest_gap, c.spells),
+        (1, 1, 1, 4)
+    );
+    let lines: Vec<_> = r
+        .entry_exit
+        .iter()
+        .map(|l| (l.period, l.present, l.entrants, l.leavers, l.reentrants))
+        .collect();
+    assert_eq!(
+        lines,
+        [
+            (1, 2, None, Some(0), 0),
+            (2, 3, Some(1), Some(0), 0),
+            (3, 2, Some(0), Some(1), 0),
+            (4, 2, Some(0), None, 1),
+        ]
+    );
+    // Cohort 1 (a, b): observed at k = 0, 1, 2, 3 -> 2, 2, 1, 2 of 2. Cohort 2 (c): 1, 1, 0.
+    assert_eq!(r.survival[0].shares, [1.0, 1.0, 0.5, 1.0]);
+    assert_eq!(r.survival[1].shares, [1.0, 1.0, 0.0]);
+    assert_eq!((r.attrition.leavers, r.attrition.stayers), (1, 2));
+}
+
+#[test]
+fn welch_t_and_df_by_hand() {
+    // x = 1, 2, 3, 4 (mean 2.5, var 5/3); y = 2, 4, 6, 8, 10 (mean 6, var 10). By hand:
+    // se^2 = 5/12 + 2 = 29/12; t = -3.5 / sqrt(29/12); df = (29/12)^2 / ((5/12)^2/3 + 4/4).
+    let (t, df, p) = welch(2.5, 5.0 / 3.0, 4.0, 6.0, 10.0, 5.0).unwrap();
+    assert!((t - (-3.5 / (29.0f64 / 12.0).sqrt())).abs() < 1e-12);
+    let want_df = (29.0f64 / 12.0).powi(2) / ((5.0f64 / 12.0).powi(2) / 3.0 + 1.0);
+    assert!((df - want_df).abs() < 1e-12);
+    assert!(p > 0.0 && p < 0.1, "{p}");
+    assert!(
+        welch(1.0, 0.0, 1.0, 2.0, 1.0, 5.0).is_none(),
+        "one leaver is too few"
+    );
+}

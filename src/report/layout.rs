@@ -1,0 +1,358 @@
+//! The report laid out as sections of blocks (pairs, tables, notes), shared by the terminal
+//! and Markdown renderers so that both show the same figures in the same order. Formatting of
+//! numbers happens here; nothing is computed.
+
+use super::model::*;
+
+/// One titled section.
+pub(crate) struct Section {
+    /// The label, from the project vocabulary.
+    pub(crate) title: &'static str,
+    /// Its content in order.
+    pub(crate) blocks: Vec<Block>,
+}
+
+/// A piece of a section.
+pub(crate) enum Block {
+    /// Label and value rows.
+    Pairs(Vec<(String, String)>),
+    /// A table: header, rows; columns after the first are right-aligned.
+    Table(Vec<String>, Vec<Vec<String>>),
+    /// A sentence.
+    Note(String),
+}
+
+/// A number with up to `digits` decimals, trailing zeros kept for alignment.
+pub(crate) fn num(x: f64, digits: usize) -> String {
+    if x.is_finite() {
+        format!("{x:.digits$}")
+    } else {
+        "–".into()
+    }
+}
+
+fn opt(x: Option<f64>, digits: usize) -> String {
+    x.map_or("–".into(), |x| num(x, digits))
+}
+
+/// A p-value: four decimals, or "< 0.0001".
+pub(crate) fn pval(p: Option<f64>) -> String {
+    match p {
+        Some(p) if p < 0.0001 => "< 0.0001".into(),
+        Some(p) => num(p, 4),
+        None => "–".into(),
+    }
+}
+
+fn pairs(rows: &[(&str, String)]) -> Block {
+    Block::Pairs(
+        rows.iter()
+            .map(|(a, b)| (a.to_string(), b.clone()))
+            .collect(),
+    )
+}
+
+fn strings(xs: &[&str]) -> Vec<String> {
+    xs.iter().map(|s| s.to_string()).collect()
+}
+
+/// The whole report as sections.
+pub(crate) fn sections(r: &Report) -> Vec<Section> {
+    vec![
+        glance(r),
+        keys(r),
+        coverage(r),
+        entry_exit(r),
+        derived(r),
+        sample(r),
+    ]
+}
+
+fn glance(r: &Report) -> Section {
+    let p = &r.panel;
+    let window = match (p.first_period, p.last_period) {
+        (Some(a), Some(b)) => format!("{a}..{b}"),
+        _ => "none".into(),
+    };
+    Section {
+        title: "Panel at a glance",
+        blocks: vec![pairs(&[
+            ("rows", p.rows.to_string()),
+            ("entities", p.entities.to_string()),
+            ("periods observed", p.periods.to_string()),
+            ("window", window),
+            ("balanced", if p.balanced { "yes" } else { "no" }.into()),
+            ("unbalancedness gamma (1 = balanced)", opt(p.gamma, 4)),
+            ("unbalancedness nu (1 = balanced)", opt(p.nu, 4)),
+        ])],
+    }
+}
+
+fn keys(r: &Report) -> Section {
+    let k = &r.keys;
+    let mut blocks = vec![pairs(&[
+        (
+            "rows missing entity or period",
+            k.missing_key_rows.to_string(),
+        ),
+        (
+            "exact copies of an earlier row",
+            k.exact_duplicate_rows.to_string(),
+        ),
+        ("keys with exact copies", k.exact_duplicate_keys.to_string()),
+        (
+            "keys on rows with different values",
+            k.conflicting_keys.to_string(),
+        ),
+        ("rows carrying those keys", k.conflicting_rows.to_string()),
+        ("policy for those keys", k.policy.clone()),
+    ])];
+    if !k.examples.is_empty() {
+        let list: Vec<String> = k
+            .examples
+            .iter()
+            .map(|e| format!("{} in {} ({} rows)", e.entity, e.period, e.rows))
+            .collect();
+        blocks.push(Block::Note(format!(
+            "First keys on rows with different values: {}.",
+            list.join("; ")
+        )));
+    }
+    Section {
+        title: "Keys",
+        blocks,
+    }
+}
+
+fn shape_words(s: &Shape) -> String {
+    let span = if s.first == s.last {
+        format!("only {}", s.first)
+    } else {
+        format!("{} to {}", s.first, s.last)
+    };
+    match s.gap_periods {
+        0 => format!("{span}, no gaps"),
+        1 => format!("{span}, 1 period missing"),
+        g => format!("{span}, {g} periods missing"),
+    }
+}
+
+fn coverage(r: &Report) -> Section {
+    let c = &r.coverage;
+    let d = &c.per_entity;
+    let mut blocks = vec![pairs(&[
+        (
+            "observations per entity: min / q1 / median / q3 / max",
+            format!(
+                "{} / {} / {} / {} / {}",
+                num(d.min, 0),
+                num(d.q1, 2),
+                num(d.median, 1),
+                num(d.q3, 2),
+                num(d.max, 0)
+            ),
+        ),
+        ("observations per entity: mean", num(d.mean, 2)),
+        ("spells (runs of consecutive periods)", c.spells.to_string()),
+        ("entities with gaps", c.entities_with_gaps.to_string()),
+        ("periods missing inside spans", c.gap_periods.to_string()),
+        ("longest gap (periods)", c.longest_gap.to_string()),
+        ("singletons (one period only)", c.singletons.to_string()),
+        (
+            "rows lost to singletons under entity + period effects",
+            c.singletons_two_way.to_string(),
+        ),
+    ])];
+    if !c.shapes.is_empty() {
+        let rows = c
+            .shapes
+            .iter()
+            .map(|s| vec![shape_words(s), s.entities.to_string()])
+            .collect();
+        blocks.push(Block::Table(
+            strings(&["most common coverage", "entities"]),
+            rows,
+        ));
+        blocks.push(Block::Note(format!(
+            "{} distinct coverage shapes in all.",
+            c.distinct_shapes
+        )));
+    }
+    Section {
+        title: "Coverage",
+        blocks,
+    }
+}
+
+/// Survival horizons shown in the text reports (JSON has every k).
+const HORIZONS: [usize; 4] = [1, 2, 5, 10];
+
+fn entry_exit(r: &Report) -> Section {
+    let dash = |x: Option<u64>| x.map_or("–".to_string(), |x| x.to_string());
+    let rows = r
+        .entry_exit
+        .iter()
+        .map(|l| {
+            vec![
+                l.period.to_string(),
+                l.present.to_string(),
+                dash(l.entrants),
+                dash(l.leavers),
+                l.reentrants.to_string(),
+            ]
+        })
+        .collect();
+    let mut blocks = vec![
+        Block::Table(
+            strings(&[
+                "period",
+                "present",
+                "entrants",
+                "leavers",
+                "back after a gap",
+            ]),
+            rows,
+        ),
+        Block::Note(
+            "Entrants are first seen in that period and leavers last seen in it; neither is \
+             counted at the window's edges (–), where entry and exit cannot be observed."
+                .into(),
+        ),
+    ];
+    let longest = r.survival.iter().map(|s| s.shares.len()).max().unwrap_or(0);
+    let horizons: Vec<usize> = HORIZONS.iter().copied().filter(|h| *h < longest).collect();
+    if !horizons.is_empty() {
+        let mut header = strings(&["entry cohort", "entities"]);
+        header.extend(horizons.iter().map(|h| format!("seen {h} later")));
+        let rows = r
+            .survival
+            .iter()
+            .map(|s| {
+                let mut row = vec![s.cohort.to_string(), s.entities.to_string()];
+                row.extend(
+                    horizons
+                        .iter()
+                        .map(|h| s.shares.get(*h).map_or("–".into(), |x| num(*x, 2))),
+                );
+                row
+            })
+            .collect();
+        blocks.push(Block::Table(header, rows));
+        blocks.push(Block::Note(
+            "Share of each entry cohort observed k periods after its first; the first cohort \
+             holds every entity present at the window's start."
+                .into(),
+        ));
+    }
+    let a = &r.attrition;
+    if !a.variables.is_empty() {
+        let rows = a
+            .variables
+            .iter()
+            .map(|v| {
+                vec![
+                    v.variable.clone(),
+                    format!("{} / {}", opt(v.mean_leavers, 4), v.n_leavers),
+                    format!("{} / {}", opt(v.mean_stayers, 4), v.n_stayers),
+                    opt(v.t, 2),
+                    opt(v.df, 1),
+                    pval(v.p),
+                ]
+            })
+            .collect();
+        blocks.push(Block::Table(
+            strings(&[
+                "at first period",
+                "leavers: mean / n",
+                "stayers: mean / n",
+                "Welch t",
+                "df",
+                "p",
+            ]),
+            rows,
+        ));
+    }
+    blocks.push(Block::Note(format!(
+        "{} entities left before the window's last period, {} stayed. A difference between \
+         leavers and stayers at entry is a warning signal to look at attrition, not a test of \
+         selection bias.",
+        a.leavers, a.stayers
+    )));
+    Section {
+        title: "Entry and exit",
+        blocks,
+    }
+}
+
+/// How a derived variable's nulls break down, in words.
+pub(crate) fn null_breakdown(d: &DerivedSummary) -> String {
+    let parts: Vec<String> = d
+        .null_reasons
+        .iter()
+        .filter(|n| n.rows > 0)
+        .map(|n| format!("{}: {}", n.reason, n.rows))
+        .collect();
+    if parts.is_empty() {
+        "none".into()
+    } else {
+        parts.join("; ")
+    }
+}
+
+fn derived(r: &Report) -> Section {
+    let rows = r
+        .derived
+        .iter()
+        .map(|d| {
+            vec![
+                d.name.clone(),
+                d.non_null.to_string(),
+                d.nulls.to_string(),
+                null_breakdown(d),
+            ]
+        })
+        .collect();
+    let mut blocks = vec![Block::Table(
+        strings(&["derived variable", "with a value", "null", "why null"]),
+        rows,
+    )];
+    for s in &r.skipped {
+        blocks.push(Block::Note(format!(
+            "Library ratio {} left out: no column `{}`.",
+            s.name, s.missing
+        )));
+    }
+    Section {
+        title: "Derived variables",
+        blocks,
+    }
+}
+
+fn sample(r: &Report) -> Section {
+    let rows = r
+        .sample_construction
+        .iter()
+        .map(|s| {
+            vec![
+                s.step.clone(),
+                s.rows_before.to_string(),
+                s.removed.to_string(),
+                s.rows_after.to_string(),
+                s.entities_after.to_string(),
+            ]
+        })
+        .collect();
+    Section {
+        title: "Sample construction",
+        blocks: vec![Block::Table(
+            strings(&[
+                "step",
+                "rows before",
+                "removed",
+                "rows after",
+                "entities after",
+            ]),
+            rows,
+        )],
+    }
+}

@@ -1,0 +1,327 @@
+//! The report's data: every figure the readiness report shows, as typed, documented structs.
+//! Field names are the JSON contract of `report.json`.
+
+use polars::prelude::*;
+use serde::Serialize;
+
+use super::distinct;
+use crate::config::InputFormat;
+use crate::rules::Origin;
+use crate::Result;
+
+/// Every figure the readiness report shows. Field names are the JSON contract.
+#[derive(Debug, Clone, Serialize)]
+pub struct Report {
+    /// The panelready version that made the report.
+    pub tool_version: String,
+    /// What was read.
+    pub input: InputSummary,
+    /// The panel the checks ran on (after the key steps).
+    pub panel: PanelSummary,
+    /// Missing and duplicate keys in the input.
+    pub keys: KeysSummary,
+    /// Gaps, spells, singletons and the shape of each entity's coverage.
+    pub coverage: Coverage,
+    /// Entities present, entering, leaving and returning, per period.
+    pub entry_exit: Vec<EntryExit>,
+    /// Share of each entry cohort still observed k periods after entry.
+    pub survival: Vec<Survival>,
+    /// Leavers against stayers at their first observed period.
+    pub attrition: Attrition,
+    /// Each derived variable with its null counts by reason.
+    pub derived: Vec<DerivedSummary>,
+    /// Library ratios left out because the data lacks an input.
+    pub skipped: Vec<SkippedRule>,
+    /// From raw rows to final rows, one line per step.
+    pub sample_construction: Vec<SampleStep>,
+}
+
+impl Report {
+    /// A report with no figures yet, for the pipeline and the checks to fill.
+    pub fn new(input: InputSummary) -> Report {
+        Report {
+            tool_version: env!("CARGO_PKG_VERSION").to_string(),
+            input,
+            panel: PanelSummary::default(),
+            keys: KeysSummary::default(),
+            coverage: Coverage::default(),
+            entry_exit: Vec::new(),
+            survival: Vec::new(),
+            attrition: Attrition::default(),
+            derived: Vec::new(),
+            skipped: Vec::new(),
+            sample_construction: Vec::new(),
+        }
+    }
+}
+
+/// The input file.
+#[derive(Debug, Clone, Serialize)]
+pub struct InputSummary {
+    /// The path as given.
+    pub path: String,
+    /// CSV or Parquet.
+    pub format: InputFormat,
+    /// Rows read.
+    pub rows: u64,
+    /// Columns read.
+    pub columns: u64,
+    /// The entity column.
+    pub entity: String,
+    /// The period column.
+    pub period: String,
+}
+
+/// Panel at a glance.
+#[derive(Debug, Clone, Default, Serialize)]
+pub struct PanelSummary {
+    /// Rows (entity-period observations).
+    pub rows: u64,
+    /// Distinct entities.
+    pub entities: u64,
+    /// Distinct periods observed.
+    pub periods: u64,
+    /// First period observed.
+    pub first_period: Option<i64>,
+    /// Last period observed.
+    pub last_period: Option<i64>,
+    /// Every entity observed in every period of first..last, once.
+    pub balanced: bool,
+    /// Ahrens–Pincus unbalancedness: harmonic over arithmetic mean of observations per
+    /// entity; 1 when balanced.
+    pub gamma: Option<f64>,
+    /// Ahrens–Pincus unbalancedness: N² / (n Σ T_i²); 1 when balanced.
+    pub nu: Option<f64>,
+}
+
+/// Missing and duplicate keys.
+#[derive(Debug, Clone, Default, Serialize)]
+pub struct KeysSummary {
+    /// Rows whose entity or period is missing.
+    pub missing_key_rows: u64,
+    /// Rows identical in every column to an earlier row (removed; the first is kept).
+    pub exact_duplicate_rows: u64,
+    /// Keys that had such copies.
+    pub exact_duplicate_keys: u64,
+    /// Keys that appear on rows with different values.
+    pub conflicting_keys: u64,
+    /// Rows carrying those keys.
+    pub conflicting_rows: u64,
+    /// The policy applied to conflicting keys.
+    pub policy: String,
+    /// The first few conflicting keys.
+    pub examples: Vec<KeyExample>,
+}
+
+/// One conflicting key.
+#[derive(Debug, Clone, Serialize)]
+pub struct KeyExample {
+    /// The entity.
+    pub entity: String,
+    /// The period.
+    pub period: i64,
+    /// How many rows carry it.
+    pub rows: u64,
+}
+
+/// One derived variable.
+#[derive(Debug, Clone, Serialize)]
+pub struct DerivedSummary {
+    /// Output column name.
+    pub name: String,
+    /// Human label.
+    pub label: String,
+    /// The expression as written.
+    pub expr: String,
+    /// Unit.
+    pub unit: String,
+    /// Source of the definition.
+    pub source: String,
+    /// User rules file or the built-in library.
+    pub origin: Origin,
+    /// Rows with a value.
+    pub non_null: u64,
+    /// Rows without one.
+    pub nulls: u64,
+    /// Nulls by reason; the reasons add up to `nulls`.
+    pub null_reasons: Vec<NullCount>,
+}
+
+/// Nulls of one reason.
+#[derive(Debug, Clone, Serialize)]
+pub struct NullCount {
+    /// The reason, as declared in the rule.
+    pub reason: String,
+    /// Rows.
+    pub rows: u64,
+}
+
+/// A library ratio left out.
+#[derive(Debug, Clone, Serialize)]
+pub struct SkippedRule {
+    /// The ratio.
+    pub name: String,
+    /// The input it lacks.
+    pub missing: String,
+}
+
+/// One line of the sample-construction table.
+#[derive(Debug, Clone, Serialize)]
+pub struct SampleStep {
+    /// The step.
+    pub step: String,
+    /// Rows before it.
+    pub rows_before: u64,
+    /// Rows it removed.
+    pub removed: u64,
+    /// Rows after it.
+    pub rows_after: u64,
+    /// Distinct entities after it.
+    pub entities_after: u64,
+}
+
+impl SampleStep {
+    /// The first line: rows as read.
+    pub fn start(df: &DataFrame, entity: &str) -> Result<SampleStep> {
+        let rows = df.height() as u64;
+        Ok(SampleStep {
+            step: "rows read".into(),
+            rows_before: rows,
+            removed: 0,
+            rows_after: rows,
+            entities_after: distinct(df, entity)?,
+        })
+    }
+
+    /// The line for a step that left `df`.
+    pub fn after(
+        steps: &[SampleStep],
+        step: &str,
+        df: &DataFrame,
+        entity: &str,
+    ) -> Result<SampleStep> {
+        let before = steps.last().map_or(0, |s| s.rows_after);
+        let after = df.height() as u64;
+        Ok(SampleStep {
+            step: step.into(),
+            rows_before: before,
+            removed: before - after,
+            rows_after: after,
+            entities_after: distinct(df, entity)?,
+        })
+    }
+}
+
+/// Coverage: how each entity's observations fill its span. Counted on distinct keys.
+#[derive(Debug, Clone, Default, Serialize)]
+pub struct Coverage {
+    /// Entities with at least one gap inside their span.
+    pub entities_with_gaps: u64,
+    /// Periods missing inside entities' spans, summed over entities.
+    pub gap_periods: u64,
+    /// The longest run of missing periods inside any entity's span.
+    pub longest_gap: u64,
+    /// Entities observed in one period only.
+    pub singletons: u64,
+    /// Rows removed when singletons are dropped again and again under entity and period
+    /// effects (an entity or a period with one row), until none is left.
+    pub singletons_two_way: u64,
+    /// Maximal runs of consecutive periods, summed over entities.
+    pub spells: u64,
+    /// Observations per entity.
+    pub per_entity: Distribution,
+    /// The most common coverage shapes (first period, last period, gaps), most common first.
+    pub shapes: Vec<Shape>,
+    /// How many distinct shapes there are.
+    pub distinct_shapes: u64,
+}
+
+/// A distribution's summary; quartiles by linear interpolation (Hyndman–Fan type 7).
+#[derive(Debug, Clone, Default, Serialize)]
+pub struct Distribution {
+    /// Smallest value.
+    pub min: f64,
+    /// First quartile.
+    pub q1: f64,
+    /// Median.
+    pub median: f64,
+    /// Third quartile.
+    pub q3: f64,
+    /// Largest value.
+    pub max: f64,
+    /// Mean.
+    pub mean: f64,
+}
+
+/// Entities sharing a coverage shape.
+#[derive(Debug, Clone, Serialize)]
+pub struct Shape {
+    /// First period observed.
+    pub first: i64,
+    /// Last period observed.
+    pub last: i64,
+    /// Periods missing in between.
+    pub gap_periods: u64,
+    /// Entities with this shape.
+    pub entities: u64,
+}
+
+/// One period's entry and exit. Entrants are not counted in the window's first period and
+/// leavers not in its last (`null`): whether an entity entered or left there is not
+/// observable.
+#[derive(Debug, Clone, Serialize)]
+pub struct EntryExit {
+    /// The period.
+    pub period: i64,
+    /// Entities observed in it.
+    pub present: u64,
+    /// Entities whose first period it is.
+    pub entrants: Option<u64>,
+    /// Entities whose last period it is.
+    pub leavers: Option<u64>,
+    /// Entities observed in it, absent in the period before, and seen earlier (back after a gap).
+    pub reentrants: u64,
+}
+
+/// One entry cohort's survival.
+#[derive(Debug, Clone, Serialize)]
+pub struct Survival {
+    /// The cohort's first period (the window's first period holds everyone present then).
+    pub cohort: i64,
+    /// Entities in the cohort.
+    pub entities: u64,
+    /// `shares[k]`: share of the cohort observed in period cohort + k.
+    pub shares: Vec<f64>,
+}
+
+/// Leavers against stayers, compared at each entity's first observed period.
+#[derive(Debug, Clone, Default, Serialize)]
+pub struct Attrition {
+    /// Entities last seen before the window's last period.
+    pub leavers: u64,
+    /// Entities observed in the window's last period.
+    pub stayers: u64,
+    /// One line per compared variable.
+    pub variables: Vec<AttritionTest>,
+}
+
+/// Welch's t-test of one variable, leavers against stayers.
+#[derive(Debug, Clone, Serialize)]
+pub struct AttritionTest {
+    /// The variable.
+    pub variable: String,
+    /// Leavers with a value at their first period.
+    pub n_leavers: u64,
+    /// Stayers with a value at their first period.
+    pub n_stayers: u64,
+    /// Mean among leavers.
+    pub mean_leavers: Option<f64>,
+    /// Mean among stayers.
+    pub mean_stayers: Option<f64>,
+    /// Welch's t statistic (leavers minus stayers).
+    pub t: Option<f64>,
+    /// Welch–Satterthwaite degrees of freedom.
+    pub df: Option<f64>,
+    /// Two-sided p-value.
+    pub p: Option<f64>,
+}
