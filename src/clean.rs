@@ -124,7 +124,24 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
     let missing_key_rows = missing.height() as u64;
     rejected.push(ledger(missing, k.columns)?);
 
-    // 2. Exact copies: same key and the same value in every column.
+    // 2. Exact copies: same key and the same value in every column. Only rows whose key
+    // appears more than once can be copies or conflicts, so the rest is set aside.
+    let key = [col(entity), col(period)];
+    let df = df
+        .lazy()
+        .with_column(len().over(key.clone())?.alias("__key_rows"))
+        .collect()?;
+    let single = df
+        .clone()
+        .lazy()
+        .filter(col("__key_rows").eq(lit(1)))
+        .drop(cols(["__key_rows"]))
+        .collect()?;
+    let df = df
+        .lazy()
+        .filter(col("__key_rows").gt(lit(1)))
+        .drop(cols(["__key_rows"]))
+        .collect()?;
     let value_cols: Vec<Expr> = k.columns.iter().map(|c| col(c.as_str())).collect();
     let first_of_copy = col(ROW).min().over(value_cols)?;
     let df = df
@@ -146,7 +163,12 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
         .filter(is_copy.not())
         .drop(cols([RELATED]))
         .collect()?;
-    steps.push(SampleStep::after(&steps, "exact copies", &df, entity)?);
+    steps.push(SampleStep::after(
+        &steps,
+        "exact copies",
+        &single.vstack(&df)?,
+        entity,
+    )?);
     let exact_duplicate_rows = copies.height() as u64;
     let exact_duplicate_keys = copies
         .clone()
@@ -158,7 +180,6 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
     rejected.push(ledger(copies, k.columns)?);
 
     // 3. Conflicting keys: the same key on rows with different values.
-    let key = [col(entity), col(period)];
     let df = df
         .lazy()
         .with_column(len().over(key.clone())?.alias("__key_rows"))
@@ -239,6 +260,7 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
                 .collect()?
         }
     };
+    let df = single.vstack(&df)?;
     steps.push(SampleStep::after(&steps, "duplicate keys", &df, entity)?);
 
     Ok(KeyResult {
@@ -397,12 +419,15 @@ mod tests {
     }
 
     fn rows(df: &DataFrame) -> Vec<u32> {
-        df.column(ROW)
+        let mut rows: Vec<u32> = df
+            .column(ROW)
             .unwrap()
             .u32()
             .unwrap()
             .into_no_null_iter()
-            .collect()
+            .collect();
+        rows.sort();
+        rows
     }
 
     #[test]

@@ -96,7 +96,17 @@ impl Plan {
 
     /// Add every derived column (and the hidden shifted columns they read) to `lf`.
     /// Returns the frame and the hidden column names, to drop after counting.
-    pub fn apply(&self, mut lf: LazyFrame, entity: &str, period: &str) -> (LazyFrame, Vec<String>) {
+    ///
+    /// `layout` says whether `lf` is sorted by entity and period with unique keys; then a
+    /// shifted column is read from the few rows just before (or after) each row, otherwise by
+    /// a join on (entity, period ± k). Both give the value at exactly period t − k.
+    pub fn apply(
+        &self,
+        mut lf: LazyFrame,
+        entity: &str,
+        period: &str,
+        layout: Layout,
+    ) -> (LazyFrame, Vec<String>) {
         let mut hidden: Vec<String> = Vec::new();
         for var in &self.vars {
             let shifts: BTreeSet<&Shift> = std::iter::once(&var.value)
@@ -108,7 +118,12 @@ impl Plan {
                 if hidden.contains(&name) {
                     continue;
                 }
-                lf = add_shift(lf, shift, &name, entity, period);
+                lf = match layout {
+                    Layout::SortedUnique => {
+                        lf.with_column(nearby(shift, entity, period).alias(name.as_str()))
+                    }
+                    Layout::Any => add_shift(lf, shift, &name, entity, period),
+                };
                 hidden.push(name);
             }
             let value = match var.any_condition() {
@@ -277,6 +292,34 @@ fn find_cycle(remaining: &BTreeMap<String, (BTreeSet<String>, Planned)>) -> Vec<
     }
 }
 
+/// How the frame given to `Plan::apply` is laid out.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Layout {
+    /// Sorted by entity then period, each key once.
+    SortedUnique,
+    /// Anything else (duplicate keys, any order).
+    Any,
+}
+
+/// On a frame sorted by (entity, period) with unique keys, the row for period t − k of the
+/// same entity, if present, lies at most |k| rows away: look at each of those rows.
+fn nearby(shift: &Shift, entity: &str, period: &str) -> Expr {
+    let k = shift.k;
+    let reach = k.unsigned_abs() as i64;
+    let sign = if k > 0 { 1 } else { -1 };
+    let hit = |j: i64| {
+        col(entity)
+            .shift(lit(sign * j))
+            .eq(col(entity))
+            .and(col(period).shift(lit(sign * j)).eq(col(period) - lit(k)))
+            .fill_null(lit(false))
+    };
+    let value = |j: i64| col(shift.column.as_str()).shift(lit(sign * j));
+    (1..=reach).rev().fold(lit(NULL), |rest, j| {
+        when(hit(j)).then(value(j)).otherwise(rest)
+    })
+}
+
 /// Join the value of `shift.column` at period t - k of the same entity onto period t.
 fn add_shift(lf: LazyFrame, shift: &Shift, hidden: &str, entity: &str, period: &str) -> LazyFrame {
     let right = lf
@@ -316,7 +359,7 @@ mod tests {
             .map(|c| c.to_string())
             .collect();
         let plan = Plan::new(rules, &raw).unwrap();
-        let (lf, _) = plan.apply(df.lazy(), "firm", "year");
+        let (lf, _) = plan.apply(df.lazy(), "firm", "year", Layout::Any);
         lf.collect().unwrap()
     }
 
@@ -374,7 +417,7 @@ mod tests {
         let names: Vec<&str> = plan.vars.iter().map(|v| v.name.as_str()).collect();
         assert_eq!(names, ["size"], "only size has all its inputs");
         assert!(plan.skipped.iter().any(|s| s.name == "leverage"));
-        let (lf, _) = plan.apply(df.lazy(), "firm", "year");
+        let (lf, _) = plan.apply(df.lazy(), "firm", "year", Layout::Any);
         let out = lf.collect().unwrap();
         let size: Vec<Option<f64>> = out.column("size").unwrap().f64().unwrap().iter().collect();
         assert_eq!(size, [Some(100f64.ln()), None, None, Some(50f64.ln())]);

@@ -14,8 +14,8 @@ pub const ROW: &str = "__row";
 
 /// The raw panel, ready for the pipeline.
 pub struct Loaded {
-    /// Every raw column, the entity as text, the period as Int64, plus `source_row`.
-    pub lf: LazyFrame,
+    /// Every raw column, the entity as text, the period as Int64, plus the row number.
+    pub df: DataFrame,
     /// The raw column names, in file order.
     pub columns: Vec<String>,
     /// The rows read.
@@ -24,7 +24,7 @@ pub struct Loaded {
 
 /// Read the input named in `cfg` and check its keys.
 pub fn load(cfg: &InputConfig) -> Result<Loaded> {
-    let mut lf = scan(&cfg.path, cfg.format)?;
+    let mut lf = scan(&cfg.path, cfg.format, Some(INFER_ROWS))?;
     let schema = lf.collect_schema()?;
     let columns: Vec<String> = schema.iter_names().map(|n| n.to_string()).collect();
     if let Some(c) = columns.iter().find(|c| c.starts_with("__")) {
@@ -54,28 +54,39 @@ pub fn load(cfg: &InputConfig) -> Result<Loaded> {
             ));
         }
     }
-    let period_dtype = schema.get(&cfg.period).cloned().unwrap_or(DataType::Null);
-    let lf = lf.with_row_index(ROW, Some(1));
-    check_period(&lf, cfg, &period_dtype)?;
-    let lf = lf.with_columns([
-        col(cfg.entity.as_str()).cast(DataType::String),
-        period_as_int(&cfg.period, &period_dtype),
-    ]);
-    let rows = lf
-        .clone()
-        .select([len()])
-        .collect()?
-        .column("len")?
-        .u32()?
-        .get(0);
+    // Read once. Column types are guessed from the first rows; if a later row does not fit
+    // (a decimal in a column of whole numbers, say), read again guessing from every row.
+    let df = match lf.with_row_index(ROW, Some(1)).collect() {
+        Ok(df) => df,
+        Err(_) if cfg.format == InputFormat::Csv => scan(&cfg.path, cfg.format, None)?
+            .with_row_index(ROW, Some(1))
+            .collect()?,
+        Err(e) => return Err(e.into()),
+    };
+    let period_dtype = df
+        .schema()
+        .get(&cfg.period)
+        .cloned()
+        .unwrap_or(DataType::Null);
+    check_period(&df, cfg, &period_dtype)?;
+    let df = df
+        .lazy()
+        .with_columns([
+            col(cfg.entity.as_str()).cast(DataType::String),
+            period_as_int(&cfg.period, &period_dtype),
+        ])
+        .collect()?;
     Ok(Loaded {
-        lf,
+        rows: df.height() as u64,
+        df,
         columns,
-        rows: u64::from(rows.unwrap_or(0)),
     })
 }
 
-fn scan(path: &Path, format: InputFormat) -> Result<LazyFrame> {
+/// Rows used to guess CSV column types before falling back to the whole file.
+const INFER_ROWS: usize = 10_000;
+
+fn scan(path: &Path, format: InputFormat, infer: Option<usize>) -> Result<LazyFrame> {
     let pl_path = PlRefPath::try_from_path(path)?;
     if !path.exists() {
         return Err(Error::Io {
@@ -86,7 +97,7 @@ fn scan(path: &Path, format: InputFormat) -> Result<LazyFrame> {
     let lf = match format {
         InputFormat::Csv => LazyCsvReader::new(pl_path)
             .with_has_header(true)
-            .with_infer_schema_length(None)
+            .with_infer_schema_length(infer)
             .finish()?,
         InputFormat::Parquet => LazyFrame::scan_parquet(pl_path, ScanArgsParquet::default())?,
     };
@@ -103,7 +114,7 @@ fn period_as_int(period: &str, dtype: &DataType) -> Expr {
 }
 
 /// Fail with the first row whose period is present but not a whole number.
-fn check_period(lf: &LazyFrame, cfg: &InputConfig, dtype: &DataType) -> Result<()> {
+fn check_period(df: &DataFrame, cfg: &InputConfig, dtype: &DataType) -> Result<()> {
     let c = col(cfg.period.as_str());
     let bad = match dtype {
         d if d.is_integer() => return Ok(()),
@@ -123,8 +134,9 @@ fn check_period(lf: &LazyFrame, cfg: &InputConfig, dtype: &DataType) -> Result<(
         ),
         _ => lit(true),
     };
-    let first = lf
+    let first = df
         .clone()
+        .lazy()
         .filter(bad)
         .select([col(ROW), c.cast(DataType::String).alias("value")])
         .limit(1)

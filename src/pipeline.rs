@@ -5,7 +5,7 @@ use polars::prelude::*;
 use crate::audit::{self, Context};
 use crate::clean::{self, DuplicatePolicy, Keys, SingletonPolicy};
 use crate::config::InputConfig;
-use crate::derive::Plan;
+use crate::derive::{Layout, Plan};
 use crate::load::{self, ROW};
 use crate::report::{InputSummary, Report, SampleStep};
 use crate::{Error, Result};
@@ -50,14 +50,13 @@ pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
         }
     }
     let plan = Plan::new(rules, &loaded.columns)?;
-    let raw = loaded.lf.collect()?;
     let keys = Keys {
         file: &input.path,
         entity: &input.entity,
         period: &input.period,
         columns: &loaded.columns,
     };
-    let resolved = clean::resolve_keys(raw, &keys, &policy)?;
+    let resolved = clean::resolve_keys(loaded.df, &keys, &policy)?;
 
     let singletons = match mode {
         Mode::Audit => SingletonPolicy::Keep,
@@ -66,7 +65,16 @@ pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
     let mut steps = resolved.steps;
     let mut ledger_parts = resolved.rejected;
 
-    let (lf, hidden) = plan.apply(resolved.kept.lazy(), &input.entity, &input.period);
+    let layout = if resolved.keys.conflicting_keys == 0 || policy != DuplicatePolicy::Report {
+        Layout::SortedUnique
+    } else {
+        Layout::Any
+    };
+    let sorted = resolved.kept.lazy().sort(
+        [input.entity.as_str(), input.period.as_str(), ROW],
+        Default::default(),
+    );
+    let (lf, hidden) = plan.apply(sorted, &input.entity, &input.period, layout);
     let with_hidden = lf.collect()?;
     let derived = plan.null_counts(&with_hidden)?;
     let mut order = vec![col(ROW)];

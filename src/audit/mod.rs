@@ -36,7 +36,8 @@ pub mod names {
 
 /// What every check sees: the panel and two frames computed once from it.
 pub struct Context<'a> {
-    /// The panel (after the key steps and any cleaning), with derived variables.
+    /// The panel (after the key steps and any cleaning), with derived variables, sorted by
+    /// entity and period.
     pub df: &'a DataFrame,
     /// The entity column.
     pub entity: &'a str,
@@ -59,13 +60,19 @@ impl<'a> Context<'a> {
         compare: Vec<String>,
     ) -> Result<Context<'a>> {
         use names::*;
+        // The panel arrives sorted by entity and period; keep that order.
+        let same_entity = col(entity).eq(col(entity).shift(lit(1)));
         let keys = df
             .clone()
             .lazy()
             .select([col(entity), col(period)])
-            .unique(None, UniqueKeepStrategy::First)
-            .sort([entity, period], Default::default())
-            .with_column((col(period) - col(period).shift(lit(1)).over([col(entity)])?).alias(STEP))
+            .unique_stable(None, UniqueKeepStrategy::First)
+            .with_column(
+                when(same_entity)
+                    .then(col(period) - col(period).shift(lit(1)))
+                    .otherwise(lit(NULL))
+                    .alias(STEP),
+            )
             .collect()?;
         let entities = keys
             .clone()
