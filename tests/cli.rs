@@ -261,3 +261,45 @@ fn ratios_lists_the_library() {
     let r = w.run(&["frobnicate"]);
     assert_eq!(r.code, 2);
 }
+
+#[test]
+fn singleton_drops_land_in_the_ledger() {
+    // Hand-worked (Correia 2015): under entity + period effects every row of this panel is a
+    // singleton sooner or later; with entity effects only, C alone is.
+    let w = Workdir::new();
+    w.write("p.csv", "f,y,x\nA,1,1\nA,2,2\nB,2,3\nB,3,4\nC,3,5\n");
+    for (mode, kept, rejected) in [("\"entity+period\"", 0, 5), ("true", 4, 1), ("false", 5, 0)] {
+        w.write(
+            "r.toml",
+            &format!(
+                "[panel]\nentity = \"f\"\nperiod = \"y\"\n[clean]\ndrop_singletons = {mode}\n"
+            ),
+        );
+        w.ok(&["build", "p.csv", "--rules", "r.toml", "--out", "out"]);
+        let m: serde_json::Value =
+            serde_json::from_str(&std::fs::read_to_string(w.path("out/manifest.json")).unwrap())
+                .unwrap();
+        assert_eq!(
+            (
+                m["rows"]["kept"].as_u64().unwrap(),
+                m["rows"]["rejected"].as_u64().unwrap()
+            ),
+            (kept, rejected),
+            "{mode}"
+        );
+        let ledger = std::fs::read_to_string(w.path("out/rejected.csv")).unwrap();
+        assert_eq!(
+            ledger.matches(",singletons,").count() as u64,
+            rejected,
+            "{mode}:\n{ledger}"
+        );
+    }
+    w.write(
+        "r.toml",
+        "[panel]\nentity = \"f\"\nperiod = \"y\"\n[clean]\ndrop_singletons = \"always\"\n",
+    );
+    w.fails(
+        &["build", "p.csv", "--rules", "r.toml", "--out", "out"],
+        "drop_singletons = \"always\"",
+    );
+}

@@ -37,8 +37,8 @@ impl Check for Attrition {
                     .alias("stayers"),
             ])
             .collect()?;
-        report.attrition.leavers = super::scalar_u64(&counts, "leavers")?;
-        report.attrition.stayers = super::scalar_u64(&counts, "stayers")?;
+        report.attrition_groups.leavers = super::scalar_u64(&counts, "leavers")?;
+        report.attrition_groups.stayers = super::scalar_u64(&counts, "stayers")?;
         let schema = ctx.df.schema();
         let vars: Vec<&String> = ctx
             .compare
@@ -120,7 +120,7 @@ impl Check for Attrition {
                 (Some(m1), Some(v1), Some(m2), Some(v2)) => welch(m1, v1, n1, m2, v2, n2),
                 _ => None,
             };
-            report.attrition.variables.push(AttritionTest {
+            report.attrition.push(AttritionTest {
                 variable: v.to_string(),
                 n_leavers: n1 as u64,
                 n_stayers: n2 as u64,

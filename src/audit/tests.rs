@@ -81,7 +81,10 @@ fn gaps_spells_entry_exit_and_survival() {
     // Cohort 1 (a, b): observed at k = 0, 1, 2, 3 -> 2, 2, 1, 2 of 2. Cohort 2 (c): 1, 1, 0.
     assert_eq!(r.survival[0].shares, [1.0, 1.0, 0.5, 1.0]);
     assert_eq!(r.survival[1].shares, [1.0, 1.0, 0.0]);
-    assert_eq!((r.attrition.leavers, r.attrition.stayers), (1, 2));
+    assert_eq!(
+        (r.attrition_groups.leavers, r.attrition_groups.stayers),
+        (1, 2)
+    );
 }
 
 #[test]

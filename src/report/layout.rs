@@ -244,10 +244,10 @@ fn entry_exit(r: &Report) -> Section {
                 .into(),
         ));
     }
-    let a = &r.attrition;
-    if !a.variables.is_empty() {
-        let rows = a
-            .variables
+    let a = &r.attrition_groups;
+    if !r.attrition.is_empty() {
+        let rows = r
+            .attrition
             .iter()
             .map(|v| {
                 vec![

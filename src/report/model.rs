@@ -26,8 +26,10 @@ pub struct Report {
     pub entry_exit: Vec<EntryExit>,
     /// Share of each entry cohort still observed k periods after entry.
     pub survival: Vec<Survival>,
-    /// Leavers against stayers at their first observed period.
-    pub attrition: Attrition,
+    /// How many entities left before the window's end and how many stayed.
+    pub attrition_groups: AttritionGroups,
+    /// Leavers against stayers at their first observed period, one line per variable.
+    pub attrition: Vec<AttritionTest>,
     /// Each derived variable with its null counts by reason.
     pub derived: Vec<DerivedSummary>,
     /// Library ratios left out because the data lacks an input.
@@ -47,7 +49,8 @@ impl Report {
             coverage: Coverage::default(),
             entry_exit: Vec::new(),
             survival: Vec::new(),
-            attrition: Attrition::default(),
+            attrition_groups: AttritionGroups::default(),
+            attrition: Vec::new(),
             derived: Vec::new(),
             skipped: Vec::new(),
             sample_construction: Vec::new(),
@@ -294,15 +297,13 @@ pub struct Survival {
     pub shares: Vec<f64>,
 }
 
-/// Leavers against stayers, compared at each entity's first observed period.
+/// The two groups of the attrition comparison.
 #[derive(Debug, Clone, Default, Serialize)]
-pub struct Attrition {
+pub struct AttritionGroups {
     /// Entities last seen before the window's last period.
     pub leavers: u64,
     /// Entities observed in the window's last period.
     pub stayers: u64,
-    /// One line per compared variable.
-    pub variables: Vec<AttritionTest>,
 }
 
 /// Welch's t-test of one variable, leavers against stayers.

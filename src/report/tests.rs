@@ -50,7 +50,7 @@ fn sample() -> Report {
         leavers: None,
         reentrants: 2,
     }];
-    r.attrition.variables = vec![AttritionTest {
+    r.attrition = vec![AttritionTest {
         variable: "roa".into(),
         n_leavers: 20,
         n_stayers: 60,
@@ -98,7 +98,7 @@ fn every_format_carries_the_same_figures() {
     assert_eq!(json["keys"]["conflicting_keys"], 5);
     assert_eq!(json["coverage"]["singletons"], 41);
     assert_eq!(json["entry_exit"][0]["leavers"], serde_json::Value::Null);
-    assert_eq!(json["attrition"]["variables"][0]["p"], 0.0179);
+    assert_eq!(json["attrition"][0]["p"], 0.0179);
     assert_eq!(json["derived"][0]["null_reasons"][0]["rows"], 11);
     assert_eq!(json["sample_construction"][0]["rows_after"], 1231);
     for format in [ReportFormat::Terminal, ReportFormat::Markdown] {

@@ -167,7 +167,8 @@ def structure(df, entity, period, compare):
             "mean_stayers": float(b.mean()) if len(b) else None,
             "t": t, "df": dfree, "p": pv,
         })
-    out["attrition"] = {"leavers": int(leaver.sum()), "stayers": int((~leaver).sum()), "variables": tests}
+    out["attrition_groups"] = {"leavers": int(leaver.sum()), "stayers": int((~leaver).sum())}
+    out["attrition"] = tests
     return out
 
 
@@ -214,7 +215,7 @@ def main():
     report = json.load(open(report_path))
     raw = pd.read_csv(raw_path, dtype={entity: "string"})
     keys, df = key_steps(raw, entity, period)
-    names = [v["variable"] for v in report["attrition"]["variables"]]
+    names = [v["variable"] for v in report["attrition"]]
     if any(v not in df.columns for v in names):
         sys.path.insert(0, HERE)
         import ratios  # the demo's derived ratios, computed independently
