@@ -279,6 +279,31 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
     })
 }
 
+/// Move rows where `reason` (a string expression) is not null into the ledger.
+pub fn drop_where(
+    df: DataFrame,
+    reason: Expr,
+    step: &str,
+    k: &Keys,
+) -> Result<(DataFrame, DataFrame)> {
+    let marked = df.lazy().with_column(reason.alias(REASON)).collect()?;
+    let removed = marked
+        .clone()
+        .lazy()
+        .filter(col(REASON).is_not_null())
+        .with_columns([
+            lit(step.to_string()).alias(STEP),
+            lit(NULL).cast(IDX_DTYPE).alias(RELATED),
+        ])
+        .collect()?;
+    let kept = marked
+        .lazy()
+        .filter(col(REASON).is_null())
+        .drop(cols([REASON]))
+        .collect()?;
+    Ok((kept, ledger(removed, k.columns)?))
+}
+
 /// Which singletons `build` drops.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum SingletonPolicy {

@@ -53,6 +53,8 @@ pub struct Planted {
     pub nonpositive_assets: Vec<(String, i64)>,
     /// Rows whose net profit was blown up fifty-fold, as (firm, year).
     pub outliers: Vec<(String, i64)>,
+    /// Rows whose interest paid was keyed as a negative number, as (firm, year).
+    pub negative_interest: Vec<(String, i64)>,
     /// Firms observed in exactly one year.
     pub singleton_firms: u64,
     /// Firms with at least one internal gap.
@@ -292,6 +294,11 @@ fn plant_defects(c: &mut Columns, planted: &mut Planted, rng: &mut ChaCha8Rng) {
         c.net_profit[i] = c.net_profit[i].map(|x| x.abs() * 50.0 + 100.0);
         planted.outliers.push(key(c, i));
     }
+    for _ in 0..per(1).div_ceil(3) {
+        let i = pick(rng, c, false);
+        c.interest[i] = c.interest[i].map(|x| -x - 1.0);
+        planted.negative_interest.push(key(c, i));
+    }
     let copies: Vec<usize> = (0..per(1)).map(|_| pick(rng, c, false)).collect();
     let conflicts: Vec<usize> = (0..per(1)).map(|_| pick(rng, c, false)).collect();
     for i in copies {
@@ -365,6 +372,7 @@ Planted defects, for the audit to find:\n\n\
 - {} firm-years repeated exactly, {} firm-years given a second row with other values\n\
 - {} single-year slips where total assets and revenue were keyed in crowns, not thousands (x1000)\n\
 - {} firm-years with total assets of zero or below, {} firm-years with net profit blown up\n\
+- {} firm-years with a negative interest expense\n\
 - {} firms observed in one year only, {} firms with an internal gap, late entrants and early leavers\n\
 - {} rows with zero interest paid (firms without debt), {} rows with R&D spending missing\n\
 - time-invariant columns (`sector`, `region`, `founded`) and a macro series (`gdp_growth`)\n\n\
@@ -376,6 +384,7 @@ names the built-in ratios use.\n",
         p.unit_slips.len(),
         p.nonpositive_assets.len(),
         p.outliers.len(),
+        p.negative_interest.len(),
         p.singleton_firms,
         p.firms_with_gaps,
         p.zero_interest_rows,

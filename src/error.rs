@@ -75,6 +75,15 @@ pub enum Error {
     /// A `[clean] drop_singletons` value that we do not know.
     #[error("rules file: `[clean] drop_singletons = \"{value}\"` is not a choice (true, false, \"entity\", \"entity+period\")")]
     SingletonPolicy { value: String },
+    /// An accounting rule with an action we do not know, or a panel function.
+    #[error("rule `{rule}`: {message}")]
+    AccountingRule { rule: String, message: String },
+    /// A setting in the rules file is out of range.
+    #[error("rules file: `{setting}` {message}")]
+    Setting {
+        setting: &'static str,
+        message: String,
+    },
     /// The data has conflicting duplicate keys and the policy says to stop.
     #[error("`{file}`: {keys} entity-period keys appear on rows with different values (first: entity `{entity}`, period {period}); choose a policy in `[clean] duplicates`")]
     ConflictingKeys {

@@ -2,12 +2,13 @@
 
 use polars::prelude::*;
 
-use crate::audit::{self, Context};
+use crate::audit::{self, accounting, Context, CutoffGroups, Options, Settings};
 use crate::clean::{self, DuplicatePolicy, Keys, SingletonPolicy};
 use crate::config::InputConfig;
 use crate::derive::{Layout, Plan};
 use crate::load::{self, ROW};
 use crate::report::{InputSummary, Report, SampleStep};
+use crate::rules::LEVEL_COLUMNS;
 use crate::{Error, Result};
 
 /// Whether conflicting keys are resolved (build) or only reported (audit).
@@ -50,6 +51,7 @@ pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
         }
     }
     let plan = Plan::new(rules, &loaded.columns)?;
+    let (accounting_rules, skipped_rules) = accounting::compile(rules, &loaded.columns)?;
     let keys = Keys {
         file: &input.path,
         entity: &input.entity,
@@ -65,12 +67,30 @@ pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
     let mut steps = resolved.steps;
     let mut ledger_parts = resolved.rejected;
 
+    // Accounting rules act before derivation, so no derived ratio uses a value they reject.
+    let rule_lines = accounting::count(&resolved.kept, &accounting_rules)?;
+    let mut kept = resolved.kept;
+    if mode == Mode::Build {
+        kept = accounting::apply_nulls(kept, &accounting_rules)?;
+        if let Some(reason) = accounting::drop_reason(&accounting_rules) {
+            let (rest, removed) = clean::drop_where(kept, reason, "accounting rules", &keys)?;
+            kept = rest;
+            ledger_parts.push(removed);
+            steps.push(SampleStep::after(
+                &steps,
+                "accounting rules",
+                &kept,
+                &input.entity,
+            )?);
+        }
+    }
+
     let layout = if resolved.keys.conflicting_keys == 0 || policy != DuplicatePolicy::Report {
         Layout::SortedUnique
     } else {
         Layout::Any
     };
-    let sorted = resolved.kept.lazy().sort(
+    let sorted = kept.lazy().sort(
         [input.entity.as_str(), input.period.as_str(), ROW],
         Default::default(),
     );
@@ -112,6 +132,7 @@ pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
     let mut panel = panel;
     let mut taken: Vec<String> = loaded.columns.clone();
     taken.extend(plan.vars.iter().map(|v| v.name.clone()));
+    let row_name = output_name("source_row", &taken);
     for (internal, base) in [
         (ROW, "source_row"),
         (clean::STEP, "step"),
@@ -136,6 +157,8 @@ pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
     report.keys = resolved.keys;
     report.derived = derived;
     report.skipped = plan.skipped.clone();
+    report.skipped.extend(skipped_rules);
+    report.rules = rule_lines;
     report.sample_construction = steps;
     let compare: Vec<String> = match &rules.file.audit.compare {
         Some(list) => list
@@ -160,7 +183,45 @@ pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
             });
         }
     }
-    let ctx = Context::new(&panel, &input.entity, &input.period, compare)?;
+    let resolve = |c: &String| {
+        rules
+            .file
+            .columns
+            .get(c)
+            .cloned()
+            .unwrap_or_else(|| c.clone())
+    };
+    let levels: Vec<String> = match &rules.file.audit.levels {
+        Some(list) => list.iter().map(resolve).collect(),
+        None => LEVEL_COLUMNS
+            .iter()
+            .filter_map(|c| {
+                rules
+                    .file
+                    .columns
+                    .get(*c)
+                    .cloned()
+                    .or_else(|| Some(c.to_string()))
+            })
+            .filter(|c| loaded.columns.contains(c))
+            .collect(),
+    };
+    for c in &levels {
+        if !loaded.columns.contains(c) {
+            return Err(Error::MissingColumn {
+                file: input.path.clone(),
+                column: c.clone(),
+                context: "named in `[audit] levels`".into(),
+            });
+        }
+    }
+    let options = Options {
+        compare,
+        levels,
+        exclude: vec![row_name],
+        settings: settings(rules)?,
+    };
+    let ctx = Context::new(&panel, &input.entity, &input.period, options)?;
     audit::run_all(&ctx, &mut report)?;
     Ok(Prepared {
         report,
@@ -176,6 +237,62 @@ fn output_name(base: &str, taken: &[String]) -> String {
         .chain((2..).map(|n| format!("{base}_{n}")))
         .find(|c| !taken.contains(c))
         .expect("some suffix is free")
+}
+
+/// The checks' thresholds from `[thresholds]` and `[audit] outliers`, checked for range.
+fn settings(rules: &crate::rules::Rules) -> Result<Settings> {
+    let mut s = Settings::default();
+    let t = &rules.file.thresholds;
+    let bad = |setting: &'static str, message: &str| Error::Setting {
+        setting,
+        message: message.to_string(),
+    };
+    if let Some(x) = t.nearly_absorbed {
+        if !(0.0..1.0).contains(&x) {
+            return Err(bad(
+                "[thresholds] nearly_absorbed",
+                "must be at least 0 and below 1",
+            ));
+        }
+        s.nearly_absorbed = x;
+    }
+    for (value, slot, name) in [
+        (
+            t.missing_jump,
+            &mut s.missing_jump,
+            "[thresholds] missing_jump",
+        ),
+        (t.robust_z, &mut s.robust_z, "[thresholds] robust_z"),
+        (t.log_jump, &mut s.log_jump, "[thresholds] log_jump"),
+    ] {
+        if let Some(x) = value {
+            if !(x > 0.0 && x.is_finite()) {
+                return Err(bad(name, "must be a positive number"));
+            }
+            *slot = x;
+        }
+    }
+    if let Some(o) = &rules.file.audit.outliers {
+        s.lower = o.lower.unwrap_or(s.lower);
+        s.upper = o.upper.unwrap_or(s.upper);
+        if !(0.0 < s.lower && s.lower < s.upper && s.upper < 1.0) {
+            return Err(bad(
+                "[audit] outliers",
+                "needs 0 < lower < upper < 1 (fractions, e.g. 0.01 and 0.99)",
+            ));
+        }
+        s.by = match o.by.as_deref() {
+            None | Some("pooled") => CutoffGroups::Pooled,
+            Some("period") => CutoffGroups::Period,
+            Some(_) => {
+                return Err(bad(
+                    "[audit] outliers",
+                    "`by` must be \"pooled\" or \"period\"",
+                ))
+            }
+        };
+    }
+    Ok(s)
 }
 
 /// `prefer-max:COL` may name a canonical column; use the raw column it maps to.

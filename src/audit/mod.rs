@@ -1,10 +1,15 @@
 //! The checks: one file per check family, each behind the small `Check` trait, run in the
 //! order of `registry()`. Checks compute and fill the `Report`; they never print.
 
+pub mod accounting;
 mod attrition;
 mod coverage;
 mod entry_exit;
 mod glance;
+mod missing;
+mod outliers;
+mod unit_slips;
+mod variation;
 
 use polars::prelude::*;
 
@@ -15,6 +20,56 @@ pub use attrition::{welch, Attrition};
 pub use coverage::{two_way_singletons, Coverage};
 pub use entry_exit::EntryExit;
 pub use glance::Glance;
+pub use missing::Missing;
+pub use outliers::{CutoffGroups, Outliers, MAD_SCALE};
+pub use unit_slips::UnitSlips;
+pub use variation::{Variation, ABSORBED_SHARE};
+
+/// Thresholds and settings of the checks, from `[thresholds]` and `[audit]`.
+#[derive(Debug, Clone)]
+pub struct Settings {
+    /// Within share under which a variable is nearly absorbed by entity effects.
+    pub nearly_absorbed: f64,
+    /// Change in a missing share between consecutive periods that flags a break.
+    pub missing_jump: f64,
+    /// Robust z beyond which a value is counted.
+    pub robust_z: f64,
+    /// Absolute change in a log level beyond which a jump is counted.
+    pub log_jump: f64,
+    /// Lower percentile of the outlier cutoffs, as a fraction.
+    pub lower: f64,
+    /// Upper percentile of the outlier cutoffs, as a fraction.
+    pub upper: f64,
+    /// Cutoffs pooled or per period.
+    pub by: CutoffGroups,
+}
+
+impl Default for Settings {
+    fn default() -> Settings {
+        Settings {
+            nearly_absorbed: 0.05,
+            missing_jump: 0.25,
+            robust_z: 5.0,
+            log_jump: std::f64::consts::LN_10,
+            lower: 0.01,
+            upper: 0.99,
+            by: CutoffGroups::Pooled,
+        }
+    }
+}
+
+/// What the checks look at beyond the panel itself.
+#[derive(Debug, Clone, Default)]
+pub struct Options {
+    /// Variables compared between leavers and stayers.
+    pub compare: Vec<String>,
+    /// Level variables searched for unit slips and log jumps.
+    pub levels: Vec<String>,
+    /// Columns that are not variables (the row number).
+    pub exclude: Vec<String>,
+    /// Thresholds.
+    pub settings: Settings,
+}
 
 /// Column names in `Context::keys` and `Context::entities`.
 pub mod names {
@@ -45,6 +100,14 @@ pub struct Context<'a> {
     pub period: &'a str,
     /// Variables to compare between leavers and stayers.
     pub compare: Vec<String>,
+    /// Level variables for the unit-slip check.
+    pub levels: Vec<String>,
+    /// Every column but the keys and the row number.
+    pub variables: Vec<String>,
+    /// The numeric ones among them.
+    pub numeric: Vec<String>,
+    /// Thresholds.
+    pub settings: Settings,
     /// Distinct (entity, period) keys sorted by entity and period, with `__step`.
     pub keys: DataFrame,
     /// One row per entity: `__n`, `__first`, `__last`, `__gaps`, `__spells`, `__longest`.
@@ -57,7 +120,7 @@ impl<'a> Context<'a> {
         df: &'a DataFrame,
         entity: &'a str,
         period: &'a str,
-        compare: Vec<String>,
+        options: Options,
     ) -> Result<Context<'a>> {
         use names::*;
         // The panel arrives sorted by entity and period; keep that order.
@@ -91,11 +154,30 @@ impl<'a> Context<'a> {
             .with_column((col(LAST) - col(FIRST) + lit(1i64) - col(N)).alias(GAPS))
             .sort([entity], Default::default())
             .collect()?;
+        let schema = df.schema();
+        let variables: Vec<String> = schema
+            .iter_names()
+            .map(|n| n.to_string())
+            .filter(|n| n != entity && n != period && !options.exclude.contains(n))
+            .collect();
+        let numeric = variables
+            .iter()
+            .filter(|v| {
+                schema
+                    .get(v.as_str())
+                    .is_some_and(|d| d.is_primitive_numeric() || d.is_bool())
+            })
+            .cloned()
+            .collect();
         Ok(Context {
             df,
             entity,
             period,
-            compare,
+            compare: options.compare,
+            levels: options.levels,
+            variables,
+            numeric,
+            settings: options.settings,
             keys,
             entities,
         })
@@ -134,6 +216,10 @@ pub fn registry() -> Vec<Box<dyn Check>> {
         Box::new(Coverage),
         Box::new(EntryExit),
         Box::new(Attrition),
+        Box::new(Variation),
+        Box::new(Missing),
+        Box::new(Outliers),
+        Box::new(UnitSlips),
     ]
 }
 

@@ -7,13 +7,11 @@ use crate::report::Report;
 
 fn report_for(df: &DataFrame, compare: &[&str]) -> Report {
     let mut report = blank();
-    let ctx = Context::new(
-        df,
-        "f",
-        "y",
-        compare.iter().map(|s| s.to_string()).collect(),
-    )
-    .unwrap();
+    let options = Options {
+        compare: compare.iter().map(|s| s.to_string()).collect(),
+        ..Options::default()
+    };
+    let ctx = Context::new(df, "f", "y", options).unwrap();
     run_all(&ctx, &mut report).unwrap();
     report
 }

@@ -53,6 +53,8 @@ pub(crate) struct Compiled {
     pub(crate) derived_deps: BTreeSet<String>,
     /// Shifted columns it reads.
     pub(crate) shifts: BTreeSet<Shift>,
+    /// Raw columns it reads (resolved names).
+    pub(crate) raw_columns: BTreeSet<String>,
 }
 
 /// Translate one expression of rule `rule`.
@@ -61,12 +63,15 @@ pub(crate) fn compile(rule: &str, text: &str, scope: &Scope) -> Result<Compiled>
     let functions = polars::sql::keywords::all_functions();
     let mut derived_deps = BTreeSet::new();
     let mut shifts = BTreeSet::new();
+    let mut raw_columns = BTreeSet::new();
     let flow = visit_expressions_mut(&mut ast, |e| {
         match e {
             SqlExpr::Identifier(id) => match resolve(&id.value, scope) {
                 Some((name, is_derived)) => {
                     if is_derived {
                         derived_deps.insert(name.clone());
+                    } else {
+                        raw_columns.insert(name.clone());
                     }
                     *id = Ident::with_quote('"', name);
                 }
@@ -117,6 +122,7 @@ pub(crate) fn compile(rule: &str, text: &str, scope: &Scope) -> Result<Compiled>
         expr,
         derived_deps,
         shifts,
+        raw_columns,
     })
 }
 

@@ -13,6 +13,18 @@ use crate::{Error, Result};
 /// The built-in ratio library, a readable file in `rules/` embedded in the binary.
 pub const STANDARD_LIBRARY: &str = include_str!("../../rules/standard.toml");
 
+/// Canonical columns that hold levels (amounts), searched for unit slips by default.
+pub const LEVEL_COLUMNS: [&str; 8] = [
+    "total_assets",
+    "sales",
+    "current_assets",
+    "current_liabilities",
+    "short_term_debt",
+    "long_term_debt",
+    "interest_expense",
+    "rd_expense",
+];
+
 /// Canonical column names the built-in ratios use; map each to a raw column in `[columns]`.
 pub const CANONICAL_COLUMNS: [&str; 10] = [
     "total_assets",
@@ -49,6 +61,28 @@ pub struct RulesFile {
     /// What the audit compares.
     #[serde(default)]
     pub audit: AuditSection,
+    /// Thresholds of the checks.
+    #[serde(default)]
+    pub thresholds: ThresholdSection,
+    /// Accounting rules (`[[rule]]`).
+    #[serde(default)]
+    pub rule: Vec<AccountingRule>,
+}
+
+/// `[[rule]]`: an accounting identity or bound that should hold on every row.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct AccountingRule {
+    /// The rule's name, as reported.
+    pub name: String,
+    /// An SQL boolean expression that must hold.
+    pub expr: String,
+    /// `flag` (default), `null` or `drop`.
+    #[serde(default)]
+    pub action: Option<String>,
+    /// With `null`: the columns to set to null (default: every column the rule names).
+    #[serde(default)]
+    pub columns: Option<Vec<String>>,
 }
 
 /// `[audit]`: settings of the checks.
@@ -58,6 +92,45 @@ pub struct AuditSection {
     /// Variables compared between leavers and stayers; default: every derived variable.
     #[serde(default)]
     pub compare: Option<Vec<String>>,
+    /// Level variables searched for unit slips; default: the mapped canonical levels.
+    #[serde(default)]
+    pub levels: Option<Vec<String>>,
+    /// Outlier cutoffs.
+    #[serde(default)]
+    pub outliers: Option<OutlierSpec>,
+}
+
+/// `[audit] outliers`: percentile cutoffs of the outlier check.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct OutlierSpec {
+    /// Lower percentile as a fraction (default 0.01).
+    #[serde(default)]
+    pub lower: Option<f64>,
+    /// Upper percentile as a fraction (default 0.99).
+    #[serde(default)]
+    pub upper: Option<f64>,
+    /// `"pooled"` (default) or `"period"`.
+    #[serde(default)]
+    pub by: Option<String>,
+}
+
+/// `[thresholds]`: the numbers behind warnings.
+#[derive(Debug, Default, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ThresholdSection {
+    /// Within share under which a variable is nearly absorbed (default 0.05).
+    #[serde(default)]
+    pub nearly_absorbed: Option<f64>,
+    /// Change in missing share between periods that flags a break (default 0.25).
+    #[serde(default)]
+    pub missing_jump: Option<f64>,
+    /// Robust z beyond which a value is counted (default 5).
+    #[serde(default)]
+    pub robust_z: Option<f64>,
+    /// Absolute change in log level counted as a jump (default ln 10).
+    #[serde(default)]
+    pub log_jump: Option<f64>,
 }
 
 /// `[panel]`: which columns identify the entity and the period.
@@ -144,6 +217,8 @@ pub struct Rules {
     pub file: RulesFile,
     /// Every derived variable, user rules overriding library rules of the same name.
     pub derive: BTreeMap<String, (DeriveRule, Origin)>,
+    /// Every accounting rule in order, library first, user rules replacing same-named ones.
+    pub accounting: Vec<(AccountingRule, Origin)>,
 }
 
 impl Rules {
@@ -161,10 +236,17 @@ impl Rules {
             message: one_line(&e.to_string()),
         })?;
         let mut derive = BTreeMap::new();
+        let mut accounting: Vec<(AccountingRule, Origin)> = Vec::new();
         for name in &file.include {
-            for (rule_name, rule) in library(name)?.derive {
+            let lib = library(name)?;
+            for (rule_name, rule) in lib.derive {
                 derive.insert(rule_name, (rule, Origin::Standard));
             }
+            accounting.extend(lib.rule.into_iter().map(|r| (r, Origin::Standard)));
+        }
+        for rule in &file.rule {
+            accounting.retain(|(r, _)| r.name != rule.name);
+            accounting.push((rule.clone(), Origin::User));
         }
         for (name, rule) in &file.derive {
             derive.insert(name.clone(), (rule.clone(), Origin::User));
@@ -174,6 +256,7 @@ impl Rules {
             text,
             file,
             derive,
+            accounting,
         })
     }
 
@@ -184,6 +267,7 @@ impl Rules {
             text: String::new(),
             file: RulesFile::default(),
             derive: BTreeMap::new(),
+            accounting: Vec::new(),
         }
     }
 }

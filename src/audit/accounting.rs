@@ -1,0 +1,232 @@
+//! Accounting rules: named SQL conditions that should hold on every row, each with an action
+//! for `build` (flag, null, drop). Compiled against the raw columns before derivation, so
+//! that nulled or dropped values never reach a derived ratio.
+
+use std::collections::BTreeSet;
+
+use polars::prelude::*;
+
+use crate::report::{RuleLine, SkippedRule};
+use crate::rules::expr::{self, Scope};
+use crate::rules::{Origin, Rules, CANONICAL_COLUMNS};
+use crate::{Error, Result};
+
+/// What `build` does where a rule does not hold.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Action {
+    /// Report only.
+    Flag,
+    /// Set the rule's columns to null.
+    Null,
+    /// Move the row to the rejects ledger.
+    Drop,
+}
+
+impl Action {
+    /// The name used in rules files and reports.
+    pub fn label(self) -> &'static str {
+        match self {
+            Action::Flag => "flag",
+            Action::Null => "null",
+            Action::Drop => "drop",
+        }
+    }
+}
+
+/// One rule, ready to evaluate.
+#[derive(Debug, Clone)]
+pub struct CompiledRule {
+    /// Its name.
+    pub name: String,
+    /// Its condition as written.
+    pub text: String,
+    /// Its action.
+    pub action: Action,
+    /// The condition.
+    pub holds: Expr,
+    /// Raw columns set to null by `Action::Null`.
+    pub null_columns: Vec<String>,
+}
+
+/// Compile every rule; library rules whose columns the data lacks are left out.
+pub fn compile(rules: &Rules, raw: &[String]) -> Result<(Vec<CompiledRule>, Vec<SkippedRule>)> {
+    let raw_set: BTreeSet<String> = raw.iter().cloned().collect();
+    let none = BTreeSet::new();
+    let scope = Scope {
+        raw: &raw_set,
+        mapping: &rules.file.columns,
+        derived: &none,
+    };
+    let mut out = Vec::new();
+    let mut skipped = Vec::new();
+    for (rule, origin) in &rules.accounting {
+        let bad = |message: String| Error::AccountingRule {
+            rule: rule.name.clone(),
+            message,
+        };
+        let action = match rule.action.as_deref() {
+            None | Some("flag") => Action::Flag,
+            Some("null") => Action::Null,
+            Some("drop") => Action::Drop,
+            Some(other) => return Err(bad(format!("action `{other}` is not flag, null or drop"))),
+        };
+        let compiled = match expr::compile(&rule.name, &rule.expr, &scope) {
+            Ok(c) => c,
+            Err(Error::UnknownColumn { column, .. })
+                if *origin == Origin::Standard && CANONICAL_COLUMNS.contains(&column.as_str()) =>
+            {
+                skipped.push(SkippedRule {
+                    name: rule.name.clone(),
+                    missing: column,
+                });
+                continue;
+            }
+            Err(e) => return Err(e),
+        };
+        if !compiled.shifts.is_empty() {
+            return Err(bad("accounting rules cannot use panel functions".into()));
+        }
+        let null_columns = match &rule.columns {
+            Some(list) => list
+                .iter()
+                .map(|c| {
+                    let resolved = rules
+                        .file
+                        .columns
+                        .get(c)
+                        .cloned()
+                        .unwrap_or_else(|| c.clone());
+                    if raw_set.contains(&resolved) {
+                        Ok(resolved)
+                    } else {
+                        Err(Error::UnknownColumn {
+                            rule: rule.name.clone(),
+                            column: c.clone(),
+                        })
+                    }
+                })
+                .collect::<Result<_>>()?,
+            None => compiled.raw_columns.iter().cloned().collect(),
+        };
+        out.push(CompiledRule {
+            name: rule.name.clone(),
+            text: rule.expr.clone(),
+            action,
+            holds: compiled.expr,
+            null_columns,
+        });
+    }
+    Ok((out, skipped))
+}
+
+/// Violations (condition false) and unknowns (condition null) per rule.
+pub fn count(df: &DataFrame, rules: &[CompiledRule]) -> Result<Vec<RuleLine>> {
+    if rules.is_empty() {
+        return Ok(Vec::new());
+    }
+    let mut aggs = Vec::new();
+    for (i, r) in rules.iter().enumerate() {
+        aggs.push(
+            r.holds
+                .clone()
+                .not()
+                .fill_null(lit(false))
+                .sum()
+                .cast(DataType::UInt64)
+                .alias(format!("v{i}")),
+        );
+        aggs.push(
+            r.holds
+                .clone()
+                .is_null()
+                .sum()
+                .cast(DataType::UInt64)
+                .alias(format!("u{i}")),
+        );
+    }
+    let c = df.clone().lazy().select(aggs).collect()?;
+    rules
+        .iter()
+        .enumerate()
+        .map(|(i, r)| {
+            Ok(RuleLine {
+                name: r.name.clone(),
+                expr: r.text.clone(),
+                action: r.action.label().to_string(),
+                violations: c.column(&format!("v{i}"))?.u64()?.get(0).unwrap_or(0),
+                unknown: c.column(&format!("u{i}"))?.u64()?.get(0).unwrap_or(0),
+            })
+        })
+        .collect()
+}
+
+/// Where a `null` rule does not hold, set its columns to null; returns the new frame.
+pub fn apply_nulls(df: DataFrame, rules: &[CompiledRule]) -> Result<DataFrame> {
+    let mut lf = df.lazy();
+    // Evaluate every condition on the values as read, then null.
+    let mut flags = Vec::new();
+    for (i, r) in rules
+        .iter()
+        .enumerate()
+        .filter(|(_, r)| r.action == Action::Null)
+    {
+        flags.push(
+            r.holds
+                .clone()
+                .not()
+                .fill_null(lit(false))
+                .alias(format!("__null{i}")),
+        );
+    }
+    if flags.is_empty() {
+        return Ok(lf.collect()?);
+    }
+    lf = lf.with_columns(flags);
+    let mut touched: Vec<(String, Expr)> = Vec::new();
+    for (i, r) in rules
+        .iter()
+        .enumerate()
+        .filter(|(_, r)| r.action == Action::Null)
+    {
+        for c in &r.null_columns {
+            let flag = col(format!("__null{i}").as_str());
+            match touched.iter_mut().find(|(name, _)| name == c) {
+                Some((_, any)) => *any = any.clone().or(flag),
+                None => touched.push((c.clone(), flag)),
+            }
+        }
+    }
+    let nulling: Vec<Expr> = touched
+        .into_iter()
+        .map(|(c, flag)| {
+            when(flag)
+                .then(lit(NULL))
+                .otherwise(col(c.as_str()))
+                .alias(c.as_str())
+        })
+        .collect();
+    let helper: Vec<String> = rules
+        .iter()
+        .enumerate()
+        .filter(|(_, r)| r.action == Action::Null)
+        .map(|(i, _)| format!("__null{i}"))
+        .collect();
+    Ok(lf.with_columns(nulling).drop(cols(helper)).collect()?)
+}
+
+/// The first `drop` rule each row breaks, as a reason (null where none).
+pub fn drop_reason(rules: &[CompiledRule]) -> Option<Expr> {
+    rules
+        .iter()
+        .filter(|r| r.action == Action::Drop)
+        .rev()
+        .fold(None, |rest: Option<Expr>, r| {
+            let reason = lit(format!("rule `{}` does not hold: {}", r.name, r.text));
+            let broken = r.holds.clone().not().fill_null(lit(false));
+            Some(
+                when(broken)
+                    .then(reason)
+                    .otherwise(rest.unwrap_or(lit(NULL).cast(DataType::String))),
+            )
+        })
+}
