@@ -303,3 +303,43 @@ fn singleton_drops_land_in_the_ledger() {
         "drop_singletons = \"always\"",
     );
 }
+
+#[test]
+fn accounting_rules_flag_null_and_drop() {
+    // Hand-worked: row 2 breaks `positive` (dropped), row 3 breaks `cap` (x set to null).
+    let w = Workdir::new();
+    w.write(
+        "p.csv",
+        "f,y,x,cap\nA,1,5,10\nA,2,-1,10\nB,1,50,10\nB,2,7,10\n",
+    );
+    let rules = "[panel]\nentity = \"f\"\nperiod = \"y\"\n\
+        [[rule]]\nname = \"positive\"\nexpr = \"x > 0\"\naction = \"drop\"\n\
+        [[rule]]\nname = \"cap\"\nexpr = \"x <= cap\"\naction = \"null\"\ncolumns = [\"x\"]\n\
+        [[rule]]\nname = \"small\"\nexpr = \"x < 20\"\n";
+    w.write("r.toml", rules);
+    w.ok(&["build", "p.csv", "--rules", "r.toml", "--out", "out"]);
+    let panel = std::fs::read_to_string(w.path("out/panel.csv")).unwrap();
+    assert_eq!(
+        panel,
+        "source_row,f,y,x,cap\n1,A,1,5,10\n3,B,1,,10\n4,B,2,7,10\n"
+    );
+    let ledger = std::fs::read_to_string(w.path("out/rejected.csv")).unwrap();
+    assert!(
+        ledger.contains("2,accounting rules,rule `positive` does not hold: x > 0,,A,2,-1,10"),
+        "{ledger}"
+    );
+    let report: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(w.path("out/report.json")).unwrap()).unwrap();
+    let broken: Vec<u64> = report["rules"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|r| r["violations"].as_u64().unwrap())
+        .collect();
+    assert_eq!(broken, [1, 1, 1]);
+    w.write("bad.toml", "[panel]\nentity = \"f\"\nperiod = \"y\"\n[[rule]]\nname = \"r1\"\nexpr = \"x > 0\"\naction = \"delete\"\n");
+    w.fails(
+        &["audit", "p.csv", "--rules", "bad.toml"],
+        "rule `r1`: action `delete`",
+    );
+}
