@@ -6,16 +6,17 @@ use std::io::Write;
 use std::path::{Path, PathBuf};
 
 use polars::prelude::*;
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 use sha2::{Digest, Sha256};
 
-use crate::config::{BuildConfig, ReportFormat};
+use crate::config::{BuildConfig, InputConfig, InputFormat, ReportFormat};
 use crate::pipeline::Prepared;
 use crate::report::renderer;
+use crate::rules::Rules;
 use crate::{Error, Result};
 
 /// `manifest.json`: what made the bundle and the hash of every file in it.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct Manifest {
     /// panelready's version.
     pub tool_version: String,
@@ -34,7 +35,7 @@ pub struct Manifest {
 }
 
 /// The input file in the manifest.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct InputRecord {
     /// Absolute path.
     pub path: String,
@@ -42,10 +43,16 @@ pub struct InputRecord {
     pub sha256: String,
     /// Rows read.
     pub rows: u64,
+    /// How it was read.
+    pub format: InputFormat,
+    /// The entity column used.
+    pub entity: String,
+    /// The period column used.
+    pub period: String,
 }
 
 /// The rules file in the manifest.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct RulesRecord {
     /// Absolute path, if a file was used.
     pub path: Option<String>,
@@ -54,7 +61,7 @@ pub struct RulesRecord {
 }
 
 /// Row accounting.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct RowCounts {
     /// Rows read.
     pub input: u64,
@@ -65,7 +72,7 @@ pub struct RowCounts {
 }
 
 /// One output file.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct OutputRecord {
     /// Path inside the bundle.
     pub path: String,
@@ -162,6 +169,9 @@ fn write_files(cfg: &BuildConfig, p: &mut Prepared, dir: &Path) -> Result<Manife
             path: input_abs.display().to_string(),
             sha256: sha256_hex(&input_bytes),
             rows: p.report.input.rows,
+            format: cfg.input.format,
+            entity: cfg.input.entity.clone(),
+            period: cfg.input.period.clone(),
         },
         rules: RulesRecord {
             path: rules_path,
@@ -181,10 +191,40 @@ fn write_files(cfg: &BuildConfig, p: &mut Prepared, dir: &Path) -> Result<Manife
     Ok(manifest)
 }
 
+/// Write a CSV with text cells guarded against spreadsheet formula injection.
 fn write_csv(path: &Path, df: &mut DataFrame) -> Result<()> {
+    let mut guarded = guard_text(df)?;
     let mut f = fs::File::create(path).map_err(Error::io(path))?;
-    CsvWriter::new(&mut f).include_header(true).finish(df)?;
+    CsvWriter::new(&mut f)
+        .include_header(true)
+        .finish(&mut guarded)?;
     Ok(())
+}
+
+/// Text cells that a spreadsheet would read as a formula (starting with `=`, `+`, `-`, `@`,
+/// a tab or a carriage return) get a leading `'`. Numeric columns are untouched.
+pub fn guard_text(df: &DataFrame) -> Result<DataFrame> {
+    let schema = df.schema();
+    let guards: Vec<Expr> = schema
+        .iter()
+        .filter(|(_, dtype)| **dtype == DataType::String)
+        .map(|(name, _)| {
+            let c = col(name.clone());
+            let risky = ["=", "+", "-", "@", "\t", "\r"]
+                .iter()
+                .map(|p| c.clone().str().starts_with(lit(*p)))
+                .reduce(|a, b| a.or(b))
+                .expect("prefixes are listed");
+            when(risky.fill_null(lit(false)))
+                .then(lit("'") + c.clone())
+                .otherwise(c)
+                .alias(name.clone())
+        })
+        .collect();
+    if guards.is_empty() {
+        return Ok(df.clone());
+    }
+    Ok(df.clone().lazy().with_columns(guards).collect()?)
 }
 
 /// An existing `--out` may be replaced only if it is empty or an earlier bundle.
@@ -208,6 +248,103 @@ fn swap_into_place(staging: &Path, out: &Path) -> Result<()> {
     Ok(())
 }
 
+/// What `verify` found.
+#[derive(Debug, Clone, Default)]
+pub struct Verification {
+    /// Files in the bundle whose bytes no longer match the manifest.
+    pub changed: Vec<String>,
+    /// Files a fresh build produced differently.
+    pub not_reproduced: Vec<String>,
+    /// The tool version that made the bundle, if it differs from this one.
+    pub other_version: Option<String>,
+}
+
+/// Re-run the bundle in `dir` from its manifest's input and rules and compare every hash.
+pub fn verify(dir: &Path) -> Result<Verification> {
+    let manifest_path = dir.join("manifest.json");
+    let text = fs::read_to_string(&manifest_path).map_err(Error::io(&manifest_path))?;
+    let manifest: Manifest = serde_json::from_str(&text).map_err(|e| Error::Manifest {
+        path: manifest_path.clone(),
+        message: e.to_string(),
+    })?;
+    let input = PathBuf::from(&manifest.input.path);
+    let bytes = fs::read(&input).map_err(|e| Error::VerifyInput {
+        path: input.clone(),
+        message: format!("cannot be read ({e}); was it moved?"),
+    })?;
+    if sha256_hex(&bytes) != manifest.input.sha256 {
+        return Err(Error::VerifyInput {
+            path: input,
+            message: "has changed since the bundle was built (its SHA-256 differs)".into(),
+        });
+    }
+    let rules = match &manifest.rules.path {
+        Some(p) => {
+            let p = PathBuf::from(p);
+            let rules = Rules::from_path(&p).map_err(|_| Error::VerifyInput {
+                path: p.clone(),
+                message: "cannot be read; was it moved?".into(),
+            })?;
+            if sha256_hex(rules.text.as_bytes()) != manifest.rules.sha256 {
+                return Err(Error::VerifyInput {
+                    path: p,
+                    message: "has changed since the bundle was built (its SHA-256 differs)".into(),
+                });
+            }
+            rules
+        }
+        None => Rules::empty(),
+    };
+    let mut found = Verification {
+        other_version: (manifest.tool_version != env!("CARGO_PKG_VERSION"))
+            .then(|| manifest.tool_version.clone()),
+        ..Verification::default()
+    };
+    for out in &manifest.outputs {
+        let p = dir.join(&out.path);
+        let now = fs::read(&p).map(|b| sha256_hex(&b)).unwrap_or_default();
+        if now != out.sha256 {
+            found.changed.push(out.path.clone());
+        }
+    }
+    let scratch = tempdir_beside(dir)?;
+    let cfg = BuildConfig {
+        input: InputConfig {
+            path: input,
+            format: manifest.input.format,
+            rules,
+            entity: manifest.input.entity.clone(),
+            period: manifest.input.period.clone(),
+        },
+        out: scratch.join("bundle"),
+        command_line: manifest.created_by_command.clone(),
+    };
+    let rebuilt = crate::build(&cfg);
+    let _ = fs::remove_dir_all(&scratch);
+    let rebuilt = rebuilt?;
+    for out in &manifest.outputs {
+        let again = rebuilt.outputs.iter().find(|o| o.path == out.path);
+        if again.is_none_or(|a| a.sha256 != out.sha256) {
+            found.not_reproduced.push(out.path.clone());
+        }
+    }
+    Ok(found)
+}
+
+fn tempdir_beside(dir: &Path) -> Result<PathBuf> {
+    let parent = std::path::absolute(dir)
+        .map_err(Error::io(dir))?
+        .parent()
+        .map(Path::to_path_buf)
+        .unwrap_or_else(|| PathBuf::from("."));
+    let p = parent.join(format!(".panelready-verify-{}", std::process::id()));
+    if p.exists() {
+        fs::remove_dir_all(&p).map_err(Error::io(&p))?;
+    }
+    fs::create_dir(&p).map_err(Error::io(&p))?;
+    Ok(p)
+}
+
 /// Lowercase hex SHA-256.
 pub fn sha256_hex(bytes: &[u8]) -> String {
     Sha256::digest(bytes)
@@ -226,4 +363,37 @@ fn created_seconds() -> u64 {
                 .map(|d| d.as_secs())
                 .unwrap_or(0)
         })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn formula_like_text_is_guarded_and_numbers_are_not() {
+        // The guard list is common practice for CSV files opened in spreadsheets.
+        let df = df!(
+            "name" => [Some("=SUM(A1)"), Some("+1"), Some("-x"), Some("@a"), Some("\tb"), Some("ok"), None],
+            "value" => [-1.5, 2.0, -3.0, 4.0, 5.0, 6.0, 7.0],
+        )
+        .unwrap();
+        let g = guard_text(&df).unwrap();
+        let names: Vec<Option<&str>> = g.column("name").unwrap().str().unwrap().iter().collect();
+        assert_eq!(
+            names,
+            [
+                Some("'=SUM(A1)"),
+                Some("'+1"),
+                Some("'-x"),
+                Some("'@a"),
+                Some("'\tb"),
+                Some("ok"),
+                None
+            ]
+        );
+        assert!(g
+            .column("value")
+            .unwrap()
+            .equals(df.column("value").unwrap()));
+    }
 }

@@ -21,6 +21,8 @@ pub(crate) enum CliCommand {
     Build(BuildArgs),
     /// Generate the invented demo panel and run `build` on it.
     Demo(DemoArgs),
+    /// Re-run a bundle from its manifest and confirm every output hash (exit 1 if any differ).
+    Verify(VerifyArgs),
     /// List the built-in ratio definitions with their formulas, null rules and sources.
     Ratios,
 }
@@ -94,6 +96,12 @@ pub(crate) struct DemoArgs {
     /// Useful for large benchmark panels (`--firms 500000 --periods 20`).
     #[arg(long)]
     pub(crate) data_only: bool,
+}
+
+#[derive(Debug, Args)]
+pub(crate) struct VerifyArgs {
+    /// The bundle folder written by `build`.
+    pub(crate) dir: PathBuf,
 }
 
 #[derive(Debug, Clone, Copy, ValueEnum)]

@@ -18,6 +18,8 @@ pub enum Command {
     Demo(DemoConfig),
     /// `panelready ratios`.
     Ratios,
+    /// `panelready verify DIR`.
+    Verify(PathBuf),
 }
 
 /// How to read the raw panel.
@@ -36,7 +38,7 @@ pub struct InputConfig {
 }
 
 /// Input file formats.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
 #[serde(rename_all = "lowercase")]
 pub enum InputFormat {
     /// Comma-separated values with a header row.
@@ -134,6 +136,7 @@ impl Command {
                 })
             }
             CliCommand::Ratios => Command::Ratios,
+            CliCommand::Verify(v) => Command::Verify(v.dir),
         })
     }
 }

@@ -106,6 +106,12 @@ pub enum Error {
         option: &'static str,
         message: String,
     },
+    /// A bundle's manifest cannot be read.
+    #[error("`{path}`: not a panelready manifest: {message}")]
+    Manifest { path: PathBuf, message: String },
+    /// `verify` cannot re-run: the recorded input or rules moved or changed.
+    #[error("`{path}` recorded in the manifest {message}")]
+    VerifyInput { path: PathBuf, message: String },
     /// polars reported an error while computing.
     #[error("data engine: {0}")]
     Polars(#[from] polars::prelude::PolarsError),

@@ -48,6 +48,7 @@ pub fn run<I: IntoIterator<Item = OsString>>(args: I) -> i32 {
         Command::Build(cfg) => build_cmd(&cfg),
         Command::Demo(cfg) => demo_cmd(&cfg),
         Command::Ratios => ratios_cmd(),
+        Command::Verify(dir) => verify_cmd(&dir),
     });
     match result {
         Ok(code) => code,
@@ -130,6 +131,32 @@ fn demo_cmd(cfg: &DemoConfig) -> Result<i32> {
     }
     stdout_write(msg.as_bytes())?;
     Ok(0)
+}
+
+fn verify_cmd(dir: &std::path::Path) -> Result<i32> {
+    let v = bundle::verify(dir)?;
+    let mut msg = String::new();
+    if let Some(version) = &v.other_version {
+        msg.push_str(&format!(
+            "note: the bundle was made by panelready {version}, this is {}\n",
+            env!("CARGO_PKG_VERSION")
+        ));
+    }
+    for f in &v.changed {
+        msg.push_str(&format!("changed since it was written: {f}\n"));
+    }
+    for f in &v.not_reproduced {
+        msg.push_str(&format!("not reproduced by a fresh build: {f}\n"));
+    }
+    let ok = v.changed.is_empty() && v.not_reproduced.is_empty();
+    if ok {
+        msg.push_str(&format!(
+            "{}: every output matches its manifest hash and was rebuilt bit for bit\n",
+            dir.display()
+        ));
+    }
+    stdout_write(msg.as_bytes())?;
+    Ok(if ok { 0 } else { 1 })
 }
 
 fn ratios_cmd() -> Result<i32> {

@@ -147,7 +147,13 @@ pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
     }
 
     let mut report = Report::new(InputSummary {
-        path: input.path.display().to_string(),
+        // The file name only: the report must not depend on where the bundle was built from
+        // (the manifest records the full path).
+        path: input
+            .path
+            .file_name()
+            .map(|n| n.to_string_lossy().to_string())
+            .unwrap_or_else(|| input.path.display().to_string()),
         format: input.format,
         rows: loaded.rows,
         columns: loaded.columns.len() as u64,

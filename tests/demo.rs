@@ -105,3 +105,42 @@ fn same_input_and_rules_give_a_byte_identical_bundle() {
         assert!(a == b, "{name} differs between two builds");
     }
 }
+
+#[test]
+fn verify_passes_then_names_a_changed_file_and_refuses_a_moved_input() {
+    let w = Workdir::new();
+    w.ok(&["demo", "--out", "d"]);
+    let r = w.ok(&["verify", "d/bundle"]);
+    assert!(r.stdout.contains("rebuilt bit for bit"), "{}", r.stdout);
+    // Change one byte of panel.csv.
+    let p = w.path("d/bundle/panel.csv");
+    let mut bytes = std::fs::read(&p).unwrap();
+    let i = bytes.len() / 2;
+    bytes[i] = if bytes[i] == b'1' { b'2' } else { b'1' };
+    std::fs::write(&p, bytes).unwrap();
+    let r = w.run(&["verify", "d/bundle"]);
+    assert_eq!(r.code, 1, "{}{}", r.stdout, r.stderr);
+    assert!(
+        r.stdout.contains("changed since it was written: panel.csv"),
+        "{}",
+        r.stdout
+    );
+    assert!(!r.stdout.contains("report.md"), "{}", r.stdout);
+    // Move the input away.
+    std::fs::rename(w.path("d/data/velmora_accounts.csv"), w.path("moved.csv")).unwrap();
+    w.fails(&["verify", "d/bundle"], "was it moved?");
+}
+
+#[test]
+fn csv_outputs_guard_formula_like_text() {
+    let w = Workdir::new();
+    w.write("p.csv", "f,y,note\n=cmd,1,+x\n=cmd,2,fine\nB,1,@y\n");
+    w.ok(&[
+        "build", "p.csv", "--entity", "f", "--period", "y", "--out", "o",
+    ]);
+    let panel = std::fs::read_to_string(w.path("o/panel.csv")).unwrap();
+    assert_eq!(
+        panel,
+        "source_row,f,y,note\n1,'=cmd,1,'+x\n2,'=cmd,2,fine\n3,B,1,'@y\n"
+    );
+}

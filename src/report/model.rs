@@ -94,7 +94,7 @@ impl Report {
 /// The input file.
 #[derive(Debug, Clone, Serialize)]
 pub struct InputSummary {
-    /// The path as given.
+    /// The file name (the manifest has the full path).
     pub path: String,
     /// CSV or Parquet.
     pub format: InputFormat,
