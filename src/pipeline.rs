@@ -3,11 +3,13 @@
 use polars::prelude::*;
 
 use crate::audit::{self, accounting, Context, CutoffGroups, Options, Settings};
+use crate::clean::balance::{self, Balance};
+use crate::clean::treat::{Method, Treatment};
 use crate::clean::{self, DuplicatePolicy, Keys, SingletonPolicy};
 use crate::config::InputConfig;
 use crate::derive::{Layout, Plan};
 use crate::load::{self, ROW};
-use crate::report::{InputSummary, Report, SampleStep};
+use crate::report::{Cleaned, InputSummary, Report, SampleStep};
 use crate::rules::LEVEL_COLUMNS;
 use crate::{Error, Result};
 
@@ -110,42 +112,6 @@ pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
         )
         .collect()?;
 
-    let (panel, removed) = clean::drop_singletons(panel, singletons, &keys)?;
-    if let Some(removed) = removed {
-        ledger_parts.push(removed);
-        steps.push(SampleStep::after(
-            &steps,
-            "singletons",
-            &panel,
-            &input.entity,
-        )?);
-    }
-
-    let mut ledger_parts = ledger_parts.into_iter();
-    let mut rejected = ledger_parts
-        .next()
-        .expect("the key steps always return ledger parts");
-    for part in ledger_parts {
-        rejected.vstack_mut(&part)?;
-    }
-    let mut rejected = rejected.lazy().sort([ROW], Default::default()).collect()?;
-    let mut panel = panel;
-    let mut taken: Vec<String> = loaded.columns.clone();
-    taken.extend(plan.vars.iter().map(|v| v.name.clone()));
-    let row_name = output_name("source_row", &taken);
-    for (internal, base) in [
-        (ROW, "source_row"),
-        (clean::STEP, "step"),
-        (clean::REASON, "reason"),
-        (clean::RELATED, "related_row"),
-    ] {
-        let name = output_name(base, &taken);
-        if internal == ROW {
-            panel.rename(internal, name.as_str().into())?;
-        }
-        rejected.rename(internal, name.as_str().into())?;
-    }
-
     let mut report = Report::new(InputSummary {
         // The file name only: the report must not depend on where the bundle was built from
         // (the manifest records the full path).
@@ -165,19 +131,16 @@ pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
     report.skipped = plan.skipped.clone();
     report.skipped.extend(skipped_rules);
     report.rules = rule_lines;
-    report.sample_construction = steps;
+    let resolve = |c: &String| {
+        rules
+            .file
+            .columns
+            .get(c)
+            .cloned()
+            .unwrap_or_else(|| c.clone())
+    };
     let compare: Vec<String> = match &rules.file.audit.compare {
-        Some(list) => list
-            .iter()
-            .map(|c| {
-                rules
-                    .file
-                    .columns
-                    .get(c)
-                    .cloned()
-                    .unwrap_or_else(|| c.clone())
-            })
-            .collect(),
+        Some(list) => list.iter().map(resolve).collect(),
         None => plan.vars.iter().map(|v| v.name.clone()).collect(),
     };
     for c in &compare {
@@ -189,26 +152,11 @@ pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
             });
         }
     }
-    let resolve = |c: &String| {
-        rules
-            .file
-            .columns
-            .get(c)
-            .cloned()
-            .unwrap_or_else(|| c.clone())
-    };
     let levels: Vec<String> = match &rules.file.audit.levels {
         Some(list) => list.iter().map(resolve).collect(),
         None => LEVEL_COLUMNS
             .iter()
-            .filter_map(|c| {
-                rules
-                    .file
-                    .columns
-                    .get(*c)
-                    .cloned()
-                    .or_else(|| Some(c.to_string()))
-            })
+            .map(|c| resolve(&c.to_string()))
             .filter(|c| loaded.columns.contains(c))
             .collect(),
     };
@@ -224,15 +172,112 @@ pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
     let options = Options {
         compare,
         levels,
-        exclude: vec![row_name],
+        exclude: vec![ROW.to_string()],
         settings: settings(rules)?,
     };
-    let ctx = Context::new(&panel, &input.entity, &input.period, options)?;
+    // The report describes the panel as read (after the key steps and derivation).
+    let ctx = Context::new(&panel, &input.entity, &input.period, options.clone())?;
     audit::run_all(&ctx, &mut report)?;
+
+    // Then `build` cleans, in a fixed order: outliers, balancing, singletons.
+    let mut panel = panel;
+    if mode == Mode::Build {
+        let columns: Vec<String> = panel
+            .get_column_names()
+            .iter()
+            .map(|c| c.to_string())
+            .collect();
+        let treat = &rules.file.clean;
+        for (method, spec) in [
+            (Method::Winsorize, &treat.winsorize),
+            (Method::Trim, &treat.trim),
+        ] {
+            let Some(spec) = spec else { continue };
+            let t = Treatment::from_spec(method, spec, |v| resolve(&v.to_string()), &columns)?;
+            let (rest, removed, lines) = t.apply(panel, &keys)?;
+            panel = rest;
+            report.treatment.extend(lines);
+            if let Some(removed) = removed {
+                ledger_parts.push(removed);
+                steps.push(SampleStep::after(&steps, "trim", &panel, &input.entity)?);
+            }
+        }
+        let balance = Balance::parse(rules.file.clean.balance.as_ref())?;
+        let (rest, removed, line) = balance::apply(panel, balance, &keys)?;
+        panel = rest;
+        report.balance = line;
+        if let Some(removed) = removed {
+            ledger_parts.push(removed);
+            steps.push(SampleStep::after(&steps, "balance", &panel, &input.entity)?);
+        }
+        let (rest, removed) = clean::drop_singletons(panel, singletons, &keys)?;
+        panel = rest;
+        if let Some(removed) = removed {
+            ledger_parts.push(removed);
+            steps.push(SampleStep::after(
+                &steps,
+                "singletons",
+                &panel,
+                &input.entity,
+            )?);
+        }
+        report.cleaned = Some(cleaned_figures(&panel, input, options)?);
+    }
+    report.sample_construction = steps;
+
+    let mut ledger_parts = ledger_parts.into_iter();
+    let mut rejected = ledger_parts
+        .next()
+        .expect("the key steps always return ledger parts");
+    for part in ledger_parts {
+        rejected.vstack_mut(&part)?;
+    }
+    let mut rejected = rejected.lazy().sort([ROW], Default::default()).collect()?;
+    let mut taken: Vec<String> = loaded.columns.clone();
+    taken.extend(plan.vars.iter().map(|v| v.name.clone()));
+    for (internal, base) in [
+        (ROW, "source_row"),
+        (clean::STEP, "step"),
+        (clean::REASON, "reason"),
+        (clean::RELATED, "related_row"),
+    ] {
+        let name = output_name(base, &taken);
+        if internal == ROW {
+            panel.rename(internal, name.as_str().into())?;
+        }
+        rejected.rename(internal, name.as_str().into())?;
+    }
     Ok(Prepared {
         report,
         panel,
         rejected,
+    })
+}
+
+/// Glance, coverage, variation and missing values of the cleaned panel.
+fn cleaned_figures(panel: &DataFrame, input: &InputConfig, options: Options) -> Result<Cleaned> {
+    let ctx = Context::new(panel, &input.entity, &input.period, options)?;
+    let mut r = Report::new(InputSummary {
+        path: String::new(),
+        format: input.format,
+        rows: 0,
+        columns: 0,
+        entity: input.entity.clone(),
+        period: input.period.clone(),
+    });
+    for check in [
+        Box::new(audit::Glance) as Box<dyn audit::Check>,
+        Box::new(audit::Coverage),
+        Box::new(audit::Variation),
+        Box::new(audit::Missing),
+    ] {
+        check.run(&ctx, &mut r)?;
+    }
+    Ok(Cleaned {
+        panel: r.panel,
+        coverage: r.coverage,
+        variation: r.variation,
+        missing: r.missing,
     })
 }
 

@@ -53,16 +53,19 @@ impl Check for Variation {
             aggs.push(sq(format!("q{i}")).alias(format!("pss{i}")));
         }
         let totals = frame.clone().lazy().select(aggs).collect()?;
-        // Per entity: mean (for the between SD) and whether the values never change.
-        let mut per_entity = Vec::new();
+        // Per entity: mean (for the between SD) and whether the values never change. Window
+        // expressions on the sorted panel, then one row per entity, so that the sums run in
+        // the same order on every run (a byte-identical report).
+        let mut per_entity = vec![col(e)];
         for i in 0..vars.len() {
             let c = col(format!("x{i}").as_str());
-            per_entity.push(c.clone().mean().alias(format!("em{i}")));
+            per_entity.push(c.clone().mean().over([col(e)])?.alias(format!("em{i}")));
             per_entity.push(
                 c.clone()
                     .count()
+                    .over([col(e)])?
                     .gt(lit(1))
-                    .and(c.clone().max().eq(c.min()))
+                    .and(c.clone().max().over([col(e)])?.eq(c.min().over([col(e)])?))
                     .alias(format!("flat{i}")),
             );
         }
@@ -83,8 +86,8 @@ impl Check for Variation {
         let entity_stats = frame
             .clone()
             .lazy()
-            .group_by([col(e)])
-            .agg(per_entity)
+            .select(per_entity)
+            .unique_stable_generic(Some(vec![col(e)]), UniqueKeepStrategy::First)
             .select(between)
             .collect()?;
         let get = |df: &DataFrame, c: String| -> Result<f64> {

@@ -54,6 +54,87 @@ pub struct Report {
     pub skipped: Vec<SkippedRule>,
     /// From raw rows to final rows, one line per step.
     pub sample_construction: Vec<SampleStep>,
+    /// Outlier treatment applied by `build`, one line per variable.
+    pub treatment: Vec<TreatLine>,
+    /// The balancing window chosen by `build`, if any.
+    pub balance: Option<BalanceLine>,
+    /// The cleaned panel written by `build` (absent for `audit`).
+    pub cleaned: Option<Cleaned>,
+}
+
+/// Figures of the cleaned panel.
+#[derive(Debug, Clone, Serialize)]
+pub struct Cleaned {
+    /// Panel at a glance.
+    pub panel: PanelSummary,
+    /// Coverage.
+    pub coverage: Coverage,
+    /// Variation.
+    pub variation: Vec<VariationLine>,
+    /// Missing values.
+    pub missing: Vec<MissingLine>,
+}
+
+/// Outlier treatment of one variable.
+#[derive(Debug, Clone, Serialize)]
+pub struct TreatLine {
+    /// The variable.
+    pub variable: String,
+    /// `winsorize` or `trim`.
+    pub method: String,
+    /// Pooled or per period.
+    pub by: crate::audit::CutoffGroups,
+    /// Lower percentile (0-100).
+    pub lower_percentile: f64,
+    /// Upper percentile (0-100).
+    pub upper_percentile: f64,
+    /// The cutoffs used (one, or one per period).
+    pub cutoffs: Vec<Cutoff>,
+    /// Values below the lower cutoff (replaced or dropped).
+    pub below: u64,
+    /// Values above the upper cutoff (replaced or dropped).
+    pub above: u64,
+}
+
+/// A pair of cutoffs.
+#[derive(Debug, Clone, Serialize)]
+pub struct Cutoff {
+    /// The period, or null when pooled.
+    pub period: Option<i64>,
+    /// Lower cutoff.
+    pub lower: Option<f64>,
+    /// Upper cutoff.
+    pub upper: Option<f64>,
+}
+
+/// The balancing window.
+#[derive(Debug, Clone, Serialize)]
+pub struct BalanceLine {
+    /// `window` (given) or `largest` (chosen).
+    pub mode: String,
+    /// First period of the window.
+    pub first: i64,
+    /// Last period.
+    pub last: i64,
+    /// Entities kept.
+    pub entities: u64,
+    /// Rows kept.
+    pub rows: u64,
+    /// The next-best windows (for `largest`).
+    pub runner_up: Vec<WindowScore>,
+}
+
+/// A candidate balancing window.
+#[derive(Debug, Clone, Serialize)]
+pub struct WindowScore {
+    /// First period.
+    pub first: i64,
+    /// Last period.
+    pub last: i64,
+    /// Entities observed in every period of it.
+    pub entities: u64,
+    /// Entities × periods.
+    pub rows: u64,
 }
 
 /// The degrees-of-freedom convention of the variation figures.
@@ -87,6 +168,9 @@ impl Report {
             derived: Vec::new(),
             skipped: Vec::new(),
             sample_construction: Vec::new(),
+            treatment: Vec::new(),
+            balance: None,
+            cleaned: None,
         }
     }
 }

@@ -184,6 +184,45 @@ pub struct CleanSection {
     /// `"entity+period"` for the iterated two-way rule.
     #[serde(default)]
     pub drop_singletons: Option<SingletonDrop>,
+    /// Replace values beyond percentile cutoffs by the cutoffs.
+    #[serde(default)]
+    pub winsorize: Option<TreatSpec>,
+    /// Drop rows with values beyond percentile cutoffs.
+    #[serde(default)]
+    pub trim: Option<TreatSpec>,
+    /// `"keep"` (default), `"largest"` or `{ window = [FIRST, LAST] }`.
+    #[serde(default)]
+    pub balance: Option<BalanceSpec>,
+}
+
+/// `[clean] winsorize` / `trim`: which variables, which percentiles, pooled or by period.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct TreatSpec {
+    /// Variables treated (raw, canonical or derived names).
+    pub variables: Vec<String>,
+    /// Lower percentile as a fraction (default 0.01).
+    #[serde(default)]
+    pub lower: Option<f64>,
+    /// Upper percentile as a fraction (default 0.99).
+    #[serde(default)]
+    pub upper: Option<f64>,
+    /// `"pooled"` (default) or `"period"`.
+    #[serde(default)]
+    pub by: Option<String>,
+}
+
+/// `[clean] balance`.
+#[derive(Debug, Clone, PartialEq, Eq, Deserialize)]
+#[serde(untagged)]
+pub enum BalanceSpec {
+    /// `"keep"` or `"largest"`.
+    Mode(String),
+    /// `{ window = [FIRST, LAST] }`.
+    Window {
+        /// First and last period of the window.
+        window: [i64; 2],
+    },
 }
 
 /// `[clean] drop_singletons`.

@@ -2,6 +2,9 @@
 //! Every removed row goes to the rejects ledger with its step and reason; every step records
 //! its effect for the sample-construction table.
 
+pub mod balance;
+pub mod treat;
+
 use polars::prelude::*;
 
 use crate::load::ROW;

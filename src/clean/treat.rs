@@ -1,0 +1,275 @@
+//! Outlier treatment in `build`: winsorize (replace values beyond percentile cutoffs by the
+//! cutoffs) or trim (move rows with such values to the rejects ledger). Cutoffs are
+//! percentiles by linear interpolation (Hyndman–Fan type 7), pooled or per period; missing
+//! values never enter them.
+
+use polars::prelude::*;
+
+use super::{ledger, Keys, REASON, RELATED, STEP};
+use crate::audit::CutoffGroups;
+use crate::report::{Cutoff, TreatLine};
+use crate::rules::TreatSpec;
+use crate::{Error, Result};
+
+/// Winsorize or trim.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Method {
+    /// Replace values beyond the cutoffs by the cutoffs.
+    Winsorize,
+    /// Drop rows with values beyond the cutoffs.
+    Trim,
+}
+
+impl Method {
+    fn label(self) -> &'static str {
+        match self {
+            Method::Winsorize => "winsorize",
+            Method::Trim => "trim",
+        }
+    }
+}
+
+/// One treatment, validated.
+#[derive(Debug, Clone)]
+pub struct Treatment {
+    /// Winsorize or trim.
+    pub method: Method,
+    /// The columns treated.
+    pub variables: Vec<String>,
+    /// Lower percentile, as a fraction.
+    pub lower: f64,
+    /// Upper percentile, as a fraction.
+    pub upper: f64,
+    /// Pooled or per period.
+    pub by: CutoffGroups,
+}
+
+impl Treatment {
+    /// Validate a `[clean] winsorize` or `trim` table; `resolve` maps canonical names.
+    pub fn from_spec(
+        method: Method,
+        spec: &TreatSpec,
+        resolve: impl Fn(&str) -> String,
+        columns: &[String],
+    ) -> Result<Treatment> {
+        let setting = match method {
+            Method::Winsorize => "[clean] winsorize",
+            Method::Trim => "[clean] trim",
+        };
+        let bad = |message: &str| Error::Setting {
+            setting,
+            message: message.to_string(),
+        };
+        let lower = spec.lower.unwrap_or(0.01);
+        let upper = spec.upper.unwrap_or(0.99);
+        if !(0.0 <= lower && lower < upper && upper <= 1.0) {
+            return Err(bad(
+                "needs 0 <= lower < upper <= 1 (fractions, e.g. 0.01 and 0.99)",
+            ));
+        }
+        let by = match spec.by.as_deref() {
+            None | Some("pooled") => CutoffGroups::Pooled,
+            Some("period") => CutoffGroups::Period,
+            Some(_) => return Err(bad("`by` must be \"pooled\" or \"period\"")),
+        };
+        let variables = spec
+            .variables
+            .iter()
+            .map(|v| {
+                let r = resolve(v);
+                if columns.contains(&r) {
+                    Ok(r)
+                } else {
+                    Err(bad(&format!(
+                        "names `{v}`, which is not a column or derived variable"
+                    )))
+                }
+            })
+            .collect::<Result<_>>()?;
+        Ok(Treatment {
+            method,
+            variables,
+            lower,
+            upper,
+            by,
+        })
+    }
+
+    /// Apply to `df`; returns the treated frame, the ledger part (trim) and one line per variable.
+    pub fn apply(
+        &self,
+        df: DataFrame,
+        k: &Keys,
+    ) -> Result<(DataFrame, Option<DataFrame>, Vec<TreatLine>)> {
+        let x = |v: &str| col(v).cast(DataType::Float64);
+        let mut aggs = Vec::new();
+        for (i, v) in self.variables.iter().enumerate() {
+            aggs.push(
+                x(v).quantile(lit(self.lower), QuantileMethod::Linear)
+                    .alias(format!("__lo{i}")),
+            );
+            aggs.push(
+                x(v).quantile(lit(self.upper), QuantileMethod::Linear)
+                    .alias(format!("__hi{i}")),
+            );
+        }
+        let (cutoffs, joined) = match self.by {
+            CutoffGroups::Pooled => {
+                let c = df.clone().lazy().select(aggs).collect()?;
+                let mut lits = Vec::new();
+                for name in c.get_column_names() {
+                    let value = c.column(name)?.f64()?.get(0);
+                    lits.push(lit(value.unwrap_or(f64::NAN)).alias(name.as_str()));
+                }
+                let j = df.clone().lazy().with_columns(lits);
+                (c, j)
+            }
+            CutoffGroups::Period => {
+                let c = df
+                    .clone()
+                    .lazy()
+                    .group_by([col(k.period)])
+                    .agg(aggs)
+                    .sort([k.period], Default::default())
+                    .collect()?;
+                let j = df.clone().lazy().join(
+                    c.clone().lazy(),
+                    [col(k.period)],
+                    [col(k.period)],
+                    JoinArgs {
+                        maintain_order: MaintainOrderJoin::Left,
+                        ..JoinArgs::new(JoinType::Left)
+                    },
+                );
+                (c, j)
+            }
+        };
+        let mut flags = Vec::new();
+        for (i, v) in self.variables.iter().enumerate() {
+            let (lo, hi) = (
+                col(format!("__lo{i}").as_str()),
+                col(format!("__hi{i}").as_str()),
+            );
+            flags.push(
+                x(v).lt(lo)
+                    .fill_null(lit(false))
+                    .alias(format!("__below{i}")),
+            );
+            flags.push(
+                x(v).gt(hi)
+                    .fill_null(lit(false))
+                    .alias(format!("__above{i}")),
+            );
+        }
+        let marked = joined.with_columns(flags).collect()?;
+        let mut counts = Vec::new();
+        for i in 0..self.variables.len() {
+            counts.push(
+                col(format!("__below{i}").as_str())
+                    .sum()
+                    .cast(DataType::UInt64),
+            );
+            counts.push(
+                col(format!("__above{i}").as_str())
+                    .sum()
+                    .cast(DataType::UInt64),
+            );
+        }
+        let counts = marked.clone().lazy().select(counts).collect()?;
+        let helpers: Vec<String> = marked
+            .get_column_names()
+            .iter()
+            .map(|c| c.to_string())
+            .filter(|c| {
+                c.starts_with("__lo")
+                    || c.starts_with("__hi")
+                    || c.starts_with("__below")
+                    || c.starts_with("__above")
+            })
+            .collect();
+        let (out, removed) = match self.method {
+            Method::Winsorize => {
+                let replace: Vec<Expr> = self
+                    .variables
+                    .iter()
+                    .enumerate()
+                    .map(|(i, v)| {
+                        when(col(format!("__below{i}").as_str()))
+                            .then(col(format!("__lo{i}").as_str()))
+                            .when(col(format!("__above{i}").as_str()))
+                            .then(col(format!("__hi{i}").as_str()))
+                            .otherwise(x(v))
+                            .alias(v.as_str())
+                    })
+                    .collect();
+                let out = marked
+                    .lazy()
+                    .with_columns(replace)
+                    .drop(cols(helpers))
+                    .collect()?;
+                (out, None)
+            }
+            Method::Trim => {
+                let mut reason = lit(NULL).cast(DataType::String);
+                for (i, v) in self.variables.iter().enumerate().rev() {
+                    let beyond =
+                        col(format!("__below{i}").as_str()).or(col(format!("__above{i}").as_str()));
+                    reason = when(beyond)
+                        .then(lit(format!("`{v}` beyond its trimming cutoffs")))
+                        .otherwise(reason);
+                }
+                let marked = marked.lazy().with_column(reason.alias(REASON)).collect()?;
+                let removed = marked
+                    .clone()
+                    .lazy()
+                    .filter(col(REASON).is_not_null())
+                    .with_columns([
+                        lit("trim").alias(STEP),
+                        lit(NULL).cast(IDX_DTYPE).alias(RELATED),
+                    ])
+                    .collect()?;
+                let kept = marked
+                    .lazy()
+                    .filter(col(REASON).is_null())
+                    .drop(cols(helpers))
+                    .drop(cols([REASON]))
+                    .collect()?;
+                (kept, Some(ledger(removed, k.columns)?))
+            }
+        };
+        let mut lines = Vec::new();
+        for (i, v) in self.variables.iter().enumerate() {
+            let lo = cutoffs.column(&format!("__lo{i}"))?.f64()?;
+            let hi = cutoffs.column(&format!("__hi{i}"))?.f64()?;
+            let periods = match self.by {
+                CutoffGroups::Pooled => None,
+                CutoffGroups::Period => Some(cutoffs.column(k.period)?.i64()?),
+            };
+            let cut = (0..cutoffs.height())
+                .map(|j| Cutoff {
+                    period: periods.and_then(|p| p.get(j)),
+                    lower: lo.get(j),
+                    upper: hi.get(j),
+                })
+                .collect();
+            let n = |c: usize| {
+                counts.columns()[c]
+                    .u64()
+                    .ok()
+                    .and_then(|s| s.get(0))
+                    .unwrap_or(0)
+            };
+            lines.push(TreatLine {
+                variable: v.clone(),
+                method: self.method.label().to_string(),
+                by: self.by,
+                lower_percentile: self.lower * 100.0,
+                upper_percentile: self.upper * 100.0,
+                cutoffs: cut,
+                below: n(2 * i),
+                above: n(2 * i + 1),
+            });
+        }
+        Ok((out, removed, lines))
+    }
+}
