@@ -358,6 +358,8 @@ source = "common practice"
 
 [clean]
 duplicates = "keep-first"
+# Winsorize the ratios at the 1st and 99th percentiles over all firm-years.
+winsorize = { variables = ["roa", "roa_lagged_assets", "leverage", "interest_cover", "sales_growth", "asset_growth", "working_capital_assets", "rd_assets"], lower = 0.01, upper = 0.99, by = "pooled" }
 "#;
 
 fn readme(p: &Planted, firms: u32, periods: u32, seed: u64) -> String {

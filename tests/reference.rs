@@ -171,3 +171,19 @@ fn firm_age_is_absorbed_by_two_way_effects_on_grunfeld() {
     assert_eq!(by("founded"), "entity");
     assert!(by("value").is_null() && by("capital").is_null() && by("invest").is_null());
 }
+
+#[test]
+fn winsorizing_by_period_and_the_largest_window_match_numpy_and_brute_force() {
+    let w = Workdir::new();
+    let csv = w.path("g.csv");
+    run_reference("structure.py", &[Path::new("grunfeld-unbalanced"), &csv]);
+    w.write(
+        "rules.toml",
+        "[panel]\nentity = \"firm\"\nperiod = \"year\"\n[clean]\nduplicates = \"keep-first\"\n\
+         winsorize = { variables = [\"value\", \"capital\"], lower = 0.05, upper = 0.95, by = \"period\" }\n\
+         balance = \"largest\"\n",
+    );
+    w.ok(&["build", "g.csv", "--rules", "rules.toml", "--out", "b"]);
+    let out = run_reference("cleaning.py", &[&csv, &w.path("b")]);
+    assert!(out.contains(" 0 failed"), "{out}");
+}

@@ -8,7 +8,9 @@ published definition, and compares with panelready's panel.csv. Exits 1 on any m
 Nothing here imports or calls panelready.
 """
 
+import os
 import sys
+import tomllib
 
 import numpy as np
 import pandas as pd
@@ -70,9 +72,25 @@ def expected(df):
     return out
 
 
+def winsorize(out, spec):
+    """Clip at pooled percentiles: numpy's default linear percentile (Hyndman & Fan 1996
+    type 7) over the non-missing values, as METHODS.md s.6 prescribes."""
+    for v in spec["variables"]:
+        x = out[v].dropna().to_numpy()
+        lo = np.percentile(x, 100 * spec.get("lower", 0.01))
+        hi = np.percentile(x, 100 * spec.get("upper", 0.99))
+        out[v] = out[v].clip(lo, hi)
+    return out
+
+
 def main():
     raw_path, panel_path = sys.argv[1], sys.argv[2]
     want = expected(load_raw(raw_path))
+    rules = tomllib.load(open(os.path.join(os.path.dirname(raw_path), "rules.toml"), "rb"))
+    spec = rules.get("clean", {}).get("winsorize")
+    if spec:
+        assert spec.get("by", "pooled") == "pooled", "this reference handles pooled cutoffs"
+        want = winsorize(want, spec)
     got = pd.read_csv(panel_path, dtype={ENTITY: "string"})
     failures, passed = [], 0
 
