@@ -150,6 +150,10 @@ fn write_files(cfg: &BuildConfig, p: &mut Prepared, dir: &Path) -> Result<Manife
         record(file)?;
     }
 
+    let path = dir.join("dictionary.md");
+    fs::write(&path, dictionary_md(&p.dictionary)).map_err(Error::io(&path))?;
+    record("dictionary.md")?;
+
     let input_bytes = fs::read(&cfg.input.path).map_err(Error::io(&cfg.input.path))?;
     let input_abs = std::path::absolute(&cfg.input.path).map_err(Error::io(&cfg.input.path))?;
     let rules_path = match &cfg.input.rules.path {
@@ -189,6 +193,29 @@ fn write_files(cfg: &BuildConfig, p: &mut Prepared, dir: &Path) -> Result<Manife
     serde_json::to_writer_pretty(&mut f, &manifest)?;
     writeln!(f).map_err(Error::io(&path))?;
     Ok(manifest)
+}
+
+/// The data dictionary as Markdown: one row per column of the cleaned panel.
+fn dictionary_md(entries: &[crate::pipeline::DictionaryEntry]) -> String {
+    let cell = |s: &str| s.replace('|', "\\|");
+    let mut out = String::from(
+        "# Data dictionary\n\nOne row per column of `panel.csv` / `panel.parquet`.\n\n\
+         | variable | definition | unit | source | missing in the cleaned panel | outlier treatment |\n\
+         |---|---|---|---|---:|---|\n",
+    );
+    for e in entries {
+        out.push_str(&format!(
+            "| `{}` | {} | {} | {} | {} | {} |\n",
+            e.name,
+            cell(&e.definition),
+            cell(&e.unit),
+            cell(&e.source),
+            e.missing_share
+                .map_or("–".into(), |s| format!("{:.1}%", s * 100.0)),
+            cell(&e.treatment),
+        ));
+    }
+    out
 }
 
 /// Write a CSV with text cells guarded against spreadsheet formula injection.

@@ -30,6 +30,25 @@ pub struct Prepared {
     pub panel: DataFrame,
     /// The rejects ledger, sorted by `source_row`.
     pub rejected: DataFrame,
+    /// One entry per column of the panel, for `dictionary.md`.
+    pub dictionary: Vec<DictionaryEntry>,
+}
+
+/// One variable of the data dictionary.
+#[derive(Debug, Clone)]
+pub struct DictionaryEntry {
+    /// The column.
+    pub name: String,
+    /// How it came about: a raw column (with its canonical name) or a derived expression.
+    pub definition: String,
+    /// Its unit, where known.
+    pub unit: String,
+    /// The source of its definition, where known.
+    pub source: String,
+    /// Share missing in the cleaned panel.
+    pub missing_share: Option<f64>,
+    /// Outlier treatment applied, in words.
+    pub treatment: String,
 }
 
 /// Run the pipeline on one input.
@@ -247,11 +266,96 @@ pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
         }
         rejected.rename(internal, name.as_str().into())?;
     }
+    let dictionary = dictionary(&panel, &report, input, &loaded.columns);
     Ok(Prepared {
         report,
         panel,
         rejected,
+        dictionary,
     })
+}
+
+fn dictionary(
+    panel: &DataFrame,
+    report: &Report,
+    input: &InputConfig,
+    raw: &[String],
+) -> Vec<DictionaryEntry> {
+    let canonical: std::collections::BTreeMap<&String, &String> = input
+        .rules
+        .file
+        .columns
+        .iter()
+        .map(|(c, r)| (r, c))
+        .collect();
+    let missing = |name: &str| {
+        report
+            .cleaned
+            .as_ref()
+            .map_or(&report.missing, |c| &c.missing)
+            .iter()
+            .find(|m| m.variable == name)
+            .map(|m| m.share)
+    };
+    panel
+        .get_column_names()
+        .iter()
+        .map(|n| n.to_string())
+        .map(|name| {
+            let derived = report.derived.iter().find(|d| d.name == name);
+            let treatment = report
+                .treatment
+                .iter()
+                .find(|t| t.variable == name)
+                .map(|t| {
+                    let cuts = if t.cutoffs.len() == 1 {
+                        let c = &t.cutoffs[0];
+                        format!(
+                            "cutoffs {} and {}",
+                            c.lower.map_or("–".into(), |x| x.to_string()),
+                            c.upper.map_or("–".into(), |x| x.to_string())
+                        )
+                    } else {
+                        "cutoffs per period in report.json".to_string()
+                    };
+                    format!(
+                        "{} at percentiles {} / {} ({}); {} below, {} above",
+                        t.method, t.lower_percentile, t.upper_percentile, cuts, t.below, t.above
+                    )
+                })
+                .unwrap_or_default();
+            let (definition, unit, source) = match derived {
+                Some(d) => (
+                    format!("derived: `{}`", d.expr),
+                    d.unit.clone(),
+                    d.source.clone(),
+                ),
+                None if raw.contains(&name) => (
+                    match canonical.get(&name) {
+                        Some(c) => format!("raw column (canonical `{c}`)"),
+                        None if name == input.entity => "raw column: the entity key".to_string(),
+                        None if name == input.period => "raw column: the period key".to_string(),
+                        None => "raw column".to_string(),
+                    },
+                    String::new(),
+                    "input file".to_string(),
+                ),
+                None => (
+                    "row number in the input file (1 = first data row)".to_string(),
+                    String::new(),
+                    "panelready".to_string(),
+                ),
+            };
+            DictionaryEntry {
+                missing_share: missing(&name),
+                name,
+                definition,
+                unit,
+                source,
+                treatment,
+            }
+        })
+        .collect()
 }
 
 /// Glance, coverage, variation and missing values of the cleaned panel.

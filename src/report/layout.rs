@@ -348,18 +348,20 @@ fn sample(r: &Report) -> Section {
             ]
         })
         .collect();
+    let mut blocks = vec![Block::Table(
+        strings(&[
+            "step",
+            "rows before",
+            "removed",
+            "rows after",
+            "entities after",
+        ]),
+        rows,
+    )];
+    blocks.extend(cleaning_blocks(r));
     Section {
         title: "Sample construction",
-        blocks: vec![Block::Table(
-            strings(&[
-                "step",
-                "rows before",
-                "removed",
-                "rows after",
-                "entities after",
-            ]),
-            rows,
-        )],
+        blocks,
     }
 }
 
@@ -636,4 +638,87 @@ fn accounting(r: &Report) -> Section {
         title: "Accounting rules",
         blocks,
     }
+}
+
+fn cleaning_blocks(r: &Report) -> Vec<Block> {
+    let mut blocks = Vec::new();
+    if !r.treatment.is_empty() {
+        let rows = r
+            .treatment
+            .iter()
+            .map(|t| {
+                let cuts = match t.cutoffs.as_slice() {
+                    [c] => format!("{} .. {}", opt(c.lower, 4), opt(c.upper, 4)),
+                    many => format!("{} periods (report.json)", many.len()),
+                };
+                vec![
+                    t.variable.clone(),
+                    t.method.clone(),
+                    format!("{} / {}", t.lower_percentile, t.upper_percentile),
+                    cuts,
+                    t.below.to_string(),
+                    t.above.to_string(),
+                ]
+            })
+            .collect();
+        blocks.push(Block::Table(
+            strings(&["treated", "how", "percentiles", "cutoffs", "below", "above"]),
+            rows,
+        ));
+    }
+    if let Some(b) = &r.balance {
+        let mut text = format!(
+            "Balanced on {}..{} ({}): {} entities, {} rows.",
+            b.first,
+            b.last,
+            if b.mode == "largest" {
+                "the window keeping the most entity-periods"
+            } else {
+                "the given window"
+            },
+            b.entities,
+            b.rows
+        );
+        if !b.runner_up.is_empty() {
+            let others: Vec<String> = b
+                .runner_up
+                .iter()
+                .map(|w| {
+                    format!(
+                        "{}..{} ({} entities, {} rows)",
+                        w.first, w.last, w.entities, w.rows
+                    )
+                })
+                .collect();
+            text.push_str(&format!(" Next best: {}.", others.join("; ")));
+        }
+        blocks.push(Block::Note(text));
+    }
+    if let Some(c) = &r.cleaned {
+        let window = match (c.panel.first_period, c.panel.last_period) {
+            (Some(a), Some(b)) => format!("{a}..{b}"),
+            _ => "none".into(),
+        };
+        blocks.push(Block::Pairs(vec![
+            ("cleaned panel: rows".into(), c.panel.rows.to_string()),
+            (
+                "cleaned panel: entities".into(),
+                c.panel.entities.to_string(),
+            ),
+            ("cleaned panel: window".into(), window),
+            (
+                "cleaned panel: balanced".into(),
+                if c.panel.balanced { "yes" } else { "no" }.into(),
+            ),
+            (
+                "cleaned panel: entities with gaps".into(),
+                c.coverage.entities_with_gaps.to_string(),
+            ),
+            (
+                "cleaned panel: singletons".into(),
+                c.coverage.singletons.to_string(),
+            ),
+        ]));
+    }
+    blocks
 }

@@ -22,8 +22,15 @@ fn table(wtr: &mut dyn Write, header: &[String], rows: &[Vec<String>]) -> std::i
             .collect::<Vec<_>>()
             .join(" | ")
     )?;
+    let numeric = |i: usize| {
+        rows.iter().all(|r| {
+            r.get(i)
+                .and_then(|c| c.chars().next())
+                .is_none_or(|c| c.is_ascii_digit() || "-–<".contains(c))
+        })
+    };
     let align: Vec<&str> = (0..header.len())
-        .map(|i| if i == 0 { "---" } else { "---:" })
+        .map(|i| if i > 0 && numeric(i) { "---:" } else { "---" })
         .collect();
     writeln!(wtr, "|{}|", align.join("|"))?;
     for row in rows {
