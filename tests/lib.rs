@@ -3,5 +3,6 @@
 mod util;
 
 mod cli;
+mod conservation;
 mod demo;
 mod reference;

@@ -1,0 +1,81 @@
+//! Row conservation, as a property: whatever the panel and the cleaning choices, every input
+//! row is either in the cleaned panel or in the rejects ledger, exactly once.
+
+use std::collections::BTreeSet;
+
+use panelready::config::{BuildConfig, InputConfig};
+use panelready::rules::Rules;
+use proptest::prelude::*;
+
+/// A raw row: entity (None = missing), period (None = missing), value.
+type Row = (Option<u8>, Option<u8>, i8);
+
+fn csv(rows: &[Row]) -> String {
+    let mut out = String::from("firm,year,x\n");
+    for (e, p, x) in rows {
+        let e = e.map_or(String::new(), |e| format!("F{e}"));
+        let p = p.map_or(String::new(), |p| (2000 + p as i32).to_string());
+        out.push_str(&format!("{e},{p},{x}\n"));
+    }
+    out
+}
+
+fn ids(text: &str) -> Vec<u64> {
+    text.lines()
+        .skip(1)
+        .filter_map(|l| l.split(',').next()?.parse().ok())
+        .collect()
+}
+
+fn row() -> impl Strategy<Value = Row> {
+    (
+        prop::option::weighted(0.95, 0u8..5),
+        prop::option::weighted(0.95, 0u8..6),
+        -10i8..10,
+    )
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 40, ..ProptestConfig::default() })]
+
+    #[test]
+    fn every_row_is_kept_or_rejected_exactly_once(
+        mut rows in prop::collection::vec(row(), 1..40),
+        copies in prop::collection::vec(0usize..40, 0..5),
+        policy in prop::sample::select(vec!["keep-first", "keep-last", "drop-all", "prefer-max:x"]),
+        singletons in prop::sample::select(vec!["false", "true", "\"entity+period\""]),
+        balance in prop::sample::select(vec!["\"keep\"", "\"largest\"", "{ window = [2001, 2003] }"]),
+        trim in any::<bool>(),
+    ) {
+        // Exact copies of some rows, appended.
+        for i in copies {
+            if let Some(r) = rows.get(i % rows.len()).copied() {
+                rows.push(r);
+            }
+        }
+        let dir = tempfile::tempdir().unwrap();
+        let data = dir.path().join("p.csv");
+        std::fs::write(&data, csv(&rows)).unwrap();
+        let trim = if trim { "trim = { variables = [\"x\"], lower = 0.1, upper = 0.9 }\n" } else { "" };
+        let rules = format!(
+            "[panel]\nentity = \"firm\"\nperiod = \"year\"\n\
+             [[rule]]\nname = \"not_too_low\"\nexpr = \"x > -8\"\naction = \"drop\"\n\
+             [clean]\nduplicates = \"{policy}\"\ndrop_singletons = {singletons}\nbalance = {balance}\n{trim}"
+        );
+        let cfg = BuildConfig {
+            input: InputConfig::new(data, Rules::from_text(None, rules).unwrap()).unwrap(),
+            out: dir.path().join("out"),
+            command_line: "proptest".into(),
+        };
+        let manifest = panelready::build(&cfg).unwrap();
+        prop_assert_eq!(manifest.rows.input, rows.len() as u64);
+        prop_assert_eq!(manifest.rows.input, manifest.rows.kept + manifest.rows.rejected);
+        let kept = ids(&std::fs::read_to_string(dir.path().join("out/panel.csv")).unwrap());
+        let rejected = ids(&std::fs::read_to_string(dir.path().join("out/rejected.csv")).unwrap());
+        let mut all: Vec<u64> = kept.iter().chain(rejected.iter()).copied().collect();
+        all.sort();
+        prop_assert_eq!(all, (1..=rows.len() as u64).collect::<Vec<_>>());
+        let kept: BTreeSet<u64> = kept.into_iter().collect();
+        prop_assert!(rejected.iter().all(|r| !kept.contains(r)));
+    }
+}
