@@ -7,7 +7,15 @@ use clap::{Args, Parser, Subcommand, ValueEnum};
 
 /// Audit, derive and clean firm-year panels before panel regressions.
 #[derive(Debug, Parser)]
-#[command(name = "panelready", version, about, max_term_width = 100)]
+#[command(
+    name = "panelready",
+    version,
+    about,
+    max_term_width = 100,
+    after_help = "Exit codes: 0 ok; 1 `verify` found a file that differs; 2 any error (usage, \
+                  input, rules), printed as one line on stderr. The README describes the \
+                  rules file and the bundle."
+)]
 pub(crate) struct Cli {
     #[command(subcommand)]
     pub(crate) command: CliCommand,
