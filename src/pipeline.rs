@@ -2,7 +2,8 @@
 
 use polars::prelude::*;
 
-use crate::audit::{self, accounting, Context, CutoffGroups, Options, Settings};
+use crate::audit::model::{Effects, ModelSpec};
+use crate::audit::{self, accounting, Check, Context, CutoffGroups, Options, Settings};
 use crate::clean::balance::{self, Balance};
 use crate::clean::treat::{Method, Treatment};
 use crate::clean::{self, DuplicatePolicy, Keys, SingletonPolicy};
@@ -188,11 +189,46 @@ pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
             });
         }
     }
+    let model = match &rules.file.model {
+        None => None,
+        Some(m) => {
+            let effects = match m.effects.as_deref() {
+                None | Some("entity") => Effects::Entity,
+                Some("entity+period") => Effects::EntityPeriod,
+                Some(other) => {
+                    return Err(Error::Setting {
+                        setting: "[model] effects",
+                        message: format!("\"{other}\" is not \"entity\" or \"entity+period\""),
+                    })
+                }
+            };
+            let names: Vec<String> = std::iter::once(&m.outcome)
+                .chain(m.regressors.iter())
+                .map(resolve)
+                .collect();
+            for c in &names {
+                if panel.schema().get(c.as_str()).is_none() {
+                    return Err(Error::MissingColumn {
+                        file: input.path.clone(),
+                        column: c.clone(),
+                        context: "named in `[model]`".into(),
+                    });
+                }
+            }
+            Some(ModelSpec {
+                outcome: names[0].clone(),
+                regressors: names[1..].to_vec(),
+                lagged_outcome: m.lagged_outcome,
+                effects,
+            })
+        }
+    };
     let options = Options {
         compare,
         levels,
         exclude: vec![ROW.to_string()],
         settings: settings(rules)?,
+        model,
     };
     // The report describes the panel as read (after the key steps and derivation).
     let ctx = Context::new(&panel, &input.entity, &input.period, options.clone())?;
@@ -240,7 +276,11 @@ pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
                 &input.entity,
             )?);
         }
-        report.cleaned = Some(cleaned_figures(&panel, input, options)?);
+        let (cleaned, model) = cleaned_figures(&panel, input, options)?;
+        report.cleaned = Some(cleaned);
+        if model.is_some() {
+            report.model = model;
+        }
     }
     report.sample_construction = steps;
 
@@ -359,7 +399,11 @@ fn dictionary(
 }
 
 /// Glance, coverage, variation and missing values of the cleaned panel.
-fn cleaned_figures(panel: &DataFrame, input: &InputConfig, options: Options) -> Result<Cleaned> {
+fn cleaned_figures(
+    panel: &DataFrame,
+    input: &InputConfig,
+    options: Options,
+) -> Result<(Cleaned, Option<crate::report::ModelReport>)> {
     let ctx = Context::new(panel, &input.entity, &input.period, options)?;
     let mut r = Report::new(InputSummary {
         path: String::new(),
@@ -377,12 +421,18 @@ fn cleaned_figures(panel: &DataFrame, input: &InputConfig, options: Options) -> 
     ] {
         check.run(&ctx, &mut r)?;
     }
-    Ok(Cleaned {
-        panel: r.panel,
-        coverage: r.coverage,
-        variation: r.variation,
-        missing: r.missing,
-    })
+    // Model readiness on the panel that will be estimated; its warnings about absorbed
+    // regressors read the variation of that same panel.
+    audit::model::Model.run(&ctx, &mut r)?;
+    Ok((
+        Cleaned {
+            panel: r.panel,
+            coverage: r.coverage,
+            variation: r.variation,
+            missing: r.missing,
+        },
+        r.model,
+    ))
 }
 
 /// The output name for a bookkeeping column: `base`, or `base_2`, `base_3`, ... when the

@@ -7,6 +7,7 @@ mod coverage;
 mod entry_exit;
 mod glance;
 mod missing;
+pub mod model;
 mod outliers;
 mod unit_slips;
 mod variation;
@@ -69,6 +70,8 @@ pub struct Options {
     pub exclude: Vec<String>,
     /// Thresholds.
     pub settings: Settings,
+    /// The declared model, if any.
+    pub model: Option<model::ModelSpec>,
 }
 
 /// Column names in `Context::keys` and `Context::entities`.
@@ -108,6 +111,8 @@ pub struct Context<'a> {
     pub numeric: Vec<String>,
     /// Thresholds.
     pub settings: Settings,
+    /// The declared model, if any.
+    pub model: Option<model::ModelSpec>,
     /// Distinct (entity, period) keys sorted by entity and period, with `__step`.
     pub keys: DataFrame,
     /// One row per entity: `__n`, `__first`, `__last`, `__gaps`, `__spells`, `__longest`.
@@ -178,6 +183,7 @@ impl<'a> Context<'a> {
             variables,
             numeric,
             settings: options.settings,
+            model: options.model,
             keys,
             entities,
         })
@@ -220,6 +226,7 @@ pub fn registry() -> Vec<Box<dyn Check>> {
         Box::new(Missing),
         Box::new(Outliers),
         Box::new(UnitSlips),
+        Box::new(model::Model),
     ]
 }
 

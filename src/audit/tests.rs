@@ -99,3 +99,16 @@ fn welch_t_and_df_by_hand() {
         "one leaver is too few"
     );
 }
+
+#[test]
+fn pesaran_cd_hand_example() {
+    // e1 = e2 = (1, -1, 1, -1), e3 = (1, 1, -1, -1): rho12 = 1, rho13 = rho23 = 0, so
+    // CD = sqrt(2 / (3 * 2)) * sqrt(4) * 1 (Pesaran 2004; worked by hand).
+    let s = |v: [f64; 4]| v.iter().map(|x| Some(*x)).collect::<Vec<_>>();
+    let cd = model::cd_statistic(&[
+        s([1.0, -1.0, 1.0, -1.0]),
+        s([1.0, -1.0, 1.0, -1.0]),
+        s([1.0, 1.0, -1.0, -1.0]),
+    ]);
+    assert!((cd - (2.0f64 / 6.0).sqrt() * 2.0).abs() < 1e-12, "{cd}");
+}

@@ -60,6 +60,82 @@ pub struct Report {
     pub balance: Option<BalanceLine>,
     /// The cleaned panel written by `build` (absent for `audit`).
     pub cleaned: Option<Cleaned>,
+    /// Diagnostics for the model declared in `[model]` (on the cleaned panel for `build`).
+    pub model: Option<ModelReport>,
+}
+
+/// Model readiness: which panel estimator the data support.
+#[derive(Debug, Clone, Serialize)]
+pub struct ModelReport {
+    /// The outcome.
+    pub outcome: String,
+    /// The regressors (with the lagged outcome, if declared).
+    pub regressors: Vec<String>,
+    /// `entity` or `entity+period`.
+    pub effects: String,
+    /// Rows left after dropping rows missing any model variable.
+    pub sample_rows: u64,
+    /// Entities in that sample.
+    pub sample_entities: u64,
+    /// Rows missing each model variable (one row may miss several).
+    pub cost: Vec<VariableCost>,
+    /// Entities with a single row in the sample.
+    pub sample_singletons: u64,
+    /// The tests.
+    pub tests: Vec<ModelTest>,
+    /// SD of the entity effects (Swamy–Arora).
+    pub entity_sd: Option<f64>,
+    /// SD of the idiosyncratic error (within residuals).
+    pub idiosyncratic_sd: Option<f64>,
+    /// Entity-effect share of the error variance.
+    pub entity_share: Option<f64>,
+    /// How the variance components and the Hausman covariance are computed.
+    pub variance_convention: String,
+    /// Slopes by estimator.
+    pub slopes: Vec<Slope>,
+    /// Rules of thumb that apply, each with its source.
+    pub warnings: Vec<String>,
+}
+
+/// Rows missing one model variable.
+#[derive(Debug, Clone, Serialize)]
+pub struct VariableCost {
+    /// The variable.
+    pub variable: String,
+    /// Rows where it is missing.
+    pub rows: u64,
+}
+
+/// One diagnostic test.
+#[derive(Debug, Clone, Serialize)]
+pub struct ModelTest {
+    /// The test.
+    pub name: String,
+    /// Its statistic.
+    pub statistic: f64,
+    /// Degrees of freedom (none for normal statistics, two for F).
+    pub df: Vec<f64>,
+    /// p-value.
+    pub p: Option<f64>,
+    /// What it suggests, in one line.
+    pub reading: String,
+}
+
+/// One regressor's slope under each estimator.
+#[derive(Debug, Clone, Serialize)]
+pub struct Slope {
+    /// The regressor.
+    pub variable: String,
+    /// Pooled OLS.
+    pub pooled: f64,
+    /// Within (fixed effects).
+    pub within: f64,
+    /// Random effects (Swamy–Arora).
+    pub random: Option<f64>,
+    /// (within - pooled) / |pooled|, in percent.
+    pub change_within_vs_pooled: Option<f64>,
+    /// The sign differs or the size moves by more than half.
+    pub material: bool,
 }
 
 /// Figures of the cleaned panel.
@@ -171,6 +247,7 @@ impl Report {
             treatment: Vec::new(),
             balance: None,
             cleaned: None,
+            model: None,
         }
     }
 }

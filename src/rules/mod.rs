@@ -67,6 +67,25 @@ pub struct RulesFile {
     /// Accounting rules (`[[rule]]`).
     #[serde(default)]
     pub rule: Vec<AccountingRule>,
+    /// The panel model the user plans to estimate.
+    #[serde(default)]
+    pub model: Option<ModelSection>,
+}
+
+/// `[model]`: the regression the diagnostics are about.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ModelSection {
+    /// The outcome (dependent variable).
+    pub outcome: String,
+    /// The regressors.
+    pub regressors: Vec<String>,
+    /// Add the outcome's gap-aware one-period lag as a regressor.
+    #[serde(default)]
+    pub lagged_outcome: bool,
+    /// `"entity"` (default) or `"entity+period"` (period dummies added).
+    #[serde(default)]
+    pub effects: Option<String>,
 }
 
 /// `[[rule]]`: an accounting identity or bound that should hold on every row.
