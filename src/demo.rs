@@ -356,6 +356,11 @@ label = "Growth of total assets on the previous fiscal year"
 unit = "ratio"
 source = "common practice"
 
+[model]
+outcome = "roa"
+regressors = ["size", "leverage", "rd_assets", "working_capital_assets"]
+effects = "entity"
+
 [clean]
 duplicates = "keep-first"
 # Winsorize the ratios at the 1st and 99th percentiles over all firm-years.

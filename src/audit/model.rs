@@ -5,7 +5,7 @@
 //! between estimators. Linear algebra by nalgebra; this is a diagnostic, not an estimation
 //! report.
 
-use std::collections::HashMap;
+use std::collections::BTreeMap;
 
 use nalgebra::{DMatrix, DVector};
 use polars::prelude::*;
@@ -270,7 +270,7 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
             "no evidence of entity effects (one-sided) at 5%",
         ),
     });
-    let mut by_period: HashMap<i64, (f64, f64)> = HashMap::new();
+    let mut by_period: BTreeMap<i64, (f64, f64)> = BTreeMap::new();
     for (r, t) in s.period.iter().enumerate() {
         let slot = by_period.entry(*t).or_insert((0.0, 0.0));
         slot.0 += e_p[r];
@@ -653,7 +653,7 @@ fn wooldridge(s: &Sample, keep: &[usize]) -> Option<ModelTest> {
     }
     let sxx: f64 = pairs.iter().map(|(_, x, _)| x * x).sum();
     let rho = pairs.iter().map(|(_, x, y)| x * y).sum::<f64>() / sxx;
-    let mut score: HashMap<usize, f64> = HashMap::new();
+    let mut score: BTreeMap<usize, f64> = BTreeMap::new();
     for (g, x, y) in &pairs {
         *score.entry(*g).or_insert(0.0) += x * (y - rho * x);
     }
@@ -679,7 +679,7 @@ fn wooldridge(s: &Sample, keep: &[usize]) -> Option<ModelTest> {
 /// Returns the test and the pairs skipped.
 fn pesaran_cd(resid: &DVector<f64>, s: &Sample) -> Option<(ModelTest, u64)> {
     let n = s.sizes.len();
-    let mut rows: Vec<HashMap<i64, f64>> = vec![HashMap::new(); n];
+    let mut rows: Vec<BTreeMap<i64, f64>> = vec![BTreeMap::new(); n];
     for r in 0..resid.len() {
         rows[s.entity[r]].insert(s.period[r], resid[r]);
     }

@@ -70,6 +70,7 @@ pub(crate) fn sections(r: &Report) -> Vec<Section> {
         outliers(r),
         accounting(r),
         derived(r),
+        model(r),
         sample(r),
     ]
 }
@@ -721,4 +722,115 @@ fn cleaning_blocks(r: &Report) -> Vec<Block> {
         ]));
     }
     blocks
+}
+
+fn model(r: &Report) -> Section {
+    let Some(m) = &r.model else {
+        return Section {
+            title: "Model readiness",
+            blocks: vec![Block::Note(
+                "No model declared: add a [model] section (outcome, regressors) to the rules file."
+                    .into(),
+            )],
+        };
+    };
+    let mut blocks = vec![Block::Note(format!(
+        "Model: {} on {} with {} effects.",
+        m.outcome,
+        m.regressors.join(", "),
+        m.effects
+    ))];
+    let mut pairs = vec![
+        (
+            "estimation sample: rows".to_string(),
+            m.sample_rows.to_string(),
+        ),
+        (
+            "estimation sample: entities".to_string(),
+            m.sample_entities.to_string(),
+        ),
+        (
+            "estimation sample: singletons".to_string(),
+            m.sample_singletons.to_string(),
+        ),
+    ];
+    for c in m.cost.iter().filter(|c| c.rows > 0) {
+        pairs.push((format!("rows missing {}", c.variable), c.rows.to_string()));
+    }
+    pairs.push(("entity-effect SD".into(), opt(m.entity_sd, 4)));
+    pairs.push(("idiosyncratic SD".into(), opt(m.idiosyncratic_sd, 4)));
+    pairs.push((
+        "entity-effect share of variance".into(),
+        opt(m.entity_share, 3),
+    ));
+    blocks.push(Block::Pairs(pairs));
+    if !m.tests.is_empty() {
+        let rows = m
+            .tests
+            .iter()
+            .map(|t| {
+                let df: Vec<String> = t.df.iter().map(|d| num(*d, 0)).collect();
+                vec![
+                    t.name.clone(),
+                    num(t.statistic, 3),
+                    if df.is_empty() {
+                        "–".into()
+                    } else {
+                        df.join(", ")
+                    },
+                    pval(t.p),
+                    t.reading.clone(),
+                ]
+            })
+            .collect();
+        blocks.push(Block::Table(
+            strings(&["diagnostic", "statistic", "df", "p", "what it suggests"]),
+            rows,
+        ));
+    }
+    if !m.slopes.is_empty() {
+        let rows = m
+            .slopes
+            .iter()
+            .map(|s| {
+                vec![
+                    s.variable.clone(),
+                    num(s.pooled, 4),
+                    num(s.within, 4),
+                    opt(s.random, 4),
+                    s.change_within_vs_pooled
+                        .map_or("–".into(), |c| format!("{c:+.1}%")),
+                    if s.material { "yes" } else { "no" }.into(),
+                ]
+            })
+            .collect();
+        blocks.push(Block::Table(
+            strings(&[
+                "slope of",
+                "pooled",
+                "within",
+                "random effects",
+                "within vs pooled",
+                "moves materially",
+            ]),
+            rows,
+        ));
+        blocks.push(Block::Note(
+            "A sensitivity view: how much each slope moves between estimators. A slope that \
+             changes sign or by more than half between pooled and within is driven by \
+             differences between entities rather than changes within them."
+                .into(),
+        ));
+    }
+    for w in &m.warnings {
+        blocks.push(Block::Note(format!("Warning: {w}.")));
+    }
+    blocks.push(Block::Note(format!(
+        "Convention: {}.",
+        m.variance_convention
+    )));
+    Section {
+        title: "Model readiness",
+        blocks,
+    }
 }
