@@ -372,6 +372,17 @@ fn tempdir_beside(dir: &Path) -> Result<PathBuf> {
     Ok(p)
 }
 
+/// Write a file through a temporary file beside it and a rename.
+pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
+    let name = path
+        .file_name()
+        .map(|n| n.to_string_lossy().to_string())
+        .unwrap_or_else(|| "report".into());
+    let tmp = path.with_file_name(format!(".{name}.partial-{}", std::process::id()));
+    fs::write(&tmp, bytes).map_err(Error::io(&tmp))?;
+    fs::rename(&tmp, path).map_err(Error::io(path))
+}
+
 /// Lowercase hex SHA-256.
 pub fn sha256_hex(bytes: &[u8]) -> String {
     Sha256::digest(bytes)

@@ -12,8 +12,8 @@ use clap::{Args, Parser, Subcommand, ValueEnum};
     version,
     about,
     max_term_width = 100,
-    after_help = "Exit codes: 0 ok; 1 `verify` found a file that differs; 2 any error (usage, \
-                  input, rules), printed as one line on stderr. The README describes the \
+    after_help = "Exit codes: 0 ok; 1 `verify` found a file that differs, or `audit --fail-on` \
+                  met its level; 2 any error (usage, input, rules), printed as one line on stderr. The README describes the \
                   rules file and the bundle."
 )]
 pub(crate) struct Cli {
@@ -68,6 +68,22 @@ pub(crate) struct AuditArgs {
     /// terminal: tables for a person; md: Markdown; json: the full report for programs.
     #[arg(long, value_enum, default_value = "terminal")]
     pub(crate) format: ReportFormatArg,
+
+    /// Write the report to this file instead of printing it; the format follows the
+    /// extension (.md, .json, .txt for the terminal tables).
+    #[arg(long, value_name = "PATH")]
+    pub(crate) report: Option<PathBuf>,
+
+    /// Exit with code 1 when the overall verdict is at or above this level, so that a data
+    /// pipeline can stop on it.
+    #[arg(long, value_enum, value_name = "LEVEL")]
+    pub(crate) fail_on: Option<FailOnArg>,
+}
+
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub(crate) enum FailOnArg {
+    Warn,
+    Fail,
 }
 
 #[derive(Debug, Args)]

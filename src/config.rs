@@ -3,7 +3,7 @@
 
 use std::path::{Path, PathBuf};
 
-use crate::cli::{CliCommand, InputArgs, InputFormatArg, ReportFormatArg};
+use crate::cli::{CliCommand, FailOnArg, InputArgs, InputFormatArg, ReportFormatArg};
 use crate::rules::Rules;
 use crate::{Error, Result};
 
@@ -65,6 +65,10 @@ pub struct AuditConfig {
     pub input: InputConfig,
     /// How to print the report.
     pub format: ReportFormat,
+    /// Write the report here instead of stdout.
+    pub report: Option<PathBuf>,
+    /// Exit 1 at or above this verdict.
+    pub fail_on: Option<crate::audit::verdict::Status>,
 }
 
 /// `build` settings.
@@ -97,14 +101,38 @@ impl Command {
     /// Validate what the user typed.
     pub(crate) fn from_cli(cli: CliCommand, command_line: String) -> Result<Command> {
         Ok(match cli {
-            CliCommand::Audit(a) => Command::Audit(AuditConfig {
-                input: InputConfig::from_args(a.input)?,
-                format: match a.format {
-                    ReportFormatArg::Terminal => ReportFormat::Terminal,
-                    ReportFormatArg::Md => ReportFormat::Markdown,
-                    ReportFormatArg::Json => ReportFormat::Json,
-                },
-            }),
+            CliCommand::Audit(a) => {
+                let format = match &a.report {
+                    Some(path) => match path.extension().and_then(|e| e.to_str()) {
+                        Some("md") => ReportFormat::Markdown,
+                        Some("json") => ReportFormat::Json,
+                        Some("txt") => ReportFormat::Terminal,
+                        _ => {
+                            return Err(Error::BadOption {
+                                option: "report",
+                                message: format!(
+                                    "`{}`: name a .md, .json or .txt file",
+                                    path.display()
+                                ),
+                            })
+                        }
+                    },
+                    None => match a.format {
+                        ReportFormatArg::Terminal => ReportFormat::Terminal,
+                        ReportFormatArg::Md => ReportFormat::Markdown,
+                        ReportFormatArg::Json => ReportFormat::Json,
+                    },
+                };
+                Command::Audit(AuditConfig {
+                    input: InputConfig::from_args(a.input)?,
+                    format,
+                    report: a.report,
+                    fail_on: a.fail_on.map(|f| match f {
+                        FailOnArg::Warn => crate::audit::verdict::Status::Warn,
+                        FailOnArg::Fail => crate::audit::verdict::Status::Fail,
+                    }),
+                })
+            }
             CliCommand::Build(b) => {
                 let input = InputConfig::from_args(b.input)?;
                 check_out(&b.out, &input.path)?;

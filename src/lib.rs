@@ -73,8 +73,28 @@ fn audit_cmd(cfg: &AuditConfig) -> Result<i32> {
     report::renderer(cfg.format)
         .render(&prepared.report, &mut buf)
         .map_err(Error::io("<report>"))?;
-    stdout_write(&buf)?;
-    Ok(0)
+    let overall = prepared
+        .report
+        .verdict
+        .as_ref()
+        .map(|v| v.overall)
+        .unwrap_or(audit::verdict::Status::Pass);
+    match &cfg.report {
+        Some(path) => {
+            bundle::write_atomic(path, &buf)?;
+            let msg = format!(
+                "wrote {} (overall verdict: {})\n",
+                path.display(),
+                overall.label()
+            );
+            stdout_write(msg.as_bytes())?;
+        }
+        None => stdout_write(&buf)?,
+    }
+    Ok(match cfg.fail_on {
+        Some(level) if overall >= level => 1,
+        _ => 0,
+    })
 }
 
 fn build_cmd(cfg: &BuildConfig) -> Result<i32> {

@@ -283,6 +283,7 @@ pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
         }
     }
     report.sample_construction = steps;
+    report.verdict = Some(audit::verdict::judge(&report));
 
     let mut ledger_parts = ledger_parts.into_iter();
     let mut rejected = ledger_parts

@@ -343,3 +343,44 @@ fn accounting_rules_flag_null_and_drop() {
         "rule `r1`: action `delete`",
     );
 }
+
+#[test]
+fn verdict_and_fail_on_guard_a_pipeline() {
+    let w = Workdir::new();
+    // A clean balanced panel passes; a conflicting key fails; a gap warns.
+    w.write("ok.csv", "f,y,x\nA,1,1\nA,2,2\nB,1,3\nB,2,5\n");
+    w.write("conflict.csv", "f,y,x\nA,1,1\nA,1,2\nB,1,3\nB,2,5\n");
+    w.write("gap.csv", "f,y,x\nA,1,1\nA,3,2\nB,1,3\nB,2,5\nB,3,4\n");
+    let keys = ["--entity", "f", "--period", "y"];
+    let run = |file: &str, level: &str| {
+        let mut args = vec!["audit", file, "--fail-on", level];
+        args.extend(keys);
+        w.run(&args).code
+    };
+    assert_eq!((run("ok.csv", "warn"), run("ok.csv", "fail")), (0, 0));
+    assert_eq!((run("gap.csv", "warn"), run("gap.csv", "fail")), (1, 0));
+    assert_eq!(
+        (run("conflict.csv", "warn"), run("conflict.csv", "fail")),
+        (1, 1)
+    );
+    let mut args = vec!["audit", "conflict.csv", "--report", "r.json"];
+    args.extend(keys);
+    let r = w.ok(&args);
+    assert!(r.stdout.contains("overall verdict: fail"), "{}", r.stdout);
+    let report: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(w.path("r.json")).unwrap()).unwrap();
+    assert_eq!(report["verdict"]["overall"], "fail");
+    let keys_line = report["verdict"]["checks"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|c| c["check"] == "Keys")
+        .unwrap();
+    assert_eq!(keys_line["status"], "fail");
+    w.fails(
+        &[
+            "audit", "ok.csv", "--entity", "f", "--period", "y", "--report", "r.pdf",
+        ],
+        "name a .md, .json or .txt file",
+    );
+}

@@ -11,6 +11,7 @@ pub mod model;
 mod outliers;
 mod unit_slips;
 mod variation;
+pub mod verdict;
 
 use polars::prelude::*;
 

@@ -72,6 +72,7 @@ pub(crate) fn sections(r: &Report) -> Vec<Section> {
         derived(r),
         model(r),
         sample(r),
+        verdict(r),
     ]
 }
 
@@ -832,5 +833,33 @@ fn model(r: &Report) -> Section {
     Section {
         title: "Model readiness",
         blocks,
+    }
+}
+
+fn verdict(r: &Report) -> Section {
+    let Some(v) = &r.verdict else {
+        return Section {
+            title: "Verdict",
+            blocks: vec![],
+        };
+    };
+    let word = |s: crate::audit::verdict::Status| s.label();
+    let rows = v
+        .checks
+        .iter()
+        .map(|c| {
+            vec![
+                c.check.clone(),
+                word(c.status).to_string(),
+                c.reason.clone(),
+            ]
+        })
+        .collect();
+    Section {
+        title: "Verdict",
+        blocks: vec![
+            Block::Table(strings(&["check", "verdict", "why"]), rows),
+            Block::Note(format!("Overall: {}.", word(v.overall))),
+        ],
     }
 }

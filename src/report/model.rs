@@ -62,6 +62,8 @@ pub struct Report {
     pub cleaned: Option<Cleaned>,
     /// Diagnostics for the model declared in `[model]` (on the cleaned panel for `build`).
     pub model: Option<ModelReport>,
+    /// Pass, warn or fail per check family, and overall.
+    pub verdict: Option<crate::audit::verdict::Verdict>,
 }
 
 /// Model readiness: which panel estimator the data support.
@@ -248,6 +250,7 @@ impl Report {
             balance: None,
             cleaned: None,
             model: None,
+            verdict: None,
         }
     }
 }

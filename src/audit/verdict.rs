@@ -1,0 +1,220 @@
+//! The verdict: `pass`, `warn` or `fail` for each check family with a one-line reason, and
+//! overall the worst of them. Computed from the finished report; documented in the README.
+
+use serde::Serialize;
+
+use crate::report::Report;
+
+/// One verdict level, ordered from best to worst.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Status {
+    /// Nothing to act on.
+    Pass,
+    /// Look before estimating.
+    Warn,
+    /// Do not estimate on this panel as it stands.
+    Fail,
+}
+
+impl Status {
+    /// The word used in reports and on the command line.
+    pub fn label(self) -> &'static str {
+        match self {
+            Status::Pass => "pass",
+            Status::Warn => "warn",
+            Status::Fail => "fail",
+        }
+    }
+}
+
+/// The verdict of one check family.
+#[derive(Debug, Clone, Serialize)]
+pub struct CheckVerdict {
+    /// The check family (a report section).
+    pub check: String,
+    /// Its status.
+    pub status: Status,
+    /// Why, in one line.
+    pub reason: String,
+}
+
+/// Every check's verdict and the overall one.
+#[derive(Debug, Clone, Serialize)]
+pub struct Verdict {
+    /// The worst status of all checks.
+    pub overall: Status,
+    /// One line per check family.
+    pub checks: Vec<CheckVerdict>,
+}
+
+fn line(check: &str, status: Status, reason: String) -> CheckVerdict {
+    CheckVerdict {
+        check: check.to_string(),
+        status,
+        reason,
+    }
+}
+
+/// Judge a finished report.
+pub fn judge(r: &Report) -> Verdict {
+    use Status::*;
+    let mut checks = Vec::new();
+    let k = &r.keys;
+    let unresolved = k.policy == "report only" && k.conflicting_keys > 0;
+    checks.push(if unresolved {
+        line(
+            "Keys",
+            Fail,
+            format!(
+                "{} entity-period keys appear on rows with different values",
+                k.conflicting_keys
+            ),
+        )
+    } else if k.missing_key_rows + k.exact_duplicate_rows + k.conflicting_rows > 0 {
+        line(
+            "Keys",
+            Warn,
+            format!(
+                "{} rows missing a key, {} exact copies, {} conflicting keys resolved by {}",
+                k.missing_key_rows, k.exact_duplicate_rows, k.conflicting_keys, k.policy
+            ),
+        )
+    } else {
+        line(
+            "Keys",
+            Pass,
+            "every entity-period key is present and unique".into(),
+        )
+    });
+    let c = &r.coverage;
+    checks.push(if c.entities_with_gaps + c.singletons > 0 {
+        line(
+            "Coverage",
+            Warn,
+            format!(
+                "{} entities with gaps, {} singletons",
+                c.entities_with_gaps, c.singletons
+            ),
+        )
+    } else {
+        line("Coverage", Pass, "no gaps and no singletons".into())
+    });
+    let differ: Vec<&str> = r
+        .attrition
+        .iter()
+        .filter(|a| a.p.is_some_and(|p| p < 0.05))
+        .map(|a| a.variable.as_str())
+        .collect();
+    checks.push(if differ.is_empty() {
+        line(
+            "Entry and exit",
+            Pass,
+            "leavers and stayers do not differ at 5% at entry".into(),
+        )
+    } else {
+        line(
+            "Entry and exit",
+            Warn,
+            format!(
+                "leavers differ from stayers at entry in {}",
+                differ.join(", ")
+            ),
+        )
+    });
+    let regressors: Vec<&String> = r.model.iter().flat_map(|m| m.regressors.iter()).collect();
+    let absorbed_regressor: Vec<&str> = r
+        .variation
+        .iter()
+        .filter(|v| v.absorbed_by.is_some() && regressors.contains(&&v.variable))
+        .map(|v| v.variable.as_str())
+        .collect();
+    let nearly: Vec<&str> = r
+        .variation
+        .iter()
+        .filter(|v| v.nearly_absorbed)
+        .map(|v| v.variable.as_str())
+        .collect();
+    let absorbed = r
+        .variation
+        .iter()
+        .filter(|v| v.absorbed_by.is_some())
+        .count();
+    checks.push(if !absorbed_regressor.is_empty() {
+        line(
+            "Absorbed by fixed effects",
+            Fail,
+            format!("model regressors absorbed by fixed effects: {}", absorbed_regressor.join(", ")),
+        )
+    } else if !nearly.is_empty() {
+        line("Absorbed by fixed effects", Warn, format!("nearly absorbed: {}", nearly.join(", ")))
+    } else {
+        line(
+            "Absorbed by fixed effects",
+            Pass,
+            format!("{absorbed} variables absorbed (time-invariant traits or macro series), none nearly"),
+        )
+    });
+    checks.push(if r.missing_breaks.is_empty() {
+        line(
+            "Missing values",
+            Pass,
+            "no sharp change in coverage between periods".into(),
+        )
+    } else {
+        line(
+            "Missing values",
+            Warn,
+            format!("{} coverage breaks between periods", r.missing_breaks.len()),
+        )
+    });
+    checks.push(if r.unit_slips_total > 0 {
+        line(
+            "Outliers and unit slips",
+            Warn,
+            format!("{} suspected unit slips", r.unit_slips_total),
+        )
+    } else if r.outliers.iter().any(|o| o.small_groups) {
+        line(
+            "Outliers and unit slips",
+            Warn,
+            "some periods are too small for their cutoffs".into(),
+        )
+    } else {
+        line("Outliers and unit slips", Pass, "no unit slips".into())
+    });
+    let broken: u64 = r.rules.iter().map(|l| l.violations).sum();
+    checks.push(if broken > 0 {
+        line(
+            "Accounting rules",
+            Warn,
+            format!("{broken} rule violations"),
+        )
+    } else {
+        line(
+            "Accounting rules",
+            Pass,
+            format!("{} rules hold on every row", r.rules.len()),
+        )
+    });
+    if let Some(m) = &r.model {
+        let rank = m.warnings.iter().any(|w| w.contains("rank deficiency"));
+        checks.push(if rank || m.tests.is_empty() {
+            line(
+                "Model readiness",
+                Fail,
+                "a regressor is not identified or no diagnostic could be computed".into(),
+            )
+        } else if !m.warnings.is_empty() {
+            line(
+                "Model readiness",
+                Warn,
+                format!("{} rules of thumb apply", m.warnings.len()),
+            )
+        } else {
+            line("Model readiness", Pass, "no rule of thumb applies".into())
+        });
+    }
+    let overall = checks.iter().map(|c| c.status).max().unwrap_or(Pass);
+    Verdict { overall, checks }
+}
