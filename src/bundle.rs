@@ -342,6 +342,7 @@ pub fn verify(dir: &Path) -> Result<Verification> {
             rules,
             entity: manifest.input.entity.clone(),
             period: manifest.input.period.clone(),
+            quiet: true,
         },
         out: scratch.join("bundle"),
         command_line: manifest.created_by_command.clone(),

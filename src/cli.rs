@@ -56,6 +56,10 @@ pub(crate) struct InputArgs {
     /// Read DATA as this format instead of guessing from its extension.
     #[arg(long, value_enum, value_name = "FORMAT")]
     pub(crate) input_format: Option<InputFormatArg>,
+
+    /// Show no progress on stderr (it is shown only on a terminal anyway).
+    #[arg(long)]
+    pub(crate) quiet: bool,
 }
 
 #[derive(Debug, Args)]

@@ -35,6 +35,8 @@ pub struct InputConfig {
     pub entity: String,
     /// The period column.
     pub period: String,
+    /// Hide progress.
+    pub quiet: bool,
 }
 
 /// Input file formats.
@@ -194,6 +196,7 @@ impl InputConfig {
             rules,
             entity,
             period,
+            quiet: a.quiet,
         })
     }
 
@@ -218,6 +221,7 @@ impl InputConfig {
             rules,
             entity,
             period,
+            quiet: false,
         })
     }
 }

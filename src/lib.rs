@@ -15,6 +15,7 @@ pub mod derive;
 mod error;
 pub mod load;
 pub mod pipeline;
+pub mod progress;
 pub mod report;
 pub mod rules;
 
@@ -115,6 +116,8 @@ fn build_cmd(cfg: &BuildConfig) -> Result<i32> {
 /// Run the whole pipeline and write the bundle; the library entry point behind `build`.
 pub fn build(cfg: &BuildConfig) -> Result<bundle::Manifest> {
     let mut prepared = pipeline::prepare(&cfg.input, pipeline::Mode::Build)?;
+    let progress = progress::Progress::new(cfg.input.quiet);
+    progress.stage("writing the bundle");
     bundle::write(cfg, &mut prepared)
 }
 

@@ -10,6 +10,7 @@ use crate::clean::{self, DuplicatePolicy, Keys, SingletonPolicy};
 use crate::config::InputConfig;
 use crate::derive::{Layout, Plan};
 use crate::load::{self, ROW};
+use crate::progress::Progress;
 use crate::report::{Cleaned, InputSummary, Report, SampleStep};
 use crate::rules::LEVEL_COLUMNS;
 use crate::{Error, Result};
@@ -54,6 +55,8 @@ pub struct DictionaryEntry {
 
 /// Run the pipeline on one input.
 pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
+    let progress = Progress::new(input.quiet);
+    progress.stage("reading the input");
     let rules = &input.rules;
     let policy = match mode {
         Mode::Audit => DuplicatePolicy::Report,
@@ -72,6 +75,7 @@ pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
             });
         }
     }
+    progress.stage("key steps and derived variables");
     let plan = Plan::new(rules, &loaded.columns)?;
     let (accounting_rules, skipped_rules) = accounting::compile(rules, &loaded.columns)?;
     let keys = Keys {
@@ -232,7 +236,11 @@ pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
     };
     // The report describes the panel as read (after the key steps and derivation).
     let ctx = Context::new(&panel, &input.entity, &input.period, options.clone())?;
-    audit::run_all(&ctx, &mut report)?;
+    for check in audit::registry() {
+        progress.stage(&format!("check: {}", check.name()));
+        check.run(&ctx, &mut report)?;
+    }
+    progress.stage("cleaning");
 
     // Then `build` cleans, in a fixed order: outliers, balancing, singletons.
     let mut panel = panel;
