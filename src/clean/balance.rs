@@ -4,7 +4,7 @@
 
 use polars::prelude::*;
 
-use super::{ledger, Keys, REASON, RELATED, STEP};
+use super::{drop_where, Keys};
 use crate::report::{BalanceLine, WindowScore};
 use crate::rules::BalanceSpec;
 use crate::{Error, Result};
@@ -142,35 +142,17 @@ pub fn apply(
         .n_unique()
         .over([col(e)])?
         .eq(lit(span as u32).cast(IDX_DTYPE));
-    let marked = df
-        .lazy()
-        .with_column(
-            when(complete.not())
-                .then(lit(format!(
-                    "entity not observed in every period of {first}..{last}"
-                )))
-                .when(inside.not())
-                .then(lit(format!(
-                    "period outside the balancing window {first}..{last}"
-                )))
-                .otherwise(lit(NULL).cast(DataType::String))
-                .alias(REASON),
-        )
-        .collect()?;
-    let removed = marked
-        .clone()
-        .lazy()
-        .filter(col(REASON).is_not_null())
-        .with_columns([
-            lit("balance").alias(STEP),
-            lit(NULL).cast(IDX_DTYPE).alias(RELATED),
-        ])
-        .collect()?;
-    let kept = marked
-        .lazy()
-        .filter(col(REASON).is_null())
-        .drop(cols([REASON]))
-        .collect()?;
+    // `complete` is a window over the entity: evaluate it before `drop_where` splits rows.
+    let reason = when(complete.not())
+        .then(lit(format!(
+            "entity not observed in every period of {first}..{last}"
+        )))
+        .when(inside.not())
+        .then(lit(format!(
+            "period outside the balancing window {first}..{last}"
+        )))
+        .otherwise(lit(NULL).cast(DataType::String));
+    let (kept, removed) = drop_where(df, reason, "balance", k)?;
     let entities = crate::report::distinct(&kept, e)?;
     let line = BalanceLine {
         mode: mode.to_string(),
@@ -180,5 +162,5 @@ pub fn apply(
         rows: kept.height() as u64,
         runner_up,
     };
-    Ok((kept, Some(ledger(removed, k.columns)?), Some(line)))
+    Ok((kept, Some(removed), Some(line)))
 }

@@ -5,7 +5,7 @@
 
 use polars::prelude::*;
 
-use super::{ledger, Keys, REASON, RELATED, STEP};
+use super::{drop_where, Keys};
 use crate::audit::CutoffGroups;
 use crate::report::{Cutoff, TreatLine};
 use crate::rules::TreatSpec;
@@ -218,23 +218,9 @@ impl Treatment {
                         .then(lit(format!("`{v}` beyond its trimming cutoffs")))
                         .otherwise(reason);
                 }
-                let marked = marked.lazy().with_column(reason.alias(REASON)).collect()?;
-                let removed = marked
-                    .clone()
-                    .lazy()
-                    .filter(col(REASON).is_not_null())
-                    .with_columns([
-                        lit("trim").alias(STEP),
-                        lit(NULL).cast(IDX_DTYPE).alias(RELATED),
-                    ])
-                    .collect()?;
-                let kept = marked
-                    .lazy()
-                    .filter(col(REASON).is_null())
-                    .drop(cols(helpers))
-                    .drop(cols([REASON]))
-                    .collect()?;
-                (kept, Some(ledger(removed, k.columns)?))
+                let (kept, removed) = drop_where(marked, reason, "trim", k)?;
+                let kept = kept.lazy().drop(cols(helpers)).collect()?;
+                (kept, Some(removed))
             }
         };
         let mut lines = Vec::new();
