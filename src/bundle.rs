@@ -140,6 +140,7 @@ fn write_files(cfg: &BuildConfig, p: &mut Prepared, dir: &Path) -> Result<Manife
     for (file, format) in [
         ("report.md", ReportFormat::Markdown),
         ("report.json", ReportFormat::Json),
+        ("report.html", ReportFormat::Html),
     ] {
         let path = dir.join(file);
         let mut buf = Vec::new();

@@ -69,12 +69,13 @@ pub(crate) struct AuditArgs {
 
     /// How to print the readiness report.
     ///
-    /// terminal: tables for a person; md: Markdown; json: the full report for programs.
+    /// terminal: tables for a person; md: Markdown; json: the full report for programs; html: a
+    /// self-contained page with charts.
     #[arg(long, value_enum, default_value = "terminal")]
     pub(crate) format: ReportFormatArg,
 
     /// Write the report to this file instead of printing it; the format follows the
-    /// extension (.md, .json, .txt for the terminal tables).
+    /// extension (.md, .json, .html, .txt for the terminal tables).
     #[arg(long, value_name = "PATH")]
     pub(crate) report: Option<PathBuf>,
 
@@ -143,6 +144,7 @@ pub(crate) enum ReportFormatArg {
     Terminal,
     Md,
     Json,
+    Html,
 }
 
 #[cfg(test)]

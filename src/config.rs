@@ -58,6 +58,8 @@ pub enum ReportFormat {
     Markdown,
     /// JSON.
     Json,
+    /// A self-contained HTML page with charts.
+    Html,
 }
 
 /// `audit` settings.
@@ -109,11 +111,12 @@ impl Command {
                         Some("md") => ReportFormat::Markdown,
                         Some("json") => ReportFormat::Json,
                         Some("txt") => ReportFormat::Terminal,
+                        Some("html") => ReportFormat::Html,
                         _ => {
                             return Err(Error::BadOption {
                                 option: "report",
                                 message: format!(
-                                    "`{}`: name a .md, .json or .txt file",
+                                    "`{}`: name a .md, .json, .html or .txt file",
                                     path.display()
                                 ),
                             })
@@ -123,6 +126,7 @@ impl Command {
                         ReportFormatArg::Terminal => ReportFormat::Terminal,
                         ReportFormatArg::Md => ReportFormat::Markdown,
                         ReportFormatArg::Json => ReportFormat::Json,
+                        ReportFormatArg::Html => ReportFormat::Html,
                     },
                 };
                 Command::Audit(AuditConfig {

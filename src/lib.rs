@@ -71,7 +71,18 @@ fn stdout_write(bytes: &[u8]) -> Result<()> {
 fn audit_cmd(cfg: &AuditConfig) -> Result<i32> {
     let prepared = pipeline::prepare(&cfg.input, pipeline::Mode::Audit)?;
     let mut buf = Vec::new();
-    report::renderer(cfg.format)
+    // Colour only for a person: terminal output to a terminal, and never with NO_COLOR set.
+    use std::io::IsTerminal;
+    let colour = cfg.format == config::ReportFormat::Terminal
+        && cfg.report.is_none()
+        && std::io::stdout().is_terminal()
+        && std::env::var_os("NO_COLOR").is_none_or(|v| v.is_empty());
+    let renderer = if colour {
+        report::colour_terminal()
+    } else {
+        report::renderer(cfg.format)
+    };
+    renderer
         .render(&prepared.report, &mut buf)
         .map_err(Error::io("<report>"))?;
     let overall = prepared

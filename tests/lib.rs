@@ -5,4 +5,5 @@ mod util;
 mod cli;
 mod conservation;
 mod demo;
+mod html;
 mod reference;

@@ -6,7 +6,7 @@ use polars::prelude::*;
 
 use super::names::*;
 use super::{scalar_f64, scalar_u64, Check, Context};
-use crate::report::{Distribution, Report, Shape};
+use crate::report::{CoverageGrid, Distribution, GridRow, Report, Shape};
 use crate::Result;
 
 /// How many coverage shapes the report lists.
@@ -75,8 +75,59 @@ impl Check for Coverage {
         c.shapes = shapes;
         c.distinct_shapes = distinct;
         c.singletons_two_way = two_way_singletons(&ctx.keys, ctx.entity, ctx.period)?.0;
+        c.grid = grid(ctx)?;
         Ok(())
     }
+}
+
+/// Entities shown in the coverage chart.
+const GRID_ROWS: usize = 60;
+
+fn grid(ctx: &Context) -> Result<CoverageGrid> {
+    let Some((first, last)) = ctx.window()? else {
+        return Ok(CoverageGrid::default());
+    };
+    let ids = ctx.entities.column(ctx.entity)?.str()?;
+    let n = ctx.entities.height();
+    let step = (n as f64 / GRID_ROWS as f64).max(1.0);
+    let picked: Vec<String> = (0..n.min(GRID_ROWS))
+        .filter_map(|i| ids.get((i as f64 * step) as usize).map(str::to_string))
+        .collect();
+    let keys = ctx
+        .keys
+        .clone()
+        .lazy()
+        .filter(col(ctx.entity).is_in(
+            lit(Series::new("picked".into(), picked.clone())).implode(true),
+            false,
+        ))
+        .collect()?;
+    let (e, p) = (
+        keys.column(ctx.entity)?.str()?,
+        keys.column(ctx.period)?.i64()?,
+    );
+    let mut present: std::collections::HashMap<&str, Vec<bool>> = std::collections::HashMap::new();
+    let width = (last - first + 1) as usize;
+    for i in 0..keys.height() {
+        if let (Some(e), Some(p)) = (e.get(i), p.get(i)) {
+            present.entry(e).or_insert_with(|| vec![false; width])[(p - first) as usize] = true;
+        }
+    }
+    let rows = picked
+        .iter()
+        .map(|id| GridRow {
+            entity: id.clone(),
+            present: present
+                .get(id.as_str())
+                .cloned()
+                .unwrap_or_else(|| vec![false; width]),
+        })
+        .collect();
+    Ok(CoverageGrid {
+        periods: (first..=last).collect(),
+        rows,
+        of_entities: n as u64,
+    })
 }
 
 fn shapes(entities: &DataFrame) -> Result<(Vec<Shape>, u64)> {

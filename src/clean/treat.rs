@@ -7,7 +7,7 @@ use polars::prelude::*;
 
 use super::{drop_where, Keys};
 use crate::audit::CutoffGroups;
-use crate::report::{Cutoff, TreatLine};
+use crate::report::{Cutoff, Histogram, TreatLine};
 use crate::rules::TreatSpec;
 use crate::{Error, Result};
 
@@ -102,6 +102,7 @@ impl Treatment {
         k: &Keys,
     ) -> Result<(DataFrame, Option<DataFrame>, Vec<TreatLine>)> {
         let x = |v: &str| col(v).cast(DataType::Float64);
+        let df_before = df.clone();
         let mut aggs = Vec::new();
         for (i, v) in self.variables.iter().enumerate() {
             aggs.push(
@@ -254,8 +255,63 @@ impl Treatment {
                 cutoffs: cut,
                 below: n(2 * i),
                 above: n(2 * i + 1),
+                histogram: histogram(&df_before, v)?,
             });
         }
         Ok((out, removed, lines))
     }
+}
+
+/// Bins of the chart of a treated variable.
+const BINS: usize = 30;
+
+/// Equal-width bins between the 0.5th and 99.5th percentiles; values beyond fall in the end
+/// bins. Missing values are left out.
+fn histogram(df: &DataFrame, v: &str) -> Result<Histogram> {
+    let x = col(v).cast(DataType::Float64);
+    let q = df
+        .clone()
+        .lazy()
+        .select([
+            x.clone()
+                .quantile(lit(0.005), QuantileMethod::Linear)
+                .alias("lo"),
+            x.clone()
+                .quantile(lit(0.995), QuantileMethod::Linear)
+                .alias("hi"),
+        ])
+        .collect()?;
+    let (Some(lo), Some(hi)) = (q.column("lo")?.f64()?.get(0), q.column("hi")?.f64()?.get(0))
+    else {
+        return Ok(Histogram::default());
+    };
+    let width = if hi > lo {
+        (hi - lo) / BINS as f64
+    } else {
+        1.0
+    };
+    let bins = df
+        .clone()
+        .lazy()
+        .select([((x - lit(lo)) / lit(width))
+            .floor()
+            .clip(lit(0.0), lit((BINS - 1) as f64))
+            .cast(DataType::Int64)
+            .alias("bin")])
+        .drop_nulls(None)
+        .group_by([col("bin")])
+        .agg([len().cast(DataType::UInt64).alias("n")])
+        .collect()?;
+    let mut counts = vec![0u64; BINS];
+    let (b, n) = (bins.column("bin")?.i64()?, bins.column("n")?.u64()?);
+    for i in 0..bins.height() {
+        if let (Some(b), Some(n)) = (b.get(i), n.get(i)) {
+            counts[b as usize] += n;
+        }
+    }
+    Ok(Histogram {
+        start: lo,
+        width,
+        counts,
+    })
 }

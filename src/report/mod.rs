@@ -1,6 +1,7 @@
 //! The readiness report: one typed `Report` filled by the pipeline and the checks, and one
 //! renderer per output format behind the `Render` trait. Renderers never compute.
 
+mod html;
 mod json;
 mod layout;
 mod markdown;
@@ -13,6 +14,7 @@ use crate::config::ReportFormat;
 use crate::Result;
 use polars::prelude::*;
 
+pub use html::Html;
 pub use json::Json;
 pub use markdown::Markdown;
 pub use model::*;
@@ -34,12 +36,18 @@ pub trait Render {
     fn render(&self, report: &Report, wtr: &mut dyn Write) -> std::io::Result<()>;
 }
 
+/// The terminal renderer in colour, for a person at a terminal.
+pub fn colour_terminal() -> Box<dyn Render> {
+    Box::new(Terminal { color: true })
+}
+
 /// The renderer for a format.
 pub fn renderer(format: ReportFormat) -> Box<dyn Render> {
     match format {
-        ReportFormat::Terminal => Box::new(Terminal),
+        ReportFormat::Terminal => Box::new(Terminal { color: false }),
         ReportFormat::Markdown => Box::new(Markdown),
         ReportFormat::Json => Box::new(Json),
+        ReportFormat::Html => Box::new(Html),
     }
 }
 

@@ -172,6 +172,20 @@ pub struct TreatLine {
     pub below: u64,
     /// Values above the upper cutoff (replaced or dropped).
     pub above: u64,
+    /// Distribution of the values before treatment (between the 0.5th and 99.5th
+    /// percentiles; the rest counted at the ends).
+    pub histogram: Histogram,
+}
+
+/// Equal-width bins.
+#[derive(Debug, Clone, Default, Serialize)]
+pub struct Histogram {
+    /// Left edge of the first bin.
+    pub start: f64,
+    /// Bin width.
+    pub width: f64,
+    /// Values per bin.
+    pub counts: Vec<u64>,
 }
 
 /// A pair of cutoffs.
@@ -434,6 +448,28 @@ pub struct Coverage {
     pub shapes: Vec<Shape>,
     /// How many distinct shapes there are.
     pub distinct_shapes: u64,
+    /// A sample of entities with the periods they are observed in, for the coverage chart.
+    pub grid: CoverageGrid,
+}
+
+/// Presence of a sample of entities over the window.
+#[derive(Debug, Clone, Default, Serialize)]
+pub struct CoverageGrid {
+    /// The window's periods.
+    pub periods: Vec<i64>,
+    /// Sampled entities (evenly spaced in entity order), each with presence per period.
+    pub rows: Vec<GridRow>,
+    /// Entities sampled from.
+    pub of_entities: u64,
+}
+
+/// One entity's presence per period.
+#[derive(Debug, Clone, Serialize)]
+pub struct GridRow {
+    /// The entity.
+    pub entity: String,
+    /// Observed in each period of the window.
+    pub present: Vec<bool>,
 }
 
 /// A distribution's summary; quartiles by linear interpolation (Hyndman–Fan type 7).

@@ -3,16 +3,24 @@
 use std::io::Write;
 
 use comfy_table::presets::UTF8_HORIZONTAL_ONLY;
-use comfy_table::{CellAlignment, ContentArrangement, Table, TableComponent};
+use comfy_table::{Cell, CellAlignment, Color, ContentArrangement, Table, TableComponent};
 
 use super::layout::{sections, Block};
 use super::{Render, Report};
 
 /// Renders the report as tables for a person at a terminal.
-pub struct Terminal;
+pub struct Terminal {
+    /// Colour the verdict words (only when printing to a terminal without `NO_COLOR`).
+    pub color: bool,
+}
 
-fn table(header: Vec<String>, rows: &[Vec<String>], show_header: bool) -> Table {
+fn table(header: Vec<String>, rows: &[Vec<String>], show_header: bool, color: bool) -> Table {
     let mut t = Table::new();
+    if color {
+        t.enforce_styling();
+    } else {
+        t.force_no_tty();
+    }
     t.load_preset(UTF8_HORIZONTAL_ONLY)
         .set_content_arrangement(ContentArrangement::Dynamic)
         .set_width(100)
@@ -25,7 +33,15 @@ fn table(header: Vec<String>, rows: &[Vec<String>], show_header: bool) -> Table 
         t.set_header(header);
     }
     for row in rows {
-        t.add_row(row.clone());
+        t.add_row(row.iter().map(|c| {
+            let cell = Cell::new(c);
+            match (color, c.as_str()) {
+                (true, "pass") => cell.fg(Color::Green),
+                (true, "warn") => cell.fg(Color::Yellow),
+                (true, "fail") => cell.fg(Color::Red),
+                _ => cell,
+            }
+        }));
     }
     for i in 1..width {
         let numeric = rows.iter().all(|r| {
@@ -59,11 +75,11 @@ impl Render for Terminal {
                         writeln!(
                             wtr,
                             "{}",
-                            table(vec![String::new(), String::new()], &rows, false)
+                            table(vec![String::new(), String::new()], &rows, false, self.color)
                         )?;
                     }
                     Block::Table(header, rows) => {
-                        writeln!(wtr, "{}", table(header.clone(), rows, true))?
+                        writeln!(wtr, "{}", table(header.clone(), rows, true, self.color))?
                     }
                     Block::Note(text) => writeln!(wtr, "{}", wrap(text, 98, "  "))?,
                 }
