@@ -381,6 +381,6 @@ fn verdict_and_fail_on_guard_a_pipeline() {
         &[
             "audit", "ok.csv", "--entity", "f", "--period", "y", "--report", "r.pdf",
         ],
-        "name a .md, .json or .txt file",
+        "name a .md, .json, .html or .txt file",
     );
 }
