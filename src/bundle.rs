@@ -201,7 +201,7 @@ fn dictionary_md(entries: &[crate::pipeline::DictionaryEntry]) -> String {
     let cell = |s: &str| s.replace('|', "\\|");
     let mut out = String::from(
         "# Data dictionary\n\nOne row per column of `panel.csv` / `panel.parquet`.\n\n\
-         | variable | definition | unit | source | missing in the cleaned panel | outlier treatment |\n\
+         | variable | definition | unit | source | missing in the cleaned panel | values changed by `build` |\n\
          |---|---|---|---|---:|---|\n",
     );
     for e in entries {

@@ -49,7 +49,7 @@ pub struct DictionaryEntry {
     pub source: String,
     /// Share missing in the cleaned panel.
     pub missing_share: Option<f64>,
-    /// Outlier treatment applied, in words.
+    /// Outlier treatment and accounting-rule nulls applied, in words.
     pub treatment: String,
 }
 
@@ -78,6 +78,7 @@ pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
     progress.stage("key steps and derived variables");
     let plan = Plan::new(rules, &loaded.columns)?;
     let (accounting_rules, skipped_rules) = accounting::compile(rules, &loaded.columns)?;
+    let verdict_levels = audit::verdict::Levels::from_rules(&rules.file)?;
     let keys = Keys {
         file: &input.path,
         entity: &input.entity,
@@ -291,7 +292,7 @@ pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
         }
     }
     report.sample_construction = steps;
-    report.verdict = Some(audit::verdict::judge(&report));
+    report.verdict = Some(audit::verdict::judge(&report, &verdict_levels));
 
     let mut ledger_parts = ledger_parts.into_iter();
     let mut rejected = ledger_parts
@@ -373,6 +374,23 @@ fn dictionary(
                     )
                 })
                 .unwrap_or_default();
+            let nulled: Vec<String> = report
+                .rules
+                .iter()
+                .filter(|l| l.nulls.contains(&name) && l.violations > 0)
+                .map(|l| {
+                    format!(
+                        "set to null where rule `{}` does not hold ({} rows)",
+                        l.name, l.violations
+                    )
+                })
+                .collect();
+            let treatment = [treatment]
+                .into_iter()
+                .chain(nulled)
+                .filter(|t| !t.is_empty())
+                .collect::<Vec<_>>()
+                .join("; ");
             let (definition, unit, source) = match derived {
                 Some(d) => (
                     format!("derived: `{}`", d.expr),

@@ -337,6 +337,11 @@ fn accounting_rules_flag_null_and_drop() {
         .map(|r| r["violations"].as_u64().unwrap())
         .collect();
     assert_eq!(broken, [1, 1, 1]);
+    let dictionary = std::fs::read_to_string(w.path("out/dictionary.md")).unwrap();
+    assert!(
+        dictionary.contains("set to null where rule `cap` does not hold (1 rows)"),
+        "{dictionary}"
+    );
     w.write("bad.toml", "[panel]\nentity = \"f\"\nperiod = \"y\"\n[[rule]]\nname = \"r1\"\nexpr = \"x > 0\"\naction = \"delete\"\n");
     w.fails(
         &["audit", "p.csv", "--rules", "bad.toml"],
@@ -383,4 +388,41 @@ fn verdict_and_fail_on_guard_a_pipeline() {
         ],
         "name a .md, .json, .html or .txt file",
     );
+}
+
+#[test]
+fn a_regressor_absorbed_by_entity_effects_is_named_and_left_out() {
+    // `founded` never changes within a firm: under entity effects it is not identified.
+    let w = Workdir::new();
+    let mut csv = String::from("f,y,x,founded,out\n");
+    for (i, f) in ["A", "B", "C", "D"].iter().enumerate() {
+        for y in 1..=5 {
+            let x = (i * 7 + y * 3) % 11;
+            csv.push_str(&format!("{f},{y},{x},{},{}\n", 1990 + i, x * 2 + y + i));
+        }
+    }
+    w.write("p.csv", &csv);
+    w.write(
+        "r.toml",
+        "[panel]\nentity = \"f\"\nperiod = \"y\"\n[model]\noutcome = \"out\"\nregressors = [\"x\", \"founded\"]\n",
+    );
+    w.ok(&["build", "p.csv", "--rules", "r.toml", "--out", "o"]);
+    let report: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(w.path("o/report.json")).unwrap()).unwrap();
+    let warnings = report["model"]["warnings"].as_array().unwrap();
+    assert!(
+        warnings.iter().any(|w| w
+            .as_str()
+            .unwrap()
+            .contains("`founded` is a linear combination")),
+        "{warnings:?}"
+    );
+    let slopes: Vec<&str> = report["model"]["slopes"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|s| s["variable"].as_str().unwrap())
+        .collect();
+    assert_eq!(slopes, ["x"]);
+    assert_eq!(report["verdict"]["overall"], "fail");
 }

@@ -155,6 +155,11 @@ pub fn count(df: &DataFrame, rules: &[CompiledRule]) -> Result<Vec<RuleLine>> {
                 action: r.action.label().to_string(),
                 violations: c.column(&format!("v{i}"))?.u64()?.get(0).unwrap_or(0),
                 unknown: c.column(&format!("u{i}"))?.u64()?.get(0).unwrap_or(0),
+                nulls: if r.action == Action::Null {
+                    r.null_columns.clone()
+                } else {
+                    Vec::new()
+                },
             })
         })
         .collect()

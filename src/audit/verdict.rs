@@ -48,6 +48,124 @@ pub struct Verdict {
     pub checks: Vec<CheckVerdict>,
 }
 
+/// The level each finding raises the verdict to, from `[verdict]`.
+#[derive(Debug, Clone)]
+pub struct Levels {
+    /// Unresolved conflicting keys.
+    pub conflicting_keys: Status,
+    /// Missing keys, copies, resolved conflicts.
+    pub key_repairs: Status,
+    /// Gaps.
+    pub gaps: Status,
+    /// Singletons.
+    pub singletons: Status,
+    /// Leavers differ at entry.
+    pub attrition: Status,
+    /// Absorbed or unidentified model regressor.
+    pub absorbed_regressor: Status,
+    /// Nearly absorbed variables.
+    pub nearly_absorbed: Status,
+    /// Coverage breaks.
+    pub missing_breaks: Status,
+    /// Unit slips.
+    pub unit_slips: Status,
+    /// Rule violations.
+    pub rule_violations: Status,
+    /// Model rules of thumb.
+    pub model_warnings: Status,
+    /// p-value for the attrition finding.
+    pub attrition_p: f64,
+}
+
+impl Default for Levels {
+    fn default() -> Levels {
+        use Status::*;
+        Levels {
+            conflicting_keys: Fail,
+            key_repairs: Warn,
+            gaps: Warn,
+            singletons: Warn,
+            attrition: Warn,
+            absorbed_regressor: Fail,
+            nearly_absorbed: Warn,
+            missing_breaks: Warn,
+            unit_slips: Warn,
+            rule_violations: Warn,
+            model_warnings: Warn,
+            attrition_p: 0.05,
+        }
+    }
+}
+
+impl Levels {
+    /// Read `[verdict]` and `[thresholds] attrition_p`.
+    pub fn from_rules(rules: &crate::rules::RulesFile) -> crate::Result<Levels> {
+        let mut l = Levels::default();
+        let v = &rules.verdict;
+        for (value, slot, name) in [
+            (
+                &v.conflicting_keys,
+                &mut l.conflicting_keys,
+                "[verdict] conflicting_keys",
+            ),
+            (&v.key_repairs, &mut l.key_repairs, "[verdict] key_repairs"),
+            (&v.gaps, &mut l.gaps, "[verdict] gaps"),
+            (&v.singletons, &mut l.singletons, "[verdict] singletons"),
+            (&v.attrition, &mut l.attrition, "[verdict] attrition"),
+            (
+                &v.absorbed_regressor,
+                &mut l.absorbed_regressor,
+                "[verdict] absorbed_regressor",
+            ),
+            (
+                &v.nearly_absorbed,
+                &mut l.nearly_absorbed,
+                "[verdict] nearly_absorbed",
+            ),
+            (
+                &v.missing_breaks,
+                &mut l.missing_breaks,
+                "[verdict] missing_breaks",
+            ),
+            (&v.unit_slips, &mut l.unit_slips, "[verdict] unit_slips"),
+            (
+                &v.rule_violations,
+                &mut l.rule_violations,
+                "[verdict] rule_violations",
+            ),
+            (
+                &v.model_warnings,
+                &mut l.model_warnings,
+                "[verdict] model_warnings",
+            ),
+        ] {
+            if let Some(text) = value {
+                *slot = match text.as_str() {
+                    "pass" => Status::Pass,
+                    "warn" => Status::Warn,
+                    "fail" => Status::Fail,
+                    other => {
+                        return Err(crate::Error::Setting {
+                            setting: name,
+                            message: format!("\"{other}\" is not \"pass\", \"warn\" or \"fail\""),
+                        })
+                    }
+                };
+            }
+        }
+        if let Some(p) = rules.thresholds.attrition_p {
+            if !(0.0 < p && p < 1.0) {
+                return Err(crate::Error::Setting {
+                    setting: "[thresholds] attrition_p",
+                    message: "must be between 0 and 1".into(),
+                });
+            }
+            l.attrition_p = p;
+        }
+        Ok(l)
+    }
+}
+
 fn line(check: &str, status: Status, reason: String) -> CheckVerdict {
     CheckVerdict {
         check: check.to_string(),
@@ -57,7 +175,7 @@ fn line(check: &str, status: Status, reason: String) -> CheckVerdict {
 }
 
 /// Judge a finished report.
-pub fn judge(r: &Report) -> Verdict {
+pub fn judge(r: &Report, lv: &Levels) -> Verdict {
     use Status::*;
     let mut checks = Vec::new();
     let k = &r.keys;
@@ -74,7 +192,7 @@ pub fn judge(r: &Report) -> Verdict {
     } else if k.missing_key_rows + k.exact_duplicate_rows + k.conflicting_rows > 0 {
         line(
             "Keys",
-            Warn,
+            lv.key_repairs,
             format!(
                 "{} rows missing a key, {} exact copies, {} conflicting keys resolved by {}",
                 k.missing_key_rows, k.exact_duplicate_rows, k.conflicting_keys, k.policy
@@ -103,7 +221,7 @@ pub fn judge(r: &Report) -> Verdict {
     let differ: Vec<&str> = r
         .attrition
         .iter()
-        .filter(|a| a.p.is_some_and(|p| p < 0.05))
+        .filter(|a| a.p.is_some_and(|p| p < lv.attrition_p))
         .map(|a| a.variable.as_str())
         .collect();
     checks.push(if differ.is_empty() {
@@ -143,11 +261,11 @@ pub fn judge(r: &Report) -> Verdict {
     checks.push(if !absorbed_regressor.is_empty() {
         line(
             "Absorbed by fixed effects",
-            Fail,
+            lv.absorbed_regressor,
             format!("model regressors absorbed by fixed effects: {}", absorbed_regressor.join(", ")),
         )
     } else if !nearly.is_empty() {
-        line("Absorbed by fixed effects", Warn, format!("nearly absorbed: {}", nearly.join(", ")))
+        line("Absorbed by fixed effects", lv.nearly_absorbed, format!("nearly absorbed: {}", nearly.join(", ")))
     } else {
         line(
             "Absorbed by fixed effects",

@@ -691,4 +691,6 @@ pub struct RuleLine {
     pub violations: u64,
     /// Rows where it cannot be checked (an input is missing).
     pub unknown: u64,
+    /// With `null`: the columns set to null where it does not hold.
+    pub nulls: Vec<String>,
 }

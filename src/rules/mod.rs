@@ -70,6 +70,37 @@ pub struct RulesFile {
     /// The panel model the user plans to estimate.
     #[serde(default)]
     pub model: Option<ModelSection>,
+    /// The verdict level of each finding.
+    #[serde(default)]
+    pub verdict: VerdictSection,
+}
+
+/// `[verdict]`: what each finding makes the verdict: `"pass"`, `"warn"` or `"fail"`.
+#[derive(Debug, Default, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct VerdictSection {
+    /// Keys on rows with different values left unresolved (default fail).
+    pub conflicting_keys: Option<String>,
+    /// Rows missing a key, exact copies, or conflicts resolved by a policy (default warn).
+    pub key_repairs: Option<String>,
+    /// Entities with gaps (default warn).
+    pub gaps: Option<String>,
+    /// Singletons (default warn).
+    pub singletons: Option<String>,
+    /// Leavers differing from stayers at entry (default warn).
+    pub attrition: Option<String>,
+    /// A model regressor absorbed by fixed effects or not identified (default fail).
+    pub absorbed_regressor: Option<String>,
+    /// Nearly absorbed variables (default warn).
+    pub nearly_absorbed: Option<String>,
+    /// Coverage breaks between periods (default warn).
+    pub missing_breaks: Option<String>,
+    /// Unit slips (default warn).
+    pub unit_slips: Option<String>,
+    /// Accounting-rule violations (default warn).
+    pub rule_violations: Option<String>,
+    /// Model rules of thumb that apply (default warn).
+    pub model_warnings: Option<String>,
 }
 
 /// `[model]`: the regression the diagnostics are about.
@@ -150,6 +181,9 @@ pub struct ThresholdSection {
     /// Absolute change in log level counted as a jump (default ln 10).
     #[serde(default)]
     pub log_jump: Option<f64>,
+    /// p-value under which leavers are said to differ from stayers (default 0.05).
+    #[serde(default)]
+    pub attrition_p: Option<f64>,
 }
 
 /// `[panel]`: which columns identify the entity and the period.
