@@ -54,18 +54,7 @@ impl Check for Attrition {
         }
         // The first row of each entity at its first period (the first of any duplicates).
         let at_first = ctx
-            .df
-            .clone()
-            .lazy()
-            .join(
-                ctx.entities
-                    .clone()
-                    .lazy()
-                    .select([col(ctx.entity), col(FIRST), col(LAST)]),
-                [col(ctx.entity)],
-                [col(ctx.entity)],
-                JoinArgs::new(JoinType::Inner),
-            )
+            .with_span(ctx.df.clone().lazy())
             .filter(col(ctx.period).eq(col(FIRST)))
             .unique_stable_generic(Some(vec![col(ctx.entity)]), UniqueKeepStrategy::First)
             .with_column(leaver.alias("__leaver"));

@@ -22,15 +22,7 @@ impl Check for EntryExit {
         let Some((first, last)) = ctx.window()? else {
             return Ok(());
         };
-        let joined = ctx.keys.clone().lazy().join(
-            ctx.entities
-                .clone()
-                .lazy()
-                .select([col(ctx.entity), col(FIRST), col(LAST)]),
-            [col(ctx.entity)],
-            [col(ctx.entity)],
-            JoinArgs::new(JoinType::Inner),
-        );
+        let joined = ctx.with_span(ctx.keys.clone().lazy());
         let per_period = joined
             .clone()
             .group_by([col(ctx.period)])

@@ -190,6 +190,20 @@ impl<'a> Context<'a> {
         })
     }
 
+    /// `lf` with each row's entity's first and last period (`__first`, `__last`) joined on.
+    pub fn with_span(&self, lf: LazyFrame) -> LazyFrame {
+        use names::{FIRST, LAST};
+        lf.join(
+            self.entities
+                .clone()
+                .lazy()
+                .select([col(self.entity), col(FIRST), col(LAST)]),
+            [col(self.entity)],
+            [col(self.entity)],
+            JoinArgs::new(JoinType::Inner),
+        )
+    }
+
     /// The window's first and last period, if the panel has rows.
     pub fn window(&self) -> Result<Option<(i64, i64)>> {
         let s = self

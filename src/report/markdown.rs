@@ -2,7 +2,7 @@
 
 use std::io::Write;
 
-use super::layout::{sections, Block};
+use super::layout::{pair_rows, sections, Block};
 use super::{Render, Report};
 
 /// Renders the report as Markdown.
@@ -56,10 +56,7 @@ impl Render for Markdown {
             for block in &section.blocks {
                 match block {
                     Block::Pairs(rows) => {
-                        let rows: Vec<Vec<String>> = rows
-                            .iter()
-                            .map(|(a, b)| vec![a.clone(), b.clone()])
-                            .collect();
+                        let rows = pair_rows(rows);
                         table(wtr, &["figure".into(), "value".into()], &rows)?;
                     }
                     Block::Table(header, rows) => table(wtr, header, rows)?,

@@ -5,7 +5,7 @@ use std::io::Write;
 use comfy_table::presets::UTF8_HORIZONTAL_ONLY;
 use comfy_table::{Cell, CellAlignment, Color, ContentArrangement, Table, TableComponent};
 
-use super::layout::{sections, Block};
+use super::layout::{pair_rows, sections, Block};
 use super::{Render, Report};
 
 /// Renders the report as tables for a person at a terminal.
@@ -68,10 +68,7 @@ impl Render for Terminal {
             for block in &section.blocks {
                 match block {
                     Block::Pairs(rows) => {
-                        let rows: Vec<Vec<String>> = rows
-                            .iter()
-                            .map(|(a, b)| vec![a.clone(), b.clone()])
-                            .collect();
+                        let rows = pair_rows(rows);
                         writeln!(
                             wtr,
                             "{}",

@@ -137,3 +137,10 @@ fn keys(r: &Report) -> Section {
         blocks,
     }
 }
+
+/// Label-value pairs as two-column table rows.
+pub(crate) fn pair_rows(rows: &[(String, String)]) -> Vec<Vec<String>> {
+    rows.iter()
+        .map(|(a, b)| vec![a.clone(), b.clone()])
+        .collect()
+}
