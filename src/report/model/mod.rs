@@ -1,0 +1,272 @@
+//! The report's data: every figure the readiness report shows, as typed, documented structs.
+//! Field names are the JSON contract of `report.json`.
+
+use polars::prelude::*;
+use serde::Serialize;
+
+use super::distinct;
+use crate::config::InputFormat;
+use crate::rules::Origin;
+use crate::Result;
+
+mod outcome;
+mod structure;
+mod variables;
+
+pub use outcome::*;
+pub use structure::*;
+pub use variables::*;
+
+/// Every figure the readiness report shows. Field names are the JSON contract.
+#[derive(Debug, Clone, Serialize)]
+pub struct Report {
+    /// The panelready version that made the report.
+    pub tool_version: String,
+    /// What was read.
+    pub input: InputSummary,
+    /// The panel the checks ran on (after the key steps).
+    pub panel: PanelSummary,
+    /// Missing and duplicate keys in the input.
+    pub keys: KeysSummary,
+    /// Gaps, spells, singletons and the shape of each entity's coverage.
+    pub coverage: Coverage,
+    /// Entities present, entering, leaving and returning, per period.
+    pub entry_exit: Vec<EntryExit>,
+    /// Share of each entry cohort still observed k periods after entry.
+    pub survival: Vec<Survival>,
+    /// How many entities left before the window's end and how many stayed.
+    pub attrition_groups: AttritionGroups,
+    /// Leavers against stayers at their first observed period, one line per variable.
+    pub attrition: Vec<AttritionTest>,
+    /// How the variation figures are computed.
+    pub variation_convention: String,
+    /// Per numeric variable: variation and absorption by fixed effects.
+    pub variation: Vec<VariationLine>,
+    /// Per variable: missing values.
+    pub missing: Vec<MissingLine>,
+    /// Per variable with missing values and period: the share missing.
+    pub missing_by_period: Vec<MissingByPeriod>,
+    /// Sharp changes in a variable's missing share from one period to the next.
+    pub missing_breaks: Vec<MissingBreak>,
+    /// Per numeric variable: values beyond the cutoffs and robust z-scores.
+    pub outliers: Vec<OutlierLine>,
+    /// Suspected unit slips in level variables (at most 10,000 listed).
+    pub unit_slips: Vec<UnitSlip>,
+    /// How many unit slips were found in all.
+    pub unit_slips_total: u64,
+    /// Accounting rules and their violations.
+    pub rules: Vec<RuleLine>,
+    /// Each derived variable with its null counts by reason.
+    pub derived: Vec<DerivedSummary>,
+    /// Library ratios left out because the data lacks an input.
+    pub skipped: Vec<SkippedRule>,
+    /// From raw rows to final rows, one line per step.
+    pub sample_construction: Vec<SampleStep>,
+    /// Outlier treatment applied by `build`, one line per variable.
+    pub treatment: Vec<TreatLine>,
+    /// The balancing window chosen by `build`, if any.
+    pub balance: Option<BalanceLine>,
+    /// The cleaned panel written by `build` (absent for `audit`).
+    pub cleaned: Option<Cleaned>,
+    /// Diagnostics for the model declared in `[model]` (on the cleaned panel for `build`).
+    pub model: Option<ModelReport>,
+    /// Pass, warn or fail per check family, and overall.
+    pub verdict: Option<crate::audit::verdict::Verdict>,
+}
+
+/// The degrees-of-freedom convention of the variation figures.
+pub const VARIATION_CONVENTION: &str = "over each variable's non-missing rows: sd_total = \
+sqrt(TSS / (N - 1)); sd_within = sqrt(WSS / (N - 1)) with WSS the squared deviations from entity \
+means (descriptive, N - 1, not N - n); sd_between = SD of the entity means, each entity once, \
+n - 1; within_share = WSS / TSS";
+
+impl Report {
+    /// A report with no figures yet, for the pipeline and the checks to fill.
+    pub fn new(input: InputSummary) -> Report {
+        Report {
+            tool_version: env!("CARGO_PKG_VERSION").to_string(),
+            input,
+            panel: PanelSummary::default(),
+            keys: KeysSummary::default(),
+            coverage: Coverage::default(),
+            entry_exit: Vec::new(),
+            survival: Vec::new(),
+            attrition_groups: AttritionGroups::default(),
+            attrition: Vec::new(),
+            variation_convention: VARIATION_CONVENTION.to_string(),
+            variation: Vec::new(),
+            missing: Vec::new(),
+            missing_by_period: Vec::new(),
+            missing_breaks: Vec::new(),
+            outliers: Vec::new(),
+            unit_slips: Vec::new(),
+            unit_slips_total: 0,
+            rules: Vec::new(),
+            derived: Vec::new(),
+            skipped: Vec::new(),
+            sample_construction: Vec::new(),
+            treatment: Vec::new(),
+            balance: None,
+            cleaned: None,
+            model: None,
+            verdict: None,
+        }
+    }
+}
+
+/// The input file.
+#[derive(Debug, Clone, Serialize)]
+pub struct InputSummary {
+    /// The file name (the manifest has the full path).
+    pub path: String,
+    /// CSV or Parquet.
+    pub format: InputFormat,
+    /// Rows read.
+    pub rows: u64,
+    /// Columns read.
+    pub columns: u64,
+    /// The entity column.
+    pub entity: String,
+    /// The period column.
+    pub period: String,
+}
+
+/// Panel at a glance.
+#[derive(Debug, Clone, Default, Serialize)]
+pub struct PanelSummary {
+    /// Rows (entity-period observations).
+    pub rows: u64,
+    /// Distinct entities.
+    pub entities: u64,
+    /// Distinct periods observed.
+    pub periods: u64,
+    /// First period observed.
+    pub first_period: Option<i64>,
+    /// Last period observed.
+    pub last_period: Option<i64>,
+    /// Every entity observed in every period of first..last, once.
+    pub balanced: bool,
+    /// Ahrens–Pincus unbalancedness: harmonic over arithmetic mean of observations per
+    /// entity; 1 when balanced.
+    pub gamma: Option<f64>,
+    /// Ahrens–Pincus unbalancedness: N² / (n Σ T_i²); 1 when balanced.
+    pub nu: Option<f64>,
+}
+
+/// Missing and duplicate keys.
+#[derive(Debug, Clone, Default, Serialize)]
+pub struct KeysSummary {
+    /// Rows whose entity or period is missing.
+    pub missing_key_rows: u64,
+    /// Rows identical in every column to an earlier row (removed; the first is kept).
+    pub exact_duplicate_rows: u64,
+    /// Keys that had such copies.
+    pub exact_duplicate_keys: u64,
+    /// Keys that appear on rows with different values.
+    pub conflicting_keys: u64,
+    /// Rows carrying those keys.
+    pub conflicting_rows: u64,
+    /// The policy applied to conflicting keys.
+    pub policy: String,
+    /// The first few conflicting keys.
+    pub examples: Vec<KeyExample>,
+}
+
+/// One conflicting key.
+#[derive(Debug, Clone, Serialize)]
+pub struct KeyExample {
+    /// The entity.
+    pub entity: String,
+    /// The period.
+    pub period: i64,
+    /// How many rows carry it.
+    pub rows: u64,
+}
+
+/// One derived variable.
+#[derive(Debug, Clone, Serialize)]
+pub struct DerivedSummary {
+    /// Output column name.
+    pub name: String,
+    /// Human label.
+    pub label: String,
+    /// The expression as written.
+    pub expr: String,
+    /// Unit.
+    pub unit: String,
+    /// Source of the definition.
+    pub source: String,
+    /// User rules file or the built-in library.
+    pub origin: Origin,
+    /// Rows with a value.
+    pub non_null: u64,
+    /// Rows without one.
+    pub nulls: u64,
+    /// Nulls by reason; the reasons add up to `nulls`.
+    pub null_reasons: Vec<NullCount>,
+}
+
+/// Nulls of one reason.
+#[derive(Debug, Clone, Serialize)]
+pub struct NullCount {
+    /// The reason, as declared in the rule.
+    pub reason: String,
+    /// Rows.
+    pub rows: u64,
+}
+
+/// A library ratio left out.
+#[derive(Debug, Clone, Serialize)]
+pub struct SkippedRule {
+    /// The ratio.
+    pub name: String,
+    /// The input it lacks.
+    pub missing: String,
+}
+
+/// One line of the sample-construction table.
+#[derive(Debug, Clone, Serialize)]
+pub struct SampleStep {
+    /// The step.
+    pub step: String,
+    /// Rows before it.
+    pub rows_before: u64,
+    /// Rows it removed.
+    pub removed: u64,
+    /// Rows after it.
+    pub rows_after: u64,
+    /// Distinct entities after it.
+    pub entities_after: u64,
+}
+
+impl SampleStep {
+    /// The first line: rows as read.
+    pub fn start(df: &DataFrame, entity: &str) -> Result<SampleStep> {
+        let rows = df.height() as u64;
+        Ok(SampleStep {
+            step: "rows read".into(),
+            rows_before: rows,
+            removed: 0,
+            rows_after: rows,
+            entities_after: distinct(df, entity)?,
+        })
+    }
+
+    /// The line for a step that left `df`.
+    pub fn after(
+        steps: &[SampleStep],
+        step: &str,
+        df: &DataFrame,
+        entity: &str,
+    ) -> Result<SampleStep> {
+        let before = steps.last().map_or(0, |s| s.rows_after);
+        let after = df.height() as u64;
+        Ok(SampleStep {
+            step: step.into(),
+            rows_before: before,
+            removed: before - after,
+            rows_after: after,
+            entities_after: distinct(df, entity)?,
+        })
+    }
+}

@@ -1,0 +1,168 @@
+//! Report data of cleaning and model readiness.
+
+use serde::Serialize;
+
+use super::*;
+
+/// Model readiness: which panel estimator the data support.
+#[derive(Debug, Clone, Serialize)]
+pub struct ModelReport {
+    /// The outcome.
+    pub outcome: String,
+    /// The regressors (with the lagged outcome, if declared).
+    pub regressors: Vec<String>,
+    /// `entity` or `entity+period`.
+    pub effects: String,
+    /// Rows left after dropping rows missing any model variable.
+    pub sample_rows: u64,
+    /// Entities in that sample.
+    pub sample_entities: u64,
+    /// Rows missing each model variable (one row may miss several).
+    pub cost: Vec<VariableCost>,
+    /// Entities with a single row in the sample.
+    pub sample_singletons: u64,
+    /// The tests.
+    pub tests: Vec<ModelTest>,
+    /// SD of the entity effects (Swamy–Arora).
+    pub entity_sd: Option<f64>,
+    /// SD of the idiosyncratic error (within residuals).
+    pub idiosyncratic_sd: Option<f64>,
+    /// Entity-effect share of the error variance.
+    pub entity_share: Option<f64>,
+    /// How the variance components and the Hausman covariance are computed.
+    pub variance_convention: String,
+    /// Slopes by estimator.
+    pub slopes: Vec<Slope>,
+    /// Rules of thumb that apply, each with its source.
+    pub warnings: Vec<String>,
+}
+
+/// Rows missing one model variable.
+#[derive(Debug, Clone, Serialize)]
+pub struct VariableCost {
+    /// The variable.
+    pub variable: String,
+    /// Rows where it is missing.
+    pub rows: u64,
+}
+
+/// One diagnostic test.
+#[derive(Debug, Clone, Serialize)]
+pub struct ModelTest {
+    /// The test.
+    pub name: String,
+    /// Its statistic.
+    pub statistic: f64,
+    /// Degrees of freedom (none for normal statistics, two for F).
+    pub df: Vec<f64>,
+    /// p-value.
+    pub p: Option<f64>,
+    /// What it suggests, in one line.
+    pub reading: String,
+}
+
+/// One regressor's slope under each estimator.
+#[derive(Debug, Clone, Serialize)]
+pub struct Slope {
+    /// The regressor.
+    pub variable: String,
+    /// Pooled OLS.
+    pub pooled: f64,
+    /// Within (fixed effects).
+    pub within: f64,
+    /// Random effects (Swamy–Arora).
+    pub random: Option<f64>,
+    /// (within - pooled) / |pooled|, in percent.
+    pub change_within_vs_pooled: Option<f64>,
+    /// The sign differs or the size moves by more than half.
+    pub material: bool,
+}
+
+/// Figures of the cleaned panel.
+#[derive(Debug, Clone, Serialize)]
+pub struct Cleaned {
+    /// Panel at a glance.
+    pub panel: PanelSummary,
+    /// Coverage.
+    pub coverage: Coverage,
+    /// Variation.
+    pub variation: Vec<VariationLine>,
+    /// Missing values.
+    pub missing: Vec<MissingLine>,
+}
+
+/// Outlier treatment of one variable.
+#[derive(Debug, Clone, Serialize)]
+pub struct TreatLine {
+    /// The variable.
+    pub variable: String,
+    /// `winsorize` or `trim`.
+    pub method: String,
+    /// Pooled or per period.
+    pub by: crate::audit::CutoffGroups,
+    /// Lower percentile (0-100).
+    pub lower_percentile: f64,
+    /// Upper percentile (0-100).
+    pub upper_percentile: f64,
+    /// The cutoffs used (one, or one per period).
+    pub cutoffs: Vec<Cutoff>,
+    /// Values below the lower cutoff (replaced or dropped).
+    pub below: u64,
+    /// Values above the upper cutoff (replaced or dropped).
+    pub above: u64,
+    /// Distribution of the values before treatment (between the 0.5th and 99.5th
+    /// percentiles; the rest counted at the ends).
+    pub histogram: Histogram,
+}
+
+/// Equal-width bins.
+#[derive(Debug, Clone, Default, Serialize)]
+pub struct Histogram {
+    /// Left edge of the first bin.
+    pub start: f64,
+    /// Bin width.
+    pub width: f64,
+    /// Values per bin.
+    pub counts: Vec<u64>,
+}
+
+/// A pair of cutoffs.
+#[derive(Debug, Clone, Serialize)]
+pub struct Cutoff {
+    /// The period, or null when pooled.
+    pub period: Option<i64>,
+    /// Lower cutoff.
+    pub lower: Option<f64>,
+    /// Upper cutoff.
+    pub upper: Option<f64>,
+}
+
+/// The balancing window.
+#[derive(Debug, Clone, Serialize)]
+pub struct BalanceLine {
+    /// `window` (given) or `largest` (chosen).
+    pub mode: String,
+    /// First period of the window.
+    pub first: i64,
+    /// Last period.
+    pub last: i64,
+    /// Entities kept.
+    pub entities: u64,
+    /// Rows kept.
+    pub rows: u64,
+    /// The next-best windows (for `largest`).
+    pub runner_up: Vec<WindowScore>,
+}
+
+/// A candidate balancing window.
+#[derive(Debug, Clone, Serialize)]
+pub struct WindowScore {
+    /// First period.
+    pub first: i64,
+    /// Last period.
+    pub last: i64,
+    /// Entities observed in every period of it.
+    pub entities: u64,
+    /// Entities × periods.
+    pub rows: u64,
+}

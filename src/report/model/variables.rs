@@ -1,0 +1,139 @@
+//! Report data of the variable checks: variation, absorption, missing values, outliers,
+//! unit slips, accounting rules.
+
+use serde::Serialize;
+
+/// Which fixed effects absorb a variable completely.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+pub enum Absorbed {
+    /// Constant within every entity (time-invariant).
+    #[serde(rename = "entity")]
+    Entity,
+    /// Constant within every period (a macro series).
+    #[serde(rename = "period")]
+    Period,
+    /// A sum of an entity part and a period part (firm age = year - founding year).
+    #[serde(rename = "entity+period")]
+    EntityPeriod,
+}
+
+/// Variation of one numeric variable.
+#[derive(Debug, Clone, Serialize)]
+pub struct VariationLine {
+    /// The variable.
+    pub variable: String,
+    /// Rows with a value.
+    pub n: u64,
+    /// Mean.
+    pub mean: Option<f64>,
+    /// Total SD.
+    pub sd_total: Option<f64>,
+    /// SD of entity means.
+    pub sd_between: Option<f64>,
+    /// SD of deviations from entity means.
+    pub sd_within: Option<f64>,
+    /// Within sum of squares over total sum of squares.
+    pub within_share: Option<f64>,
+    /// Share of the total sum of squares left after removing entity and period effects
+    /// (computed when neither alone absorbs the variable).
+    pub two_way_share: Option<f64>,
+    /// Entities with two or more values, all equal.
+    pub zero_within_entities: u64,
+    /// The effects that absorb the variable, if any.
+    pub absorbed_by: Option<Absorbed>,
+    /// Within share below the `nearly_absorbed` threshold: fixed-effects estimates will be
+    /// imprecise.
+    pub nearly_absorbed: bool,
+}
+
+/// Missing values of one variable.
+#[derive(Debug, Clone, Serialize)]
+pub struct MissingLine {
+    /// The variable.
+    pub variable: String,
+    /// Rows missing it.
+    pub missing: u64,
+    /// Share of rows missing it.
+    pub share: f64,
+}
+
+/// Missing share of one variable in one period.
+#[derive(Debug, Clone, Serialize)]
+pub struct MissingByPeriod {
+    /// The variable.
+    pub variable: String,
+    /// The period.
+    pub period: i64,
+    /// Share of that period's rows missing it.
+    pub share: f64,
+}
+
+/// A sharp change in a variable's missing share between consecutive periods.
+#[derive(Debug, Clone, Serialize)]
+pub struct MissingBreak {
+    /// The variable.
+    pub variable: String,
+    /// The later of the two periods.
+    pub period: i64,
+    /// Missing share in the period before.
+    pub share_before: f64,
+    /// Missing share in this period.
+    pub share_after: f64,
+}
+
+/// Outlier figures of one numeric variable.
+#[derive(Debug, Clone, Serialize)]
+pub struct OutlierLine {
+    /// The variable.
+    pub variable: String,
+    /// Cutoffs pooled over all rows or per period.
+    pub by: crate::audit::CutoffGroups,
+    /// Lower cutoff (pooled only; per-period cutoffs vary).
+    pub lower: Option<f64>,
+    /// Upper cutoff (pooled only).
+    pub upper: Option<f64>,
+    /// Values below the lower cutoff.
+    pub below: u64,
+    /// Values above the upper cutoff.
+    pub above: u64,
+    /// Median absolute deviation times 1.4826.
+    pub mad: Option<f64>,
+    /// Values whose robust z (from the median and scaled MAD) is beyond the threshold.
+    pub robust_z_beyond: u64,
+    /// Within-entity jumps in the log level beyond the threshold (level variables only).
+    pub log_jumps: Option<u64>,
+    /// Some period has fewer values than 1 / p: its cutoffs are unreliable.
+    pub small_groups: bool,
+}
+
+/// A suspected unit slip.
+#[derive(Debug, Clone, Serialize)]
+pub struct UnitSlip {
+    /// The entity.
+    pub entity: String,
+    /// The period whose value jumped.
+    pub period: i64,
+    /// The variable.
+    pub variable: String,
+    /// The ratio to the previous period, rounded to 1000, 1/1000, 10^6 or 10^-6.
+    pub factor: f64,
+    /// The next period jumps back by the inverse factor.
+    pub reverses: bool,
+}
+
+/// One accounting rule.
+#[derive(Debug, Clone, Serialize)]
+pub struct RuleLine {
+    /// The rule's name.
+    pub name: String,
+    /// The SQL condition that must hold.
+    pub expr: String,
+    /// `flag`, `null` or `drop`.
+    pub action: String,
+    /// Rows where it does not hold.
+    pub violations: u64,
+    /// Rows where it cannot be checked (an input is missing).
+    pub unknown: u64,
+    /// With `null`: the columns set to null where it does not hold.
+    pub nulls: Vec<String>,
+}
