@@ -5,30 +5,40 @@ use std::path::Path;
 
 use crate::util::{run_reference, Workdir};
 
+/// A workdir holding the demo data and bundle under `d/`.
+fn demo() -> Workdir {
+    let w = Workdir::new();
+    w.ok(&["demo", "--out", "d"]);
+    w
+}
+
+/// Run a reference script and insist that it found no mismatch.
+fn check_reference(script: &str, args: &[&Path]) {
+    let out = run_reference(script, args);
+    assert!(out.contains(" 0 failed"), "{out}");
+}
+
 #[test]
 fn derived_ratios_and_lags_match_pandas_on_the_demo_panel() {
     // Definitions: METHODS.md section 7 (Frank & Goyal 2009; Barber & Lyon 1996; Koh & Reeb
     // 2015; Altman 1968; interest cover and growth by common practice), each named again
     // beside its line in ratios.py. Tolerance: relative 1e-9.
-    let w = Workdir::new();
-    w.ok(&["demo", "--out", "d"]);
-    let out = run_reference(
+    let w = demo();
+    check_reference(
         "ratios.py",
         &[
             &w.path("d/data/velmora_accounts.csv"),
             &w.path("d/bundle/panel.csv"),
         ],
     );
-    assert!(out.contains(" 0 failed"), "{out}");
 }
 
 #[test]
 fn structural_audit_matches_pandas_on_the_demo_panel() {
     // Every figure of the structural JSON contract, recomputed by structure.py (pandas, numpy
     // percentiles of type 7, scipy's Welch t-test; Ahrens & Pincus 1981 for gamma and nu).
-    let w = Workdir::new();
-    w.ok(&["demo", "--out", "d"]);
-    let out = run_reference(
+    let w = demo();
+    check_reference(
         "structure.py",
         &[
             Path::new("check"),
@@ -38,7 +48,6 @@ fn structural_audit_matches_pandas_on_the_demo_panel() {
             Path::new("fiscal_year"),
         ],
     );
-    assert!(out.contains(" 0 failed"), "{out}");
 }
 
 #[test]
@@ -60,7 +69,7 @@ fn structural_audit_matches_pandas_on_unbalanced_grunfeld() {
         "--out",
         "b",
     ]);
-    let out = run_reference(
+    check_reference(
         "structure.py",
         &[
             Path::new("check"),
@@ -70,7 +79,6 @@ fn structural_audit_matches_pandas_on_unbalanced_grunfeld() {
             Path::new("year"),
         ],
     );
-    assert!(out.contains(" 0 failed"), "{out}");
 }
 
 #[test]
@@ -79,9 +87,8 @@ fn variable_audit_matches_the_references_on_the_demo_panel() {
     // entity and period dummies for two-way absorption, numpy type-7 percentiles (Hyndman &
     // Fan 1996), scipy's MAD, a pandas recount of unit slips and rule violations, and the
     // generator's planted defects.
-    let w = Workdir::new();
-    w.ok(&["demo", "--out", "d"]);
-    let out = run_reference(
+    let w = demo();
+    check_reference(
         "variables.py",
         &[
             Path::new("check"),
@@ -92,7 +99,6 @@ fn variable_audit_matches_the_references_on_the_demo_panel() {
             &w.path("d/data/planted.json"),
         ],
     );
-    assert!(out.contains(" 0 failed"), "{out}");
     let report: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(w.path("d/bundle/report.json")).unwrap())
             .unwrap();
@@ -145,7 +151,7 @@ fn firm_age_is_absorbed_by_two_way_effects_on_grunfeld() {
         "--out",
         "b",
     ]);
-    let out = run_reference(
+    check_reference(
         "variables.py",
         &[
             Path::new("check"),
@@ -155,7 +161,6 @@ fn firm_age_is_absorbed_by_two_way_effects_on_grunfeld() {
             Path::new("year"),
         ],
     );
-    assert!(out.contains(" 0 failed"), "{out}");
     let report: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(w.path("b/report.json")).unwrap()).unwrap();
     let by = |name: &str| {
@@ -184,8 +189,7 @@ fn winsorizing_by_period_and_the_largest_window_match_numpy_and_brute_force() {
          balance = \"largest\"\n",
     );
     w.ok(&["build", "g.csv", "--rules", "rules.toml", "--out", "b"]);
-    let out = run_reference("cleaning.py", &[&csv, &w.path("b")]);
-    assert!(out.contains(" 0 failed"), "{out}");
+    check_reference("cleaning.py", &[&csv, &w.path("b")]);
 }
 
 const MODEL_RULES: &str =
@@ -247,7 +251,7 @@ fn model_readiness_reproduces_published_grunfeld_figures() {
     );
     assert!((stat("Hausman") - 2.33).abs() < 5e-3);
     // And every statistic against the live statsmodels / numpy reference.
-    let out = run_reference(
+    check_reference(
         "model.py",
         &[
             &w.path("g10.csv"),
@@ -259,7 +263,6 @@ fn model_readiness_reproduces_published_grunfeld_figures() {
             Path::new("capital"),
         ],
     );
-    assert!(out.contains(" 0 failed"), "{out}");
 }
 
 #[test]
@@ -278,7 +281,7 @@ fn model_readiness_matches_the_reference_on_unbalanced_grunfeld() {
         "Breusch–Pagan LM for entity effects (Baltagi–Li form)"
     )["p"]
         .is_number());
-    let out = run_reference(
+    check_reference(
         "model.py",
         &[
             &w.path("b/panel.csv"),
@@ -290,5 +293,4 @@ fn model_readiness_matches_the_reference_on_unbalanced_grunfeld() {
             Path::new("capital"),
         ],
     );
-    assert!(out.contains(" 0 failed"), "{out}");
 }
