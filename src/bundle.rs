@@ -49,6 +49,9 @@ pub struct InputRecord {
     pub entity: String,
     /// The period column used.
     pub period: String,
+    /// How a CSV input was read (delimiter, decimal comma, encoding).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub csv: Option<crate::config::CsvOptions>,
 }
 
 /// The rules file in the manifest.
@@ -114,28 +117,67 @@ pub fn write(cfg: &BuildConfig, prepared: &mut Prepared) -> Result<Manifest> {
     Ok(manifest)
 }
 
+/// A file being written, hashed and counted on the way (no second read).
+struct HashingFile {
+    path: PathBuf,
+    file: std::io::BufWriter<fs::File>,
+    hash: Sha256,
+    bytes: u64,
+}
+
+impl HashingFile {
+    fn create(dir: &Path, name: &str) -> Result<HashingFile> {
+        let path = dir.join(name);
+        let file = fs::File::create(&path).map_err(Error::io(&path))?;
+        Ok(HashingFile {
+            path,
+            file: std::io::BufWriter::with_capacity(1 << 20, file),
+            hash: Sha256::new(),
+            bytes: 0,
+        })
+    }
+
+    /// Flush and return the file's record.
+    fn finish(mut self, name: &str) -> Result<OutputRecord> {
+        self.file.flush().map_err(Error::io(&self.path))?;
+        Ok(OutputRecord {
+            path: name.to_string(),
+            sha256: format!("{:x}", self.hash.finalize()),
+            bytes: self.bytes,
+        })
+    }
+}
+
+impl Write for HashingFile {
+    fn write(&mut self, buf: &[u8]) -> std::io::Result<usize> {
+        let n = self.file.write(buf)?;
+        self.hash.update(&buf[..n]);
+        self.bytes += n as u64;
+        Ok(n)
+    }
+
+    fn flush(&mut self) -> std::io::Result<()> {
+        self.file.flush()
+    }
+}
+
 fn write_files(cfg: &BuildConfig, p: &mut Prepared, dir: &Path) -> Result<Manifest> {
     let mut outputs = Vec::new();
-    let mut record = |file: &str| -> Result<()> {
-        let path = dir.join(file);
-        let bytes = fs::read(&path).map_err(Error::io(&path))?;
-        outputs.push(OutputRecord {
-            path: file.to_string(),
-            sha256: sha256_hex(&bytes),
-            bytes: bytes.len() as u64,
-        });
-        Ok(())
+    let mut write = |file: &str, content: &mut dyn FnMut(&mut HashingFile) -> Result<()>| {
+        let mut f = HashingFile::create(dir, file)?;
+        content(&mut f)?;
+        outputs.push(f.finish(file)?);
+        Ok::<(), Error>(())
     };
 
-    let path = dir.join("panel.parquet");
-    let mut f = fs::File::create(&path).map_err(Error::io(&path))?;
-    ParquetWriter::new(&mut f).finish(&mut p.panel)?;
-    record("panel.parquet")?;
-
-    write_csv(&dir.join("panel.csv"), &mut p.panel)?;
-    record("panel.csv")?;
-    write_csv(&dir.join("rejected.csv"), &mut p.rejected)?;
-    record("rejected.csv")?;
+    write("panel.parquet", &mut |f| {
+        ParquetWriter::new(f).finish(&mut p.panel)?;
+        Ok(())
+    })?;
+    if cfg.panel_csv {
+        write("panel.csv", &mut |f| write_csv(f, &p.panel))?;
+    }
+    write("rejected.csv", &mut |f| write_csv(f, &p.rejected))?;
 
     for (file, format) in [
         ("report.md", ReportFormat::Markdown),
@@ -143,19 +185,17 @@ fn write_files(cfg: &BuildConfig, p: &mut Prepared, dir: &Path) -> Result<Manife
         ("report.html", ReportFormat::Html),
     ] {
         let path = dir.join(file);
-        let mut buf = Vec::new();
-        renderer(format)
-            .render(&p.report, &mut buf)
-            .map_err(Error::io(&path))?;
-        fs::write(&path, &buf).map_err(Error::io(&path))?;
-        record(file)?;
+        write(file, &mut |f| {
+            renderer(format)
+                .render(&p.report, f)
+                .map_err(Error::io(&path))
+        })?;
     }
+    write("dictionary.md", &mut |f| {
+        f.write_all(dictionary_md(&p.dictionary).as_bytes())
+            .map_err(Error::io(dir.join("dictionary.md")))
+    })?;
 
-    let path = dir.join("dictionary.md");
-    fs::write(&path, dictionary_md(&p.dictionary)).map_err(Error::io(&path))?;
-    record("dictionary.md")?;
-
-    let input_bytes = fs::read(&cfg.input.path).map_err(Error::io(&cfg.input.path))?;
     let input_abs = std::path::absolute(&cfg.input.path).map_err(Error::io(&cfg.input.path))?;
     let rules_path = match &cfg.input.rules.path {
         Some(r) => Some(
@@ -172,11 +212,12 @@ fn write_files(cfg: &BuildConfig, p: &mut Prepared, dir: &Path) -> Result<Manife
         created_unix_seconds: created_seconds(),
         input: InputRecord {
             path: input_abs.display().to_string(),
-            sha256: sha256_hex(&input_bytes),
+            sha256: sha256_file(&cfg.input.path)?,
             rows: p.report.input.rows,
             format: cfg.input.format,
             entity: cfg.input.entity.clone(),
             period: cfg.input.period.clone(),
+            csv: (cfg.input.format == InputFormat::Csv).then(|| cfg.input.csv.clone()),
         },
         rules: RulesRecord {
             path: rules_path,
@@ -220,13 +261,20 @@ fn dictionary_md(entries: &[crate::pipeline::DictionaryEntry]) -> String {
 }
 
 /// Write a CSV with text cells guarded against spreadsheet formula injection.
-fn write_csv(path: &Path, df: &mut DataFrame) -> Result<()> {
+fn write_csv(f: &mut HashingFile, df: &DataFrame) -> Result<()> {
     let mut guarded = guard_text(df)?;
-    let mut f = fs::File::create(path).map_err(Error::io(path))?;
-    CsvWriter::new(&mut f)
+    CsvWriter::new(f)
         .include_header(true)
         .finish(&mut guarded)?;
     Ok(())
+}
+
+/// SHA-256 of a file, read in blocks.
+fn sha256_file(path: &Path) -> Result<String> {
+    let mut file = fs::File::open(path).map_err(Error::io(path))?;
+    let mut hash = Sha256::new();
+    std::io::copy(&mut file, &mut hash).map_err(Error::io(path))?;
+    Ok(format!("{:x}", hash.finalize()))
 }
 
 /// Text cells that a spreadsheet would read as a formula (starting with `=`, `+`, `-`, `@`,
@@ -296,11 +344,11 @@ pub fn verify(dir: &Path) -> Result<Verification> {
         message: e.to_string(),
     })?;
     let input = PathBuf::from(&manifest.input.path);
-    let bytes = fs::read(&input).map_err(|e| Error::VerifyInput {
+    let hash = sha256_file(&input).map_err(|e| Error::VerifyInput {
         path: input.clone(),
         message: format!("cannot be read ({e}); was it moved?"),
     })?;
-    if sha256_hex(&bytes) != manifest.input.sha256 {
+    if hash != manifest.input.sha256 {
         return Err(Error::VerifyInput {
             path: input,
             message: "has changed since the bundle was built (its SHA-256 differs)".into(),
@@ -344,9 +392,12 @@ pub fn verify(dir: &Path) -> Result<Verification> {
             entity: manifest.input.entity.clone(),
             period: manifest.input.period.clone(),
             quiet: true,
+            timings: false,
+            csv: manifest.input.csv.clone().unwrap_or_default(),
         },
         out: scratch.join("bundle"),
         command_line: manifest.created_by_command.clone(),
+        panel_csv: manifest.outputs.iter().any(|o| o.path == "panel.csv"),
     };
     let rebuilt = crate::build(&cfg);
     let _ = fs::remove_dir_all(&scratch);

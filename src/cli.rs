@@ -13,8 +13,8 @@ use clap::{Args, Parser, Subcommand, ValueEnum};
     about,
     max_term_width = 100,
     after_help = "Exit codes: 0 ok; 1 `verify` found a file that differs, or `audit --fail-on` \
-                  met its level; 2 any error (usage, input, rules), printed as one line on stderr. The README describes the \
-                  rules file and the bundle."
+                  met its level; 2 any error (usage, input, rules), printed as one line on stderr; 3 an \
+                  internal error (a bug), also one line. The README describes the rules file and the bundle."
 )]
 pub(crate) struct Cli {
     #[command(subcommand)]
@@ -53,13 +53,32 @@ pub(crate) struct InputArgs {
     #[arg(long, value_name = "COLUMN")]
     pub(crate) period: Option<String>,
 
-    /// Read DATA as this format instead of guessing from its extension.
+    /// Read DATA as this format instead of guessing from its extension (`.csv`, `.csv.gz`,
+    /// `.csv.zst`, `.parquet`).
     #[arg(long, value_enum, value_name = "FORMAT")]
     pub(crate) input_format: Option<InputFormatArg>,
+
+    /// CSV field separator, one character (`;` or `\t`); overrides `[input] delimiter`.
+    #[arg(long, value_name = "CHAR")]
+    pub(crate) delimiter: Option<String>,
+
+    /// CSV numbers use a decimal comma (`1,5`); needs another delimiter, usually `;`.
+    #[arg(long)]
+    pub(crate) decimal_comma: bool,
+
+    /// CSV text encoding: utf-8 (default), windows-1252 or latin-1; overrides
+    /// `[input] encoding`.
+    #[arg(long, value_name = "NAME")]
+    pub(crate) encoding: Option<String>,
 
     /// Show no progress on stderr (it is shown only on a terminal anyway).
     #[arg(long)]
     pub(crate) quiet: bool,
+
+    /// Print the wall time of each stage (reading, key steps, each check, cleaning, writing)
+    /// on stderr when the run ends.
+    #[arg(long)]
+    pub(crate) timings: bool,
 }
 
 #[derive(Debug, Args)]
@@ -100,6 +119,13 @@ pub(crate) struct BuildArgs {
     /// so a failed run leaves no partial bundle. An existing bundle there is replaced.
     #[arg(long, value_name = "DIR")]
     pub(crate) out: PathBuf,
+
+    /// Write the cleaned panel as `panel.parquet` only, without the `panel.csv` copy.
+    ///
+    /// By default both are written, since many colleagues open CSV in a spreadsheet; the CSV
+    /// copy of a 10-million-row panel costs about a gigabyte and a few seconds.
+    #[arg(long)]
+    pub(crate) no_panel_csv: bool,
 }
 
 #[derive(Debug, Args)]

@@ -37,6 +37,102 @@ pub struct InputConfig {
     pub period: String,
     /// Hide progress.
     pub quiet: bool,
+    /// Print the wall time of each stage on stderr at the end.
+    pub timings: bool,
+    /// How to read a CSV input.
+    pub csv: CsvOptions,
+}
+
+/// How a CSV input is read: from `[input]` in the rules file, overridden on the command line.
+#[derive(Debug, Clone, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+pub struct CsvOptions {
+    /// The field separator (one ASCII character).
+    pub delimiter: char,
+    /// Numbers with a decimal comma.
+    pub decimal_comma: bool,
+    /// The text encoding.
+    pub encoding: Encoding,
+}
+
+impl Default for CsvOptions {
+    fn default() -> CsvOptions {
+        CsvOptions {
+            delimiter: ',',
+            decimal_comma: false,
+            encoding: Encoding::Utf8,
+        }
+    }
+}
+
+/// Text encodings of CSV inputs.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Encoding {
+    /// UTF-8 (the default; a byte-order mark is skipped).
+    Utf8,
+    /// Windows-1252, the superset of Latin-1 (ISO-8859-1) that such files really use.
+    Windows1252,
+}
+
+impl Encoding {
+    /// Parse a name: `utf-8`, `windows-1252`, `cp1252`, `latin-1`, `iso-8859-1`.
+    pub fn parse(name: &str, setting: &'static str) -> Result<Encoding> {
+        match name.to_ascii_lowercase().replace('_', "-").as_str() {
+            "utf-8" | "utf8" => Ok(Encoding::Utf8),
+            "windows-1252" | "cp1252" | "latin-1" | "latin1" | "iso-8859-1" => {
+                Ok(Encoding::Windows1252)
+            }
+            other => Err(Error::Setting {
+                setting,
+                message: format!(
+                    "\"{other}\" is not an encoding we read (utf-8, windows-1252, latin-1)"
+                ),
+            }),
+        }
+    }
+}
+
+impl CsvOptions {
+    /// `[input]` of the rules file, then the command line on top.
+    fn resolve(
+        rules: &Rules,
+        delimiter: Option<&str>,
+        decimal_comma: bool,
+        encoding: Option<&str>,
+    ) -> Result<CsvOptions> {
+        let section = &rules.file.input;
+        let mut o = CsvOptions::default();
+        let one_byte = |text: &str, setting: &'static str| -> Result<char> {
+            let text = if text == "\\t" { "\t" } else { text };
+            match text.as_bytes() {
+                [b] if b.is_ascii() && *b != b'"' && *b != b'\n' && *b != b'\r' => Ok(*b as char),
+                _ => Err(Error::Setting {
+                    setting,
+                    message: format!("`{text}` is not one ASCII character (e.g. \";\" or \"\\t\")"),
+                }),
+            }
+        };
+        if let Some(d) = &section.delimiter {
+            o.delimiter = one_byte(d, "[input] delimiter")?;
+        }
+        if let Some(d) = delimiter {
+            o.delimiter = one_byte(d, "--delimiter")?;
+        }
+        o.decimal_comma = decimal_comma || section.decimal_comma.unwrap_or(false);
+        if o.decimal_comma && o.delimiter == ',' {
+            return Err(Error::Setting {
+                setting: "[input] decimal_comma",
+                message: "needs a delimiter other than `,` (usually `;`)".into(),
+            });
+        }
+        if let Some(e) = &section.encoding {
+            o.encoding = Encoding::parse(e, "[input] encoding")?;
+        }
+        if let Some(e) = encoding {
+            o.encoding = Encoding::parse(e, "--encoding")?;
+        }
+        Ok(o)
+    }
 }
 
 /// Input file formats.
@@ -84,6 +180,8 @@ pub struct BuildConfig {
     pub out: PathBuf,
     /// The command line, recorded in the manifest.
     pub command_line: String,
+    /// Write `panel.csv` beside `panel.parquet`.
+    pub panel_csv: bool,
 }
 
 /// `demo` settings.
@@ -146,6 +244,7 @@ impl Command {
                     input,
                     out: b.out,
                     command_line,
+                    panel_csv: !b.no_panel_csv,
                 })
             }
             CliCommand::Demo(d) => {
@@ -194,6 +293,12 @@ impl InputConfig {
             .period
             .or_else(|| rules.file.panel.period.clone())
             .ok_or(Error::MissingKey { key: "period" })?;
+        let csv = CsvOptions::resolve(
+            &rules,
+            a.delimiter.as_deref(),
+            a.decimal_comma,
+            a.encoding.as_deref(),
+        )?;
         Ok(InputConfig {
             path: a.data,
             format,
@@ -201,6 +306,8 @@ impl InputConfig {
             entity,
             period,
             quiet: a.quiet,
+            timings: a.timings,
+            csv,
         })
     }
 
@@ -219,6 +326,7 @@ impl InputConfig {
             .period
             .clone()
             .ok_or(Error::MissingKey { key: "period" })?;
+        let csv = CsvOptions::resolve(&rules, None, false, None)?;
         Ok(InputConfig {
             path,
             format,
@@ -226,15 +334,27 @@ impl InputConfig {
             entity,
             period,
             quiet: false,
+            timings: false,
+            csv,
         })
     }
 }
 
 fn format_from_extension(path: &Path) -> Result<InputFormat> {
-    let ext = path
+    let name = path
+        .file_name()
+        .map(|n| n.to_string_lossy().to_ascii_lowercase())
+        .unwrap_or_default();
+    // Compressed CSV is read as CSV; the engine recognises gzip and zstd by their first bytes.
+    let name = name
+        .strip_suffix(".gz")
+        .or_else(|| name.strip_suffix(".zst"))
+        .or_else(|| name.strip_suffix(".zstd"))
+        .unwrap_or(&name);
+    let ext = Path::new(name)
         .extension()
         .and_then(|e| e.to_str())
-        .map(str::to_ascii_lowercase);
+        .map(str::to_string);
     match ext.as_deref() {
         Some("csv") => Ok(InputFormat::Csv),
         Some("parquet" | "pq") => Ok(InputFormat::Parquet),

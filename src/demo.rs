@@ -359,7 +359,7 @@ source = "common practice"
 [model]
 outcome = "roa"
 regressors = ["size", "leverage", "rd_assets", "working_capital_assets"]
-effects = "entity"
+effects = ["firm_id"]              # fixed effects by key column; add "fiscal_year" for period effects
 
 [clean]
 duplicates = "keep-first"

@@ -94,6 +94,29 @@ impl Plan {
         }
     }
 
+    /// For each derived variable, how many periods back and ahead it reads, through panel
+    /// functions directly or through the derived variables it uses: such a variable is null
+    /// by construction in the window's first (or last) periods.
+    pub fn reach(&self) -> BTreeMap<String, (i64, i64)> {
+        let mut reach: BTreeMap<String, (i64, i64)> = BTreeMap::new();
+        for var in &self.vars {
+            let mut r = (0i64, 0i64);
+            for c in std::iter::once(&var.value).chain(var.conditions.iter().map(|(_, c)| c)) {
+                for s in &c.shifts {
+                    let (b, a) = reach.get(&s.column).copied().unwrap_or((0, 0));
+                    r.0 = r.0.max(b + s.k.max(0));
+                    r.1 = r.1.max(a + (-s.k).max(0));
+                }
+                for d in &c.derived_deps {
+                    let (b, a) = reach.get(d).copied().unwrap_or((0, 0));
+                    r = (r.0.max(b), r.1.max(a));
+                }
+            }
+            reach.insert(var.name.clone(), r);
+        }
+        reach
+    }
+
     /// Add every derived column (and the hidden shifted columns they read) to `lf`.
     /// Returns the frame and the hidden column names, to drop after counting.
     ///
@@ -208,18 +231,19 @@ fn compile_rule(
     rule: &DeriveRule,
     scope: &Scope,
 ) -> Result<(Compiled, Vec<(String, Compiled)>)> {
-    let value = expr::compile(name, &rule.expr, scope)?;
+    let label = format!("derived variable `{name}`");
+    let value = expr::compile(&label, &rule.expr, scope)?;
     let conditions = rule
         .null_when
         .iter()
-        .map(|n| Ok((n.reason.clone(), expr::compile(name, &n.when, scope)?)))
+        .map(|n| Ok((n.reason.clone(), expr::compile(&label, &n.when, scope)?)))
         .collect::<Result<_>>()?;
     Ok((value, conditions))
 }
 
 fn check_name(name: &str, raw: &BTreeSet<String>) -> Result<()> {
     let bad = |message: &str| Error::RuleName {
-        rule: name.to_string(),
+        rule: format!("derived variable `{name}`"),
         message: message.to_string(),
     };
     let mut chars = name.chars();
@@ -438,7 +462,7 @@ mod tests {
         let err = Plan::new(&r, &raw).unwrap_err().to_string();
         assert_eq!(
             err,
-            "rules `a` -> `b` -> `a` depend on each other in a cycle"
+            "derived variables `a` -> `b` -> `a` depend on each other in a cycle"
         );
     }
 }

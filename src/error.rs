@@ -40,34 +40,35 @@ pub enum Error {
         "`{file}`: cannot tell the format from the extension; pass `--input-format csv|parquet`"
     )]
     UnknownFormat { file: PathBuf },
-    /// A derived variable's expression does not parse.
-    #[error("rule `{rule}`: syntax error in `{expr}`: {message}")]
+    /// An expression does not parse. `rule` names what holds it: "derived variable `x`" or
+    /// "accounting rule `r`".
+    #[error("{rule}: syntax error in `{expr}`: {message}")]
     RuleSyntax {
         rule: String,
         expr: String,
         message: String,
     },
     /// A derived variable refers to a column that neither the data nor the rules define.
-    #[error("rule `{rule}`: unknown column `{column}`")]
+    #[error("{rule}: unknown column `{column}`")]
     UnknownColumn { rule: String, column: String },
     /// A derived variable calls a function we do not offer.
-    #[error("rule `{rule}`: unknown function `{function}`")]
+    #[error("{rule}: unknown function `{function}`")]
     UnknownFunction { rule: String, function: String },
     /// A panel function was called the wrong way.
-    #[error("rule `{rule}`: `{call}`: {message}")]
+    #[error("{rule}: `{call}`: {message}")]
     PanelFunction {
         rule: String,
         call: String,
         message: String,
     },
     /// A derived variable's name is unusable.
-    #[error("rule `{rule}`: {message}")]
+    #[error("{rule}: {message}")]
     RuleName { rule: String, message: String },
     /// Derived variables that depend on each other in a circle.
-    #[error("rules `{}` depend on each other in a cycle", .rules.join("` -> `"))]
+    #[error("derived variables `{}` depend on each other in a cycle", .rules.join("` -> `"))]
     Cycle { rules: Vec<String> },
     /// The expression parsed, but polars could not translate it.
-    #[error("rule `{rule}`: {message}")]
+    #[error("{rule}: {message}")]
     RuleExpr { rule: String, message: String },
     /// A `[clean] duplicates` policy that we do not know.
     #[error("rules file: `[clean] duplicates = \"{value}\"` is not a policy (fail, keep-first, keep-last, drop-all, prefer-max:COL, prefer-min:COL)")]
@@ -76,7 +77,7 @@ pub enum Error {
     #[error("rules file: `[clean] drop_singletons = \"{value}\"` is not a choice (true, false, \"entity\", \"entity+period\")")]
     SingletonPolicy { value: String },
     /// An accounting rule with an action we do not know, or a panel function.
-    #[error("rule `{rule}`: {message}")]
+    #[error("{rule}: {message}")]
     AccountingRule { rule: String, message: String },
     /// A setting in the rules file is out of range.
     #[error("rules file: `{setting}` {message}")]
@@ -112,8 +113,24 @@ pub enum Error {
     /// `verify` cannot re-run: the recorded input or rules moved or changed.
     #[error("`{path}` recorded in the manifest {message}")]
     VerifyInput { path: PathBuf, message: String },
+    /// The input file does not exist (or is a folder).
+    #[error("`{file}`: no such file")]
+    NoInput { file: PathBuf },
+    /// The input holds a header but no data rows.
+    #[error("`{file}`: no data rows (only a header)")]
+    NoRows { file: PathBuf },
+    /// Two columns of the input share a name.
+    #[error("`{file}`: column `{column}` appears more than once in the header")]
+    DuplicateColumn { file: PathBuf, column: String },
+    /// The input cannot be parsed; `at` names the row (and column) where known.
+    #[error("`{file}`{at}: {message}")]
+    Unreadable {
+        file: PathBuf,
+        at: String,
+        message: String,
+    },
     /// polars reported an error while computing.
-    #[error("data engine: {0}")]
+    #[error("data engine: {}", one_line(&.0.to_string()))]
     Polars(#[from] polars::prelude::PolarsError),
     /// Writing JSON failed.
     #[error("json: {0}")]
@@ -131,6 +148,16 @@ impl Error {
         let path = path.into();
         move |source| Error::Io { path, source }
     }
+}
+
+/// The first line of an engine message, without the hints the engine appends.
+pub(crate) fn one_line(message: &str) -> String {
+    message
+        .lines()
+        .map(str::trim)
+        .find(|l| !l.is_empty())
+        .unwrap_or("unknown error")
+        .to_string()
 }
 
 /// The result type used throughout panelready.

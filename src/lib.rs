@@ -10,6 +10,7 @@ pub mod bundle;
 pub mod clean;
 mod cli;
 pub mod config;
+pub mod core;
 pub mod demo;
 pub mod derive;
 mod error;
@@ -69,7 +70,9 @@ fn stdout_write(bytes: &[u8]) -> Result<()> {
 }
 
 fn audit_cmd(cfg: &AuditConfig) -> Result<i32> {
-    let prepared = pipeline::prepare(&cfg.input, pipeline::Mode::Audit)?;
+    let progress = progress::Progress::new(cfg.input.quiet, cfg.input.timings);
+    let prepared = pipeline::prepare(&cfg.input, pipeline::Mode::Audit, &progress)?;
+    progress.stage("rendering the report");
     let mut buf = Vec::new();
     // Colour only for a person: terminal output to a terminal, and never with NO_COLOR set.
     use std::io::IsTerminal;
@@ -126,8 +129,8 @@ fn build_cmd(cfg: &BuildConfig) -> Result<i32> {
 
 /// Run the whole pipeline and write the bundle; the library entry point behind `build`.
 pub fn build(cfg: &BuildConfig) -> Result<bundle::Manifest> {
-    let mut prepared = pipeline::prepare(&cfg.input, pipeline::Mode::Build)?;
-    let progress = progress::Progress::new(cfg.input.quiet);
+    let progress = progress::Progress::new(cfg.input.quiet, cfg.input.timings);
+    let mut prepared = pipeline::prepare(&cfg.input, pipeline::Mode::Build, &progress)?;
     progress.stage("writing the bundle");
     bundle::write(cfg, &mut prepared)
 }
@@ -148,6 +151,7 @@ fn demo_cmd(cfg: &DemoConfig) -> Result<i32> {
         let build_cfg = BuildConfig {
             input: config::InputConfig::new(data, rules)?,
             out: out.clone(),
+            panel_csv: true,
             command_line: format!(
                 "panelready build {} --rules {} --out {}",
                 data_dir.join(demo::DATA_FILE).display(),

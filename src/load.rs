@@ -5,7 +5,7 @@ use std::path::Path;
 
 use polars::prelude::*;
 
-use crate::config::{InputConfig, InputFormat};
+use crate::config::{CsvOptions, Encoding, InputConfig, InputFormat};
 use crate::{Error, Result};
 
 /// The internal column holding each row's original position (1 = first data row); named
@@ -24,9 +24,28 @@ pub struct Loaded {
 
 /// Read the input named in `cfg` and check its keys.
 pub fn load(cfg: &InputConfig) -> Result<Loaded> {
-    let mut lf = scan(&cfg.path, cfg.format, Some(INFER_ROWS))?;
-    let schema = lf.collect_schema()?;
+    // A Windows-1252 (Latin-1) file is read through a UTF-8 copy in the temporary folder.
+    let utf8 = match (cfg.format, cfg.csv.encoding) {
+        (InputFormat::Csv, Encoding::Windows1252) => Some(Transcoded::new(&cfg.path)?),
+        _ => None,
+    };
+    let source = utf8
+        .as_ref()
+        .map_or(cfg.path.as_path(), |t| t.path.as_path());
+    let scan = |infer| scan(source, &cfg.path, cfg.format, infer, &cfg.csv);
+    let mut lf = scan(Some(INFER_ROWS))?;
+    let schema = lf
+        .collect_schema()
+        .map_err(|e| unreadable(&cfg.path, cfg.format, cfg.csv.delimiter, e))?;
     let columns: Vec<String> = schema.iter_names().map(|n| n.to_string()).collect();
+    if cfg.format == InputFormat::Csv {
+        if let Some(column) = repeated_header_name(source, cfg.csv.delimiter)? {
+            return Err(Error::DuplicateColumn {
+                file: cfg.path.clone(),
+                column,
+            });
+        }
+    }
     if let Some(c) = columns.iter().find(|c| c.starts_with("__")) {
         return Err(Error::MissingColumn {
             file: cfg.path.clone(),
@@ -58,24 +77,37 @@ pub fn load(cfg: &InputConfig) -> Result<Loaded> {
     // (a decimal in a column of whole numbers, say), read again guessing from every row.
     let df = match lf.with_row_index(ROW, Some(1)).collect() {
         Ok(df) => df,
-        Err(_) if cfg.format == InputFormat::Csv => scan(&cfg.path, cfg.format, None)?
+        Err(_) if cfg.format == InputFormat::Csv => scan(None)?
             .with_row_index(ROW, Some(1))
-            .collect()?,
-        Err(e) => return Err(e.into()),
+            .collect()
+            .map_err(|e| unreadable(&cfg.path, cfg.format, cfg.csv.delimiter, e))?,
+        Err(e) => return Err(unreadable(&cfg.path, cfg.format, cfg.csv.delimiter, e)),
     };
+    if df.height() == 0 {
+        return Err(Error::NoRows {
+            file: cfg.path.clone(),
+        });
+    }
     let period_dtype = df
         .schema()
         .get(&cfg.period)
         .cloned()
         .unwrap_or(DataType::Null);
     check_period(&df, cfg, &period_dtype)?;
-    let df = df
-        .lazy()
-        .with_columns([
-            col(cfg.entity.as_str()).cast(DataType::String),
-            period_as_int(&cfg.period, &period_dtype),
-        ])
-        .collect()?;
+    // A column with no value at all carries no type; the engine guesses text (CSV) or null.
+    // Read it as numbers, so that arithmetic on it gives missing values, not a type error.
+    let mut casts = vec![
+        col(cfg.entity.as_str()).cast(DataType::String),
+        period_as_int(&cfg.period, &period_dtype),
+    ];
+    for c in df.columns() {
+        let name = c.name().as_str();
+        let untyped = matches!(c.dtype(), DataType::String | DataType::Null);
+        if untyped && name != cfg.entity && name != cfg.period && c.null_count() == c.len() {
+            casts.push(col(name).cast(DataType::Float64));
+        }
+    }
+    let df = df.lazy().with_columns(casts).collect()?;
     Ok(Loaded {
         rows: df.height() as u64,
         df,
@@ -83,22 +115,175 @@ pub fn load(cfg: &InputConfig) -> Result<Loaded> {
     })
 }
 
+/// A UTF-8 copy of a Windows-1252 file, removed when dropped.
+struct Transcoded {
+    path: std::path::PathBuf,
+}
+
+impl Transcoded {
+    fn new(input: &Path) -> Result<Transcoded> {
+        let bytes = std::fs::read(input).map_err(Error::io(input))?;
+        if bytes.starts_with(&[0x1f, 0x8b]) || bytes.starts_with(&[0x28, 0xb5, 0x2f, 0xfd]) {
+            return Err(Error::Unreadable {
+                file: input.to_path_buf(),
+                at: String::new(),
+                message: "a compressed file in another encoding than UTF-8: decompress it first"
+                    .into(),
+            });
+        }
+        let (text, _, _) = encoding_rs::WINDOWS_1252.decode(&bytes);
+        static COUNTER: std::sync::atomic::AtomicU64 = std::sync::atomic::AtomicU64::new(0);
+        let n = COUNTER.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+        let path =
+            std::env::temp_dir().join(format!("panelready-{}-{n}-utf8.csv", std::process::id()));
+        std::fs::write(&path, text.as_bytes()).map_err(Error::io(&path))?;
+        Ok(Transcoded { path })
+    }
+}
+
+impl Drop for Transcoded {
+    fn drop(&mut self) {
+        let _ = std::fs::remove_file(&self.path);
+    }
+}
+
+/// The first name that appears twice in a CSV header (the engine would rename the copy).
+/// Compressed files are left to the engine.
+fn repeated_header_name(path: &Path, delimiter: char) -> Result<Option<String>> {
+    use std::io::BufRead;
+    let file = std::fs::File::open(path).map_err(Error::io(path))?;
+    let mut line = Vec::new();
+    std::io::BufReader::new(file)
+        .read_until(b'\n', &mut line)
+        .map_err(Error::io(path))?;
+    if line.starts_with(&[0x1f, 0x8b]) || line.starts_with(&[0x28, 0xb5, 0x2f, 0xfd]) {
+        return Ok(None);
+    }
+    let text = String::from_utf8_lossy(&line);
+    let mut names = Vec::new();
+    let (mut field, mut quoted) = (String::new(), false);
+    let sep = delimiter;
+    for ch in text
+        .trim_start_matches('\u{feff}')
+        .trim_end_matches(['\r', '\n'])
+        .chars()
+    {
+        match ch {
+            '"' => quoted = !quoted,
+            c if c == sep && !quoted => names.push(std::mem::take(&mut field)),
+            c => field.push(c),
+        }
+    }
+    names.push(field);
+    let mut seen = std::collections::HashSet::new();
+    Ok(names.into_iter().find(|n| !seen.insert(n.clone())))
+}
+
+/// A read error as one line naming the file and, for CSV, the row where it can be found: the
+/// first byte that is not UTF-8, or a quote that is never closed.
+fn unreadable(path: &Path, format: InputFormat, delimiter: char, e: PolarsError) -> Error {
+    let message = crate::error::one_line(&e.to_string());
+    if format != InputFormat::Csv {
+        return Error::Unreadable {
+            file: path.to_path_buf(),
+            at: String::new(),
+            message,
+        };
+    }
+    let Ok(bytes) = std::fs::read(path) else {
+        return Error::Unreadable {
+            file: path.to_path_buf(),
+            at: String::new(),
+            message,
+        };
+    };
+    if let Err(bad) = std::str::from_utf8(&bytes) {
+        let at = bad.valid_up_to();
+        let (row, column) = csv_position(&bytes[..at], delimiter as u8);
+        return Error::Unreadable {
+            file: path.to_path_buf(),
+            at: format!(", row {row}, column {column}"),
+            message: format!(
+                "byte 0x{:02x} is not UTF-8 text (save the file as UTF-8)",
+                bytes[at]
+            ),
+        };
+    }
+    if let Some(row) = unclosed_quote(&bytes) {
+        return Error::Unreadable {
+            file: path.to_path_buf(),
+            at: format!(", row {row}"),
+            message: "a quoted field is never closed (a missing `\"`)".into(),
+        };
+    }
+    Error::Unreadable {
+        file: path.to_path_buf(),
+        at: String::new(),
+        message,
+    }
+}
+
+/// The data row (1 = first row after the header) and the 1-based field at the end of
+/// `before`, counting quoted line breaks and commas as part of their field.
+fn csv_position(before: &[u8], delimiter: u8) -> (u64, u64) {
+    let (mut line, mut field, mut quoted) = (0u64, 1u64, false);
+    for b in before {
+        match b {
+            b'"' => quoted = !quoted,
+            b'\n' if !quoted => {
+                line += 1;
+                field = 1;
+            }
+            b if *b == delimiter && !quoted => field += 1,
+            _ => {}
+        }
+    }
+    (line, field)
+}
+
+/// The data row where a quote opens and is never closed, if any.
+fn unclosed_quote(bytes: &[u8]) -> Option<u64> {
+    let (mut line, mut quoted, mut opened) = (0u64, false, 0u64);
+    for b in bytes {
+        match b {
+            b'"' => {
+                quoted = !quoted;
+                if quoted {
+                    opened = line;
+                }
+            }
+            b'\n' => line += 1,
+            _ => {}
+        }
+    }
+    quoted.then_some(opened)
+}
+
 /// Rows used to guess CSV column types before falling back to the whole file.
 const INFER_ROWS: usize = 10_000;
 
-fn scan(path: &Path, format: InputFormat, infer: Option<usize>) -> Result<LazyFrame> {
-    let pl_path = PlRefPath::try_from_path(path)?;
-    if !path.exists() {
-        return Err(Error::Io {
-            path: path.to_path_buf(),
-            source: std::io::Error::from(std::io::ErrorKind::NotFound),
+/// A lazy scan of `source` (the input, or its UTF-8 copy); errors name `input`.
+fn scan(
+    source: &Path,
+    input: &Path,
+    format: InputFormat,
+    infer: Option<usize>,
+    csv: &CsvOptions,
+) -> Result<LazyFrame> {
+    if !input.is_file() {
+        return Err(Error::NoInput {
+            file: input.to_path_buf(),
         });
     }
+    let pl_path = PlRefPath::try_from_path(source)?;
     let lf = match format {
         InputFormat::Csv => LazyCsvReader::new(pl_path)
             .with_has_header(true)
+            .with_separator(csv.delimiter as u8)
+            .with_decimal_comma(csv.decimal_comma)
             .with_infer_schema_length(infer)
-            .finish()?,
+            .finish()
+            .map_err(|e| unreadable(input, format, csv.delimiter, e))?,
         InputFormat::Parquet => LazyFrame::scan_parquet(pl_path, ScanArgsParquet::default())?,
     };
     Ok(lf)

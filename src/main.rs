@@ -1,5 +1,27 @@
 //! The `panelready` binary: hands its arguments to the library and exits with its code.
+//!
+//! A panic anywhere is a bug: it becomes one line on stderr and exit code 3, never a backtrace.
+
+use std::panic;
+
+/// The exit code of a run that ended in a panic (an internal error).
+const PANIC_EXIT: i32 = 3;
 
 fn main() {
-    std::process::exit(panelready::run(std::env::args_os()));
+    panic::set_hook(Box::new(|info| {
+        let what = info
+            .payload()
+            .downcast_ref::<&str>()
+            .map(|s| s.to_string())
+            .or_else(|| info.payload().downcast_ref::<String>().cloned())
+            .unwrap_or_else(|| "unknown cause".to_string());
+        let place = info
+            .location()
+            .map(|l| format!(" at {}:{}", l.file(), l.line()))
+            .unwrap_or_default();
+        let line = format!("{what}{place}").replace('\n', " ");
+        eprintln!("panelready: internal error (a bug, please report it): {line}");
+    }));
+    let code = panic::catch_unwind(|| panelready::run(std::env::args_os())).unwrap_or(PANIC_EXIT);
+    std::process::exit(code);
 }

@@ -15,12 +15,14 @@ use crate::report::{Cleaned, InputSummary, Report, SampleStep};
 use crate::rules::LEVEL_COLUMNS;
 use crate::{Error, Result};
 
-/// Whether conflicting keys are resolved (build) or only reported (audit).
+/// `audit` is a dry run of `build`: the same steps on the same rules, nothing written. The one
+/// difference: where the duplicate policy is `fail`, `audit` keeps the conflicting rows and
+/// reports them instead of stopping.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Mode {
-    /// Report every finding, remove nothing but missing keys and exact copies.
+    /// A dry run that reports conflicting keys instead of stopping on them.
     Audit,
-    /// Apply the rules file's cleaning policy.
+    /// Apply the rules file's cleaning policy, stopping where it says `fail`.
     Build,
 }
 
@@ -54,17 +56,19 @@ pub struct DictionaryEntry {
 }
 
 /// Run the pipeline on one input.
-pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
-    let progress = Progress::new(input.quiet);
+pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<Prepared> {
     progress.stage("reading the input");
     let rules = &input.rules;
-    let policy = match mode {
-        Mode::Audit => DuplicatePolicy::Report,
-        Mode::Build => resolve_policy(
-            DuplicatePolicy::parse(rules.file.clean.duplicates.as_deref())?,
-            input,
-        ),
+    // Every setting of `[clean]` is checked before any data is read, by both commands.
+    let policy = match (
+        mode,
+        DuplicatePolicy::parse(rules.file.clean.duplicates.as_deref())?,
+    ) {
+        (Mode::Audit, DuplicatePolicy::Fail) => DuplicatePolicy::Report,
+        (_, p) => resolve_policy(p, input),
     };
+    let singletons = SingletonPolicy::parse(rules.file.clean.drop_singletons.as_ref())?;
+    let balance = Balance::parse(rules.file.clean.balance.as_ref())?;
     let loaded = load::load(input)?;
     if let DuplicatePolicy::PreferMax(c) | DuplicatePolicy::PreferMin(c) = &policy {
         if !loaded.columns.contains(c) {
@@ -87,17 +91,13 @@ pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
     };
     let resolved = clean::resolve_keys(loaded.df, &keys, &policy)?;
 
-    let singletons = match mode {
-        Mode::Audit => SingletonPolicy::Keep,
-        Mode::Build => SingletonPolicy::parse(rules.file.clean.drop_singletons.as_ref())?,
-    };
     let mut steps = resolved.steps;
     let mut ledger_parts = resolved.rejected;
 
     // Accounting rules act before derivation, so no derived ratio uses a value they reject.
     let rule_lines = accounting::count(&resolved.kept, &accounting_rules)?;
     let mut kept = resolved.kept;
-    if mode == Mode::Build {
+    {
         kept = accounting::apply_nulls(kept, &accounting_rules)?;
         if let Some(reason) = accounting::drop_reason(&accounting_rules) {
             let (rest, removed) = clean::drop_where(kept, reason, "accounting rules", &keys)?;
@@ -197,16 +197,7 @@ pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
     let model = match &rules.file.model {
         None => None,
         Some(m) => {
-            let effects = match m.effects.as_deref() {
-                None | Some("entity") => Effects::Entity,
-                Some("entity+period") => Effects::EntityPeriod,
-                Some(other) => {
-                    return Err(Error::Setting {
-                        setting: "[model] effects",
-                        message: format!("\"{other}\" is not \"entity\" or \"entity+period\""),
-                    })
-                }
-            };
+            let effects = model_effects(m.effects.as_ref(), input)?;
             let names: Vec<String> = std::iter::once(&m.outcome)
                 .chain(m.regressors.iter())
                 .map(resolve)
@@ -234,10 +225,35 @@ pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
         exclude: vec![ROW.to_string()],
         settings: settings(rules)?,
         model,
+        reach: plan.reach(),
     };
+    // The treatment settings are checked before any check runs.
+    let columns: Vec<String> = panel
+        .get_column_names()
+        .iter()
+        .map(|c| c.to_string())
+        .collect();
+    let treat = &rules.file.clean;
+    let mut treatments = Vec::new();
+    for (method, spec) in [
+        (Method::Winsorize, &treat.winsorize),
+        (Method::Trim, &treat.trim),
+    ] {
+        if let Some(spec) = spec {
+            treatments.push(Treatment::from_spec(
+                method,
+                spec,
+                |v| resolve(&v.to_string()),
+                &columns,
+            )?);
+        }
+    }
     // The report describes the panel as read (after the key steps and derivation).
     let ctx = Context::new(&panel, &input.entity, &input.period, options.clone())?;
     for check in audit::registry() {
+        if check.cleaned_only() {
+            continue;
+        }
         progress.stage(&format!("check: {}", check.name()));
         check.run(&ctx, &mut report)?;
     }
@@ -245,19 +261,8 @@ pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
 
     // Then `build` cleans, in a fixed order: outliers, balancing, singletons.
     let mut panel = panel;
-    if mode == Mode::Build {
-        let columns: Vec<String> = panel
-            .get_column_names()
-            .iter()
-            .map(|c| c.to_string())
-            .collect();
-        let treat = &rules.file.clean;
-        for (method, spec) in [
-            (Method::Winsorize, &treat.winsorize),
-            (Method::Trim, &treat.trim),
-        ] {
-            let Some(spec) = spec else { continue };
-            let t = Treatment::from_spec(method, spec, |v| resolve(&v.to_string()), &columns)?;
+    {
+        for t in treatments {
             let (rest, removed, lines) = t.apply(panel, &keys)?;
             panel = rest;
             report.treatment.extend(lines);
@@ -266,7 +271,6 @@ pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
                 steps.push(SampleStep::after(&steps, "trim", &panel, &input.entity)?);
             }
         }
-        let balance = Balance::parse(rules.file.clean.balance.as_ref())?;
         let (rest, removed, line) = balance::apply(panel, balance, &keys)?;
         panel = rest;
         report.balance = line;
@@ -285,7 +289,7 @@ pub fn prepare(input: &InputConfig, mode: Mode) -> Result<Prepared> {
                 &input.entity,
             )?);
         }
-        let (cleaned, model) = cleaned_figures(&panel, input, options)?;
+        let (cleaned, model) = cleaned_figures(&panel, input, options, progress)?;
         report.cleaned = Some(cleaned);
         if model.is_some() {
             report.model = model;
@@ -430,8 +434,10 @@ fn cleaned_figures(
     panel: &DataFrame,
     input: &InputConfig,
     options: Options,
+    progress: &Progress,
 ) -> Result<(Cleaned, Option<crate::report::ModelReport>)> {
     let ctx = Context::new(panel, &input.entity, &input.period, options)?;
+    progress.stage("checks on the cleaned panel");
     let mut r = Report::new(InputSummary {
         path: String::new(),
         format: input.format,
@@ -525,6 +531,37 @@ fn settings(rules: &crate::rules::Rules) -> Result<Settings> {
         };
     }
     Ok(s)
+}
+
+/// `[model] effects`: the key columns (`["firm", "year"]`), or the older words.
+fn model_effects(spec: Option<&crate::rules::EffectsSpec>, input: &InputConfig) -> Result<Effects> {
+    use crate::rules::EffectsSpec;
+    let (e, p) = (input.entity.as_str(), input.period.as_str());
+    let bad = |message: String| Error::Setting {
+        setting: "[model] effects",
+        message,
+    };
+    match spec {
+        None => Ok(Effects::Entity),
+        Some(EffectsSpec::Word(w)) => match w.as_str() {
+            "entity" => Ok(Effects::Entity),
+            "entity+period" => Ok(Effects::EntityPeriod),
+            other => Err(bad(format!(
+                "\"{other}\" is not a list of key columns such as [\"{e}\"] or [\"{e}\", \"{p}\"]"
+            ))),
+        },
+        Some(EffectsSpec::Keys(keys)) => {
+            let names: Vec<&str> = keys.iter().map(String::as_str).collect();
+            match names.as_slice() {
+                [x] if *x == e => Ok(Effects::Entity),
+                [x, y] | [y, x] if *x == e && *y == p => Ok(Effects::EntityPeriod),
+                _ => Err(bad(format!(
+                    "{keys:?} must be [\"{e}\"] (entity effects) or [\"{e}\", \"{p}\"] (entity and period \
+                     effects), named as in [panel]"
+                ))),
+            }
+        }
+    }
 }
 
 /// `prefer-max:COL` may name a canonical column; use the raw column it maps to.

@@ -94,29 +94,29 @@ fn keys_from_the_command_line_and_parquet_input() {
 }
 
 #[test]
-fn rule_errors_exit_2_with_one_line_naming_the_rule() {
+fn rule_errors_exit_2_with_one_line_naming_the_derived_variable() {
     let w = Workdir::new();
     w.write("raw.csv", DATA);
     let cases = [
         (
             "[derive.bad]\nexpr = \"ta_thousands / nosuch\"\n",
-            "rule `bad`: unknown column `nosuch`",
+            "derived variable `bad`: unknown column `nosuch`",
         ),
         (
             "[derive.bad]\nexpr = \"ta_thousands / (2\"\n",
-            "rule `bad`: syntax error",
+            "derived variable `bad`: syntax error",
         ),
         (
             "[derive.bad]\nexpr = \"wobble(ta_thousands)\"\n",
-            "rule `bad`: unknown function `wobble`",
+            "derived variable `bad`: unknown function `wobble`",
         ),
         (
             "[derive.a]\nexpr = \"b + 1\"\n[derive.b]\nexpr = \"a + 1\"\n",
-            "rules `a` -> `b` -> `a`",
+            "derived variables `a` -> `b` -> `a`",
         ),
         (
             "[derive.bad]\nexpr = \"lag(ta_thousands, -1)\"\n",
-            "rule `bad`: `lag(ta_thousands, -1)`",
+            "derived variable `bad`: `lag(ta_thousands, -1)`",
         ),
     ];
     for (rules, want) in cases {
@@ -345,7 +345,7 @@ fn accounting_rules_flag_null_and_drop() {
     w.write("bad.toml", "[panel]\nentity = \"f\"\nperiod = \"y\"\n[[rule]]\nname = \"r1\"\nexpr = \"x > 0\"\naction = \"delete\"\n");
     w.fails(
         &["audit", "p.csv", "--rules", "bad.toml"],
-        "rule `r1`: action `delete`",
+        "accounting rule `r1`: action `delete`",
     );
 }
 
@@ -391,8 +391,9 @@ fn verdict_and_fail_on_guard_a_pipeline() {
 }
 
 #[test]
-fn a_regressor_absorbed_by_entity_effects_is_named_and_left_out() {
-    // `founded` never changes within a firm: under entity effects it is not identified.
+fn a_regressor_absorbed_by_entity_effects_is_named_and_kept_where_identified() {
+    // `founded` never changes within a firm: the within estimator does not identify it, pooled
+    // OLS and random effects do (METHODS.md s.3).
     let w = Workdir::new();
     let mut csv = String::from("f,y,x,founded,out\n");
     for (i, f) in ["A", "B", "C", "D"].iter().enumerate() {
@@ -414,15 +415,175 @@ fn a_regressor_absorbed_by_entity_effects_is_named_and_left_out() {
         warnings.iter().any(|w| w
             .as_str()
             .unwrap()
-            .contains("`founded` is a linear combination")),
+            .contains("`founded` is not identified by the within estimator")),
         "{warnings:?}"
     );
-    let slopes: Vec<&str> = report["model"]["slopes"]
-        .as_array()
-        .unwrap()
+    let slopes = report["model"]["slopes"].as_array().unwrap();
+    let names: Vec<&str> = slopes
         .iter()
         .map(|s| s["variable"].as_str().unwrap())
         .collect();
-    assert_eq!(slopes, ["x"]);
+    assert_eq!(names, ["x", "founded"]);
+    assert!(slopes[1]["within"].is_null(), "{slopes:?}");
+    assert!(slopes[1]["pooled"].is_number(), "{slopes:?}");
+    assert_eq!(
+        report["model"]["not_identified_within"],
+        serde_json::json!(["founded"])
+    );
     assert_eq!(report["verdict"]["overall"], "fail");
+}
+
+/// A panel that triggers every finding the verdict knows, hand-planted: a gap (F01), a
+/// singleton (F02), an exact copy (F03 2002), a conflicting key (F04 2002), a missing key,
+/// leavers far above stayers in `z`, a time-invariant regressor (`founded`), a nearly
+/// absorbed `w`, a coverage break in `m` (missing before 2004), a ×1000 slip in F05's assets
+/// in 2003, a broken accounting rule, and 30 entities (few clusters).
+fn every_finding() -> String {
+    let mut out = String::from("firm,year,assets,x,y,z,w,m,founded\n");
+    for i in 1..=30u32 {
+        let leaves = i > 20;
+        let years: Vec<u32> = match i {
+            1 => vec![2001, 2002, 2004, 2005, 2006],
+            2 => vec![2001],
+            _ if leaves => (2001..=2004).collect(),
+            _ => (2001..=2006).collect(),
+        };
+        for t in years {
+            let noise = ((i * 37 + t * 11) % 17) as f64;
+            let mut assets = 100.0 + i as f64 + noise;
+            if i == 5 && t == 2003 {
+                assets *= 1000.0;
+            }
+            if i == 6 && t == 2002 {
+                assets = -1.0;
+            }
+            let z = if leaves { 100.0 + noise } else { noise };
+            let w = 1000.0 * i as f64 + noise * 1e-3;
+            let m = if t >= 2004 {
+                format!("{noise}")
+            } else {
+                String::new()
+            };
+            let x = noise * (t as f64 - 2000.0);
+            let y = 2.0 * x + noise;
+            let line = format!("F{i:02},{t},{assets},{x},{y},{z},{w},{m},{}\n", 1950 + i);
+            out.push_str(&line);
+            if (i, t) == (3, 2002) {
+                out.push_str(&line);
+            }
+            if (i, t) == (4, 2002) {
+                out.push_str(&format!(
+                    "F04,2002,{assets},{x},{},{z},{w},{m},1954\n",
+                    y + 1.0
+                ));
+            }
+        }
+    }
+    out.push_str(",2003,1,1,1,1,1,1,1\n");
+    out
+}
+
+#[test]
+fn every_verdict_level_sets_its_finding() {
+    let w = Workdir::new();
+    w.write("raw.csv", &every_finding());
+    let keys = [
+        ("conflicting_keys", "Keys", ""),
+        ("key_repairs", "Keys", "duplicates = \"keep-first\"\n"),
+        ("gaps", "Coverage", ""),
+        ("singletons", "Coverage", ""),
+        ("attrition", "Entry and exit", ""),
+        ("absorbed_regressor", "Absorbed by fixed effects", ""),
+        ("nearly_absorbed", "Absorbed by fixed effects", ""),
+        ("missing_breaks", "Missing values", ""),
+        ("unit_slips", "Outliers and unit slips", ""),
+        ("rule_violations", "Accounting rules", ""),
+        ("model_warnings", "Model readiness", ""),
+    ];
+    for (key, check, clean) in keys {
+        let mut verdict = String::from("[verdict]\n");
+        for (other, _, _) in keys {
+            let level = if other == key { "fail" } else { "pass" };
+            verdict.push_str(&format!("{other} = \"{level}\"\n"));
+        }
+        w.write(
+            "rules.toml",
+            &format!(
+                "[panel]\nentity = \"firm\"\nperiod = \"year\"\n[clean]\n{clean}\
+                 [audit]\ncompare = [\"z\"]\nlevels = [\"assets\"]\n\
+                 [[rule]]\nname = \"assets_positive\"\nexpr = \"assets > 0\"\n\
+                 [model]\noutcome = \"y\"\nregressors = [\"x\", \"founded\"]\n{verdict}"
+            ),
+        );
+        let r = w.run(&[
+            "audit",
+            "raw.csv",
+            "--rules",
+            "rules.toml",
+            "--format",
+            "json",
+            "--fail-on",
+            "fail",
+        ]);
+        assert_eq!(r.code, 1, "{key}: {}", r.stderr);
+        let report: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+        let checks = report["verdict"]["checks"].as_array().unwrap();
+        let status = |name: &str| {
+            checks
+                .iter()
+                .find(|c| c["check"] == name)
+                .map(|c| c["status"].as_str().unwrap().to_string())
+                .unwrap_or_default()
+        };
+        assert_eq!(status(check), "fail", "{key}: {checks:?}");
+        // The same finding at "pass" leaves nothing failing but what the key drives.
+        let also = if key == "absorbed_regressor" {
+            "Model readiness"
+        } else {
+            check
+        };
+        for c in checks {
+            let name = c["check"].as_str().unwrap();
+            if name != check && name != also {
+                assert_ne!(c["status"], "fail", "{key} failed {name}: {checks:?}");
+            }
+        }
+    }
+}
+
+#[test]
+fn audit_rejects_exactly_the_rules_files_build_rejects() {
+    let w = Workdir::new();
+    w.write(
+        "raw.csv",
+        "firm,year,a\nA,2001,1\nA,2002,2\nB,2001,3\nB,2002,4\n",
+    );
+    let clean_values = [
+        "duplicates = \"keep-first\"",
+        "duplicates = \"nonsense\"",
+        "drop_singletons = true",
+        "drop_singletons = \"sometimes\"",
+        "balance = \"largest\"",
+        "balance = \"wobbly\"",
+        "balance = { window = [2001, 2002] }",
+        "winsorize = { variables = [\"a\"], lower = 0.01, upper = 0.99 }",
+        "winsorize = { variables = [\"nosuch\"], lower = 0.01, upper = 0.99 }",
+        "trim = { variables = [\"a\"], lower = 0.2, upper = 0.1 }",
+    ];
+    for value in clean_values {
+        w.write(
+            "rules.toml",
+            &format!("[panel]\nentity = \"firm\"\nperiod = \"year\"\n[clean]\n{value}\n"),
+        );
+        let audit = w.run(&["audit", "raw.csv", "--rules", "rules.toml"]);
+        let build = w.run(&["build", "raw.csv", "--rules", "rules.toml", "--out", "b"]);
+        assert_eq!(
+            audit.code == 2,
+            build.code == 2,
+            "{value}: {} / {}",
+            audit.stderr,
+            build.stderr
+        );
+        assert_eq!(audit.stderr, build.stderr, "{value}");
+    }
 }

@@ -66,6 +66,7 @@ proptest! {
             input: InputConfig::new(data, Rules::from_text(None, rules).unwrap()).unwrap(),
             out: dir.path().join("out"),
             command_line: "proptest".into(),
+            panel_csv: true,
         };
         let manifest = panelready::build(&cfg).unwrap();
         prop_assert_eq!(manifest.rows.input, rows.len() as u64);

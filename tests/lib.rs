@@ -5,5 +5,7 @@ mod util;
 mod cli;
 mod conservation;
 mod demo;
+mod hostile;
 mod html;
+mod properties;
 mod reference;

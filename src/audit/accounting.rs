@@ -60,8 +60,9 @@ pub fn compile(rules: &Rules, raw: &[String]) -> Result<(Vec<CompiledRule>, Vec<
     let mut out = Vec::new();
     let mut skipped = Vec::new();
     for (rule, origin) in &rules.accounting {
+        let label = format!("accounting rule `{}`", rule.name);
         let bad = |message: String| Error::AccountingRule {
-            rule: rule.name.clone(),
+            rule: label.clone(),
             message,
         };
         let action = match rule.action.as_deref() {
@@ -70,7 +71,7 @@ pub fn compile(rules: &Rules, raw: &[String]) -> Result<(Vec<CompiledRule>, Vec<
             Some("drop") => Action::Drop,
             Some(other) => return Err(bad(format!("action `{other}` is not flag, null or drop"))),
         };
-        let compiled = match expr::compile(&rule.name, &rule.expr, &scope) {
+        let compiled = match expr::compile(&label, &rule.expr, &scope) {
             Ok(c) => c,
             Err(Error::UnknownColumn { column, .. })
                 if *origin == Origin::Standard && CANONICAL_COLUMNS.contains(&column.as_str()) =>
@@ -100,7 +101,7 @@ pub fn compile(rules: &Rules, raw: &[String]) -> Result<(Vec<CompiledRule>, Vec<
                         Ok(resolved)
                     } else {
                         Err(Error::UnknownColumn {
-                            rule: rule.name.clone(),
+                            rule: label.clone(),
                             column: c.clone(),
                         })
                     }

@@ -138,6 +138,9 @@ pub fn welch(m1: f64, v1: f64, n1: f64, m2: f64, v2: f64, n2: f64) -> Option<(f6
     }
     let t = (m1 - m2) / se2.sqrt();
     let df = se2 * se2 / (a * a / (n1 - 1.0) + b * b / (n2 - 1.0));
+    if !(t.is_finite() && df.is_finite() && df > 0.0) {
+        return None;
+    }
     let dist = StudentsT::new(0.0, 1.0, df).ok()?;
     let p = (2.0 * dist.sf(t.abs())).min(1.0);
     Some((t, df, p))

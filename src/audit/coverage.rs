@@ -74,7 +74,7 @@ impl Check for Coverage {
         let (shapes, distinct) = shapes(&ctx.entities)?;
         c.shapes = shapes;
         c.distinct_shapes = distinct;
-        c.singletons_two_way = two_way_singletons(&ctx.keys, ctx.entity, ctx.period)?.0;
+        c.singletons_two_way = ctx.core.two_way_singletons();
         c.grid = grid(ctx)?;
         Ok(())
     }

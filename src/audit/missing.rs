@@ -60,7 +60,11 @@ impl Check for Missing {
             .sort([ctx.period], Default::default())
             .collect()?;
         let periods = by_period.column(ctx.period)?.i64()?;
+        let (first, last) = (periods.min().unwrap_or(0), periods.max().unwrap_or(0));
         for v in &gappy {
+            // A lag (growth rate, ...) of k periods is null by construction in the window's
+            // first k periods, a lead in its last k: no break there.
+            let (back, ahead) = ctx.reach.get(v).copied().unwrap_or((0, 0));
             let shares = by_period.column(v)?.f64()?;
             for i in 1..by_period.height() {
                 let (Some(a), Some(b), Some(p0), Some(p1)) = (
@@ -71,7 +75,8 @@ impl Check for Missing {
                 ) else {
                     continue;
                 };
-                if p1 == p0 + 1 && (b - a).abs() >= ctx.settings.missing_jump {
+                let structural = p0 < first + back || p1 > last - ahead;
+                if p1 == p0 + 1 && !structural && (b - a).abs() >= ctx.settings.missing_jump {
                     report.missing_breaks.push(MissingBreak {
                         variable: v.clone(),
                         period: p1,

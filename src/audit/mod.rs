@@ -15,6 +15,7 @@ pub mod verdict;
 
 use polars::prelude::*;
 
+use crate::core::PanelCore;
 use crate::report::Report;
 use crate::Result;
 
@@ -73,6 +74,8 @@ pub struct Options {
     pub settings: Settings,
     /// The declared model, if any.
     pub model: Option<model::ModelSpec>,
+    /// Periods back and ahead each derived variable reads (lags, leads, growth rates).
+    pub reach: std::collections::BTreeMap<String, (i64, i64)>,
 }
 
 /// Column names in `Context::keys` and `Context::entities`.
@@ -114,10 +117,14 @@ pub struct Context<'a> {
     pub settings: Settings,
     /// The declared model, if any.
     pub model: Option<model::ModelSpec>,
+    /// Periods back and ahead each derived variable reads.
+    pub reach: std::collections::BTreeMap<String, (i64, i64)>,
     /// Distinct (entity, period) keys sorted by entity and period, with `__step`.
     pub keys: DataFrame,
     /// One row per entity: `__n`, `__first`, `__last`, `__gaps`, `__spells`, `__longest`.
     pub entities: DataFrame,
+    /// Entity and period codes of the panel's rows.
+    pub core: PanelCore,
 }
 
 impl<'a> Context<'a> {
@@ -131,11 +138,17 @@ impl<'a> Context<'a> {
         use names::*;
         // The panel arrives sorted by entity and period; keep that order.
         let same_entity = col(entity).eq(col(entity).shift(lit(1)));
+        // Sorted by entity and period, so copies of a key sit next to each other: keep the
+        // first row of each run (no hashing).
+        let repeat = same_entity
+            .clone()
+            .and(col(period).eq(col(period).shift(lit(1))))
+            .fill_null(lit(false));
         let keys = df
             .clone()
             .lazy()
             .select([col(entity), col(period)])
-            .unique_stable(None, UniqueKeepStrategy::First)
+            .filter(repeat.not())
             .with_column(
                 when(same_entity)
                     .then(col(period) - col(period).shift(lit(1)))
@@ -185,8 +198,10 @@ impl<'a> Context<'a> {
             numeric,
             settings: options.settings,
             model: options.model,
+            reach: options.reach,
             keys,
             entities,
+            core: PanelCore::new(df, entity, period)?,
         })
     }
 
@@ -228,6 +243,11 @@ pub trait Check {
     fn name(&self) -> &'static str;
     /// Compute the check's figures into `report`.
     fn run(&self, ctx: &Context, report: &mut Report) -> Result<()>;
+    /// Whether `build` runs the check only on the cleaned panel (its figures describe what
+    /// will be estimated), not on the panel as read.
+    fn cleaned_only(&self) -> bool {
+        false
+    }
 }
 
 /// Every check, in report order.

@@ -49,52 +49,30 @@ impl Check for Outliers {
                 e.over(groups.clone())?
             })
         };
-        let mut cols = Vec::new();
+        // One select of aggregates: nothing of the panel's length is materialised.
+        let mut aggs = Vec::new();
         for (i, v) in vars.iter().enumerate() {
             let lower = over(q(v, lo))?;
             let upper = over(q(v, hi))?;
             let median = x(v).median();
             let mad = (x(v) - x(v).median()).abs().median() * lit(MAD_SCALE);
-            cols.push(x(v).lt(lower.clone()).alias(format!("below{i}")));
-            cols.push(x(v).gt(upper.clone()).alias(format!("above{i}")));
-            cols.push(lower.alias(format!("lo{i}")));
-            cols.push(upper.alias(format!("hi{i}")));
+            let count = |e: Expr| e.sum().cast(DataType::UInt64);
+            aggs.push(count(x(v).lt(lower.clone())).alias(format!("below{i}")));
+            aggs.push(count(x(v).gt(upper.clone())).alias(format!("above{i}")));
+            aggs.push(lower.first().alias(format!("lo{i}")));
+            aggs.push(upper.first().alias(format!("hi{i}")));
             // With a MAD of zero the robust z is undefined: nothing is counted.
             let z = ((x(v) - median) / mad.clone()).abs().gt(lit(s.robust_z));
-            cols.push(z.and(mad.clone().gt(lit(0.0))).alias(format!("z{i}")));
-            cols.push(mad.alias(format!("mad{i}")));
+            aggs.push(count(z.and(mad.clone().gt(lit(0.0)))).alias(format!("z{i}")));
+            aggs.push(mad.alias(format!("mad{i}")));
             let group_n = if groups.is_empty() {
                 x(v).count()
             } else {
-                x(v).count().over(groups.clone())?
+                x(v).count().over(groups.clone())?.min()
             };
-            cols.push(group_n.alias(format!("gn{i}")));
+            aggs.push(group_n.cast(DataType::UInt64).alias(format!("gn{i}")));
         }
-        let flags = ctx.df.clone().lazy().select(cols).collect()?;
-        let mut aggs = Vec::new();
-        for i in 0..vars.len() {
-            aggs.push(
-                col(format!("below{i}").as_str())
-                    .sum()
-                    .cast(DataType::UInt64),
-            );
-            aggs.push(
-                col(format!("above{i}").as_str())
-                    .sum()
-                    .cast(DataType::UInt64),
-            );
-            aggs.push(col(format!("z{i}").as_str()).sum().cast(DataType::UInt64));
-            aggs.push(col(format!("lo{i}").as_str()).first());
-            aggs.push(col(format!("hi{i}").as_str()).first());
-            aggs.push(col(format!("mad{i}").as_str()).first());
-            aggs.push(
-                col(format!("gn{i}").as_str())
-                    .min()
-                    .cast(DataType::UInt64)
-                    .alias(format!("gn{i}")),
-            );
-        }
-        let t = flags.lazy().select(aggs).collect()?;
+        let t = ctx.df.clone().lazy().select(aggs).collect()?;
         let u = |c: String| -> Result<u64> { Ok(t.column(&c)?.u64()?.get(0).unwrap_or(0)) };
         let f = |c: String| -> Result<Option<f64>> { Ok(t.column(&c)?.f64()?.get(0)) };
         let smallest = (1.0 / lo.min(1.0 - hi)).ceil() as u64;

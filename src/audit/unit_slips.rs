@@ -105,6 +105,7 @@ impl Check for UnitSlips {
             }
         }
         report.unit_slips_total = slips.len() as u64;
+        report.unit_slips_searched = levels.len() as u64;
         slips.truncate(LISTED);
         report.unit_slips = slips;
         Ok(())

@@ -9,6 +9,9 @@ use crate::report::Report;
 #[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Serialize)]
 #[serde(rename_all = "lowercase")]
 pub enum Status {
+    /// The check had nothing to examine (no variable, no rule): neither a pass nor evidence.
+    #[serde(rename = "not checked")]
+    NotChecked,
     /// Nothing to act on.
     Pass,
     /// Look before estimating.
@@ -21,6 +24,7 @@ impl Status {
     /// The word used in reports and on the command line.
     pub fn label(self) -> &'static str {
         match self {
+            Status::NotChecked => "not checked",
             Status::Pass => "pass",
             Status::Warn => "warn",
             Status::Fail => "fail",
@@ -174,7 +178,7 @@ fn line(check: &str, status: Status, reason: String) -> CheckVerdict {
     }
 }
 
-/// Judge a finished report.
+/// Judge a finished report: each finding at the level `[verdict]` gives it.
 pub fn judge(r: &Report, lv: &Levels) -> Verdict {
     use Status::*;
     let mut checks = Vec::new();
@@ -183,7 +187,7 @@ pub fn judge(r: &Report, lv: &Levels) -> Verdict {
     checks.push(if unresolved {
         line(
             "Keys",
-            Fail,
+            lv.conflicting_keys,
             format!(
                 "{} entity-period keys appear on rows with different values",
                 k.conflicting_keys
@@ -206,46 +210,65 @@ pub fn judge(r: &Report, lv: &Levels) -> Verdict {
         )
     });
     let c = &r.coverage;
-    checks.push(if c.entities_with_gaps + c.singletons > 0 {
-        line(
-            "Coverage",
-            Warn,
-            format!(
-                "{} entities with gaps, {} singletons",
-                c.entities_with_gaps, c.singletons
-            ),
-        )
-    } else {
+    let mut coverage = Vec::new();
+    if c.entities_with_gaps > 0 {
+        coverage.push((
+            lv.gaps,
+            format!("{} entities with gaps", c.entities_with_gaps),
+        ));
+    }
+    if c.singletons > 0 {
+        coverage.push((lv.singletons, format!("{} singletons", c.singletons)));
+    }
+    checks.push(if coverage.is_empty() {
         line("Coverage", Pass, "no gaps and no singletons".into())
+    } else {
+        worst("Coverage", coverage)
     });
+    let compared: Vec<&str> = r
+        .attrition
+        .iter()
+        .filter(|a| a.p.is_some())
+        .map(|a| a.variable.as_str())
+        .collect();
     let differ: Vec<&str> = r
         .attrition
         .iter()
         .filter(|a| a.p.is_some_and(|p| p < lv.attrition_p))
         .map(|a| a.variable.as_str())
         .collect();
-    checks.push(if differ.is_empty() {
+    checks.push(if compared.is_empty() {
+        line(
+            "Entry and exit",
+            NotChecked,
+            "no variable could be compared between leavers and stayers".into(),
+        )
+    } else if differ.is_empty() {
         line(
             "Entry and exit",
             Pass,
-            "leavers and stayers do not differ at 5% at entry".into(),
+            format!(
+                "leavers and stayers do not differ at entry (p >= {}) in {} variables compared",
+                lv.attrition_p,
+                compared.len()
+            ),
         )
     } else {
         line(
             "Entry and exit",
-            Warn,
+            lv.attrition,
             format!(
                 "leavers differ from stayers at entry in {}",
                 differ.join(", ")
             ),
         )
     });
-    let regressors: Vec<&String> = r.model.iter().flat_map(|m| m.regressors.iter()).collect();
+    // A model regressor counts as absorbed only under the effects the model declares.
     let absorbed_regressor: Vec<&str> = r
-        .variation
+        .model
         .iter()
-        .filter(|v| v.absorbed_by.is_some() && regressors.contains(&&v.variable))
-        .map(|v| v.variable.as_str())
+        .flat_map(|m| m.not_identified_within.iter().chain(&m.not_identified))
+        .map(String::as_str)
         .collect();
     let nearly: Vec<&str> = r
         .variation
@@ -258,22 +281,44 @@ pub fn judge(r: &Report, lv: &Levels) -> Verdict {
         .iter()
         .filter(|v| v.absorbed_by.is_some())
         .count();
-    checks.push(if !absorbed_regressor.is_empty() {
+    let mut absorption = Vec::new();
+    if !absorbed_regressor.is_empty() {
+        absorption.push((
+            lv.absorbed_regressor,
+            format!(
+                "model regressors absorbed by fixed effects: {}",
+                absorbed_regressor.join(", ")
+            ),
+        ));
+    }
+    if !nearly.is_empty() {
+        absorption.push((
+            lv.nearly_absorbed,
+            format!("nearly absorbed: {}", nearly.join(", ")),
+        ));
+    }
+    checks.push(if r.variation.is_empty() {
         line(
             "Absorbed by fixed effects",
-            lv.absorbed_regressor,
-            format!("model regressors absorbed by fixed effects: {}", absorbed_regressor.join(", ")),
+            NotChecked,
+            "no variable besides the keys".into(),
         )
-    } else if !nearly.is_empty() {
-        line("Absorbed by fixed effects", lv.nearly_absorbed, format!("nearly absorbed: {}", nearly.join(", ")))
-    } else {
+    } else if absorption.is_empty() {
         line(
             "Absorbed by fixed effects",
             Pass,
             format!("{absorbed} variables absorbed (time-invariant traits or macro series), none nearly"),
         )
+    } else {
+        worst("Absorbed by fixed effects", absorption)
     });
-    checks.push(if r.missing_breaks.is_empty() {
+    checks.push(if r.missing.is_empty() {
+        line(
+            "Missing values",
+            NotChecked,
+            "no variable besides the keys".into(),
+        )
+    } else if r.missing_breaks.is_empty() {
         line(
             "Missing values",
             Pass,
@@ -282,30 +327,46 @@ pub fn judge(r: &Report, lv: &Levels) -> Verdict {
     } else {
         line(
             "Missing values",
-            Warn,
+            lv.missing_breaks,
             format!("{} coverage breaks between periods", r.missing_breaks.len()),
         )
     });
-    checks.push(if r.unit_slips_total > 0 {
-        line(
-            "Outliers and unit slips",
-            Warn,
+    let mut outliers = Vec::new();
+    if r.unit_slips_total > 0 {
+        outliers.push((
+            lv.unit_slips,
             format!("{} suspected unit slips", r.unit_slips_total),
-        )
-    } else if r.outliers.iter().any(|o| o.small_groups) {
+        ));
+    }
+    if r.outliers.iter().any(|o| o.small_groups) {
+        outliers.push((Warn, "some periods are too small for their cutoffs".into()));
+    }
+    checks.push(if !outliers.is_empty() {
+        worst("Outliers and unit slips", outliers)
+    } else if r.unit_slips_searched == 0 {
         line(
             "Outliers and unit slips",
-            Warn,
-            "some periods are too small for their cutoffs".into(),
+            NotChecked,
+            "no level variable to search for unit slips".into(),
         )
     } else {
-        line("Outliers and unit slips", Pass, "no unit slips".into())
+        line(
+            "Outliers and unit slips",
+            Pass,
+            format!("no unit slips in {} level variables", r.unit_slips_searched),
+        )
     });
     let broken: u64 = r.rules.iter().map(|l| l.violations).sum();
-    checks.push(if broken > 0 {
+    checks.push(if r.rules.is_empty() {
         line(
             "Accounting rules",
-            Warn,
+            NotChecked,
+            "no accounting rule applies".into(),
+        )
+    } else if broken > 0 {
+        line(
+            "Accounting rules",
+            lv.rule_violations,
             format!("{broken} rule violations"),
         )
     } else {
@@ -316,23 +377,61 @@ pub fn judge(r: &Report, lv: &Levels) -> Verdict {
         )
     });
     if let Some(m) = &r.model {
-        let rank = m.warnings.iter().any(|w| w.contains("rank deficiency"));
-        checks.push(if rank || m.tests.is_empty() {
+        let not_identified: Vec<&String> = m
+            .not_identified
+            .iter()
+            .chain(&m.not_identified_within)
+            .collect();
+        let mut findings = Vec::new();
+        if !not_identified.is_empty() {
+            findings.push((
+                lv.absorbed_regressor,
+                format!(
+                    "not identified by every estimator: {}",
+                    not_identified
+                        .iter()
+                        .map(|s| s.as_str())
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                ),
+            ));
+        }
+        let thumbs = m.warnings.len().saturating_sub(not_identified.len());
+        if thumbs > 0 {
+            findings.push((lv.model_warnings, format!("{thumbs} rules of thumb apply")));
+        }
+        checks.push(if m.tests.is_empty() {
             line(
                 "Model readiness",
                 Fail,
-                "a regressor is not identified or no diagnostic could be computed".into(),
+                "no diagnostic could be computed".into(),
             )
-        } else if !m.warnings.is_empty() {
-            line(
-                "Model readiness",
-                Warn,
-                format!("{} rules of thumb apply", m.warnings.len()),
-            )
-        } else {
+        } else if findings.is_empty() {
             line("Model readiness", Pass, "no rule of thumb applies".into())
+        } else {
+            worst("Model readiness", findings)
         });
     }
-    let overall = checks.iter().map(|c| c.status).max().unwrap_or(Pass);
+    let overall = checks
+        .iter()
+        .map(|c| c.status)
+        .max()
+        .unwrap_or(Pass)
+        .max(Pass);
     Verdict { overall, checks }
+}
+
+/// One line at the worst level among several findings, their reasons joined.
+fn worst(check: &str, findings: Vec<(Status, String)>) -> CheckVerdict {
+    let status = findings
+        .iter()
+        .map(|(s, _)| *s)
+        .max()
+        .unwrap_or(Status::Pass);
+    let reason = findings
+        .into_iter()
+        .map(|(_, r)| r)
+        .collect::<Vec<_>>()
+        .join("; ");
+    line(check, status, reason)
 }

@@ -18,6 +18,51 @@ use crate::{Error, Result};
 /// The panel functions we add to SQL; each looks k periods back (or ahead) in the same entity.
 pub const PANEL_FUNCTIONS: [&str; 4] = ["lag", "lead", "diff", "growth"];
 
+/// SQL functions that read the whole column (aggregates, windows, row numbering, array and
+/// table functions): a derived variable is computed row by row, so these would mix every
+/// firm's values into each row. Refused by name.
+const WHOLE_COLUMN_FUNCTIONS: [&str; 39] = [
+    "avg",
+    "corr",
+    "count",
+    "covar_pop",
+    "covar_samp",
+    "covar",
+    "first",
+    "last",
+    "max",
+    "median",
+    "min",
+    "quantile_cont",
+    "quantile_disc",
+    "stdev",
+    "stddev",
+    "stdev_samp",
+    "stddev_samp",
+    "string_agg",
+    "listagg",
+    "group_concat",
+    "sum",
+    "total",
+    "var",
+    "variance",
+    "var_samp",
+    "array_agg",
+    "unnest",
+    "dense_rank",
+    "first_value",
+    "last_value",
+    "rank",
+    "row_number",
+    "columns",
+    "mean",
+    "std",
+    "n_unique",
+    "mode",
+    "read_csv",
+    "read_parquet",
+];
+
 /// What names an expression may use.
 pub(crate) struct Scope<'a> {
     /// Columns of the data as read.
@@ -91,6 +136,16 @@ pub(crate) fn compile(rule: &str, text: &str, scope: &Scope) -> Result<Compiled>
             }
             SqlExpr::Function(f) => {
                 let name = f.name.to_string().to_lowercase();
+                if f.over.is_some() || WHOLE_COLUMN_FUNCTIONS.contains(&name.as_str()) {
+                    return ControlFlow::Break(Error::RuleExpr {
+                        rule: rule.to_string(),
+                        message: format!(
+                            "`{name}` reads the whole column: a derived variable is computed row \
+                             by row (for another period of the same firm use lag, lead, diff or \
+                             growth; for row-wise extremes greatest or least)"
+                        ),
+                    });
+                }
                 if PANEL_FUNCTIONS.contains(&name.as_str()) {
                     let call = f.to_string().replace('"', "");
                     match panel_call(rule, &name, &call, &f.args) {
@@ -260,12 +315,23 @@ mod tests {
             derived: &derived,
         };
         let cases = [
-            ("ni / nosuch", "rule `r`: unknown column `nosuch`"),
-            ("frobnicate(ni)", "rule `r`: unknown function `frobnicate`"),
-            ("ni / (assets", "rule `r`: syntax error"),
+            ("ni / nosuch", "r: unknown column `nosuch`"),
+            ("frobnicate(ni)", "r: unknown function `frobnicate`"),
+            ("ni / (assets", "r: syntax error"),
             ("lag(ni + 1, 1)", "the first argument must be a column name"),
             ("lag(ni, 0)", "at least 1"),
             ("ni assets", "unexpected `assets`"),
+            ("ni / sum(ni)", "`sum` reads the whole column"),
+            ("ni - avg(ni)", "`avg` reads the whole column"),
+            ("max(ni)", "`max` reads the whole column"),
+            (
+                "ni / abs(ni) OVER (PARTITION BY firm)",
+                "`abs` reads the whole column",
+            ),
+            (
+                "row_number() OVER ()",
+                "`row_number` reads the whole column",
+            ),
         ];
         for (text, want) in cases {
             let err = compile("r", text, &scope).unwrap_err().to_string();

@@ -46,6 +46,9 @@ pub struct RulesFile {
     /// Built-in libraries to pull in: `standard` is the ratio library.
     #[serde(default)]
     pub include: Vec<String>,
+    /// How to read a CSV input.
+    #[serde(default)]
+    pub input: InputSection,
     /// Panel keys.
     #[serde(default)]
     pub panel: PanelSection,
@@ -114,9 +117,21 @@ pub struct ModelSection {
     /// Add the outcome's gap-aware one-period lag as a regressor.
     #[serde(default)]
     pub lagged_outcome: bool,
-    /// `"entity"` (default) or `"entity+period"` (period dummies added).
+    /// The fixed effects, by the key columns they follow: `["firm_id"]` or
+    /// `["firm_id", "fiscal_year"]` (period dummies added). The older spelling `"entity"` /
+    /// `"entity+period"` is still read.
     #[serde(default)]
-    pub effects: Option<String>,
+    pub effects: Option<EffectsSpec>,
+}
+
+/// How `[model] effects` is written.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(untagged)]
+pub enum EffectsSpec {
+    /// The key columns, e.g. `["firm_id", "fiscal_year"]`.
+    Keys(Vec<String>),
+    /// The older words `"entity"` or `"entity+period"`.
+    Word(String),
 }
 
 /// `[[rule]]`: an accounting identity or bound that should hold on every row.
@@ -184,6 +199,18 @@ pub struct ThresholdSection {
     /// p-value under which leavers are said to differ from stayers (default 0.05).
     #[serde(default)]
     pub attrition_p: Option<f64>,
+}
+
+/// `[input]`: how to read a CSV file that is not comma-separated UTF-8 with decimal points.
+#[derive(Debug, Default, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct InputSection {
+    /// The field separator, one character (default `,`).
+    pub delimiter: Option<String>,
+    /// Numbers use a decimal comma (`1,5`), as files from many European providers do.
+    pub decimal_comma: Option<bool>,
+    /// The text encoding: `utf-8` (default), `windows-1252` or `latin-1`.
+    pub encoding: Option<String>,
 }
 
 /// `[panel]`: which columns identify the entity and the period.

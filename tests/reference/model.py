@@ -1,6 +1,11 @@
 """Independent recomputation of panelready's model-readiness diagnostics.
 
-Usage: python model.py DATA_CSV REPORT_JSON ENTITY PERIOD OUTCOME REGRESSOR [REGRESSOR ...]
+Usage: python model.py [--two-way] DATA_CSV REPORT_JSON ENTITY PERIOD OUTCOME REGRESSOR [...]
+
+With --two-way, period dummies enter every estimator (declared entity + period effects).
+Each estimator is given only the regressors it identifies, found independently by the rank
+of the dummy-variable design (numpy SVD): pooled OLS and random effects keep regressors that
+never change within an entity; the within estimator does not.
 
 DATA_CSV holds unique (entity, period) keys (no key steps needed). Pooled and within slopes
 and residual sums of squares come from statsmodels OLS (the within estimator as OLS with
@@ -28,8 +33,26 @@ def same(path, want, got, rel=1e-7):
         failures.append(f"{path}: reference {want!r}, report {got!r}")
 
 
+def added_rank(base, columns):
+    """Indices of `columns` that raise the rank of [base, earlier kept columns] (numpy SVD
+    rank), taken in order."""
+    kept, cur = [], base
+    r0 = np.linalg.matrix_rank(cur) if cur.shape[1] else 0
+    for j in range(columns.shape[1]):
+        cand = np.column_stack([cur, columns[:, j]]) if cur.shape[1] else columns[:, [j]]
+        r = np.linalg.matrix_rank(cand)
+        if r > r0:
+            kept.append(j)
+            cur, r0 = cand, r
+    return kept
+
+
 def main():
-    data, report_path, entity, period, outcome, *regs = sys.argv[1:]
+    args = sys.argv[1:]
+    two_way = args[0] == "--two-way"
+    if two_way:
+        args = args[1:]
+    data, report_path, entity, period, outcome, *regs = args
     m = json.load(open(report_path))["model"]
     d = pd.read_csv(data, dtype={entity: "string"}).dropna(subset=[outcome, *regs])
     d = d.sort_values([entity, period]).reset_index(drop=True)
@@ -40,20 +63,35 @@ def main():
     groups = d["e"].to_numpy()
     Ti = d.groupby("e").size()
     n = len(Ti)
-    rhs = " + ".join(f"Q('{r}')" for r in regs)
-    pooled = smf.ols(f"y ~ {rhs}", data=d).fit()
-    within = smf.ols(f"y ~ {rhs} + C(e)", data=d).fit()
+    # Period dummies in every estimator when period effects are declared (common practice).
+    D = pd.get_dummies(d["t"], drop_first=True).to_numpy(float) if two_way else np.zeros((N, 0))
+    E = pd.get_dummies(d["e"]).to_numpy(float)
+    # What each estimator identifies, by SVD rank: pooled on [1, D]; within on [E, D].
+    pooled_ids = added_rank(np.column_stack([np.ones(N), D]), X)
+    within_ids = [j for j in added_rank(np.column_stack([E, D]), X) if j in pooled_ids]
+    same("not identified by the within estimator",
+         len([r for j, r in enumerate(regs) if j in pooled_ids and j not in within_ids]),
+         len(m["not_identified_within"]))
+    preg = [regs[j] for j in pooled_ids]
+    wreg = [regs[j] for j in within_ids]
+    tdum = " + C(t)" if two_way else ""
+    q = lambda names: " + ".join(f"Q('{r}')" for r in names)
+    pooled = smf.ols(f"y ~ {q(preg)}{tdum}", data=d).fit()
+    within = smf.ols(f"y ~ {q(wreg) + ' + ' if wreg else ''}C(e){tdum}", data=d).fit()
     e = pooled.resid.to_numpy()
     rss_p, rss_w = float(pooled.ssr), float(within.ssr)
-    df_w = N - n - K
-    F = ((rss_p - rss_w) / (n - 1)) / (rss_w / df_w)
+    df_w = within.df_resid
+    # F for entity effects: pooled nested in within; numerator df = the difference in rank.
+    df1 = pooled.df_resid - within.df_resid
+    F = ((rss_p - rss_w) / df1) / (rss_w / df_w)
     tests = {t["name"]: t for t in m["tests"]}
 
     def test(prefix):
         return next(v for k, v in tests.items() if k.startswith(prefix))
 
     same("F", F, test("F test")["statistic"])
-    same("F p", float(stats.f.sf(F, n - 1, df_w)), test("F test")["p"], rel=1e-6)
+    same("F df", df1, test("F test")["df"][0])
+    same("F p", float(stats.f.sf(F, df1, df_w)), test("F test")["p"], rel=1e-6)
     # Breusch-Pagan / Baltagi-Li: LM = N^2 / (2 (sum T_i^2 - N)) (A - 1)^2
     A = float((pd.Series(e).groupby(groups).sum() ** 2).sum() / (e @ e))
     scale = N**2 / (2 * (float((Ti**2).sum()) - N))
@@ -66,17 +104,22 @@ def main():
     same("BP LM period", LMt, test("Breusch–Pagan LM for period effects")["statistic"])
     same("BP LM two-way", LM + LMt, test("Breusch–Pagan LM for entity and period")["statistic"])
 
-    # Swamy-Arora variance components, Baltagi-Chang (1994) for unbalanced panels.
+    # Swamy-Arora variance components, Baltagi-Chang (1994) for unbalanced panels, from the
+    # between regression on a basis of the pooled design's entity means (rank by SVD).
     s2nu = rss_w / df_w
-    Xp = np.column_stack([np.ones(N), X])
+    Xp = np.column_stack([np.ones(N), X[:, pooled_ids], D])
     xbar = pd.DataFrame(Xp).groupby(groups).mean()
     ybar = pd.Series(y).groupby(groups).mean()
     T = Ti.loc[xbar.index].to_numpy(float)
-    XPX = (xbar.to_numpy().T * T) @ xbar.to_numpy()
-    XZZX = (xbar.to_numpy().T * T**2) @ xbar.to_numpy()
-    bb = np.linalg.solve(XPX, (xbar.to_numpy().T * T) @ ybar.to_numpy())
-    rss_b = float((T * (ybar.to_numpy() - xbar.to_numpy() @ bb) ** 2).sum())
-    s2mu = max((rss_b - (n - K - 1) * s2nu) / (N - np.trace(np.linalg.solve(XPX, XZZX))), 0.0)
+    xb_all = xbar.to_numpy()
+    basis = added_rank(np.zeros((n, 0)), xb_all * np.sqrt(T)[:, None])
+    xb = xb_all[:, basis]
+    Kb = len(basis)
+    XPX = (xb.T * T) @ xb
+    XZZX = (xb.T * T**2) @ xb
+    bb = np.linalg.solve(XPX, (xb.T * T) @ ybar.to_numpy())
+    rss_b = float((T * (ybar.to_numpy() - xb @ bb) ** 2).sum())
+    s2mu = max((rss_b - (n - Kb) * s2nu) / (N - np.trace(np.linalg.solve(XPX, XZZX))), 0.0)
     same("idiosyncratic SD", np.sqrt(s2nu), m["idiosyncratic_sd"])
     same("entity SD", np.sqrt(s2mu), m["entity_sd"])
     same("entity share", s2mu / (s2mu + s2nu), m["entity_share"])
@@ -85,25 +128,39 @@ def main():
     ys = y - th * ybar.loc[groups].to_numpy()
     Xs = Xp - th[:, None] * xbar.loc[groups].to_numpy()
     bre, *_ = np.linalg.lstsq(Xs, ys, rcond=None)
-    s2re = float(((ys - Xs @ bre) ** 2).sum()) / (N - K - 1)
-    bw = within.params[[f"Q('{r}')" for r in regs]].to_numpy()
-    Xw = X - pd.DataFrame(X).groupby(groups).transform("mean").to_numpy()
-    Vw = s2nu * np.linalg.inv(Xw.T @ Xw)
-    Vre = s2re * np.linalg.inv(Xs.T @ Xs)[1:, 1:]
-    dlt = bw - bre[1:]
-    H = float(dlt @ np.linalg.inv(Vw - Vre) @ dlt)
-    same("Hausman", H, test("Hausman")["statistic"], rel=1e-6)
-    for i, r in enumerate(regs):
+    s2re = float(((ys - Xs @ bre) ** 2).sum()) / (N - Xp.shape[1])
+    # Hausman on the regressors both estimators identify.
+    both = [j for j in within_ids]
+    if both:
+        names = [f"Q('{regs[j]}')" for j in both]
+        bw = within.params[names].to_numpy()
+        Vw = within.cov_params().loc[names, names].to_numpy()
+        pos = [1 + pooled_ids.index(j) for j in both]
+        Vre = s2re * np.linalg.inv(Xs.T @ Xs)[np.ix_(pos, pos)]
+        dlt = bw - bre[pos]
+        H = float(dlt @ np.linalg.inv(Vw - Vre) @ dlt)
+        same("Hausman", H, test("Hausman")["statistic"], rel=1e-6)
+        same("Hausman df", len(both), test("Hausman")["df"][0])
+    for j, r in enumerate(regs):
         s = next(x for x in m["slopes"] if x["variable"] == r)
-        same(f"slope {r} pooled", float(pooled.params[f"Q('{r}')"]), s["pooled"])
-        same(f"slope {r} within", float(bw[i]), s["within"])
-        same(f"slope {r} random", float(bre[i + 1]), s["random"], rel=1e-6)
+        if j in pooled_ids:
+            same(f"slope {r} pooled", float(pooled.params[f"Q('{r}')"]), s["pooled"])
+            same(f"slope {r} pooled SE", float(pooled.bse[f"Q('{r}')"]), s["pooled_se"])
+            same(f"slope {r} random", float(bre[1 + pooled_ids.index(j)]), s["random"], rel=1e-6)
+        else:
+            same(f"slope {r} pooled is null", 0.0, 0.0 if s["pooled"] is None else 1.0)
+        if j in within_ids:
+            same(f"slope {r} within", float(within.params[f"Q('{r}')"]), s["within"])
+        else:
+            # Not identified by the within estimator: the report shows no number.
+            same(f"slope {r} within is null", 0.0, 0.0 if s["within"] is None else 1.0)
+    regs_w = [regs[j] for j in within_ids]
 
     # Wooldridge (Drukker 2003): differences over consecutive periods only.
     prev = d.groupby("e")["t"].shift(1)
     ok = (d["t"] - prev == 1).to_numpy()
     dy = (d["y"] - d.groupby("e")["y"].shift(1)).to_numpy()[ok]
-    dX = (d[regs] - d.groupby("e")[regs].shift(1)).to_numpy()[ok]
+    dX = (d[regs_w] - d.groupby("e")[regs_w].shift(1)).to_numpy()[ok]
     bd, *_ = np.linalg.lstsq(dX, dy, rcond=None)
     u = pd.DataFrame({"e": d["e"].to_numpy()[ok], "t": d["t"].to_numpy()[ok], "u": dy - dX @ bd})
     u["lag"] = u.groupby("e")["u"].shift(1)
@@ -118,12 +175,17 @@ def main():
     r = pd.DataFrame({"e": groups, "t": d["t"], "r": within.resid.to_numpy()}).pivot(index="t", columns="e", values="r")
     ids = list(r.columns)
     total = 0.0
-    for a in range(len(ids)):
-        for b in range(a + 1, len(ids)):
-            both = r[[ids[a], ids[b]]].dropna()
-            if len(both) < 3:
-                continue
-            total += np.sqrt(len(both)) * np.corrcoef(both.iloc[:, 0], both.iloc[:, 1])[0, 1]
+    if not r.isna().any().any():
+        # Balanced: every pair shares all T periods; numpy's correlation matrix at once.
+        c = np.corrcoef(r.to_numpy().T)
+        total = np.sqrt(len(r)) * float(c[np.triu_indices(len(ids), 1)].sum())
+    else:
+        for a in range(len(ids)):
+            for b in range(a + 1, len(ids)):
+                both = r[[ids[a], ids[b]]].dropna()
+                if len(both) < 3:
+                    continue
+                total += np.sqrt(len(both)) * np.corrcoef(both.iloc[:, 0], both.iloc[:, 1])[0, 1]
     CD = np.sqrt(2 / (n * (n - 1))) * total
     same("Pesaran CD", CD, test("Pesaran")["statistic"], rel=1e-6)
     same("sample rows", N, m["sample_rows"])

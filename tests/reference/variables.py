@@ -92,8 +92,8 @@ def check_variation(df, entity, period, report):
                 break
         same(p + ".absorbed_by", want, line["absorbed_by"])
         if line["two_way_share"] is not None and shares["entity+period"] > 1e-8:
-            # alternating demeaning stops at a relative change of 1e-6: compare at 1e-4
-            same(p + ".two_way_share", shares["entity+period"], line["two_way_share"], rel=1e-4)
+            # the panel core solves the period system exactly: statsmodels' dummy OLS to 1e-9
+            same(p + ".two_way_share", shares["entity+period"], line["two_way_share"], rel=1e-9)
         nearly = want is None and (wss / tss if tss > 0 else 0.0) < 0.05
         same(p + ".nearly_absorbed", nearly, line["nearly_absorbed"])
 

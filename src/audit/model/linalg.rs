@@ -44,22 +44,32 @@ pub(super) fn demean(x: &DMatrix<f64>, entity: &[usize], sizes: &[usize]) -> DMa
     DMatrix::from_fn(x.nrows(), x.ncols(), |r, c| x[(r, c)] - m[(entity[r], c)])
 }
 
-/// Columns that raise the rank, in order (a column whose residual on the earlier ones is
-/// below 1e-10 of its own norm adds nothing).
-pub(super) fn independent_columns(x: &DMatrix<f64>) -> Vec<usize> {
+/// Columns of `x` that raise the rank when taken in `order` (a column whose residual on the
+/// columns kept before it is below 1e-10 of its own sum of squares adds nothing); returned
+/// ascending. Works on the cross-product matrix, so the cost is one pass over the rows.
+pub(super) fn identified(x: &DMatrix<f64>, order: &[usize]) -> Vec<usize> {
+    identified_gram(&(x.transpose() * x), order)
+}
+
+/// As [`identified`], from the cross-product matrix `g = X'X` (or a weighted one).
+pub(super) fn identified_gram(g: &DMatrix<f64>, order: &[usize]) -> Vec<usize> {
     let mut kept: Vec<usize> = Vec::new();
-    for j in 0..x.ncols() {
-        let col = x.column(j).into_owned();
-        let norm = col.norm_squared();
-        if norm <= 0.0 {
+    for &j in order {
+        let norm = g[(j, j)];
+        if !(norm > 0.0 && norm.is_finite()) {
             continue;
         }
         let resid = if kept.is_empty() {
             norm
         } else {
-            let basis = x.select_columns(&kept);
-            match ols(&basis, &col) {
-                Some(b) => (&col - &basis * b).norm_squared(),
+            // Scale to unit diagonal (a correlation-like matrix) before solving.
+            let scale: Vec<f64> = kept.iter().map(|k| g[(*k, *k)].sqrt()).collect();
+            let gkk = DMatrix::from_fn(kept.len(), kept.len(), |r, c| {
+                g[(kept[r], kept[c])] / (scale[r] * scale[c])
+            });
+            let gkj = DVector::from_fn(kept.len(), |r, _| g[(kept[r], j)] / scale[r]);
+            match gkk.cholesky() {
+                Some(ch) => norm - gkj.dot(&ch.solve(&gkj)),
                 None => norm,
             }
         };
@@ -67,5 +77,6 @@ pub(super) fn independent_columns(x: &DMatrix<f64>) -> Vec<usize> {
             kept.push(j);
         }
     }
+    kept.sort_unstable();
     kept
 }

@@ -18,7 +18,7 @@ use crate::Result;
 mod linalg;
 mod residual_tests;
 
-use linalg::{demean, independent_columns, means, ols, with_intercept};
+use linalg::{demean, identified, identified_gram, means, ols, with_intercept};
 pub use residual_tests::cd_statistic;
 use residual_tests::{pesaran_cd, wooldridge};
 
@@ -55,6 +55,10 @@ impl Check for Model {
         "model readiness"
     }
 
+    fn cleaned_only(&self) -> bool {
+        true
+    }
+
     fn run(&self, ctx: &Context, report: &mut Report) -> Result<()> {
         if let Some(spec) = &ctx.model {
             let model = diagnose(ctx, spec, &report.variation)?;
@@ -76,7 +80,17 @@ pub(super) struct Sample {
 }
 
 fn p_chi2(stat: f64, df: f64) -> Option<f64> {
-    ChiSquared::new(df).ok().map(|d| d.sf(stat.max(0.0)))
+    upper_tail(stat, |x| ChiSquared::new(df).ok().map(|d| d.sf(x.max(0.0))))
+}
+
+/// A p-value from a distribution's survival function, or none when the statistic or the
+/// result is not a finite number (a degenerate sample: zero variance, no degrees of freedom).
+/// The distribution library panics on NaN arguments; they never reach it.
+pub(crate) fn upper_tail(stat: f64, sf: impl FnOnce(f64) -> Option<f64>) -> Option<f64> {
+    if !stat.is_finite() {
+        return None;
+    }
+    sf(stat).filter(|p| p.is_finite())
 }
 
 fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Result<ModelReport> {
@@ -154,54 +168,82 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
         entity_sd: None,
         idiosyncratic_sd: None,
         entity_share: None,
-        variance_convention: "Swamy–Arora variance components (Baltagi–Chang form when unbalanced); \
-            idiosyncratic variance from the within residuals, N - n - K df; in the Hausman test the \
-            within covariance uses that variance and the random-effects covariance the residual \
-            variance of the quasi-demeaned regression, N - K - 1 df"
+        variance_convention: "period effects, when declared, are period dummies in every \
+            estimator; Swamy–Arora variance components (Baltagi–Chang form when unbalanced) from \
+            the between regression on the pooled columns that vary between entities; \
+            idiosyncratic variance from the within residuals, N - n - K df (K: regressors and \
+            period dummies the within estimator identifies); in the Hausman test the within \
+            covariance uses that variance and the random-effects covariance the residual variance \
+            of the quasi-demeaned regression, N - K - 1 df, over the regressors both estimators \
+            identify; a slope moves materially when its sign flips or the within slope lies more \
+            than 2 conventional pooled standard errors from the pooled slope"
             .into(),
         slopes: Vec::new(),
+        not_identified: Vec::new(),
+        not_identified_within: Vec::new(),
+        hausman_compares: Vec::new(),
         warnings: Vec::new(),
     };
-    let k = s.x.ncols();
-    if n < 2 || n_rows <= n + k + 1 {
+    let d = s.declared;
+    let k_all = s.x.ncols();
+    if n < 2 || n_rows <= n + k_all + 1 {
         out.warnings.push(format!(
-            "too few rows ({n_rows}) for {n} entities and {k} regressors: no diagnostics computed"
+            "not computable: too few rows ({n_rows}) for {n} entities and {k_all} regressors \
+             (period dummies included), so no diagnostic was computed"
         ));
         return Ok(out);
     }
-    // Rank: a regressor that adds nothing after entity demeaning is not identified.
-    let xw = demean(&s.x, &s.entity, &s.sizes);
-    let keep = independent_columns(&xw);
-    for j in (0..k).filter(|j| !keep.contains(j)) {
-        if j < s.declared {
-            out.warnings.push(format!(
-                "`{}` is a linear combination of the entity effects and the other regressors \
-                 (rank deficiency): it is left out of every estimator below",
-                s.names[j]
-            ));
+    let dummies: Vec<usize> = (d..k_all).collect();
+
+    // What each estimator identifies. Pooled OLS and random effects: the intercept, the period
+    // dummies, then the declared regressors, each kept if it adds to the rank (time-invariant
+    // regressors are kept). Within: the same after removing entity means, period dummies first,
+    // so that a regressor spanned by entity + period effects (experience rising by one a year
+    // for everyone) is the one found not identified.
+    let xp_full = with_intercept(&s.x);
+    let order_p: Vec<usize> = std::iter::once(0)
+        .chain(dummies.iter().map(|j| j + 1))
+        .chain((0..d).map(|j| j + 1))
+        .collect();
+    let pooled_cols = identified(&xp_full, &order_p);
+    let pooled_keep: Vec<usize> = pooled_cols
+        .iter()
+        .filter(|c| **c > 0)
+        .map(|c| c - 1)
+        .collect();
+    let xw_full = demean(&s.x, &s.entity, &s.sizes);
+    let order_w: Vec<usize> = dummies.iter().copied().chain(0..d).collect();
+    let within_keep: Vec<usize> = identified(&xw_full, &order_w)
+        .into_iter()
+        .filter(|j| pooled_keep.contains(j))
+        .collect();
+    for j in 0..d {
+        if !pooled_keep.contains(&j) {
+            out.not_identified.push(s.names[j].clone());
+        } else if !within_keep.contains(&j) {
+            out.not_identified_within.push(s.names[j].clone());
         }
     }
-    let x = s.x.select_columns(&keep);
-    let xw = xw.select_columns(&keep);
-    let kept_names: Vec<String> = keep.iter().map(|j| s.names[*j].clone()).collect();
-    let k = x.ncols();
-    let declared_kept: Vec<usize> = keep
-        .iter()
-        .enumerate()
-        .filter(|(_, j)| **j < s.declared)
-        .map(|(i, _)| i)
-        .collect();
 
-    // Pooled OLS with an intercept.
-    let xp = with_intercept(&x);
+    // Pooled OLS with an intercept (and the period dummies).
+    let xp = xp_full.select_columns(&pooled_cols);
+    let k_p = xp.ncols();
     let Some(b_p) = ols(&xp, &s.y) else {
         out.warnings
-            .push("the pooled regression is singular: no diagnostics computed".into());
+            .push("not computable: the pooled regression is singular".into());
         return Ok(out);
     };
     let e_p = &s.y - &xp * &b_p;
     let rss_p = e_p.norm_squared();
-    // Within.
+    let se_p: Vec<f64> = match (xp.transpose() * &xp).try_inverse() {
+        Some(inv) => (0..k_p)
+            .map(|c| (rss_p / (n_rows - k_p) as f64 * inv[(c, c)]).sqrt())
+            .collect(),
+        None => vec![f64::NAN; k_p],
+    };
+    // Within: entity dummies, by demeaning.
+    let xw = xw_full.select_columns(&within_keep);
+    let k_w = xw.ncols();
     let yw = demean(
         &DMatrix::from_column_slice(n_rows, 1, s.y.as_slice()),
         &s.entity,
@@ -209,25 +251,31 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
     )
     .column(0)
     .into_owned();
-    let Some(b_w) = ols(&xw, &yw) else {
-        out.warnings
-            .push("the within regression is singular: no diagnostics computed".into());
-        return Ok(out);
+    let b_w = if k_w == 0 {
+        DVector::zeros(0)
+    } else {
+        match ols(&xw, &yw) {
+            Some(b) => b,
+            None => {
+                out.warnings
+                    .push("not computable: the within regression is singular".into());
+                return Ok(out);
+            }
+        }
     };
     let e_w = &yw - &xw * &b_w;
     let rss_w = e_w.norm_squared();
-    let df_w = (n_rows - n - k) as f64;
+    let df_w = (n_rows - n - k_w) as f64;
     let s2_nu = rss_w / df_w;
 
-    // F test for entity effects.
-    let f = ((rss_p - rss_w) / (n as f64 - 1.0)) / (rss_w / df_w);
-    let p_f = FisherSnedecor::new(n as f64 - 1.0, df_w)
-        .ok()
-        .map(|d| d.sf(f));
+    // F test for entity effects: pooled against within, on the rank each model has.
+    let df_f = (n + k_w) as f64 - k_p as f64;
+    let f = ((rss_p - rss_w) / df_f) / (rss_w / df_w);
+    let p_f = upper_tail(f, |x| FisherSnedecor::new(df_f, df_w).ok().map(|d| d.sf(x)));
     out.tests.push(ModelTest {
         name: "F test for entity effects".into(),
         statistic: f,
-        df: vec![n as f64 - 1.0, df_w],
+        df: vec![df_f, df_w],
         p: p_f,
         reading: reading(
             p_f,
@@ -235,7 +283,6 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
             "no evidence of entity effects at 5%: pooled OLS may be adequate",
         ),
     });
-
     // Breusch–Pagan LM (Baltagi–Li for unbalanced panels), Honda, period and two-way forms.
     let nf = n_rows as f64;
     let sum_e2 = rss_p;
@@ -265,7 +312,7 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
         ),
     });
     let honda = scale_i.sqrt() * (a - 1.0);
-    let p_h = Normal::new(0.0, 1.0).ok().map(|d| d.sf(honda));
+    let p_h = upper_tail(honda, |x| Normal::new(0.0, 1.0).ok().map(|d| d.sf(x)));
     out.tests.push(ModelTest {
         name: "Honda one-sided test for entity effects".into(),
         statistic: honda,
@@ -311,33 +358,59 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
         ),
     });
 
-    // Swamy–Arora variance components, Baltagi–Chang (1994) for unbalanced panels.
+    // Swamy–Arora variance components, Baltagi–Chang (1994) for unbalanced panels, from the
+    // between regression on the pooled columns that vary between entities (with period
+    // dummies in a balanced panel, their entity means are all alike and drop out).
     let (xbar, ybar) = means(&xp, &s.y, &s.entity, &s.sizes);
-    let mut xpx = DMatrix::<f64>::zeros(k + 1, k + 1);
-    let mut xzzx = DMatrix::<f64>::zeros(k + 1, k + 1);
-    let mut xpy = DVector::<f64>::zeros(k + 1);
+    let weighted = |f: &dyn Fn(f64) -> f64| {
+        let mut m = DMatrix::<f64>::zeros(k_p, k_p);
+        for (i, t) in s.sizes.iter().enumerate() {
+            let xi = xbar.row(i).transpose();
+            m += f(*t as f64) * &xi * xi.transpose();
+        }
+        m
+    };
+    let between_cols = identified_gram(&weighted(&|t| t), &(0..k_p).collect::<Vec<_>>());
+    let xb = xbar.select_columns(&between_cols);
+    let k_b = xb.ncols();
+    let mut xpx = DMatrix::<f64>::zeros(k_b, k_b);
+    let mut xzzx = DMatrix::<f64>::zeros(k_b, k_b);
+    let mut xpy = DVector::<f64>::zeros(k_b);
     for (i, t) in s.sizes.iter().enumerate() {
         let t = *t as f64;
-        let xi = xbar.row(i).transpose();
+        let xi = xb.row(i).transpose();
         xpx += t * &xi * xi.transpose();
         xzzx += t * t * &xi * xi.transpose();
         xpy += t * ybar[i] * &xi;
     }
     let mut entity_var = None;
-    if let Some(inv) = xpx.clone().try_inverse() {
-        let b_b = &inv * &xpy;
-        let rss_b: f64 = (0..n)
-            .map(|i| s.sizes[i] as f64 * (ybar[i] - (xbar.row(i) * &b_b)[0]).powi(2))
-            .sum();
-        let denom = nf - (&inv * &xzzx).trace();
-        let s2_mu = ((rss_b - (n as f64 - k as f64 - 1.0) * s2_nu) / denom).max(0.0);
-        entity_var = Some(s2_mu);
-        out.entity_sd = Some(s2_mu.sqrt());
-        out.idiosyncratic_sd = Some(s2_nu.sqrt());
-        out.entity_share = Some(s2_mu / (s2_mu + s2_nu));
+    if n > k_b {
+        if let Some(inv) = xpx.clone().try_inverse() {
+            let b_b = &inv * &xpy;
+            let rss_b: f64 = (0..n)
+                .map(|i| s.sizes[i] as f64 * (ybar[i] - (xb.row(i) * &b_b)[0]).powi(2))
+                .sum();
+            let denom = nf - (&inv * &xzzx).trace();
+            let s2_mu = ((rss_b - (n - k_b) as f64 * s2_nu) / denom).max(0.0);
+            if s2_mu.is_finite() && s2_nu.is_finite() && s2_mu + s2_nu > 0.0 {
+                entity_var = Some(s2_mu);
+                out.entity_sd = Some(s2_mu.sqrt());
+                out.idiosyncratic_sd = Some(s2_nu.sqrt());
+                out.entity_share = Some(s2_mu / (s2_mu + s2_nu));
+            }
+        }
+    }
+    if entity_var.is_none() {
+        out.warnings.push(
+            "not computable: the variance components (the between regression has no degrees \
+             of freedom left or a zero error variance), so no random-effects estimate and no \
+             Hausman test"
+                .into(),
+        );
     }
 
-    // Random effects (quasi-demeaning) and the Hausman test.
+    // Random effects (quasi-demeaning of the pooled design) and the Hausman test on the
+    // regressors both estimators identify.
     let mut b_re = None;
     if let Some(s2_mu) = entity_var {
         let theta: Vec<f64> = s
@@ -350,58 +423,67 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
         for r in 0..n_rows {
             let i = s.entity[r];
             ys[r] -= theta[i] * ybar[i];
-            for c in 0..=k {
+            for c in 0..k_p {
                 xs[(r, c)] -= theta[i] * xbar[(i, c)];
             }
         }
-        if let (Some(b), Some(inv_re), Some(inv_w)) = (
-            ols(&xs, &ys),
-            (xs.transpose() * &xs).try_inverse(),
-            (xw.transpose() * &xw).try_inverse(),
-        ) {
-            let idx: Vec<usize> = declared_kept.clone();
-            let d = DVector::from_iterator(idx.len(), idx.iter().map(|j| b_w[*j] - b[j + 1]));
-            let vw = DMatrix::from_fn(idx.len(), idx.len(), |r, c| s2_nu * inv_w[(idx[r], idx[c])]);
-            // V_RE from the random-effects regression's own residual variance (N - K - 1 df).
-            let e_re = &ys - &xs * &b;
-            let s2_re = e_re.norm_squared() / (n_rows as f64 - k as f64 - 1.0);
-            let vre = DMatrix::from_fn(idx.len(), idx.len(), |r, c| {
-                s2_re * inv_re[(idx[r] + 1, idx[c] + 1)]
-            });
-            let diff = vw - vre;
-            let pd = diff.clone().cholesky().is_some();
-            let inv = if pd {
-                diff.clone().try_inverse()
-            } else {
-                diff.clone().pseudo_inverse(1e-12).ok()
-            };
-            if let Some(inv) = inv {
-                let h = (d.transpose() * inv * &d)[0];
-                let p_hs = p_chi2(h, idx.len() as f64);
-                let reading = if pd {
-                    reading(p_hs, "the random-effects assumption is rejected: prefer the within (fixed-effects) estimator", "no evidence against random effects at 5%: they are consistent and more efficient if the assumption holds")
+        if let (Some(b), Some(inv_re)) = (ols(&xs, &ys), (xs.transpose() * &xs).try_inverse()) {
+            let both: Vec<usize> = (0..d).filter(|j| within_keep.contains(j)).collect();
+            let inv_w = (xw.transpose() * &xw).try_inverse();
+            if both.is_empty() {
+                out.warnings.push(
+                    "not computable: the Hausman test, since no declared regressor is \
+                     identified by both the within and the random-effects estimator"
+                        .into(),
+                );
+            } else if let Some(inv_w) = inv_w {
+                let wpos = |j: usize| within_keep.iter().position(|c| *c == j).expect("kept");
+                let ppos = |j: usize| pooled_cols.iter().position(|c| *c == j + 1).expect("kept");
+                let m = both.len();
+                let dvec = DVector::from_fn(m, |r, _| b_w[wpos(both[r])] - b[ppos(both[r])]);
+                let vw =
+                    DMatrix::from_fn(m, m, |r, c| s2_nu * inv_w[(wpos(both[r]), wpos(both[c]))]);
+                // V_RE from the random-effects regression's own residual variance.
+                let e_re = &ys - &xs * &b;
+                let s2_re = e_re.norm_squared() / (n_rows - k_p) as f64;
+                let vre =
+                    DMatrix::from_fn(m, m, |r, c| s2_re * inv_re[(ppos(both[r]), ppos(both[c]))]);
+                let diff = vw - vre;
+                let pd = diff.clone().cholesky().is_some();
+                let inv = if pd {
+                    diff.clone().try_inverse()
                 } else {
-                    "the covariance difference is not positive definite: the statistic uses a generalized inverse and is unreliable; read the slope comparison instead".to_string()
+                    diff.clone().pseudo_inverse(1e-12).ok()
                 };
-                out.tests.push(ModelTest {
-                    name: if pd {
-                        "Hausman test, within vs random effects"
+                out.hausman_compares = both.iter().map(|j| s.names[*j].clone()).collect();
+                if let Some(inv) = inv {
+                    let h = (dvec.transpose() * inv * &dvec)[0];
+                    let p_hs = p_chi2(h, m as f64);
+                    let reading = if pd {
+                        reading(p_hs, "the random-effects assumption is rejected: prefer the within (fixed-effects) estimator", "no evidence against random effects at 5%: they are consistent and more efficient if the assumption holds")
                     } else {
-                        "Hausman test, within vs random effects (difference not positive definite)"
-                    }
-                    .into(),
-                    statistic: h,
-                    df: vec![idx.len() as f64],
-                    p: p_hs,
-                    reading,
-                });
+                        "the covariance difference is not positive definite: the statistic uses a generalized inverse and is unreliable; read the slope comparison instead".to_string()
+                    };
+                    out.tests.push(ModelTest {
+                        name: if pd {
+                            "Hausman test, within vs random effects"
+                        } else {
+                            "Hausman test, within vs random effects (difference not positive definite)"
+                        }
+                        .into(),
+                        statistic: h,
+                        df: vec![m as f64],
+                        p: p_hs,
+                        reading,
+                    });
+                }
             }
             b_re = Some(b);
         }
     }
 
     // Wooldridge's test for serial correlation in the idiosyncratic errors.
-    if let Some(t) = wooldridge(&s, &keep) {
+    if let Some(t) = wooldridge(&s, &within_keep) {
         out.tests.push(t);
     }
     // Pesaran's CD test on the within residuals.
@@ -416,36 +498,42 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
         out.tests.push(t);
     }
 
-    // Slopes across estimators.
-    for (pos, j) in declared_kept.iter().enumerate() {
-        let _ = pos;
-        let pooled = b_p[j + 1];
-        let within = b_w[*j];
-        let random = b_re.as_ref().map(|b| b[j + 1]);
-        let change = if pooled != 0.0 {
-            Some((within - pooled) / pooled.abs() * 100.0)
-        } else {
-            None
+    // Slopes across estimators, each where the estimator identifies it.
+    for j in 0..d {
+        let ppos = pooled_cols.iter().position(|c| *c == j + 1);
+        let pooled = ppos.map(|p| b_p[p]);
+        let pooled_se = ppos.map(|p| se_p[p]).filter(|v| v.is_finite());
+        let within = within_keep.iter().position(|c| *c == j).map(|p| b_w[p]);
+        let random = b_re.as_ref().and_then(|b| ppos.map(|p| b[p]));
+        let shift = match (pooled, within, pooled_se) {
+            (Some(a), Some(b), Some(se)) if se > 0.0 => Some((b - a) / se),
+            _ => None,
         };
-        let material = within.signum() != pooled.signum() || change.is_some_and(|c| c.abs() > 50.0);
+        let sign_flip = matches!((pooled, within), (Some(a), Some(b)) if a * b < 0.0);
         out.slopes.push(Slope {
-            variable: kept_names[*j].clone(),
+            variable: s.names[j].clone(),
             pooled,
+            pooled_se,
             within,
             random,
-            change_within_vs_pooled: change,
-            material,
+            within_minus_pooled_in_se: shift,
+            sign_flip,
+            material: sign_flip || shift.is_some_and(|z| z.abs() > MATERIAL_SE),
         });
     }
-    warnings(variation, spec, &s, &b_w, &kept_names, &mut out);
+    warnings(variation, spec, &s, &b_w, &within_keep, &mut out);
     Ok(out)
 }
+
+/// A within slope more than this many pooled standard errors from the pooled slope "moves
+/// materially" (common practice: about two standard errors).
+const MATERIAL_SE: f64 = 2.0;
 
 pub(super) fn reading(p: Option<f64>, yes: &str, no: &str) -> String {
     match p {
         Some(p) if p < 0.05 => yes.to_string(),
         Some(_) => no.to_string(),
-        None => "not computable".to_string(),
+        None => "not computable (the statistic is not a finite number)".to_string(),
     }
 }
 
@@ -454,7 +542,7 @@ fn warnings(
     spec: &ModelSpec,
     s: &Sample,
     b_w: &DVector<f64>,
-    names: &[String],
+    within_keep: &[usize],
     out: &mut ModelReport,
 ) {
     let n = s.sizes.len();
@@ -465,8 +553,9 @@ fn warnings(
     }
     let mean_t = s.y.len() as f64 / n as f64;
     if spec.lagged_outcome {
-        if let Some(j) = names.iter().position(|v| v.starts_with("lag(")) {
-            let rho = b_w[j];
+        let lag = s.declared - 1;
+        if let Some(p) = within_keep.iter().position(|c| *c == lag) {
+            let rho = b_w[p];
             let bias = -(1.0 + rho) / (mean_t - 1.0);
             out.warnings.push(format!(
                 "lagged outcome with entity effects and mean T = {mean_t:.1}: the within estimate of its coefficient ({rho:.3}) is biased by about {bias:.3} (Nickell 1981, Econometrica 49(6), approximation -(1 + rho) / (T - 1))"
@@ -479,21 +568,36 @@ fn warnings(
             out.sample_singletons
         ));
     }
+    // One warning per regressor, for the effects declared.
+    let effects = match spec.effects {
+        Effects::Entity => "entity effects",
+        Effects::EntityPeriod => "entity and period effects",
+    };
+    for v in &out.not_identified {
+        out.warnings.push(format!(
+            "`{v}` is a linear combination of the other regressors (and any period dummies): no \
+             estimator identifies it, so it is left out of all three"
+        ));
+    }
+    for v in &out.not_identified_within {
+        out.warnings.push(format!(
+            "`{v}` is not identified by the within estimator with {effects}: it {}; pooled OLS and \
+             random effects keep it",
+            match spec.effects {
+                Effects::Entity => "never changes within an entity",
+                Effects::EntityPeriod =>
+                    "is a sum of an entity part and a period part (like age = year - founding year) or never changes within an entity",
+            }
+        ));
+    }
     for v in &spec.regressors {
+        let identified = !out.not_identified.contains(v) && !out.not_identified_within.contains(v);
         if let Some(line) = variation.iter().find(|l| &l.variable == v) {
-            if line.absorbed_by.is_some() || line.nearly_absorbed {
+            if identified && line.nearly_absorbed {
                 out.warnings.push(format!(
-                    "`{v}` is {} (see Absorbed by fixed effects): its within estimate is {}",
-                    if line.nearly_absorbed {
-                        "nearly absorbed by entity effects"
-                    } else {
-                        "absorbed by fixed effects"
-                    },
-                    if line.nearly_absorbed {
-                        "imprecise"
-                    } else {
-                        "not identified"
-                    }
+                    "`{v}` is nearly absorbed by entity effects (within share {}): its within \
+                     estimate is imprecise",
+                    line.within_share.map_or("–".into(), |w| format!("{w:.3}"))
                 ));
             }
         }

@@ -61,7 +61,9 @@ pub(super) fn wooldridge(s: &Sample, keep: &[usize]) -> Option<ModelTest> {
     // Cluster-robust variance with the usual small-sample factor G / (G - 1) (one regressor).
     let v = g / (g - 1.0) * score.values().map(|s| s * s).sum::<f64>() / (sxx * sxx);
     let f = (rho + 0.5).powi(2) / v;
-    let p = FisherSnedecor::new(1.0, g - 1.0).ok().map(|d| d.sf(f));
+    let p = super::upper_tail(f, |x| {
+        FisherSnedecor::new(1.0, g - 1.0).ok().map(|d| d.sf(x))
+    });
     Some(ModelTest {
         name: "Wooldridge serial correlation test".into(),
         statistic: f,
@@ -109,7 +111,9 @@ pub(super) fn pesaran_cd(resid: &DVector<f64>, s: &Sample) -> Option<(ModelTest,
         }
     }
     let cd = (2.0 / (n as f64 * (n as f64 - 1.0))).sqrt() * total;
-    let p = Normal::new(0.0, 1.0).ok().map(|d| 2.0 * d.sf(cd.abs()));
+    let p = super::upper_tail(cd.abs(), |x| {
+        Normal::new(0.0, 1.0).ok().map(|d| 2.0 * d.sf(x))
+    });
     Some((
         ModelTest {
             name: "Pesaran CD test (within residuals)".into(),

@@ -72,13 +72,19 @@ pub(super) fn model(r: &Report) -> Section {
             .slopes
             .iter()
             .map(|s| {
+                let missing = |v: Option<f64>| match v {
+                    Some(v) => num(v, 4),
+                    None => "not identified".into(),
+                };
                 vec![
                     s.variable.clone(),
-                    num(s.pooled, 4),
-                    num(s.within, 4),
+                    missing(s.pooled),
+                    opt(s.pooled_se, 4),
+                    missing(s.within),
                     opt(s.random, 4),
-                    s.change_within_vs_pooled
-                        .map_or("–".into(), |c| format!("{c:+.1}%")),
+                    s.within_minus_pooled_in_se
+                        .map_or("–".into(), |z| format!("{z:+.2}")),
+                    if s.sign_flip { "yes" } else { "no" }.into(),
                     if s.material { "yes" } else { "no" }.into(),
                 ]
             })
@@ -87,19 +93,30 @@ pub(super) fn model(r: &Report) -> Section {
             strings(&[
                 "slope of",
                 "pooled",
+                "pooled SE",
                 "within",
                 "random effects",
-                "within vs pooled",
+                "within − pooled, in pooled SEs",
+                "sign flips",
                 "moves materially",
             ]),
             rows,
         ));
         blocks.push(Block::Note(
-            "A sensitivity view: how much each slope moves between estimators. A slope that \
-             changes sign or by more than half between pooled and within is driven by \
-             differences between entities rather than changes within them."
+            "A sensitivity view: how far each slope moves between estimators, in units of the \
+             pooled standard error (meaningful even when a slope is near zero). A slope whose \
+             sign flips or that moves by more than 2 pooled SEs between pooled and within is \
+             driven by differences between entities rather than changes within them. Each \
+             estimator shows only what it identifies: the within estimator does not identify a \
+             regressor the declared effects absorb."
                 .into(),
         ));
+        if !m.hausman_compares.is_empty() {
+            blocks.push(Block::Note(format!(
+                "The Hausman test compares the regressors both estimators identify: {}.",
+                m.hausman_compares.join(", ")
+            )));
+        }
     }
     for w in &m.warnings {
         blocks.push(Block::Note(format!("Warning: {w}.")));

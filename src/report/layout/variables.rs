@@ -5,8 +5,30 @@ use super::*;
 use crate::audit::CutoffGroups;
 
 pub(super) fn variation(r: &Report) -> Section {
-    let rows: Vec<Vec<String>> = r
-        .variation
+    let mut blocks = Vec::new();
+    match &r.cleaned {
+        Some(c) => {
+            blocks.push(Block::Note(
+                "The cleaned panel, as handed over (after treatment, balancing and singletons):"
+                    .into(),
+            ));
+            blocks.extend(variation_blocks(&c.variation));
+            blocks.push(Block::Note(
+                "The panel as read (after the key steps and accounting rules, before treatment):"
+                    .into(),
+            ));
+            blocks.extend(variation_blocks(&r.variation));
+        }
+        None => blocks.extend(variation_blocks(&r.variation)),
+    }
+    Section {
+        title: "Variation",
+        blocks,
+    }
+}
+
+fn variation_blocks(lines: &[VariationLine]) -> Vec<Block> {
+    let rows: Vec<Vec<String>> = lines
         .iter()
         .filter(|v| v.sd_total.is_some())
         .map(|v| {
@@ -46,10 +68,7 @@ pub(super) fn variation(r: &Report) -> Section {
                 .into(),
         ));
     }
-    Section {
-        title: "Variation",
-        blocks,
-    }
+    blocks
 }
 
 pub(super) fn absorbed(r: &Report) -> Section {

@@ -54,6 +54,8 @@ pub struct Report {
     pub unit_slips: Vec<UnitSlip>,
     /// How many unit slips were found in all.
     pub unit_slips_total: u64,
+    /// How many level variables were searched for unit slips.
+    pub unit_slips_searched: u64,
     /// Accounting rules and their violations.
     pub rules: Vec<RuleLine>,
     /// Each derived variable with its null counts by reason.
@@ -101,6 +103,7 @@ impl Report {
             outliers: Vec::new(),
             unit_slips: Vec::new(),
             unit_slips_total: 0,
+            unit_slips_searched: 0,
             rules: Vec::new(),
             derived: Vec::new(),
             skipped: Vec::new(),

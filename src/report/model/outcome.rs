@@ -33,6 +33,13 @@ pub struct ModelReport {
     pub variance_convention: String,
     /// Slopes by estimator.
     pub slopes: Vec<Slope>,
+    /// Declared regressors no estimator identifies (linear combinations of the others).
+    pub not_identified: Vec<String>,
+    /// Declared regressors the within estimator does not identify under the declared effects
+    /// (pooled OLS and random effects keep them).
+    pub not_identified_within: Vec<String>,
+    /// The regressors the Hausman test compares (those both estimators identify).
+    pub hausman_compares: Vec<String>,
     /// Rules of thumb that apply, each with its source.
     pub warnings: Vec<String>,
 }
@@ -66,15 +73,19 @@ pub struct ModelTest {
 pub struct Slope {
     /// The regressor.
     pub variable: String,
-    /// Pooled OLS.
-    pub pooled: f64,
-    /// Within (fixed effects).
-    pub within: f64,
-    /// Random effects (Swamy–Arora).
+    /// Pooled OLS (null when not identified).
+    pub pooled: Option<f64>,
+    /// Its conventional OLS standard error.
+    pub pooled_se: Option<f64>,
+    /// Within (fixed effects); null when the declared effects absorb the regressor.
+    pub within: Option<f64>,
+    /// Random effects (Swamy–Arora); null when not computable.
     pub random: Option<f64>,
-    /// (within - pooled) / |pooled|, in percent.
-    pub change_within_vs_pooled: Option<f64>,
-    /// The sign differs or the size moves by more than half.
+    /// (within - pooled) / pooled standard error: the move in units of the pooled SE.
+    pub within_minus_pooled_in_se: Option<f64>,
+    /// Pooled and within slopes have opposite signs.
+    pub sign_flip: bool,
+    /// The sign flips or the move exceeds 2 pooled standard errors.
     pub material: bool,
 }
 

@@ -1,0 +1,588 @@
+//! Hostile input: each case asserts the exit code, a one-line message naming the file, row,
+//! column or rule where there is one, and that no bundle (not even a partial one) is left.
+//! Valid edge data must build a correct bundle.
+
+use crate::util::Workdir;
+
+const KEYS: &str = "[panel]\nentity = \"firm\"\nperiod = \"year\"\n";
+const GOOD: &str = "firm,year,assets\nA,2001,10\nA,2002,12\nB,2001,5\nB,2002,6\n";
+
+/// A case that must stop with exit 2 and a message containing every `want`.
+struct Bad {
+    name: &'static str,
+    data: &'static [u8],
+    file: &'static str,
+    rules: String,
+    want: &'static [&'static str],
+}
+
+fn bad(name: &'static str, data: &'static [u8], rules: &str, want: &'static [&'static str]) -> Bad {
+    Bad {
+        name,
+        data,
+        file: "raw.csv",
+        rules: format!("{KEYS}{rules}"),
+        want,
+    }
+}
+
+fn check_bad(case: &Bad) {
+    let w = Workdir::new();
+    std::fs::write(w.path(case.file), case.data).unwrap();
+    w.write("rules.toml", &case.rules);
+    for cmd in ["build", "audit"] {
+        let mut args = vec![cmd, case.file, "--rules", "rules.toml"];
+        if cmd == "build" {
+            args.extend(["--out", "out"]);
+        }
+        let r = w.run(&args);
+        assert_eq!(
+            r.code, 2,
+            "{}: {cmd} exit {}\nstdout: {}\nstderr: {}",
+            case.name, r.code, r.stdout, r.stderr
+        );
+        let line = r.stderr.trim_end();
+        assert_eq!(
+            line.lines().count(),
+            1,
+            "{}: not one line:\n{line}",
+            case.name
+        );
+        assert!(
+            line.starts_with("panelready: error: "),
+            "{}: {line}",
+            case.name
+        );
+        for want in case.want {
+            assert!(line.contains(want), "{}: lacks {want:?}: {line}", case.name);
+        }
+        assert!(r.stdout.is_empty(), "{}: printed {}", case.name, r.stdout);
+        assert!(!w.path("out").exists(), "{}: left a bundle", case.name);
+        let leftovers: Vec<_> = std::fs::read_dir(w.dir.path())
+            .unwrap()
+            .filter_map(|e| e.ok())
+            .map(|e| e.file_name().to_string_lossy().to_string())
+            .filter(|n| n.contains("partial"))
+            .collect();
+        assert!(leftovers.is_empty(), "{}: {leftovers:?}", case.name);
+    }
+}
+
+#[test]
+fn malformed_csv_stops_with_one_located_line() {
+    let cases = [
+        bad(
+            "header only",
+            b"firm,year,assets\n",
+            "",
+            &["raw.csv", "no data rows"],
+        ),
+        bad("empty file", b"", "", &["raw.csv"]),
+        bad(
+            "duplicate column",
+            b"firm,year,assets,assets\nA,2001,1,2\n",
+            "",
+            &["raw.csv", "`assets`", "more than once"],
+        ),
+        bad(
+            "duplicate key column",
+            b"firm,year,firm\nA,2001,B\n",
+            "",
+            &["`firm`", "more than once"],
+        ),
+        bad(
+            "unterminated quote",
+            b"firm,year,name\nA,2001,ok\nB,2002,\"never closed\nC,2003,x\n",
+            "",
+            &["raw.csv", "row 2", "never closed"],
+        ),
+        bad(
+            "latin-1 cell",
+            b"firm,year,name\nA,2001,ok\nB,2002,M\xfcller\n",
+            "",
+            &["raw.csv", "row 2", "column 3", "UTF-8"],
+        ),
+        bad(
+            "text period",
+            b"firm,year,assets\nA,2001,1\nA,twenty,2\n",
+            "",
+            &["raw.csv", "row 2", "`twenty`"],
+        ),
+        bad(
+            "decimal period",
+            b"firm,year,assets\nA,2001.5,1\n",
+            "",
+            &["raw.csv", "row 1"],
+        ),
+        bad(
+            "no entity column",
+            b"company,year,assets\nA,2001,1\n",
+            "",
+            &["raw.csv", "`firm`", "entity"],
+        ),
+        bad(
+            "no period column",
+            b"firm,fy,assets\nA,2001,1\n",
+            "",
+            &["raw.csv", "`year`", "period"],
+        ),
+        bad(
+            "reserved column name",
+            b"firm,year,__row\nA,2001,1\n",
+            "",
+            &["`__row`", "reserved"],
+        ),
+        bad(
+            "conflicting keys under fail",
+            b"firm,year,assets\nA,2001,1\nA,2001,2\n",
+            "",
+            &["raw.csv", "entity `A`", "2001"],
+        ),
+    ];
+    for case in &cases {
+        if case.name == "conflicting keys under fail" {
+            // `audit` reports conflicts instead of stopping; only `build` stops.
+            let w = Workdir::new();
+            std::fs::write(w.path(case.file), case.data).unwrap();
+            w.write("rules.toml", &case.rules);
+            for want in case.want {
+                w.fails(
+                    &["build", case.file, "--rules", "rules.toml", "--out", "out"],
+                    want,
+                );
+            }
+            assert!(!w.path("out").exists());
+            w.ok(&["audit", case.file, "--rules", "rules.toml"]);
+            continue;
+        }
+        check_bad(case);
+    }
+}
+
+#[test]
+fn bad_rules_stop_before_any_data_is_read_identically_for_audit_and_build() {
+    let cases = [
+        bad("toml syntax", GOOD.as_bytes(), "[clean\n", &["rules file"]),
+        bad(
+            "unknown key",
+            GOOD.as_bytes(),
+            "[clean]\nfrobnicate = 1\n",
+            &["rules file"],
+        ),
+        bad(
+            "bad duplicate policy",
+            GOOD.as_bytes(),
+            "[clean]\nduplicates = \"keep-some\"\n",
+            &["duplicates", "keep-some"],
+        ),
+        bad(
+            "bad singleton policy",
+            GOOD.as_bytes(),
+            "[clean]\ndrop_singletons = \"often\"\n",
+            &["drop_singletons"],
+        ),
+        bad(
+            "bad balance",
+            GOOD.as_bytes(),
+            "[clean]\nbalance = \"tidy\"\n",
+            &["balance"],
+        ),
+        bad(
+            "winsorize unknown variable",
+            GOOD.as_bytes(),
+            "[clean]\nwinsorize = { variables = [\"nosuch\"], lower = 0.01, upper = 0.99 }\n",
+            &["nosuch"],
+        ),
+        bad(
+            "winsorize bad range",
+            GOOD.as_bytes(),
+            "[clean]\nwinsorize = { variables = [\"assets\"], lower = 0.9, upper = 0.1 }\n",
+            &["winsorize"],
+        ),
+        bad(
+            "bad verdict level",
+            GOOD.as_bytes(),
+            "[verdict]\ngaps = \"maybe\"\n",
+            &["[verdict] gaps", "maybe"],
+        ),
+        bad(
+            "bad threshold",
+            GOOD.as_bytes(),
+            "[thresholds]\nrobust_z = -1\n",
+            &["robust_z"],
+        ),
+        bad(
+            "bad outlier cutoffs",
+            GOOD.as_bytes(),
+            "[audit]\noutliers = { lower = 0.5, upper = 0.2 }\n",
+            &["[audit] outliers"],
+        ),
+        bad(
+            "bad effects",
+            GOOD.as_bytes(),
+            "[model]\noutcome = \"assets\"\nregressors = [\"assets\"]\neffects = \"firm\"\n",
+            &["effects"],
+        ),
+        bad(
+            "model names unknown column",
+            GOOD.as_bytes(),
+            "[model]\noutcome = \"nosuch\"\nregressors = [\"assets\"]\n",
+            &["`nosuch`", "[model]"],
+        ),
+        Bad {
+            name: "unknown library",
+            data: GOOD.as_bytes(),
+            file: "raw.csv",
+            rules: format!("include = [\"premium\"]\n{KEYS}"),
+            want: &["`premium`"],
+        },
+        bad(
+            "mapping to a missing column",
+            GOOD.as_bytes(),
+            "[columns]\ntotal_assets = \"ta\"\n",
+            &["`ta`", "total_assets"],
+        ),
+        bad(
+            "bad rule action",
+            GOOD.as_bytes(),
+            "[[rule]]\nname = \"pos\"\nexpr = \"assets > 0\"\naction = \"explode\"\n",
+            &["`pos`"],
+        ),
+        bad(
+            "prefer-max unknown column",
+            b"firm,year,assets\nA,2001,1\nA,2001,2\n",
+            "[clean]\nduplicates = \"prefer-max:nosuch\"\n",
+            &["`nosuch`"],
+        ),
+    ];
+    for case in &cases {
+        check_bad(case);
+    }
+}
+
+#[test]
+fn bad_expressions_name_the_rule() {
+    let rule = |expr: &str| format!("[derive.x]\nexpr = \"{expr}\"\n");
+    let cases: Vec<(String, &[&str])> = vec![
+        (rule("assets +"), &["`x`", "syntax error"]),
+        (rule("assets / nosuch"), &["`x`", "`nosuch`"]),
+        (rule("frobnicate(assets)"), &["`x`", "`frobnicate`"]),
+        (rule("assets / sum(assets)"), &["`x`", "`sum`", "whole column"]),
+        (rule("assets - avg(assets)"), &["`x`", "`avg`"]),
+        (rule("max(assets)"), &["`x`", "`max`"]),
+        (rule("count(assets)"), &["`x`", "`count`"]),
+        (rule("median(assets)"), &["`x`", "`median`"]),
+        (
+            rule("assets / first_value(assets) OVER (ORDER BY year)"),
+            &["`x`", "whole column"],
+        ),
+        (rule("row_number() OVER ()"), &["`x`", "whole column"]),
+        (rule("lag(assets + 1, 1)"), &["`x`", "column name"]),
+        (rule("lag(assets, 0)"), &["`x`", "at least 1"]),
+        (rule("lag(assets, -1)"), &["`x`"]),
+        (rule("lag(assets, 1, 2)"), &["`x`"]),
+        (rule("assets assets"), &["`x`", "unexpected"]),
+        (
+            "[derive.x]\nexpr = \"y + 1\"\n[derive.y]\nexpr = \"x + 1\"\n".into(),
+            &["cycle"],
+        ),
+        (rule("t.assets"), &["`x`", "`t.assets`"]),
+        (
+            "[derive.x]\nexpr = \"assets\"\nnull_when = [{ when = \"nosuch > 0\", reason = \"r\" }]\n"
+                .into(),
+            &["`x`", "`nosuch`"],
+        ),
+        (
+            "[[rule]]\nname = \"r1\"\nexpr = \"lag(assets, 1) > 0\"\n".into(),
+            &["`r1`"],
+        ),
+        (
+            "[[rule]]\nname = \"r2\"\nexpr = \"assets > nosuch\"\n".into(),
+            &["`r2`", "`nosuch`"],
+        ),
+    ];
+    for (rules, want) in cases {
+        let case = Bad {
+            name: "expression",
+            data: GOOD.as_bytes(),
+            file: "raw.csv",
+            rules: format!("{KEYS}{rules}"),
+            want,
+        };
+        check_bad(&case);
+    }
+}
+
+#[test]
+fn bad_paths_and_arguments_are_one_line_errors() {
+    let w = Workdir::new();
+    w.write("raw.csv", GOOD);
+    w.write("rules.toml", KEYS);
+    w.fails(
+        &["build", "nosuch.csv", "--rules", "rules.toml", "--out", "o"],
+        "nosuch.csv",
+    );
+    w.fails(
+        &["audit", "raw.csv", "--rules", "nosuch.toml"],
+        "nosuch.toml",
+    );
+    w.write("raw.dat", GOOD);
+    w.fails(
+        &["audit", "raw.dat", "--rules", "rules.toml"],
+        "--input-format",
+    );
+    // The bundle may not overwrite its input, nor a folder that is not a bundle.
+    w.fails(
+        &["build", "raw.csv", "--rules", "rules.toml", "--out", "."],
+        "overwrite the input",
+    );
+    w.write("full/notes.txt", "mine");
+    w.fails(
+        &["build", "raw.csv", "--rules", "rules.toml", "--out", "full"],
+        "refusing to replace",
+    );
+    assert_eq!(
+        std::fs::read_to_string(w.path("full/notes.txt")).unwrap(),
+        "mine"
+    );
+    // A Parquet file that is not Parquet.
+    w.write("fake.parquet", "firm,year\nA,2001\n");
+    w.fails(
+        &["audit", "fake.parquet", "--rules", "rules.toml"],
+        "fake.parquet",
+    );
+    w.fails(&["verify", "nosuch-dir"], "nosuch-dir");
+}
+
+#[test]
+fn tampered_bundles_are_caught_by_verify() {
+    let w = Workdir::new();
+    w.write("raw.csv", GOOD);
+    w.write("rules.toml", KEYS);
+    w.ok(&["build", "raw.csv", "--rules", "rules.toml", "--out", "b"]);
+    w.ok(&["verify", "b"]);
+    // An edited output: exit 1 naming it.
+    let panel = std::fs::read_to_string(w.path("b/panel.csv")).unwrap();
+    w.write("b/panel.csv", &panel.replace("12", "13"));
+    let r = w.run(&["verify", "b"]);
+    assert_eq!(r.code, 1, "{}", r.stderr);
+    assert!(r.stdout.contains("panel.csv"), "{}", r.stdout);
+    // A broken manifest, and an edited input: exit 2, one line.
+    w.ok(&["build", "raw.csv", "--rules", "rules.toml", "--out", "c"]);
+    w.write("c/manifest.json", "{ not json");
+    w.fails(&["verify", "c"], "manifest");
+    w.ok(&["build", "raw.csv", "--rules", "rules.toml", "--out", "d"]);
+    w.write("raw.csv", &GOOD.replace("12", "99"));
+    w.fails(&["verify", "d"], "changed since the bundle was built");
+}
+
+#[test]
+fn valid_edge_data_builds_a_correct_bundle() {
+    let with_model = "[model]\noutcome = \"y\"\nregressors = [\"x\"]\n";
+    let cases: Vec<(&str, String, String)> =
+        vec![
+        ("single row", "firm,year,x,y\nA,2001,1,2\n".into(), String::new()),
+        (
+            "single entity",
+            "firm,year,x,y\nA,2001,1,2\nA,2002,2,3\nA,2003,4,4\n".into(),
+            with_model.into(),
+        ),
+        (
+            "single period",
+            "firm,year,x,y\nA,2001,1,2\nB,2001,2,3\nC,2001,4,4\n".into(),
+            with_model.into(),
+        ),
+        (
+            "every value identical, with a model",
+            (0..40)
+                .map(|i| format!("F{},{},1,1\n", i / 4, 2001 + i % 4))
+                .fold("firm,year,x,y\n".to_string(), |a, b| a + &b),
+            with_model.into(),
+        ),
+        (
+            "collinear regressors",
+            (0..40)
+                .map(|i| format!("F{},{},{},{},{}\n", i / 4, 2001 + i % 4, i, 2 * i, i % 7))
+                .fold("firm,year,x,z,y\n".to_string(), |a, b| a + &b),
+            "[model]\noutcome = \"y\"\nregressors = [\"x\", \"z\"]\n".into(),
+        ),
+        (
+            "inf and nan",
+            "firm,year,x,y\nA,2001,inf,2\nA,2002,NaN,3\nB,2001,-inf,1\nB,2002,1e308,5\n".into(),
+            String::new(),
+        ),
+        (
+            "huge values",
+            "firm,year,x,y\nA,2001,1e300,2\nA,2002,-1e300,3\nB,2001,1e-300,1\nB,2002,0,5\n"
+                .into(),
+            String::new(),
+        ),
+        (
+            "unicode entity ids",
+            "firm,year,x,y\nÅland Öy,2001,1,2\nÅland Öy,2002,2,3\n東海,2001,3,1\n東海,2002,4,5\n"
+                .into(),
+            String::new(),
+        ),
+        (
+            "sql keywords as column names",
+            "firm,year,select,from,y\nA,2001,1,2,3\nA,2002,2,3,4\n".into(),
+            "[derive.s]\nexpr = '\"select\" + \"from\"'\n".into(),
+        ),
+        (
+            "formula-looking text",
+            "firm,year,note,y\nA,2001,=cmd(),2\nA,2002,+1,3\n".into(),
+            String::new(),
+        ),
+    ];
+    for (name, data, rules) in cases {
+        let w = Workdir::new();
+        w.write("raw.csv", &data);
+        w.write("rules.toml", &format!("{KEYS}{rules}"));
+        let r = w.run(&["build", "raw.csv", "--rules", "rules.toml", "--out", "b"]);
+        assert_eq!(r.code, 0, "{name}: {}", r.stderr);
+        let manifest: serde_json::Value =
+            serde_json::from_str(&std::fs::read_to_string(w.path("b/manifest.json")).unwrap())
+                .unwrap();
+        let rows = &manifest["rows"];
+        assert_eq!(
+            rows["input"].as_u64().unwrap(),
+            rows["kept"].as_u64().unwrap() + rows["rejected"].as_u64().unwrap(),
+            "{name}"
+        );
+        assert_eq!(
+            rows["input"].as_u64().unwrap(),
+            data.lines().count() as u64 - 1,
+            "{name}"
+        );
+        w.ok(&[
+            "audit",
+            "raw.csv",
+            "--rules",
+            "rules.toml",
+            "--format",
+            "json",
+        ]);
+    }
+}
+
+#[test]
+fn files_researchers_really_get_are_read() {
+    // The same four firm-years as GOOD, written as a European provider would: semicolons,
+    // decimal commas, Windows-1252 text; and the plain file gzip-compressed.
+    let w = Workdir::new();
+    w.write("plain.csv", "firm,year,assets,name\nA,2001,10.5,Müller\nA,2002,12,Müller\nB,2001,5.25,Ørsted\nB,2002,6,Ørsted\n");
+    let euro = "firm;year;assets;name\nA;2001;10,5;M\u{fc}ller\nA;2002;12;M\u{fc}ller\nB;2001;5,25;\u{d8}rsted\nB;2002;6;\u{d8}rsted\n";
+    let (latin1, _, _) = encoding_rs::WINDOWS_1252.encode(euro);
+    std::fs::write(w.path("euro.csv"), &latin1).unwrap();
+    w.write("rules.toml", KEYS);
+    w.ok(&[
+        "build",
+        "plain.csv",
+        "--rules",
+        "rules.toml",
+        "--out",
+        "plain",
+    ]);
+    let want = std::fs::read_to_string(w.path("plain/panel.csv")).unwrap();
+    // Without the options: the Latin-1 byte is named with its row and column.
+    w.fails(
+        &[
+            "audit",
+            "euro.csv",
+            "--rules",
+            "rules.toml",
+            "--delimiter",
+            ";",
+        ],
+        "row 1, column 4",
+    );
+    w.ok(&[
+        "build",
+        "euro.csv",
+        "--rules",
+        "rules.toml",
+        "--out",
+        "euro",
+        "--delimiter",
+        ";",
+        "--decimal-comma",
+        "--encoding",
+        "latin-1",
+    ]);
+    assert_eq!(
+        std::fs::read_to_string(w.path("euro/panel.csv")).unwrap(),
+        want
+    );
+    // The same from `[input]` in the rules file; and verify rebuilds it bit for bit.
+    w.write(
+        "euro.toml",
+        &format!(
+            "{KEYS}[input]\ndelimiter = \";\"\ndecimal_comma = true\nencoding = \"windows-1252\"\n"
+        ),
+    );
+    w.ok(&[
+        "build",
+        "euro.csv",
+        "--rules",
+        "euro.toml",
+        "--out",
+        "euro2",
+    ]);
+    assert_eq!(
+        std::fs::read_to_string(w.path("euro2/panel.csv")).unwrap(),
+        want
+    );
+    w.ok(&["verify", "euro2"]);
+    // A decimal comma needs another delimiter; a delimiter is one character.
+    w.fails(
+        &[
+            "audit",
+            "plain.csv",
+            "--rules",
+            "rules.toml",
+            "--decimal-comma",
+        ],
+        "decimal_comma",
+    );
+    w.fails(
+        &[
+            "audit",
+            "plain.csv",
+            "--rules",
+            "rules.toml",
+            "--delimiter",
+            ";;",
+        ],
+        "--delimiter",
+    );
+    w.fails(
+        &[
+            "audit",
+            "plain.csv",
+            "--rules",
+            "rules.toml",
+            "--encoding",
+            "ebcdic",
+        ],
+        "ebcdic",
+    );
+    // gzip-compressed CSV, recognised by its extension and its first bytes.
+    let status = std::process::Command::new("gzip")
+        .args(["-k", "-n"])
+        .arg(w.path("plain.csv"))
+        .status()
+        .expect("gzip is needed for this test");
+    assert!(status.success());
+    w.ok(&[
+        "build",
+        "plain.csv.gz",
+        "--rules",
+        "rules.toml",
+        "--out",
+        "gz",
+    ]);
+    assert_eq!(
+        std::fs::read_to_string(w.path("gz/panel.csv")).unwrap(),
+        want
+    );
+}
