@@ -19,7 +19,10 @@ kit=$(cd "${PANELBENCH_KIT:-$repo/../shared/bench}" && pwd)
 root=${PANELBENCH_ROOT:-/tmp/panelbench}
 repeat=${PANELBENCH_REPEAT:-1}
 
-# The binary the README's commands build (the dev profile).
+# The binary the README's commands build (the dev profile), in the target folder .ci/run uses
+# unless CARGO_TARGET_DIR says otherwise (a cold polars build takes a long while).
+export CARGO_TARGET_DIR=${CARGO_TARGET_DIR:-${XDG_CACHE_HOME:-${HOME:-/tmp}/.cache}/panelready/target}
+echo "== cargo build (target folder $CARGO_TARGET_DIR)" >&2
 (cd "$repo" && cargo build --quiet)
 target=$(cd "$repo" && cargo metadata --format-version 1 --no-deps |
   python3 -c 'import json, sys; print(json.load(sys.stdin)["target_directory"])')

@@ -86,7 +86,11 @@ pub struct OutputRecord {
 }
 
 /// Write the bundle for a prepared run; returns the manifest.
-pub fn write(cfg: &BuildConfig, prepared: &mut Prepared) -> Result<Manifest> {
+pub fn write(
+    cfg: &BuildConfig,
+    prepared: &mut Prepared,
+    progress: &crate::progress::Progress,
+) -> Result<Manifest> {
     let out = &cfg.out;
     let parent = match out.parent() {
         Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
@@ -105,7 +109,7 @@ pub fn write(cfg: &BuildConfig, prepared: &mut Prepared) -> Result<Manifest> {
         fs::remove_dir_all(&staging).map_err(Error::io(&staging))?;
     }
     fs::create_dir(&staging).map_err(Error::io(&staging))?;
-    let result = write_files(cfg, prepared, &staging);
+    let result = write_files(cfg, prepared, &staging, progress);
     let manifest = match result {
         Ok(m) => m,
         Err(e) => {
@@ -161,7 +165,12 @@ impl Write for HashingFile {
     }
 }
 
-fn write_files(cfg: &BuildConfig, p: &mut Prepared, dir: &Path) -> Result<Manifest> {
+fn write_files(
+    cfg: &BuildConfig,
+    p: &mut Prepared,
+    dir: &Path,
+    progress: &crate::progress::Progress,
+) -> Result<Manifest> {
     let mut outputs = Vec::new();
     let mut write = |file: &str, content: &mut dyn FnMut(&mut HashingFile) -> Result<()>| {
         let mut f = HashingFile::create(dir, file)?;
@@ -170,15 +179,22 @@ fn write_files(cfg: &BuildConfig, p: &mut Prepared, dir: &Path) -> Result<Manife
         Ok::<(), Error>(())
     };
 
+    progress.stage("writing panel.parquet");
     write("panel.parquet", &mut |f| {
-        ParquetWriter::new(f).finish(&mut p.panel)?;
+        // Snappy, as most Parquet writers default to: several times faster to write than
+        // zstd, at a somewhat larger file.
+        ParquetWriter::new(f)
+            .with_compression(ParquetCompression::Snappy)
+            .finish(&mut p.panel)?;
         Ok(())
     })?;
+    progress.stage("writing panel.csv and rejected.csv");
     if cfg.panel_csv {
         write("panel.csv", &mut |f| write_csv(f, &p.panel))?;
     }
     write("rejected.csv", &mut |f| write_csv(f, &p.rejected))?;
 
+    progress.stage("writing the reports and the dictionary");
     for (file, format) in [
         ("report.md", ReportFormat::Markdown),
         ("report.json", ReportFormat::Json),
@@ -196,6 +212,7 @@ fn write_files(cfg: &BuildConfig, p: &mut Prepared, dir: &Path) -> Result<Manife
             .map_err(Error::io(dir.join("dictionary.md")))
     })?;
 
+    progress.stage("hashing the input");
     let input_abs = std::path::absolute(&cfg.input.path).map_err(Error::io(&cfg.input.path))?;
     let rules_path = match &cfg.input.rules.path {
         Some(r) => Some(

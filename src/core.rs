@@ -167,8 +167,8 @@ impl PanelCore {
         }
         // b = D' x~ (period sums of the entity-demeaned values) and A = D' M D =
         // diag(n_t) - sum_i c_i c_i' / T_i, c_i the entity's counts per period.
-        let mut b = DVector::<f64>::zeros(nt);
-        let mut a = DMatrix::<f64>::zeros(nt, nt);
+        let mut b = vec![0.0; nt];
+        let mut a = vec![0.0; nt * nt];
         let mut seen: Vec<(usize, f64)> = Vec::new();
         for i in 0..ne {
             if e_n[i] == 0 {
@@ -188,13 +188,14 @@ impl PanelCore {
             }
             let inv = 1.0 / e_n[i] as f64;
             for &(t, ct) in &seen {
-                a[(t, t)] += ct;
+                let row = &mut a[t * nt..(t + 1) * nt];
+                row[t] += ct;
                 for &(s, cs) in &seen {
-                    a[(t, s)] -= ct * cs * inv;
+                    row[s] -= ct * cs * inv;
                 }
             }
         }
-        let beta = solve_psd(a, &b);
+        let beta = solve_psd(DMatrix::from_row_slice(nt, nt, &a), &DVector::from_vec(b));
         // Fitted period part of each row, entity-demeaned: beta_t - mean over the entity's
         // rows of beta; the residual is what is left of x~.
         let mut rss = 0.0;

@@ -132,7 +132,7 @@ pub fn build(cfg: &BuildConfig) -> Result<bundle::Manifest> {
     let progress = progress::Progress::new(cfg.input.quiet, cfg.input.timings);
     let mut prepared = pipeline::prepare(&cfg.input, pipeline::Mode::Build, &progress)?;
     progress.stage("writing the bundle");
-    bundle::write(cfg, &mut prepared)
+    bundle::write(cfg, &mut prepared, &progress)
 }
 
 fn demo_cmd(cfg: &DemoConfig) -> Result<i32> {

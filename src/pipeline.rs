@@ -79,7 +79,7 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
             });
         }
     }
-    progress.stage("key steps and derived variables");
+    progress.stage("key steps");
     let plan = Plan::new(rules, &loaded.columns)?;
     let (accounting_rules, skipped_rules) = accounting::compile(rules, &loaded.columns)?;
     let verdict_levels = audit::verdict::Levels::from_rules(&rules.file)?;
@@ -95,6 +95,7 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
     let mut ledger_parts = resolved.rejected;
 
     // Accounting rules act before derivation, so no derived ratio uses a value they reject.
+    progress.stage("accounting rules");
     let rule_lines = accounting::count(&resolved.kept, &accounting_rules)?;
     let mut kept = resolved.kept;
     {
@@ -117,6 +118,7 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
     } else {
         Layout::Any
     };
+    progress.stage("derived variables");
     let sorted = kept.lazy().sort(
         [input.entity.as_str(), input.period.as_str(), ROW],
         Default::default(),
@@ -127,15 +129,15 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
     let mut order = vec![col(ROW)];
     order.extend(loaded.columns.iter().map(|c| col(c.as_str())));
     order.extend(plan.vars.iter().map(|v| col(v.name.as_str())));
-    let panel = with_hidden
-        .lazy()
-        .drop(cols(hidden))
-        .select(order)
-        .sort(
+    let mut panel = with_hidden.lazy().drop(cols(hidden)).select(order);
+    if layout == Layout::Any {
+        // The joins of the lag columns may reorder rows; sorted lags keep the order.
+        panel = panel.sort(
             [input.entity.as_str(), input.period.as_str(), ROW],
             Default::default(),
-        )
-        .collect()?;
+        );
+    }
+    let panel = panel.collect()?;
 
     let mut report = Report::new(InputSummary {
         // The file name only: the report must not depend on where the bundle was built from

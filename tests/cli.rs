@@ -587,3 +587,74 @@ fn audit_rejects_exactly_the_rules_files_build_rejects() {
         assert_eq!(audit.stderr, build.stderr, "{value}");
     }
 }
+
+#[test]
+fn a_check_that_examined_nothing_says_not_checked_and_lags_raise_no_break() {
+    // No variable to compare between leavers and stayers (no derived variable but a lag,
+    // which is null at every entry), no level variable, no accounting rule: three checks had
+    // nothing to examine. The lag is null by construction in the window's first period: no
+    // missing-value break there (hand-worked: 40% missing in 2001 would otherwise jump to 0).
+    let w = Workdir::new();
+    let mut csv = String::from("firm,year,x\n");
+    for f in ["A", "B", "C", "D", "E"] {
+        for y in 2001..=2004 {
+            csv.push_str(&format!("{f},{y},{}\n", y - 2000 + f.len()));
+        }
+    }
+    w.write("p.csv", &csv);
+    w.write(
+        "r.toml",
+        "[panel]\nentity = \"firm\"\nperiod = \"year\"\n[audit]\ncompare = []\n\
+         [derive.x_lag]\nexpr = \"lag(x, 1)\"\n[derive.x_growth]\nexpr = \"growth(x, 2)\"\n",
+    );
+    let r = w.ok(&["audit", "p.csv", "--rules", "r.toml", "--format", "json"]);
+    let report: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+    let status = |name: &str| {
+        report["verdict"]["checks"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|c| c["check"] == name)
+            .unwrap()["status"]
+            .clone()
+    };
+    assert_eq!(status("Entry and exit"), "not checked");
+    assert_eq!(status("Outliers and unit slips"), "not checked");
+    assert_eq!(status("Accounting rules"), "not checked");
+    assert_eq!(report["verdict"]["overall"], "pass");
+    assert_eq!(report["missing_breaks"], serde_json::json!([]));
+    // The same panel with a real break: x missing from 2003 on is still flagged.
+    let broken = csv
+        .lines()
+        .map(|l| {
+            if l.contains(",2003,") || l.contains(",2004,") {
+                let mut parts: Vec<&str> = l.split(',').collect();
+                parts[2] = "";
+                parts.join(",")
+            } else {
+                l.to_string()
+            }
+        })
+        .collect::<Vec<_>>()
+        .join("\n");
+    w.write("q.csv", &(broken + "\n"));
+    let r = w.ok(&["audit", "q.csv", "--rules", "r.toml", "--format", "json"]);
+    let report: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+    let breaks: Vec<(String, i64)> = report["missing_breaks"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|b| {
+            (
+                b["variable"].as_str().unwrap().to_string(),
+                b["period"].as_i64().unwrap(),
+            )
+        })
+        .collect();
+    assert!(breaks.contains(&("x".to_string(), 2003)), "{breaks:?}");
+    // ...while the lags' first periods still raise none.
+    assert!(
+        !breaks.iter().any(|(v, p)| v != "x" && *p <= 2003),
+        "{breaks:?}"
+    );
+}

@@ -96,7 +96,8 @@ fn line(core: &PanelCore, variable: &str, x: &Values, nearly: f64) -> VariationL
 }
 
 /// Text and other non-numeric variables: only whether each entity (or each period) holds
-/// a single value, which makes the variable's dummies absorbed by those effects.
+/// a single value, which makes the variable's dummies absorbed by those effects. One pass over
+/// the sorted panel per variable for entities; periods by the panel core's codes.
 fn categorical(ctx: &Context) -> Result<Vec<VariationLine>> {
     let others: Vec<&String> = ctx
         .variables
@@ -105,29 +106,28 @@ fn categorical(ctx: &Context) -> Result<Vec<VariationLine>> {
         .collect();
     let mut lines = Vec::new();
     for v in others {
-        let one_value = |by: &str| -> Result<bool> {
-            let df = ctx
-                .df
-                .clone()
-                .lazy()
-                .group_by([col(by)])
-                .agg([col(v.as_str()).drop_nulls().n_unique().alias("k")])
-                .select([col("k").max().alias("k")])
-                .collect()?;
-            Ok(df
-                .column("k")?
-                .cast(&DataType::UInt64)?
-                .u64()?
-                .get(0)
-                .unwrap_or(0)
-                <= 1)
+        let text = ctx.df.column(v)?.cast(&DataType::String)?;
+        let text = text.str()?;
+        let n = text.len() - text.null_count();
+        let core = &ctx.core;
+        // One value per group: the first value seen in each group, compared with the rest.
+        let one_value = |group: &[u32], groups: usize| -> bool {
+            let mut first: Vec<Option<&str>> = vec![None; groups];
+            for (g, value) in group.iter().zip(text.iter()) {
+                let Some(value) = value else { continue };
+                match first[*g as usize] {
+                    None => first[*g as usize] = Some(value),
+                    Some(f) if f != value => return false,
+                    Some(_) => {}
+                }
+            }
+            true
         };
-        let n = ctx.df.column(v)?.len() - ctx.df.column(v)?.null_count();
         let absorbed_by = if n < 2 {
             None
-        } else if one_value(ctx.entity)? {
+        } else if one_value(&core.entity, core.entities()) {
             Some(Absorbed::Entity)
-        } else if one_value(ctx.period)? {
+        } else if one_value(&core.period, core.periods.len()) {
             Some(Absorbed::Period)
         } else {
             None
