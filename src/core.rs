@@ -289,6 +289,30 @@ impl PanelCore {
     }
 }
 
+/// The `p` quantile of `v` by linear interpolation between order statistics (Hyndman & Fan
+/// type 7, numpy's default): position (n − 1) p in the sorted values. Reorders `v`; NaN sorts
+/// above every number, as the engine sorts it. None when `v` is empty.
+pub fn type7(v: &mut [f64], p: f64) -> Option<f64> {
+    let n = v.len();
+    if n == 0 {
+        return None;
+    }
+    let h = (n - 1) as f64 * p;
+    let lo = (h.floor() as usize).min(n - 1);
+    let (_, a, above) = v.select_nth_unstable_by(lo, f64::total_cmp);
+    let a = *a;
+    let frac = h - lo as f64;
+    if frac <= 0.0 || above.is_empty() {
+        return Some(a);
+    }
+    let b = above
+        .iter()
+        .copied()
+        .min_by(f64::total_cmp)
+        .expect("not empty");
+    Some(a + (b - a) * frac)
+}
+
 /// One variable's values in row order, as f64, with a flag per row for a value present.
 #[derive(Debug, Clone, Default)]
 pub struct Values {
@@ -306,6 +330,11 @@ impl Values {
             ok.push(a.is_some());
         }
         Values { v, ok }
+    }
+
+    /// The values present, in row order.
+    pub fn present(&self) -> Vec<f64> {
+        self.iter().map(|(_, v)| v).collect()
     }
 
     /// The value of row `r`, if present.
@@ -414,6 +443,19 @@ mod tests {
         // A 2 x 2 block survives; the extra singleton D and a copied key do not change that.
         let c = core(&["A", "A", "A", "B", "B", "D"], &[1, 2, 2, 1, 2, 1]);
         assert_eq!(c.two_way_singletons(), 1);
+    }
+
+    #[test]
+    fn type7_quantiles_match_hand_worked_values() {
+        // Sorted 1, 2, 3, 4: position 3 p. p = 0.5 -> 2.5; p = 0.1 -> 1.3; p = 1 -> 4
+        // (numpy.percentile's default method gives the same, by hand).
+        let q = |p: f64| type7(&mut [4.0, 1.0, 3.0, 2.0], p).unwrap();
+        assert!((q(0.5) - 2.5).abs() < 1e-12);
+        assert!((q(0.1) - 1.3).abs() < 1e-12);
+        assert_eq!(q(1.0), 4.0);
+        assert_eq!(q(0.0), 1.0);
+        assert_eq!(type7(&mut [], 0.5), None);
+        assert_eq!(type7(&mut [7.0], 0.99), Some(7.0));
     }
 
     #[test]

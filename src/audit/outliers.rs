@@ -3,8 +3,10 @@
 //! levels. Missing values never enter a cutoff.
 
 use polars::prelude::*;
+use rayon::prelude::*;
 
-use super::{Check, Context};
+use super::{Check, Context, Settings};
+use crate::core::{type7, PanelCore, Values};
 use crate::report::{OutlierLine, Report};
 use crate::Result;
 
@@ -31,74 +33,84 @@ impl Check for Outliers {
 
     fn run(&self, ctx: &Context, report: &mut Report) -> Result<()> {
         let s = &ctx.settings;
-        let (lo, hi) = (s.lower, s.upper);
         let vars = &ctx.numeric;
         if vars.is_empty() {
             return Ok(());
         }
-        let x = |v: &str| col(v).cast(DataType::Float64);
-        let q = |v: &str, p: f64| x(v).quantile(lit(p), QuantileMethod::Linear);
-        let groups: Vec<Expr> = match s.by {
-            CutoffGroups::Pooled => vec![],
-            CutoffGroups::Period => vec![col(ctx.period)],
-        };
-        let over = |e: Expr| -> Result<Expr> {
-            Ok(if groups.is_empty() {
-                e
-            } else {
-                e.over(groups.clone())?
+        // Typed kernels over the panel core, variables in parallel: each order statistic by
+        // selection (no full sort), each count in one pass.
+        let values: Vec<Values> = vars
+            .iter()
+            .map(|v| -> Result<Values> {
+                let c = ctx.df.column(v)?.cast(&DataType::Float64)?;
+                Ok(Values::new(c.f64()?))
             })
-        };
-        // One select of aggregates: nothing of the panel's length is materialised.
-        let mut aggs = Vec::new();
-        for (i, v) in vars.iter().enumerate() {
-            let lower = over(q(v, lo))?;
-            let upper = over(q(v, hi))?;
-            let median = x(v).median();
-            let mad = (x(v) - x(v).median()).abs().median() * lit(MAD_SCALE);
-            let count = |e: Expr| e.sum().cast(DataType::UInt64);
-            aggs.push(count(x(v).lt(lower.clone())).alias(format!("below{i}")));
-            aggs.push(count(x(v).gt(upper.clone())).alias(format!("above{i}")));
-            aggs.push(lower.first().alias(format!("lo{i}")));
-            aggs.push(upper.first().alias(format!("hi{i}")));
-            // With a MAD of zero the robust z is undefined: nothing is counted.
-            let z = ((x(v) - median) / mad.clone()).abs().gt(lit(s.robust_z));
-            aggs.push(count(z.and(mad.clone().gt(lit(0.0)))).alias(format!("z{i}")));
-            aggs.push(mad.alias(format!("mad{i}")));
-            let group_n = if groups.is_empty() {
-                x(v).count()
-            } else {
-                x(v).count().over(groups.clone())?.min()
-            };
-            aggs.push(group_n.cast(DataType::UInt64).alias(format!("gn{i}")));
-        }
-        let t = ctx.df.clone().lazy().select(aggs).collect()?;
-        let u = |c: String| -> Result<u64> { Ok(t.column(&c)?.u64()?.get(0).unwrap_or(0)) };
-        let f = |c: String| -> Result<Option<f64>> { Ok(t.column(&c)?.f64()?.get(0)) };
-        let smallest = (1.0 / lo.min(1.0 - hi)).ceil() as u64;
-        for (i, v) in vars.iter().enumerate() {
-            let min_group = u(format!("gn{i}"))?;
-            report.outliers.push(OutlierLine {
-                variable: v.clone(),
-                by: s.by,
-                lower: if s.by == CutoffGroups::Pooled {
-                    f(format!("lo{i}"))?
-                } else {
-                    None
-                },
-                upper: if s.by == CutoffGroups::Pooled {
-                    f(format!("hi{i}"))?
-                } else {
-                    None
-                },
-                below: u(format!("below{i}"))?,
-                above: u(format!("above{i}"))?,
-                mad: f(format!("mad{i}"))?,
-                robust_z_beyond: u(format!("z{i}"))?,
-                log_jumps: None,
-                small_groups: s.by == CutoffGroups::Period && min_group < smallest,
-            });
-        }
+            .collect::<Result<_>>()?;
+        let lines: Vec<OutlierLine> = vars
+            .par_iter()
+            .zip(values.par_iter())
+            .map(|(v, x)| line(&ctx.core, v, x, s))
+            .collect();
+        report.outliers.extend(lines);
         Ok(())
+    }
+}
+
+/// The outlier line of one variable.
+fn line(core: &PanelCore, variable: &str, x: &Values, s: &Settings) -> OutlierLine {
+    let (lo, hi) = (s.lower, s.upper);
+    let mut all = x.present();
+    let (mut below, mut above) = (0u64, 0u64);
+    let (lower, upper, min_group) = match s.by {
+        CutoffGroups::Pooled => {
+            let (l, u) = (type7(&mut all, lo), type7(&mut all, hi));
+            for v in &all {
+                below += u64::from(l.is_some_and(|l| *v < l));
+                above += u64::from(u.is_some_and(|u| *v > u));
+            }
+            (l, u, all.len() as u64)
+        }
+        CutoffGroups::Period => {
+            let mut groups: Vec<Vec<f64>> = vec![Vec::new(); core.periods.len()];
+            for (r, v) in x.iter() {
+                groups[core.period[r] as usize].push(v);
+            }
+            let mut smallest = u64::MAX;
+            for g in &mut groups {
+                smallest = smallest.min(g.len() as u64);
+                let (l, u) = (type7(g, lo), type7(g, hi));
+                for v in g.iter() {
+                    below += u64::from(l.is_some_and(|l| *v < l));
+                    above += u64::from(u.is_some_and(|u| *v > u));
+                }
+            }
+            (None, None, if groups.is_empty() { 0 } else { smallest })
+        }
+    };
+    // Robust z from the pooled median and MAD; with a MAD of zero nothing is counted.
+    let median = type7(&mut all, 0.5);
+    let mad = median.and_then(|m| {
+        let mut dev: Vec<f64> = all.iter().map(|v| (v - m).abs()).collect();
+        type7(&mut dev, 0.5).map(|d| d * MAD_SCALE)
+    });
+    let robust_z_beyond = match (median, mad) {
+        (Some(m), Some(d)) if d > 0.0 => all
+            .iter()
+            .filter(|v| ((*v - m) / d).abs() > s.robust_z)
+            .count() as u64,
+        _ => 0,
+    };
+    let smallest = (1.0 / lo.min(1.0 - hi)).ceil() as u64;
+    OutlierLine {
+        variable: variable.to_string(),
+        by: s.by,
+        lower,
+        upper,
+        below,
+        above,
+        mad,
+        robust_z_beyond,
+        log_jumps: None,
+        small_groups: s.by == CutoffGroups::Period && min_group < smallest,
     }
 }
