@@ -31,9 +31,12 @@ rules=$kit/rules_bench.toml
 
 export PANELBENCH_INPUTS=${PANELBENCH_INPUTS:-parquet}
 export PANELBENCH_TOOL_CMD="$bin build {in} --rules $rules --out {out} --quiet --no-panel-csv --timings"
+res=$root/results/$size
+# The kit clears its earlier results with `rm -f`; the bundles panelready wrote there are
+# folders, so clear them first.
+rm -rf "$res"/tool_parquet "$res"/tool_csv
 "$kit/run_peer.sh" "$size"
 
-res=$root/results/$size
 data=$(ls -t "$root"/data/panel_"${size}"_*.parquet | head -1)
 for i in $(seq 1 "$repeat"); do
   echo "== $size panelready audit run $i/$repeat" >&2
