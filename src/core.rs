@@ -228,12 +228,26 @@ impl PanelCore {
     /// has a single key left (Correia 2015): what is left is the largest set in which every
     /// entity and every period has two keys or more, whatever the order of removal.
     pub fn two_way_singletons(&self) -> u64 {
+        let (_, alive) = self.peel();
+        alive.iter().filter(|a| !**a).count() as u64
+    }
+
+    /// For each row, whether its key survives that iterated dropping.
+    pub fn two_way_kept(&self) -> Vec<bool> {
+        let (key_of_row, alive) = self.peel();
+        key_of_row.iter().map(|k| alive[*k as usize]).collect()
+    }
+
+    /// The distinct key of each row and whether each key survives the peeling.
+    fn peel(&self) -> (Vec<u32>, Vec<bool>) {
         // Distinct keys: copies of a key sit next to each other in the sorted panel.
         let mut keys: Vec<(u32, u32)> = Vec::with_capacity(self.rows());
+        let mut key_of_row = Vec::with_capacity(self.rows());
         for (e, t) in self.entity.iter().zip(&self.period) {
             if keys.last() != Some(&(*e, *t)) {
                 keys.push((*e, *t));
             }
+            key_of_row.push((keys.len() - 1) as u32);
         }
         let (ne, nt) = (self.entities(), self.periods.len());
         let mut e_keys = vec![0u32; ne];
@@ -249,7 +263,6 @@ impl PanelCore {
             e_start[e + 1] = e_start[e] + e_keys[e] as usize;
         }
         let mut alive = vec![true; keys.len()];
-        let mut removed = 0u64;
         let mut stack: Vec<(bool, u32)> = (0..ne)
             .filter(|e| e_keys[*e] == 1)
             .map(|e| (true, e as u32))
@@ -274,7 +287,6 @@ impl PanelCore {
             };
             let Some(k) = k else { continue };
             alive[k] = false;
-            removed += 1;
             let (e, t) = (keys[k].0 as usize, keys[k].1 as usize);
             e_keys[e] -= 1;
             t_keys[t] -= 1;
@@ -285,7 +297,7 @@ impl PanelCore {
                 stack.push((false, t as u32));
             }
         }
-        removed
+        (key_of_row, alive)
     }
 }
 
@@ -339,6 +351,12 @@ impl Values {
             ok.push(a.is_some());
         }
         Values { v, ok }
+    }
+
+    /// The values of column `name` of `df`, cast to f64.
+    pub fn of(df: &DataFrame, name: &str) -> Result<Values> {
+        let c = df.column(name)?.cast(&DataType::Float64)?;
+        Ok(Values::new(c.f64()?))
     }
 
     /// The values present, in row order.
@@ -452,6 +470,7 @@ mod tests {
         // A 2 x 2 block survives; the extra singleton D and a copied key do not change that.
         let c = core(&["A", "A", "A", "B", "B", "D"], &[1, 2, 2, 1, 2, 1]);
         assert_eq!(c.two_way_singletons(), 1);
+        assert_eq!(c.two_way_kept(), [true, true, true, true, true, false]);
     }
 
     #[test]

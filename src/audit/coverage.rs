@@ -156,33 +156,3 @@ fn shapes(entities: &DataFrame) -> Result<(Vec<Shape>, u64)> {
         .collect();
     Ok((shapes, grouped.height() as u64))
 }
-
-/// Drop rows whose entity or period has a single row, again and again until none is left
-/// (Correia 2015: dropping one singleton can create another). Returns the rows removed and
-/// the keys that survive. `keys` holds distinct (entity, period) pairs.
-pub fn two_way_singletons(
-    keys: &DataFrame,
-    entity: &str,
-    period: &str,
-) -> Result<(u64, DataFrame)> {
-    let mut kept = keys
-        .clone()
-        .lazy()
-        .select([col(entity), col(period)])
-        .collect()?;
-    loop {
-        let before = kept.height();
-        kept = kept
-            .lazy()
-            .filter(
-                len()
-                    .over([col(entity)])?
-                    .gt(lit(1))
-                    .and(len().over([col(period)])?.gt(lit(1))),
-            )
-            .collect()?;
-        if kept.height() == before {
-            return Ok(((keys.height() - kept.height()) as u64, kept));
-        }
-    }
-}

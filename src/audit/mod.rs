@@ -20,7 +20,7 @@ use crate::report::Report;
 use crate::Result;
 
 pub use attrition::{welch, Attrition};
-pub use coverage::{two_way_singletons, Coverage};
+pub use coverage::Coverage;
 pub use entry_exit::EntryExit;
 pub use glance::Glance;
 pub use missing::Missing;

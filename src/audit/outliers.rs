@@ -2,7 +2,6 @@
 //! beyond them, robust z-scores from the median and the MAD, and within-entity jumps in log
 //! levels. Missing values never enter a cutoff.
 
-use polars::prelude::*;
 use rayon::prelude::*;
 
 use super::{Check, Context, Settings};
@@ -41,10 +40,7 @@ impl Check for Outliers {
         // selection (no full sort), each count in one pass.
         let values: Vec<Values> = vars
             .iter()
-            .map(|v| -> Result<Values> {
-                let c = ctx.df.column(v)?.cast(&DataType::Float64)?;
-                Ok(Values::new(c.f64()?))
-            })
+            .map(|v| Values::of(ctx.df, v))
             .collect::<Result<_>>()?;
         let lines: Vec<OutlierLine> = vars
             .par_iter()

@@ -31,10 +31,7 @@ impl Check for Variation {
         // each sum runs in row order, so the figures are the same on every run.
         let values: Vec<Values> = vars
             .iter()
-            .map(|v| -> Result<Values> {
-                let c = ctx.df.column(v)?.cast(&DataType::Float64)?;
-                Ok(Values::new(c.f64()?))
-            })
+            .map(|v| Values::of(ctx.df, v))
             .collect::<Result<_>>()?;
         let core = &ctx.core;
         let lines: Vec<VariationLine> = vars

@@ -340,43 +340,25 @@ pub fn drop_singletons(
     k: &Keys,
 ) -> Result<(DataFrame, Option<DataFrame>)> {
     let (entity, period) = (k.entity, k.period);
-    let (keep, reason) = match policy {
+    let (marked, reason) = match policy {
         SingletonPolicy::Keep => return Ok((df, None)),
         SingletonPolicy::Entity => (
-            df.clone()
-                .lazy()
-                .select([col(entity), col(period)])
-                .filter(len().over([col(entity)])?.gt(lit(1)))
+            df.lazy()
+                .with_column(len().over([col(entity)])?.gt(lit(1)).alias("__keep"))
                 .collect()?,
             "entity observed in one period only",
         ),
         SingletonPolicy::EntityPeriod => {
-            let keys = df
-                .clone()
-                .lazy()
-                .select([col(entity), col(period)])
-                .unique(None, UniqueKeepStrategy::First)
-                .collect()?;
+            // The panel arrives sorted by entity and period: the panel core peels it.
+            let keep = crate::core::PanelCore::new(&df, entity, period)?.two_way_kept();
+            let mut df = df;
+            df.with_column(Column::new("__keep".into(), keep))?;
             (
-                crate::audit::two_way_singletons(&keys, entity, period)?.1,
+                df,
                 "its entity or period had a single row under entity and period effects (dropped iteratively)",
             )
         }
     };
-    let keep = keep.lazy().with_column(lit(true).alias("__keep"));
-    let marked = df
-        .lazy()
-        .join(
-            keep,
-            [col(entity), col(period)],
-            [col(entity), col(period)],
-            JoinArgs {
-                maintain_order: MaintainOrderJoin::Left,
-                ..JoinArgs::new(JoinType::Left)
-            },
-        )
-        .with_column(col("__keep").fill_null(lit(false)))
-        .collect()?;
     let removed = marked
         .clone()
         .lazy()

@@ -17,10 +17,14 @@ use crate::Result;
 
 mod linalg;
 mod residual_tests;
+mod sample;
+mod thumbs;
 
 use linalg::{demean, identified, identified_gram, means, ols, with_intercept};
 pub use residual_tests::cd_statistic;
 use residual_tests::{pesaran_cd, wooldridge};
+use sample::{extract, Sample};
+use thumbs::warnings;
 
 /// Effects the user plans.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -66,17 +70,6 @@ impl Check for Model {
         }
         Ok(())
     }
-}
-
-/// The estimation sample as plain vectors, grouped by entity (rows of an entity contiguous).
-pub(super) struct Sample {
-    pub(super) y: DVector<f64>,
-    pub(super) x: DMatrix<f64>,
-    pub(super) names: Vec<String>,
-    pub(super) declared: usize,
-    pub(super) entity: Vec<usize>,
-    pub(super) period: Vec<i64>,
-    pub(super) sizes: Vec<usize>,
 }
 
 fn p_chi2(stat: f64, df: f64) -> Option<f64> {
@@ -535,123 +528,4 @@ pub(super) fn reading(p: Option<f64>, yes: &str, no: &str) -> String {
         Some(_) => no.to_string(),
         None => "not computable (the statistic is not a finite number)".to_string(),
     }
-}
-
-fn warnings(
-    variation: &[VariationLine],
-    spec: &ModelSpec,
-    s: &Sample,
-    b_w: &DVector<f64>,
-    within_keep: &[usize],
-    out: &mut ModelReport,
-) {
-    let n = s.sizes.len();
-    if n < 20 {
-        out.warnings.push(format!("only {n} entities: cluster-robust standard errors are unreliable with so few clusters (Cameron & Miller 2015, J. Human Resources 50(2))"));
-    } else if n < 50 {
-        out.warnings.push(format!("{n} entities: cluster-robust inference may be unreliable with fewer than about 50 clusters (Cameron & Miller 2015, J. Human Resources 50(2))"));
-    }
-    let mean_t = s.y.len() as f64 / n as f64;
-    if spec.lagged_outcome {
-        let lag = s.declared - 1;
-        if let Some(p) = within_keep.iter().position(|c| *c == lag) {
-            let rho = b_w[p];
-            let bias = -(1.0 + rho) / (mean_t - 1.0);
-            out.warnings.push(format!(
-                "lagged outcome with entity effects and mean T = {mean_t:.1}: the within estimate of its coefficient ({rho:.3}) is biased by about {bias:.3} (Nickell 1981, Econometrica 49(6), approximation -(1 + rho) / (T - 1))"
-            ));
-        }
-    }
-    if out.sample_singletons > 0 {
-        out.warnings.push(format!(
-            "{} entities have a single row in the estimation sample: under entity effects they add nothing but can overstate significance when kept (Correia 2015)",
-            out.sample_singletons
-        ));
-    }
-    // One warning per regressor, for the effects declared.
-    let effects = match spec.effects {
-        Effects::Entity => "entity effects",
-        Effects::EntityPeriod => "entity and period effects",
-    };
-    for v in &out.not_identified {
-        out.warnings.push(format!(
-            "`{v}` is a linear combination of the other regressors (and any period dummies): no \
-             estimator identifies it, so it is left out of all three"
-        ));
-    }
-    for v in &out.not_identified_within {
-        out.warnings.push(format!(
-            "`{v}` is not identified by the within estimator with {effects}: it {}; pooled OLS and \
-             random effects keep it",
-            match spec.effects {
-                Effects::Entity => "never changes within an entity",
-                Effects::EntityPeriod =>
-                    "is a sum of an entity part and a period part (like age = year - founding year) or never changes within an entity",
-            }
-        ));
-    }
-    for v in &spec.regressors {
-        let identified = !out.not_identified.contains(v) && !out.not_identified_within.contains(v);
-        if let Some(line) = variation.iter().find(|l| &l.variable == v) {
-            if identified && line.nearly_absorbed {
-                out.warnings.push(format!(
-                    "`{v}` is nearly absorbed by entity effects (within share {}): its within \
-                     estimate is imprecise",
-                    line.within_share.map_or("–".into(), |w| format!("{w:.3}"))
-                ));
-            }
-        }
-    }
-}
-
-fn extract(df: &DataFrame, e: &str, p: &str, names: &[String], effects: Effects) -> Result<Sample> {
-    let n_rows = df.height();
-    let ents = df.column(e)?.str()?;
-    let periods: Vec<i64> = df.column(p)?.i64()?.into_no_null_iter().collect();
-    let mut entity = Vec::with_capacity(n_rows);
-    let mut sizes: Vec<usize> = Vec::new();
-    let mut last: Option<&str> = None;
-    for v in ents.iter() {
-        if v != last {
-            sizes.push(0);
-            last = v;
-        }
-        *sizes.last_mut().expect("pushed") += 1;
-        entity.push(sizes.len() - 1);
-    }
-    let y = DVector::from_iterator(n_rows, df.column("__y")?.f64()?.into_no_null_iter());
-    let mut columns: Vec<Vec<f64>> = Vec::new();
-    for i in 0..names.len() {
-        columns.push(
-            df.column(&format!("__x{i}"))?
-                .f64()?
-                .into_no_null_iter()
-                .collect(),
-        );
-    }
-    let mut all_names = names.to_vec();
-    if effects == Effects::EntityPeriod {
-        let mut distinct: Vec<i64> = periods.clone();
-        distinct.sort();
-        distinct.dedup();
-        for t in distinct.iter().skip(1) {
-            columns.push(
-                periods
-                    .iter()
-                    .map(|q| if q == t { 1.0 } else { 0.0 })
-                    .collect(),
-            );
-            all_names.push(format!("period {t}"));
-        }
-    }
-    let x = DMatrix::from_fn(n_rows, columns.len(), |r, c| columns[c][r]);
-    Ok(Sample {
-        y,
-        x,
-        names: all_names,
-        declared: names.len(),
-        entity,
-        period: periods,
-        sizes,
-    })
 }
