@@ -30,6 +30,10 @@ pub struct Manifest {
     pub rules: RulesRecord,
     /// Row accounting: `input == kept + rejected`.
     pub rows: RowCounts,
+    /// The overall verdict of the readiness report (null in bundles made before it was
+    /// recorded, or when nothing was judged).
+    #[serde(default)]
+    pub verdict: Option<crate::audit::verdict::Status>,
     /// Every other file in the bundle.
     pub outputs: Vec<OutputRecord>,
 }
@@ -240,6 +244,7 @@ fn write_files(
             path: rules_path,
             sha256: sha256_hex(cfg.input.rules.text.as_bytes()),
         },
+        verdict: p.report.verdict.as_ref().map(|v| v.overall),
         rows: RowCounts {
             input: p.report.input.rows,
             kept: p.panel.height() as u64,
@@ -259,13 +264,15 @@ fn dictionary_md(entries: &[crate::pipeline::DictionaryEntry]) -> String {
     let cell = |s: &str| s.replace('|', "\\|");
     let mut out = String::from(
         "# Data dictionary\n\nOne row per column of `panel.csv` / `panel.parquet`.\n\n\
-         | variable | definition | unit | source | missing in the cleaned panel | values changed by `build` |\n\
-         |---|---|---|---|---:|---|\n",
+         Cutoffs are rounded for reading; report.json has them in full precision.\n\n\
+         | variable | label | definition | unit | source | missing in the cleaned panel | values changed by `build` |\n\
+         |---|---|---|---|---|---:|---|\n",
     );
     for e in entries {
         out.push_str(&format!(
-            "| `{}` | {} | {} | {} | {} | {} |\n",
+            "| `{}` | {} | {} | {} | {} | {} | {} |\n",
             e.name,
+            cell(&e.label),
             cell(&e.definition),
             cell(&e.unit),
             cell(&e.source),
@@ -415,6 +422,7 @@ pub fn verify(dir: &Path) -> Result<Verification> {
         out: scratch.join("bundle"),
         command_line: manifest.created_by_command.clone(),
         panel_csv: manifest.outputs.iter().any(|o| o.path == "panel.csv"),
+        fail_on: None,
     };
     let rebuilt = crate::build(&cfg);
     let _ = fs::remove_dir_all(&scratch);

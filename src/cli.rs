@@ -12,8 +12,8 @@ use clap::{Args, Parser, Subcommand, ValueEnum};
     version,
     about,
     max_term_width = 100,
-    after_help = "Exit codes: 0 ok; 1 `verify` found a file that differs, or `audit --fail-on` \
-                  met its level; 2 any error (usage, input, rules), printed as one line on stderr; 3 an \
+    after_help = "Exit codes: 0 ok; 1 `verify` found a file that differs, or `--fail-on` (audit, \
+                  build) met its level; 2 any error (usage, input, rules), printed as one line on stderr; 3 an \
                   internal error (a bug), also one line. The README describes the rules file and the bundle."
 )]
 pub(crate) struct Cli {
@@ -110,6 +110,15 @@ pub(crate) enum FailOnArg {
     Fail,
 }
 
+impl FailOnArg {
+    pub(crate) fn status(self) -> crate::audit::verdict::Status {
+        match self {
+            FailOnArg::Warn => crate::audit::verdict::Status::Warn,
+            FailOnArg::Fail => crate::audit::verdict::Status::Fail,
+        }
+    }
+}
+
 #[derive(Debug, Args)]
 pub(crate) struct BuildArgs {
     #[command(flatten)]
@@ -126,6 +135,11 @@ pub(crate) struct BuildArgs {
     /// copy of a 10-million-row panel costs about a gigabyte and a few seconds.
     #[arg(long)]
     pub(crate) no_panel_csv: bool,
+
+    /// Exit with code 1 when the overall verdict is at or above this level, after writing
+    /// the complete bundle (its report says why), so that a data pipeline can stop on it.
+    #[arg(long, value_enum, value_name = "LEVEL")]
+    pub(crate) fail_on: Option<FailOnArg>,
 }
 
 #[derive(Debug, Args)]

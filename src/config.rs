@@ -182,6 +182,8 @@ pub struct BuildConfig {
     pub command_line: String,
     /// Write `panel.csv` beside `panel.parquet`.
     pub panel_csv: bool,
+    /// Exit 1 (after writing the bundle) at or above this verdict.
+    pub fail_on: Option<crate::audit::verdict::Status>,
 }
 
 /// `demo` settings.
@@ -231,10 +233,7 @@ impl Command {
                     input: InputConfig::from_args(a.input)?,
                     format,
                     report: a.report,
-                    fail_on: a.fail_on.map(|f| match f {
-                        FailOnArg::Warn => crate::audit::verdict::Status::Warn,
-                        FailOnArg::Fail => crate::audit::verdict::Status::Fail,
-                    }),
+                    fail_on: a.fail_on.map(FailOnArg::status),
                 })
             }
             CliCommand::Build(b) => {
@@ -245,6 +244,7 @@ impl Command {
                     out: b.out,
                     command_line,
                     panel_csv: !b.no_panel_csv,
+                    fail_on: b.fail_on.map(FailOnArg::status),
                 })
             }
             CliCommand::Demo(d) => {

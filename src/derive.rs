@@ -58,7 +58,7 @@ impl Plan {
             };
             let mut compiled = Vec::new();
             let mut newly_skipped = None;
-            for name in &derived {
+            for name in rules.derive.keys().filter(|n| derived.contains(*n)) {
                 let (rule, origin) = &rules.derive[name];
                 match compile_rule(name, rule, &scope) {
                     Ok((value, conditions)) => compiled.push(Planned {
@@ -264,7 +264,8 @@ fn check_name(name: &str, raw: &BTreeSet<String>) -> Result<()> {
     Ok(())
 }
 
-/// Topological order (Kahn), alphabetical among equals; a cycle is an error naming it.
+/// Topological order, declaration order among equals: each round takes the first variable in
+/// the rules' order whose inputs are all done; a cycle is an error naming it.
 fn order(vars: Vec<Planned>) -> Result<Vec<Planned>> {
     let deps = |v: &Planned| -> BTreeSet<String> {
         let mut d: BTreeSet<String> = v.value.derived_deps.clone();
@@ -273,26 +274,24 @@ fn order(vars: Vec<Planned>) -> Result<Vec<Planned>> {
         }
         d
     };
-    let mut remaining: BTreeMap<String, (BTreeSet<String>, Planned)> = vars
-        .into_iter()
-        .map(|v| (v.name.clone(), (deps(&v), v)))
-        .collect();
+    let mut pending: Vec<(BTreeSet<String>, Planned)> =
+        vars.into_iter().map(|v| (deps(&v), v)).collect();
     let mut out = Vec::new();
-    while !remaining.is_empty() {
-        let ready: Vec<String> = remaining
+    while !pending.is_empty() {
+        let waiting: BTreeSet<String> = pending.iter().map(|(_, v)| v.name.clone()).collect();
+        let Some(next) = pending
             .iter()
-            .filter(|(_, (d, _))| d.iter().all(|n| !remaining.contains_key(n)))
-            .map(|(n, _)| n.clone())
-            .collect();
-        if ready.is_empty() {
+            .position(|(d, _)| d.iter().all(|n| !waiting.contains(n)))
+        else {
+            let remaining: BTreeMap<String, (BTreeSet<String>, Planned)> = pending
+                .into_iter()
+                .map(|(d, v)| (v.name.clone(), (d, v)))
+                .collect();
             return Err(Error::Cycle {
                 rules: find_cycle(&remaining),
             });
-        }
-        for name in ready {
-            let (_, v) = remaining.remove(&name).expect("ready names are present");
-            out.push(v);
-        }
+        };
+        out.push(pending.remove(next).1);
     }
     Ok(out)
 }

@@ -124,7 +124,17 @@ fn build_cmd(cfg: &BuildConfig) -> Result<i32> {
         )
         .as_bytes(),
     )?;
-    Ok(0)
+    Ok(match (cfg.fail_on, manifest.verdict) {
+        (Some(level), Some(overall)) if overall >= level => {
+            eprintln!(
+                "overall verdict {} reaches --fail-on {}: exit 1 (the bundle is written)",
+                overall.label(),
+                level.label()
+            );
+            1
+        }
+        _ => 0,
+    })
 }
 
 /// Run the whole pipeline and write the bundle; the library entry point behind `build`.
@@ -152,6 +162,7 @@ fn demo_cmd(cfg: &DemoConfig) -> Result<i32> {
             input: config::InputConfig::new(data, rules)?,
             out: out.clone(),
             panel_csv: true,
+            fail_on: None,
             command_line: format!(
                 "panelready build {} --rules {} --out {}",
                 data_dir.join(demo::DATA_FILE).display(),

@@ -43,6 +43,8 @@ pub struct Prepared {
 pub struct DictionaryEntry {
     /// The column.
     pub name: String,
+    /// Its label from the rules file, if any.
+    pub label: String,
     /// How it came about: a raw column (with its canonical name) or a derived expression.
     pub definition: String,
     /// Its unit, where known.
@@ -368,8 +370,8 @@ fn dictionary(
                         let c = &t.cutoffs[0];
                         format!(
                             "cutoffs {} and {}",
-                            c.lower.map_or("–".into(), |x| x.to_string()),
-                            c.upper.map_or("–".into(), |x| x.to_string())
+                            c.lower.map_or("–".into(), crate::report::level),
+                            c.upper.map_or("–".into(), crate::report::level)
                         )
                     } else {
                         "cutoffs per period in report.json".to_string()
@@ -421,6 +423,7 @@ fn dictionary(
             };
             DictionaryEntry {
                 missing_share: missing(&name),
+                label: derived.map(|d| d.label.clone()).unwrap_or_default(),
                 name,
                 definition,
                 unit,

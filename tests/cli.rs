@@ -35,14 +35,15 @@ fn build_maps_columns_and_lags_respect_gaps() {
     w.write("raw.csv", DATA);
     w.write("rules.toml", RULES);
     w.ok(&["build", "raw.csv", "--rules", "rules.toml", "--out", "out"]);
-    // Hand-worked expectations: the lag at A's first year and across the 2003 gap is empty.
+    // Hand-worked expectations: the lag at A's first year and across the 2003 gap is empty;
+    // derived columns come in the order the rules file declares them.
     assert_eq!(
         panel_rows(&w),
         [
-            "source_row,company,yr,ta_thousands,log_ta,ta_lag",
-            &format!("1,A,2001,10,{},", 10f64.ln()),
-            &format!("2,A,2002,20,{},10", 20f64.ln()),
-            &format!("3,A,2004,40,{},", 40f64.ln()),
+            "source_row,company,yr,ta_thousands,ta_lag,log_ta",
+            &format!("1,A,2001,10,,{}", 10f64.ln()),
+            &format!("2,A,2002,20,10,{}", 20f64.ln()),
+            &format!("3,A,2004,40,,{}", 40f64.ln()),
             "4,B,2002,-5,,",
         ]
     );
@@ -382,6 +383,21 @@ fn verdict_and_fail_on_guard_a_pipeline() {
         .find(|c| c["check"] == "Keys")
         .unwrap();
     assert_eq!(keys_line["status"], "fail");
+    // `build --fail-on` writes the whole bundle, records the verdict, then exits 1.
+    let build = |level: &str, out: &str| {
+        let mut args = vec!["build", "gap.csv", "--out", out, "--fail-on", level];
+        args.extend(keys);
+        w.run(&args).code
+    };
+    assert_eq!((build("warn", "b1"), build("fail", "b2")), (1, 0));
+    for out in ["b1", "b2"] {
+        let manifest: serde_json::Value = serde_json::from_str(
+            &std::fs::read_to_string(w.path(&format!("{out}/manifest.json"))).unwrap(),
+        )
+        .unwrap();
+        assert_eq!(manifest["verdict"], "warn");
+        assert!(w.path(&format!("{out}/panel.parquet")).exists());
+    }
     w.fails(
         &[
             "audit", "ok.csv", "--entity", "f", "--period", "y", "--report", "r.pdf",

@@ -67,6 +67,7 @@ proptest! {
             out: dir.path().join("out"),
             command_line: "proptest".into(),
             panel_csv: true,
+            fail_on: None,
         };
         let manifest = panelready::build(&cfg).unwrap();
         prop_assert_eq!(manifest.rows.input, rows.len() as u64);

@@ -70,28 +70,34 @@ fn demo_report_html_renders_offline_in_chromium() {
     };
     let url = format!("file://{}", page.display());
     let out_dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR"));
-    let png = out_dir.join("report-demo.png");
-    let _ = std::fs::remove_file(&png);
-    let shot = headless(&bin, &w.path("profile"))
-        .arg("--window-size=1200,2400")
-        .arg(format!("--screenshot={}", png.display()))
-        .arg(&url)
-        .output()
-        .expect("run chromium");
-    let log = String::from_utf8_lossy(&shot.stderr);
-    assert!(shot.status.success(), "chromium failed:\n{log}");
-    let console: Vec<&str> = log.lines().filter(|l| l.contains("CONSOLE")).collect();
-    assert!(
-        console.is_empty(),
-        "console messages:\n{}",
-        console.join("\n")
-    );
-    let bytes = std::fs::metadata(&png).map(|m| m.len()).unwrap_or(0);
-    assert!(
-        bytes > 50_000,
-        "screenshot of {bytes} bytes: the page looks blank"
-    );
-    println!("report screenshot: {}", png.display());
+    // A wide and a narrow window; both screenshots are kept as CI artefacts.
+    for (width, name) in [
+        (1280, "report-demo-wide.png"),
+        (700, "report-demo-narrow.png"),
+    ] {
+        let png = out_dir.join(name);
+        let _ = std::fs::remove_file(&png);
+        let shot = headless(&bin, &w.path(&format!("profile-{width}")))
+            .arg(format!("--window-size={width},2400"))
+            .arg(format!("--screenshot={}", png.display()))
+            .arg(&url)
+            .output()
+            .expect("run chromium");
+        let log = String::from_utf8_lossy(&shot.stderr);
+        assert!(shot.status.success(), "chromium failed:\n{log}");
+        let console: Vec<&str> = log.lines().filter(|l| l.contains("CONSOLE")).collect();
+        assert!(
+            console.is_empty(),
+            "console messages:\n{}",
+            console.join("\n")
+        );
+        let bytes = std::fs::metadata(&png).map(|m| m.len()).unwrap_or(0);
+        assert!(
+            bytes > 50_000,
+            "screenshot of {bytes} bytes at {width} px: the page looks blank"
+        );
+        println!("report screenshot: {}", png.display());
+    }
     // The rendered DOM holds every chart with its drawing.
     let dom = headless(&bin, &w.path("profile2"))
         .arg("--dump-dom")
@@ -105,5 +111,34 @@ fn demo_report_html_renders_offline_in_chromium() {
             .unwrap_or_else(|| panic!("{id} not in the rendered page"));
         let figure = &dom[at..dom[at..].find("</figure>").map_or(dom.len(), |e| at + e)];
         assert!(figure.contains("<svg"), "{id} has no drawing");
+        assert_eq!(
+            figure.matches("<figcaption").count(),
+            1,
+            "{id}: one caption per chart"
+        );
     }
+    // Charts read without their captions: legends and axis titles are in the drawings.
+    let chart = |id: &str| {
+        let at = dom.find(&format!("id=\"{id}\"")).unwrap();
+        dom[at..at + dom[at..].find("</figure>").unwrap()].to_string()
+    };
+    for (id, words) in [
+        ("chart-entry-exit", &["entrants", "leavers", "entities"][..]),
+        (
+            "chart-survival",
+            &["periods after entry", "share observed"][..],
+        ),
+        ("chart-coverage", &["observed", "missing inside"][..]),
+        ("chart-treated-roa", &["cutoffs", "rows"][..]),
+    ] {
+        let svg = chart(id);
+        for word in words {
+            assert!(svg.contains(word), "{id} lacks the label {word}");
+        }
+    }
+    // The verdict opens the page, each finding linked to its section.
+    let banner = dom.find("id=\"verdict-first\"").expect("verdict banner");
+    assert!(banner < dom.find("chart-coverage").unwrap());
+    assert!(dom.contains("href=\"#outliers-and-unit-slips\""));
+    assert!(dom.contains("id=\"outliers-and-unit-slips\""));
 }

@@ -189,6 +189,7 @@ proptest! {
             out: dir.path().join("b"),
             command_line: "test".into(),
             panel_csv: true,
+            fail_on: None,
         };
         let manifest = panelready::build(&cfg).unwrap();
         prop_assert_eq!(manifest.rows.input, manifest.rows.kept + manifest.rows.rejected);

@@ -196,13 +196,15 @@ const MODEL_RULES: &str =
     "[panel]\nentity = \"firm\"\nperiod = \"year\"\n[clean]\nduplicates = \"keep-first\"\n\
     [model]\noutcome = \"invest\"\nregressors = [\"value\", \"capital\"]\n";
 
-fn model_test<'a>(report: &'a serde_json::Value, prefix: &str) -> &'a serde_json::Value {
-    report["model"]["tests"]
+/// A model diagnostic by its key, wherever its question puts it.
+fn model_test<'a>(report: &'a serde_json::Value, key: &str) -> &'a serde_json::Value {
+    report["model"]["questions"]
         .as_array()
         .unwrap()
         .iter()
-        .find(|t| t["name"].as_str().unwrap().starts_with(prefix))
-        .unwrap_or_else(|| panic!("no test {prefix}"))
+        .flat_map(|q| q["tests"].as_array().unwrap())
+        .find(|t| t["key"] == key)
+        .unwrap_or_else(|| panic!("no test {key}"))
 }
 
 #[test]
@@ -221,15 +223,15 @@ fn model_readiness_reproduces_published_grunfeld_figures() {
     let stat = |p: &str| model_test(&report, p)["statistic"].as_f64().unwrap();
     // Baltagi, Econometric Analysis of Panel Data (2001), Table 4.1 [published, quoted by a
     // secondary source]: LM entity 798.162, Honda 28.252, LM period 6.454, two-way 804.615.
-    assert!((stat("Breusch–Pagan LM for entity effects") - 798.162).abs() < 5e-4);
-    assert!((stat("Honda") - 28.252).abs() < 5e-4);
-    assert!((stat("Breusch–Pagan LM for period effects") - 6.454).abs() < 5e-4);
-    assert!((stat("Breusch–Pagan LM for entity and period") - 804.615).abs() < 5e-4);
+    assert!((stat("entity_variance") - 798.162).abs() < 5e-4);
+    assert!((stat("entity_variance_one_sided") - 28.252).abs() < 5e-4);
+    assert!((stat("period_variance") - 6.454).abs() < 5e-4);
+    assert!((stat("entity_or_period_variance") - 804.615).abs() < 5e-4);
     // Baltagi, Table 2.1 and text [from memory]: F 49.18 on (9, 188); within slopes 0.110 and
     // 0.310; Swamy–Arora random-effects slopes 0.110 and 0.308; Hausman 2.33.
-    assert!((stat("F test") - 49.18).abs() < 5e-3);
+    assert!((stat("entity_intercepts") - 49.18).abs() < 5e-3);
     assert_eq!(
-        model_test(&report, "F test")["df"],
+        model_test(&report, "entity_intercepts")["df"],
         serde_json::json!([9.0, 188.0])
     );
     let slopes = report["model"]["slopes"].as_array().unwrap();
@@ -249,7 +251,7 @@ fn model_readiness_reproduces_published_grunfeld_figures() {
         (random[0] - 0.110).abs() < 5e-4 && (random[1] - 0.308).abs() < 5e-4,
         "{random:?}"
     );
-    assert!((stat("Hausman") - 2.33).abs() < 5e-3);
+    assert!((stat("fixed_vs_random") - 2.33).abs() < 5e-3);
     // And every statistic against the live statsmodels / numpy reference.
     check_reference(
         "model.py",
@@ -276,11 +278,12 @@ fn model_readiness_matches_the_reference_on_unbalanced_grunfeld() {
     w.ok(&["build", "g.csv", "--rules", "rules.toml", "--out", "b"]);
     let report: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(w.path("b/report.json")).unwrap()).unwrap();
-    assert!(model_test(
-        &report,
-        "Breusch–Pagan LM for entity effects (Baltagi–Li form)"
-    )["p"]
-        .is_number());
+    let lm = model_test(&report, "entity_variance");
+    assert!(lm["p"].is_number());
+    assert_eq!(
+        lm["textbook_name"],
+        "Breusch–Pagan LM test for entity effects, Baltagi–Li form"
+    );
     check_reference(
         "model.py",
         &[
@@ -366,8 +369,8 @@ fn wage_panel_estimators_identify_what_they_can_with_person_and_year_effects() {
     assert!(slope(&report, "exper")["within"].is_null());
     assert!(slope(&report, "educ")["pooled"].is_number());
     // Random effects, variance components and the Hausman test exist with period effects.
-    assert!(m["entity_sd"].is_number());
-    assert!(model_test(&report, "Hausman")["statistic"].is_number());
+    assert!(m["error_split"]["persistent_sd"].is_number());
+    assert!(model_test(&report, "fixed_vs_random")["statistic"].is_number());
     assert_eq!(
         m["hausman_compares"],
         serde_json::json!(["expersq", "married", "union"])

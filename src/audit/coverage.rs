@@ -54,8 +54,8 @@ impl Check for Coverage {
         let (entities, rows) = (f("entities")?, f("rows")?);
         if entities > 0.0 {
             // Ahrens & Pincus (1981): gamma = n / (T-bar * sum 1/T_i), nu = N^2 / (n sum T_i^2).
-            report.panel.gamma = Some(entities * entities / (rows * f("inv_sum")?));
-            report.panel.nu = Some(rows * rows / (entities * f("sq_sum")?));
+            report.panel.evenness_harmonic = Some(entities * entities / (rows * f("inv_sum")?));
+            report.panel.evenness_squares = Some(rows * rows / (entities * f("sq_sum")?));
         }
         let c = &mut report.coverage;
         c.entities_with_gaps = scalar_u64(&s, "with_gaps")?;

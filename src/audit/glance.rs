@@ -54,8 +54,8 @@ pub fn summarize(df: &DataFrame, entity: &str, period: &str, keys: u64) -> Resul
         first_period: first,
         last_period: last,
         balanced: rows > 0 && rows == keys && rows == entities * window,
-        gamma: None,
-        nu: None,
+        evenness_harmonic: None,
+        evenness_squares: None,
     })
 }
 

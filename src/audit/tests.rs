@@ -32,8 +32,8 @@ fn ahrens_pincus_hand_example() {
     // T_i = (3, 2, 1) gives gamma = 9/11 and nu = 6/7 (Ahrens & Pincus 1981; worked by hand).
     let df = df!("f" => ["a", "a", "a", "b", "b", "c"], "y" => [1i64, 2, 3, 1, 2, 1]).unwrap();
     let r = report_for(&df, &[]);
-    assert!((r.panel.gamma.unwrap() - 9.0 / 11.0).abs() < 1e-12);
-    assert!((r.panel.nu.unwrap() - 6.0 / 7.0).abs() < 1e-12);
+    assert!((r.panel.evenness_harmonic.unwrap() - 9.0 / 11.0).abs() < 1e-12);
+    assert!((r.panel.evenness_squares.unwrap() - 6.0 / 7.0).abs() < 1e-12);
     assert_eq!(r.coverage.singletons, 1);
     assert_eq!(r.coverage.per_entity.median, 2.0);
 }

@@ -1,12 +1,12 @@
 //! The verdict: `pass`, `warn` or `fail` for each check family with a one-line reason, and
 //! overall the worst of them. Computed from the finished report; documented in the README.
 
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 use crate::report::Report;
 
 /// One verdict level, ordered from best to worst.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Serialize, Deserialize)]
 #[serde(rename_all = "lowercase")]
 pub enum Status {
     /// The check had nothing to examine (no variable, no rule): neither a pass nor evidence.
@@ -400,7 +400,7 @@ pub fn judge(r: &Report, lv: &Levels) -> Verdict {
         if thumbs > 0 {
             findings.push((lv.model_warnings, format!("{thumbs} rules of thumb apply")));
         }
-        checks.push(if m.tests.is_empty() {
+        checks.push(if m.questions.iter().all(|q| q.tests.is_empty()) {
             line(
                 "Model readiness",
                 Fail,

@@ -2,7 +2,7 @@
 
 use std::io::Write;
 
-use super::layout::{pair_rows, sections, Block};
+use super::layout::{figure_column, headline, pair_rows, sections, Block};
 use super::{Render, Report};
 
 /// Renders the report as Markdown.
@@ -22,15 +22,14 @@ fn table(wtr: &mut dyn Write, header: &[String], rows: &[Vec<String>]) -> std::i
             .collect::<Vec<_>>()
             .join(" | ")
     )?;
-    let numeric = |i: usize| {
-        rows.iter().all(|r| {
-            r.get(i)
-                .and_then(|c| c.chars().next())
-                .is_none_or(|c| c.is_ascii_digit() || "-–<".contains(c))
-        })
-    };
     let align: Vec<&str> = (0..header.len())
-        .map(|i| if i > 0 && numeric(i) { "---:" } else { "---" })
+        .map(|i| {
+            if figure_column(rows, i) {
+                "---:"
+            } else {
+                "---"
+            }
+        })
         .collect();
     writeln!(wtr, "|{}|", align.join("|"))?;
     for row in rows {
@@ -51,6 +50,32 @@ impl Render for Markdown {
             "panelready {} · {} rows read · entity `{}` · period `{}`\n",
             r.tool_version, r.input.rows, r.input.entity, r.input.period
         )?;
+        if let Some(h) = headline(r) {
+            // Markdown has no colour of its own: a coloured mark before each status word.
+            let mark = |s: &str| match s {
+                "fail" => "🔴",
+                "warn" => "🟡",
+                "pass" => "🟢",
+                _ => "⚪",
+            };
+            writeln!(
+                wtr,
+                "**{} Overall verdict: {}** ({}; [the table](#verdict))\n",
+                mark(h.overall),
+                h.overall,
+                h.tally
+            )?;
+            for (status, check, anchor, reason) in &h.lines {
+                writeln!(
+                    wtr,
+                    "- {} {status} · [{check}](#{anchor}): {reason}",
+                    mark(status)
+                )?;
+            }
+            if !h.lines.is_empty() {
+                writeln!(wtr)?;
+            }
+        }
         for section in sections(r) {
             writeln!(wtr, "## {}\n", section.title)?;
             for block in &section.blocks {
@@ -61,6 +86,7 @@ impl Render for Markdown {
                     }
                     Block::Table(header, rows) => table(wtr, header, rows)?,
                     Block::Note(text) => writeln!(wtr, "{text}\n")?,
+                    Block::Heading(text) => writeln!(wtr, "### {text}\n")?,
                 }
             }
         }

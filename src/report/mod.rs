@@ -4,6 +4,11 @@
 mod html;
 mod json;
 mod layout;
+
+/// A level formatted for reading (four significant digits), as the reports show it.
+pub fn level(x: f64) -> String {
+    layout::level(x)
+}
 mod markdown;
 mod model;
 mod terminal;

@@ -5,7 +5,7 @@ use std::io::Write;
 use comfy_table::presets::UTF8_HORIZONTAL_ONLY;
 use comfy_table::{Cell, CellAlignment, Color, ContentArrangement, Table, TableComponent};
 
-use super::layout::{pair_rows, sections, Block};
+use super::layout::{figure_column, pair_rows, sections, Block};
 use super::{Render, Report};
 
 /// Renders the report as tables for a person at a terminal.
@@ -44,12 +44,7 @@ fn table(header: Vec<String>, rows: &[Vec<String>], show_header: bool, color: bo
         }));
     }
     for i in 1..width {
-        let numeric = rows.iter().all(|r| {
-            r.get(i)
-                .and_then(|c| c.chars().next())
-                .is_none_or(|c| c.is_ascii_digit() || "-–<".contains(c))
-        });
-        if let Some(c) = t.column_mut(i).filter(|_| numeric) {
+        if let Some(c) = t.column_mut(i).filter(|_| figure_column(rows, i)) {
             c.set_cell_alignment(CellAlignment::Right);
         }
     }
@@ -79,6 +74,9 @@ impl Render for Terminal {
                         writeln!(wtr, "{}", table(header.clone(), rows, true, self.color))?
                     }
                     Block::Note(text) => writeln!(wtr, "{}", wrap(text, 98, "  "))?,
+                    Block::Heading(text) => {
+                        writeln!(wtr, "{}", wrap(&format!("» {text}"), 98, ""))?
+                    }
                 }
             }
             writeln!(wtr)?;

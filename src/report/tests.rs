@@ -20,8 +20,8 @@ fn sample() -> Report {
         first_period: Some(2010),
         last_period: Some(2024),
         balanced: false,
-        gamma: Some(0.8123),
-        nu: Some(0.7654),
+        evenness_harmonic: Some(0.8123),
+        evenness_squares: Some(0.7654),
     };
     r.keys = KeysSummary {
         missing_key_rows: 3,
@@ -81,6 +81,26 @@ fn sample() -> Report {
         rows_after: 1231,
         entities_after: 87,
     }];
+    {
+        use crate::audit::verdict::{CheckVerdict, Status, Verdict};
+        let line = |check: &str, status, reason: &str| CheckVerdict {
+            check: check.into(),
+            status,
+            reason: reason.into(),
+        };
+        r.verdict = Some(Verdict {
+            overall: Status::Fail,
+            checks: vec![
+                line("Keys", Status::Fail, "5 conflicting keys left unresolved"),
+                line(
+                    "Entry and exit",
+                    Status::Warn,
+                    "leavers differ from stayers",
+                ),
+                line("Missing values", Status::Pass, "no sharp change"),
+            ],
+        });
+    }
     r
 }
 
@@ -94,7 +114,7 @@ fn render(format: ReportFormat) -> String {
 fn every_format_carries_the_same_figures() {
     let json: serde_json::Value = serde_json::from_str(&render(ReportFormat::Json)).unwrap();
     assert_eq!(json["panel"]["entities"], 87);
-    assert_eq!(json["panel"]["gamma"], 0.8123);
+    assert_eq!(json["panel"]["evenness_harmonic"], 0.8123);
     assert_eq!(json["keys"]["conflicting_keys"], 5);
     assert_eq!(json["coverage"]["singletons"], 41);
     assert_eq!(json["entry_exit"][0]["leavers"], serde_json::Value::Null);
@@ -128,4 +148,69 @@ fn terminal_tables_fit_in_100_columns() {
     for line in render(ReportFormat::Terminal).lines() {
         assert!(line.chars().count() <= 100, "too wide: {line}");
     }
+}
+
+#[test]
+fn markdown_opens_with_the_verdict_and_links_each_finding_to_its_section() {
+    let text = render(ReportFormat::Markdown);
+    let verdict = text.find("Overall verdict").expect("a verdict line");
+    let first_section = text.find("\n## ").expect("sections");
+    assert!(verdict < first_section, "the verdict comes first:\n{text}");
+    for l in text
+        .lines()
+        .filter(|l| l.starts_with("- ") && l.contains("](#"))
+    {
+        let anchor = &l[l.find("](#").unwrap() + 3..l.find("):").unwrap()];
+        let heading = text
+            .lines()
+            .filter_map(|h| h.strip_prefix("## "))
+            .find(|h| layout::slug(h) == anchor);
+        assert!(heading.is_some(), "no section for the link #{anchor}");
+    }
+}
+
+#[test]
+fn html_shows_code_not_backticks_and_keeps_figures_on_one_line() {
+    let html = render(ReportFormat::Html);
+    let text_only: String = html
+        .split('<')
+        .map(|piece| piece.split_once('>').map_or(piece, |(_, t)| t))
+        .collect();
+    assert!(!text_only.contains('`'), "a literal backtick in the page");
+    assert!(html.contains("td.n{white-space:nowrap}"));
+    assert!(html.contains("id=\"verdict-first\""));
+}
+
+#[test]
+fn levels_read_with_four_significant_digits() {
+    use layout::{is_figure, level, slug};
+    assert_eq!(level(135666.8639), "135667");
+    assert_eq!(level(3320.3147), "3320");
+    assert_eq!(level(329.8395), "329.8");
+    assert_eq!(level(5.9696), "5.970");
+    assert_eq!(level(0.0147), "0.01470");
+    assert_eq!(level(-0.10594108179290836), "-0.1059");
+    assert_eq!(level(0.0), "0");
+    assert_eq!(level(f64::NAN), "–");
+    assert_eq!(level(2e-9), "2.000e-9");
+    for figure in [
+        "1 / 7.00 / 14.0",
+        "< 0.0001",
+        "599, 5963",
+        "+21.59",
+        "–",
+        "x 1000",
+    ] {
+        assert!(is_figure(figure), "{figure}");
+    }
+    for text in [
+        "3 rows missing a key",
+        "not identified",
+        "yes",
+        "2010 to 2017, no gaps",
+    ] {
+        assert!(!is_figure(text), "{text}");
+    }
+    assert_eq!(slug("Entry and exit"), "entry-and-exit");
+    assert_eq!(slug("Outliers and unit slips"), "outliers-and-unit-slips");
 }

@@ -4,6 +4,8 @@
 pub(crate) mod expr;
 
 use std::collections::BTreeMap;
+
+use indexmap::IndexMap;
 use std::path::{Path, PathBuf};
 
 use serde::Deserialize;
@@ -55,9 +57,9 @@ pub struct RulesFile {
     /// Canonical name -> raw column name.
     #[serde(default)]
     pub columns: BTreeMap<String, String>,
-    /// Derived variables by name.
+    /// Derived variables by name, in the order of the file.
     #[serde(default)]
-    pub derive: BTreeMap<String, DeriveRule>,
+    pub derive: IndexMap<String, DeriveRule>,
     /// Cleaning policy.
     #[serde(default)]
     pub clean: CleanSection,
@@ -334,8 +336,9 @@ pub struct Rules {
     pub text: String,
     /// The parsed file (user part).
     pub file: RulesFile,
-    /// Every derived variable, user rules overriding library rules of the same name.
-    pub derive: BTreeMap<String, (DeriveRule, Origin)>,
+    /// Every derived variable in declaration order (the included libraries' first, then the
+    /// file's), user rules overriding library rules of the same name in place.
+    pub derive: IndexMap<String, (DeriveRule, Origin)>,
     /// Every accounting rule in order, library first, user rules replacing same-named ones.
     pub accounting: Vec<(AccountingRule, Origin)>,
 }
@@ -354,7 +357,7 @@ impl Rules {
             path: shown,
             message: one_line(&e.to_string()),
         })?;
-        let mut derive = BTreeMap::new();
+        let mut derive = IndexMap::new();
         let mut accounting: Vec<(AccountingRule, Origin)> = Vec::new();
         for name in &file.include {
             let lib = library(name)?;
@@ -385,7 +388,7 @@ impl Rules {
             path: None,
             text: String::new(),
             file: RulesFile::default(),
-            derive: BTreeMap::new(),
+            derive: IndexMap::new(),
             accounting: Vec::new(),
         }
     }

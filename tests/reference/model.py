@@ -84,25 +84,26 @@ def main():
     # F for entity effects: pooled nested in within; numerator df = the difference in rank.
     df1 = pooled.df_resid - within.df_resid
     F = ((rss_p - rss_w) / df1) / (rss_w / df_w)
-    tests = {t["name"]: t for t in m["tests"]}
+    # Diagnostics by key, from the questions they answer.
+    tests = {t["key"]: t for q in m["questions"] for t in q["tests"]}
 
-    def test(prefix):
-        return next(v for k, v in tests.items() if k.startswith(prefix))
+    def test(key):
+        return tests[key]
 
-    same("F", F, test("F test")["statistic"])
-    same("F df", df1, test("F test")["df"][0])
-    same("F p", float(stats.f.sf(F, df1, df_w)), test("F test")["p"], rel=1e-6)
+    same("F", F, test("entity_intercepts")["statistic"])
+    same("F df", df1, test("entity_intercepts")["df"][0])
+    same("F p", float(stats.f.sf(F, df1, df_w)), test("entity_intercepts")["p"], rel=1e-6)
     # Breusch-Pagan / Baltagi-Li: LM = N^2 / (2 (sum T_i^2 - N)) (A - 1)^2
     A = float((pd.Series(e).groupby(groups).sum() ** 2).sum() / (e @ e))
     scale = N**2 / (2 * (float((Ti**2).sum()) - N))
     LM = scale * (A - 1) ** 2
-    same("BP LM", LM, test("Breusch–Pagan LM for entity effects")["statistic"])
-    same("Honda", np.sqrt(scale) * (A - 1), test("Honda")["statistic"])
+    same("BP LM", LM, test("entity_variance")["statistic"])
+    same("Honda", np.sqrt(scale) * (A - 1), test("entity_variance_one_sided")["statistic"])
     nt = d.groupby("t").size()
     B = float((pd.Series(e).groupby(d["t"].to_numpy()).sum() ** 2).sum() / (e @ e))
     LMt = N**2 / (2 * (float((nt**2).sum()) - N)) * (B - 1) ** 2
-    same("BP LM period", LMt, test("Breusch–Pagan LM for period effects")["statistic"])
-    same("BP LM two-way", LM + LMt, test("Breusch–Pagan LM for entity and period")["statistic"])
+    same("BP LM period", LMt, test("period_variance")["statistic"])
+    same("BP LM two-way", LM + LMt, test("entity_or_period_variance")["statistic"])
 
     # Swamy-Arora variance components, Baltagi-Chang (1994) for unbalanced panels, from the
     # between regression on a basis of the pooled design's entity means (rank by SVD).
@@ -120,9 +121,9 @@ def main():
     bb = np.linalg.solve(XPX, (xb.T * T) @ ybar.to_numpy())
     rss_b = float((T * (ybar.to_numpy() - xb @ bb) ** 2).sum())
     s2mu = max((rss_b - (n - Kb) * s2nu) / (N - np.trace(np.linalg.solve(XPX, XZZX))), 0.0)
-    same("idiosyncratic SD", np.sqrt(s2nu), m["idiosyncratic_sd"])
-    same("entity SD", np.sqrt(s2mu), m["entity_sd"])
-    same("entity share", s2mu / (s2mu + s2nu), m["entity_share"])
+    same("idiosyncratic SD", np.sqrt(s2nu), m["error_split"]["transient_sd"])
+    same("entity SD", np.sqrt(s2mu), m["error_split"]["persistent_sd"])
+    same("entity share", s2mu / (s2mu + s2nu), m["error_split"]["persistent_share"])
     theta = 1 - np.sqrt(s2nu / (Ti * s2mu + s2nu))
     th = theta.loc[groups].to_numpy()
     ys = y - th * ybar.loc[groups].to_numpy()
@@ -139,8 +140,8 @@ def main():
         Vre = s2re * np.linalg.inv(Xs.T @ Xs)[np.ix_(pos, pos)]
         dlt = bw - bre[pos]
         H = float(dlt @ np.linalg.inv(Vw - Vre) @ dlt)
-        same("Hausman", H, test("Hausman")["statistic"], rel=1e-6)
-        same("Hausman df", len(both), test("Hausman")["df"][0])
+        same("Hausman", H, test("fixed_vs_random")["statistic"], rel=1e-6)
+        same("Hausman df", len(both), test("fixed_vs_random")["df"][0])
     for j, r in enumerate(regs):
         s = next(x for x in m["slopes"] if x["variable"] == r)
         if j in pooled_ids:
@@ -169,7 +170,7 @@ def main():
     score = (u["lag"] * (u["u"] - rho * u["lag"])).groupby(u["e"]).sum()
     G = len(score)
     V = G / (G - 1) * float((score**2).sum()) / float((u["lag"] ** 2).sum()) ** 2
-    same("Wooldridge F", (rho + 0.5) ** 2 / V, test("Wooldridge")["statistic"])
+    same("Wooldridge F", (rho + 0.5) ** 2 / V, test("serial_correlation")["statistic"])
 
     # Pesaran CD on the within residuals (entity-dummy OLS residuals).
     r = pd.DataFrame({"e": groups, "t": d["t"], "r": within.resid.to_numpy()}).pivot(index="t", columns="e", values="r")
@@ -187,7 +188,7 @@ def main():
                     continue
                 total += np.sqrt(len(both)) * np.corrcoef(both.iloc[:, 0], both.iloc[:, 1])[0, 1]
     CD = np.sqrt(2 / (n * (n - 1))) * total
-    same("Pesaran CD", CD, test("Pesaran")["statistic"], rel=1e-6)
+    same("Pesaran CD", CD, test("cross_entity_correlation")["statistic"], rel=1e-6)
     same("sample rows", N, m["sample_rows"])
     for f in failures:
         print("MISMATCH", f)

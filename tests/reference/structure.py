@@ -88,8 +88,8 @@ def structure(df, entity, period, compare):
         "last_period": last,
         "balanced": bool(len(df) == len(k) == n * (last - first + 1)),
         # Ahrens & Pincus (1981): gamma = n / (Tbar * sum(1/T_i)), nu = N^2 / (n * sum(T_i^2))
-        "gamma": n / ((N / n) * float((1.0 / T).sum())),
-        "nu": N**2 / (n * float((T**2).sum())),
+        "evenness_harmonic": n / ((N / n) * float((1.0 / T).sum())),
+        "evenness_squares": N**2 / (n * float((T**2).sum())),
     }
     per = k.groupby(entity)[period].agg(["min", "max", "size"])
     per["gaps"] = per["max"] - per["min"] + 1 - per["size"]

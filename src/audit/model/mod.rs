@@ -12,11 +12,14 @@ use polars::prelude::*;
 use statrs::distribution::{ChiSquared, ContinuousCDF, FisherSnedecor, Normal};
 
 use super::{Check, Context};
-use crate::report::{ModelReport, ModelTest, Report, Slope, VariationLine};
+use crate::report::{ErrorSplit, ModelReport, Report, Slope, VariationLine};
 use crate::Result;
 
 mod linalg;
+mod questions;
 mod residual_tests;
+
+use questions::Test;
 mod sample;
 mod thumbs;
 
@@ -157,10 +160,8 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
             .map(|(variable, rows)| crate::report::VariableCost { variable, rows })
             .collect(),
         sample_singletons: s.sizes.iter().filter(|t| **t == 1).count() as u64,
-        tests: Vec::new(),
-        entity_sd: None,
-        idiosyncratic_sd: None,
-        entity_share: None,
+        questions: questions::group(Vec::new(), false),
+        error_split: Default::default(),
         variance_convention: "period effects, when declared, are period dummies in every \
             estimator; Swamy–Arora variance components (Baltagi–Chang form when unbalanced) from \
             the between regression on the pooled columns that vary between entities; \
@@ -265,17 +266,17 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
     let df_f = (n + k_w) as f64 - k_p as f64;
     let f = ((rss_p - rss_w) / df_f) / (rss_w / df_w);
     let p_f = upper_tail(f, |x| FisherSnedecor::new(df_f, df_w).ok().map(|d| d.sf(x)));
-    out.tests.push(ModelTest {
-        name: "F test for entity effects".into(),
-        statistic: f,
-        df: vec![df_f, df_w],
-        p: p_f,
-        reading: reading(
+    let mut tests = vec![Test::EntityIntercepts.result(
+        None,
+        f,
+        vec![df_f, df_w],
+        p_f,
+        reading(
             p_f,
             "entity effects matter: pooled OLS would mix them into the error",
             "no evidence of entity effects at 5%: pooled OLS may be adequate",
         ),
-    });
+    )];
     // Breusch–Pagan LM (Baltagi–Li for unbalanced panels), Honda, period and two-way forms.
     let nf = n_rows as f64;
     let sum_e2 = rss_p;
@@ -288,35 +289,31 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
     let scale_i = nf * nf / (2.0 * (sum_t2 - nf));
     let lm = scale_i * (a - 1.0).powi(2);
     let p_lm = p_chi2(lm, 1.0);
-    out.tests.push(ModelTest {
-        name: if s.sizes.iter().all(|t| *t == s.sizes[0]) {
-            "Breusch–Pagan LM for entity effects"
-        } else {
-            "Breusch–Pagan LM for entity effects (Baltagi–Li form)"
-        }
-        .into(),
-        statistic: lm,
-        df: vec![1.0],
-        p: p_lm,
-        reading: reading(
+    let balanced = s.sizes.iter().all(|t| *t == s.sizes[0]);
+    tests.push(Test::EntityVariance.result(
+        (!balanced).then_some("Baltagi–Li form"),
+        lm,
+        vec![1.0],
+        p_lm,
+        reading(
             p_lm,
             "the entity-effect variance is not zero: pooled OLS is not adequate",
             "no evidence of random entity effects at 5%",
         ),
-    });
+    ));
     let honda = scale_i.sqrt() * (a - 1.0);
     let p_h = upper_tail(honda, |x| Normal::new(0.0, 1.0).ok().map(|d| d.sf(x)));
-    out.tests.push(ModelTest {
-        name: "Honda one-sided test for entity effects".into(),
-        statistic: honda,
-        df: vec![],
-        p: p_h,
-        reading: reading(
+    tests.push(Test::EntityVarianceOneSided.result(
+        None,
+        honda,
+        vec![],
+        p_h,
+        reading(
             p_h,
             "entity effects present (one-sided)",
             "no evidence of entity effects (one-sided) at 5%",
         ),
-    });
+    ));
     let mut by_period: BTreeMap<i64, (f64, f64)> = BTreeMap::new();
     for (r, t) in s.period.iter().enumerate() {
         let slot = by_period.entry(*t).or_insert((0.0, 0.0));
@@ -327,29 +324,29 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
     let sum_n2: f64 = by_period.values().map(|(_, c)| c * c).sum();
     let lm_t = nf * nf / (2.0 * (sum_n2 - nf)) * (b - 1.0).powi(2);
     let p_t = p_chi2(lm_t, 1.0);
-    out.tests.push(ModelTest {
-        name: "Breusch–Pagan LM for period effects".into(),
-        statistic: lm_t,
-        df: vec![1.0],
-        p: p_t,
-        reading: reading(
+    tests.push(Test::PeriodVariance.result(
+        None,
+        lm_t,
+        vec![1.0],
+        p_t,
+        reading(
             p_t,
             "period effects matter: add period effects",
             "no evidence of period effects at 5%",
         ),
-    });
+    ));
     let p_2 = p_chi2(lm + lm_t, 2.0);
-    out.tests.push(ModelTest {
-        name: "Breusch–Pagan LM for entity and period effects".into(),
-        statistic: lm + lm_t,
-        df: vec![2.0],
-        p: p_2,
-        reading: reading(
+    tests.push(Test::EitherVariance.result(
+        None,
+        lm + lm_t,
+        vec![2.0],
+        p_2,
+        reading(
             p_2,
             "entity or period effects (or both) matter",
             "no evidence of either effect at 5%",
         ),
-    });
+    ));
 
     // Swamy–Arora variance components, Baltagi–Chang (1994) for unbalanced panels, from the
     // between regression on the pooled columns that vary between entities (with period
@@ -387,9 +384,11 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
             let s2_mu = ((rss_b - (n - k_b) as f64 * s2_nu) / denom).max(0.0);
             if s2_mu.is_finite() && s2_nu.is_finite() && s2_mu + s2_nu > 0.0 {
                 entity_var = Some(s2_mu);
-                out.entity_sd = Some(s2_mu.sqrt());
-                out.idiosyncratic_sd = Some(s2_nu.sqrt());
-                out.entity_share = Some(s2_mu / (s2_mu + s2_nu));
+                out.error_split = ErrorSplit {
+                    persistent_sd: Some(s2_mu.sqrt()),
+                    transient_sd: Some(s2_nu.sqrt()),
+                    persistent_share: Some(s2_mu / (s2_mu + s2_nu)),
+                };
             }
         }
     }
@@ -405,6 +404,7 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
     // Random effects (quasi-demeaning of the pooled design) and the Hausman test on the
     // regressors both estimators identify.
     let mut b_re = None;
+    let mut hausman_unreliable = false;
     if let Some(s2_mu) = entity_var {
         let theta: Vec<f64> = s
             .sizes
@@ -457,18 +457,14 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
                     } else {
                         "the covariance difference is not positive definite: the statistic uses a generalized inverse and is unreliable; read the slope comparison instead".to_string()
                     };
-                    out.tests.push(ModelTest {
-                        name: if pd {
-                            "Hausman test, within vs random effects"
-                        } else {
-                            "Hausman test, within vs random effects (difference not positive definite)"
-                        }
-                        .into(),
-                        statistic: h,
-                        df: vec![m as f64],
-                        p: p_hs,
+                    hausman_unreliable = !pd;
+                    tests.push(Test::FixedVsRandom.result(
+                        (!pd).then_some("difference not positive definite"),
+                        h,
+                        vec![m as f64],
+                        p_hs,
                         reading,
-                    });
+                    ));
                 }
             }
             b_re = Some(b);
@@ -477,7 +473,7 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
 
     // Wooldridge's test for serial correlation in the idiosyncratic errors.
     if let Some(t) = wooldridge(&s, &within_keep) {
-        out.tests.push(t);
+        tests.push(t);
     }
     // Pesaran's CD test on the within residuals.
     if n > CD_MAX_ENTITIES {
@@ -488,7 +484,7 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
         if skipped > 0 {
             out.warnings.push(format!("Pesaran CD test: {skipped} entity pairs with fewer than 3 common periods were skipped"));
         }
-        out.tests.push(t);
+        tests.push(t);
     }
 
     // Slopes across estimators, each where the estimator identifies it.
@@ -514,6 +510,7 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
             material: sign_flip || shift.is_some_and(|z| z.abs() > MATERIAL_SE),
         });
     }
+    out.questions = questions::group(tests, hausman_unreliable);
     warnings(variation, spec, &s, &b_w, &within_keep, &mut out);
     Ok(out)
 }

@@ -6,6 +6,7 @@ use nalgebra::{DMatrix, DVector};
 use statrs::distribution::{ContinuousCDF, FisherSnedecor, Normal};
 
 use super::linalg::ols;
+use super::questions::Test;
 use super::{reading, Sample};
 use crate::report::ModelTest;
 
@@ -64,13 +65,17 @@ pub(super) fn wooldridge(s: &Sample, keep: &[usize]) -> Option<ModelTest> {
     let p = super::upper_tail(f, |x| {
         FisherSnedecor::new(1.0, g - 1.0).ok().map(|d| d.sf(x))
     });
-    Some(ModelTest {
-        name: "Wooldridge serial correlation test".into(),
-        statistic: f,
-        df: vec![1.0, g - 1.0],
+    Some(Test::SerialCorrelation.result(
+        None,
+        f,
+        vec![1.0, g - 1.0],
         p,
-        reading: reading(p, "serial correlation in the idiosyncratic errors: use standard errors clustered by entity", "no evidence of first-order serial correlation at 5%"),
-    })
+        reading(
+            p,
+            "serial correlation in the idiosyncratic errors: use standard errors clustered by entity",
+            "no evidence of first-order serial correlation at 5%",
+        ),
+    ))
 }
 
 /// Pesaran (2004) CD on the within residuals: for each pair with at least 3 common periods,
@@ -115,13 +120,17 @@ pub(super) fn pesaran_cd(resid: &DVector<f64>, s: &Sample) -> Option<(ModelTest,
         Normal::new(0.0, 1.0).ok().map(|d| 2.0 * d.sf(x))
     });
     Some((
-        ModelTest {
-            name: "Pesaran CD test (within residuals)".into(),
-            statistic: cd,
-            df: vec![],
+        Test::CrossEntityCorrelation.result(
+            Some("on the within residuals"),
+            cd,
+            vec![],
             p,
-            reading: reading(p, "the residuals are correlated across entities: consider period effects or standard errors robust to cross-sectional dependence", "no evidence of cross-sectional dependence at 5%"),
-        },
+            reading(
+                p,
+                "the residuals are correlated across entities: consider period effects or standard errors robust to cross-sectional dependence",
+                "no evidence of cross-sectional dependence at 5%",
+            ),
+        ),
         skipped,
     ))
 }

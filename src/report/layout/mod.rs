@@ -7,6 +7,7 @@ mod structure;
 mod variables;
 
 pub(crate) use super::model::*;
+pub(crate) use outcome::headline;
 use outcome::*;
 use structure::*;
 use variables::*;
@@ -27,6 +28,8 @@ pub(crate) enum Block {
     Table(Vec<String>, Vec<Vec<String>>),
     /// A sentence.
     Note(String),
+    /// A sub-heading inside a section.
+    Heading(String),
 }
 
 /// A number with up to `digits` decimals, trailing zeros kept for alignment.
@@ -36,6 +39,66 @@ pub(crate) fn num(x: f64, digits: usize) -> String {
     } else {
         "–".into()
     }
+}
+
+/// A level (a mean, an SD, a cutoff, a slope) for reading: four significant digits, no
+/// decimals from 1000 on, scientific notation only below 1e-6 or from 1e12.
+pub(crate) fn level(x: f64) -> String {
+    if !x.is_finite() {
+        return "–".into();
+    }
+    let a = x.abs();
+    if a == 0.0 {
+        return "0".into();
+    }
+    if !(1e-6..1e12).contains(&a) {
+        return format!("{x:.3e}");
+    }
+    let decimals = (3 - a.log10().floor() as i64).max(0) as usize;
+    format!("{x:.decimals$}")
+}
+
+pub(crate) fn opt_level(x: Option<f64>) -> String {
+    x.map_or("–".into(), level)
+}
+
+/// A test statistic: three decimals, one from 1000 on.
+pub(crate) fn stat(x: f64) -> String {
+    if x.is_finite() && x.abs() >= 1000.0 {
+        num(x, 1)
+    } else {
+        num(x, 3)
+    }
+}
+
+/// Whether a table cell holds a figure (right-aligned by every renderer): digits with signs,
+/// decimal points, separators and the few marks the layout uses ("< 0.0001", "1 / 7", "x 1000",
+/// "–" for none); text that merely starts with a digit is not a figure.
+pub(crate) fn is_figure(cell: &str) -> bool {
+    let c = cell.trim();
+    c == "–"
+        || (c.chars().any(|ch| ch.is_ascii_digit())
+            && c.chars()
+                .all(|ch| ch.is_ascii_digit() || " .,:+-–−<>/×x%e()".contains(ch)))
+}
+
+/// Whether every cell of column `i` is a figure (the first column never is).
+pub(crate) fn figure_column(rows: &[Vec<String>], i: usize) -> bool {
+    i > 0 && rows.iter().all(|r| r.get(i).is_none_or(|c| is_figure(c)))
+}
+
+/// The anchor of a section title as Markdown renderers make it ("Entry and exit" ->
+/// "entry-and-exit"); the HTML report uses the same ids.
+pub(crate) fn slug(title: &str) -> String {
+    title
+        .to_lowercase()
+        .chars()
+        .filter_map(|c| match c {
+            'a'..='z' | '0'..='9' | '-' | '_' => Some(c),
+            ' ' => Some('-'),
+            _ => None,
+        })
+        .collect()
 }
 
 pub(crate) fn opt(x: Option<f64>, digits: usize) -> String {
@@ -90,15 +153,31 @@ fn glance(r: &Report) -> Section {
     };
     Section {
         title: "Panel at a glance",
-        blocks: vec![pairs(&[
-            ("rows", p.rows.to_string()),
-            ("entities", p.entities.to_string()),
-            ("periods observed", p.periods.to_string()),
-            ("window", window),
-            ("balanced", if p.balanced { "yes" } else { "no" }.into()),
-            ("unbalancedness gamma (1 = balanced)", opt(p.gamma, 4)),
-            ("unbalancedness nu (1 = balanced)", opt(p.nu, 4)),
-        ])],
+        blocks: vec![
+            pairs(&[
+                ("rows", p.rows.to_string()),
+                ("entities", p.entities.to_string()),
+                ("periods observed", p.periods.to_string()),
+                ("window", window),
+                ("balanced", if p.balanced { "yes" } else { "no" }.into()),
+                (
+                    "evenness of periods per entity, harmonic (1 = balanced)",
+                    opt(p.evenness_harmonic, 4),
+                ),
+                (
+                    "evenness of periods per entity, squares (1 = balanced)",
+                    opt(p.evenness_squares, 4),
+                ),
+            ]),
+            Block::Note(
+                "Evenness: how alike the entities are in their number of periods. The harmonic \
+                 figure (harmonic over arithmetic mean of periods per entity) falls when some \
+                 entities have few periods; the squares figure (squared mean over mean square) \
+                 when entity sizes vary widely. They are Ahrens & Pincus's (1981) γ and ν \
+                 (Biometrical Journal 23(3))."
+                    .into(),
+            ),
+        ],
     }
 }
 

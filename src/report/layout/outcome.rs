@@ -13,11 +13,15 @@ pub(super) fn model(r: &Report) -> Section {
             )],
         };
     };
+    let effects = if m.effects == "entity" {
+        format!("`{}`", r.input.entity)
+    } else {
+        format!("`{}` and `{}`", r.input.entity, r.input.period)
+    };
     let mut blocks = vec![Block::Note(format!(
-        "Model: {} on {} with {} effects.",
+        "Model: {} on {}, with fixed effects for {effects}.",
         m.outcome,
         m.regressors.join(", "),
-        m.effects
     ))];
     let mut pairs = vec![
         (
@@ -36,86 +40,26 @@ pub(super) fn model(r: &Report) -> Section {
     for c in m.cost.iter().filter(|c| c.rows > 0) {
         pairs.push((format!("rows missing {}", c.variable), c.rows.to_string()));
     }
-    pairs.push(("entity-effect SD".into(), opt(m.entity_sd, 4)));
-    pairs.push(("idiosyncratic SD".into(), opt(m.idiosyncratic_sd, 4)));
-    pairs.push((
-        "entity-effect share of variance".into(),
-        opt(m.entity_share, 3),
-    ));
     blocks.push(Block::Pairs(pairs));
-    if !m.tests.is_empty() {
-        let rows = m
-            .tests
-            .iter()
-            .map(|t| {
-                let df: Vec<String> = t.df.iter().map(|d| num(*d, 0)).collect();
-                vec![
-                    t.name.clone(),
-                    num(t.statistic, 3),
-                    if df.is_empty() {
-                        "–".into()
-                    } else {
-                        df.join(", ")
-                    },
-                    pval(t.p),
-                    t.reading.clone(),
-                ]
-            })
-            .collect();
-        blocks.push(Block::Table(
-            strings(&["diagnostic", "statistic", "df", "p", "what it suggests"]),
-            rows,
-        ));
-    }
-    if !m.slopes.is_empty() {
-        let rows = m
-            .slopes
-            .iter()
-            .map(|s| {
-                let missing = |v: Option<f64>| match v {
-                    Some(v) => num(v, 4),
-                    None => "not identified".into(),
-                };
-                vec![
-                    s.variable.clone(),
-                    missing(s.pooled),
-                    opt(s.pooled_se, 4),
-                    missing(s.within),
-                    opt(s.random, 4),
-                    s.within_minus_pooled_in_se
-                        .map_or("–".into(), |z| format!("{z:+.2}")),
-                    if s.sign_flip { "yes" } else { "no" }.into(),
-                    if s.material { "yes" } else { "no" }.into(),
-                ]
-            })
-            .collect();
-        blocks.push(Block::Table(
-            strings(&[
-                "slope of",
-                "pooled",
-                "pooled SE",
-                "within",
-                "random effects",
-                "within − pooled, in pooled SEs",
-                "sign flips",
-                "moves materially",
-            ]),
-            rows,
-        ));
-        blocks.push(Block::Note(
-            "A sensitivity view: how far each slope moves between estimators, in units of the \
-             pooled standard error (meaningful even when a slope is near zero). A slope whose \
-             sign flips or that moves by more than 2 pooled SEs between pooled and within is \
-             driven by differences between entities rather than changes within them. Each \
-             estimator shows only what it identifies: the within estimator does not identify a \
-             regressor the declared effects absorb."
-                .into(),
-        ));
-        if !m.hausman_compares.is_empty() {
+    for q in &m.questions {
+        blocks.push(Block::Heading(q.question.clone()));
+        blocks.push(Block::Note(format!("Reading: {}.", q.answer)));
+        if !q.tests.is_empty() {
+            blocks.push(tests_table(&q.tests));
+            let names: Vec<String> = q
+                .tests
+                .iter()
+                .map(|t| format!("{} ({})", t.textbook_name, t.source))
+                .collect();
             blocks.push(Block::Note(format!(
-                "The Hausman test compares the regressors both estimators identify: {}.",
-                m.hausman_compares.join(", ")
+                "In the textbooks, row by row: {}.",
+                names.join("; ")
             )));
+        }
+        match q.key.as_str() {
+            "pool_or_not" => blocks.push(error_split(&m.error_split)),
+            "fixed_or_random" => blocks.extend(slopes(m)),
+            _ => {}
         }
     }
     for w in &m.warnings {
@@ -129,6 +73,103 @@ pub(super) fn model(r: &Report) -> Section {
         title: "Model readiness",
         blocks,
     }
+}
+
+fn tests_table(tests: &[ModelTest]) -> Block {
+    let rows = tests
+        .iter()
+        .map(|t| {
+            let df: Vec<String> = t.df.iter().map(|d| num(*d, 0)).collect();
+            vec![
+                t.label.clone(),
+                stat(t.statistic),
+                if df.is_empty() {
+                    "–".into()
+                } else {
+                    df.join(", ")
+                },
+                pval(t.p),
+                t.reading.clone(),
+            ]
+        })
+        .collect();
+    Block::Table(
+        strings(&["evidence of", "statistic", "df", "p", "what it suggests"]),
+        rows,
+    )
+}
+
+fn error_split(e: &ErrorSplit) -> Block {
+    Block::Pairs(vec![
+        (
+            "SD of the persistent firm differences".into(),
+            opt_level(e.persistent_sd),
+        ),
+        (
+            "SD of the transient part, period to period".into(),
+            opt_level(e.transient_sd),
+        ),
+        (
+            "share of the unexplained variance that is persistent".into(),
+            opt(e.persistent_share, 3),
+        ),
+    ])
+}
+
+fn slopes(m: &ModelReport) -> Vec<Block> {
+    let mut out = Vec::new();
+    if !m.slopes.is_empty() {
+        let rows = m
+            .slopes
+            .iter()
+            .map(|s| {
+                let missing = |v: Option<f64>| match v {
+                    Some(v) => level(v),
+                    None => "not identified".into(),
+                };
+                vec![
+                    s.variable.clone(),
+                    missing(s.pooled),
+                    opt_level(s.pooled_se),
+                    missing(s.within),
+                    opt_level(s.random),
+                    s.within_minus_pooled_in_se
+                        .map_or("–".into(), |z| format!("{z:+.2}")),
+                    if s.sign_flip { "yes" } else { "no" }.into(),
+                    if s.material { "yes" } else { "no" }.into(),
+                ]
+            })
+            .collect();
+        out.push(Block::Table(
+            strings(&[
+                "slope of",
+                "pooled",
+                "pooled SE",
+                "within",
+                "random effects",
+                "within − pooled, in pooled SEs",
+                "sign flips",
+                "moves materially",
+            ]),
+            rows,
+        ));
+        out.push(Block::Note(
+            "A sensitivity view: how far each slope moves between estimators, in units of the \
+             pooled standard error (meaningful even when a slope is near zero). A slope whose \
+             sign flips or that moves by more than 2 pooled SEs between pooled and within is \
+             driven by differences between entities rather than changes within them. Each \
+             estimator shows only what it identifies: the within estimator does not identify a \
+             regressor the declared effects absorb."
+                .into(),
+        ));
+        if !m.hausman_compares.is_empty() {
+            out.push(Block::Note(format!(
+                "The Hausman test compares the regressors both estimators identify: {}.",
+                m.hausman_compares.join(", ")
+            )));
+        }
+    }
+    out
 }
 
 pub(super) fn sample(r: &Report) -> Section {
@@ -170,7 +211,7 @@ pub(super) fn cleaning_blocks(r: &Report) -> Vec<Block> {
             .iter()
             .map(|t| {
                 let cuts = match t.cutoffs.as_slice() {
-                    [c] => format!("{} .. {}", opt(c.lower, 4), opt(c.upper, 4)),
+                    [c] => format!("{} .. {}", opt_level(c.lower), opt_level(c.upper)),
                     many => format!("{} periods (report.json)", many.len()),
                 };
                 vec![
@@ -271,4 +312,49 @@ pub(super) fn verdict(r: &Report) -> Section {
             Block::Note(format!("Overall: {}.", word(v.overall))),
         ],
     }
+}
+
+/// The verdict as the reports open with it: the overall status and one line per check that
+/// warns or fails, each with the anchor of its section.
+pub(crate) struct Headline {
+    /// The overall status word.
+    pub(crate) overall: &'static str,
+    /// How many checks are at each level, worst first, e.g. "2 fail, 5 warn, 1 pass".
+    pub(crate) tally: String,
+    /// (status word, check, anchor of its section, reason) for each warning or failing check.
+    pub(crate) lines: Vec<(&'static str, String, String, String)>,
+}
+
+pub(crate) fn headline(r: &Report) -> Option<Headline> {
+    use crate::audit::verdict::Status;
+    let v = r.verdict.as_ref()?;
+    let titles: Vec<&str> = sections(r).iter().map(|s| s.title).collect();
+    let mut lines: Vec<_> = v
+        .checks
+        .iter()
+        .filter(|c| c.status >= Status::Warn)
+        .map(|c| {
+            let anchor = if titles.contains(&c.check.as_str()) {
+                slug(&c.check)
+            } else {
+                "verdict".into()
+            };
+            (c.status.label(), c.check.clone(), anchor, c.reason.clone())
+        })
+        .collect();
+    // Failures before warnings; within a level, report order.
+    lines.sort_by_key(|l| std::cmp::Reverse(l.0 == "fail"));
+    let tally = [Status::Fail, Status::Warn, Status::Pass, Status::NotChecked]
+        .iter()
+        .filter_map(|s| {
+            let n = v.checks.iter().filter(|c| c.status == *s).count();
+            (n > 0).then(|| format!("{n} {}", s.label()))
+        })
+        .collect::<Vec<_>>()
+        .join(", ");
+    Some(Headline {
+        overall: v.overall.label(),
+        tally,
+        lines,
+    })
 }

@@ -130,8 +130,8 @@ pub(super) fn entry_exit(r: &Report) -> Section {
             .map(|v| {
                 vec![
                     v.variable.clone(),
-                    format!("{} / {}", opt(v.mean_leavers, 4), v.n_leavers),
-                    format!("{} / {}", opt(v.mean_stayers, 4), v.n_stayers),
+                    format!("{} / {}", opt_level(v.mean_leavers), v.n_leavers),
+                    format!("{} / {}", opt_level(v.mean_stayers), v.n_stayers),
                     opt(v.t, 2),
                     opt(v.df, 1),
                     pval(v.p),

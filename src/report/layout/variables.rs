@@ -35,10 +35,10 @@ fn variation_blocks(lines: &[VariationLine]) -> Vec<Block> {
             vec![
                 v.variable.clone(),
                 v.n.to_string(),
-                opt(v.mean, 4),
-                opt(v.sd_total, 4),
-                opt(v.sd_between, 4),
-                opt(v.sd_within, 4),
+                opt_level(v.mean),
+                opt_level(v.sd_total),
+                opt_level(v.sd_between),
+                opt_level(v.sd_within),
                 opt(v.within_share, 3),
                 v.zero_within_entities.to_string(),
             ]
@@ -167,8 +167,8 @@ pub(super) fn outliers(r: &Report) -> Section {
         .map(|o| {
             vec![
                 o.variable.clone(),
-                opt(o.lower, 4),
-                opt(o.upper, 4),
+                opt_level(o.lower),
+                opt_level(o.upper),
                 o.below.to_string(),
                 o.above.to_string(),
                 o.robust_z_beyond.to_string(),
@@ -320,6 +320,11 @@ pub(super) fn derived(r: &Report) -> Section {
         .map(|d| {
             vec![
                 d.name.clone(),
+                if d.label.is_empty() {
+                    "–".into()
+                } else {
+                    d.label.clone()
+                },
                 d.non_null.to_string(),
                 d.nulls.to_string(),
                 null_breakdown(d),
@@ -327,7 +332,13 @@ pub(super) fn derived(r: &Report) -> Section {
         })
         .collect();
     let mut blocks = vec![Block::Table(
-        strings(&["derived variable", "with a value", "null", "why null"]),
+        strings(&[
+            "derived variable",
+            "label (from the rules)",
+            "with a value",
+            "null",
+            "why null",
+        ]),
         rows,
     )];
     for s in &r.skipped {

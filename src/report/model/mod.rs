@@ -149,11 +149,13 @@ pub struct PanelSummary {
     pub last_period: Option<i64>,
     /// Every entity observed in every period of first..last, once.
     pub balanced: bool,
-    /// Ahrens–Pincus unbalancedness: harmonic over arithmetic mean of observations per
-    /// entity; 1 when balanced.
-    pub gamma: Option<f64>,
-    /// Ahrens–Pincus unbalancedness: N² / (n Σ T_i²); 1 when balanced.
-    pub nu: Option<f64>,
+    /// Evenness of the periods per entity, harmonic: harmonic over arithmetic mean of
+    /// observations per entity (Ahrens & Pincus 1981, their γ); 1 when balanced, low when some
+    /// entities have few periods.
+    pub evenness_harmonic: Option<f64>,
+    /// Evenness of the periods per entity, squares: N² / (n Σ T_i²) (Ahrens & Pincus 1981,
+    /// their ν); 1 when balanced, low when entity sizes vary widely.
+    pub evenness_squares: Option<f64>,
 }
 
 /// Missing and duplicate keys.

@@ -21,14 +21,11 @@ pub struct ModelReport {
     pub cost: Vec<VariableCost>,
     /// Entities with a single row in the sample.
     pub sample_singletons: u64,
-    /// The tests.
-    pub tests: Vec<ModelTest>,
-    /// SD of the entity effects (Swamy–Arora).
-    pub entity_sd: Option<f64>,
-    /// SD of the idiosyncratic error (within residuals).
-    pub idiosyncratic_sd: Option<f64>,
-    /// Entity-effect share of the error variance.
-    pub entity_share: Option<f64>,
+    /// The diagnostics, grouped by the modelling decision each informs.
+    pub questions: Vec<Question>,
+    /// How the unexplained variation splits into a persistent entity part and a transient
+    /// part (Swamy–Arora variance components); null figures when not computable.
+    pub error_split: ErrorSplit,
     /// How the variance components and the Hausman covariance are computed.
     pub variance_convention: String,
     /// Slopes by estimator.
@@ -53,11 +50,41 @@ pub struct VariableCost {
     pub rows: u64,
 }
 
+/// A modelling decision and the diagnostics that inform it.
+#[derive(Debug, Clone, Serialize)]
+pub struct Question {
+    /// Stable key: `pool_or_not`, `period_effects`, `fixed_or_random`, `independent_errors`.
+    pub key: String,
+    /// The question, in words.
+    pub question: String,
+    /// What the diagnostics beneath suggest, in one line (a reading, not a proof).
+    pub answer: String,
+    /// The diagnostics, most direct first.
+    pub tests: Vec<ModelTest>,
+}
+
+/// The unexplained variation split into a persistent entity part and a transient part.
+#[derive(Debug, Clone, Default, Serialize)]
+pub struct ErrorSplit {
+    /// SD of the persistent entity differences (the entity effect, σ_μ).
+    pub persistent_sd: Option<f64>,
+    /// SD of the transient part, within an entity from period to period (σ_ν).
+    pub transient_sd: Option<f64>,
+    /// Share of the unexplained variance that is persistent: σ_μ² / (σ_μ² + σ_ν²).
+    pub persistent_share: Option<f64>,
+}
+
 /// One diagnostic test.
 #[derive(Debug, Clone, Serialize)]
 pub struct ModelTest {
-    /// The test.
-    pub name: String,
+    /// Stable key, e.g. `entity_intercepts`, `fixed_vs_random`.
+    pub key: String,
+    /// What it examines, in plain words.
+    pub label: String,
+    /// Its name in the textbooks.
+    pub textbook_name: String,
+    /// Its published source.
+    pub source: String,
     /// Its statistic.
     pub statistic: f64,
     /// Degrees of freedom (none for normal statistics, two for F).
