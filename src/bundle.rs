@@ -30,6 +30,9 @@ pub struct Manifest {
     pub rules: RulesRecord,
     /// Row accounting: `input == kept + rejected`.
     pub rows: RowCounts,
+    /// The corrections file applied, if any (`[repair] corrections`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub corrections: Option<CorrectionsRecord>,
     /// The overall verdict of the readiness report (null in bundles made before it was
     /// recorded, or when nothing was judged).
     #[serde(default)]
@@ -41,7 +44,10 @@ pub struct Manifest {
 /// The input file in the manifest.
 #[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct InputRecord {
-    /// Absolute path.
+    /// The file's name: what `verify` looks for, with its hash, wherever the file now is.
+    #[serde(default)]
+    pub name: String,
+    /// Absolute path where the bundle was built: a hint for `verify`, not a requirement.
     pub path: String,
     /// SHA-256 of its bytes.
     pub sha256: String,
@@ -56,12 +62,31 @@ pub struct InputRecord {
     /// How a CSV input was read (delimiter, decimal comma, encoding).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub csv: Option<crate::config::CsvOptions>,
+    /// The sheet a spreadsheet input was read from.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub sheet: Option<String>,
+}
+
+/// The corrections file in the manifest.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct CorrectionsRecord {
+    /// The file's name.
+    pub name: String,
+    /// Absolute path where the bundle was built (a hint).
+    pub path: String,
+    /// SHA-256 of its bytes.
+    pub sha256: String,
+    /// Cells it changed.
+    pub cells: u64,
 }
 
 /// The rules file in the manifest.
 #[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct RulesRecord {
-    /// Absolute path, if a file was used.
+    /// The file's name, if a file was used.
+    #[serde(default)]
+    pub name: Option<String>,
+    /// Absolute path where the bundle was built, if a file was used: a hint for `verify`.
     pub path: Option<String>,
     /// SHA-256 of its text.
     pub sha256: String,
@@ -189,6 +214,7 @@ fn write_files(
         // zstd, at a somewhat larger file.
         ParquetWriter::new(f)
             .with_compression(ParquetCompression::Snappy)
+            .with_key_value_metadata(Some(parquet_labels(&p.dictionary)))
             .finish(&mut p.panel)?;
         Ok(())
     })?;
@@ -197,6 +223,7 @@ fn write_files(
         write("panel.csv", &mut |f| write_csv(f, &p.panel))?;
     }
     write("rejected.csv", &mut |f| write_csv(f, &p.rejected))?;
+    write("corrections.csv", &mut |f| write_csv(f, &p.corrections))?;
 
     progress.stage("writing the reports and the dictionary");
     for (file, format) in [
@@ -211,6 +238,12 @@ fn write_files(
                 .map_err(Error::io(&path))
         })?;
     }
+    write("dictionary.json", &mut |f| {
+        serde_json::to_writer_pretty(&mut *f, &DictionaryFile::new(&p.dictionary))
+            .map_err(|e| Error::io(dir.join("dictionary.json"))(e.into()))?;
+        f.write_all(b"\n")
+            .map_err(Error::io(dir.join("dictionary.json")))
+    })?;
     write("dictionary.md", &mut |f| {
         f.write_all(dictionary_md(&p.dictionary).as_bytes())
             .map_err(Error::io(dir.join("dictionary.md")))
@@ -232,6 +265,7 @@ fn write_files(
         created_by_command: cfg.command_line.clone(),
         created_unix_seconds: created_seconds(),
         input: InputRecord {
+            name: file_name(&input_abs),
             path: input_abs.display().to_string(),
             sha256: sha256_file(&cfg.input.path)?,
             rows: p.report.input.rows,
@@ -239,12 +273,26 @@ fn write_files(
             entity: cfg.input.entity.clone(),
             period: cfg.input.period.clone(),
             csv: (cfg.input.format == InputFormat::Csv).then(|| cfg.input.csv.clone()),
+            sheet: p.report.input.sheet.clone(),
         },
         rules: RulesRecord {
+            name: cfg.input.rules.path.as_deref().map(file_name),
             path: rules_path,
             sha256: sha256_hex(cfg.input.rules.text.as_bytes()),
         },
         verdict: p.report.verdict.as_ref().map(|v| v.overall),
+        corrections: p
+            .corrections_file
+            .as_ref()
+            .map(|(path, sha256)| CorrectionsRecord {
+                name: file_name(path),
+                path: std::path::absolute(path)
+                    .unwrap_or_else(|_| path.clone())
+                    .display()
+                    .to_string(),
+                sha256: sha256.clone(),
+                cells: p.report.repairs.as_ref().map_or(0, |r| r.corrected_cells),
+            }),
         rows: RowCounts {
             input: p.report.input.rows,
             kept: p.panel.height() as u64,
@@ -257,6 +305,41 @@ fn write_files(
     serde_json::to_writer_pretty(&mut f, &manifest)?;
     writeln!(f).map_err(Error::io(&path))?;
     Ok(manifest)
+}
+
+/// `dictionary.json`: the data dictionary for programs.
+#[derive(Serialize)]
+struct DictionaryFile<'a> {
+    /// What the file is.
+    about: &'static str,
+    /// One entry per column of the cleaned panel, in column order.
+    columns: &'a [crate::pipeline::DictionaryEntry],
+}
+
+impl<'a> DictionaryFile<'a> {
+    fn new(columns: &'a [crate::pipeline::DictionaryEntry]) -> Self {
+        DictionaryFile {
+            about: "panelready data dictionary: one entry per column of panel.parquet / panel.csv",
+            columns,
+        }
+    }
+}
+
+/// Labels, units and definitions for the Parquet file. polars writes no per-field metadata,
+/// so they go into the file's key-value metadata: `panelready.dictionary` holds
+/// dictionary.json, and `panelready.column.NAME` each column's entry as JSON.
+fn parquet_labels(entries: &[crate::pipeline::DictionaryEntry]) -> KeyValueMetadata {
+    let mut kv = vec![(
+        "panelready.dictionary".to_string(),
+        serde_json::to_string(&DictionaryFile::new(entries)).unwrap_or_default(),
+    )];
+    for e in entries {
+        kv.push((
+            format!("panelready.column.{}", e.name),
+            serde_json::to_string(e).unwrap_or_default(),
+        ));
+    }
+    KeyValueMetadata::from_static(kv)
 }
 
 /// The data dictionary as Markdown: one row per column of the cleaned panel.
@@ -359,41 +442,97 @@ pub struct Verification {
     pub other_version: Option<String>,
 }
 
-/// Re-run the bundle in `dir` from its manifest's input and rules and compare every hash.
-pub fn verify(dir: &Path) -> Result<Verification> {
+fn file_name(p: &Path) -> String {
+    p.file_name()
+        .map(|n| n.to_string_lossy().to_string())
+        .unwrap_or_default()
+}
+
+/// Where `verify` finds the files a bundle was built from, when they are not where the
+/// manifest says they were (another machine, another folder).
+#[derive(Debug, Clone, Default)]
+pub struct Relocated {
+    /// The raw input.
+    pub input: Option<PathBuf>,
+    /// The rules file.
+    pub rules: Option<PathBuf>,
+}
+
+/// Checks that `path` holds the file the manifest recorded, by its hash; `what` and the
+/// recorded name go into the message.
+fn recognise(path: &Path, sha256: &str, what: &str, name: &str, given: bool) -> Result<()> {
+    let hash = sha256_file(path).map_err(|e| Error::VerifyInput {
+        path: path.to_path_buf(),
+        message: if given {
+            format!("the {what} file cannot be read ({e})")
+        } else {
+            format!(
+                "the bundle's {what} file, where the manifest recorded it, cannot be read ({e}); \
+                 was it moved? Pass its new place with --{what} PATH"
+            )
+        },
+    })?;
+    if hash != sha256 {
+        let message = if given {
+            format!(
+                "not the bundle's {what} file: its SHA-256 differs from the one the manifest \
+                 recorded for `{name}`"
+            )
+        } else {
+            format!(
+                "the bundle's {what} file has changed since the bundle was built (its SHA-256 \
+                 differs)"
+            )
+        };
+        return Err(Error::VerifyInput {
+            path: path.to_path_buf(),
+            message,
+        });
+    }
+    Ok(())
+}
+
+/// Re-run the bundle in `dir` from its manifest's input and rules (or the files `moved`
+/// names instead, recognised by their hashes) and compare every hash.
+pub fn verify(dir: &Path, moved: &Relocated) -> Result<Verification> {
     let manifest_path = dir.join("manifest.json");
     let text = fs::read_to_string(&manifest_path).map_err(Error::io(&manifest_path))?;
     let manifest: Manifest = serde_json::from_str(&text).map_err(|e| Error::Manifest {
         path: manifest_path.clone(),
         message: e.to_string(),
     })?;
-    let input = PathBuf::from(&manifest.input.path);
-    let hash = sha256_file(&input).map_err(|e| Error::VerifyInput {
-        path: input.clone(),
-        message: format!("cannot be read ({e}); was it moved?"),
-    })?;
-    if hash != manifest.input.sha256 {
-        return Err(Error::VerifyInput {
-            path: input,
-            message: "has changed since the bundle was built (its SHA-256 differs)".into(),
-        });
-    }
-    let rules = match &manifest.rules.path {
-        Some(p) => {
-            let p = PathBuf::from(p);
-            let rules = Rules::from_path(&p).map_err(|_| Error::VerifyInput {
+    let recorded = PathBuf::from(&manifest.input.path);
+    let input_name = if manifest.input.name.is_empty() {
+        file_name(&recorded)
+    } else {
+        manifest.input.name.clone()
+    };
+    let input = moved.input.clone().unwrap_or(recorded);
+    recognise(
+        &input,
+        &manifest.input.sha256,
+        "input",
+        &input_name,
+        moved.input.is_some(),
+    )?;
+    let rules = match (&manifest.rules.path, &moved.rules) {
+        (None, None) => Rules::empty(),
+        (None, Some(p)) => {
+            return Err(Error::VerifyInput {
                 path: p.clone(),
-                message: "cannot be read; was it moved?".into(),
-            })?;
-            if sha256_hex(rules.text.as_bytes()) != manifest.rules.sha256 {
-                return Err(Error::VerifyInput {
-                    path: p,
-                    message: "has changed since the bundle was built (its SHA-256 differs)".into(),
-                });
-            }
-            rules
+                message: "the bundle was built without a rules file".into(),
+            })
         }
-        None => Rules::empty(),
+        (Some(recorded), given) => {
+            let p = given.clone().unwrap_or_else(|| PathBuf::from(recorded));
+            let name = manifest
+                .rules
+                .name
+                .clone()
+                .unwrap_or_else(|| file_name(Path::new(recorded)));
+            recognise(&p, &manifest.rules.sha256, "rules", &name, given.is_some())?;
+            Rules::from_path(&p)?
+        }
     };
     let mut found = Verification {
         other_version: (manifest.tool_version != env!("CARGO_PKG_VERSION"))
@@ -408,6 +547,15 @@ pub fn verify(dir: &Path) -> Result<Verification> {
         }
     }
     let scratch = tempdir_beside(dir)?;
+    // The reports name the input file; a relocated input under another name is rebuilt
+    // through a link carrying the recorded name.
+    let input = if file_name(&input) == input_name {
+        input
+    } else {
+        let link = scratch.join(&input_name);
+        link_or_copy(&input, &link)?;
+        link
+    };
     let cfg = BuildConfig {
         input: InputConfig {
             path: input,
@@ -418,6 +566,7 @@ pub fn verify(dir: &Path) -> Result<Verification> {
             quiet: true,
             timings: false,
             csv: manifest.input.csv.clone().unwrap_or_default(),
+            sheet: manifest.input.sheet.clone(),
         },
         out: scratch.join("bundle"),
         command_line: manifest.created_by_command.clone(),
@@ -434,6 +583,15 @@ pub fn verify(dir: &Path) -> Result<Verification> {
         }
     }
     Ok(found)
+}
+
+fn link_or_copy(from: &Path, to: &Path) -> Result<()> {
+    let from = std::path::absolute(from).map_err(Error::io(from))?;
+    #[cfg(unix)]
+    let made = std::os::unix::fs::symlink(&from, to);
+    #[cfg(not(unix))]
+    let made = fs::copy(&from, to).map(|_| ());
+    made.map_err(Error::io(to))
 }
 
 fn tempdir_beside(dir: &Path) -> Result<PathBuf> {

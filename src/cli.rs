@@ -33,6 +33,112 @@ pub(crate) enum CliCommand {
     Verify(VerifyArgs),
     /// List the built-in ratio definitions with their formulas, null rules and sources.
     Ratios,
+    /// Work with rules files: `rules draft DATA` writes a starter rules file guessed from the
+    /// data.
+    #[command(subcommand)]
+    Rules(RulesCommand),
+    /// Compare two vintages of one panel (two raw files or two bundles): firm-years and
+    /// entities added and removed, cells changed beyond a tolerance (exit 1 if anything
+    /// changed).
+    Compare(CompareArgs),
+}
+
+#[derive(Debug, Subcommand)]
+pub(crate) enum RulesCommand {
+    /// Write a starter rules file guessed from DATA: the entity and period columns, the
+    /// canonical columns from common raw names (every guess commented), the standard library,
+    /// the ratios it can compute, commented [clean] and [model] sections.
+    Draft(DraftArgs),
+}
+
+#[derive(Debug, Args)]
+pub(crate) struct DraftArgs {
+    /// The raw panel: CSV, Parquet or a spreadsheet.
+    pub(crate) data: PathBuf,
+
+    /// Write the draft to this file (refused if it exists) instead of printing it.
+    #[arg(long, value_name = "FILE")]
+    pub(crate) out: Option<PathBuf>,
+
+    /// Read DATA as this format instead of guessing from its extension.
+    #[arg(long, value_enum, value_name = "FORMAT")]
+    pub(crate) input_format: Option<InputFormatArg>,
+
+    /// CSV field separator, one character.
+    #[arg(long, value_name = "CHAR")]
+    pub(crate) delimiter: Option<String>,
+
+    /// CSV numbers use a decimal comma.
+    #[arg(long)]
+    pub(crate) decimal_comma: bool,
+
+    /// CSV text encoding: utf-8 (default), windows-1252 or latin-1.
+    #[arg(long, value_name = "NAME")]
+    pub(crate) encoding: Option<String>,
+
+    /// The sheet of a spreadsheet; default the first.
+    #[arg(long, value_name = "NAME")]
+    pub(crate) sheet: Option<String>,
+}
+
+#[derive(Debug, Args)]
+pub(crate) struct CompareArgs {
+    /// The earlier vintage: a raw CSV / Parquet file, or a bundle folder written by `build`.
+    pub(crate) old: PathBuf,
+
+    /// The later vintage, of the same kind.
+    pub(crate) new: PathBuf,
+
+    /// The rules file naming the keys (and how to read CSV) for raw files; bundles carry
+    /// their own.
+    #[arg(long, value_name = "FILE")]
+    pub(crate) rules: Option<PathBuf>,
+
+    /// The entity column of raw files; overrides `[panel] entity`.
+    #[arg(long, value_name = "COLUMN")]
+    pub(crate) entity: Option<String>,
+
+    /// The period column of raw files; overrides `[panel] period`.
+    #[arg(long, value_name = "COLUMN")]
+    pub(crate) period: Option<String>,
+
+    /// CSV field separator of raw files, one character.
+    #[arg(long, value_name = "CHAR")]
+    pub(crate) delimiter: Option<String>,
+
+    /// Raw CSV numbers use a decimal comma.
+    #[arg(long)]
+    pub(crate) decimal_comma: bool,
+
+    /// Raw CSV text encoding: utf-8 (default), windows-1252 or latin-1.
+    #[arg(long, value_name = "NAME")]
+    pub(crate) encoding: Option<String>,
+
+    /// The sheet of spreadsheet files; default the first.
+    #[arg(long, value_name = "NAME")]
+    pub(crate) sheet: Option<String>,
+
+    /// Absolute tolerance: a number changed when |new − old| > ABS + REL · |old|. A bare
+    /// number sets every column's; `COLUMN=X` one column's. Repeatable. Default 0.
+    #[arg(long = "absolute", value_name = "[COLUMN=]X")]
+    pub(crate) absolute: Vec<String>,
+
+    /// Relative tolerance (see --absolute). A bare number sets every column's; `COLUMN=X`
+    /// one column's. Repeatable. Default 1e-9.
+    #[arg(long = "relative", value_name = "[COLUMN=]X")]
+    pub(crate) relative: Vec<String>,
+
+    /// How to print the summary.
+    #[arg(long, value_enum, default_value = "terminal")]
+    pub(crate) format: ReportFormatArg,
+
+    /// Write the summary to this file instead of printing it (.md, .json, .html, .txt).
+    #[arg(long, value_name = "PATH")]
+    pub(crate) report: Option<PathBuf>,
+
+    /// Write the change ledger (CSV: entity, period, change, column, old, new, difference).
+    #[arg(long, value_name = "PATH")]
+    pub(crate) changes: Option<PathBuf>,
 }
 
 /// Where the data is and how to read its keys.
@@ -54,7 +160,7 @@ pub(crate) struct InputArgs {
     pub(crate) period: Option<String>,
 
     /// Read DATA as this format instead of guessing from its extension (`.csv`, `.csv.gz`,
-    /// `.csv.zst`, `.parquet`).
+    /// `.csv.zst`, `.parquet`, `.xlsx`, `.xlsm`, `.ods`).
     #[arg(long, value_enum, value_name = "FORMAT")]
     pub(crate) input_format: Option<InputFormatArg>,
 
@@ -70,6 +176,11 @@ pub(crate) struct InputArgs {
     /// `[input] encoding`.
     #[arg(long, value_name = "NAME")]
     pub(crate) encoding: Option<String>,
+
+    /// The sheet of a spreadsheet input (.xlsx, .xlsm, .ods); default the first;
+    /// overrides `[input] sheet`.
+    #[arg(long, value_name = "NAME")]
+    pub(crate) sheet: Option<String>,
 
     /// Show no progress on stderr (it is shown only on a terminal anyway).
     #[arg(long)]
@@ -171,12 +282,23 @@ pub(crate) struct DemoArgs {
 pub(crate) struct VerifyArgs {
     /// The bundle folder written by `build`.
     pub(crate) dir: PathBuf,
+
+    /// The raw input, when it is no longer where the manifest says (another machine or
+    /// folder, another name); recognised by its SHA-256.
+    #[arg(long, value_name = "PATH")]
+    pub(crate) input: Option<PathBuf>,
+
+    /// The rules file, when it is no longer where the manifest says; recognised by its
+    /// SHA-256.
+    #[arg(long, value_name = "PATH")]
+    pub(crate) rules: Option<PathBuf>,
 }
 
 #[derive(Debug, Clone, Copy, ValueEnum)]
 pub(crate) enum InputFormatArg {
     Csv,
     Parquet,
+    Spreadsheet,
 }
 
 #[derive(Debug, Clone, Copy, ValueEnum)]

@@ -3,7 +3,7 @@
 
 use std::path::{Path, PathBuf};
 
-use crate::cli::{CliCommand, FailOnArg, InputArgs, InputFormatArg, ReportFormatArg};
+use crate::cli::{CliCommand, FailOnArg, InputArgs, InputFormatArg, ReportFormatArg, RulesCommand};
 use crate::rules::Rules;
 use crate::{Error, Result};
 
@@ -19,7 +19,11 @@ pub enum Command {
     /// `panelready ratios`.
     Ratios,
     /// `panelready verify DIR`.
-    Verify(PathBuf),
+    Verify(PathBuf, crate::bundle::Relocated),
+    /// `compare OLD NEW`.
+    Compare(Box<crate::compare::CompareConfig>),
+    /// `rules draft DATA`.
+    Draft(DraftConfig),
 }
 
 /// How to read the raw panel.
@@ -41,6 +45,8 @@ pub struct InputConfig {
     pub timings: bool,
     /// How to read a CSV input.
     pub csv: CsvOptions,
+    /// The sheet of a spreadsheet input (default: the first).
+    pub sheet: Option<String>,
 }
 
 /// How a CSV input is read: from `[input]` in the rules file, overridden on the command line.
@@ -143,6 +149,8 @@ pub enum InputFormat {
     Csv,
     /// Apache Parquet.
     Parquet,
+    /// A spreadsheet workbook (.xlsx, .xlsm, .ods): one sheet, header in the first row.
+    Spreadsheet,
 }
 
 /// Report output formats.
@@ -186,6 +194,21 @@ pub struct BuildConfig {
     pub fail_on: Option<crate::audit::verdict::Status>,
 }
 
+/// `rules draft` settings.
+#[derive(Debug, Clone)]
+pub struct DraftConfig {
+    /// The raw file.
+    pub data: PathBuf,
+    /// How to read it.
+    pub format: InputFormat,
+    /// CSV reading.
+    pub csv: CsvOptions,
+    /// The sheet of a spreadsheet.
+    pub sheet: Option<String>,
+    /// Where to write the draft (stdout if none).
+    pub out: Option<PathBuf>,
+}
+
 /// `demo` settings.
 #[derive(Debug, Clone)]
 pub struct DemoConfig {
@@ -201,34 +224,75 @@ pub struct DemoConfig {
     pub data_only: bool,
 }
 
+/// The report format: from the extension of `--report`, else `--format`.
+fn report_format(report: Option<&Path>, format: ReportFormatArg) -> Result<ReportFormat> {
+    Ok(match report {
+        Some(path) => match path.extension().and_then(|e| e.to_str()) {
+            Some("md") => ReportFormat::Markdown,
+            Some("json") => ReportFormat::Json,
+            Some("txt") => ReportFormat::Terminal,
+            Some("html") => ReportFormat::Html,
+            _ => {
+                return Err(Error::BadOption {
+                    option: "report",
+                    message: format!(
+                        "`{}`: name a .md, .json, .html or .txt file",
+                        path.display()
+                    ),
+                })
+            }
+        },
+        None => match format {
+            ReportFormatArg::Terminal => ReportFormat::Terminal,
+            ReportFormatArg::Md => ReportFormat::Markdown,
+            ReportFormatArg::Json => ReportFormat::Json,
+            ReportFormatArg::Html => ReportFormat::Html,
+        },
+    })
+}
+
+/// `--absolute` / `--relative` values: bare numbers set the default, `COLUMN=X` a column's.
+fn tolerances(
+    values: &[String],
+    option: &'static str,
+    default: &mut f64,
+    by_column: &mut std::collections::BTreeMap<String, (Option<f64>, Option<f64>)>,
+    absolute: bool,
+) -> Result<()> {
+    for v in values {
+        let (column, number) = match v.split_once('=') {
+            Some((c, x)) => (Some(c.trim().to_string()), x.trim()),
+            None => (None, v.trim()),
+        };
+        let x: f64 = number
+            .parse()
+            .ok()
+            .filter(|x: &f64| x.is_finite() && *x >= 0.0)
+            .ok_or_else(|| Error::BadOption {
+                option,
+                message: format!("`{v}`: give a number >= 0, or COLUMN=NUMBER"),
+            })?;
+        match column {
+            None => *default = x,
+            Some(c) => {
+                let slot = by_column.entry(c).or_default();
+                if absolute {
+                    slot.0 = Some(x);
+                } else {
+                    slot.1 = Some(x);
+                }
+            }
+        }
+    }
+    Ok(())
+}
+
 impl Command {
     /// Validate what the user typed.
     pub(crate) fn from_cli(cli: CliCommand, command_line: String) -> Result<Command> {
         Ok(match cli {
             CliCommand::Audit(a) => {
-                let format = match &a.report {
-                    Some(path) => match path.extension().and_then(|e| e.to_str()) {
-                        Some("md") => ReportFormat::Markdown,
-                        Some("json") => ReportFormat::Json,
-                        Some("txt") => ReportFormat::Terminal,
-                        Some("html") => ReportFormat::Html,
-                        _ => {
-                            return Err(Error::BadOption {
-                                option: "report",
-                                message: format!(
-                                    "`{}`: name a .md, .json, .html or .txt file",
-                                    path.display()
-                                ),
-                            })
-                        }
-                    },
-                    None => match a.format {
-                        ReportFormatArg::Terminal => ReportFormat::Terminal,
-                        ReportFormatArg::Md => ReportFormat::Markdown,
-                        ReportFormatArg::Json => ReportFormat::Json,
-                        ReportFormatArg::Html => ReportFormat::Html,
-                    },
-                };
+                let format = report_format(a.report.as_deref(), a.format)?;
                 Command::Audit(AuditConfig {
                     input: InputConfig::from_args(a.input)?,
                     format,
@@ -269,7 +333,105 @@ impl Command {
                 })
             }
             CliCommand::Ratios => Command::Ratios,
-            CliCommand::Verify(v) => Command::Verify(v.dir),
+            CliCommand::Rules(RulesCommand::Draft(d)) => {
+                let format = match d.input_format {
+                    Some(InputFormatArg::Csv) => InputFormat::Csv,
+                    Some(InputFormatArg::Parquet) => InputFormat::Parquet,
+                    Some(InputFormatArg::Spreadsheet) => InputFormat::Spreadsheet,
+                    None => format_from_extension(&d.data)?,
+                };
+                if let Some(out) = &d.out {
+                    if out.exists() {
+                        return Err(Error::BadOption {
+                            option: "out",
+                            message: format!(
+                                "`{}` exists; name a new file (a draft never replaces a rules file)",
+                                out.display()
+                            ),
+                        });
+                    }
+                }
+                let csv = CsvOptions::resolve(
+                    &Rules::empty(),
+                    d.delimiter.as_deref(),
+                    d.decimal_comma,
+                    d.encoding.as_deref(),
+                )?;
+                Command::Draft(DraftConfig {
+                    data: d.data,
+                    format,
+                    csv,
+                    sheet: d.sheet,
+                    out: d.out,
+                })
+            }
+            CliCommand::Compare(c) => {
+                let format = report_format(c.report.as_deref(), c.format)?;
+                let side = |path: &Path| -> Result<crate::compare::Side> {
+                    if path.is_dir() {
+                        return Ok(crate::compare::Side::Bundle(path.to_path_buf()));
+                    }
+                    let args = InputArgs {
+                        data: path.to_path_buf(),
+                        rules: c.rules.clone(),
+                        entity: c.entity.clone(),
+                        period: c.period.clone(),
+                        input_format: None,
+                        delimiter: c.delimiter.clone(),
+                        decimal_comma: c.decimal_comma,
+                        encoding: c.encoding.clone(),
+                        quiet: true,
+                        timings: false,
+                        sheet: c.sheet.clone(),
+                    };
+                    Ok(crate::compare::Side::Raw(Box::new(InputConfig::from_args(
+                        args,
+                    )?)))
+                };
+                let mut tolerance = crate::compare::Tolerance::default();
+                let mut by_column = std::collections::BTreeMap::new();
+                tolerances(
+                    &c.absolute,
+                    "absolute",
+                    &mut tolerance.absolute,
+                    &mut by_column,
+                    true,
+                )?;
+                tolerances(
+                    &c.relative,
+                    "relative",
+                    &mut tolerance.relative,
+                    &mut by_column,
+                    false,
+                )?;
+                tolerance.by_column = by_column
+                    .into_iter()
+                    .map(|(k, (a, r))| {
+                        (
+                            k,
+                            (
+                                a.unwrap_or(tolerance.absolute),
+                                r.unwrap_or(tolerance.relative),
+                            ),
+                        )
+                    })
+                    .collect();
+                Command::Compare(Box::new(crate::compare::CompareConfig {
+                    old: side(&c.old)?,
+                    new: side(&c.new)?,
+                    tolerance,
+                    format,
+                    report: c.report,
+                    changes: c.changes,
+                }))
+            }
+            CliCommand::Verify(v) => Command::Verify(
+                v.dir,
+                crate::bundle::Relocated {
+                    input: v.input,
+                    rules: v.rules,
+                },
+            ),
         })
     }
 }
@@ -283,6 +445,7 @@ impl InputConfig {
         let format = match a.input_format {
             Some(InputFormatArg::Csv) => InputFormat::Csv,
             Some(InputFormatArg::Parquet) => InputFormat::Parquet,
+            Some(InputFormatArg::Spreadsheet) => InputFormat::Spreadsheet,
             None => format_from_extension(&a.data)?,
         };
         let entity = a
@@ -299,6 +462,7 @@ impl InputConfig {
             a.decimal_comma,
             a.encoding.as_deref(),
         )?;
+        let sheet = a.sheet.or_else(|| rules.file.input.sheet.clone());
         Ok(InputConfig {
             path: a.data,
             format,
@@ -308,6 +472,7 @@ impl InputConfig {
             quiet: a.quiet,
             timings: a.timings,
             csv,
+            sheet,
         })
     }
 
@@ -327,6 +492,7 @@ impl InputConfig {
             .clone()
             .ok_or(Error::MissingKey { key: "period" })?;
         let csv = CsvOptions::resolve(&rules, None, false, None)?;
+        let sheet = rules.file.input.sheet.clone();
         Ok(InputConfig {
             path,
             format,
@@ -335,6 +501,7 @@ impl InputConfig {
             period,
             quiet: false,
             timings: false,
+            sheet,
             csv,
         })
     }
@@ -358,6 +525,7 @@ fn format_from_extension(path: &Path) -> Result<InputFormat> {
     match ext.as_deref() {
         Some("csv") => Ok(InputFormat::Csv),
         Some("parquet" | "pq") => Ok(InputFormat::Parquet),
+        Some("xlsx" | "xlsm" | "ods") => Ok(InputFormat::Spreadsheet),
         _ => Err(Error::UnknownFormat {
             file: path.to_path_buf(),
         }),

@@ -111,8 +111,15 @@ pub enum Error {
     #[error("`{path}`: not a panelready manifest: {message}")]
     Manifest { path: PathBuf, message: String },
     /// `verify` cannot re-run: the recorded input or rules moved or changed.
-    #[error("`{path}` recorded in the manifest {message}")]
+    #[error("`{path}`: {message}")]
     VerifyInput { path: PathBuf, message: String },
+    /// `compare` needs one row per key on each side.
+    #[error("`{file}`: key {entity} in {period} is on rows with different values; `compare` needs one row per key (build both files and compare the bundles)")]
+    CompareKey {
+        file: PathBuf,
+        entity: String,
+        period: i64,
+    },
     /// The input file does not exist (or is a folder).
     #[error("`{file}`: no such file")]
     NoInput { file: PathBuf },

@@ -9,16 +9,19 @@ pub mod audit;
 pub mod bundle;
 pub mod clean;
 mod cli;
+pub mod compare;
 pub mod config;
 pub mod core;
 pub mod demo;
 pub mod derive;
+pub mod draft;
 mod error;
 pub mod load;
 pub mod pipeline;
 pub mod progress;
 pub mod report;
 pub mod rules;
+pub mod sheet;
 
 use std::ffi::OsString;
 use std::io::Write;
@@ -50,7 +53,9 @@ pub fn run<I: IntoIterator<Item = OsString>>(args: I) -> i32 {
         Command::Build(cfg) => build_cmd(&cfg),
         Command::Demo(cfg) => demo_cmd(&cfg),
         Command::Ratios => ratios_cmd(),
-        Command::Verify(dir) => verify_cmd(&dir),
+        Command::Compare(cfg) => compare_cmd(&cfg),
+        Command::Draft(cfg) => draft_cmd(&cfg),
+        Command::Verify(dir, moved) => verify_cmd(&dir, &moved),
     });
     match result {
         Ok(code) => code,
@@ -182,8 +187,8 @@ fn demo_cmd(cfg: &DemoConfig) -> Result<i32> {
     Ok(0)
 }
 
-fn verify_cmd(dir: &std::path::Path) -> Result<i32> {
-    let v = bundle::verify(dir)?;
+fn verify_cmd(dir: &std::path::Path, moved: &bundle::Relocated) -> Result<i32> {
+    let v = bundle::verify(dir, moved)?;
     let mut msg = String::new();
     if let Some(version) = &v.other_version {
         msg.push_str(&format!(
@@ -206,6 +211,78 @@ fn verify_cmd(dir: &std::path::Path) -> Result<i32> {
     }
     stdout_write(msg.as_bytes())?;
     Ok(if ok { 0 } else { 1 })
+}
+
+fn compare_cmd(cfg: &compare::CompareConfig) -> Result<i32> {
+    use polars::prelude::{CsvWriter, SerWriter};
+    let (comparison, mut ledger) = compare::compare(&cfg.old, &cfg.new, &cfg.tolerance)?;
+    if let Some(path) = &cfg.changes {
+        let mut guarded = bundle::guard_text(&ledger)?;
+        let mut bytes = Vec::new();
+        CsvWriter::new(&mut bytes)
+            .include_header(true)
+            .finish(&mut guarded)?;
+        bundle::write_atomic(path, &bytes)?;
+        ledger = guarded;
+    }
+    use std::io::IsTerminal;
+    let colour = cfg.format == config::ReportFormat::Terminal
+        && cfg.report.is_none()
+        && std::io::stdout().is_terminal()
+        && std::env::var_os("NO_COLOR").is_none_or(|v| v.is_empty());
+    let mut buf = Vec::new();
+    report::render_page(
+        &compare::page(&comparison),
+        cfg.format,
+        colour,
+        &comparison,
+        &mut buf,
+    )
+    .map_err(Error::io("<report>"))?;
+    match &cfg.report {
+        Some(path) => {
+            bundle::write_atomic(path, &buf)?;
+            stdout_write(
+                format!(
+                    "wrote {} ({} ledger lines; {})\n",
+                    path.display(),
+                    ledger.height(),
+                    if comparison.changed {
+                        "changed beyond the tolerance"
+                    } else {
+                        "no change beyond the tolerance"
+                    }
+                )
+                .as_bytes(),
+            )?;
+        }
+        None => stdout_write(&buf)?,
+    }
+    Ok(if comparison.changed { 1 } else { 0 })
+}
+
+fn draft_cmd(cfg: &config::DraftConfig) -> Result<i32> {
+    let df = load::read_raw(&cfg.data, cfg.format, &cfg.csv, cfg.sheet.as_deref())?;
+    let name = cfg
+        .data
+        .file_name()
+        .map(|n| n.to_string_lossy().to_string())
+        .unwrap_or_default();
+    let text = draft::draft(&df, &name)?;
+    match &cfg.out {
+        Some(path) => {
+            bundle::write_atomic(path, text.as_bytes())?;
+            stdout_write(
+                format!(
+                    "wrote {}: check every guess before building\n",
+                    path.display()
+                )
+                .as_bytes(),
+            )?;
+        }
+        None => stdout_write(text.as_bytes())?,
+    }
+    Ok(0)
 }
 
 fn ratios_cmd() -> Result<i32> {

@@ -20,6 +20,40 @@ pub struct Loaded {
     pub columns: Vec<String>,
     /// The rows read.
     pub rows: u64,
+    /// The sheet read, for a spreadsheet.
+    pub sheet: Option<String>,
+    /// What reading had to decide (spreadsheet conversions), one sentence each.
+    pub notes: Vec<String>,
+}
+
+/// Read a raw file whole, without keys (for `rules draft`, which guesses them).
+pub fn read_raw(
+    path: &Path,
+    format: InputFormat,
+    csv: &CsvOptions,
+    sheet: Option<&str>,
+) -> Result<DataFrame> {
+    if format == InputFormat::Spreadsheet {
+        return Ok(crate::sheet::read(path, sheet)?.df);
+    }
+    let utf8 = match (format, csv.encoding) {
+        (InputFormat::Csv, Encoding::Windows1252) => Some(Transcoded::new(path)?),
+        _ => None,
+    };
+    let source = utf8.as_ref().map_or(path, |t| t.path.as_path());
+    let df = match scan(source, path, format, Some(INFER_ROWS), csv)?.collect() {
+        Ok(df) => df,
+        Err(_) if format == InputFormat::Csv => scan(source, path, format, None, csv)?
+            .collect()
+            .map_err(|e| unreadable(path, format, csv.delimiter, e))?,
+        Err(e) => return Err(unreadable(path, format, csv.delimiter, e)),
+    };
+    if df.height() == 0 {
+        return Err(Error::NoRows {
+            file: path.to_path_buf(),
+        });
+    }
+    Ok(df)
 }
 
 /// Read the input named in `cfg` and check its keys.
@@ -33,7 +67,14 @@ pub fn load(cfg: &InputConfig) -> Result<Loaded> {
         .as_ref()
         .map_or(cfg.path.as_path(), |t| t.path.as_path());
     let scan = |infer| scan(source, &cfg.path, cfg.format, infer, &cfg.csv);
-    let mut lf = scan(Some(INFER_ROWS))?;
+    let sheet = match cfg.format {
+        InputFormat::Spreadsheet => Some(crate::sheet::read(&cfg.path, cfg.sheet.as_deref())?),
+        _ => None,
+    };
+    let mut lf = match &sheet {
+        Some(s) => s.df.clone().lazy(),
+        None => scan(Some(INFER_ROWS))?,
+    };
     let schema = lf
         .collect_schema()
         .map_err(|e| unreadable(&cfg.path, cfg.format, cfg.csv.delimiter, e))?;
@@ -108,10 +149,13 @@ pub fn load(cfg: &InputConfig) -> Result<Loaded> {
         }
     }
     let df = df.lazy().with_columns(casts).collect()?;
+    let (sheet, notes) = sheet.map_or((None, Vec::new()), |s| (Some(s.name), s.notes));
     Ok(Loaded {
         rows: df.height() as u64,
         df,
         columns,
+        sheet,
+        notes,
     })
 }
 
@@ -285,6 +329,8 @@ fn scan(
             .finish()
             .map_err(|e| unreadable(input, format, csv.delimiter, e))?,
         InputFormat::Parquet => LazyFrame::scan_parquet(pl_path, ScanArgsParquet::default())?,
+        // load() reads spreadsheets itself, with the chosen sheet; the first sheet here.
+        InputFormat::Spreadsheet => crate::sheet::read(input, None)?.df.lazy(),
     };
     Ok(lf)
 }

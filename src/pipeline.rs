@@ -6,13 +6,13 @@ use crate::audit::model::{Effects, ModelSpec};
 use crate::audit::{self, accounting, Check, Context, CutoffGroups, Options, Settings};
 use crate::clean::balance::{self, Balance};
 use crate::clean::treat::{Method, Treatment};
-use crate::clean::{self, DuplicatePolicy, Keys, SingletonPolicy};
+use crate::clean::{self, repair, DuplicatePolicy, Keys, SingletonPolicy};
 use crate::config::InputConfig;
 use crate::derive::{Layout, Plan};
 use crate::load::{self, ROW};
 use crate::progress::Progress;
 use crate::report::{Cleaned, InputSummary, Report, SampleStep};
-use crate::rules::LEVEL_COLUMNS;
+use crate::rules::{Rules, LEVEL_COLUMNS};
 use crate::{Error, Result};
 
 /// `audit` is a dry run of `build`: the same steps on the same rules, nothing written. The one
@@ -34,12 +34,17 @@ pub struct Prepared {
     pub panel: DataFrame,
     /// The rejects ledger, sorted by `source_row`.
     pub rejected: DataFrame,
+    /// The corrections ledger: every cell a repair changed (entity, period, column, old, new,
+    /// reason).
+    pub corrections: DataFrame,
+    /// The corrections file's name and hash, if one was applied.
+    pub corrections_file: Option<(std::path::PathBuf, String)>,
     /// One entry per column of the panel, for `dictionary.md`.
     pub dictionary: Vec<DictionaryEntry>,
 }
 
 /// One variable of the data dictionary.
-#[derive(Debug, Clone)]
+#[derive(Debug, Clone, serde::Serialize)]
 pub struct DictionaryEntry {
     /// The column.
     pub name: String,
@@ -71,6 +76,19 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
     };
     let singletons = SingletonPolicy::parse(rules.file.clean.drop_singletons.as_ref())?;
     let balance = Balance::parse(rules.file.clean.balance.as_ref())?;
+    let slip_policy = repair::SlipPolicy::parse(rules.file.repair.unit_slips.as_deref())?;
+    let corrections = match &rules.file.repair.corrections {
+        Some(name) => {
+            let base = rules
+                .path
+                .as_deref()
+                .and_then(|p| p.parent())
+                .map(|p| p.to_path_buf())
+                .unwrap_or_default();
+            Some(repair::read_corrections(&base.join(name))?)
+        }
+        None => None,
+    };
     let loaded = load::load(input)?;
     if let DuplicatePolicy::PreferMax(c) | DuplicatePolicy::PreferMin(c) = &policy {
         if !loaded.columns.contains(c) {
@@ -95,11 +113,66 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
 
     let mut steps = resolved.steps;
     let mut ledger_parts = resolved.rejected;
+    let mut kept = resolved.kept;
+
+    // Repairs right after the key steps, so that rules and derived variables see them.
+    let levels = level_columns(rules, &loaded.columns, input)?;
+    let mut corrected = Vec::new();
+    let (mut corrected_cells, mut slips_repaired) = (0u64, 0u64);
+    if let Some(c) = &corrections {
+        progress.stage("corrections file");
+        let (df, lines) = repair::apply_corrections(kept, c, &input.entity, &input.period)?;
+        kept = df;
+        corrected_cells = lines.height() as u64;
+        steps.push(SampleStep::after(
+            &steps,
+            &format!("corrections file: {} cells changed", lines.height()),
+            &kept,
+            &input.entity,
+        )?);
+        corrected.push(lines);
+    }
+    if slip_policy != repair::SlipPolicy::Report {
+        progress.stage("unit slips repaired");
+        let (df, lines) = repair::repair_slips(
+            kept,
+            &levels,
+            &input.entity,
+            &input.period,
+            ROW,
+            slip_policy,
+        )?;
+        kept = df;
+        slips_repaired = lines.height() as u64;
+        steps.push(SampleStep::after(
+            &steps,
+            &format!(
+                "unit slips {}: {} cells",
+                if slip_policy == repair::SlipPolicy::Rescale {
+                    "rescaled"
+                } else {
+                    "set to null"
+                },
+                lines.height()
+            ),
+            &kept,
+            &input.entity,
+        )?);
+        corrected.push(lines);
+    }
+    let corrections_ledger = if corrected.is_empty() {
+        repair::empty_ledger(&input.entity, &input.period)?
+    } else {
+        concat(
+            corrected.into_iter().map(|d| d.lazy()).collect::<Vec<_>>(),
+            UnionArgs::default(),
+        )?
+        .collect()?
+    };
 
     // Accounting rules act before derivation, so no derived ratio uses a value they reject.
     progress.stage("accounting rules");
-    let rule_lines = accounting::count(&resolved.kept, &accounting_rules)?;
-    let mut kept = resolved.kept;
+    let rule_lines = accounting::count(&kept, &accounting_rules)?;
     {
         kept = accounting::apply_nulls(kept, &accounting_rules)?;
         if let Some(reason) = accounting::drop_reason(&accounting_rules) {
@@ -154,8 +227,25 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
         columns: loaded.columns.len() as u64,
         entity: input.entity.clone(),
         period: input.period.clone(),
+        sheet: loaded.sheet.clone(),
+        notes: loaded.notes.clone(),
     });
     report.keys = resolved.keys;
+    if corrections.is_some() || slip_policy != repair::SlipPolicy::Report {
+        report.repairs = Some(crate::report::Repairs {
+            corrections_file: corrections
+                .as_ref()
+                .and_then(|c| c.path.file_name().map(|n| n.to_string_lossy().to_string())),
+            corrected_cells,
+            unit_slips: match slip_policy {
+                repair::SlipPolicy::Report => "report",
+                repair::SlipPolicy::Rescale => "rescale",
+                repair::SlipPolicy::Null => "null",
+            }
+            .into(),
+            unit_slips_repaired: slips_repaired,
+        });
+    }
     report.derived = derived;
     report.skipped = plan.skipped.clone();
     report.skipped.extend(skipped_rules);
@@ -178,23 +268,6 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
                 file: input.path.clone(),
                 column: c.clone(),
                 context: "named in `[audit] compare`".into(),
-            });
-        }
-    }
-    let levels: Vec<String> = match &rules.file.audit.levels {
-        Some(list) => list.iter().map(resolve).collect(),
-        None => LEVEL_COLUMNS
-            .iter()
-            .map(|c| resolve(&c.to_string()))
-            .filter(|c| loaded.columns.contains(c))
-            .collect(),
-    };
-    for c in &levels {
-        if !loaded.columns.contains(c) {
-            return Err(Error::MissingColumn {
-                file: input.path.clone(),
-                column: c.clone(),
-                context: "named in `[audit] levels`".into(),
             });
         }
     }
@@ -329,8 +402,41 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
         report,
         panel,
         rejected,
+        corrections: corrections_ledger,
+        corrections_file: corrections.map(|c| (c.path, c.sha256)),
         dictionary,
     })
+}
+
+/// The level variables searched for unit slips: `[audit] levels`, else the mapped canonical
+/// amounts the data has.
+fn level_columns(rules: &Rules, raw: &[String], input: &InputConfig) -> Result<Vec<String>> {
+    let resolve = |c: &String| {
+        rules
+            .file
+            .columns
+            .get(c)
+            .cloned()
+            .unwrap_or_else(|| c.clone())
+    };
+    let levels: Vec<String> = match &rules.file.audit.levels {
+        Some(list) => list.iter().map(resolve).collect(),
+        None => LEVEL_COLUMNS
+            .iter()
+            .map(|c| resolve(&c.to_string()))
+            .filter(|c| raw.contains(c))
+            .collect(),
+    };
+    for c in &levels {
+        if !raw.contains(c) {
+            return Err(Error::MissingColumn {
+                file: input.path.clone(),
+                column: c.clone(),
+                context: "named in `[audit] levels`".into(),
+            });
+        }
+    }
+    Ok(levels)
 }
 
 fn dictionary(
@@ -450,6 +556,8 @@ fn cleaned_figures(
         columns: 0,
         entity: input.entity.clone(),
         period: input.period.clone(),
+        sheet: None,
+        notes: Vec::new(),
     });
     for check in [
         Box::new(audit::Glance) as Box<dyn audit::Check>,

@@ -132,6 +132,53 @@ fn verify_passes_then_names_a_changed_file_and_refuses_a_moved_input() {
 }
 
 #[test]
+fn verify_checks_a_bundle_against_relocated_files_recognised_by_hash() {
+    let w = Workdir::new();
+    w.ok(&["demo", "--out", "d"]);
+    // A colleague's machine: the bundle in another folder, the input and rules elsewhere
+    // under other names, the originals gone.
+    std::fs::create_dir_all(w.path("elsewhere")).unwrap();
+    std::fs::rename(w.path("d/bundle"), w.path("elsewhere/bundle")).unwrap();
+    std::fs::rename(
+        w.path("d/data/velmora_accounts.csv"),
+        w.path("elsewhere/accounts-2026.csv"),
+    )
+    .unwrap();
+    std::fs::rename(w.path("d/data/rules.toml"), w.path("elsewhere/r.toml")).unwrap();
+    w.fails(
+        &["verify", "elsewhere/bundle"],
+        "Pass its new place with --input",
+    );
+    let r = w.ok(&[
+        "verify",
+        "elsewhere/bundle",
+        "--input",
+        "elsewhere/accounts-2026.csv",
+        "--rules",
+        "elsewhere/r.toml",
+    ]);
+    assert!(r.stdout.contains("rebuilt bit for bit"), "{}", r.stdout);
+    // A wrong file is recognised by its hash.
+    w.write("other.csv", "firm_id,fiscal_year\nA,2020\n");
+    w.fails(
+        &[
+            "verify",
+            "elsewhere/bundle",
+            "--input",
+            "other.csv",
+            "--rules",
+            "elsewhere/r.toml",
+        ],
+        "not the bundle's input file",
+    );
+    let manifest: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(w.path("elsewhere/bundle/manifest.json")).unwrap(),
+    )
+    .unwrap();
+    assert_eq!(manifest["input"]["name"], "velmora_accounts.csv");
+}
+
+#[test]
 fn csv_outputs_guard_formula_like_text() {
     let w = Workdir::new();
     w.write("p.csv", "f,y,note\n=cmd,1,+x\n=cmd,2,fine\nB,1,@y\n");

@@ -5,6 +5,7 @@ mod util;
 mod cli;
 mod conservation;
 mod demo;
+mod handoff;
 mod hostile;
 mod html;
 mod properties;

@@ -24,6 +24,8 @@ fn blank() -> Report {
         columns: 2,
         entity: "f".into(),
         period: "y".into(),
+        sheet: None,
+        notes: Vec::new(),
     })
 }
 

@@ -5,12 +5,10 @@
 use polars::prelude::*;
 
 use super::{Check, Context};
+use crate::clean::repair::slip_magnitude;
 use crate::report::{Report, UnitSlip};
 use crate::Result;
 
-/// How far (in log10 units) a ratio may sit from 10^3 or 10^6 and still count as a slip:
-/// log10(2), so factors between 500 and 2000 count as 1000.
-const SLACK: f64 = std::f64::consts::LOG10_2;
 /// The longest slip list kept in the report (the count covers all).
 const LISTED: usize = 10_000;
 
@@ -42,14 +40,10 @@ impl Check for UnitSlips {
                 .and(x.clone().gt(lit(0.0)))
                 .and(prev.clone().gt(lit(0.0)));
             let r = when(ok)
-                .then((x / prev).log(lit(10.0)))
+                .then((x.clone() / prev).log(lit(10.0)))
                 .otherwise(lit(NULL));
-            let mut mag = lit(NULL).cast(DataType::Int32);
-            for m in [6, -6, 3, -3] {
-                mag = when((r.clone() - lit(m as f64)).abs().lt(lit(SLACK)))
-                    .then(lit(m))
-                    .otherwise(mag);
-            }
+            // The same detector the repair uses (clean::repair).
+            let mag = slip_magnitude(e, p, x);
             cols.push(mag.alias(format!("mag{i}")));
             cols.push(
                 (r * lit(std::f64::consts::LN_10))

@@ -3,6 +3,7 @@
 //! its effect for the sample-construction table.
 
 pub mod balance;
+pub mod repair;
 pub mod treat;
 
 use polars::prelude::*;

@@ -6,7 +6,8 @@ use std::io::Write;
 
 use maud::{html, Markup, PreEscaped, DOCTYPE};
 
-use super::layout::{figure_column, headline, level, num, sections, slug, Block};
+use super::layout::{figure_column, headline, level, num, sections, slug, Block, Section};
+use super::Page;
 use super::{Render, Report};
 
 /// Renders the report as a self-contained HTML page.
@@ -74,16 +75,43 @@ impl Render for Html {
                         (missing_chart(r))
                         @for t in &r.treatment { (treated_chart(t)) }
                     }
-                    @for section in sections(r) {
-                        h2 id=(slug(section.title)) { (section.title) }
-                        @for block in &section.blocks { (block_html(block)) }
-                    }
+                    (sections_html(&sections(r)))
                     p.note { em { "These figures inform a judgement about the data; they do not show that a model is right." } }
                 }
             }
         };
         wtr.write_all(page.into_string().as_bytes())
     }
+}
+
+fn sections_html(sections: &[Section]) -> Markup {
+    html! {
+        @for section in sections {
+            h2 id=(slug(section.title)) { (section.title) }
+            @for block in &section.blocks { (block_html(block)) }
+        }
+    }
+}
+
+/// A page other than the readiness report, as a self-contained HTML page.
+pub(crate) fn page(page: &Page, wtr: &mut dyn Write) -> std::io::Result<()> {
+    let markup = html! {
+        (DOCTYPE)
+        html lang="en" {
+            head {
+                meta charset="utf-8";
+                meta name="viewport" content="width=device-width, initial-scale=1";
+                title { (page.title) }
+                style { (PreEscaped(CSS)) }
+            }
+            body {
+                h1 { (page.title) }
+                p.note { (inline(&page.subtitle)) }
+                (sections_html(&page.sections))
+            }
+        }
+    };
+    wtr.write_all(markup.into_string().as_bytes())
 }
 
 /// A status word as a coloured chip.

@@ -2,7 +2,8 @@
 
 use std::io::Write;
 
-use super::layout::{figure_column, headline, pair_rows, sections, Block};
+use super::layout::{figure_column, headline, pair_rows, sections, Block, Section};
+use super::Page;
 use super::{Render, Report};
 
 /// Renders the report as Markdown.
@@ -76,23 +77,34 @@ impl Render for Markdown {
                 writeln!(wtr)?;
             }
         }
-        for section in sections(r) {
-            writeln!(wtr, "## {}\n", section.title)?;
-            for block in &section.blocks {
-                match block {
-                    Block::Pairs(rows) => {
-                        let rows = pair_rows(rows);
-                        table(wtr, &["figure".into(), "value".into()], &rows)?;
-                    }
-                    Block::Table(header, rows) => table(wtr, header, rows)?,
-                    Block::Note(text) => writeln!(wtr, "{text}\n")?,
-                    Block::Heading(text) => writeln!(wtr, "### {text}\n")?,
-                }
-            }
-        }
+        write_sections(&sections(r), wtr)?;
         writeln!(
             wtr,
             "_These figures inform a judgement about the data; they do not show that a model is right._"
         )
     }
+}
+
+fn write_sections(sections: &[Section], wtr: &mut dyn Write) -> std::io::Result<()> {
+    for section in sections {
+        writeln!(wtr, "## {}\n", section.title)?;
+        for block in &section.blocks {
+            match block {
+                Block::Pairs(rows) => {
+                    let rows = pair_rows(rows);
+                    table(wtr, &["figure".into(), "value".into()], &rows)?;
+                }
+                Block::Table(header, rows) => table(wtr, header, rows)?,
+                Block::Note(text) => writeln!(wtr, "{text}\n")?,
+                Block::Heading(text) => writeln!(wtr, "### {text}\n")?,
+            }
+        }
+    }
+    Ok(())
+}
+
+/// A page other than the readiness report, as Markdown.
+pub(crate) fn page(page: &Page, wtr: &mut dyn Write) -> std::io::Result<()> {
+    writeln!(wtr, "# {}\n\n{}\n", page.title, page.subtitle)?;
+    write_sections(&page.sections, wtr)
 }

@@ -4,14 +4,11 @@
 mod html;
 mod json;
 mod layout;
-
-/// A level formatted for reading (four significant digits), as the reports show it.
-pub fn level(x: f64) -> String {
-    layout::level(x)
-}
 mod markdown;
 mod model;
 mod terminal;
+
+pub(crate) use layout::{level, strings, Block, Section};
 
 use std::io::Write;
 
@@ -53,6 +50,50 @@ pub fn renderer(format: ReportFormat) -> Box<dyn Render> {
         ReportFormat::Markdown => Box::new(Markdown),
         ReportFormat::Json => Box::new(Json),
         ReportFormat::Html => Box::new(Html),
+    }
+}
+
+/// A report other than the readiness report (the summary of `compare`), laid out as titled
+/// sections of blocks and rendered like it in the terminal, Markdown and HTML.
+pub(crate) struct Page {
+    /// The page title.
+    pub(crate) title: String,
+    /// One line under the title.
+    pub(crate) subtitle: String,
+    /// The sections in order.
+    pub(crate) sections: Vec<Section>,
+}
+
+/// Render a page; `json` is what the JSON format writes.
+pub(crate) fn render_page(
+    page: &Page,
+    format: ReportFormat,
+    colour: bool,
+    json: &dyn erased::Json,
+    wtr: &mut dyn Write,
+) -> std::io::Result<()> {
+    match format {
+        ReportFormat::Terminal => terminal::page(page, colour, wtr),
+        ReportFormat::Markdown => markdown::page(page, wtr),
+        ReportFormat::Html => html::page(page, wtr),
+        ReportFormat::Json => {
+            wtr.write_all(json.to_json().as_bytes())?;
+            writeln!(wtr)
+        }
+    }
+}
+
+/// Object-safe JSON for `render_page`.
+pub(crate) mod erased {
+    /// Anything serialisable, as pretty JSON.
+    pub(crate) trait Json {
+        /// The value as pretty-printed JSON.
+        fn to_json(&self) -> String;
+    }
+    impl<T: serde::Serialize> Json for T {
+        fn to_json(&self) -> String {
+            serde_json::to_string_pretty(self).unwrap_or_default()
+        }
     }
 }
 

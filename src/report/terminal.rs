@@ -5,7 +5,8 @@ use std::io::Write;
 use comfy_table::presets::UTF8_HORIZONTAL_ONLY;
 use comfy_table::{Cell, CellAlignment, Color, ContentArrangement, Table, TableComponent};
 
-use super::layout::{figure_column, pair_rows, sections, Block};
+use super::layout::{figure_column, pair_rows, sections, Block, Section};
+use super::Page;
 use super::{Render, Report};
 
 /// Renders the report as tables for a person at a terminal.
@@ -58,29 +59,7 @@ impl Render for Terminal {
             "{}: {} rows read (entity `{}`, period `{}`)\n",
             r.input.path, r.input.rows, r.input.entity, r.input.period
         )?;
-        for section in sections(r) {
-            writeln!(wtr, "{}", section.title.to_uppercase())?;
-            for block in &section.blocks {
-                match block {
-                    Block::Pairs(rows) => {
-                        let rows = pair_rows(rows);
-                        writeln!(
-                            wtr,
-                            "{}",
-                            table(vec![String::new(), String::new()], &rows, false, self.color)
-                        )?;
-                    }
-                    Block::Table(header, rows) => {
-                        writeln!(wtr, "{}", table(header.clone(), rows, true, self.color))?
-                    }
-                    Block::Note(text) => writeln!(wtr, "{}", wrap(text, 98, "  "))?,
-                    Block::Heading(text) => {
-                        writeln!(wtr, "{}", wrap(&format!("» {text}"), 98, ""))?
-                    }
-                }
-            }
-            writeln!(wtr)?;
-        }
+        write_sections(&sections(r), self.color, wtr)?;
         writeln!(
             wtr,
             "These figures inform a judgement about the data; they do not show that a model is right."
@@ -105,4 +84,35 @@ fn wrap(text: &str, width: usize, indent: &str) -> String {
     }
     out.push_str(line.trim_end());
     out
+}
+
+fn write_sections(sections: &[Section], color: bool, wtr: &mut dyn Write) -> std::io::Result<()> {
+    for section in sections {
+        writeln!(wtr, "{}", section.title.to_uppercase())?;
+        for block in &section.blocks {
+            match block {
+                Block::Pairs(rows) => {
+                    let rows = pair_rows(rows);
+                    writeln!(
+                        wtr,
+                        "{}",
+                        table(vec![String::new(), String::new()], &rows, false, color)
+                    )?;
+                }
+                Block::Table(header, rows) => {
+                    writeln!(wtr, "{}", table(header.clone(), rows, true, color))?
+                }
+                Block::Note(text) => writeln!(wtr, "{}", wrap(text, 98, "  "))?,
+                Block::Heading(text) => writeln!(wtr, "{}", wrap(&format!("» {text}"), 98, ""))?,
+            }
+        }
+        writeln!(wtr)?;
+    }
+    Ok(())
+}
+
+/// A page other than the readiness report, as terminal tables.
+pub(crate) fn page(page: &Page, color: bool, wtr: &mut dyn Write) -> std::io::Result<()> {
+    writeln!(wtr, "{}\n{}\n", page.title, wrap(&page.subtitle, 98, ""))?;
+    write_sections(&page.sections, color, wtr)
 }

@@ -12,6 +12,8 @@ fn sample() -> Report {
         columns: 9,
         entity: "firm".into(),
         period: "year".into(),
+        sheet: None,
+        notes: Vec::new(),
     });
     r.panel = PanelSummary {
         rows: 1201,

@@ -63,6 +63,9 @@ pub struct RulesFile {
     /// Cleaning policy.
     #[serde(default)]
     pub clean: CleanSection,
+    /// Repairs that change cells (recorded in the corrections ledger).
+    #[serde(default)]
+    pub repair: RepairSection,
     /// What the audit compares.
     #[serde(default)]
     pub audit: AuditSection,
@@ -213,6 +216,19 @@ pub struct InputSection {
     pub decimal_comma: Option<bool>,
     /// The text encoding: `utf-8` (default), `windows-1252` or `latin-1`.
     pub encoding: Option<String>,
+    /// The sheet of a spreadsheet input (default: the first).
+    pub sheet: Option<String>,
+}
+
+/// `[repair]`: cell repairs, each recorded in `corrections.csv`.
+#[derive(Debug, Default, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RepairSection {
+    /// Detected unit slips: `report` (default), `rescale` or `null`.
+    pub unit_slips: Option<String>,
+    /// A CSV of firm-year overrides (`entity,period,column,value,reason`), relative to the
+    /// rules file.
+    pub corrections: Option<String>,
 }
 
 /// `[panel]`: which columns identify the entity and the period.

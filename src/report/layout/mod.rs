@@ -146,6 +146,21 @@ pub(crate) fn sections(r: &Report) -> Vec<Section> {
 }
 
 fn glance(r: &Report) -> Section {
+    let mut section = glance_figures(r);
+    if let Some(sheet) = &r.input.sheet {
+        section
+            .blocks
+            .push(Block::Note(format!("Read from the sheet `{sheet}`.")));
+    }
+    for note in &r.input.notes {
+        section
+            .blocks
+            .push(Block::Note(format!("Reading the input: {note}.")));
+    }
+    section
+}
+
+fn glance_figures(r: &Report) -> Section {
     let p = &r.panel;
     let window = match (p.first_period, p.last_period) {
         (Some(a), Some(b)) => format!("{a}..{b}"),

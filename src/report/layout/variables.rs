@@ -248,6 +248,31 @@ pub(super) fn outliers(r: &Report) -> Section {
             }
         )));
     }
+    if let Some(rep) = &r.repairs {
+        let mut parts = Vec::new();
+        if let Some(f) = &rep.corrections_file {
+            parts.push(format!(
+                "the corrections file `{f}` changed {} cells",
+                rep.corrected_cells
+            ));
+        }
+        if rep.unit_slips != "report" {
+            parts.push(format!(
+                "{} unit slips that jump back the next period were {} (`[repair] unit_slips = \"{}\"`); a slip without a jump back is never repaired and is listed above",
+                rep.unit_slips_repaired,
+                if rep.unit_slips == "rescale" {
+                    "divided by their factor"
+                } else {
+                    "set to null"
+                },
+                rep.unit_slips
+            ));
+        }
+        blocks.push(Block::Note(format!(
+            "Repaired before the checks: {}. Every changed cell is in corrections.csv.",
+            parts.join("; ")
+        )));
+    }
     Section {
         title: "Outliers and unit slips",
         blocks,

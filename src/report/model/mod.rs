@@ -74,6 +74,9 @@ pub struct Report {
     pub model: Option<ModelReport>,
     /// Pass, warn or fail per check family, and overall.
     pub verdict: Option<crate::audit::verdict::Verdict>,
+    /// Repairs applied before the checks (`build` and `audit` alike), if any was asked for.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub repairs: Option<Repairs>,
 }
 
 /// The degrees-of-freedom convention of the variation figures.
@@ -113,6 +116,7 @@ impl Report {
             cleaned: None,
             model: None,
             verdict: None,
+            repairs: None,
         }
     }
 }
@@ -132,6 +136,12 @@ pub struct InputSummary {
     pub entity: String,
     /// The period column.
     pub period: String,
+    /// The sheet read, for a spreadsheet input.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub sheet: Option<String>,
+    /// What reading the input had to decide (spreadsheet conversions), one sentence each.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub notes: Vec<String>,
 }
 
 /// Panel at a glance.
@@ -227,6 +237,19 @@ pub struct SkippedRule {
     pub name: String,
     /// The input it lacks.
     pub missing: String,
+}
+
+/// Repairs applied right after the key steps; every changed cell is in `corrections.csv`.
+#[derive(Debug, Clone, Serialize)]
+pub struct Repairs {
+    /// The corrections file, if one was applied (its name).
+    pub corrections_file: Option<String>,
+    /// Cells the corrections file changed.
+    pub corrected_cells: u64,
+    /// `[repair] unit_slips`: report, rescale or null.
+    pub unit_slips: String,
+    /// Unit slips repaired (a jump by a power of 1000 that returns the next period).
+    pub unit_slips_repaired: u64,
 }
 
 /// One line of the sample-construction table.

@@ -1,0 +1,432 @@
+//! Repairs that change cells, each recorded in the corrections ledger (entity, period,
+//! column, old, new, reason): firm-year overrides from a corrections file, applied right after
+//! the key steps, and unit slips the detector is sure of (a jump by a power of 1000 that
+//! returns the next period), rescaled or set to null as `[repair] unit_slips` says.
+
+use std::path::{Path, PathBuf};
+
+use polars::prelude::*;
+
+use crate::{Error, Result};
+
+/// What to do with a detected unit slip.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum SlipPolicy {
+    /// List it in the report only (the default).
+    Report,
+    /// Divide the slipped cell by the detected power of 1000.
+    Rescale,
+    /// Set the slipped cell to null.
+    Null,
+}
+
+impl SlipPolicy {
+    /// `[repair] unit_slips`.
+    pub fn parse(value: Option<&str>) -> Result<SlipPolicy> {
+        match value {
+            None | Some("report") => Ok(SlipPolicy::Report),
+            Some("rescale") => Ok(SlipPolicy::Rescale),
+            Some("null") => Ok(SlipPolicy::Null),
+            Some(other) => Err(Error::Setting {
+                setting: "[repair] unit_slips",
+                message: format!("\"{other}\" is not a policy (report, rescale, null)"),
+            }),
+        }
+    }
+}
+
+/// The corrections file: one override per line.
+#[derive(Debug, Clone)]
+pub struct Corrections {
+    /// Where it was read from.
+    pub path: PathBuf,
+    /// Its bytes' SHA-256, for the manifest.
+    pub sha256: String,
+    /// entity, period, column, value (text, empty = null), reason, and `__line` (the line
+    /// of the file, the header being line 1).
+    pub rows: DataFrame,
+}
+
+/// The columns of a corrections file, in order.
+pub const CORRECTION_COLUMNS: [&str; 5] = ["entity", "period", "column", "value", "reason"];
+
+fn bad(path: &Path, message: String) -> Error {
+    Error::Setting {
+        setting: "[repair] corrections",
+        message: format!("`{}`: {message}", path.display()),
+    }
+}
+
+/// Read and check a corrections file (before any data is read).
+pub fn read_corrections(path: &Path) -> Result<Corrections> {
+    let bytes = std::fs::read(path).map_err(Error::io(path))?;
+    let sha256 = crate::bundle::sha256_hex(&bytes);
+    let schema: Schema = CORRECTION_COLUMNS
+        .iter()
+        .map(|c| Field::new((*c).into(), DataType::String))
+        .collect();
+    let df = CsvReadOptions::default()
+        .with_has_header(true)
+        .with_schema(Some(Arc::new(schema)))
+        .into_reader_with_file_handle(std::io::Cursor::new(bytes.clone()))
+        .finish()
+        .map_err(|e| bad(path, crate::error::one_line(&e.to_string())))?;
+    let header = String::from_utf8_lossy(&bytes)
+        .lines()
+        .next()
+        .unwrap_or_default()
+        .trim_start_matches('\u{feff}')
+        .to_string();
+    let names: Vec<&str> = header.split(',').map(str::trim).collect();
+    if names != CORRECTION_COLUMNS {
+        return Err(bad(
+            path,
+            format!(
+                "the header must be `{}` (found `{header}`)",
+                CORRECTION_COLUMNS.join(",")
+            ),
+        ));
+    }
+    let df = df
+        .lazy()
+        .with_row_index("__line", Some(2))
+        .with_column(
+            col("period")
+                .str()
+                .strip_chars(lit(NULL))
+                .cast(DataType::Int64)
+                .alias("__period"),
+        )
+        .collect()?;
+    // Every line names an entity, a whole-number period, a column and a reason.
+    let problem = df
+        .clone()
+        .lazy()
+        .filter(
+            col("entity")
+                .is_null()
+                .or(col("__period").is_null())
+                .or(col("column").is_null())
+                .or(col("reason").is_null()),
+        )
+        .limit(1)
+        .collect()?;
+    if problem.height() > 0 {
+        let line = problem.column("__line")?.u32()?.get(0).unwrap_or(0);
+        return Err(bad(
+            path,
+            format!(
+                "line {line}: every line needs an entity, a whole-number period, a column and a \
+                 reason (the value may be empty: null)"
+            ),
+        ));
+    }
+    let repeated = df
+        .clone()
+        .lazy()
+        .filter(as_struct(vec![col("entity"), col("__period"), col("column")]).is_duplicated())
+        .select([col("__line").max()])
+        .collect()?;
+    if let Some(line) = repeated.column("__line")?.u32()?.get(0) {
+        return Err(bad(
+            path,
+            format!("line {line}: a second override of the same entity, period and column"),
+        ));
+    }
+    let rows = df
+        .lazy()
+        .drop(by_name(["period"], true, false))
+        .rename(["__period"], ["period"], true)
+        .collect()?;
+    Ok(Corrections {
+        path: path.to_path_buf(),
+        sha256,
+        rows,
+    })
+}
+
+/// An empty corrections ledger.
+pub fn empty_ledger(entity: &str, period: &str) -> Result<DataFrame> {
+    Ok(DataFrame::new(
+        0,
+        vec![
+            Column::new_empty(entity.into(), &DataType::String),
+            Column::new_empty(period.into(), &DataType::Int64),
+            Column::new_empty("column".into(), &DataType::String),
+            Column::new_empty("old".into(), &DataType::String),
+            Column::new_empty("new".into(), &DataType::String),
+            Column::new_empty("reason".into(), &DataType::String),
+        ],
+    )?)
+}
+
+/// Apply the overrides to `df` (keys typed as the loader types them); returns the frame and
+/// the ledger lines. An override that matches no row, or names a column the data lacks or a
+/// key column, or gives a non-number for a numeric column, is an error naming its line.
+pub fn apply_corrections(
+    mut df: DataFrame,
+    c: &Corrections,
+    entity: &str,
+    period: &str,
+) -> Result<(DataFrame, DataFrame)> {
+    let schema = df.schema().clone();
+    let targets: Vec<String> = {
+        let mut v: Vec<String> = c
+            .rows
+            .column("column")?
+            .str()?
+            .iter()
+            .flatten()
+            .map(str::to_string)
+            .collect();
+        v.sort();
+        v.dedup();
+        v
+    };
+    let line_of = |filter: Expr| -> Result<Option<u32>> {
+        let hit = c
+            .rows
+            .clone()
+            .lazy()
+            .filter(filter)
+            .select([col("__line").min()])
+            .collect()?;
+        Ok(hit.column("__line")?.u32()?.get(0))
+    };
+    for t in &targets {
+        let forbidden = t.starts_with("__") || t == entity || t == period;
+        if forbidden || !schema.contains(t) {
+            let line = line_of(col("column").eq(lit(t.as_str())))?.unwrap_or(0);
+            return Err(bad(
+                &c.path,
+                format!(
+                    "line {line}: {}",
+                    if forbidden {
+                        format!("`{t}` cannot be corrected (a key or internal column)")
+                    } else {
+                        format!("no column `{t}` in the data")
+                    }
+                ),
+            ));
+        }
+    }
+    // Each override must find its firm-year.
+    let keys = df
+        .clone()
+        .lazy()
+        .select([col(entity).alias("entity"), col(period).alias("period")])
+        .unique(None, UniqueKeepStrategy::Any);
+    let unmatched = c
+        .rows
+        .clone()
+        .lazy()
+        .join(
+            keys,
+            [col("entity"), col("period")],
+            [col("entity"), col("period")],
+            JoinArgs::new(JoinType::Anti),
+        )
+        .select([col("__line").min()])
+        .collect()?;
+    if let Some(line) = unmatched.column("__line")?.u32()?.get(0) {
+        return Err(bad(
+            &c.path,
+            format!("line {line}: no row of the data has this entity and period"),
+        ));
+    }
+    let mut ledger = vec![];
+    for t in &targets {
+        let dtype = schema.get(t.as_str()).cloned().unwrap_or(DataType::String);
+        let numeric = dtype.is_primitive_numeric();
+        let mine = c
+            .rows
+            .clone()
+            .lazy()
+            .filter(col("column").eq(lit(t.as_str())));
+        let value = if numeric {
+            col("value")
+                .str()
+                .strip_chars(lit(NULL))
+                .cast(DataType::Float64)
+        } else {
+            col("value")
+        };
+        if numeric {
+            let bad_number = mine
+                .clone()
+                .filter(col("value").is_not_null().and(value.clone().is_null()))
+                .select([col("__line").min()])
+                .collect()?;
+            if let Some(line) = bad_number.column("__line")?.u32()?.get(0) {
+                return Err(bad(
+                    &c.path,
+                    format!("line {line}: `{t}` holds numbers; the value is not one"),
+                ));
+            }
+        }
+        let overrides = mine.select([
+            col("entity").alias("__ce"),
+            col("period").alias("__cp"),
+            value.cast(dtype.clone()).alias("__cv"),
+            col("reason").alias("__cr"),
+            lit(true).alias("__hit"),
+        ]);
+        let joined = df
+            .clone()
+            .lazy()
+            .join(
+                overrides,
+                [col(entity), col(period)],
+                [col("__ce"), col("__cp")],
+                JoinArgs {
+                    maintain_order: MaintainOrderJoin::Left,
+                    ..JoinArgs::new(JoinType::Left)
+                },
+            )
+            .collect()?;
+        let hit = col("__hit").fill_null(lit(false));
+        ledger.push(joined.clone().lazy().filter(hit.clone()).select([
+            col(entity),
+            col(period),
+            lit(t.as_str()).alias("column"),
+            col(t.as_str()).cast(DataType::String).alias("old"),
+            col("__cv").cast(DataType::String).alias("new"),
+            (lit("corrections file: ") + col("__cr")).alias("reason"),
+        ]));
+        df = joined
+            .lazy()
+            .with_column(
+                when(hit)
+                    .then(col("__cv"))
+                    .otherwise(col(t.as_str()))
+                    .alias(t.as_str()),
+            )
+            .drop(by_name(
+                ["__ce", "__cp", "__cv", "__cr", "__hit"],
+                false,
+                false,
+            ))
+            .collect()?;
+    }
+    let ledger = if ledger.is_empty() {
+        empty_ledger(entity, period)?
+    } else {
+        concat(ledger, UnionArgs::default())?.collect()?
+    };
+    Ok((df, ledger))
+}
+
+/// The unit-slip magnitude of each row of `x` on a frame sorted by entity and period: 3 or 6
+/// (or −3, −6) when the ratio to the previous period of the same entity is within a factor of
+/// two of 10^3 or 10^6 (or their inverses), else null. Shared with the audit's check.
+pub fn slip_magnitude(entity: &str, period: &str, x: Expr) -> Expr {
+    // How far (in log10 units) a ratio may sit from 10^3 or 10^6 and still count as a slip:
+    // log10(2), so factors between 500 and 2000 count as 1000.
+    let slack = std::f64::consts::LOG10_2;
+    let back = col(entity)
+        .eq(col(entity).shift(lit(1)))
+        .and(col(period).eq(col(period).shift(lit(1)) + lit(1)));
+    let prev = x.clone().shift(lit(1));
+    let ok = back
+        .and(x.clone().gt(lit(0.0)))
+        .and(prev.clone().gt(lit(0.0)));
+    let r = when(ok)
+        .then((x / prev).log(lit(10.0)))
+        .otherwise(lit(NULL));
+    let mut mag = lit(NULL).cast(DataType::Int32);
+    for m in [6, -6, 3, -3] {
+        mag = when((r.clone() - lit(m as f64)).abs().lt(lit(slack)))
+            .then(lit(m))
+            .otherwise(mag);
+    }
+    mag
+}
+
+/// Repair the unit slips the detector is sure of in `levels`: a jump by a power of 1000 whose
+/// next period jumps back by the inverse. Returns the frame (sorted by entity and period) and
+/// the ledger lines. Slips without a jump back are left for the report.
+pub fn repair_slips(
+    df: DataFrame,
+    levels: &[String],
+    entity: &str,
+    period: &str,
+    row: &str,
+    policy: SlipPolicy,
+) -> Result<(DataFrame, DataFrame)> {
+    if policy == SlipPolicy::Report || levels.is_empty() {
+        return Ok((df, empty_ledger(entity, period)?));
+    }
+    let mut lf = df.lazy().sort([entity, period, row], Default::default());
+    let mut ledger = Vec::new();
+    let mut fixes = Vec::new();
+    for (i, v) in levels.iter().enumerate() {
+        let x = col(v.as_str()).cast(DataType::Float64);
+        let mag = slip_magnitude(entity, period, x.clone());
+        lf = lf.with_column(mag.alias(format!("__mag{i}")));
+        let m = col(format!("__mag{i}").as_str());
+        let sure = m
+            .clone()
+            .is_not_null()
+            .and(
+                m.clone()
+                    .shift(lit(-1))
+                    .eq(-m.clone())
+                    .fill_null(lit(false)),
+            )
+            .alias(format!("__sure{i}"));
+        lf = lf.with_column(sure);
+        let s = col(format!("__sure{i}").as_str());
+        let factor = lit(10.0_f64).pow(m.clone().cast(DataType::Float64));
+        let new = match policy {
+            SlipPolicy::Rescale => x.clone() / factor.clone(),
+            _ => lit(NULL).cast(DataType::Float64),
+        };
+        let size = when(m.clone().abs().eq(lit(6)))
+            .then(lit("1000000"))
+            .otherwise(lit("1000"));
+        let reason = match policy {
+            SlipPolicy::Rescale => {
+                when(m.clone().gt(lit(0)))
+                    .then(lit("unit slip: divided by "))
+                    .otherwise(lit("unit slip: multiplied by "))
+                    + size
+            }
+            _ => lit("unit slip: set to null (off by a factor of ") + size + lit(")"),
+        };
+        ledger.push((i, v.clone(), new.clone(), reason));
+        fixes.push(
+            when(s)
+                .then(new.cast(DataType::Float64))
+                .otherwise(x)
+                .alias(v.as_str()),
+        );
+    }
+    let marked = lf.collect()?;
+    let mut lines = Vec::new();
+    for (i, v, new, reason) in ledger {
+        lines.push(
+            marked
+                .clone()
+                .lazy()
+                .filter(col(format!("__sure{i}").as_str()))
+                .select([
+                    col(entity),
+                    col(period),
+                    lit(v.as_str()).alias("column"),
+                    col(v.as_str()).cast(DataType::String).alias("old"),
+                    new.cast(DataType::String).alias("new"),
+                    reason.alias("reason"),
+                ]),
+        );
+    }
+    let helpers: Vec<String> = (0..levels.len())
+        .flat_map(|i| [format!("__mag{i}"), format!("__sure{i}")])
+        .collect();
+    let repaired = marked
+        .lazy()
+        .with_columns(fixes)
+        .drop(by_name(helpers.iter().map(String::as_str), true, false))
+        .collect()?;
+    let ledger = concat(lines, UnionArgs::default())?.collect()?;
+    Ok((repaired, ledger))
+}

@@ -1,0 +1,681 @@
+//! `compare`: two vintages of one panel (two raw downloads, or two bundles) side by side.
+//! Firm-years and entities added and removed, columns added and removed, and every cell of
+//! the firm-years in both that changed beyond a tolerance, with a change ledger (CSV) and a
+//! summary in the report formats. One full join on the keys, computed by polars.
+
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+
+use polars::prelude::*;
+use serde::Serialize;
+
+use crate::bundle::Manifest;
+use crate::config::{InputConfig, ReportFormat};
+use crate::report::{level, strings, Block, Page, Section};
+use crate::{Error, Result};
+
+/// One side of a comparison.
+#[derive(Debug, Clone)]
+pub enum Side {
+    /// A raw file, read as `audit` reads it.
+    Raw(Box<InputConfig>),
+    /// A bundle folder written by `build`: its cleaned panel and dictionary.
+    Bundle(PathBuf),
+}
+
+/// When a numeric cell counts as changed: |new − old| > absolute + relative · |old|.
+#[derive(Debug, Clone, Serialize)]
+pub struct Tolerance {
+    /// Absolute part, for every column without its own.
+    pub absolute: f64,
+    /// Relative part, for every column without its own.
+    pub relative: f64,
+    /// Per-column (absolute, relative) overrides.
+    pub by_column: BTreeMap<String, (f64, f64)>,
+}
+
+impl Default for Tolerance {
+    fn default() -> Self {
+        Tolerance {
+            absolute: 0.0,
+            relative: 1e-9,
+            by_column: BTreeMap::new(),
+        }
+    }
+}
+
+impl Tolerance {
+    fn of(&self, column: &str) -> (f64, f64) {
+        self.by_column
+            .get(column)
+            .copied()
+            .unwrap_or((self.absolute, self.relative))
+    }
+}
+
+/// `compare` settings.
+#[derive(Debug, Clone)]
+pub struct CompareConfig {
+    /// The earlier vintage.
+    pub old: Side,
+    /// The later vintage.
+    pub new: Side,
+    /// When a number counts as changed.
+    pub tolerance: Tolerance,
+    /// How to print the summary.
+    pub format: ReportFormat,
+    /// Write the summary here instead of stdout.
+    pub report: Option<PathBuf>,
+    /// Write the change ledger (CSV) here.
+    pub changes: Option<PathBuf>,
+}
+
+/// One vintage as compared.
+#[derive(Debug, Clone, Serialize)]
+pub struct VintageSummary {
+    /// The file or folder.
+    pub path: String,
+    /// `raw file` or `bundle`.
+    pub kind: &'static str,
+    /// Rows read (a bundle: rows of its cleaned panel).
+    pub rows_read: u64,
+    /// Rows without an entity or period, left out.
+    pub rows_without_key: u64,
+    /// Exact copies of an earlier row, counted once.
+    pub exact_copies: u64,
+    /// Firm-years compared.
+    pub firm_years: u64,
+    /// Entities.
+    pub entities: u64,
+}
+
+/// What changed in one column shared by both vintages, over the firm-years in both.
+#[derive(Debug, Clone, Serialize)]
+pub struct ColumnChanges {
+    /// The column.
+    pub column: String,
+    /// A derived variable (known when the side is a bundle).
+    pub derived: bool,
+    /// `number` or `text` (a column that is numeric on one side only is compared as text).
+    pub compared_as: &'static str,
+    /// Cells changed beyond the tolerance, counting values that appeared or vanished.
+    pub cells_changed: u64,
+    /// Of those, values present in the old vintage and missing in the new.
+    pub became_missing: u64,
+    /// Of those, values missing in the old vintage and present in the new.
+    pub became_present: u64,
+    /// The largest absolute change among changed numbers.
+    pub largest_change: Option<f64>,
+}
+
+/// The comparison, as `--format json` writes it.
+#[derive(Debug, Clone, Serialize)]
+pub struct Comparison {
+    /// The earlier vintage.
+    pub old: VintageSummary,
+    /// The later vintage.
+    pub new: VintageSummary,
+    /// The entity and period columns (as the old vintage names them).
+    pub keys: (String, String),
+    /// The tolerance used.
+    pub tolerance: Tolerance,
+    /// Firm-years in both.
+    pub firm_years_in_both: u64,
+    /// Firm-years only in the new vintage.
+    pub firm_years_added: u64,
+    /// Firm-years only in the old vintage.
+    pub firm_years_removed: u64,
+    /// Entities only in the new vintage.
+    pub entities_added: Vec<String>,
+    /// Entities only in the old vintage.
+    pub entities_removed: Vec<String>,
+    /// Columns only in the new vintage.
+    pub columns_added: Vec<String>,
+    /// Columns only in the old vintage.
+    pub columns_removed: Vec<String>,
+    /// Every shared column.
+    pub columns: Vec<ColumnChanges>,
+    /// Anything changed beyond the tolerance: rows, entities, columns or cells.
+    pub changed: bool,
+}
+
+struct Vintage {
+    summary: VintageSummary,
+    df: DataFrame,
+    entity: String,
+    period: String,
+    derived: Vec<String>,
+}
+
+fn bundle_vintage(dir: &Path) -> Result<Vintage> {
+    let manifest_path = dir.join("manifest.json");
+    let text = std::fs::read_to_string(&manifest_path).map_err(Error::io(&manifest_path))?;
+    let manifest: Manifest = serde_json::from_str(&text).map_err(|e| Error::Manifest {
+        path: manifest_path.clone(),
+        message: e.to_string(),
+    })?;
+    let dict_path = dir.join("dictionary.json");
+    let (derived, bookkeeping) = match std::fs::read_to_string(&dict_path) {
+        Ok(text) => {
+            let dict: serde_json::Value = serde_json::from_str(&text)?;
+            let entries = dict["columns"].as_array().cloned().unwrap_or_default();
+            let names = |pred: &dyn Fn(&serde_json::Value) -> bool| -> Vec<String> {
+                entries
+                    .iter()
+                    .filter(|e| pred(e))
+                    .filter_map(|e| e["name"].as_str().map(str::to_string))
+                    .collect()
+            };
+            (
+                names(&|e| {
+                    e["definition"]
+                        .as_str()
+                        .is_some_and(|d| d.starts_with("derived"))
+                }),
+                names(&|e| e["source"] == "panelready"),
+            )
+        }
+        // A bundle made before dictionary.json: its row-number column has the default name.
+        Err(_) => (Vec::new(), vec!["source_row".to_string()]),
+    };
+    let panel = dir.join("panel.parquet");
+    if !panel.is_file() {
+        return Err(Error::NoInput { file: panel });
+    }
+    let df = LazyFrame::scan_parquet(
+        PlRefPath::try_from_path(&panel)?,
+        ScanArgsParquet::default(),
+    )?
+    .drop(by_name(
+        bookkeeping.iter().map(String::as_str),
+        false,
+        false,
+    ))
+    .with_columns([
+        col(manifest.input.entity.as_str()).cast(DataType::String),
+        col(manifest.input.period.as_str()).cast(DataType::Int64),
+    ])
+    .collect()?;
+    let rows = df.height() as u64;
+    let entities = crate::report::distinct(&df, &manifest.input.entity)?;
+    Ok(Vintage {
+        summary: VintageSummary {
+            path: dir.display().to_string(),
+            kind: "bundle",
+            rows_read: rows,
+            rows_without_key: 0,
+            exact_copies: 0,
+            firm_years: rows,
+            entities,
+        },
+        df,
+        entity: manifest.input.entity,
+        period: manifest.input.period,
+        derived,
+    })
+}
+
+fn raw_vintage(cfg: &InputConfig) -> Result<Vintage> {
+    let loaded = crate::load::load(cfg)?;
+    let (e, p) = (cfg.entity.as_str(), cfg.period.as_str());
+    let df = loaded.df.drop(crate::load::ROW)?;
+    let keyed = df
+        .lazy()
+        .filter(col(e).is_not_null().and(col(p).is_not_null()))
+        .collect()?;
+    let rows_without_key = loaded.rows - keyed.height() as u64;
+    let unique = keyed.unique_stable(None, UniqueKeepStrategy::First, None)?;
+    let exact_copies = (keyed.height() - unique.height()) as u64;
+    // A key on rows with different values cannot be matched to one row of the other vintage.
+    let conflicts = unique
+        .clone()
+        .lazy()
+        .group_by_stable([col(e), col(p)])
+        .agg([len().alias("__n")])
+        .filter(col("__n").gt(lit(1)))
+        .limit(1)
+        .collect()?;
+    if conflicts.height() > 0 {
+        return Err(Error::CompareKey {
+            file: cfg.path.clone(),
+            entity: conflicts.column(e)?.str()?.get(0).unwrap_or("").to_string(),
+            period: conflicts.column(p)?.i64()?.get(0).unwrap_or(0),
+        });
+    }
+    let entities = crate::report::distinct(&unique, e)?;
+    Ok(Vintage {
+        summary: VintageSummary {
+            path: cfg.path.display().to_string(),
+            kind: "raw file",
+            rows_read: loaded.rows,
+            rows_without_key,
+            exact_copies,
+            firm_years: unique.height() as u64,
+            entities,
+        },
+        df: unique,
+        entity: cfg.entity.clone(),
+        period: cfg.period.clone(),
+        derived: Vec::new(),
+    })
+}
+
+fn vintage(side: &Side) -> Result<Vintage> {
+    match side {
+        Side::Raw(cfg) => raw_vintage(cfg),
+        Side::Bundle(dir) => bundle_vintage(dir),
+    }
+}
+
+fn numeric(dtype: &DataType) -> bool {
+    dtype.is_primitive_numeric() || dtype.is_bool()
+}
+
+/// Compare two vintages; returns the summary and the change ledger.
+pub fn compare(old: &Side, new: &Side, tolerance: &Tolerance) -> Result<(Comparison, DataFrame)> {
+    let old = vintage(old)?;
+    let new = vintage(new)?;
+    let (e, p) = (old.entity.clone(), old.period.clone());
+    let old_schema = old.df.schema().clone();
+    let new_schema = new.df.schema().clone();
+    let is_key_old = |c: &str| c == old.entity || c == old.period;
+    let is_key_new = |c: &str| c == new.entity || c == new.period;
+    let shared: Vec<String> = old_schema
+        .iter_names()
+        .map(|n| n.to_string())
+        .filter(|n| !is_key_old(n) && !is_key_new(n) && new_schema.contains(n))
+        .collect();
+    let columns_removed: Vec<String> = old_schema
+        .iter_names()
+        .map(|n| n.to_string())
+        .filter(|n| !is_key_old(n) && !new_schema.contains(n))
+        .collect();
+    let columns_added: Vec<String> = new_schema
+        .iter_names()
+        .map(|n| n.to_string())
+        .filter(|n| !is_key_new(n) && !old_schema.contains(n))
+        .collect();
+    let as_number: Vec<bool> = shared
+        .iter()
+        .map(|c| {
+            numeric(old_schema.get(c.as_str()).unwrap_or(&DataType::Null))
+                && numeric(new_schema.get(c.as_str()).unwrap_or(&DataType::Null))
+        })
+        .collect();
+    let side = |df: &DataFrame, entity: &str, period: &str, tag: &str| -> LazyFrame {
+        let mut cols = vec![
+            col(entity).alias(e.as_str()),
+            col(period).alias(p.as_str()),
+            lit(true).alias(format!("__in_{tag}")),
+        ];
+        for (i, c) in shared.iter().enumerate() {
+            let x = if as_number[i] {
+                col(c.as_str()).cast(DataType::Float64)
+            } else {
+                col(c.as_str()).cast(DataType::String)
+            };
+            cols.push(x.alias(format!("__{tag}{i}")));
+        }
+        df.clone().lazy().select(cols)
+    };
+    let joined = side(&old.df, &old.entity, &old.period, "o").join(
+        side(&new.df, &new.entity, &new.period, "n"),
+        [col(e.as_str()), col(p.as_str())],
+        [col(e.as_str()), col(p.as_str())],
+        JoinArgs::new(JoinType::Full).with_coalesce(JoinCoalesce::CoalesceColumns),
+    );
+    let both = col("__in_o").is_not_null().and(col("__in_n").is_not_null());
+    let mut flags = Vec::new();
+    for (i, c) in shared.iter().enumerate() {
+        let (o, n) = (col(format!("__o{i}")), col(format!("__n{i}")));
+        let presence = o.clone().is_null().neq(n.clone().is_null());
+        let values = if as_number[i] {
+            let (abs, rel) = tolerance.of(c);
+            (n.clone() - o.clone())
+                .abs()
+                .gt(lit(abs) + lit(rel) * o.clone().abs())
+        } else {
+            o.clone().neq(n.clone())
+        };
+        let changed = both.clone().and(
+            presence.or(o
+                .clone()
+                .is_not_null()
+                .and(n.clone().is_not_null())
+                .and(values)
+                .fill_null(false)),
+        );
+        flags.push(changed.alias(format!("__c{i}")));
+    }
+    let joined = joined.with_columns(flags).collect()?;
+
+    // Counts in one pass.
+    let mut aggs = vec![
+        both.clone().sum().cast(DataType::UInt64).alias("both"),
+        col("__in_o")
+            .is_null()
+            .sum()
+            .cast(DataType::UInt64)
+            .alias("added"),
+        col("__in_n")
+            .is_null()
+            .sum()
+            .cast(DataType::UInt64)
+            .alias("removed"),
+    ];
+    for (i, _) in shared.iter().enumerate() {
+        let c = col(format!("__c{i}"));
+        let (o, n) = (col(format!("__o{i}")), col(format!("__n{i}")));
+        aggs.push(
+            c.clone()
+                .sum()
+                .cast(DataType::UInt64)
+                .alias(format!("k{i}")),
+        );
+        aggs.push(
+            c.clone()
+                .and(o.clone().is_not_null())
+                .and(n.clone().is_null())
+                .sum()
+                .cast(DataType::UInt64)
+                .alias(format!("m{i}")),
+        );
+        aggs.push(
+            c.clone()
+                .and(o.clone().is_null())
+                .and(n.clone().is_not_null())
+                .sum()
+                .cast(DataType::UInt64)
+                .alias(format!("p{i}")),
+        );
+        if as_number[i] {
+            aggs.push(
+                (n - o)
+                    .abs()
+                    .filter(c)
+                    .max()
+                    .cast(DataType::Float64)
+                    .alias(format!("x{i}")),
+            );
+        }
+    }
+    let counts = joined.clone().lazy().select(aggs).collect()?;
+    let count = |name: &str| -> Result<u64> { Ok(counts.column(name)?.u64()?.get(0).unwrap_or(0)) };
+    let columns = shared
+        .iter()
+        .enumerate()
+        .map(|(i, c)| {
+            Ok(ColumnChanges {
+                column: c.clone(),
+                derived: old.derived.contains(c) || new.derived.contains(c),
+                compared_as: if as_number[i] { "number" } else { "text" },
+                cells_changed: count(&format!("k{i}"))?,
+                became_missing: count(&format!("m{i}"))?,
+                became_present: count(&format!("p{i}"))?,
+                largest_change: if as_number[i] {
+                    counts.column(&format!("x{i}"))?.f64()?.get(0)
+                } else {
+                    None
+                },
+            })
+        })
+        .collect::<Result<Vec<_>>>()?;
+
+    let only = |a: &DataFrame, ae: &str, b: &DataFrame, be: &str| -> Result<Vec<String>> {
+        let left = a
+            .clone()
+            .lazy()
+            .select([col(ae).alias("__e")])
+            .unique_stable(None, UniqueKeepStrategy::First);
+        let right = b
+            .clone()
+            .lazy()
+            .select([col(be).alias("__e")])
+            .unique_stable(None, UniqueKeepStrategy::First);
+        let out = left
+            .join(
+                right,
+                [col("__e")],
+                [col("__e")],
+                JoinArgs::new(JoinType::Anti),
+            )
+            .drop_nulls(None)
+            .sort(["__e"], Default::default())
+            .collect()?;
+        Ok(out
+            .column("__e")?
+            .str()?
+            .iter()
+            .flatten()
+            .map(str::to_string)
+            .collect())
+    };
+    let entities_added = only(&new.df, &new.entity, &old.df, &old.entity)?;
+    let entities_removed = only(&old.df, &old.entity, &new.df, &new.entity)?;
+
+    let ledger = ledger(&joined, &e, &p, &shared, &as_number)?;
+    let firm_years_added = count("added")?;
+    let firm_years_removed = count("removed")?;
+    let changed = firm_years_added + firm_years_removed > 0
+        || !entities_added.is_empty()
+        || !entities_removed.is_empty()
+        || !columns_added.is_empty()
+        || !columns_removed.is_empty()
+        || columns.iter().any(|c| c.cells_changed > 0);
+    Ok((
+        Comparison {
+            old: old.summary,
+            new: new.summary,
+            keys: (e.clone(), p.clone()),
+            tolerance: tolerance.clone(),
+            firm_years_in_both: count("both")?,
+            firm_years_added,
+            firm_years_removed,
+            entities_added,
+            entities_removed,
+            columns_added,
+            columns_removed,
+            columns,
+            changed,
+        },
+        ledger,
+    ))
+}
+
+/// The change ledger: one row per firm-year added or removed, one per changed cell.
+fn ledger(
+    joined: &DataFrame,
+    e: &str,
+    p: &str,
+    shared: &[String],
+    as_number: &[bool],
+) -> Result<DataFrame> {
+    let text_null = || lit(NULL).cast(DataType::String);
+    let row_event = |filter: Expr, what: &str| {
+        joined.clone().lazy().filter(filter).select([
+            col(e),
+            col(p),
+            lit(what).alias("change"),
+            text_null().alias("column"),
+            text_null().alias("old"),
+            text_null().alias("new"),
+            lit(NULL).cast(DataType::Float64).alias("difference"),
+            lit(0u32).alias("__order"),
+        ])
+    };
+    let mut parts = vec![
+        row_event(col("__in_o").is_null(), "firm-year added"),
+        row_event(col("__in_n").is_null(), "firm-year removed"),
+    ];
+    for (i, c) in shared.iter().enumerate() {
+        let (o, n) = (col(format!("__o{i}")), col(format!("__n{i}")));
+        let difference = if as_number[i] {
+            n.clone() - o.clone()
+        } else {
+            lit(NULL).cast(DataType::Float64)
+        };
+        parts.push(
+            joined
+                .clone()
+                .lazy()
+                .filter(col(format!("__c{i}")))
+                .select([
+                    col(e),
+                    col(p),
+                    lit("value changed").alias("change"),
+                    lit(c.as_str()).alias("column"),
+                    o.cast(DataType::String).alias("old"),
+                    n.cast(DataType::String).alias("new"),
+                    difference.alias("difference"),
+                    lit(i as u32 + 1).alias("__order"),
+                ]),
+        );
+    }
+    Ok(concat(parts, UnionArgs::default())?
+        .sort([e, p, "__order"], Default::default())
+        .drop(by_name(["__order"], true, false))
+        .collect()?)
+}
+
+/// The summary as report sections.
+pub(crate) fn page(c: &Comparison) -> Page {
+    let side_rows = |label: &str, f: &dyn Fn(&VintageSummary) -> String| {
+        vec![label.to_string(), f(&c.old), f(&c.new)]
+    };
+    let vintages = Block::Table(
+        strings(&["", "old", "new"]),
+        vec![
+            side_rows("what", &|v| v.kind.to_string()),
+            side_rows("rows read", &|v| v.rows_read.to_string()),
+            side_rows("rows without entity or period", &|v| {
+                v.rows_without_key.to_string()
+            }),
+            side_rows("exact copies counted once", &|v| v.exact_copies.to_string()),
+            side_rows("firm-years compared", &|v| v.firm_years.to_string()),
+            side_rows("entities", &|v| v.entities.to_string()),
+        ],
+    );
+    let list = |xs: &[String]| {
+        if xs.is_empty() {
+            "none".to_string()
+        } else if xs.len() <= 10 {
+            xs.join(", ")
+        } else {
+            format!("{}, … ({} in all)", xs[..10].join(", "), xs.len())
+        }
+    };
+    let rows = Block::Pairs(vec![
+        (
+            "firm-years in both".into(),
+            c.firm_years_in_both.to_string(),
+        ),
+        ("firm-years added".into(), c.firm_years_added.to_string()),
+        (
+            "firm-years removed".into(),
+            c.firm_years_removed.to_string(),
+        ),
+        ("entities added".into(), c.entities_added.len().to_string()),
+        (
+            "entities removed".into(),
+            c.entities_removed.len().to_string(),
+        ),
+    ]);
+    let mut firm_years = vec![rows];
+    if !c.entities_added.is_empty() {
+        firm_years.push(Block::Note(format!(
+            "Entities added: {}.",
+            list(&c.entities_added)
+        )));
+    }
+    if !c.entities_removed.is_empty() {
+        firm_years.push(Block::Note(format!(
+            "Entities removed: {}.",
+            list(&c.entities_removed)
+        )));
+    }
+    let table = Block::Table(
+        strings(&[
+            "column",
+            "kind",
+            "compared as",
+            "cells changed",
+            "became missing",
+            "became present",
+            "largest change",
+        ]),
+        c.columns
+            .iter()
+            .map(|k| {
+                vec![
+                    k.column.clone(),
+                    if k.derived { "derived" } else { "raw" }.into(),
+                    k.compared_as.into(),
+                    k.cells_changed.to_string(),
+                    k.became_missing.to_string(),
+                    k.became_present.to_string(),
+                    k.largest_change.map_or("–".into(), level),
+                ]
+            })
+            .collect(),
+    );
+    let mut cells = vec![table];
+    if !c.columns_added.is_empty() {
+        cells.push(Block::Note(format!(
+            "Columns only in the new vintage: {}.",
+            list(&c.columns_added)
+        )));
+    }
+    if !c.columns_removed.is_empty() {
+        cells.push(Block::Note(format!(
+            "Columns only in the old vintage: {}.",
+            list(&c.columns_removed)
+        )));
+    }
+    let overrides: Vec<String> = c
+        .tolerance
+        .by_column
+        .iter()
+        .map(|(k, (a, r))| format!("{k}: {a} + {r} · |old|"))
+        .collect();
+    cells.push(Block::Note(format!(
+        "Over the firm-years in both. A number counts as changed when |new − old| > {} + {} · \
+         |old|{}; a value that appears or vanishes always counts; text must match exactly. The \
+         change ledger lists every changed cell.",
+        c.tolerance.absolute,
+        c.tolerance.relative,
+        if overrides.is_empty() {
+            String::new()
+        } else {
+            format!(" (by column: {})", overrides.join("; "))
+        }
+    )));
+    Page {
+        title: "Comparison of two vintages".into(),
+        subtitle: format!(
+            "old `{}` · new `{}` · entity `{}` · period `{}` · {}",
+            c.old.path,
+            c.new.path,
+            c.keys.0,
+            c.keys.1,
+            if c.changed {
+                "changed beyond the tolerance"
+            } else {
+                "no change beyond the tolerance"
+            }
+        ),
+        sections: vec![
+            Section {
+                title: "Vintages",
+                blocks: vec![vintages],
+            },
+            Section {
+                title: "Firm-years and entities",
+                blocks: firm_years,
+            },
+            Section {
+                title: "Cells",
+                blocks: cells,
+            },
+        ],
+    }
+}

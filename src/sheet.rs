@@ -1,0 +1,254 @@
+//! Spreadsheet input (.xlsx, .xlsm, .ods) through calamine: one sheet, the header in its
+//! first non-empty row, one firm-year per row below. A column of numbers becomes numbers
+//! (whatever their display format: thousands separators, percentages and decimals are only
+//! formatting), a column with any text becomes text; text cells that look like numbers in a
+//! column of numbers are read as numbers and reported. Merged cells are refused.
+
+use std::path::Path;
+
+use calamine::{open_workbook_auto, Data, Reader};
+use polars::prelude::*;
+
+use crate::{Error, Result};
+
+/// A sheet read into a frame, with what the reader had to decide.
+pub struct Sheet {
+    /// The sheet as columns.
+    pub df: DataFrame,
+    /// The sheet's name.
+    pub name: String,
+    /// What was converted or left out, one sentence each.
+    pub notes: Vec<String>,
+}
+
+/// Spreadsheet column letters of a 0-based index: 0 -> A, 26 -> AA.
+fn letters(mut col: u32) -> String {
+    let mut out = Vec::new();
+    loop {
+        out.push(b'A' + (col % 26) as u8);
+        if col < 26 {
+            break;
+        }
+        col = col / 26 - 1;
+    }
+    out.reverse();
+    String::from_utf8(out).unwrap_or_default()
+}
+
+fn unreadable(path: &Path, at: String, message: impl Into<String>) -> Error {
+    Error::Unreadable {
+        file: path.to_path_buf(),
+        at,
+        message: message.into(),
+    }
+}
+
+enum Cell {
+    Missing,
+    Number(f64),
+    NumberLike(f64),
+    Text(String),
+}
+
+fn cell(d: &Data) -> Cell {
+    match d {
+        Data::Empty | Data::Error(_) => Cell::Missing,
+        Data::Int(i) => Cell::Number(*i as f64),
+        Data::Float(f) => Cell::Number(*f),
+        Data::Bool(b) => Cell::Number(if *b { 1.0 } else { 0.0 }),
+        Data::DateTime(d) => Cell::Number(d.as_f64()),
+        Data::String(s) | Data::DateTimeIso(s) | Data::DurationIso(s) => {
+            let t = s.trim();
+            if t.is_empty() {
+                Cell::Missing
+            } else {
+                match t.parse::<f64>() {
+                    Ok(x) if x.is_finite() => Cell::NumberLike(x),
+                    _ => Cell::Text(s.clone()),
+                }
+            }
+        }
+    }
+}
+
+/// Read `sheet` (or the first sheet) of the workbook at `path`.
+pub fn read(path: &Path, sheet: Option<&str>) -> Result<Sheet> {
+    if !path.is_file() {
+        return Err(Error::NoInput {
+            file: path.to_path_buf(),
+        });
+    }
+    let mut book =
+        open_workbook_auto(path).map_err(|e| unreadable(path, String::new(), e.to_string()))?;
+    let names = book.sheet_names();
+    let name = match sheet {
+        Some(s) if names.iter().any(|n| n == s) => s.to_string(),
+        Some(s) => {
+            return Err(unreadable(
+                path,
+                String::new(),
+                format!("no sheet `{s}` (sheets: {})", names.join(", ")),
+            ))
+        }
+        None => names
+            .first()
+            .cloned()
+            .ok_or_else(|| unreadable(path, String::new(), "the workbook has no sheet"))?,
+    };
+    if let calamine::Sheets::Xlsx(x) = &mut book {
+        if let Some(Ok(merged)) = x.worksheet_merge_cells(&name) {
+            if let Some(first) = merged.first() {
+                let at = |(r, c): (u32, u32)| format!("{}{}", letters(c), r + 1);
+                return Err(unreadable(
+                    path,
+                    format!(", sheet `{name}`"),
+                    format!(
+                        "merged cells at {}:{}{}; unmerge them and give every row its own values",
+                        at(first.start),
+                        at(first.end),
+                        if merged.len() > 1 {
+                            format!(" (and {} more merged ranges)", merged.len() - 1)
+                        } else {
+                            String::new()
+                        }
+                    ),
+                ));
+            }
+        }
+    }
+    let range = book
+        .worksheet_range(&name)
+        .map_err(|e| unreadable(path, format!(", sheet `{name}`"), e.to_string()))?;
+    let Some((row0, col0)) = range.start() else {
+        return Err(Error::NoRows {
+            file: path.to_path_buf(),
+        });
+    };
+    let mut rows = range.rows();
+    let header_cells = rows.next().unwrap_or(&[]);
+    let mut header = Vec::with_capacity(header_cells.len());
+    for (j, h) in header_cells.iter().enumerate() {
+        let at = format!(
+            ", sheet `{name}`, cell {}{}",
+            letters(col0 + j as u32),
+            row0 + 1
+        );
+        let text = match h {
+            Data::String(s) if !s.trim().is_empty() => s.trim().to_string(),
+            Data::Empty => return Err(unreadable(path, at, "the header cell is empty")),
+            other => other.to_string(),
+        };
+        if header.contains(&text) {
+            return Err(Error::DuplicateColumn {
+                file: path.to_path_buf(),
+                column: text,
+            });
+        }
+        header.push(text);
+    }
+    let body: Vec<&[Data]> = rows.collect();
+    if body.is_empty() {
+        return Err(Error::NoRows {
+            file: path.to_path_buf(),
+        });
+    }
+    let mut notes = Vec::new();
+    let mut columns = Vec::with_capacity(header.len());
+    for (j, name_j) in header.iter().enumerate() {
+        let cells: Vec<Cell> = body
+            .iter()
+            .map(|r| r.get(j).map_or(Cell::Missing, cell))
+            .collect();
+        let errors = body
+            .iter()
+            .filter(|r| matches!(r.get(j), Some(Data::Error(_))))
+            .count();
+        if errors > 0 {
+            notes.push(format!(
+                "column `{name_j}`: {errors} cells hold a spreadsheet error (such as #DIV/0!) and were read as missing"
+            ));
+        }
+        let first_text = cells.iter().position(|c| matches!(c, Cell::Text(_)));
+        let number_like = cells
+            .iter()
+            .filter(|c| matches!(c, Cell::NumberLike(_)))
+            .count();
+        let numbers = cells
+            .iter()
+            .filter(|c| matches!(c, Cell::Number(_)))
+            .count();
+        let sheet_row = |i: usize| row0 as usize + 2 + i;
+        let column = match first_text {
+            None => {
+                if number_like > 0 && numbers > 0 {
+                    let first = cells
+                        .iter()
+                        .position(|c| matches!(c, Cell::NumberLike(_)))
+                        .unwrap_or(0);
+                    notes.push(format!(
+                        "column `{name_j}`: {number_like} text cells that look like numbers (the first in sheet row {}) were read as numbers",
+                        sheet_row(first)
+                    ));
+                }
+                let values: Vec<Option<f64>> = cells
+                    .iter()
+                    .map(|c| match c {
+                        Cell::Number(x) | Cell::NumberLike(x) => Some(*x),
+                        _ => None,
+                    })
+                    .collect();
+                let whole = values
+                    .iter()
+                    .flatten()
+                    .all(|x| x.fract() == 0.0 && x.abs() < 9.0e15);
+                if whole {
+                    Column::new(
+                        name_j.as_str().into(),
+                        values
+                            .iter()
+                            .map(|v| v.map(|x| x as i64))
+                            .collect::<Vec<Option<i64>>>(),
+                    )
+                } else {
+                    Column::new(name_j.as_str().into(), values)
+                }
+            }
+            Some(t) => {
+                if numbers + number_like > 0 {
+                    notes.push(format!(
+                        "column `{name_j}` mixes numbers and text (the first text in sheet row {}): read as text",
+                        sheet_row(t)
+                    ));
+                }
+                let values: Vec<Option<String>> = cells
+                    .iter()
+                    .zip(&body)
+                    .map(|(c, r)| match c {
+                        Cell::Missing => None,
+                        Cell::Text(s) => Some(s.clone()),
+                        _ => r.get(j).map(|d| d.to_string()),
+                    })
+                    .collect();
+                Column::new(name_j.as_str().into(), values)
+            }
+        };
+        columns.push(column);
+    }
+    let df = DataFrame::new(body.len(), columns)?;
+    Ok(Sheet { df, name, notes })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::letters;
+
+    #[test]
+    fn column_letters() {
+        assert_eq!(letters(0), "A");
+        assert_eq!(letters(25), "Z");
+        assert_eq!(letters(26), "AA");
+        assert_eq!(letters(27), "AB");
+        assert_eq!(letters(701), "ZZ");
+        assert_eq!(letters(702), "AAA");
+    }
+}

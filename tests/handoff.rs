@@ -1,0 +1,363 @@
+//! Hand-off across people and time: a starter rules file, two vintages compared, labels in
+//! the Parquet file, spreadsheets in. The references are independent: pandas recounts what
+//! `compare` reports, pyarrow reads the Parquet metadata, openpyxl writes the spreadsheets.
+
+use std::path::Path;
+
+use crate::util::{root, run_reference, Workdir};
+
+/// `compare --format json` found nothing (its exit code 0 says the same).
+fn unchanged(json: &str) {
+    let summary: serde_json::Value = serde_json::from_str(json).unwrap();
+    assert_eq!(summary["changed"], false, "{json}");
+    assert_eq!(summary["firm_years_added"], 0);
+    assert!(summary["columns"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .all(|c| c["cells_changed"] == 0));
+}
+
+fn check(args: &[&Path]) {
+    let out = run_reference("handoff.py", args);
+    assert!(out.contains(" 0 failed"), "{out}");
+}
+
+#[test]
+fn compare_matches_a_pandas_recount_on_a_perturbed_demo() {
+    let w = Workdir::new();
+    w.ok(&["demo", "--out", "d"]);
+    std::fs::create_dir_all(w.path("v")).unwrap();
+    run_reference(
+        "handoff.py",
+        &[
+            Path::new("perturb"),
+            &w.path("d/bundle/panel.csv"),
+            &w.path("v"),
+        ],
+    );
+    let keys = ["--entity", "firm_id", "--period", "fiscal_year"];
+    let mut args = vec![
+        "compare",
+        "v/old.csv",
+        "v/new.csv",
+        "--relative",
+        "1e-6",
+        "--absolute",
+        "revenue=10",
+        "--report",
+        "v/summary.json",
+        "--changes",
+        "v/changes.csv",
+    ];
+    args.extend(keys);
+    let r = w.run(&args);
+    assert_eq!(
+        r.code, 1,
+        "a changed vintage exits 1:\n{}{}",
+        r.stdout, r.stderr
+    );
+    check(&[
+        Path::new("compare"),
+        &w.path("v"),
+        &w.path("v/summary.json"),
+        &w.path("v/changes.csv"),
+    ]);
+    // The same file twice: nothing changed, exit 0.
+    let mut same = vec!["compare", "v/old.csv", "v/old.csv"];
+    same.extend(keys);
+    same.extend(["--format", "json"]);
+    unchanged(&w.ok(&same).stdout);
+    // Two bundles: a restated revenue shows in the derived variables it feeds, marked so.
+    let raw = std::fs::read_to_string(w.path("d/data/velmora_accounts.csv")).unwrap();
+    let mut lines: Vec<String> = raw.lines().map(str::to_string).collect();
+    let at = lines[0].split(',').position(|c| c == "revenue").unwrap();
+    let mut cells: Vec<String> = lines[5].split(',').map(str::to_string).collect();
+    let revenue: f64 = cells[at].parse().unwrap();
+    cells[at] = (2.0 * revenue + 1.0).to_string();
+    lines[5] = cells.join(",");
+    w.write("restated.csv", &(lines.join("\n") + "\n"));
+    w.ok(&[
+        "build",
+        "restated.csv",
+        "--rules",
+        "d/data/rules.toml",
+        "--out",
+        "b2",
+    ]);
+    let r = w.run(&["compare", "d/bundle", "b2", "--format", "json"]);
+    assert_eq!(r.code, 1, "{}", r.stderr);
+    let summary: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+    let column = |name: &str| {
+        summary["columns"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|c| c["column"] == name)
+            .unwrap()
+            .clone()
+    };
+    assert_eq!(column("revenue")["derived"], false);
+    assert_eq!(column("sales_growth")["derived"], true);
+    assert!(column("sales_growth")["cells_changed"].as_u64().unwrap() >= 1);
+    // A bad tolerance is refused in one line.
+    w.fails(
+        &[
+            "compare",
+            "v/old.csv",
+            "v/new.csv",
+            "--entity",
+            "firm_id",
+            "--period",
+            "fiscal_year",
+            "--absolute",
+            "x=-1",
+        ],
+        "give a number >= 0",
+    );
+}
+
+#[test]
+fn labels_travel_in_the_parquet_file_and_dictionary_json() {
+    let w = Workdir::new();
+    w.ok(&["demo", "--out", "d"]);
+    check(&[Path::new("parquet"), &w.path("d/bundle")]);
+    let manifest = std::fs::read_to_string(w.path("d/bundle/manifest.json")).unwrap();
+    assert!(manifest.contains("\"dictionary.json\""), "{manifest}");
+    let md = std::fs::read_to_string(w.path("d/bundle/dictionary.md")).unwrap();
+    assert!(
+        md.contains("Firm size: natural log of total assets"),
+        "{md}"
+    );
+}
+
+#[test]
+fn a_spreadsheet_reads_back_as_its_csv_twin() {
+    let w = Workdir::new();
+    w.ok(&["demo", "--out", "d"]);
+    let keys = ["--entity", "firm_id", "--period", "fiscal_year"];
+    // The cleaned panel as a spreadsheet: every firm-year and cell equal. openpyxl writes 16
+    // significant digits (spreadsheets keep about 15: common practice), so a number may move
+    // by one unit in the last place: relative tolerance 1e-15.
+    run_reference(
+        "handoff.py",
+        &[
+            Path::new("xlsx"),
+            &w.path("d/bundle/panel.csv"),
+            &w.path("twin.xlsx"),
+        ],
+    );
+    let mut args = vec![
+        "compare",
+        "d/bundle/panel.csv",
+        "twin.xlsx",
+        "--relative",
+        "1e-15",
+    ];
+    args.extend(keys);
+    args.extend(["--format", "json"]);
+    unchanged(&w.ok(&args).stdout);
+    // The raw demo accounts as a spreadsheet build the same bundle as the CSV, exactly.
+    run_reference(
+        "handoff.py",
+        &[
+            Path::new("xlsx"),
+            &w.path("d/data/velmora_accounts.csv"),
+            &w.path("raw.xlsx"),
+        ],
+    );
+    w.ok(&[
+        "build",
+        "raw.xlsx",
+        "--rules",
+        "d/data/rules.toml",
+        "--out",
+        "bx",
+    ]);
+    unchanged(
+        &w.ok(&[
+            "compare",
+            "d/bundle",
+            "bx",
+            "--relative",
+            "0",
+            "--format",
+            "json",
+        ])
+        .stdout,
+    );
+    let manifest = std::fs::read_to_string(w.path("bx/manifest.json")).unwrap();
+    assert!(manifest.contains("\"spreadsheet\""), "{manifest}");
+}
+
+#[test]
+fn awkward_spreadsheets_are_refused_or_reported() {
+    let w = Workdir::new();
+    run_reference("handoff.py", &[Path::new("xlsx-hostile"), &w.path("")]);
+    let keys = ["--entity", "firm", "--period", "year"];
+    let mut args = vec!["audit", "merged.xlsx"];
+    args.extend(keys);
+    w.fails(&args, "merged cells at A2:A3");
+    let mut args = vec!["audit", "mixed.xlsx", "--format", "json"];
+    args.extend(keys);
+    let r = w.ok(&args);
+    let report: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+    let notes = report["input"]["notes"].as_array().unwrap();
+    let text: Vec<&str> = notes.iter().map(|n| n.as_str().unwrap()).collect();
+    assert!(
+        text.iter()
+            .any(|n| n.contains("`assets`: 1 text cells that look like numbers")),
+        "{text:?}"
+    );
+    assert!(
+        text.iter()
+            .any(|n| n.contains("`note` mixes numbers and text")),
+        "{text:?}"
+    );
+    assert_eq!(report["input"]["sheet"], "accounts");
+    let mut args = vec!["audit", "mixed.xlsx", "--sheet", "nope"];
+    args.extend(keys);
+    w.fails(&args, "no sheet `nope` (sheets: accounts, other)");
+}
+
+#[test]
+fn a_drafted_rules_file_guesses_keys_and_columns_and_builds() {
+    let w = Workdir::new();
+    w.ok(&["demo", "--out", "d", "--data-only"]);
+    let r = w.ok(&["rules", "draft", "d/data/velmora_accounts.csv"]);
+    let draft = r.stdout;
+    for want in [
+        "entity = \"firm_id\"",
+        "period = \"fiscal_year\"",
+        "total_assets = \"assets_total\"",
+        "sales = \"revenue\"",
+        "net_income = \"net_profit\"",
+        "rows repeat a pair",
+    ] {
+        assert!(draft.contains(want), "draft lacks {want}:\n{draft}");
+    }
+    w.write("draft.toml", &draft);
+    w.ok(&[
+        "build",
+        "d/data/velmora_accounts.csv",
+        "--rules",
+        "draft.toml",
+        "--out",
+        "b",
+    ]);
+    // Unfamiliar names: the same data with other headers.
+    let csv = std::fs::read_to_string(w.path("d/data/velmora_accounts.csv")).unwrap();
+    let (head, body) = csv.split_once('\n').unwrap();
+    let renamed = head
+        .replace("firm_id", "company_code")
+        .replace("fiscal_year", "yr")
+        .replace("assets_total", "Total Assets")
+        .replace("revenue", "turnover");
+    w.write("odd.csv", &format!("{renamed}\n{body}"));
+    w.ok(&["rules", "draft", "odd.csv", "--out", "odd.toml"]);
+    let odd = std::fs::read_to_string(w.path("odd.toml")).unwrap();
+    for want in [
+        "entity = \"company_code\"",
+        "period = \"yr\"",
+        "total_assets = \"Total Assets\"",
+        "sales = \"turnover\"",
+    ] {
+        assert!(odd.contains(want), "draft lacks {want}:\n{odd}");
+    }
+    w.ok(&["build", "odd.csv", "--rules", "odd.toml", "--out", "b2"]);
+    w.fails(
+        &["rules", "draft", "odd.csv", "--out", "odd.toml"],
+        "exists",
+    );
+    // Public panels (tests/reference/data): their documented keys.
+    for (file, entity, period) in [
+        ("wagepan.csv", "nr", "year"),
+        ("jtrain.csv", "fcode", "year"),
+        ("grunfeld.csv", "firm", "year"),
+    ] {
+        let path = root().join("tests/reference/data").join(file);
+        let r = w.ok(&["rules", "draft", path.to_str().unwrap()]);
+        assert!(
+            r.stdout.contains(&format!("entity = \"{entity}\"")),
+            "{file}:\n{}",
+            r.stdout
+        );
+        assert!(
+            r.stdout.contains(&format!("period = \"{period}\"")),
+            "{file}:\n{}",
+            r.stdout
+        );
+    }
+}
+
+#[test]
+fn sure_unit_slips_are_rescaled_and_corrections_applied_with_a_ledger() {
+    let w = Workdir::new();
+    // Firm A slips x1000 in 2002 and returns (sure); firm B jumps x1000 in 2002 and stays
+    // (not sure: never repaired); firm C is corrected by hand in 2001.
+    w.write(
+        "p.csv",
+        "f,y,assets,sales\nA,2001,100,50\nA,2002,100000,52\nA,2003,104,54\n\
+         B,2001,80,40\nB,2002,80000,41\nB,2003,81000,42\nC,2001,70,35\nC,2002,72,36\n",
+    );
+    w.write(
+        "fix.csv",
+        "entity,period,column,value,reason\nC,2001,sales,,audited accounts restated\n",
+    );
+    w.write(
+        "rules.toml",
+        "[panel]\nentity = \"f\"\nperiod = \"y\"\n[columns]\ntotal_assets = \"assets\"\n\
+         [derive.size]\nexpr = \"ln(total_assets)\"\n\
+         [repair]\nunit_slips = \"rescale\"\ncorrections = \"fix.csv\"\n",
+    );
+    w.ok(&["build", "p.csv", "--rules", "rules.toml", "--out", "b"]);
+    let ledger = std::fs::read_to_string(w.path("b/corrections.csv")).unwrap();
+    let lines: Vec<&str> = ledger.lines().collect();
+    assert_eq!(lines[0], "f,y,column,old,new,reason", "{ledger}");
+    assert!(
+        lines.contains(&"C,2001,sales,35,,corrections file: audited accounts restated"),
+        "{ledger}"
+    );
+    assert!(
+        lines.contains(&"A,2002,assets,100000,100.0,unit slip: divided by 1000"),
+        "{ledger}"
+    );
+    assert!(
+        !lines.iter().any(|l| l.starts_with("B,")),
+        "an unsure slip was repaired: {ledger}"
+    );
+    // The derived variable uses the repaired value: ln(100) in A's 2002 row.
+    let panel = std::fs::read_to_string(w.path("b/panel.csv")).unwrap();
+    let a2002 = panel.lines().find(|l| l.contains(",A,2002,")).unwrap();
+    assert!(a2002.contains(&format!("{}", 100f64.ln())), "{a2002}");
+    let report: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(w.path("b/report.json")).unwrap()).unwrap();
+    assert_eq!(report["repairs"]["unit_slips_repaired"], 1);
+    assert_eq!(report["repairs"]["corrected_cells"], 1);
+    let steps: Vec<&str> = report["sample_construction"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|s| s["step"].as_str().unwrap())
+        .collect();
+    assert!(steps.contains(&"unit slips rescaled: 1 cells"), "{steps:?}");
+    let manifest = std::fs::read_to_string(w.path("b/manifest.json")).unwrap();
+    assert!(manifest.contains("\"fix.csv\""), "{manifest}");
+    // A correction that matches no row is an error naming its line; so is a bad value.
+    w.write(
+        "fix.csv",
+        "entity,period,column,value,reason\nC,2001,sales,1,x\nZ,2001,sales,1,x\n",
+    );
+    w.fails(
+        &["build", "p.csv", "--rules", "rules.toml", "--out", "b2"],
+        "line 3: no row of the data",
+    );
+    w.write(
+        "fix.csv",
+        "entity,period,column,value,reason\nC,2001,sales,lots,x\n",
+    );
+    w.fails(
+        &["build", "p.csv", "--rules", "rules.toml", "--out", "b2"],
+        "line 2: `sales` holds numbers",
+    );
+}

@@ -1,0 +1,188 @@
+"""Independent checks of the hand-off features, with pandas, pyarrow and openpyxl.
+
+  handoff.py perturb PANEL_CSV OUTDIR
+      writes OUTDIR/old.csv (the demo bundle's cleaned panel without `source_row`) and
+      OUTDIR/new.csv: a seeded copy with firm-years removed and added, a whole firm removed,
+      numbers changed (some within, some beyond the tolerance the test passes), text changed,
+      values blanked and filled.
+  handoff.py compare OUTDIR SUMMARY_JSON CHANGES_CSV
+      recounts with pandas what `compare` reports: firm-years and entities added and removed,
+      and per column the cells changed beyond |new - old| > abs + rel * |old| (abs 0,
+      rel 1e-6, revenue abs 10, the options the test passes), values that vanished or
+      appeared; the change ledger must list exactly those cells.
+  handoff.py parquet BUNDLE
+      reads panel.parquet's key-value metadata with pyarrow: each column's entry must equal
+      dictionary.json's, and the labels must be the rules' labels.
+  handoff.py xlsx CSV XLSX
+      writes the CSV as a spreadsheet with openpyxl (numbers as numbers, one sheet "panel").
+  handoff.py xlsx-hostile OUTDIR
+      writes merged.xlsx (merged cells) and mixed.xlsx (a number typed as text in a number
+      column, a number in a text column, a second sheet).
+
+Prints `N passed, M failed`; exits 1 on any mismatch.
+"""
+
+import json
+import sys
+
+import numpy as np
+import pandas as pd
+
+passed = failed = 0
+
+
+def check(name, ok, detail=""):
+    global passed, failed
+    if ok:
+        passed += 1
+    else:
+        failed += 1
+        print(f"MISMATCH {name}: {detail}")
+
+
+def read(path):
+    # round_trip: the same doubles polars parses from the same text.
+    return pd.read_csv(path, float_precision="round_trip", keep_default_na=True)
+
+
+def perturb(panel_csv, outdir):
+    old = read(panel_csv).drop(columns=["source_row"])
+    rng = np.random.default_rng(7)
+    new = old.copy()
+    # A whole firm leaves; a few firm-years drop out; two firm-years and a new firm arrive.
+    gone = new["firm_id"].iloc[0]
+    new = new[new["firm_id"] != gone]
+    new = new.drop(index=rng.choice(new.index, 5, replace=False))
+    extra = new.drop_duplicates("firm_id").iloc[:2].copy()
+    extra["fiscal_year"] = 2030
+    newcomer = new.iloc[:1].copy()
+    newcomer["firm_id"] = "VM99999"
+    new = pd.concat([new, extra, newcomer], ignore_index=True)
+    idx = rng.choice(new.index[:-3], 40, replace=False)
+    # Numbers: 10 revenue changes below its absolute tolerance of 10, 10 beyond it; 10 tiny
+    # relative changes to assets (below 1e-6); 5 big ones.
+    new.loc[idx[:10], "revenue"] += 3.0
+    new.loc[idx[10:20], "revenue"] += 250.0
+    new.loc[idx[20:30], "assets_total"] *= 1 + 1e-9
+    new.loc[idx[30:35], "assets_total"] += 1000.0
+    # Text, a value blanked and one filled.
+    new.loc[idx[35:37], "sector"] = "Sector Zeta"
+    new.loc[idx[37:39], "op_profit"] = np.nan
+    blank = new.index[new["rnd_spend"].isna()][:1]
+    new.loc[blank, "rnd_spend"] = 12.5
+    old.to_csv(f"{outdir}/old.csv", index=False)
+    new.to_csv(f"{outdir}/new.csv", index=False)
+    print("wrote old.csv and new.csv")
+
+
+def compare(outdir, summary_json, changes_csv):
+    old = read(f"{outdir}/old.csv")
+    new = read(f"{outdir}/new.csv")
+    summary = json.load(open(summary_json))
+    ledger = pd.read_csv(changes_csv, dtype={"column": str})
+    keys = ["firm_id", "fiscal_year"]
+    m = old.merge(new, on=keys, how="outer", suffixes=("__o", "__n"), indicator=True)
+    added = int((m["_merge"] == "right_only").sum())
+    removed = int((m["_merge"] == "left_only").sum())
+    check("firm-years added", added == summary["firm_years_added"], (added, summary))
+    check("firm-years removed", removed == summary["firm_years_removed"], removed)
+    check("firm-years in both", int((m["_merge"] == "both").sum()) == summary["firm_years_in_both"])
+    ea = sorted(set(new["firm_id"]) - set(old["firm_id"]))
+    er = sorted(set(old["firm_id"]) - set(new["firm_id"]))
+    check("entities added", ea == summary["entities_added"], (ea, summary["entities_added"]))
+    check("entities removed", er == summary["entities_removed"], er)
+    both = m[m["_merge"] == "both"]
+    by_col = {c["column"]: c for c in summary["columns"]}
+    expected_cells = set()
+    for c in [c for c in old.columns if c not in keys]:
+        o, n = both[f"{c}__o"], both[f"{c}__n"]
+        presence = o.isna() != n.isna()
+        if pd.api.types.is_numeric_dtype(o) and pd.api.types.is_numeric_dtype(n):
+            tol_abs = 10.0 if c == "revenue" else 0.0
+            value = (n - o).abs() > tol_abs + 1e-6 * o.abs()
+        else:
+            value = o.astype(str) != n.astype(str)
+        changed = presence | (o.notna() & n.notna() & value)
+        check(f"{c}: cells changed", int(changed.sum()) == by_col[c]["cells_changed"],
+              (int(changed.sum()), by_col[c]))
+        check(f"{c}: became missing", int((o.notna() & n.isna()).sum()) == by_col[c]["became_missing"])
+        check(f"{c}: became present", int((o.isna() & n.notna()).sum()) == by_col[c]["became_present"])
+        for _, r in both[changed].iterrows():
+            expected_cells.add((r["firm_id"], int(r["fiscal_year"]), c))
+    # Planted changes are found: 10 revenue changes beyond 10, none of the 10 below it; 5
+    # large asset changes, none of the 10 tiny ones.
+    check("revenue beyond tolerance", by_col["revenue"]["cells_changed"] == 10)
+    check("assets beyond tolerance", by_col["assets_total"]["cells_changed"] == 5)
+    cells = ledger[ledger["change"] == "value changed"]
+    got = {(r["firm_id"], int(r["fiscal_year"]), r["column"]) for _, r in cells.iterrows()}
+    check("ledger cells", got == expected_cells, (len(got), len(expected_cells)))
+    check("ledger rows added", int((ledger["change"] == "firm-year added").sum()) == added)
+    check("ledger rows removed", int((ledger["change"] == "firm-year removed").sum()) == removed)
+    check("changed flag", summary["changed"] is True)
+
+
+def parquet(bundle):
+    import pyarrow.parquet as pq
+
+    # The file's key-value metadata (not the Arrow schema's).
+    meta = pq.read_metadata(f"{bundle}/panel.parquet").metadata or {}
+    meta = {k.decode(): v.decode() for k, v in meta.items()}
+    dictionary = json.load(open(f"{bundle}/dictionary.json"))
+    check("whole dictionary in the file", json.loads(meta["panelready.dictionary"]) == dictionary)
+    columns = pq.read_schema(f"{bundle}/panel.parquet").names
+    check("one entry per column, in order", [e["name"] for e in dictionary["columns"]] == columns)
+    for entry in dictionary["columns"]:
+        got = json.loads(meta[f"panelready.column.{entry['name']}"])
+        check(f"{entry['name']} entry", got == entry, got)
+    labels = {e["name"]: e["label"] for e in dictionary["columns"]}
+    # rules/standard.toml's label for size.
+    check("size label", labels["size"] == "Firm size: natural log of total assets", labels["size"])
+
+
+def xlsx(csv_path, xlsx_path):
+    from openpyxl import Workbook
+
+    df = read(csv_path)
+    wb = Workbook()
+    ws = wb.active
+    ws.title = "panel"
+    ws.append(list(df.columns))
+    for row in df.itertuples(index=False):
+        ws.append([None if (isinstance(v, float) and np.isnan(v)) else
+                   (v.item() if hasattr(v, "item") else v) for v in row])
+    wb.save(xlsx_path)
+    print(f"wrote {xlsx_path}")
+
+
+def xlsx_hostile(outdir):
+    """Two awkward workbooks: merged cells, and numbers typed as text in a number column."""
+    from openpyxl import Workbook
+
+    wb = Workbook()
+    ws = wb.active
+    ws.append(["firm", "year", "assets"])
+    ws.append(["A", 2001, 10.5])
+    ws.append(["A", 2002, 11.0])
+    ws.append(["B", 2001, 7.25])
+    ws.merge_cells("A2:A3")
+    wb.save(f"{outdir}/merged.xlsx")
+    wb = Workbook()
+    ws = wb.active
+    ws.title = "accounts"
+    ws.append(["firm", "year", "assets", "note"])
+    ws.append(["A", 2001, 10.5, "ok"])
+    ws.append(["A", 2002, "11", "ok"])
+    ws.append(["B", 2001, 7.25, 3])
+    ws.append(["B", 2002, 8, "late"])
+    wb.create_sheet("other").append(["x"])
+    wb.save(f"{outdir}/mixed.xlsx")
+    print("wrote merged.xlsx and mixed.xlsx")
+
+
+if __name__ == "__main__":
+    mode, *args = sys.argv[1:]
+    {"perturb": perturb, "compare": compare, "parquet": parquet, "xlsx": xlsx,
+     "xlsx-hostile": xlsx_hostile}[mode](*args)
+    if mode in ("compare", "parquet"):
+        print(f"{passed} passed, {failed} failed")
+        sys.exit(1 if failed else 0)
