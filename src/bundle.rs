@@ -214,7 +214,7 @@ fn write_files(
         // zstd, at a somewhat larger file.
         ParquetWriter::new(f)
             .with_compression(ParquetCompression::Snappy)
-            .with_key_value_metadata(Some(parquet_labels(&p.dictionary)))
+            .with_key_value_metadata(Some(parquet_labels(&p.panel, &p.dictionary)))
             .finish(&mut p.panel)?;
         Ok(())
     })?;
@@ -325,14 +325,45 @@ impl<'a> DictionaryFile<'a> {
     }
 }
 
-/// Labels, units and definitions for the Parquet file. polars writes no per-field metadata,
-/// so they go into the file's key-value metadata: `panelready.dictionary` holds
-/// dictionary.json, and `panelready.column.NAME` each column's entry as JSON.
-fn parquet_labels(entries: &[crate::pipeline::DictionaryEntry]) -> KeyValueMetadata {
-    let mut kv = vec![(
+/// Labels, units and definitions for the Parquet file: as field metadata in the Arrow schema
+/// readers restore (`label`, `unit`, `definition`, `source` on each field; the `ARROW:schema`
+/// key polars would write, with the metadata added), and in the file's key-value metadata:
+/// `panelready.dictionary` holds dictionary.json, `panelready.column.NAME` each column's entry.
+fn parquet_labels(
+    panel: &DataFrame,
+    entries: &[crate::pipeline::DictionaryEntry],
+) -> KeyValueMetadata {
+    let schema: ArrowSchema = panel
+        .schema()
+        .to_arrow(CompatLevel::newest())
+        .into_iter()
+        .map(|(name, field)| {
+            let entry = entries.iter().find(|e| e.name == name.as_str());
+            let mut md = std::collections::BTreeMap::new();
+            if let Some(e) = entry {
+                for (k, v) in [
+                    ("label", &e.label),
+                    ("unit", &e.unit),
+                    ("definition", &e.definition),
+                    ("source", &e.source),
+                ] {
+                    if !v.is_empty() {
+                        md.insert(PlSmallStr::from(k), PlSmallStr::from(v.as_str()));
+                    }
+                }
+            }
+            (name, field.with_metadata(md))
+        })
+        .collect();
+    let arrow = polars_parquet::write::schema_to_metadata_key(&schema);
+    let mut kv = Vec::new();
+    if let Some(value) = arrow.value {
+        kv.push((arrow.key, value));
+    }
+    kv.push((
         "panelready.dictionary".to_string(),
         serde_json::to_string(&DictionaryFile::new(entries)).unwrap_or_default(),
-    )];
+    ));
     for e in entries {
         kv.push((
             format!("panelready.column.{}", e.name),

@@ -60,25 +60,8 @@ pub(crate) struct DraftArgs {
     #[arg(long, value_name = "FILE")]
     pub(crate) out: Option<PathBuf>,
 
-    /// Read DATA as this format instead of guessing from its extension.
-    #[arg(long, value_enum, value_name = "FORMAT")]
-    pub(crate) input_format: Option<InputFormatArg>,
-
-    /// CSV field separator, one character.
-    #[arg(long, value_name = "CHAR")]
-    pub(crate) delimiter: Option<String>,
-
-    /// CSV numbers use a decimal comma.
-    #[arg(long)]
-    pub(crate) decimal_comma: bool,
-
-    /// CSV text encoding: utf-8 (default), windows-1252 or latin-1.
-    #[arg(long, value_name = "NAME")]
-    pub(crate) encoding: Option<String>,
-
-    /// The sheet of a spreadsheet; default the first.
-    #[arg(long, value_name = "NAME")]
-    pub(crate) sheet: Option<String>,
+    #[command(flatten)]
+    pub(crate) read: ReadArgs,
 }
 
 #[derive(Debug, Args)]
@@ -102,21 +85,8 @@ pub(crate) struct CompareArgs {
     #[arg(long, value_name = "COLUMN")]
     pub(crate) period: Option<String>,
 
-    /// CSV field separator of raw files, one character.
-    #[arg(long, value_name = "CHAR")]
-    pub(crate) delimiter: Option<String>,
-
-    /// Raw CSV numbers use a decimal comma.
-    #[arg(long)]
-    pub(crate) decimal_comma: bool,
-
-    /// Raw CSV text encoding: utf-8 (default), windows-1252 or latin-1.
-    #[arg(long, value_name = "NAME")]
-    pub(crate) encoding: Option<String>,
-
-    /// The sheet of spreadsheet files; default the first.
-    #[arg(long, value_name = "NAME")]
-    pub(crate) sheet: Option<String>,
+    #[command(flatten)]
+    pub(crate) read: ReadArgs,
 
     /// Absolute tolerance: a number changed when |new − old| > ABS + REL · |old|. A bare
     /// number sets every column's; `COLUMN=X` one column's. Repeatable. Default 0.
@@ -159,7 +129,23 @@ pub(crate) struct InputArgs {
     #[arg(long, value_name = "COLUMN")]
     pub(crate) period: Option<String>,
 
-    /// Read DATA as this format instead of guessing from its extension (`.csv`, `.csv.gz`,
+    #[command(flatten)]
+    pub(crate) read: ReadArgs,
+
+    /// Show no progress on stderr (it is shown only on a terminal anyway).
+    #[arg(long)]
+    pub(crate) quiet: bool,
+
+    /// Print the wall time of each stage (reading, key steps, each check, cleaning, writing)
+    /// on stderr when the run ends.
+    #[arg(long)]
+    pub(crate) timings: bool,
+}
+
+/// How to read a raw file: shared by every command that reads one.
+#[derive(Debug, Clone, Args)]
+pub(crate) struct ReadArgs {
+    /// Read the raw file as this format instead of guessing from its extension (`.csv`, `.csv.gz`,
     /// `.csv.zst`, `.parquet`, `.xlsx`, `.xlsm`, `.ods`).
     #[arg(long, value_enum, value_name = "FORMAT")]
     pub(crate) input_format: Option<InputFormatArg>,
@@ -181,15 +167,6 @@ pub(crate) struct InputArgs {
     /// overrides `[input] sheet`.
     #[arg(long, value_name = "NAME")]
     pub(crate) sheet: Option<String>,
-
-    /// Show no progress on stderr (it is shown only on a terminal anyway).
-    #[arg(long)]
-    pub(crate) quiet: bool,
-
-    /// Print the wall time of each stage (reading, key steps, each check, cleaning, writing)
-    /// on stderr when the run ends.
-    #[arg(long)]
-    pub(crate) timings: bool,
 }
 
 #[derive(Debug, Args)]

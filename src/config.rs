@@ -334,7 +334,7 @@ impl Command {
             }
             CliCommand::Ratios => Command::Ratios,
             CliCommand::Rules(RulesCommand::Draft(d)) => {
-                let format = match d.input_format {
+                let format = match d.read.input_format {
                     Some(InputFormatArg::Csv) => InputFormat::Csv,
                     Some(InputFormatArg::Parquet) => InputFormat::Parquet,
                     Some(InputFormatArg::Spreadsheet) => InputFormat::Spreadsheet,
@@ -353,15 +353,15 @@ impl Command {
                 }
                 let csv = CsvOptions::resolve(
                     &Rules::empty(),
-                    d.delimiter.as_deref(),
-                    d.decimal_comma,
-                    d.encoding.as_deref(),
+                    d.read.delimiter.as_deref(),
+                    d.read.decimal_comma,
+                    d.read.encoding.as_deref(),
                 )?;
                 Command::Draft(DraftConfig {
                     data: d.data,
                     format,
                     csv,
-                    sheet: d.sheet,
+                    sheet: d.read.sheet,
                     out: d.out,
                 })
             }
@@ -376,13 +376,9 @@ impl Command {
                         rules: c.rules.clone(),
                         entity: c.entity.clone(),
                         period: c.period.clone(),
-                        input_format: None,
-                        delimiter: c.delimiter.clone(),
-                        decimal_comma: c.decimal_comma,
-                        encoding: c.encoding.clone(),
+                        read: c.read.clone(),
                         quiet: true,
                         timings: false,
-                        sheet: c.sheet.clone(),
                     };
                     Ok(crate::compare::Side::Raw(Box::new(InputConfig::from_args(
                         args,
@@ -442,7 +438,7 @@ impl InputConfig {
             Some(path) => Rules::from_path(path)?,
             None => Rules::empty(),
         };
-        let format = match a.input_format {
+        let format = match a.read.input_format {
             Some(InputFormatArg::Csv) => InputFormat::Csv,
             Some(InputFormatArg::Parquet) => InputFormat::Parquet,
             Some(InputFormatArg::Spreadsheet) => InputFormat::Spreadsheet,
@@ -458,11 +454,11 @@ impl InputConfig {
             .ok_or(Error::MissingKey { key: "period" })?;
         let csv = CsvOptions::resolve(
             &rules,
-            a.delimiter.as_deref(),
-            a.decimal_comma,
-            a.encoding.as_deref(),
+            a.read.delimiter.as_deref(),
+            a.read.decimal_comma,
+            a.read.encoding.as_deref(),
         )?;
-        let sheet = a.sheet.or_else(|| rules.file.input.sheet.clone());
+        let sheet = a.read.sheet.or_else(|| rules.file.input.sheet.clone());
         Ok(InputConfig {
             path: a.data,
             format,

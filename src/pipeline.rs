@@ -250,14 +250,7 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
     report.skipped = plan.skipped.clone();
     report.skipped.extend(skipped_rules);
     report.rules = rule_lines;
-    let resolve = |c: &String| {
-        rules
-            .file
-            .columns
-            .get(c)
-            .cloned()
-            .unwrap_or_else(|| c.clone())
-    };
+    let resolve = |c: &String| rules.resolve(c);
     let compare: Vec<String> = match &rules.file.audit.compare {
         Some(list) => list.iter().map(resolve).collect(),
         None => plan.vars.iter().map(|v| v.name.clone()).collect(),
@@ -411,14 +404,7 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
 /// The level variables searched for unit slips: `[audit] levels`, else the mapped canonical
 /// amounts the data has.
 fn level_columns(rules: &Rules, raw: &[String], input: &InputConfig) -> Result<Vec<String>> {
-    let resolve = |c: &String| {
-        rules
-            .file
-            .columns
-            .get(c)
-            .cloned()
-            .unwrap_or_else(|| c.clone())
-    };
+    let resolve = |c: &String| rules.resolve(c);
     let levels: Vec<String> = match &rules.file.audit.levels {
         Some(list) => list.iter().map(resolve).collect(),
         None => LEVEL_COLUMNS

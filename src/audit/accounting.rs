@@ -91,12 +91,7 @@ pub fn compile(rules: &Rules, raw: &[String]) -> Result<(Vec<CompiledRule>, Vec<
             Some(list) => list
                 .iter()
                 .map(|c| {
-                    let resolved = rules
-                        .file
-                        .columns
-                        .get(c)
-                        .cloned()
-                        .unwrap_or_else(|| c.clone());
+                    let resolved = rules.resolve(c);
                     if raw_set.contains(&resolved) {
                         Ok(resolved)
                     } else {

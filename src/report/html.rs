@@ -41,12 +41,7 @@ impl Render for Html {
         let page = html! {
             (DOCTYPE)
             html lang="en" {
-                head {
-                    meta charset="utf-8";
-                    meta name="viewport" content="width=device-width, initial-scale=1";
-                    title { "Readiness report: " (r.input.path) }
-                    style { (PreEscaped(CSS)) }
-                }
+                (head(&format!("Readiness report: {}", r.input.path)))
                 body {
                     h1 { "Readiness report: " code { (r.input.path) } }
                     p.note {
@@ -93,17 +88,24 @@ fn sections_html(sections: &[Section]) -> Markup {
     }
 }
 
+/// The page head: character set, viewport, title and the inline style sheet.
+fn head(title: &str) -> Markup {
+    html! {
+        head {
+            meta charset="utf-8";
+            meta name="viewport" content="width=device-width, initial-scale=1";
+            title { (title) }
+            style { (PreEscaped(CSS)) }
+        }
+    }
+}
+
 /// A page other than the readiness report, as a self-contained HTML page.
 pub(crate) fn page(page: &Page, wtr: &mut dyn Write) -> std::io::Result<()> {
     let markup = html! {
         (DOCTYPE)
         html lang="en" {
-            head {
-                meta charset="utf-8";
-                meta name="viewport" content="width=device-width, initial-scale=1";
-                title { (page.title) }
-                style { (PreEscaped(CSS)) }
-            }
+            (head(&page.title))
             body {
                 h1 { (page.title) }
                 p.note { (inline(&page.subtitle)) }

@@ -360,6 +360,16 @@ pub struct Rules {
 }
 
 impl Rules {
+    /// The raw column a name stands for: its `[columns]` mapping if it is a canonical name
+    /// the file maps, else the name itself.
+    pub fn resolve(&self, name: &str) -> String {
+        self.file
+            .columns
+            .get(name)
+            .cloned()
+            .unwrap_or_else(|| name.to_string())
+    }
+
     /// Read and parse a rules file, then merge in its included libraries.
     pub fn from_path(path: &Path) -> Result<Rules> {
         let text = std::fs::read_to_string(path).map_err(Error::io(path))?;

@@ -134,6 +134,13 @@ def parquet(bundle):
     for entry in dictionary["columns"]:
         got = json.loads(meta[f"panelready.column.{entry['name']}"])
         check(f"{entry['name']} entry", got == entry, got)
+    # Field metadata in the Arrow schema, as readers see it on each field.
+    schema = pq.read_schema(f"{bundle}/panel.parquet")
+    for entry in dictionary["columns"]:
+        md = {k.decode(): v.decode() for k, v in (schema.field(entry["name"]).metadata or {}).items()}
+        for key in ("label", "unit", "definition", "source"):
+            want = entry[key]
+            check(f"{entry['name']} field {key}", md.get(key, "") == want, (md.get(key), want))
     labels = {e["name"]: e["label"] for e in dictionary["columns"]}
     # rules/standard.toml's label for size.
     check("size label", labels["size"] == "Firm size: natural log of total assets", labels["size"])
