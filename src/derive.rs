@@ -344,7 +344,13 @@ fn nearby(shift: &Shift, entity: &str, period: &str) -> Expr {
 }
 
 /// Join the value of `shift.column` at period t - k of the same entity onto period t.
-fn add_shift(lf: LazyFrame, shift: &Shift, hidden: &str, entity: &str, period: &str) -> LazyFrame {
+pub(crate) fn add_shift(
+    lf: LazyFrame,
+    shift: &Shift,
+    hidden: &str,
+    entity: &str,
+    period: &str,
+) -> LazyFrame {
     let right = lf
         .clone()
         .select([

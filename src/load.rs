@@ -24,6 +24,8 @@ pub struct Loaded {
     pub sheet: Option<String>,
     /// What reading had to decide (spreadsheet conversions), one sentence each.
     pub notes: Vec<String>,
+    /// With `[panel] year_end`: entities whose year-end month changed.
+    pub year_end_changes: Option<crate::report::YearEndChanges>,
 }
 
 /// Read a raw file whole, without keys (for `rules draft`, which guesses them).
@@ -103,8 +105,24 @@ pub fn load(cfg: &InputConfig) -> Result<Loaded> {
     if !schema.contains(&cfg.entity) {
         return Err(missing(&cfg.entity, "the entity column".into()));
     }
-    if !schema.contains(&cfg.period) {
-        return Err(missing(&cfg.period, "the period column".into()));
+    match &cfg.rules.file.panel.year_end {
+        None if !schema.contains(&cfg.period) => {
+            return Err(missing(&cfg.period, "the period column".into()));
+        }
+        Some(date) if !schema.contains(date) => {
+            return Err(missing(date, "named in `[panel] year_end`".into()));
+        }
+        Some(_) if schema.contains(&cfg.period) => {
+            return Err(Error::Setting {
+                setting: "[panel] year_end",
+                message: format!(
+                    "the period is derived from the year-end date, but the data already has a \
+                     column `{}`: name the derived period something else in `[panel] period`",
+                    cfg.period
+                ),
+            });
+        }
+        _ => {}
     }
     for (canonical, raw) in &cfg.rules.file.columns {
         if !schema.contains(raw) {
@@ -129,6 +147,13 @@ pub fn load(cfg: &InputConfig) -> Result<Loaded> {
             file: cfg.path.clone(),
         });
     }
+    let (df, columns, year_end_changes) = match &cfg.rules.file.panel.year_end {
+        Some(date) => {
+            let cutoff = cfg.rules.file.panel.year_end_cutoff.unwrap_or(5);
+            fiscal_year(df, columns, cfg, date, cutoff)?
+        }
+        None => (df, columns, None),
+    };
     let period_dtype = df
         .schema()
         .get(&cfg.period)
@@ -156,7 +181,136 @@ pub fn load(cfg: &InputConfig) -> Result<Loaded> {
         columns,
         sheet,
         notes,
+        year_end_changes,
     })
+}
+
+/// Derive the period column (`cfg.period`) from a fiscal-year-end date column of text
+/// `YYYY-MM-DD`: the date's year, less one when its month is `cutoff` or earlier (common
+/// practice: a year ending January–May belongs to the previous fiscal year). A date that is not
+/// of that form is an error naming its row. Also counts entities whose year-end month changed.
+fn fiscal_year(
+    df: DataFrame,
+    mut columns: Vec<String>,
+    cfg: &InputConfig,
+    date: &str,
+    cutoff: u32,
+) -> Result<(
+    DataFrame,
+    Vec<String>,
+    Option<crate::report::YearEndChanges>,
+)> {
+    let text = col(date)
+        .cast(DataType::String)
+        .str()
+        .strip_chars(lit(NULL));
+    let year = text
+        .clone()
+        .str()
+        .slice(lit(0), lit(4))
+        .cast(DataType::Int64);
+    let month = text
+        .clone()
+        .str()
+        .slice(lit(5), lit(2))
+        .cast(DataType::Int64);
+    let day = text
+        .clone()
+        .str()
+        .slice(lit(8), lit(2))
+        .cast(DataType::Int64);
+    let well_formed = text
+        .clone()
+        .str()
+        .len_chars()
+        .eq(lit(10u32))
+        .and(text.clone().str().slice(lit(4), lit(1)).eq(lit("-")))
+        .and(text.clone().str().slice(lit(7), lit(1)).eq(lit("-")))
+        .and(year.clone().is_not_null())
+        .and(
+            month
+                .clone()
+                .gt_eq(lit(1))
+                .and(month.clone().lt_eq(lit(12))),
+        )
+        .and(day.clone().gt_eq(lit(1)).and(day.lt_eq(lit(31))))
+        .fill_null(lit(false));
+    let marked = df
+        .lazy()
+        .with_columns([
+            text.clone().alias("__ye_text"),
+            well_formed.alias("__ye_ok"),
+            month.clone().alias("__ye_month"),
+        ])
+        .collect()?;
+    let bad = marked
+        .clone()
+        .lazy()
+        .filter(col("__ye_text").is_not_null().and(col("__ye_ok").not()))
+        .select([col(ROW), col("__ye_text")])
+        .limit(1)
+        .collect()?;
+    if bad.height() > 0 {
+        return Err(Error::Unreadable {
+            file: cfg.path.clone(),
+            at: format!(
+                ", row {}",
+                bad.column(ROW)?
+                    .cast(&DataType::Int64)?
+                    .i64()?
+                    .get(0)
+                    .unwrap_or(0)
+            ),
+            message: format!(
+                "`{date}` (named in `[panel] year_end`) holds `{}`, not a date YYYY-MM-DD",
+                bad.column("__ye_text")?.str()?.get(0).unwrap_or("")
+            ),
+        });
+    }
+    let fiscal = when(col("__ye_ok"))
+        .then(
+            year - when(col("__ye_month").lt_eq(lit(cutoff as i64)))
+                .then(lit(1i64))
+                .otherwise(lit(0i64)),
+        )
+        .otherwise(lit(NULL).cast(DataType::Int64));
+    let out = marked
+        .lazy()
+        .with_column(fiscal.alias(cfg.period.as_str()))
+        .collect()?;
+    let changed = out
+        .clone()
+        .lazy()
+        .filter(
+            col("__ye_month")
+                .is_not_null()
+                .and(col(cfg.entity.as_str()).is_not_null()),
+        )
+        .group_by([col(cfg.entity.as_str()).cast(DataType::String).alias("__e")])
+        .agg([col("__ye_month").n_unique().alias("__months")])
+        .filter(col("__months").gt(lit(1)))
+        .sort(["__e"], Default::default())
+        .collect()?;
+    let examples: Vec<String> = changed
+        .column("__e")?
+        .str()?
+        .iter()
+        .flatten()
+        .take(5)
+        .map(str::to_string)
+        .collect();
+    let out = out.drop_many(["__ye_text", "__ye_ok", "__ye_month"]);
+    columns.push(cfg.period.clone());
+    Ok((
+        out,
+        columns,
+        Some(crate::report::YearEndChanges {
+            column: date.to_string(),
+            cutoff_month: cutoff,
+            entities: changed.height() as u64,
+            examples,
+        }),
+    ))
 }
 
 /// A UTF-8 copy of a Windows-1252 file, removed when dropped.

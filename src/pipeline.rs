@@ -77,6 +77,12 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
     let singletons = SingletonPolicy::parse(rules.file.clean.drop_singletons.as_ref())?;
     let balance = Balance::parse(rules.file.clean.balance.as_ref())?;
     let slip_policy = repair::SlipPolicy::parse(rules.file.repair.unit_slips.as_deref())?;
+    if rules.file.panel.year_end_cutoff.is_some_and(|m| m > 12) {
+        return Err(Error::Setting {
+            setting: "[panel] year_end_cutoff",
+            message: "a month, 0 to 12 (0: a fiscal year is the calendar year of its end)".into(),
+        });
+    }
     let corrections = match &rules.file.repair.corrections {
         Some(name) => {
             let base = rules
@@ -172,11 +178,23 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
 
     // Accounting rules act before derivation, so no derived ratio uses a value they reject.
     progress.stage("accounting rules");
-    let rule_lines = accounting::count(&kept, &accounting_rules)?;
+    // Rules with panel functions read other periods through hidden columns, added first.
+    let (with_shifts, hidden) =
+        accounting::with_shifts(kept, &accounting_rules, &input.entity, &input.period)?;
+    let rule_lines = accounting::count(&with_shifts, &accounting_rules)?;
+    kept = with_shifts;
     {
         kept = accounting::apply_nulls(kept, &accounting_rules)?;
-        if let Some(reason) = accounting::drop_reason(&accounting_rules) {
-            let (rest, removed) = clean::drop_where(kept, reason, "accounting rules", &keys)?;
+        let drop =
+            accounting::drop_reason(&accounting_rules).unwrap_or(lit(NULL).cast(DataType::String));
+        kept = kept
+            .lazy()
+            .with_column(drop.alias("__rule_drop"))
+            .drop(cols(hidden))
+            .collect()?;
+        if accounting::drop_reason(&accounting_rules).is_some() {
+            let (rest, removed) =
+                clean::drop_where(kept, col("__rule_drop"), "accounting rules", &keys)?;
             kept = rest;
             ledger_parts.push(removed);
             steps.push(SampleStep::after(
@@ -186,6 +204,7 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
                 &input.entity,
             )?);
         }
+        kept = kept.drop("__rule_drop")?;
     }
 
     let layout = if resolved.keys.conflicting_keys == 0 || policy != DuplicatePolicy::Report {
@@ -231,6 +250,7 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
         notes: loaded.notes.clone(),
     });
     report.keys = resolved.keys;
+    report.keys.year_end_changes = loaded.year_end_changes.clone();
     if corrections.is_some() || slip_policy != repair::SlipPolicy::Report {
         report.repairs = Some(crate::report::Repairs {
             corrections_file: corrections

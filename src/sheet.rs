@@ -1,7 +1,8 @@
 //! Spreadsheet input (.xlsx, .xlsm, .ods) through calamine: one sheet, the header in its
 //! first non-empty row, one firm-year per row below. A column of numbers becomes numbers
 //! (whatever their display format: thousands separators, percentages and decimals are only
-//! formatting), a column with any text becomes text; text cells that look like numbers in a
+//! formatting), a date cell becomes its date as text `YYYY-MM-DD`, a column with any text
+//! becomes text; text cells that look like numbers in a
 //! column of numbers are read as numbers and reported. Merged cells are refused.
 
 use std::path::Path;
@@ -43,6 +44,21 @@ fn unreadable(path: &Path, at: String, message: impl Into<String>) -> Error {
     }
 }
 
+/// A spreadsheet date serial (days since 1899-12-30, the 1900 date system) as `YYYY-MM-DD`;
+/// a time of day is dropped. Civil-from-days after Howard Hinnant's public-domain algorithm.
+fn iso_date(serial: f64) -> String {
+    let z = serial.floor() as i64 - 25_569 + 719_468;
+    let era = z.div_euclid(146_097);
+    let doe = z - era * 146_097;
+    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
+    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
+    let mp = (5 * doy + 2) / 153;
+    let day = doy - (153 * mp + 2) / 5 + 1;
+    let month = if mp < 10 { mp + 3 } else { mp - 9 };
+    let year = yoe + era * 400 + i64::from(month <= 2);
+    format!("{year:04}-{month:02}-{day:02}")
+}
+
 enum Cell {
     Missing,
     Number(f64),
@@ -56,6 +72,7 @@ fn cell(d: &Data) -> Cell {
         Data::Int(i) => Cell::Number(*i as f64),
         Data::Float(f) => Cell::Number(*f),
         Data::Bool(b) => Cell::Number(if *b { 1.0 } else { 0.0 }),
+        Data::DateTime(d) if d.is_datetime() => Cell::Text(iso_date(d.as_f64())),
         Data::DateTime(d) => Cell::Number(d.as_f64()),
         Data::String(s) | Data::DateTimeIso(s) | Data::DurationIso(s) => {
             let t = s.trim();
@@ -241,6 +258,15 @@ pub fn read(path: &Path, sheet: Option<&str>) -> Result<Sheet> {
 #[cfg(test)]
 mod tests {
     use super::letters;
+
+    #[test]
+    fn date_serials_read_as_iso_dates() {
+        // Spreadsheet serials (1900 system) against Python's datetime: 1899-12-30 plus 61,
+        // 44561 and 45351 days is 1900-03-01, 2021-12-31 and 2024-02-29.
+        assert_eq!(super::iso_date(61.0), "1900-03-01");
+        assert_eq!(super::iso_date(44561.0), "2021-12-31");
+        assert_eq!(super::iso_date(45351.75), "2024-02-29");
+    }
 
     #[test]
     fn column_letters() {

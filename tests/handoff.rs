@@ -361,3 +361,80 @@ fn sure_unit_slips_are_rescaled_and_corrections_applied_with_a_ledger() {
         "line 2: `sales` holds numbers",
     );
 }
+
+#[test]
+fn the_fiscal_year_is_derived_from_a_year_end_date_with_a_cutoff_month() {
+    let w = Workdir::new();
+    run_reference("handoff.py", &[Path::new("xlsx-hostile"), &w.path("")]);
+    // Common practice: a year ending January-May belongs to the previous fiscal year.
+    w.write(
+        "rules.toml",
+        "[panel]\nentity = \"firm\"\nperiod = \"fiscal_year\"\nyear_end = \"fye\"\n\
+         [clean]\nduplicates = \"keep-last\"\n",
+    );
+    w.ok(&["build", "dates.xlsx", "--rules", "rules.toml", "--out", "b"]);
+    let panel = std::fs::read_to_string(w.path("b/panel.csv")).unwrap();
+    // A's 2020-12-31 and 2021-03-31 both fall in fiscal 2020; keep-last keeps March.
+    assert_eq!(
+        panel.lines().collect::<Vec<_>>(),
+        [
+            "source_row,firm,fye,assets,fiscal_year",
+            "1,A,2019-12-31,10,2019",
+            "3,A,2021-03-31,12,2020",
+            "4,B,2020-06-30,5,2020",
+            "5,B,2021-06-30,6,2021",
+        ]
+    );
+    let report: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(w.path("b/report.json")).unwrap()).unwrap();
+    assert_eq!(report["keys"]["year_end_changes"]["entities"], 1);
+    assert_eq!(report["keys"]["conflicting_keys"], 1);
+    // A date that is not YYYY-MM-DD names its row; a cutoff that is not a month is refused.
+    w.write("bad.csv", "firm,fye\nA,2019-12-31\nA,31.12.2020\n");
+    w.fails(
+        &["audit", "bad.csv", "--rules", "rules.toml"],
+        "row 2: `fye`",
+    );
+    w.write(
+        "r13.toml",
+        "[panel]\nentity = \"firm\"\nperiod = \"fy\"\nyear_end = \"fye\"\nyear_end_cutoff = 13\n",
+    );
+    w.fails(
+        &["audit", "bad.csv", "--rules", "r13.toml"],
+        "year_end_cutoff",
+    );
+}
+
+#[test]
+fn accounting_rules_read_other_periods_gap_aware() {
+    let w = Workdir::new();
+    // Equity may not move by more than 50 from one year to the next. A: 2001 -> 2002 moves
+    // 190 (broken); 2004 has no 2003 (gap: not checkable); first years are not checkable.
+    w.write(
+        "p.csv",
+        "f,y,equity\nA,2001,10\nA,2002,200\nA,2004,205\nB,2001,5\nB,2002,6\n",
+    );
+    w.write(
+        "rules.toml",
+        "[panel]\nentity = \"f\"\nperiod = \"y\"\n\
+         [[rule]]\nname = \"equity_steady\"\nexpr = \"abs(diff(equity, 1)) <= 50\"\naction = \"drop\"\n",
+    );
+    w.ok(&["build", "p.csv", "--rules", "rules.toml", "--out", "b"]);
+    let report: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(w.path("b/report.json")).unwrap()).unwrap();
+    let rule = &report["rules"][0];
+    assert_eq!(rule["violations"], 1, "{rule}");
+    assert_eq!(rule["unknown"], 3, "{rule}");
+    let rejected = std::fs::read_to_string(w.path("b/rejected.csv")).unwrap();
+    assert!(
+        rejected.contains("2,accounting rules,\"rule `equity_steady` does not hold"),
+        "{rejected}"
+    );
+    assert_eq!(
+        rejected.lines().next().unwrap(),
+        "source_row,step,reason,related_row,f,y,equity"
+    );
+    let panel = std::fs::read_to_string(w.path("b/panel.csv")).unwrap();
+    assert_eq!(panel.lines().next().unwrap(), "source_row,f,y,equity");
+    assert_eq!(panel.lines().count(), 5);
+}

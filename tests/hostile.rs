@@ -293,8 +293,9 @@ fn bad_expressions_name_the_rule() {
             &["`x`", "`nosuch`"],
         ),
         (
-            "[[rule]]\nname = \"r1\"\nexpr = \"lag(assets, 1) > 0\"\n".into(),
-            &["`r1`"],
+            // Panel functions are allowed in rules, with the same checks as elsewhere.
+            "[[rule]]\nname = \"r1\"\nexpr = \"lag(assets + 1, 1) > 0\"\n".into(),
+            &["`r1`", "column name"],
         ),
         (
             "[[rule]]\nname = \"r2\"\nexpr = \"assets > nosuch\"\n".into(),

@@ -46,6 +46,8 @@ pub struct CompiledRule {
     pub holds: Expr,
     /// Raw columns set to null by `Action::Null`.
     pub null_columns: Vec<String>,
+    /// Other periods' values the condition reads (`lag`, `lead`, `diff`, `growth`).
+    pub(crate) shifts: BTreeSet<expr::Shift>,
 }
 
 /// Compile every rule; library rules whose columns the data lacks are left out.
@@ -84,9 +86,6 @@ pub fn compile(rules: &Rules, raw: &[String]) -> Result<(Vec<CompiledRule>, Vec<
             }
             Err(e) => return Err(e),
         };
-        if !compiled.shifts.is_empty() {
-            return Err(bad("accounting rules cannot use panel functions".into()));
-        }
         let null_columns = match &rule.columns {
             Some(list) => list
                 .iter()
@@ -110,9 +109,32 @@ pub fn compile(rules: &Rules, raw: &[String]) -> Result<(Vec<CompiledRule>, Vec<
             action,
             holds: compiled.expr,
             null_columns,
+            shifts: compiled.shifts,
         });
     }
     Ok((out, skipped))
+}
+
+/// Add the hidden columns of other periods' values the rules read (gap-aware, by a join on
+/// the keys, as for derived variables); returns the frame and the hidden columns' names.
+pub fn with_shifts(
+    df: DataFrame,
+    rules: &[CompiledRule],
+    entity: &str,
+    period: &str,
+) -> Result<(DataFrame, Vec<String>)> {
+    let shifts: BTreeSet<&expr::Shift> = rules.iter().flat_map(|r| r.shifts.iter()).collect();
+    if shifts.is_empty() {
+        return Ok((df, Vec::new()));
+    }
+    let mut lf = df.lazy();
+    let mut hidden = Vec::new();
+    for s in shifts {
+        let name = s.hidden_name();
+        lf = crate::derive::add_shift(lf, s, &name, entity, period);
+        hidden.push(name);
+    }
+    Ok((lf.collect()?, hidden))
 }
 
 /// Violations (condition false) and unknowns (condition null) per rule.

@@ -278,6 +278,7 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
             conflicting_rows,
             policy: policy.label(),
             examples,
+            year_end_changes: None,
         },
         steps,
     })

@@ -37,6 +37,7 @@ fn sample() -> Report {
             period: 2013,
             rows: 2,
         }],
+        year_end_changes: None,
     };
     r.coverage.singletons = 41;
     r.coverage.shapes = vec![Shape {

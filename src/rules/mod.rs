@@ -239,6 +239,12 @@ pub struct PanelSection {
     pub entity: Option<String>,
     /// The period (fiscal year) column, integers.
     pub period: Option<String>,
+    /// A fiscal-year-end date column (text `YYYY-MM-DD`) from which the period column is
+    /// derived instead of read.
+    pub year_end: Option<String>,
+    /// With `year_end`: a year end in this month or earlier belongs to the previous fiscal
+    /// year (default 5: a year ending January–May is the previous year's; 0: never).
+    pub year_end_cutoff: Option<u32>,
 }
 
 /// `[derive.NAME]`: one derived variable.

@@ -17,7 +17,7 @@
       writes the CSV as a spreadsheet with openpyxl (numbers as numbers, one sheet "panel").
   handoff.py xlsx-hostile OUTDIR
       writes merged.xlsx (merged cells) and mixed.xlsx (a number typed as text in a number
-      column, a number in a text column, a second sheet).
+      column, a number in a text column, a second sheet) and dates.xlsx (year-end dates).
 
 Prints `N passed, M failed`; exits 1 on any mismatch.
 """
@@ -183,6 +183,18 @@ def xlsx_hostile(outdir):
     ws.append(["B", 2002, 8, "late"])
     wb.create_sheet("other").append(["x"])
     wb.save(f"{outdir}/mixed.xlsx")
+    # Fiscal-year-end dates as real date cells; firm A moves its year end from December to
+    # March, which puts two of its rows into fiscal year 2020.
+    import datetime as dt
+
+    wb = Workbook()
+    ws = wb.active
+    ws.append(["firm", "fye", "assets"])
+    for firm, day, assets in [("A", dt.date(2019, 12, 31), 10), ("A", dt.date(2020, 12, 31), 11),
+                              ("A", dt.date(2021, 3, 31), 12), ("B", dt.date(2020, 6, 30), 5),
+                              ("B", dt.date(2021, 6, 30), 6)]:
+        ws.append([firm, day, assets])
+    wb.save(f"{outdir}/dates.xlsx")
     print("wrote merged.xlsx and mixed.xlsx")
 
 

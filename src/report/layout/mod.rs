@@ -226,6 +226,23 @@ fn keys(r: &Report) -> Section {
             list.join("; ")
         )));
     }
+    if let Some(y) = &k.year_end_changes {
+        blocks.push(Block::Note(format!(
+            "The period `{}` is derived from the fiscal-year-end date `{}`: its year, less one \
+             when it ends in month {} or earlier. {} entities changed their year-end month{}; a \
+             change can put two rows of one entity into one fiscal year, which the policy for \
+             conflicting keys then handles.",
+            r.input.period,
+            y.column,
+            y.cutoff_month,
+            y.entities,
+            if y.examples.is_empty() {
+                String::new()
+            } else {
+                format!(" (first: {})", y.examples.join(", "))
+            }
+        )));
+    }
     Section {
         title: "Keys",
         blocks,

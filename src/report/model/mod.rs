@@ -185,6 +185,23 @@ pub struct KeysSummary {
     pub policy: String,
     /// The first few conflicting keys.
     pub examples: Vec<KeyExample>,
+    /// With the period derived from a fiscal-year-end date: entities whose year-end month
+    /// changed (a change can put two rows into one fiscal year: conflicting keys).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub year_end_changes: Option<YearEndChanges>,
+}
+
+/// Fiscal-year-end changes, when the period comes from a year-end date.
+#[derive(Debug, Clone, Default, Serialize)]
+pub struct YearEndChanges {
+    /// The date column.
+    pub column: String,
+    /// Year ends in this month or earlier count to the previous fiscal year.
+    pub cutoff_month: u32,
+    /// Entities whose year-end month changed at least once.
+    pub entities: u64,
+    /// The first few of them.
+    pub examples: Vec<String>,
 }
 
 /// One conflicting key.
