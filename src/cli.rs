@@ -114,7 +114,7 @@ pub(crate) struct CompareArgs {
 /// Where the data is and how to read its keys.
 #[derive(Debug, Args)]
 pub(crate) struct InputArgs {
-    /// The raw panel: a CSV or Parquet file, one row per firm-year.
+    /// The raw panel: a CSV, Parquet or spreadsheet file, one row per firm-year.
     pub(crate) data: PathBuf,
 
     /// The rules file (TOML): panel keys, column mapping, derived variables, cleaning policy.
