@@ -485,6 +485,11 @@ fn dictionary(
                             c.lower.map_or("–".into(), crate::report::level),
                             c.upper.map_or("–".into(), crate::report::level)
                         )
+                    } else if !t.groups.is_empty() {
+                        format!(
+                            "cutoffs per group of {} in report.json",
+                            t.groups.join(" × ")
+                        )
                     } else {
                         "cutoffs per period in report.json".to_string()
                     };

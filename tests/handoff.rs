@@ -438,3 +438,61 @@ fn accounting_rules_read_other_periods_gap_aware() {
     assert_eq!(panel.lines().next().unwrap(), "source_row,f,y,equity");
     assert_eq!(panel.lines().count(), 5);
 }
+
+#[test]
+fn winsorizing_by_any_groups_matches_numpy_with_a_pooled_fallback() {
+    let w = Workdir::new();
+    w.ok(&["demo", "--out", "d", "--data-only"]);
+    let rules = std::fs::read_to_string(w.path("d/data/rules.toml")).unwrap();
+    let by_group = rules
+        .lines()
+        .map(|l| {
+            if l.starts_with("winsorize") {
+                "winsorize = { variables = [\"roa\", \"leverage\"], lower = 0.015, upper = 0.985, by = [\"sector\", \"fiscal_year\"] }"
+            } else {
+                l
+            }
+        })
+        .collect::<Vec<_>>()
+        .join("\n");
+    w.write("groups.toml", &by_group);
+    w.ok(&[
+        "build",
+        "d/data/velmora_accounts.csv",
+        "--rules",
+        "groups.toml",
+        "--out",
+        "b",
+    ]);
+    check(&[Path::new("groups"), &w.path("b")]);
+    // At 1.5% a group needs 67 values: some of the 90 sector-years have fewer and take the
+    // pooled cutoffs, the others their own; both paths are exercised.
+    let report: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(w.path("b/report.json")).unwrap()).unwrap();
+    let groups = report["treatment"][0]["group_cutoffs"].as_array().unwrap();
+    let fallback = groups
+        .iter()
+        .filter(|g| g["pooled_fallback"] == true)
+        .count();
+    assert!(
+        fallback > 0 && fallback < groups.len(),
+        "{fallback} of {}",
+        groups.len()
+    );
+    // A grouping column the data lacks is refused in one line, before anything is written.
+    w.write(
+        "bad.toml",
+        &by_group.replace("\"sector\", \"fiscal_year\"", "\"nosuch\""),
+    );
+    w.fails(
+        &[
+            "build",
+            "d/data/velmora_accounts.csv",
+            "--rules",
+            "bad.toml",
+            "--out",
+            "b2",
+        ],
+        "`nosuch`",
+    );
+}

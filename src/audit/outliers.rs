@@ -20,6 +20,8 @@ pub enum CutoffGroups {
     Pooled,
     /// A pair of cutoffs per period.
     Period,
+    /// A pair of cutoffs per group of declared columns (treatment in `build` only).
+    Groups,
 }
 
 /// Outliers.
@@ -58,7 +60,7 @@ fn line(core: &PanelCore, variable: &str, x: &Values, s: &Settings) -> OutlierLi
     let mut all = x.present();
     let (mut below, mut above) = (0u64, 0u64);
     let (lower, upper, min_group) = match s.by {
-        CutoffGroups::Pooled => {
+        CutoffGroups::Pooled | CutoffGroups::Groups => {
             let (l, u) = (type7(&mut all, lo), type7(&mut all, hi));
             for v in &all {
                 below += u64::from(l.is_some_and(|l| *v < l));

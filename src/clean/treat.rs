@@ -7,8 +7,8 @@ use polars::prelude::*;
 
 use super::{drop_where, Keys};
 use crate::audit::CutoffGroups;
-use crate::report::{Cutoff, Histogram, TreatLine};
-use crate::rules::TreatSpec;
+use crate::report::{Cutoff, GroupCutoff, Histogram, TreatLine};
+use crate::rules::{TreatBy, TreatSpec};
 use crate::{Error, Result};
 
 /// Winsorize or trim.
@@ -40,8 +40,10 @@ pub struct Treatment {
     pub lower: f64,
     /// Upper percentile, as a fraction.
     pub upper: f64,
-    /// Pooled or per period.
+    /// Pooled, per period, or per group of `groups`.
     pub by: CutoffGroups,
+    /// The grouping columns when `by` is `Groups`.
+    pub groups: Vec<String>,
 }
 
 impl Treatment {
@@ -67,10 +69,32 @@ impl Treatment {
                 "needs 0 <= lower < upper <= 1 (fractions, e.g. 0.01 and 0.99)",
             ));
         }
-        let by = match spec.by.as_deref() {
-            None | Some("pooled") => CutoffGroups::Pooled,
-            Some("period") => CutoffGroups::Period,
-            Some(_) => return Err(bad("`by` must be \"pooled\" or \"period\"")),
+        let (by, groups) = match &spec.by {
+            None => (CutoffGroups::Pooled, Vec::new()),
+            Some(TreatBy::Word(w)) if w == "pooled" => (CutoffGroups::Pooled, Vec::new()),
+            Some(TreatBy::Word(w)) if w == "period" => (CutoffGroups::Period, Vec::new()),
+            Some(TreatBy::Word(_)) => {
+                return Err(bad(
+                    "`by` must be \"pooled\", \"period\" or a list of grouping columns",
+                ))
+            }
+            Some(TreatBy::Columns(list)) => {
+                if list.is_empty() {
+                    return Err(bad("`by` lists no grouping column"));
+                }
+                let resolved = list
+                    .iter()
+                    .map(|c| {
+                        let r = resolve(c);
+                        if columns.contains(&r) {
+                            Ok(r)
+                        } else {
+                            Err(bad(&format!("`by` names `{c}`, which is not a column")))
+                        }
+                    })
+                    .collect::<Result<Vec<_>>>()?;
+                (CutoffGroups::Groups, resolved)
+            }
         };
         let variables = spec
             .variables
@@ -92,6 +116,7 @@ impl Treatment {
             lower,
             upper,
             by,
+            groups,
         })
     }
 
@@ -123,6 +148,79 @@ impl Treatment {
                     lits.push(lit(value.unwrap_or(f64::NAN)).alias(name.as_str()));
                 }
                 let j = df.clone().lazy().with_columns(lits);
+                (c, j)
+            }
+            CutoffGroups::Groups => {
+                // Per group; a group with fewer values than 1 / (the smaller tail) gets the
+                // pooled cutoffs instead (the stated fallback), as do rows whose group is missing.
+                let smallest = (1.0 / self.lower.min(1.0 - self.upper)).ceil() as u32;
+                let pooled = df.clone().lazy().select(aggs.clone()).collect()?;
+                let mut group_aggs = aggs.clone();
+                for (i, v) in self.variables.iter().enumerate() {
+                    group_aggs.push(x(v).count().alias(format!("__n{i}")));
+                }
+                let keys: Vec<Expr> = self.groups.iter().map(|g| col(g.as_str())).collect();
+                let mut fallback = Vec::new();
+                for (i, _) in self.variables.iter().enumerate() {
+                    let small = col(format!("__n{i}").as_str()).lt(lit(smallest));
+                    for side in ["lo", "hi"] {
+                        let name = format!("__{side}{i}");
+                        let whole = pooled.column(&name)?.f64()?.get(0).unwrap_or(f64::NAN);
+                        fallback.push(
+                            when(small.clone())
+                                .then(lit(whole))
+                                .otherwise(col(name.as_str()))
+                                .alias(name.as_str()),
+                        );
+                    }
+                    fallback.push(small.alias(format!("__small{i}")));
+                }
+                let c = df
+                    .clone()
+                    .lazy()
+                    .filter(
+                        self.groups
+                            .iter()
+                            .fold(lit(true), |acc, g| acc.and(col(g.as_str()).is_not_null())),
+                    )
+                    .group_by(keys.clone())
+                    .agg(group_aggs)
+                    .with_columns(fallback)
+                    .sort(
+                        self.groups.iter().map(String::as_str).collect::<Vec<_>>(),
+                        Default::default(),
+                    )
+                    .collect()?;
+                let mut fill = Vec::new();
+                for (i, _) in self.variables.iter().enumerate() {
+                    for side in ["lo", "hi"] {
+                        let name = format!("__{side}{i}");
+                        let whole = pooled.column(&name)?.f64()?.get(0).unwrap_or(f64::NAN);
+                        fill.push(
+                            col(name.as_str())
+                                .fill_null(lit(whole))
+                                .alias(name.as_str()),
+                        );
+                    }
+                }
+                let mut right: Vec<Expr> = keys.clone();
+                for (i, _) in self.variables.iter().enumerate() {
+                    right.push(col(format!("__lo{i}").as_str()));
+                    right.push(col(format!("__hi{i}").as_str()));
+                }
+                let j = df
+                    .clone()
+                    .lazy()
+                    .join(
+                        c.clone().lazy().select(right),
+                        keys.clone(),
+                        keys,
+                        JoinArgs {
+                            maintain_order: MaintainOrderJoin::Left,
+                            ..JoinArgs::new(JoinType::Left)
+                        },
+                    )
+                    .with_columns(fill);
                 (c, j)
             }
             CutoffGroups::Period => {
@@ -229,16 +327,26 @@ impl Treatment {
             let lo = cutoffs.column(&format!("__lo{i}"))?.f64()?;
             let hi = cutoffs.column(&format!("__hi{i}"))?.f64()?;
             let periods = match self.by {
-                CutoffGroups::Pooled => None,
+                CutoffGroups::Pooled | CutoffGroups::Groups => None,
                 CutoffGroups::Period => Some(cutoffs.column(k.period)?.i64()?),
             };
-            let cut = (0..cutoffs.height())
+            let rows = if self.by == CutoffGroups::Groups {
+                0
+            } else {
+                cutoffs.height()
+            };
+            let cut = (0..rows)
                 .map(|j| Cutoff {
                     period: periods.and_then(|p| p.get(j)),
                     lower: lo.get(j),
                     upper: hi.get(j),
                 })
                 .collect();
+            let group_cutoffs = if self.by == CutoffGroups::Groups {
+                group_cutoffs(&cutoffs, &self.groups, i)?
+            } else {
+                Vec::new()
+            };
             let n = |c: usize| {
                 counts.columns()[c]
                     .u64()
@@ -250,6 +358,8 @@ impl Treatment {
                 variable: v.clone(),
                 method: self.method.label().to_string(),
                 by: self.by,
+                groups: self.groups.clone(),
+                group_cutoffs,
                 lower_percentile: self.lower * 100.0,
                 upper_percentile: self.upper * 100.0,
                 cutoffs: cut,
@@ -260,6 +370,38 @@ impl Treatment {
         }
         Ok((out, removed, lines))
     }
+}
+
+/// One line per group: its values (as text), values counted, cutoffs, and whether the pooled
+/// cutoffs stood in for a group too small.
+fn group_cutoffs(c: &DataFrame, groups: &[String], i: usize) -> Result<Vec<GroupCutoff>> {
+    let texts: Vec<Column> = groups
+        .iter()
+        .map(|g| c.column(g).and_then(|s| s.cast(&DataType::String)))
+        .collect::<PolarsResult<_>>()?;
+    let lo = c.column(&format!("__lo{i}"))?.f64()?;
+    let hi = c.column(&format!("__hi{i}"))?.f64()?;
+    let n = c.column(&format!("__n{i}"))?.cast(&DataType::UInt64)?;
+    let n = n.u64()?;
+    let small = c.column(&format!("__small{i}"))?.bool()?;
+    Ok((0..c.height())
+        .map(|j| GroupCutoff {
+            group: texts
+                .iter()
+                .map(|t| {
+                    t.str()
+                        .ok()
+                        .and_then(|s| s.get(j))
+                        .unwrap_or("")
+                        .to_string()
+                })
+                .collect(),
+            values: n.get(j).unwrap_or(0),
+            lower: lo.get(j),
+            upper: hi.get(j),
+            pooled_fallback: small.get(j).unwrap_or(false),
+        })
+        .collect())
 }
 
 /// Bins of the chart of a treated variable.

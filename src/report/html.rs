@@ -470,7 +470,9 @@ fn treated_chart(t: &crate::report::TreatLine) -> Markup {
         "{} before {method}: values between the 0.5th and 99.5th percentiles (the rest in the \
          end bins){}",
         t.variable,
-        if t.cutoffs.len() > 1 {
+        if !t.groups.is_empty() {
+            "; cutoffs by group, not drawn"
+        } else if t.cutoffs.len() > 1 {
             "; cutoffs by period, not drawn"
         } else {
             ""

@@ -311,9 +311,19 @@ pub struct TreatSpec {
     /// Upper percentile as a fraction (default 0.99).
     #[serde(default)]
     pub upper: Option<f64>,
-    /// `"pooled"` (default) or `"period"`.
+    /// `"pooled"` (default), `"period"`, or grouping columns such as `["sector", "fiscal_year"]`.
     #[serde(default)]
-    pub by: Option<String>,
+    pub by: Option<TreatBy>,
+}
+
+/// `by` of a treatment: a word (`"pooled"`, `"period"`) or grouping columns.
+#[derive(Debug, Clone, PartialEq, Eq, Deserialize)]
+#[serde(untagged)]
+pub enum TreatBy {
+    /// `"pooled"` or `"period"`.
+    Word(String),
+    /// Cutoffs per group of these columns, e.g. `["sector", "fiscal_year"]`.
+    Columns(Vec<String>),
 }
 
 /// `[clean] balance`.

@@ -15,6 +15,9 @@
       dictionary.json's, and the labels must be the rules' labels.
   handoff.py xlsx CSV XLSX
       writes the CSV as a spreadsheet with openpyxl (numbers as numbers, one sheet "panel").
+  handoff.py groups BUNDLE
+      recomputes winsorizing of roa and leverage by sector x fiscal year with numpy, groups
+      smaller than 1 / (the smaller tail) taking the pooled cutoffs.
   handoff.py xlsx-hostile OUTDIR
       writes merged.xlsx (merged cells) and mixed.xlsx (a number typed as text in a number
       column, a number in a text column, a second sheet) and dates.xlsx (year-end dates).
@@ -161,6 +164,51 @@ def xlsx(csv_path, xlsx_path):
     print(f"wrote {xlsx_path}")
 
 
+def groups(bundle):
+    """Winsorizing by sector x fiscal year at the report's percentiles (numpy's default
+    percentile: linear, Hyndman & Fan 1996 type 7), a group with fewer than 1 / (the smaller
+    tail) values taking the pooled percentiles instead, then clipping; roa and leverage recomputed
+    from the panel's raw columns by their standard definitions (METHODS.md s.7)."""
+    panel = read(f"{bundle}/panel.csv")
+    report = json.load(open(f"{bundle}/report.json"))
+    lines = {t["variable"]: t for t in report["treatment"]}
+    assets = panel["assets_total"]
+    raw = {
+        "roa": (panel["net_profit"] / assets).where(assets > 0),
+        "leverage": ((panel["debt_short"] + panel["debt_long"]) / assets).where(assets > 0),
+    }
+    for v, x in raw.items():
+        line = lines[v]
+        check(f"{v} groups", line["groups"] == ["sector", "fiscal_year"], line.get("groups"))
+        lo_p, hi_p = line["lower_percentile"], line["upper_percentile"]
+        smallest = int(np.ceil(100.0 / min(lo_p, 100.0 - hi_p) - 1e-9))
+        present = x.dropna().to_numpy()
+        pooled = (np.percentile(present, lo_p), np.percentile(present, hi_p))
+        by_group = {tuple(g["group"]): g for g in line["group_cutoffs"]}
+        expected = x.copy()
+        below = above = fallbacks = 0
+        for (sector, year), idx in panel.groupby(["sector", "fiscal_year"]).groups.items():
+            values = x.loc[idx].dropna().to_numpy()
+            small = len(values) < smallest
+            lo, hi = pooled if small else (np.percentile(values, lo_p), np.percentile(values, hi_p))
+            g = by_group[(str(sector), str(year))]
+            check(f"{v} {sector} {year} count", g["values"] == len(values), (g["values"], len(values)))
+            check(f"{v} {sector} {year} fallback", g["pooled_fallback"] == small)
+            check(f"{v} {sector} {year} lower", np.isclose(g["lower"], lo, rtol=1e-12, atol=1e-15))
+            check(f"{v} {sector} {year} upper", np.isclose(g["upper"], hi, rtol=1e-12, atol=1e-15))
+            fallbacks += small
+            below += int((values < lo).sum())
+            above += int((values > hi).sum())
+            expected.loc[idx] = x.loc[idx].clip(lo, hi)
+        check(f"{v} below", line["below"] == below, (line["below"], below))
+        check(f"{v} above", line["above"] == above, (line["above"], above))
+        got = panel[v]
+        both = expected.notna() & got.notna()
+        check(f"{v} values", bool(np.allclose(got[both], expected[both], rtol=1e-12, atol=1e-15)))
+        check(f"{v} missing alike", bool((expected.isna() == got.isna()).all()))
+        print(f"{v}: {len(by_group)} groups, {fallbacks} on the pooled cutoffs")
+
+
 def xlsx_hostile(outdir):
     """Two awkward workbooks: merged cells, and numbers typed as text in a number column."""
     from openpyxl import Workbook
@@ -201,7 +249,7 @@ def xlsx_hostile(outdir):
 if __name__ == "__main__":
     mode, *args = sys.argv[1:]
     {"perturb": perturb, "compare": compare, "parquet": parquet, "xlsx": xlsx,
-     "xlsx-hostile": xlsx_hostile}[mode](*args)
-    if mode in ("compare", "parquet"):
+     "xlsx-hostile": xlsx_hostile, "groups": groups}[mode](*args)
+    if mode in ("compare", "parquet", "groups"):
         print(f"{passed} passed, {failed} failed")
         sys.exit(1 if failed else 0)

@@ -211,6 +211,15 @@ pub(super) fn cleaning_blocks(r: &Report) -> Vec<Block> {
             .iter()
             .map(|t| {
                 let cuts = match t.cutoffs.as_slice() {
+                    _ if !t.groups.is_empty() => {
+                        let fallback = t.group_cutoffs.iter().filter(|g| g.pooled_fallback).count();
+                        format!(
+                            "by {}: {} groups, {} too small for these percentiles and given the pooled cutoffs (report.json)",
+                            t.groups.join(" × "),
+                            t.group_cutoffs.len(),
+                            fallback
+                        )
+                    }
                     [c] => format!("{} .. {}", opt_level(c.lower), opt_level(c.upper)),
                     many => format!("{} periods (report.json)", many.len()),
                 };

@@ -138,6 +138,12 @@ pub struct TreatLine {
     pub method: String,
     /// Pooled or per period.
     pub by: crate::audit::CutoffGroups,
+    /// The grouping columns, when cutoffs are by group.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub groups: Vec<String>,
+    /// Cutoffs per group, when by group.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub group_cutoffs: Vec<GroupCutoff>,
     /// Lower percentile (0-100).
     pub lower_percentile: f64,
     /// Upper percentile (0-100).
@@ -151,6 +157,21 @@ pub struct TreatLine {
     /// Distribution of the values before treatment (between the 0.5th and 99.5th
     /// percentiles; the rest counted at the ends).
     pub histogram: Histogram,
+}
+
+/// The cutoffs of one group.
+#[derive(Debug, Clone, Serialize)]
+pub struct GroupCutoff {
+    /// The group's values, one per grouping column, as text.
+    pub group: Vec<String>,
+    /// Non-missing values of the variable in the group.
+    pub values: u64,
+    /// Lower cutoff applied.
+    pub lower: Option<f64>,
+    /// Upper cutoff applied.
+    pub upper: Option<f64>,
+    /// Too few values for the percentiles asked: the pooled cutoffs were applied.
+    pub pooled_fallback: bool,
 }
 
 /// Equal-width bins.
