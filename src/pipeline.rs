@@ -309,10 +309,28 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
             })
         }
     };
+    let categorical: Vec<String> = rules
+        .file
+        .panel
+        .categorical
+        .iter()
+        .flatten()
+        .map(|c| rules.resolve(c))
+        .collect();
+    for c in &categorical {
+        if !loaded.columns.contains(c) {
+            return Err(Error::MissingColumn {
+                file: input.path.clone(),
+                column: c.clone(),
+                context: "named in `[panel] categorical`".into(),
+            });
+        }
+    }
     let options = Options {
         compare,
         levels,
         exclude: vec![ROW.to_string()],
+        categorical: categorical.clone(),
         settings: settings(rules)?,
         model,
         reach: plan.reach(),
@@ -330,12 +348,17 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
         (Method::Trim, &treat.trim),
     ] {
         if let Some(spec) = spec {
-            treatments.push(Treatment::from_spec(
-                method,
-                spec,
-                |v| resolve(&v.to_string()),
-                &columns,
-            )?);
+            let t = Treatment::from_spec(method, spec, |v| resolve(&v.to_string()), &columns)?;
+            if let Some(c) = t.variables.iter().find(|v| categorical.contains(v)) {
+                return Err(Error::Setting {
+                    setting: "[clean] winsorize / trim",
+                    message: format!(
+                        "`{c}` is declared categorical in `[panel] categorical`: codes are never \
+                         winsorized or trimmed"
+                    ),
+                });
+            }
+            treatments.push(t);
         }
     }
     // The report describes the panel as read (after the key steps and derivation).

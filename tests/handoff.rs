@@ -496,3 +496,55 @@ fn winsorizing_by_any_groups_matches_numpy_with_a_pooled_fallback() {
         "`nosuch`",
     );
 }
+
+#[test]
+fn declared_categorical_codes_are_never_averaged_or_winsorized() {
+    let w = Workdir::new();
+    // `ind` is an industry code: a number that is a category, constant within each firm.
+    w.write(
+        "p.csv",
+        "f,y,ind,x\nA,1,2834,1.0\nA,2,2834,2.0\nB,1,7372,3.0\nB,2,7372,5.0\nC,1,2834,4.0\nC,2,2834,4.5\n",
+    );
+    let keys = "[panel]\nentity = \"f\"\nperiod = \"y\"\ncategorical = [\"ind\"]\n";
+    w.write("rules.toml", keys);
+    let r = w.ok(&[
+        "audit",
+        "p.csv",
+        "--rules",
+        "rules.toml",
+        "--format",
+        "json",
+    ]);
+    let report: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+    let ind = report["variation"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|v| v["variable"] == "ind")
+        .unwrap();
+    assert!(ind["mean"].is_null(), "{ind}");
+    assert_eq!(ind["absorbed_by"], "entity", "{ind}");
+    let outliers: Vec<&str> = report["outliers"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|o| o["variable"].as_str().unwrap())
+        .collect();
+    assert_eq!(outliers, ["x"]);
+    w.write(
+        "w.toml",
+        &format!("{keys}[clean]\nwinsorize = {{ variables = [\"ind\", \"x\"] }}\n"),
+    );
+    w.fails(
+        &["audit", "p.csv", "--rules", "w.toml"],
+        "`ind` is declared categorical",
+    );
+    w.write(
+        "m.toml",
+        "[panel]\nentity = \"f\"\nperiod = \"y\"\ncategorical = [\"nosuch\"]\n",
+    );
+    w.fails(
+        &["audit", "p.csv", "--rules", "m.toml"],
+        "`[panel] categorical`",
+    );
+}

@@ -70,6 +70,8 @@ pub struct Options {
     pub levels: Vec<String>,
     /// Columns that are not variables (the row number).
     pub exclude: Vec<String>,
+    /// Columns declared categorical: treated as text, never as numbers.
+    pub categorical: Vec<String>,
     /// Thresholds.
     pub settings: Settings,
     /// The declared model, if any.
@@ -182,9 +184,10 @@ impl<'a> Context<'a> {
         let numeric = variables
             .iter()
             .filter(|v| {
-                schema
-                    .get(v.as_str())
-                    .is_some_and(|d| d.is_primitive_numeric() || d.is_bool())
+                !options.categorical.contains(v)
+                    && schema
+                        .get(v.as_str())
+                        .is_some_and(|d| d.is_primitive_numeric() || d.is_bool())
             })
             .cloned()
             .collect();

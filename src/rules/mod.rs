@@ -245,6 +245,9 @@ pub struct PanelSection {
     /// With `year_end`: a year end in this month or earlier belongs to the previous fiscal
     /// year (default 5: a year ending January–May is the previous year's; 0: never).
     pub year_end_cutoff: Option<u32>,
+    /// Columns of codes (industry, country) that hold numbers but are categories: never
+    /// averaged, given percentiles or winsorized.
+    pub categorical: Option<Vec<String>>,
 }
 
 /// `[derive.NAME]`: one derived variable.
