@@ -66,24 +66,15 @@ pub(crate) struct DraftArgs {
 
 #[derive(Debug, Args)]
 pub(crate) struct CompareArgs {
-    /// The earlier vintage: a raw CSV / Parquet file, or a bundle folder written by `build`.
+    /// The earlier vintage: a raw CSV / Parquet / spreadsheet file (keys from --rules or
+    /// --entity / --period), or a bundle folder written by `build` (it carries its own).
     pub(crate) old: PathBuf,
 
     /// The later vintage, of the same kind.
     pub(crate) new: PathBuf,
 
-    /// The rules file naming the keys (and how to read CSV) for raw files; bundles carry
-    /// their own.
-    #[arg(long, value_name = "FILE")]
-    pub(crate) rules: Option<PathBuf>,
-
-    /// The entity column of raw files; overrides `[panel] entity`.
-    #[arg(long, value_name = "COLUMN")]
-    pub(crate) entity: Option<String>,
-
-    /// The period column of raw files; overrides `[panel] period`.
-    #[arg(long, value_name = "COLUMN")]
-    pub(crate) period: Option<String>,
+    #[command(flatten)]
+    pub(crate) keys: KeyArgs,
 
     #[command(flatten)]
     pub(crate) read: ReadArgs,
@@ -117,17 +108,8 @@ pub(crate) struct InputArgs {
     /// The raw panel: a CSV, Parquet or spreadsheet file, one row per firm-year.
     pub(crate) data: PathBuf,
 
-    /// The rules file (TOML): panel keys, column mapping, derived variables, cleaning policy.
-    #[arg(long, value_name = "FILE")]
-    pub(crate) rules: Option<PathBuf>,
-
-    /// The entity (firm) column; overrides `[panel] entity` in the rules file.
-    #[arg(long, value_name = "COLUMN")]
-    pub(crate) entity: Option<String>,
-
-    /// The period (fiscal year) column, integers; overrides `[panel] period`.
-    #[arg(long, value_name = "COLUMN")]
-    pub(crate) period: Option<String>,
+    #[command(flatten)]
+    pub(crate) keys: KeyArgs,
 
     #[command(flatten)]
     pub(crate) read: ReadArgs,
@@ -140,6 +122,22 @@ pub(crate) struct InputArgs {
     /// on stderr when the run ends.
     #[arg(long)]
     pub(crate) timings: bool,
+}
+
+/// The rules file and the panel keys: shared by every command that reads a raw panel.
+#[derive(Debug, Clone, Args)]
+pub(crate) struct KeyArgs {
+    /// The rules file (TOML): panel keys, column mapping, derived variables, cleaning policy.
+    #[arg(long, value_name = "FILE")]
+    pub(crate) rules: Option<PathBuf>,
+
+    /// The entity (firm) column; overrides `[panel] entity` in the rules file.
+    #[arg(long, value_name = "COLUMN")]
+    pub(crate) entity: Option<String>,
+
+    /// The period (fiscal year) column, integers; overrides `[panel] period`.
+    #[arg(long, value_name = "COLUMN")]
+    pub(crate) period: Option<String>,
 }
 
 /// How to read a raw file: shared by every command that reads one.

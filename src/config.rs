@@ -373,9 +373,7 @@ impl Command {
                     }
                     let args = InputArgs {
                         data: path.to_path_buf(),
-                        rules: c.rules.clone(),
-                        entity: c.entity.clone(),
-                        period: c.period.clone(),
+                        keys: c.keys.clone(),
                         read: c.read.clone(),
                         quiet: true,
                         timings: false,
@@ -434,7 +432,7 @@ impl Command {
 
 impl InputConfig {
     fn from_args(a: InputArgs) -> Result<InputConfig> {
-        let rules = match &a.rules {
+        let rules = match &a.keys.rules {
             Some(path) => Rules::from_path(path)?,
             None => Rules::empty(),
         };
@@ -445,10 +443,12 @@ impl InputConfig {
             None => format_from_extension(&a.data)?,
         };
         let entity = a
+            .keys
             .entity
             .or_else(|| rules.file.panel.entity.clone())
             .ok_or(Error::MissingKey { key: "entity" })?;
         let period = a
+            .keys
             .period
             .or_else(|| rules.file.panel.period.clone())
             .ok_or(Error::MissingKey { key: "period" })?;

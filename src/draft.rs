@@ -414,6 +414,7 @@ mod tests {
 
     #[test]
     fn keys_and_columns_are_guessed_from_an_unfamiliar_file() {
+        // A hand-made file: 3 firms x 2 years, a row number that must not pass for an entity.
         let df = df!(
             "company_code" => ["A", "A", "B", "B", "C", "C"],
             "yr" => [2001i64, 2002, 2001, 2002, 2001, 2002],

@@ -270,6 +270,7 @@ mod tests {
 
     #[test]
     fn column_letters() {
+        // Spreadsheet column naming, worked by hand: Z is the 26th, AA the 27th, ZZ the 702nd.
         assert_eq!(letters(0), "A");
         assert_eq!(letters(25), "Z");
         assert_eq!(letters(26), "AA");

@@ -193,6 +193,7 @@ fn a_spreadsheet_reads_back_as_its_csv_twin() {
 #[test]
 fn awkward_spreadsheets_are_refused_or_reported() {
     let w = Workdir::new();
+    // Workbooks written by openpyxl (handoff.py); expectations worked by hand.
     run_reference("handoff.py", &[Path::new("xlsx-hostile"), &w.path("")]);
     let keys = ["--entity", "firm", "--period", "year"];
     let mut args = vec!["audit", "merged.xlsx"];
@@ -269,7 +270,7 @@ fn a_drafted_rules_file_guesses_keys_and_columns_and_builds() {
         &["rules", "draft", "odd.csv", "--out", "odd.toml"],
         "exists",
     );
-    // Public panels (tests/reference/data): their documented keys.
+    // Public panels: their keys as their sources document them (tests/reference/data/README.md).
     for (file, entity, period) in [
         ("wagepan.csv", "nr", "year"),
         ("jtrain.csv", "fcode", "year"),
@@ -293,6 +294,8 @@ fn a_drafted_rules_file_guesses_keys_and_columns_and_builds() {
 #[test]
 fn sure_unit_slips_are_rescaled_and_corrections_applied_with_a_ledger() {
     let w = Workdir::new();
+    // Expectations worked by hand; the slip rule (a jump near x1000 that returns the next
+    // period) is common practice (METHODS.md s.9).
     // Firm A slips x1000 in 2002 and returns (sure); firm B jumps x1000 in 2002 and stays
     // (not sure: never repaired); firm C is corrected by hand in 2001.
     w.write(
@@ -408,7 +411,7 @@ fn the_fiscal_year_is_derived_from_a_year_end_date_with_a_cutoff_month() {
 #[test]
 fn accounting_rules_read_other_periods_gap_aware() {
     let w = Workdir::new();
-    // Equity may not move by more than 50 from one year to the next. A: 2001 -> 2002 moves
+    // Worked by hand. Equity may not move by more than 50 from one year to the next. A: 2001 -> 2002 moves
     // 190 (broken); 2004 has no 2003 (gap: not checkable); first years are not checkable.
     w.write(
         "p.csv",
@@ -500,7 +503,8 @@ fn winsorizing_by_any_groups_matches_numpy_with_a_pooled_fallback() {
 #[test]
 fn declared_categorical_codes_are_never_averaged_or_winsorized() {
     let w = Workdir::new();
-    // `ind` is an industry code: a number that is a category, constant within each firm.
+    // Worked by hand. `ind` is an industry code: a number that is a category, constant within
+    // each firm.
     w.write(
         "p.csv",
         "f,y,ind,x\nA,1,2834,1.0\nA,2,2834,2.0\nB,1,7372,3.0\nB,2,7372,5.0\nC,1,2834,4.0\nC,2,2834,4.5\n",
@@ -547,4 +551,21 @@ fn declared_categorical_codes_are_never_averaged_or_winsorized() {
         &["audit", "p.csv", "--rules", "m.toml"],
         "`[panel] categorical`",
     );
+}
+
+#[test]
+fn compare_says_cells_not_checked_when_there_is_nothing_to_compare() {
+    // A check that examined nothing says so (the brief's rule), not "unchanged".
+    let w = Workdir::new();
+    w.write("a.csv", "f,y\nA,1\nA,2\n");
+    w.write("b.csv", "f,y\nA,1\nA,2\n");
+    let r = w.ok(&[
+        "compare", "a.csv", "b.csv", "--entity", "f", "--period", "y", "--format", "json",
+    ]);
+    let summary: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+    assert_eq!(summary["cells_checked"], false);
+    let r = w.ok(&[
+        "compare", "a.csv", "b.csv", "--entity", "f", "--period", "y",
+    ]);
+    assert!(r.stdout.contains("Cells not checked"), "{}", r.stdout);
 }

@@ -186,6 +186,7 @@ fn html_shows_code_not_backticks_and_keeps_figures_on_one_line() {
 
 #[test]
 fn levels_read_with_four_significant_digits() {
+    // Worked by hand: four significant digits, none below the units from 1000 on.
     use layout::{is_figure, level, slug};
     assert_eq!(level(135666.8639), "135667");
     assert_eq!(level(3320.3147), "3320");

@@ -281,6 +281,7 @@ mod tests {
 
     #[test]
     fn every_decision_is_kept_and_tests_land_under_theirs() {
+        // Worked by hand: p below 0.05 reads "yes", above it "no evidence".
         let q = group(
             vec![
                 t(Test::EntityIntercepts, 0.01),

@@ -15,6 +15,12 @@ use crate::report::renderer;
 use crate::rules::Rules;
 use crate::{Error, Result};
 
+mod dictionary;
+mod verify;
+
+use dictionary::{dictionary_md, parquet_labels, DictionaryFile};
+pub use verify::{verify, Relocated, Verification};
+
 /// `manifest.json`: what made the bundle and the hash of every file in it.
 #[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct Manifest {
@@ -307,97 +313,6 @@ fn write_files(
     Ok(manifest)
 }
 
-/// `dictionary.json`: the data dictionary for programs.
-#[derive(Serialize)]
-struct DictionaryFile<'a> {
-    /// What the file is.
-    about: &'static str,
-    /// One entry per column of the cleaned panel, in column order.
-    columns: &'a [crate::pipeline::DictionaryEntry],
-}
-
-impl<'a> DictionaryFile<'a> {
-    fn new(columns: &'a [crate::pipeline::DictionaryEntry]) -> Self {
-        DictionaryFile {
-            about: "panelready data dictionary: one entry per column of panel.parquet / panel.csv",
-            columns,
-        }
-    }
-}
-
-/// Labels, units and definitions for the Parquet file: as field metadata in the Arrow schema
-/// readers restore (`label`, `unit`, `definition`, `source` on each field; the `ARROW:schema`
-/// key polars would write, with the metadata added), and in the file's key-value metadata:
-/// `panelready.dictionary` holds dictionary.json, `panelready.column.NAME` each column's entry.
-fn parquet_labels(
-    panel: &DataFrame,
-    entries: &[crate::pipeline::DictionaryEntry],
-) -> KeyValueMetadata {
-    let schema: ArrowSchema = panel
-        .schema()
-        .to_arrow(CompatLevel::newest())
-        .into_iter()
-        .map(|(name, field)| {
-            let entry = entries.iter().find(|e| e.name == name.as_str());
-            let mut md = std::collections::BTreeMap::new();
-            if let Some(e) = entry {
-                for (k, v) in [
-                    ("label", &e.label),
-                    ("unit", &e.unit),
-                    ("definition", &e.definition),
-                    ("source", &e.source),
-                ] {
-                    if !v.is_empty() {
-                        md.insert(PlSmallStr::from(k), PlSmallStr::from(v.as_str()));
-                    }
-                }
-            }
-            (name, field.with_metadata(md))
-        })
-        .collect();
-    let arrow = polars_parquet::write::schema_to_metadata_key(&schema);
-    let mut kv = Vec::new();
-    if let Some(value) = arrow.value {
-        kv.push((arrow.key, value));
-    }
-    kv.push((
-        "panelready.dictionary".to_string(),
-        serde_json::to_string(&DictionaryFile::new(entries)).unwrap_or_default(),
-    ));
-    for e in entries {
-        kv.push((
-            format!("panelready.column.{}", e.name),
-            serde_json::to_string(e).unwrap_or_default(),
-        ));
-    }
-    KeyValueMetadata::from_static(kv)
-}
-
-/// The data dictionary as Markdown: one row per column of the cleaned panel.
-fn dictionary_md(entries: &[crate::pipeline::DictionaryEntry]) -> String {
-    let cell = |s: &str| s.replace('|', "\\|");
-    let mut out = String::from(
-        "# Data dictionary\n\nOne row per column of `panel.csv` / `panel.parquet`.\n\n\
-         Cutoffs are rounded for reading; report.json has them in full precision.\n\n\
-         | variable | label | definition | unit | source | missing in the cleaned panel | values changed by `build` |\n\
-         |---|---|---|---|---|---:|---|\n",
-    );
-    for e in entries {
-        out.push_str(&format!(
-            "| `{}` | {} | {} | {} | {} | {} | {} |\n",
-            e.name,
-            cell(&e.label),
-            cell(&e.definition),
-            cell(&e.unit),
-            cell(&e.source),
-            e.missing_share
-                .map_or("–".into(), |s| format!("{:.1}%", s * 100.0)),
-            cell(&e.treatment),
-        ));
-    }
-    out
-}
-
 /// Write a CSV with text cells guarded against spreadsheet formula injection.
 fn write_csv(f: &mut HashingFile, df: &DataFrame) -> Result<()> {
     let mut guarded = guard_text(df)?;
@@ -462,181 +377,10 @@ fn swap_into_place(staging: &Path, out: &Path) -> Result<()> {
     Ok(())
 }
 
-/// What `verify` found.
-#[derive(Debug, Clone, Default)]
-pub struct Verification {
-    /// Files in the bundle whose bytes no longer match the manifest.
-    pub changed: Vec<String>,
-    /// Files a fresh build produced differently.
-    pub not_reproduced: Vec<String>,
-    /// The tool version that made the bundle, if it differs from this one.
-    pub other_version: Option<String>,
-}
-
 fn file_name(p: &Path) -> String {
     p.file_name()
         .map(|n| n.to_string_lossy().to_string())
         .unwrap_or_default()
-}
-
-/// Where `verify` finds the files a bundle was built from, when they are not where the
-/// manifest says they were (another machine, another folder).
-#[derive(Debug, Clone, Default)]
-pub struct Relocated {
-    /// The raw input.
-    pub input: Option<PathBuf>,
-    /// The rules file.
-    pub rules: Option<PathBuf>,
-}
-
-/// Checks that `path` holds the file the manifest recorded, by its hash; `what` and the
-/// recorded name go into the message.
-fn recognise(path: &Path, sha256: &str, what: &str, name: &str, given: bool) -> Result<()> {
-    let hash = sha256_file(path).map_err(|e| Error::VerifyInput {
-        path: path.to_path_buf(),
-        message: if given {
-            format!("the {what} file cannot be read ({e})")
-        } else {
-            format!(
-                "the bundle's {what} file, where the manifest recorded it, cannot be read ({e}); \
-                 was it moved? Pass its new place with --{what} PATH"
-            )
-        },
-    })?;
-    if hash != sha256 {
-        let message = if given {
-            format!(
-                "not the bundle's {what} file: its SHA-256 differs from the one the manifest \
-                 recorded for `{name}`"
-            )
-        } else {
-            format!(
-                "the bundle's {what} file has changed since the bundle was built (its SHA-256 \
-                 differs)"
-            )
-        };
-        return Err(Error::VerifyInput {
-            path: path.to_path_buf(),
-            message,
-        });
-    }
-    Ok(())
-}
-
-/// Re-run the bundle in `dir` from its manifest's input and rules (or the files `moved`
-/// names instead, recognised by their hashes) and compare every hash.
-pub fn verify(dir: &Path, moved: &Relocated) -> Result<Verification> {
-    let manifest_path = dir.join("manifest.json");
-    let text = fs::read_to_string(&manifest_path).map_err(Error::io(&manifest_path))?;
-    let manifest: Manifest = serde_json::from_str(&text).map_err(|e| Error::Manifest {
-        path: manifest_path.clone(),
-        message: e.to_string(),
-    })?;
-    let recorded = PathBuf::from(&manifest.input.path);
-    let input_name = if manifest.input.name.is_empty() {
-        file_name(&recorded)
-    } else {
-        manifest.input.name.clone()
-    };
-    let input = moved.input.clone().unwrap_or(recorded);
-    recognise(
-        &input,
-        &manifest.input.sha256,
-        "input",
-        &input_name,
-        moved.input.is_some(),
-    )?;
-    let rules = match (&manifest.rules.path, &moved.rules) {
-        (None, None) => Rules::empty(),
-        (None, Some(p)) => {
-            return Err(Error::VerifyInput {
-                path: p.clone(),
-                message: "the bundle was built without a rules file".into(),
-            })
-        }
-        (Some(recorded), given) => {
-            let p = given.clone().unwrap_or_else(|| PathBuf::from(recorded));
-            let name = manifest
-                .rules
-                .name
-                .clone()
-                .unwrap_or_else(|| file_name(Path::new(recorded)));
-            recognise(&p, &manifest.rules.sha256, "rules", &name, given.is_some())?;
-            Rules::from_path(&p)?
-        }
-    };
-    let mut found = Verification {
-        other_version: (manifest.tool_version != env!("CARGO_PKG_VERSION"))
-            .then(|| manifest.tool_version.clone()),
-        ..Verification::default()
-    };
-    for out in &manifest.outputs {
-        let p = dir.join(&out.path);
-        let now = fs::read(&p).map(|b| sha256_hex(&b)).unwrap_or_default();
-        if now != out.sha256 {
-            found.changed.push(out.path.clone());
-        }
-    }
-    let scratch = tempdir_beside(dir)?;
-    // The reports name the input file; a relocated input under another name is rebuilt
-    // through a link carrying the recorded name.
-    let input = if file_name(&input) == input_name {
-        input
-    } else {
-        let link = scratch.join(&input_name);
-        link_or_copy(&input, &link)?;
-        link
-    };
-    let cfg = BuildConfig {
-        input: InputConfig {
-            path: input,
-            format: manifest.input.format,
-            rules,
-            entity: manifest.input.entity.clone(),
-            period: manifest.input.period.clone(),
-            quiet: true,
-            timings: false,
-            csv: manifest.input.csv.clone().unwrap_or_default(),
-            sheet: manifest.input.sheet.clone(),
-        },
-        out: scratch.join("bundle"),
-        command_line: manifest.created_by_command.clone(),
-        panel_csv: manifest.outputs.iter().any(|o| o.path == "panel.csv"),
-        fail_on: None,
-    };
-    let rebuilt = crate::build(&cfg);
-    let _ = fs::remove_dir_all(&scratch);
-    let rebuilt = rebuilt?;
-    for out in &manifest.outputs {
-        let again = rebuilt.outputs.iter().find(|o| o.path == out.path);
-        if again.is_none_or(|a| a.sha256 != out.sha256) {
-            found.not_reproduced.push(out.path.clone());
-        }
-    }
-    Ok(found)
-}
-
-fn link_or_copy(from: &Path, to: &Path) -> Result<()> {
-    let from = std::path::absolute(from).map_err(Error::io(from))?;
-    #[cfg(unix)]
-    let made = std::os::unix::fs::symlink(&from, to);
-    #[cfg(not(unix))]
-    let made = fs::copy(&from, to).map(|_| ());
-    made.map_err(Error::io(to))
-}
-
-fn tempdir_beside(dir: &Path) -> Result<PathBuf> {
-    let parent = std::path::absolute(dir)
-        .map_err(Error::io(dir))?
-        .parent()
-        .map(Path::to_path_buf)
-        .unwrap_or_else(|| PathBuf::from("."));
-    let p = parent.join(format!(".panelready-verify-{}", std::process::id()));
-    if p.exists() {
-        fs::remove_dir_all(&p).map_err(Error::io(&p))?;
-    }
-    fs::create_dir(&p).map_err(Error::io(&p))?;
-    Ok(p)
 }
 
 /// Write a file through a temporary file beside it and a rename.

@@ -14,6 +14,10 @@ use crate::config::{InputConfig, ReportFormat};
 use crate::report::{level, strings, Block, Page, Section};
 use crate::{Error, Result};
 
+mod page;
+
+pub(crate) use page::page;
+
 /// One side of a comparison.
 #[derive(Debug, Clone)]
 pub enum Side {
@@ -135,6 +139,9 @@ pub struct Comparison {
     pub columns_removed: Vec<String>,
     /// Every shared column.
     pub columns: Vec<ColumnChanges>,
+    /// Whether any cell was compared: false when the vintages share no column besides the
+    /// keys or no firm-year (the cells were not checked, which is not "unchanged").
+    pub cells_checked: bool,
     /// Anything changed beyond the tolerance: rows, entities, columns or cells.
     pub changed: bool,
 }
@@ -462,13 +469,15 @@ pub fn compare(old: &Side, new: &Side, tolerance: &Tolerance) -> Result<(Compari
         || !columns_added.is_empty()
         || !columns_removed.is_empty()
         || columns.iter().any(|c| c.cells_changed > 0);
+    let firm_years_in_both = count("both")?;
+    let cells_checked = !shared.is_empty() && firm_years_in_both > 0;
     Ok((
         Comparison {
             old: old.summary,
             new: new.summary,
             keys: (e.clone(), p.clone()),
             tolerance: tolerance.clone(),
-            firm_years_in_both: count("both")?,
+            firm_years_in_both,
             firm_years_added,
             firm_years_removed,
             entities_added,
@@ -476,6 +485,7 @@ pub fn compare(old: &Side, new: &Side, tolerance: &Tolerance) -> Result<(Compari
             columns_added,
             columns_removed,
             columns,
+            cells_checked,
             changed,
         },
         ledger,
@@ -535,147 +545,4 @@ fn ledger(
         .sort([e, p, "__order"], Default::default())
         .drop(by_name(["__order"], true, false))
         .collect()?)
-}
-
-/// The summary as report sections.
-pub(crate) fn page(c: &Comparison) -> Page {
-    let side_rows = |label: &str, f: &dyn Fn(&VintageSummary) -> String| {
-        vec![label.to_string(), f(&c.old), f(&c.new)]
-    };
-    let vintages = Block::Table(
-        strings(&["", "old", "new"]),
-        vec![
-            side_rows("what", &|v| v.kind.to_string()),
-            side_rows("rows read", &|v| v.rows_read.to_string()),
-            side_rows("rows without entity or period", &|v| {
-                v.rows_without_key.to_string()
-            }),
-            side_rows("exact copies counted once", &|v| v.exact_copies.to_string()),
-            side_rows("firm-years compared", &|v| v.firm_years.to_string()),
-            side_rows("entities", &|v| v.entities.to_string()),
-        ],
-    );
-    let list = |xs: &[String]| {
-        if xs.is_empty() {
-            "none".to_string()
-        } else if xs.len() <= 10 {
-            xs.join(", ")
-        } else {
-            format!("{}, … ({} in all)", xs[..10].join(", "), xs.len())
-        }
-    };
-    let rows = Block::Pairs(vec![
-        (
-            "firm-years in both".into(),
-            c.firm_years_in_both.to_string(),
-        ),
-        ("firm-years added".into(), c.firm_years_added.to_string()),
-        (
-            "firm-years removed".into(),
-            c.firm_years_removed.to_string(),
-        ),
-        ("entities added".into(), c.entities_added.len().to_string()),
-        (
-            "entities removed".into(),
-            c.entities_removed.len().to_string(),
-        ),
-    ]);
-    let mut firm_years = vec![rows];
-    if !c.entities_added.is_empty() {
-        firm_years.push(Block::Note(format!(
-            "Entities added: {}.",
-            list(&c.entities_added)
-        )));
-    }
-    if !c.entities_removed.is_empty() {
-        firm_years.push(Block::Note(format!(
-            "Entities removed: {}.",
-            list(&c.entities_removed)
-        )));
-    }
-    let table = Block::Table(
-        strings(&[
-            "column",
-            "kind",
-            "compared as",
-            "cells changed",
-            "became missing",
-            "became present",
-            "largest change",
-        ]),
-        c.columns
-            .iter()
-            .map(|k| {
-                vec![
-                    k.column.clone(),
-                    if k.derived { "derived" } else { "raw" }.into(),
-                    k.compared_as.into(),
-                    k.cells_changed.to_string(),
-                    k.became_missing.to_string(),
-                    k.became_present.to_string(),
-                    k.largest_change.map_or("–".into(), level),
-                ]
-            })
-            .collect(),
-    );
-    let mut cells = vec![table];
-    if !c.columns_added.is_empty() {
-        cells.push(Block::Note(format!(
-            "Columns only in the new vintage: {}.",
-            list(&c.columns_added)
-        )));
-    }
-    if !c.columns_removed.is_empty() {
-        cells.push(Block::Note(format!(
-            "Columns only in the old vintage: {}.",
-            list(&c.columns_removed)
-        )));
-    }
-    let overrides: Vec<String> = c
-        .tolerance
-        .by_column
-        .iter()
-        .map(|(k, (a, r))| format!("{k}: {a} + {r} · |old|"))
-        .collect();
-    cells.push(Block::Note(format!(
-        "Over the firm-years in both. A number counts as changed when |new − old| > {} + {} · \
-         |old|{}; a value that appears or vanishes always counts; text must match exactly. The \
-         change ledger lists every changed cell.",
-        c.tolerance.absolute,
-        c.tolerance.relative,
-        if overrides.is_empty() {
-            String::new()
-        } else {
-            format!(" (by column: {})", overrides.join("; "))
-        }
-    )));
-    Page {
-        title: "Comparison of two vintages".into(),
-        subtitle: format!(
-            "old `{}` · new `{}` · entity `{}` · period `{}` · {}",
-            c.old.path,
-            c.new.path,
-            c.keys.0,
-            c.keys.1,
-            if c.changed {
-                "changed beyond the tolerance"
-            } else {
-                "no change beyond the tolerance"
-            }
-        ),
-        sections: vec![
-            Section {
-                title: "Vintages",
-                blocks: vec![vintages],
-            },
-            Section {
-                title: "Firm-years and entities",
-                blocks: firm_years,
-            },
-            Section {
-                title: "Cells",
-                blocks: cells,
-            },
-        ],
-    }
 }

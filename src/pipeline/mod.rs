@@ -15,6 +15,12 @@ use crate::report::{Cleaned, InputSummary, Report, SampleStep};
 use crate::rules::{Rules, LEVEL_COLUMNS};
 use crate::{Error, Result};
 
+mod dictionary;
+mod settings;
+
+use dictionary::dictionary;
+use settings::{level_columns, model_effects, resolve_policy, settings};
+
 /// `audit` is a dry run of `build`: the same steps on the same rules, nothing written. The one
 /// difference: where the duplicate policy is `fail`, `audit` keeps the conflicting rows and
 /// reports them instead of stopping.
@@ -185,14 +191,17 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
     kept = with_shifts;
     {
         kept = accounting::apply_nulls(kept, &accounting_rules)?;
-        let drop =
-            accounting::drop_reason(&accounting_rules).unwrap_or(lit(NULL).cast(DataType::String));
+        let drop = accounting::drop_reason(&accounting_rules);
+        let drops = drop.is_some();
         kept = kept
             .lazy()
-            .with_column(drop.alias("__rule_drop"))
+            .with_column(
+                drop.unwrap_or(lit(NULL).cast(DataType::String))
+                    .alias("__rule_drop"),
+            )
             .drop(cols(hidden))
             .collect()?;
-        if accounting::drop_reason(&accounting_rules).is_some() {
+        if drops {
             let (rest, removed) =
                 clean::drop_where(kept, col("__rule_drop"), "accounting rules", &keys)?;
             kept = rest;
@@ -444,136 +453,6 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
     })
 }
 
-/// The level variables searched for unit slips: `[audit] levels`, else the mapped canonical
-/// amounts the data has.
-fn level_columns(rules: &Rules, raw: &[String], input: &InputConfig) -> Result<Vec<String>> {
-    let resolve = |c: &String| rules.resolve(c);
-    let levels: Vec<String> = match &rules.file.audit.levels {
-        Some(list) => list.iter().map(resolve).collect(),
-        None => LEVEL_COLUMNS
-            .iter()
-            .map(|c| resolve(&c.to_string()))
-            .filter(|c| raw.contains(c))
-            .collect(),
-    };
-    for c in &levels {
-        if !raw.contains(c) {
-            return Err(Error::MissingColumn {
-                file: input.path.clone(),
-                column: c.clone(),
-                context: "named in `[audit] levels`".into(),
-            });
-        }
-    }
-    Ok(levels)
-}
-
-fn dictionary(
-    panel: &DataFrame,
-    report: &Report,
-    input: &InputConfig,
-    raw: &[String],
-) -> Vec<DictionaryEntry> {
-    let canonical: std::collections::BTreeMap<&String, &String> = input
-        .rules
-        .file
-        .columns
-        .iter()
-        .map(|(c, r)| (r, c))
-        .collect();
-    let missing = |name: &str| {
-        report
-            .cleaned
-            .as_ref()
-            .map_or(&report.missing, |c| &c.missing)
-            .iter()
-            .find(|m| m.variable == name)
-            .map(|m| m.share)
-    };
-    panel
-        .get_column_names()
-        .iter()
-        .map(|n| n.to_string())
-        .map(|name| {
-            let derived = report.derived.iter().find(|d| d.name == name);
-            let treatment = report
-                .treatment
-                .iter()
-                .find(|t| t.variable == name)
-                .map(|t| {
-                    let cuts = if t.cutoffs.len() == 1 {
-                        let c = &t.cutoffs[0];
-                        format!(
-                            "cutoffs {} and {}",
-                            c.lower.map_or("–".into(), crate::report::level),
-                            c.upper.map_or("–".into(), crate::report::level)
-                        )
-                    } else if !t.groups.is_empty() {
-                        format!(
-                            "cutoffs per group of {} in report.json",
-                            t.groups.join(" × ")
-                        )
-                    } else {
-                        "cutoffs per period in report.json".to_string()
-                    };
-                    format!(
-                        "{} at percentiles {} / {} ({}); {} below, {} above",
-                        t.method, t.lower_percentile, t.upper_percentile, cuts, t.below, t.above
-                    )
-                })
-                .unwrap_or_default();
-            let nulled: Vec<String> = report
-                .rules
-                .iter()
-                .filter(|l| l.nulls.contains(&name) && l.violations > 0)
-                .map(|l| {
-                    format!(
-                        "set to null where rule `{}` does not hold ({} rows)",
-                        l.name, l.violations
-                    )
-                })
-                .collect();
-            let treatment = [treatment]
-                .into_iter()
-                .chain(nulled)
-                .filter(|t| !t.is_empty())
-                .collect::<Vec<_>>()
-                .join("; ");
-            let (definition, unit, source) = match derived {
-                Some(d) => (
-                    format!("derived: `{}`", d.expr),
-                    d.unit.clone(),
-                    d.source.clone(),
-                ),
-                None if raw.contains(&name) => (
-                    match canonical.get(&name) {
-                        Some(c) => format!("raw column (canonical `{c}`)"),
-                        None if name == input.entity => "raw column: the entity key".to_string(),
-                        None if name == input.period => "raw column: the period key".to_string(),
-                        None => "raw column".to_string(),
-                    },
-                    String::new(),
-                    "input file".to_string(),
-                ),
-                None => (
-                    "row number in the input file (1 = first data row)".to_string(),
-                    String::new(),
-                    "panelready".to_string(),
-                ),
-            };
-            DictionaryEntry {
-                missing_share: missing(&name),
-                label: derived.map(|d| d.label.clone()).unwrap_or_default(),
-                name,
-                definition,
-                unit,
-                source,
-                treatment,
-            }
-        })
-        .collect()
-}
-
 /// Glance, coverage, variation and missing values of the cleaned panel.
 fn cleaned_figures(
     panel: &DataFrame,
@@ -622,101 +501,4 @@ fn output_name(base: &str, taken: &[String]) -> String {
         .chain((2..).map(|n| format!("{base}_{n}")))
         .find(|c| !taken.contains(c))
         .expect("some suffix is free")
-}
-
-/// The checks' thresholds from `[thresholds]` and `[audit] outliers`, checked for range.
-fn settings(rules: &crate::rules::Rules) -> Result<Settings> {
-    let mut s = Settings::default();
-    let t = &rules.file.thresholds;
-    let bad = |setting: &'static str, message: &str| Error::Setting {
-        setting,
-        message: message.to_string(),
-    };
-    if let Some(x) = t.nearly_absorbed {
-        if !(0.0..1.0).contains(&x) {
-            return Err(bad(
-                "[thresholds] nearly_absorbed",
-                "must be at least 0 and below 1",
-            ));
-        }
-        s.nearly_absorbed = x;
-    }
-    for (value, slot, name) in [
-        (
-            t.missing_jump,
-            &mut s.missing_jump,
-            "[thresholds] missing_jump",
-        ),
-        (t.robust_z, &mut s.robust_z, "[thresholds] robust_z"),
-        (t.log_jump, &mut s.log_jump, "[thresholds] log_jump"),
-    ] {
-        if let Some(x) = value {
-            if !(x > 0.0 && x.is_finite()) {
-                return Err(bad(name, "must be a positive number"));
-            }
-            *slot = x;
-        }
-    }
-    if let Some(o) = &rules.file.audit.outliers {
-        s.lower = o.lower.unwrap_or(s.lower);
-        s.upper = o.upper.unwrap_or(s.upper);
-        if !(0.0 < s.lower && s.lower < s.upper && s.upper < 1.0) {
-            return Err(bad(
-                "[audit] outliers",
-                "needs 0 < lower < upper < 1 (fractions, e.g. 0.01 and 0.99)",
-            ));
-        }
-        s.by = match o.by.as_deref() {
-            None | Some("pooled") => CutoffGroups::Pooled,
-            Some("period") => CutoffGroups::Period,
-            Some(_) => {
-                return Err(bad(
-                    "[audit] outliers",
-                    "`by` must be \"pooled\" or \"period\"",
-                ))
-            }
-        };
-    }
-    Ok(s)
-}
-
-/// `[model] effects`: the key columns (`["firm", "year"]`), or the older words.
-fn model_effects(spec: Option<&crate::rules::EffectsSpec>, input: &InputConfig) -> Result<Effects> {
-    use crate::rules::EffectsSpec;
-    let (e, p) = (input.entity.as_str(), input.period.as_str());
-    let bad = |message: String| Error::Setting {
-        setting: "[model] effects",
-        message,
-    };
-    match spec {
-        None => Ok(Effects::Entity),
-        Some(EffectsSpec::Word(w)) => match w.as_str() {
-            "entity" => Ok(Effects::Entity),
-            "entity+period" => Ok(Effects::EntityPeriod),
-            other => Err(bad(format!(
-                "\"{other}\" is not a list of key columns such as [\"{e}\"] or [\"{e}\", \"{p}\"]"
-            ))),
-        },
-        Some(EffectsSpec::Keys(keys)) => {
-            let names: Vec<&str> = keys.iter().map(String::as_str).collect();
-            match names.as_slice() {
-                [x] if *x == e => Ok(Effects::Entity),
-                [x, y] | [y, x] if *x == e && *y == p => Ok(Effects::EntityPeriod),
-                _ => Err(bad(format!(
-                    "{keys:?} must be [\"{e}\"] (entity effects) or [\"{e}\", \"{p}\"] (entity and period \
-                     effects), named as in [panel]"
-                ))),
-            }
-        }
-    }
-}
-
-/// `prefer-max:COL` may name a canonical column; use the raw column it maps to.
-fn resolve_policy(policy: DuplicatePolicy, input: &InputConfig) -> DuplicatePolicy {
-    let map = |c: String| input.rules.file.columns.get(&c).cloned().unwrap_or(c);
-    match policy {
-        DuplicatePolicy::PreferMax(c) => DuplicatePolicy::PreferMax(map(c)),
-        DuplicatePolicy::PreferMin(c) => DuplicatePolicy::PreferMin(map(c)),
-        p => p,
-    }
 }

@@ -1,0 +1,95 @@
+//! The data dictionary's outputs: `dictionary.md`, `dictionary.json`, and the labels the
+//! Parquet file carries (Arrow field metadata and key-value metadata).
+
+use super::*;
+
+/// `dictionary.json`: the data dictionary for programs.
+#[derive(Serialize)]
+pub(super) struct DictionaryFile<'a> {
+    /// What the file is.
+    about: &'static str,
+    /// One entry per column of the cleaned panel, in column order.
+    columns: &'a [crate::pipeline::DictionaryEntry],
+}
+
+impl<'a> DictionaryFile<'a> {
+    pub(super) fn new(columns: &'a [crate::pipeline::DictionaryEntry]) -> Self {
+        DictionaryFile {
+            about: "panelready data dictionary: one entry per column of panel.parquet / panel.csv",
+            columns,
+        }
+    }
+}
+
+/// Labels, units and definitions for the Parquet file: as field metadata in the Arrow schema
+/// readers restore (`label`, `unit`, `definition`, `source` on each field; the `ARROW:schema`
+/// key polars would write, with the metadata added), and in the file's key-value metadata:
+/// `panelready.dictionary` holds dictionary.json, `panelready.column.NAME` each column's entry.
+pub(super) fn parquet_labels(
+    panel: &DataFrame,
+    entries: &[crate::pipeline::DictionaryEntry],
+) -> KeyValueMetadata {
+    let schema: ArrowSchema = panel
+        .schema()
+        .to_arrow(CompatLevel::newest())
+        .into_iter()
+        .map(|(name, field)| {
+            let entry = entries.iter().find(|e| e.name == name.as_str());
+            let mut md = std::collections::BTreeMap::new();
+            if let Some(e) = entry {
+                for (k, v) in [
+                    ("label", &e.label),
+                    ("unit", &e.unit),
+                    ("definition", &e.definition),
+                    ("source", &e.source),
+                ] {
+                    if !v.is_empty() {
+                        md.insert(PlSmallStr::from(k), PlSmallStr::from(v.as_str()));
+                    }
+                }
+            }
+            (name, field.with_metadata(md))
+        })
+        .collect();
+    let arrow = polars_parquet::write::schema_to_metadata_key(&schema);
+    let mut kv = Vec::new();
+    if let Some(value) = arrow.value {
+        kv.push((arrow.key, value));
+    }
+    kv.push((
+        "panelready.dictionary".to_string(),
+        serde_json::to_string(&DictionaryFile::new(entries)).unwrap_or_default(),
+    ));
+    for e in entries {
+        kv.push((
+            format!("panelready.column.{}", e.name),
+            serde_json::to_string(e).unwrap_or_default(),
+        ));
+    }
+    KeyValueMetadata::from_static(kv)
+}
+
+/// The data dictionary as Markdown: one row per column of the cleaned panel.
+pub(super) fn dictionary_md(entries: &[crate::pipeline::DictionaryEntry]) -> String {
+    let cell = |s: &str| s.replace('|', "\\|");
+    let mut out = String::from(
+        "# Data dictionary\n\nOne row per column of `panel.csv` / `panel.parquet`.\n\n\
+         Cutoffs are rounded for reading; report.json has them in full precision.\n\n\
+         | variable | label | definition | unit | source | missing in the cleaned panel | values changed by `build` |\n\
+         |---|---|---|---|---|---:|---|\n",
+    );
+    for e in entries {
+        out.push_str(&format!(
+            "| `{}` | {} | {} | {} | {} | {} | {} |\n",
+            e.name,
+            cell(&e.label),
+            cell(&e.definition),
+            cell(&e.unit),
+            cell(&e.source),
+            e.missing_share
+                .map_or("–".into(), |s| format!("{:.1}%", s * 100.0)),
+            cell(&e.treatment),
+        ));
+    }
+    out
+}

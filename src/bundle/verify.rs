@@ -1,0 +1,181 @@
+//! `verify`: re-run a bundle from its manifest's input and rules (or relocated copies,
+//! recognised by their hashes) and compare every output hash.
+
+use super::*;
+
+/// What `verify` found.
+#[derive(Debug, Clone, Default)]
+pub struct Verification {
+    /// Files in the bundle whose bytes no longer match the manifest.
+    pub changed: Vec<String>,
+    /// Files a fresh build produced differently.
+    pub not_reproduced: Vec<String>,
+    /// The tool version that made the bundle, if it differs from this one.
+    pub other_version: Option<String>,
+}
+
+/// Where `verify` finds the files a bundle was built from, when they are not where the
+/// manifest says they were (another machine, another folder).
+#[derive(Debug, Clone, Default)]
+pub struct Relocated {
+    /// The raw input.
+    pub input: Option<PathBuf>,
+    /// The rules file.
+    pub rules: Option<PathBuf>,
+}
+
+/// Checks that `path` holds the file the manifest recorded, by its hash; `what` and the
+/// recorded name go into the message.
+pub(super) fn recognise(
+    path: &Path,
+    sha256: &str,
+    what: &str,
+    name: &str,
+    given: bool,
+) -> Result<()> {
+    let hash = sha256_file(path).map_err(|e| Error::VerifyInput {
+        path: path.to_path_buf(),
+        message: if given {
+            format!("the {what} file cannot be read ({e})")
+        } else {
+            format!(
+                "the bundle's {what} file, where the manifest recorded it, cannot be read ({e}); \
+                 was it moved? Pass its new place with --{what} PATH"
+            )
+        },
+    })?;
+    if hash != sha256 {
+        let message = if given {
+            format!(
+                "not the bundle's {what} file: its SHA-256 differs from the one the manifest \
+                 recorded for `{name}`"
+            )
+        } else {
+            format!(
+                "the bundle's {what} file has changed since the bundle was built (its SHA-256 \
+                 differs)"
+            )
+        };
+        return Err(Error::VerifyInput {
+            path: path.to_path_buf(),
+            message,
+        });
+    }
+    Ok(())
+}
+
+/// Re-run the bundle in `dir` from its manifest's input and rules (or the files `moved`
+/// names instead, recognised by their hashes) and compare every hash.
+pub fn verify(dir: &Path, moved: &Relocated) -> Result<Verification> {
+    let manifest_path = dir.join("manifest.json");
+    let text = fs::read_to_string(&manifest_path).map_err(Error::io(&manifest_path))?;
+    let manifest: Manifest = serde_json::from_str(&text).map_err(|e| Error::Manifest {
+        path: manifest_path.clone(),
+        message: e.to_string(),
+    })?;
+    let recorded = PathBuf::from(&manifest.input.path);
+    let input_name = if manifest.input.name.is_empty() {
+        file_name(&recorded)
+    } else {
+        manifest.input.name.clone()
+    };
+    let input = moved.input.clone().unwrap_or(recorded);
+    recognise(
+        &input,
+        &manifest.input.sha256,
+        "input",
+        &input_name,
+        moved.input.is_some(),
+    )?;
+    let rules = match (&manifest.rules.path, &moved.rules) {
+        (None, None) => Rules::empty(),
+        (None, Some(p)) => {
+            return Err(Error::VerifyInput {
+                path: p.clone(),
+                message: "the bundle was built without a rules file".into(),
+            })
+        }
+        (Some(recorded), given) => {
+            let p = given.clone().unwrap_or_else(|| PathBuf::from(recorded));
+            let name = manifest
+                .rules
+                .name
+                .clone()
+                .unwrap_or_else(|| file_name(Path::new(recorded)));
+            recognise(&p, &manifest.rules.sha256, "rules", &name, given.is_some())?;
+            Rules::from_path(&p)?
+        }
+    };
+    let mut found = Verification {
+        other_version: (manifest.tool_version != env!("CARGO_PKG_VERSION"))
+            .then(|| manifest.tool_version.clone()),
+        ..Verification::default()
+    };
+    for out in &manifest.outputs {
+        let p = dir.join(&out.path);
+        let now = fs::read(&p).map(|b| sha256_hex(&b)).unwrap_or_default();
+        if now != out.sha256 {
+            found.changed.push(out.path.clone());
+        }
+    }
+    let scratch = tempdir_beside(dir)?;
+    // The reports name the input file; a relocated input under another name is rebuilt
+    // through a link carrying the recorded name.
+    let input = if file_name(&input) == input_name {
+        input
+    } else {
+        let link = scratch.join(&input_name);
+        link_or_copy(&input, &link)?;
+        link
+    };
+    let cfg = BuildConfig {
+        input: InputConfig {
+            path: input,
+            format: manifest.input.format,
+            rules,
+            entity: manifest.input.entity.clone(),
+            period: manifest.input.period.clone(),
+            quiet: true,
+            timings: false,
+            csv: manifest.input.csv.clone().unwrap_or_default(),
+            sheet: manifest.input.sheet.clone(),
+        },
+        out: scratch.join("bundle"),
+        command_line: manifest.created_by_command.clone(),
+        panel_csv: manifest.outputs.iter().any(|o| o.path == "panel.csv"),
+        fail_on: None,
+    };
+    let rebuilt = crate::build(&cfg);
+    let _ = fs::remove_dir_all(&scratch);
+    let rebuilt = rebuilt?;
+    for out in &manifest.outputs {
+        let again = rebuilt.outputs.iter().find(|o| o.path == out.path);
+        if again.is_none_or(|a| a.sha256 != out.sha256) {
+            found.not_reproduced.push(out.path.clone());
+        }
+    }
+    Ok(found)
+}
+
+pub(super) fn link_or_copy(from: &Path, to: &Path) -> Result<()> {
+    let from = std::path::absolute(from).map_err(Error::io(from))?;
+    #[cfg(unix)]
+    let made = std::os::unix::fs::symlink(&from, to);
+    #[cfg(not(unix))]
+    let made = fs::copy(&from, to).map(|_| ());
+    made.map_err(Error::io(to))
+}
+
+pub(super) fn tempdir_beside(dir: &Path) -> Result<PathBuf> {
+    let parent = std::path::absolute(dir)
+        .map_err(Error::io(dir))?
+        .parent()
+        .map(Path::to_path_buf)
+        .unwrap_or_else(|| PathBuf::from("."));
+    let p = parent.join(format!(".panelready-verify-{}", std::process::id()));
+    if p.exists() {
+        fs::remove_dir_all(&p).map_err(Error::io(&p))?;
+    }
+    fs::create_dir(&p).map_err(Error::io(&p))?;
+    Ok(p)
+}

@@ -1,0 +1,132 @@
+//! From the rules file to typed options: the thresholds, the model's effects, the duplicate
+//! policy, the level variables searched for unit slips.
+
+use super::*;
+
+/// The level variables searched for unit slips: `[audit] levels`, else the mapped canonical
+/// amounts the data has.
+pub(super) fn level_columns(
+    rules: &Rules,
+    raw: &[String],
+    input: &InputConfig,
+) -> Result<Vec<String>> {
+    let resolve = |c: &String| rules.resolve(c);
+    let levels: Vec<String> = match &rules.file.audit.levels {
+        Some(list) => list.iter().map(resolve).collect(),
+        None => LEVEL_COLUMNS
+            .iter()
+            .map(|c| resolve(&c.to_string()))
+            .filter(|c| raw.contains(c))
+            .collect(),
+    };
+    for c in &levels {
+        if !raw.contains(c) {
+            return Err(Error::MissingColumn {
+                file: input.path.clone(),
+                column: c.clone(),
+                context: "named in `[audit] levels`".into(),
+            });
+        }
+    }
+    Ok(levels)
+}
+
+/// The checks' thresholds from `[thresholds]` and `[audit] outliers`, checked for range.
+pub(super) fn settings(rules: &crate::rules::Rules) -> Result<Settings> {
+    let mut s = Settings::default();
+    let t = &rules.file.thresholds;
+    let bad = |setting: &'static str, message: &str| Error::Setting {
+        setting,
+        message: message.to_string(),
+    };
+    if let Some(x) = t.nearly_absorbed {
+        if !(0.0..1.0).contains(&x) {
+            return Err(bad(
+                "[thresholds] nearly_absorbed",
+                "must be at least 0 and below 1",
+            ));
+        }
+        s.nearly_absorbed = x;
+    }
+    for (value, slot, name) in [
+        (
+            t.missing_jump,
+            &mut s.missing_jump,
+            "[thresholds] missing_jump",
+        ),
+        (t.robust_z, &mut s.robust_z, "[thresholds] robust_z"),
+        (t.log_jump, &mut s.log_jump, "[thresholds] log_jump"),
+    ] {
+        if let Some(x) = value {
+            if !(x > 0.0 && x.is_finite()) {
+                return Err(bad(name, "must be a positive number"));
+            }
+            *slot = x;
+        }
+    }
+    if let Some(o) = &rules.file.audit.outliers {
+        s.lower = o.lower.unwrap_or(s.lower);
+        s.upper = o.upper.unwrap_or(s.upper);
+        if !(0.0 < s.lower && s.lower < s.upper && s.upper < 1.0) {
+            return Err(bad(
+                "[audit] outliers",
+                "needs 0 < lower < upper < 1 (fractions, e.g. 0.01 and 0.99)",
+            ));
+        }
+        s.by = match o.by.as_deref() {
+            None | Some("pooled") => CutoffGroups::Pooled,
+            Some("period") => CutoffGroups::Period,
+            Some(_) => {
+                return Err(bad(
+                    "[audit] outliers",
+                    "`by` must be \"pooled\" or \"period\"",
+                ))
+            }
+        };
+    }
+    Ok(s)
+}
+
+/// `[model] effects`: the key columns (`["firm", "year"]`), or the older words.
+pub(super) fn model_effects(
+    spec: Option<&crate::rules::EffectsSpec>,
+    input: &InputConfig,
+) -> Result<Effects> {
+    use crate::rules::EffectsSpec;
+    let (e, p) = (input.entity.as_str(), input.period.as_str());
+    let bad = |message: String| Error::Setting {
+        setting: "[model] effects",
+        message,
+    };
+    match spec {
+        None => Ok(Effects::Entity),
+        Some(EffectsSpec::Word(w)) => match w.as_str() {
+            "entity" => Ok(Effects::Entity),
+            "entity+period" => Ok(Effects::EntityPeriod),
+            other => Err(bad(format!(
+                "\"{other}\" is not a list of key columns such as [\"{e}\"] or [\"{e}\", \"{p}\"]"
+            ))),
+        },
+        Some(EffectsSpec::Keys(keys)) => {
+            let names: Vec<&str> = keys.iter().map(String::as_str).collect();
+            match names.as_slice() {
+                [x] if *x == e => Ok(Effects::Entity),
+                [x, y] | [y, x] if *x == e && *y == p => Ok(Effects::EntityPeriod),
+                _ => Err(bad(format!(
+                    "{keys:?} must be [\"{e}\"] (entity effects) or [\"{e}\", \"{p}\"] (entity and period \
+                     effects), named as in [panel]"
+                ))),
+            }
+        }
+    }
+}
+
+/// `prefer-max:COL` may name a canonical column; use the raw column it maps to.
+pub(super) fn resolve_policy(policy: DuplicatePolicy, input: &InputConfig) -> DuplicatePolicy {
+    let map = |c: String| input.rules.file.columns.get(&c).cloned().unwrap_or(c);
+    match policy {
+        DuplicatePolicy::PreferMax(c) => DuplicatePolicy::PreferMax(map(c)),
+        DuplicatePolicy::PreferMin(c) => DuplicatePolicy::PreferMin(map(c)),
+        p => p,
+    }
+}
