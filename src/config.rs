@@ -503,7 +503,7 @@ impl InputConfig {
     }
 }
 
-fn format_from_extension(path: &Path) -> Result<InputFormat> {
+pub(crate) fn format_from_extension(path: &Path) -> Result<InputFormat> {
     let name = path
         .file_name()
         .map(|n| n.to_string_lossy().to_ascii_lowercase())

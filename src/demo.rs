@@ -17,6 +17,16 @@ use crate::{Error, Result};
 pub const FIRST_YEAR: i64 = 2010;
 /// The data file inside the demo data folder.
 pub const DATA_FILE: &str = "velmora_accounts.csv";
+/// The firm-year headcount file joined onto the accounts.
+pub const WORKFORCE_FILE: &str = "velmora_workforce.csv";
+/// The firm file (stock-market listing) joined onto the accounts.
+pub const FIRMS_FILE: &str = "velmora_firms.csv";
+/// The invented consumer price index by fiscal year.
+pub const PRICES_FILE: &str = "velmora_prices.csv";
+/// The corrections file of the demo.
+pub const CORRECTIONS_FILE: &str = "corrections.csv";
+
+const LISTINGS: [&str; 3] = ["main board", "growth board", "unlisted"];
 
 const SECTORS: [&str; 6] = [
     "agrifood",
@@ -63,6 +73,41 @@ pub struct Planted {
     pub zero_interest_rows: u64,
     /// Rows with R&D spending missing.
     pub missing_rd_rows: u64,
+    /// The further raw files and what they hold.
+    pub tables: PlantedTables,
+}
+
+/// What the further demo files hold, for the references to check the joins against.
+#[derive(Debug, Default, Serialize)]
+pub struct PlantedTables {
+    /// Firm-years whose headcount was keyed with an extra zero (x10), as (firm, year); the
+    /// corrections file sets them right.
+    pub headcount_typos: Vec<(String, i64)>,
+    /// Firm-years of the accounts left out of the headcount file.
+    pub workforce_gaps: u64,
+    /// Rows of the headcount file for firm-years the accounts do not have.
+    pub workforce_strays: u64,
+    /// Rows of the headcount file repeated exactly.
+    pub workforce_copies: u64,
+    /// Firms left out of the firm file.
+    pub firms_left_out: u64,
+    /// Rows of the firm file for firms the accounts do not have.
+    pub firms_strays: u64,
+    /// Years of the price index beyond the accounts' window.
+    pub price_years_beyond: u64,
+}
+
+/// The further raw files of the demo, column by column.
+#[derive(Default)]
+struct Tables {
+    wf_firm: Vec<String>,
+    wf_year: Vec<i64>,
+    wf_employees: Vec<i64>,
+    firm: Vec<String>,
+    listing: Vec<&'static str>,
+    price_year: Vec<i64>,
+    price_index: Vec<f64>,
+    corrections: Vec<(String, i64, i64)>,
 }
 
 /// Column vectors under construction.
@@ -144,7 +189,16 @@ impl Columns {
 
 /// Generate the demo panel and the record of planted defects.
 pub fn generate(firms: u32, periods: u32, seed: u64) -> Result<(DataFrame, Planted)> {
+    let (df, planted, _) = generate_all(firms, periods, seed)?;
+    Ok((df, planted))
+}
+
+/// The demo panel, the record of planted defects and the further raw files. The further
+/// files draw from their own random stream, so the accounts do not depend on them.
+fn generate_all(firms: u32, periods: u32, seed: u64) -> Result<(DataFrame, Planted, Tables)> {
     let mut rng = ChaCha8Rng::seed_from_u64(seed);
+    let mut side = ChaCha8Rng::seed_from_u64(seed.wrapping_add(0x5eed));
+    let mut tables = Tables::default();
     let std_normal = Normal::new(0.0, 1.0).expect("valid normal");
     let z = move |rng: &mut ChaCha8Rng| -> f64 { std_normal.sample(rng) };
     let t = periods as i64;
@@ -196,6 +250,16 @@ pub fn generate(firms: u32, periods: u32, seed: u64) -> Result<(DataFrame, Plant
         let rate = rng.random_range(0.02..0.08);
         let rd_firm = matches!(sector, "software" | "machinery") || rng.random_bool(0.15);
         let rd_share = rng.random_range(0.01..0.1);
+        // The firm file leaves out one firm in a hundred.
+        if !side.random_bool(0.01) {
+            tables.firm.push(id.clone());
+            tables
+                .listing
+                .push(LISTINGS[side.random_range(0..LISTINGS.len())]);
+        } else {
+            planted.tables.firms_left_out += 1;
+        }
+        let staff_per_asset = side.random_range(0.2..0.6);
         for y in 0..t {
             log_assets += 0.05 + 0.12 * z(&mut rng);
             let roa = roa_mean + 0.04 * z(&mut rng);
@@ -208,6 +272,16 @@ pub fn generate(firms: u32, periods: u32, seed: u64) -> Result<(DataFrame, Plant
                 continue;
             }
             let assets = log_assets.exp();
+            // Headcount: the headcount file misses one firm-year in fifty.
+            if side.random_bool(0.02) {
+                planted.tables.workforce_gaps += 1;
+            } else {
+                tables.wf_firm.push(id.clone());
+                tables.wf_year.push(FIRST_YEAR + y);
+                tables
+                    .wf_employees
+                    .push(((assets * staff_per_asset).round() as i64).max(1));
+            }
             let debt = if no_debt { 0.0 } else { assets * leverage };
             let interest = debt * rate;
             let net = assets * roa;
@@ -234,7 +308,66 @@ pub fn generate(firms: u32, periods: u32, seed: u64) -> Result<(DataFrame, Plant
     planted.rows = c.firm.len() as u64;
     planted.zero_interest_rows = c.interest.iter().filter(|v| **v == Some(0.0)).count() as u64;
     planted.missing_rd_rows = c.rnd.iter().filter(|v| v.is_none()).count() as u64;
-    Ok((c.into_frame()?, planted))
+    plant_table_defects(&mut tables, &mut planted.tables, &mut side, t, width);
+    Ok((c.into_frame()?, planted, tables))
+}
+
+/// The further files' own defects: headcount typos (set right by the corrections file), stray
+/// rows for firm-years and firms the accounts lack, an exact copy, a price index that runs a
+/// year beyond the accounts.
+fn plant_table_defects(
+    t: &mut Tables,
+    planted: &mut PlantedTables,
+    rng: &mut ChaCha8Rng,
+    periods: i64,
+    width: usize,
+) {
+    let n = t.wf_firm.len();
+    if n >= 20 {
+        let mut picked: Vec<usize> = Vec::new();
+        while picked.len() < 2 {
+            let i = rng.random_range(0..n);
+            if !picked.contains(&i) {
+                picked.push(i);
+            }
+        }
+        picked.sort_unstable();
+        for i in picked {
+            let right = t.wf_employees[i];
+            t.wf_employees[i] = right * 10;
+            planted
+                .headcount_typos
+                .push((t.wf_firm[i].clone(), t.wf_year[i]));
+            t.corrections
+                .push((t.wf_firm[i].clone(), t.wf_year[i], right));
+        }
+        let i = rng.random_range(0..n);
+        let (f, y, e) = (t.wf_firm[i].clone(), t.wf_year[i], t.wf_employees[i]);
+        t.wf_firm.push(f);
+        t.wf_year.push(y);
+        t.wf_employees.push(e);
+        planted.workforce_copies = 1;
+    }
+    // Firms that are not in the accounts (ids beyond the generated ones).
+    let stray = |k: usize| format!("VX{:0width$}", k + 1);
+    for k in 0..2 {
+        t.wf_firm.push(stray(k));
+        t.wf_year.push(FIRST_YEAR);
+        t.wf_employees.push(40 + k as i64);
+        planted.workforce_strays += 1;
+        t.firm.push(stray(k));
+        t.listing.push("unlisted");
+        planted.firms_strays += 1;
+    }
+    // The index: 2010 = 100, about two per cent a year, one decimal as statistical offices
+    // publish it; it runs one year beyond the accounts.
+    let mut level = 100.0f64;
+    for y in 0..=periods {
+        t.price_year.push(FIRST_YEAR + y);
+        t.price_index.push((level * 10.0).round() / 10.0);
+        level *= 1.0 + rng.random_range(0.005..0.035);
+    }
+    planted.price_years_beyond = 1;
 }
 
 /// Plant the defects a careful researcher must catch. Counts scale with the panel.
@@ -344,6 +477,32 @@ current_liabilities = "cur_liabilities"
 short_term_debt = "debt_short"
 long_term_debt = "debt_long"
 
+# Further raw files, joined onto the accounts after the key steps (paths relative to this
+# file): headcount by firm-year, the stock-market listing by firm, a price index by year.
+[[join]]
+file = "velmora_workforce.csv"
+on = ["firm_id", "fiscal_year"]
+
+[[join]]
+file = "velmora_firms.csv"
+on = ["firm_id"]
+
+[[join]]
+file = "velmora_prices.csv"
+on = ["fiscal_year"]
+rename = { year = "fiscal_year" }
+
+# Firm-year overrides, each with its reason; every changed cell goes to corrections.csv.
+[repair]
+corrections = "corrections.csv"
+
+# Deflating: sales at 2010 prices, an ordinary derived expression over a joined column.
+[derive.real_sales]
+expr = "sales / cpi * 100"
+label = "Sales at 2010 prices"
+unit = "thousand crowns of 2010"
+source = "common practice (deflating by a price index)"
+
 [derive.firm_age]
 expr = "fiscal_year - founded"
 label = "Firm age in years"
@@ -383,8 +542,16 @@ Planted defects, for the audit to find:\n\n\
 - {} firms observed in one year only, {} firms with an internal gap, late entrants and early leavers\n\
 - {} rows with zero interest paid (firms without debt), {} rows with R&D spending missing\n\
 - time-invariant columns (`sector`, `region`, `founded`) and a macro series (`gdp_growth`)\n\n\
+Further raw files, joined onto the accounts by `rules.toml`:\n\n\
+- `{WORKFORCE_FILE}`: headcount by firm-year; {} firm-years of the accounts are missing, {} rows \
+are for firms the accounts do not have, {} row is repeated exactly, and {} headcounts were keyed \
+with an extra zero\n\
+- `{FIRMS_FILE}`: each firm's stock-market listing; {} firms are missing, {} rows are for firms \
+the accounts do not have\n\
+- `{PRICES_FILE}`: an invented consumer price index (2010 = 100), one year beyond the accounts\n\
+- `{CORRECTIONS_FILE}`: the right headcounts for the typos above, each with its reason\n\n\
 `planted.json` lists every planted defect; `rules.toml` maps the raw columns to the canonical \
-names the built-in ratios use.\n",
+names the built-in ratios use, joins the further files and deflates sales by the index.\n",
         p.missing_key_rows,
         p.exact_copies.len(),
         p.conflicting_keys.len(),
@@ -396,12 +563,18 @@ names the built-in ratios use.\n",
         p.firms_with_gaps,
         p.zero_interest_rows,
         p.missing_rd_rows,
+        p.tables.workforce_gaps,
+        p.tables.workforce_strays,
+        p.tables.workforce_copies,
+        p.tables.headcount_typos.len(),
+        p.tables.firms_left_out,
+        p.tables.firms_strays,
     )
 }
 
 /// Write the demo data folder: the CSV, its rules file, a README and `planted.json`.
 pub fn write_data(dir: &Path, firms: u32, periods: u32, seed: u64) -> Result<Planted> {
-    let (mut df, planted) = generate(firms, periods, seed)?;
+    let (mut df, planted, tables) = generate_all(firms, periods, seed)?;
     fs::create_dir_all(dir).map_err(Error::io(dir))?;
     let path = dir.join(DATA_FILE);
     let tmp = dir.join(format!(".{DATA_FILE}.partial"));
@@ -415,6 +588,37 @@ pub fn write_data(dir: &Path, firms: u32, periods: u32, seed: u64) -> Result<Pla
         let p = dir.join(name);
         fs::write(&p, text).map_err(Error::io(&p))
     };
+    let csv = |name: &str, mut frame: DataFrame| -> Result<()> {
+        let p = dir.join(name);
+        let mut f = fs::File::create(&p).map_err(Error::io(&p))?;
+        CsvWriter::new(&mut f)
+            .include_header(true)
+            .finish(&mut frame)?;
+        Ok(())
+    };
+    csv(
+        WORKFORCE_FILE,
+        df!(
+            "firm_id" => &tables.wf_firm,
+            "fiscal_year" => &tables.wf_year,
+            "employees" => &tables.wf_employees,
+        )?,
+    )?;
+    csv(
+        FIRMS_FILE,
+        df!("firm_id" => &tables.firm, "listing" => &tables.listing)?,
+    )?;
+    csv(
+        PRICES_FILE,
+        df!("year" => &tables.price_year, "cpi" => &tables.price_index)?,
+    )?;
+    let mut corrections = String::from("entity,period,column,value,reason\n");
+    for (firm, year, right) in &tables.corrections {
+        corrections.push_str(&format!(
+            "{firm},{year},employees,{right},headcount keyed with an extra zero (the annual report gives {right})\n"
+        ));
+    }
+    write(CORRECTIONS_FILE, &corrections)?;
     write("rules.toml", RULES)?;
     write("README.md", &readme(&planted, firms, periods, seed))?;
     write(

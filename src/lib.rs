@@ -5,6 +5,7 @@
 //! Data flows one way: `cli` -> `config` -> `load` -> `clean` (keys) -> `derive` -> `audit`
 //! -> `bundle` / `report`. The binary is a thin wrapper around [`run`].
 
+pub mod assemble;
 pub mod audit;
 pub mod bundle;
 pub mod clean;

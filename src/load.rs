@@ -58,8 +58,9 @@ pub fn read_raw(
     Ok(df)
 }
 
-/// Read the input named in `cfg` and check its keys.
-pub fn load(cfg: &InputConfig) -> Result<Loaded> {
+/// Read the input named in `cfg` and check its keys. `joined` names the columns that joined
+/// tables will bring (a `[columns]` mapping may point to them).
+pub fn load(cfg: &InputConfig, joined: &[String]) -> Result<Loaded> {
     // A Windows-1252 (Latin-1) file is read through a UTF-8 copy in the temporary folder.
     let utf8 = match (cfg.format, cfg.csv.encoding) {
         (InputFormat::Csv, Encoding::Windows1252) => Some(Transcoded::new(&cfg.path)?),
@@ -125,7 +126,7 @@ pub fn load(cfg: &InputConfig) -> Result<Loaded> {
         _ => {}
     }
     for (canonical, raw) in &cfg.rules.file.columns {
-        if !schema.contains(raw) {
+        if !schema.contains(raw) && !joined.contains(raw) {
             return Err(missing(
                 raw,
                 format!("mapped from `{canonical}` in [columns]"),

@@ -16,9 +16,13 @@ fn generator_reproduces_the_committed_demo_data() {
         names,
         [
             "README.md",
+            "corrections.csv",
             "planted.json",
             "rules.toml",
-            "velmora_accounts.csv"
+            "velmora_accounts.csv",
+            "velmora_firms.csv",
+            "velmora_prices.csv",
+            "velmora_workforce.csv",
         ]
     );
     for name in names {
@@ -41,17 +45,59 @@ fn demo_bundle_is_complete_and_its_manifest_balances() {
         rows["input"].as_u64().unwrap(),
         rows["kept"].as_u64().unwrap() + rows["rejected"].as_u64().unwrap()
     );
-    // The ledger and the panel hold every input row exactly once.
+    // The ledger and the panel hold every input row exactly once; the ledger also holds the
+    // joined files' rows that matched nothing, under their own file names.
     let panel = std::fs::read_to_string(w.path("d/bundle/panel.csv")).unwrap();
     let rejected = std::fs::read_to_string(w.path("d/bundle/rejected.csv")).unwrap();
+    assert!(
+        rejected.starts_with("source_row,source_file,"),
+        "{rejected}"
+    );
+    let of_file = |file: &str| -> Vec<u64> {
+        rejected
+            .lines()
+            .filter(|l| l.split(',').nth(1) == Some(file))
+            .filter_map(|l| l.split(',').next()?.parse().ok())
+            .collect()
+    };
     let mut ids: Vec<u64> = panel
         .lines()
-        .chain(rejected.lines())
         .filter_map(|l| l.split(',').next()?.parse().ok())
+        .chain(of_file("velmora_accounts.csv"))
         .collect();
     ids.sort();
     let n = rows["input"].as_u64().unwrap();
     assert_eq!(ids, (1..=n).collect::<Vec<_>>());
+    // Each joined file: its rows in the ledger are the manifest's count, and those rows plus
+    // the rows that matched the panel are the rows read.
+    let report: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(w.path("d/bundle/report.json")).unwrap())
+            .unwrap();
+    let joins = m["joins"].as_array().unwrap();
+    assert_eq!(joins.len(), 3);
+    for (j, line) in joins.iter().zip(report["joins"].as_array().unwrap()) {
+        let name = j["name"].as_str().unwrap();
+        let in_ledger = of_file(name).len() as u64;
+        assert_eq!(in_ledger, j["rejected"].as_u64().unwrap(), "{name}");
+        assert_eq!(
+            j["rows"].as_u64().unwrap(),
+            line["rows_used"].as_u64().unwrap() + in_ledger,
+            "{name}"
+        );
+        assert!(
+            in_ledger > 0,
+            "{name}: the demo plants rows that match nothing"
+        );
+    }
+    let total = rejected.lines().count() as u64 - 1;
+    assert_eq!(
+        total,
+        rows["rejected"].as_u64().unwrap()
+            + joins
+                .iter()
+                .map(|j| j["rejected"].as_u64().unwrap())
+                .sum::<u64>()
+    );
     // Every output is listed with its true hash and size.
     for out in m["outputs"].as_array().unwrap() {
         let bytes = std::fs::read(w.path("d/bundle").join(out["path"].as_str().unwrap())).unwrap();
@@ -149,6 +195,27 @@ fn verify_checks_a_bundle_against_relocated_files_recognised_by_hash() {
         &["verify", "elsewhere/bundle"],
         "Pass its new place with --input",
     );
+    // The files the rules name (joined tables, corrections) are read beside the rules file:
+    // without them `verify` names the first one missing.
+    w.fails(
+        &[
+            "verify",
+            "elsewhere/bundle",
+            "--input",
+            "elsewhere/accounts-2026.csv",
+            "--rules",
+            "elsewhere/r.toml",
+        ],
+        "velmora_workforce.csv",
+    );
+    for name in [
+        "velmora_workforce.csv",
+        "velmora_firms.csv",
+        "velmora_prices.csv",
+        "corrections.csv",
+    ] {
+        std::fs::rename(w.path("d/data").join(name), w.path("elsewhere").join(name)).unwrap();
+    }
     let r = w.ok(&[
         "verify",
         "elsewhere/bundle",
@@ -176,6 +243,21 @@ fn verify_checks_a_bundle_against_relocated_files_recognised_by_hash() {
     )
     .unwrap();
     assert_eq!(manifest["input"]["name"], "velmora_accounts.csv");
+    // A joined table changed since the build is named, before anything is rebuilt.
+    let prices = w.path("elsewhere/velmora_prices.csv");
+    let text = std::fs::read_to_string(&prices).unwrap();
+    std::fs::write(&prices, text.replacen("100.0", "100.1", 1)).unwrap();
+    w.fails(
+        &[
+            "verify",
+            "elsewhere/bundle",
+            "--input",
+            "elsewhere/accounts-2026.csv",
+            "--rules",
+            "elsewhere/r.toml",
+        ],
+        "velmora_prices.csv",
+    );
 }
 
 #[test]

@@ -458,12 +458,13 @@ fn winsorizing_by_any_groups_matches_numpy_with_a_pooled_fallback() {
         })
         .collect::<Vec<_>>()
         .join("\n");
-    w.write("groups.toml", &by_group);
+    // Beside the demo's rules: the files it joins are named relative to it.
+    w.write("d/data/groups.toml", &by_group);
     w.ok(&[
         "build",
         "d/data/velmora_accounts.csv",
         "--rules",
-        "groups.toml",
+        "d/data/groups.toml",
         "--out",
         "b",
     ]);
@@ -484,7 +485,7 @@ fn winsorizing_by_any_groups_matches_numpy_with_a_pooled_fallback() {
     );
     // A grouping column the data lacks is refused in one line, before anything is written.
     w.write(
-        "bad.toml",
+        "d/data/bad.toml",
         &by_group.replace("\"sector\", \"fiscal_year\"", "\"nosuch\""),
     );
     w.fails(
@@ -492,7 +493,7 @@ fn winsorizing_by_any_groups_matches_numpy_with_a_pooled_fallback() {
             "build",
             "d/data/velmora_accounts.csv",
             "--rules",
-            "bad.toml",
+            "d/data/bad.toml",
             "--out",
             "b2",
         ],

@@ -2,6 +2,7 @@
 
 mod util;
 
+mod assemble;
 mod cli;
 mod conservation;
 mod demo;

@@ -114,13 +114,16 @@ fn variable_audit_matches_the_references_on_the_demo_panel() {
             )
         })
         .collect();
-    // The planted time-invariant columns, the macro series and firm age, and nothing else.
+    // The planted time-invariant columns, the macro series and firm age, the joined firm
+    // listing and price index, and nothing else.
     let want = [
         ("founded", "entity"),
         ("gdp_growth", "period"),
         ("firm_age", "entity+period"),
         ("sector", "entity"),
         ("region", "entity"),
+        ("listing", "entity"),
+        ("cpi", "period"),
     ];
     assert_eq!(absorbed.len(), want.len(), "{absorbed:?}");
     for (v, by) in want {

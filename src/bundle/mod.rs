@@ -39,6 +39,9 @@ pub struct Manifest {
     /// The corrections file applied, if any (`[repair] corrections`).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub corrections: Option<CorrectionsRecord>,
+    /// Further raw files joined onto the input (`[[join]]`), in order.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub joins: Vec<JoinedRecord>,
     /// The overall verdict of the readiness report (null in bundles made before it was
     /// recorded, or when nothing was judged).
     #[serde(default)]
@@ -86,6 +89,21 @@ pub struct CorrectionsRecord {
     pub cells: u64,
 }
 
+/// A joined file in the manifest.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct JoinedRecord {
+    /// The file's name as the rules file gives it (relative to the rules file).
+    pub name: String,
+    /// Absolute path where the bundle was built (a hint).
+    pub path: String,
+    /// SHA-256 of its bytes.
+    pub sha256: String,
+    /// Rows read.
+    pub rows: u64,
+    /// Its rows in the rejects ledger: `rows` = rows that matched the panel + these.
+    pub rejected: u64,
+}
+
 /// The rules file in the manifest.
 #[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct RulesRecord {
@@ -105,7 +123,8 @@ pub struct RowCounts {
     pub input: u64,
     /// Rows in the cleaned panel.
     pub kept: u64,
-    /// Rows in the rejects ledger.
+    /// Rows of the input in the rejects ledger (rows of joined files there are counted in
+    /// `joins`).
     pub rejected: u64,
 }
 
@@ -299,10 +318,28 @@ fn write_files(
                 sha256: sha256.clone(),
                 cells: p.report.repairs.as_ref().map_or(0, |r| r.corrected_cells),
             }),
+        joins: cfg
+            .input
+            .rules
+            .file
+            .join
+            .iter()
+            .zip(&p.joined_files)
+            .map(|(spec, j)| JoinedRecord {
+                name: spec.file.clone(),
+                path: std::path::absolute(&j.path)
+                    .unwrap_or_else(|_| j.path.clone())
+                    .display()
+                    .to_string(),
+                sha256: j.sha256.clone(),
+                rows: j.rows,
+                rejected: j.ledger_rows,
+            })
+            .collect(),
         rows: RowCounts {
             input: p.report.input.rows,
             kept: p.panel.height() as u64,
-            rejected: p.rejected.height() as u64,
+            rejected: p.rejected_main,
         },
         outputs,
     };

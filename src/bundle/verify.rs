@@ -106,6 +106,28 @@ pub fn verify(dir: &Path, moved: &Relocated) -> Result<Verification> {
             Rules::from_path(&p)?
         }
     };
+    // Files the rules file names (joined tables, the corrections file) are read beside it:
+    // they must be the ones the bundle was built from.
+    let base = crate::assemble::rules_dir(&rules);
+    let mut named: Vec<(PathBuf, &str)> = manifest
+        .joins
+        .iter()
+        .map(|j| (base.join(&j.name), j.sha256.as_str()))
+        .collect();
+    if let (Some(c), Some(file)) = (&manifest.corrections, &rules.file.repair.corrections) {
+        named.push((base.join(file), c.sha256.as_str()));
+    }
+    for (path, sha256) in named {
+        if sha256_file(&path).ok().as_deref() != Some(sha256) {
+            return Err(Error::VerifyInput {
+                path,
+                message: "not the file the bundle was built from (missing, or its SHA-256 \
+                          differs from the manifest's); the rules file names it, relative to \
+                          the rules file"
+                    .into(),
+            });
+        }
+    }
     let mut found = Verification {
         other_version: (manifest.tool_version != env!("CARGO_PKG_VERSION"))
             .then(|| manifest.tool_version.clone()),

@@ -89,11 +89,18 @@ pub(super) fn dictionary(
                     String::new(),
                     "input file".to_string(),
                 ),
-                None => (
-                    "row number in the input file (1 = first data row)".to_string(),
-                    String::new(),
-                    "panelready".to_string(),
-                ),
+                None => match report.joins.iter().find(|j| j.columns.contains(&name)) {
+                    Some(j) => (
+                        format!("joined from `{}` on {}", j.file, j.on.join(", ")),
+                        String::new(),
+                        j.file.clone(),
+                    ),
+                    None => (
+                        "row number in the input file (1 = first data row)".to_string(),
+                        String::new(),
+                        "panelready".to_string(),
+                    ),
+                },
             };
             DictionaryEntry {
                 missing_share: missing(&name),

@@ -2,6 +2,7 @@
 
 use polars::prelude::*;
 
+use crate::assemble;
 use crate::audit::model::{Effects, ModelSpec};
 use crate::audit::{self, accounting, Check, Context, CutoffGroups, Options, Settings};
 use crate::clean::balance::{self, Balance};
@@ -47,6 +48,24 @@ pub struct Prepared {
     pub corrections_file: Option<(std::path::PathBuf, String)>,
     /// One entry per column of the panel, for `dictionary.md`.
     pub dictionary: Vec<DictionaryEntry>,
+    /// Rows of the main file in the rejects ledger (the ledger also holds joined tables'
+    /// rows): rows read = panel rows + these.
+    pub rejected_main: u64,
+    /// The joined tables, for the manifest.
+    pub joined_files: Vec<JoinedFile>,
+}
+
+/// A joined table as the manifest records it.
+#[derive(Debug, Clone)]
+pub struct JoinedFile {
+    /// Where it was read from.
+    pub path: std::path::PathBuf,
+    /// Its bytes' SHA-256.
+    pub sha256: String,
+    /// Rows read.
+    pub rows: u64,
+    /// Its rows in the rejects ledger (all but the rows that matched the panel).
+    pub ledger_rows: u64,
 }
 
 /// One variable of the data dictionary.
@@ -91,17 +110,22 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
     }
     let corrections = match &rules.file.repair.corrections {
         Some(name) => {
-            let base = rules
-                .path
-                .as_deref()
-                .and_then(|p| p.parent())
-                .map(|p| p.to_path_buf())
-                .unwrap_or_default();
+            let base = assemble::rules_dir(rules);
             Some(repair::read_corrections(&base.join(name))?)
         }
         None => None,
     };
-    let loaded = load::load(input)?;
+    // Joined tables are read and checked before the main file.
+    let tables = assemble::read_tables(rules, &input.csv, &input.entity, &input.period)?;
+    let joined_columns: Vec<String> = tables.iter().flat_map(|t| t.brought.clone()).collect();
+    let loaded = load::load(input, &joined_columns)?;
+    // The panel's columns: the main file's, then each joined table's.
+    let columns: Vec<String> = loaded
+        .columns
+        .iter()
+        .chain(&joined_columns)
+        .cloned()
+        .collect();
     if let DuplicatePolicy::PreferMax(c) | DuplicatePolicy::PreferMin(c) = &policy {
         if !loaded.columns.contains(c) {
             return Err(Error::MissingColumn {
@@ -112,8 +136,8 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
         }
     }
     progress.stage("key steps");
-    let plan = Plan::new(rules, &loaded.columns)?;
-    let (accounting_rules, skipped_rules) = accounting::compile(rules, &loaded.columns)?;
+    let plan = Plan::new(rules, &columns)?;
+    let (accounting_rules, skipped_rules) = accounting::compile(rules, &columns)?;
     let verdict_levels = audit::verdict::Levels::from_rules(&rules.file)?;
     let keys = Keys {
         file: &input.path,
@@ -127,8 +151,28 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
     let mut ledger_parts = resolved.rejected;
     let mut kept = resolved.kept;
 
+    // Further tables joined onto the panel, each with its match report.
+    let mut join_lines = Vec::new();
+    let mut join_ledgers = Vec::new();
+    for t in &tables {
+        progress.stage(&format!("joining {}", t.name()));
+        let joined = assemble::join(kept, t, &keys)?;
+        kept = joined.panel;
+        if let Some(removed) = joined.dropped {
+            ledger_parts.push(removed);
+            steps.push(SampleStep::after(
+                &steps,
+                &format!("join {}: rows without a match", t.name()),
+                &kept,
+                &input.entity,
+            )?);
+        }
+        join_ledgers.push(joined.ledger);
+        join_lines.push(joined.line);
+    }
+
     // Repairs right after the key steps, so that rules and derived variables see them.
-    let levels = level_columns(rules, &loaded.columns, input)?;
+    let levels = level_columns(rules, &columns, input)?;
     let mut corrected = Vec::new();
     let (mut corrected_cells, mut slips_repaired) = (0u64, 0u64);
     if let Some(c) = &corrections {
@@ -230,7 +274,7 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
     let with_hidden = lf.collect()?;
     let derived = plan.null_counts(&with_hidden)?;
     let mut order = vec![col(ROW)];
-    order.extend(loaded.columns.iter().map(|c| col(c.as_str())));
+    order.extend(columns.iter().map(|c| col(c.as_str())));
     order.extend(plan.vars.iter().map(|v| col(v.name.as_str())));
     let mut panel = with_hidden.lazy().drop(cols(hidden)).select(order);
     if layout == Layout::Any {
@@ -259,6 +303,7 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
         notes: loaded.notes.clone(),
     });
     report.keys = resolved.keys;
+    report.joins = join_lines;
     report.keys.year_end_changes = loaded.year_end_changes.clone();
     if corrections.is_some() || slip_policy != repair::SlipPolicy::Report {
         report.repairs = Some(crate::report::Repairs {
@@ -327,7 +372,7 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
         .map(|c| rules.resolve(c))
         .collect();
     for c in &categorical {
-        if !loaded.columns.contains(c) {
+        if !columns.contains(c) {
             return Err(Error::MissingColumn {
                 file: input.path.clone(),
                 column: c.clone(),
@@ -427,22 +472,40 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
     for part in ledger_parts {
         rejected.vstack_mut(&part)?;
     }
-    let mut rejected = rejected.lazy().sort([ROW], Default::default()).collect()?;
-    let mut taken: Vec<String> = loaded.columns.clone();
+    let rejected_main = rejected.height() as u64;
+    let mut rejected = if tables.is_empty() {
+        rejected.lazy().sort([ROW], Default::default()).collect()?
+    } else {
+        assemble::ledger(rejected, &report.input.path, join_ledgers)?
+    };
+    let mut taken: Vec<String> = columns.clone();
     taken.extend(plan.vars.iter().map(|v| v.name.clone()));
     for (internal, base) in [
         (ROW, "source_row"),
         (clean::STEP, "step"),
         (clean::REASON, "reason"),
         (clean::RELATED, "related_row"),
+        (assemble::FILE, "source_file"),
     ] {
         let name = output_name(base, &taken);
         if internal == ROW {
             panel.rename(internal, name.as_str().into())?;
         }
-        rejected.rename(internal, name.as_str().into())?;
+        if rejected.schema().contains(internal) {
+            rejected.rename(internal, name.as_str().into())?;
+        }
     }
     let dictionary = dictionary(&panel, &report, input, &loaded.columns);
+    let joined_files = tables
+        .iter()
+        .zip(&report.joins)
+        .map(|(t, line)| JoinedFile {
+            path: t.path.clone(),
+            sha256: t.sha256.clone(),
+            rows: t.rows,
+            ledger_rows: line.rows - line.rows_used,
+        })
+        .collect();
     Ok(Prepared {
         report,
         panel,
@@ -450,6 +513,8 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
         corrections: corrections_ledger,
         corrections_file: corrections.map(|c| (c.path, c.sha256)),
         dictionary,
+        rejected_main,
+        joined_files,
     })
 }
 

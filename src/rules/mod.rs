@@ -81,6 +81,38 @@ pub struct RulesFile {
     /// The verdict level of each finding.
     #[serde(default)]
     pub verdict: VerdictSection,
+    /// Further raw files joined onto the main one (`[[join]]`), in order.
+    #[serde(default)]
+    pub join: Vec<JoinSpec>,
+}
+
+/// `[[join]]`: a further raw file (firm-year, firm, year or group-year table) joined onto the
+/// panel after the key steps.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct JoinSpec {
+    /// The file, relative to the rules file (CSV, Parquet or spreadsheet; CSV read with the
+    /// main file's `[input]` settings).
+    pub file: String,
+    /// The columns matched, as named in the panel: the entity and period columns, or a group
+    /// column of the panel.
+    pub on: Vec<String>,
+    /// The columns brought in, as named in the panel (default: every other column).
+    #[serde(default)]
+    pub columns: Option<Vec<String>>,
+    /// Column names of the joined file -> names in the panel.
+    #[serde(default)]
+    pub rename: BTreeMap<String, String>,
+    /// `"fail"` (default) or `"keep-first"` when a key repeats with other values.
+    #[serde(default)]
+    pub duplicates: Option<String>,
+    /// `"keep"` (default: left join) or `"drop"` (panel rows without a match go to the
+    /// ledger).
+    #[serde(default)]
+    pub unmatched: Option<String>,
+    /// The sheet of a spreadsheet file (default: the first).
+    #[serde(default)]
+    pub sheet: Option<String>,
 }
 
 /// `[verdict]`: what each finding makes the verdict: `"pass"`, `"warn"` or `"fail"`.

@@ -220,7 +220,10 @@ def main():
         sys.path.insert(0, HERE)
         import ratios  # the demo's derived ratios, computed independently
 
+        import assemble  # the further raw files of the demo, joined independently
+
         df = df.join(ratios.expected(df).drop(columns=[entity, period]))
+        df = assemble.with_joins(df, raw_path, entity, period)
     want = structure(df, entity, period, names)
     want["keys"] = keys
     failures, counter = [], [0]

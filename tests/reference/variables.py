@@ -177,7 +177,10 @@ def main():
     if "assets_total" in df.columns:
         import ratios  # the demo's derived ratios, computed independently
 
+        import assemble  # the further raw files of the demo, joined independently
+
         df = df.join(ratios.expected(df).drop(columns=[entity, period]))
+        df = assemble.with_joins(df, raw_path, entity, period)
     if "age" in derived:
         df["age"] = df[period] - df["founded"]  # the Grunfeld check's invented firm age
     check_variation(df, entity, period, report)

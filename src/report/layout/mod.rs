@@ -128,21 +128,85 @@ pub(crate) fn strings(xs: &[&str]) -> Vec<String> {
 
 /// The whole report as sections.
 pub(crate) fn sections(r: &Report) -> Vec<Section> {
-    vec![
-        glance(r),
-        keys(r),
-        coverage(r),
-        entry_exit(r),
-        variation(r),
-        absorbed(r),
-        missing(r),
-        outliers(r),
-        accounting(r),
-        derived(r),
-        model(r),
-        sample(r),
-        verdict(r),
-    ]
+    let joins = (!r.joins.is_empty()).then(|| joins(r));
+    [glance(r), keys(r)]
+        .into_iter()
+        .chain(joins)
+        .chain([
+            coverage(r),
+            entry_exit(r),
+            variation(r),
+            absorbed(r),
+            missing(r),
+            outliers(r),
+            accounting(r),
+            derived(r),
+            model(r),
+            sample(r),
+            verdict(r),
+        ])
+        .collect()
+}
+
+/// How each joined table matched the panel.
+fn joins(r: &Report) -> Section {
+    let mut blocks = Vec::new();
+    for j in &r.joins {
+        blocks.push(Block::Heading(format!(
+            "{} ({}, on {})",
+            j.file,
+            j.kind,
+            j.on.join(", ")
+        )));
+        let mut rows = vec![
+            ("columns brought in", j.columns.join(", ")),
+            ("rows in the file", j.rows.to_string()),
+            ("rows that matched the panel", j.rows_used.to_string()),
+            (
+                "rows that matched no panel row",
+                j.rows_unmatched.to_string(),
+            ),
+        ];
+        for (label, n) in [
+            ("rows with an empty key", j.missing_keys),
+            ("exact copies", j.exact_copies),
+            ("repeated keys (first kept)", j.repeated_keys),
+        ] {
+            if n > 0 {
+                rows.push((label, n.to_string()));
+            }
+        }
+        rows.push((
+            "panel rows without a match",
+            format!("{} of {}", j.panel_rows_unmatched, j.panel_rows),
+        ));
+        rows.push((
+            "panel keys without a match",
+            format!("{} of {}", j.panel_keys_unmatched, j.panel_keys),
+        ));
+        blocks.push(pairs(&rows));
+        let mut note = format!(
+            "Every row of `{}` that did not match the panel is in the rejects ledger under its \
+             file name.",
+            j.file
+        );
+        if j.panel_rows_unmatched > 0 {
+            note.push_str(&format!(
+                " Panel rows without a match {} (first keys: {}).",
+                if j.unmatched == "drop" {
+                    "were dropped into the ledger (`unmatched = \"drop\"`)"
+                } else {
+                    "are kept with empty joined columns"
+                },
+                j.examples.join("; ")
+            ));
+        }
+        blocks.push(Block::Note(note));
+    }
+    Section {
+        title: "Joined files",
+        blocks,
+    }
 }
 
 fn glance(r: &Report) -> Section {

@@ -77,6 +77,9 @@ pub struct Report {
     /// Repairs applied before the checks (`build` and `audit` alike), if any was asked for.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub repairs: Option<Repairs>,
+    /// Further raw files joined onto the panel (`[[join]]`), each with its match report.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub joins: Vec<JoinLine>,
 }
 
 /// The degrees-of-freedom convention of the variation figures.
@@ -117,6 +120,7 @@ impl Report {
             model: None,
             verdict: None,
             repairs: None,
+            joins: Vec::new(),
         }
     }
 }
@@ -267,6 +271,45 @@ pub struct Repairs {
     pub unit_slips: String,
     /// Unit slips repaired (a jump by a power of 1000 that returns the next period).
     pub unit_slips_repaired: u64,
+}
+
+/// How one joined table matched the panel. Its rows balance:
+/// `rows = rows_used + rows_unmatched + missing_keys + exact_copies + repeated_keys`, and every
+/// row but the used ones is in the rejects ledger under the table's file name.
+#[derive(Debug, Clone, Serialize)]
+pub struct JoinLine {
+    /// The file's name.
+    pub file: String,
+    /// "entity-period table", "entity table", "period table", "group-period table", ...
+    pub kind: String,
+    /// The columns matched, as named in the panel.
+    pub on: Vec<String>,
+    /// The columns brought in.
+    pub columns: Vec<String>,
+    /// Rows read from the file.
+    pub rows: u64,
+    /// Rows that matched at least one panel row.
+    pub rows_used: u64,
+    /// Rows that matched no panel row.
+    pub rows_unmatched: u64,
+    /// Rows with an empty key column.
+    pub missing_keys: u64,
+    /// Rows that exactly repeat an earlier row.
+    pub exact_copies: u64,
+    /// Rows whose key repeats an earlier row with other values (dropped by keep-first).
+    pub repeated_keys: u64,
+    /// Panel rows when joined.
+    pub panel_rows: u64,
+    /// Panel rows without a matching row in the file.
+    pub panel_rows_unmatched: u64,
+    /// Distinct keys (`on`) of the panel.
+    pub panel_keys: u64,
+    /// Distinct panel keys without a matching row in the file.
+    pub panel_keys_unmatched: u64,
+    /// Up to five unmatched panel keys, `a / b` for two columns.
+    pub examples: Vec<String>,
+    /// What happened to unmatched panel rows: "keep" (empty columns) or "drop" (ledger).
+    pub unmatched: String,
 }
 
 /// One line of the sample-construction table.

@@ -1,0 +1,610 @@
+//! Several raw files into one panel: further tables (`[[join]]`) read and checked before the
+//! main file, then joined onto the panel after its key steps, each with a match report. Rows
+//! of a joined table that match no panel row, and the copies and repeats it had to drop, go to
+//! the rejects ledger under the table's file name.
+
+use std::path::{Path, PathBuf};
+
+use polars::prelude::*;
+
+use crate::clean::{self, Keys, REASON, RELATED, STEP};
+use crate::config::CsvOptions;
+use crate::load::ROW;
+use crate::report::JoinLine;
+use crate::rules::{JoinSpec, Rules};
+use crate::{Error, Result};
+
+/// The internal column holding the file a ledger row came from (`source_file` in the output).
+pub const FILE: &str = "__file";
+
+/// A joined table, read and checked, its keys unique.
+pub struct Table {
+    /// Where it was read from.
+    pub path: PathBuf,
+    /// Its bytes' SHA-256, for the manifest.
+    pub sha256: String,
+    /// The columns matched, as named in the panel.
+    pub on: Vec<String>,
+    /// The columns brought in, as named in the panel.
+    pub brought: Vec<String>,
+    /// Rows read.
+    pub rows: u64,
+    /// One row per key: `ROW` (its row in the file), the `on` columns, the brought columns.
+    df: DataFrame,
+    /// Rows set aside while reading (missing key, exact copy, repeated key): `ROW`, the `on`
+    /// columns, `STEP`, `REASON`, `RELATED`.
+    set_aside: DataFrame,
+    missing_keys: u64,
+    exact_copies: u64,
+    repeated_keys: u64,
+    drop_unmatched: bool,
+}
+
+impl Table {
+    /// The file's name, as the report and the ledger give it.
+    pub fn name(&self) -> String {
+        self.path
+            .file_name()
+            .map(|n| n.to_string_lossy().to_string())
+            .unwrap_or_else(|| self.path.display().to_string())
+    }
+}
+
+/// What kind of table `on` makes it, in the report's words.
+fn kind(on: &[String], entity: &str, period: &str) -> &'static str {
+    let has = |c: &str| on.iter().any(|o| o == c);
+    match (has(entity), has(period), on.len()) {
+        (true, true, 2) => "entity-period table",
+        (true, false, 1) => "entity table",
+        (false, true, 1) => "period table",
+        (false, true, _) => "group-period table",
+        (true, _, _) => "entity table with groups",
+        _ => "group table",
+    }
+}
+
+/// The folder names in the rules file are relative to.
+pub fn rules_dir(rules: &Rules) -> PathBuf {
+    rules
+        .path
+        .as_deref()
+        .and_then(Path::parent)
+        .map(Path::to_path_buf)
+        .unwrap_or_default()
+}
+
+fn setting(message: String) -> Error {
+    Error::Setting {
+        setting: "[[join]]",
+        message,
+    }
+}
+
+/// Read every `[[join]]` table of the rules file, before the main file is read.
+pub fn read_tables(
+    rules: &Rules,
+    csv: &CsvOptions,
+    entity: &str,
+    period: &str,
+) -> Result<Vec<Table>> {
+    let base = rules_dir(rules);
+    rules
+        .file
+        .join
+        .iter()
+        .map(|spec| read_table(spec, &base.join(&spec.file), csv, entity, period))
+        .collect()
+}
+
+fn read_table(
+    spec: &JoinSpec,
+    path: &Path,
+    csv: &CsvOptions,
+    entity: &str,
+    period: &str,
+) -> Result<Table> {
+    let keep_first = match spec.duplicates.as_deref() {
+        None | Some("fail") => false,
+        Some("keep-first") => true,
+        Some(other) => {
+            return Err(setting(format!(
+                "`{}`: duplicates = \"{other}\": use \"fail\" or \"keep-first\"",
+                spec.file
+            )))
+        }
+    };
+    let drop_unmatched = match spec.unmatched.as_deref() {
+        None | Some("keep") => false,
+        Some("drop") => true,
+        Some(other) => {
+            return Err(setting(format!(
+                "`{}`: unmatched = \"{other}\": use \"keep\" or \"drop\"",
+                spec.file
+            )))
+        }
+    };
+    if spec.on.is_empty() {
+        return Err(setting(format!(
+            "`{}`: `on` names no column to match",
+            spec.file
+        )));
+    }
+    let format = crate::config::format_from_extension(path)?;
+    let bytes = std::fs::read(path).map_err(Error::io(path))?;
+    let sha256 = crate::bundle::sha256_hex(&bytes);
+    drop(bytes);
+    let raw = crate::load::read_raw(path, format, csv, spec.sheet.as_deref())?;
+    let missing = |column: &str, context: &str| Error::MissingColumn {
+        file: path.to_path_buf(),
+        column: column.to_string(),
+        context: context.to_string(),
+    };
+    let names: Vec<String> = raw
+        .get_column_names()
+        .iter()
+        .map(|c| c.to_string())
+        .collect();
+    if let Some(c) = names.iter().find(|c| c.starts_with("__")) {
+        return Err(missing(
+            c,
+            "names starting with `__` are reserved for panelready; rename the column",
+        ));
+    }
+    for from in spec.rename.keys() {
+        if !names.contains(from) {
+            return Err(missing(from, "named in `rename` of its [[join]]"));
+        }
+    }
+    // Every column under its panel name.
+    let renamed: Vec<String> = names
+        .iter()
+        .map(|c| spec.rename.get(c).cloned().unwrap_or_else(|| c.clone()))
+        .collect();
+    for (i, a) in renamed.iter().enumerate() {
+        if renamed[..i].contains(a) {
+            return Err(missing(a, "two columns of the file would take this name"));
+        }
+    }
+    for o in &spec.on {
+        if !renamed.contains(o) {
+            return Err(missing(o, "named in `on` of its [[join]] (after `rename`)"));
+        }
+    }
+    let brought: Vec<String> = match &spec.columns {
+        Some(list) => {
+            for c in list {
+                if !renamed.contains(c) {
+                    return Err(missing(c, "named in `columns` of its [[join]]"));
+                }
+                if spec.on.contains(c) {
+                    return Err(setting(format!(
+                        "`{}`: `{c}` is in both `on` and `columns`",
+                        spec.file
+                    )));
+                }
+            }
+            list.clone()
+        }
+        None => renamed
+            .iter()
+            .filter(|c| !spec.on.contains(c))
+            .cloned()
+            .collect(),
+    };
+    if brought.is_empty() {
+        return Err(setting(format!(
+            "`{}`: no column to bring in besides `on`",
+            spec.file
+        )));
+    }
+    let rows = raw.height() as u64;
+    let mut select: Vec<Expr> = vec![col(ROW)];
+    for (raw_name, name) in names.iter().zip(&renamed) {
+        if spec.on.contains(name) || brought.contains(name) {
+            select.push(col(raw_name.as_str()).alias(name.as_str()));
+        }
+    }
+    let df = raw
+        .lazy()
+        .with_row_index(ROW, Some(1))
+        .select(select)
+        .collect()?;
+    // The entity as text, the period as a whole number, as the main file's keys are typed.
+    let mut df = df;
+    for o in &spec.on {
+        if o == entity {
+            df = cast_key(df, o, &DataType::String, path)?;
+        } else if o == period {
+            df = cast_key(df, o, &DataType::Int64, path)?;
+        }
+    }
+    let on: Vec<Expr> = spec.on.iter().map(|c| col(c.as_str())).collect();
+    let all: Vec<Expr> = spec
+        .on
+        .iter()
+        .chain(&brought)
+        .map(|c| col(c.as_str()))
+        .collect();
+    let key_missing = spec
+        .on
+        .iter()
+        .map(|c| col(c.as_str()).is_null())
+        .reduce(|a, b| a.or(b))
+        .expect("`on` is not empty");
+    let marked = df
+        .lazy()
+        .with_columns([
+            key_missing.alias("__missing"),
+            col(ROW).min().over(all.clone())?.alias("__copy_of"),
+            col(ROW).min().over(on.clone())?.alias("__first"),
+        ])
+        .collect()?;
+    let tag = |filter: Expr, step: &str, reason: &str, related: Expr| -> Result<DataFrame> {
+        let mut select = vec![col(ROW)];
+        select.extend(on.iter().cloned());
+        select.extend([
+            lit(step.to_string()).alias(STEP),
+            lit(reason.to_string()).alias(REASON),
+            related.cast(IDX_DTYPE).alias(RELATED),
+        ]);
+        Ok(marked
+            .clone()
+            .lazy()
+            .filter(filter)
+            .select(select)
+            .collect()?)
+    };
+    let present = col("__missing").not();
+    let missing_rows = tag(
+        col("__missing"),
+        "join: missing key",
+        "a column of `on` is empty",
+        lit(NULL),
+    )?;
+    let copies = tag(
+        present.clone().and(col("__copy_of").neq(col(ROW))),
+        "join: exact copies",
+        "an exact copy of an earlier row",
+        col("__copy_of"),
+    )?;
+    let distinct = present.and(col("__copy_of").eq(col(ROW)));
+    let repeats = tag(
+        distinct.clone().and(col("__first").neq(col(ROW))),
+        "join: repeated key",
+        "its key repeats an earlier row with other values (keep-first)",
+        col("__first"),
+    )?;
+    if repeats.height() > 0 && !keep_first {
+        let row = repeats.column(ROW)?.cast(&DataType::Int64)?;
+        let first = repeats.column(RELATED)?.cast(&DataType::Int64)?;
+        return Err(Error::Unreadable {
+            file: path.to_path_buf(),
+            at: format!(", row {}", row.i64()?.get(0).unwrap_or(0)),
+            message: format!(
+                "{} rows repeat the key ({}) of an earlier row with other values (the first: \
+                 row {}); a joined table needs one row per key, or `duplicates = \"keep-first\"` \
+                 in its [[join]]",
+                repeats.height(),
+                spec.on.join(", "),
+                first.i64()?.get(0).unwrap_or(0)
+            ),
+        });
+    }
+    let kept = marked
+        .lazy()
+        .filter(distinct.and(col("__first").eq(col(ROW))))
+        .drop(cols(["__missing", "__copy_of", "__first"]))
+        .collect()?;
+    let (missing_keys, exact_copies, repeated_keys) = (
+        missing_rows.height() as u64,
+        copies.height() as u64,
+        repeats.height() as u64,
+    );
+    let mut set_aside = missing_rows;
+    set_aside.vstack_mut(&copies)?;
+    set_aside.vstack_mut(&repeats)?;
+    Ok(Table {
+        path: path.to_path_buf(),
+        sha256,
+        on: spec.on.clone(),
+        brought,
+        rows,
+        df: kept,
+        set_aside,
+        missing_keys,
+        exact_copies,
+        repeated_keys,
+        drop_unmatched,
+    })
+}
+
+/// Cast a key column to `dtype`; a value that does not convert is an error naming its row.
+fn cast_key(df: DataFrame, column: &str, dtype: &DataType, path: &Path) -> Result<DataFrame> {
+    if df.column(column)?.dtype() == dtype {
+        return Ok(df);
+    }
+    let source = df.column(column)?.dtype().clone();
+    // Text is trimmed first; a whole number written as a decimal (2015.0) is accepted.
+    let text_first = matches!(source, DataType::String) && dtype.is_integer();
+    let converted = if text_first {
+        col(column)
+            .str()
+            .strip_chars(lit(NULL))
+            .cast(DataType::Float64)
+    } else {
+        col(column)
+    };
+    let converted = if dtype.is_integer() && (text_first || source.is_float()) {
+        let f = converted.cast(DataType::Float64);
+        when(f.clone().eq(f.clone().floor()))
+            .then(f.cast(dtype.clone()))
+            .otherwise(lit(NULL).cast(dtype.clone()))
+    } else {
+        converted.cast(dtype.clone())
+    };
+    let marked = df.lazy().with_column(converted.alias("__cast")).collect()?;
+    let bad = marked
+        .clone()
+        .lazy()
+        .filter(col(column).is_not_null().and(col("__cast").is_null()))
+        .select([col(ROW), col(column).cast(DataType::String)])
+        .limit(1)
+        .collect()?;
+    if bad.height() > 0 {
+        return Err(Error::Unreadable {
+            file: path.to_path_buf(),
+            at: format!(
+                ", row {}",
+                bad.column(ROW)?
+                    .cast(&DataType::Int64)?
+                    .i64()?
+                    .get(0)
+                    .unwrap_or(0)
+            ),
+            message: format!(
+                "`{column}` holds `{}`, which does not match the panel's `{column}` ({})",
+                bad.column(column)?.str()?.get(0).unwrap_or(""),
+                if dtype.is_integer() {
+                    "whole numbers"
+                } else {
+                    "its type"
+                }
+            ),
+        });
+    }
+    Ok(marked
+        .lazy()
+        .drop(cols([column]))
+        .rename(["__cast"], [column], true)
+        .collect()?)
+}
+
+/// What joining one table did to the panel.
+pub struct Joined {
+    /// The panel with the table's columns.
+    pub panel: DataFrame,
+    /// Panel rows removed because they matched nothing (`unmatched = "drop"`), ledger-shaped.
+    pub dropped: Option<DataFrame>,
+    /// The table's rows that went to the ledger, ledger-shaped, with `FILE`.
+    pub ledger: DataFrame,
+    /// The match report.
+    pub line: JoinLine,
+}
+
+/// Join `t` onto `panel` (a left join on `t.on`, panel order kept).
+pub fn join(panel: DataFrame, t: &Table, k: &Keys) -> Result<Joined> {
+    let name = t.name();
+    let schema = panel.schema().clone();
+    for o in &t.on {
+        if !schema.contains(o) {
+            return Err(Error::MissingColumn {
+                file: t.path.clone(),
+                column: o.clone(),
+                context: "named in `on` of its [[join]], but the panel has no such column".into(),
+            });
+        }
+    }
+    if let Some(c) = t.brought.iter().find(|c| schema.contains(c.as_str())) {
+        return Err(Error::MissingColumn {
+            file: t.path.clone(),
+            column: c.clone(),
+            context: "the panel already has this column: leave it out with `columns` or give \
+                      it another name with `rename` in its [[join]]"
+                .into(),
+        });
+    }
+    // Group columns take the panel's type.
+    let mut table = t.df.clone();
+    for o in &t.on {
+        let dtype = schema.get(o.as_str()).expect("checked above");
+        table = cast_key(table, o, dtype, &t.path)?;
+    }
+    let on: Vec<Expr> = t.on.iter().map(|c| col(c.as_str())).collect();
+    let mut right: Vec<Expr> = on.clone();
+    right.extend(t.brought.iter().map(|c| col(c.as_str())));
+    right.push(lit(true).alias("__matched"));
+    let args = JoinArgs {
+        maintain_order: MaintainOrderJoin::Left,
+        ..JoinArgs::new(JoinType::Left)
+    };
+    let joined = panel
+        .lazy()
+        .join(
+            table.clone().lazy().select(right),
+            on.clone(),
+            on.clone(),
+            args,
+        )
+        .collect()?;
+    let unmatched_panel = joined
+        .clone()
+        .lazy()
+        .filter(col("__matched").is_null())
+        .select(on.clone())
+        .collect()?;
+    let unmatched_keys = unmatched_panel
+        .clone()
+        .lazy()
+        .unique(None, UniqueKeepStrategy::First)
+        .sort(t.on.clone(), Default::default())
+        .collect()?;
+    let examples = key_texts(&unmatched_keys.head(Some(5)))?;
+    let panel_rows = joined.height() as u64;
+    let panel_rows_unmatched = unmatched_panel.height() as u64;
+    let panel_keys = panel_keys_distinct(&joined, &t.on)?;
+    // The table's rows that found no panel row.
+    let panel_on = joined.clone().lazy().select(on.clone());
+    let lonely = table
+        .lazy()
+        .join(
+            panel_on,
+            on.clone(),
+            on.clone(),
+            JoinArgs::new(JoinType::Anti),
+        )
+        .select({
+            let mut s = vec![col(ROW)];
+            s.extend(on.iter().cloned());
+            s.extend([
+                lit("join: no match").alias(STEP),
+                lit("no panel row has this key").alias(REASON),
+                lit(NULL).cast(IDX_DTYPE).alias(RELATED),
+            ]);
+            s
+        })
+        .collect()?;
+    let rows_unmatched = lonely.height() as u64;
+    let mut aside = t.set_aside.clone();
+    aside.vstack_mut(&lonely)?;
+    let ledger = ledger_rows(aside, &schema, k.columns, &name)?;
+    let (panel, dropped) = if t.drop_unmatched {
+        let (kept, removed) = clean::drop_where(
+            joined,
+            when(col("__matched").is_null())
+                .then(lit(format!("no row of `{name}` matches its key")))
+                .otherwise(lit(NULL).cast(DataType::String)),
+            "join: unmatched",
+            k,
+        )?;
+        (kept, Some(removed))
+    } else {
+        (joined, None)
+    };
+    let panel = panel.drop("__matched")?;
+    let used = t.df.height() as u64 - rows_unmatched;
+    let line = JoinLine {
+        file: name,
+        kind: kind(&t.on, k.entity, k.period).to_string(),
+        on: t.on.clone(),
+        columns: t.brought.clone(),
+        rows: t.rows,
+        rows_used: used,
+        rows_unmatched,
+        missing_keys: t.missing_keys,
+        exact_copies: t.exact_copies,
+        repeated_keys: t.repeated_keys,
+        panel_rows,
+        panel_rows_unmatched,
+        panel_keys,
+        panel_keys_unmatched: unmatched_keys.height() as u64,
+        examples,
+        unmatched: if t.drop_unmatched { "drop" } else { "keep" }.into(),
+    };
+    Ok(Joined {
+        panel,
+        dropped,
+        ledger,
+        line,
+    })
+}
+
+fn panel_keys_distinct(df: &DataFrame, on: &[String]) -> Result<u64> {
+    let on: Vec<Expr> = on.iter().map(|c| col(c.as_str())).collect();
+    Ok(df
+        .clone()
+        .lazy()
+        .select(on)
+        .unique(None, UniqueKeepStrategy::Any)
+        .collect()?
+        .height() as u64)
+}
+
+/// Keys as text, `a / b` for two columns.
+fn key_texts(df: &DataFrame) -> Result<Vec<String>> {
+    let texts: Vec<Series> = df
+        .columns()
+        .iter()
+        .map(|c| {
+            c.cast(&DataType::String)
+                .map(|c| c.as_materialized_series().clone())
+        })
+        .collect::<PolarsResult<_>>()?;
+    Ok((0..df.height())
+        .map(|i| {
+            texts
+                .iter()
+                .map(|s| {
+                    s.str()
+                        .ok()
+                        .and_then(|s| s.get(i))
+                        .unwrap_or("(empty)")
+                        .to_string()
+                })
+                .collect::<Vec<_>>()
+                .join(" / ")
+        })
+        .collect())
+}
+
+/// A joined table's set-aside rows in the ledger's shape: `ROW`, `FILE`, `STEP`, `REASON`,
+/// `RELATED`, then the main file's columns (the key columns it shares, the rest empty).
+fn ledger_rows(
+    aside: DataFrame,
+    panel: &Schema,
+    columns: &[String],
+    name: &str,
+) -> Result<DataFrame> {
+    let have = aside.schema().clone();
+    let mut select = vec![
+        col(ROW),
+        lit(name.to_string()).alias(FILE),
+        col(STEP),
+        col(REASON),
+        col(RELATED),
+    ];
+    for c in columns {
+        let dtype = panel.get(c.as_str()).cloned().unwrap_or(DataType::String);
+        select.push(if have.contains(c) {
+            col(c.as_str()).cast(dtype).alias(c.as_str())
+        } else {
+            lit(NULL).cast(dtype).alias(c.as_str())
+        });
+    }
+    Ok(aside.lazy().select(select).collect()?)
+}
+
+/// Put the main file's ledger parts and the joined tables' in one ledger: the main file's rows
+/// first (by row), then each table's (by row), with the file of each row.
+pub fn ledger(main: DataFrame, main_name: &str, tables: Vec<DataFrame>) -> Result<DataFrame> {
+    let mut columns: Vec<Expr> = main
+        .get_column_names()
+        .iter()
+        .map(|c| col(c.as_str()))
+        .collect();
+    columns.insert(1, col(FILE));
+    let mut out = main
+        .lazy()
+        .sort([ROW], Default::default())
+        .with_column(lit(main_name.to_string()).alias(FILE))
+        .select(columns.clone())
+        .collect()?;
+    for t in tables {
+        let t = t
+            .lazy()
+            .sort([ROW], Default::default())
+            .select(columns.clone())
+            .collect()?;
+        out.vstack_mut(&t)?;
+    }
+    Ok(out)
+}
