@@ -95,6 +95,10 @@ pub struct PlantedTables {
     pub firms_strays: u64,
     /// Years of the price index beyond the accounts' window.
     pub price_years_beyond: u64,
+    /// Firms that moved their year end from December to March: the accounts' `fiscal_year`
+    /// runs on, but a fiscal year derived from `year_end` (a year ending January–May belongs
+    /// to the previous fiscal year) puts two of their rows into one year.
+    pub year_end_changes: Vec<String>,
 }
 
 /// The further raw files of the demo, column by column.
@@ -129,6 +133,8 @@ struct Columns {
     debt_short: Vec<Option<f64>>,
     debt_long: Vec<Option<f64>>,
     gdp_growth: Vec<f64>,
+    /// Filled after the defects are planted, from each row's firm and year.
+    year_end: Vec<Option<String>>,
 }
 
 impl Columns {
@@ -183,6 +189,7 @@ impl Columns {
             "debt_short" => round(self.debt_short),
             "debt_long" => round(self.debt_long),
             "gdp_growth" => self.gdp_growth.iter().map(|g| (g * 10000.0).round() / 10000.0).collect::<Vec<f64>>(),
+            "year_end" => self.year_end,
         )?)
     }
 }
@@ -199,6 +206,8 @@ fn generate_all(firms: u32, periods: u32, seed: u64) -> Result<(DataFrame, Plant
     let mut rng = ChaCha8Rng::seed_from_u64(seed);
     let mut side = ChaCha8Rng::seed_from_u64(seed.wrapping_add(0x5eed));
     let mut tables = Tables::default();
+    let mut year_ends: std::collections::HashMap<String, (u32, Option<i64>)> =
+        std::collections::HashMap::new();
     let std_normal = Normal::new(0.0, 1.0).expect("valid normal");
     let z = move |rng: &mut ChaCha8Rng| -> f64 { std_normal.sample(rng) };
     let t = periods as i64;
@@ -260,6 +269,16 @@ fn generate_all(firms: u32, periods: u32, seed: u64) -> Result<(DataFrame, Plant
             planted.tables.firms_left_out += 1;
         }
         let staff_per_asset = side.random_range(0.2..0.6);
+        // The year end: December for most firms, June or March for some; one firm in a
+        // hundred with four or more years moves from December to March two years in.
+        let month = match side.random_range(0..20) {
+            0..=2 => 6,
+            3..=5 => 3,
+            _ => 12,
+        };
+        let change = (month == 12 && last - first >= 3 && gap.is_none() && side.random_bool(0.03))
+            .then_some(FIRST_YEAR + first + 2);
+        year_ends.insert(id.clone(), (month, change));
         for y in 0..t {
             log_assets += 0.05 + 0.12 * z(&mut rng);
             let roa = roa_mean + 0.04 * z(&mut rng);
@@ -309,7 +328,44 @@ fn generate_all(firms: u32, periods: u32, seed: u64) -> Result<(DataFrame, Plant
     planted.zero_interest_rows = c.interest.iter().filter(|v| **v == Some(0.0)).count() as u64;
     planted.missing_rd_rows = c.rnd.iter().filter(|v| v.is_none()).count() as u64;
     plant_table_defects(&mut tables, &mut planted.tables, &mut side, t, width);
+    c.year_end = year_end_dates(&c, &year_ends);
+    let mut changed: Vec<String> = year_ends
+        .iter()
+        .filter(|(_, (_, change))| change.is_some())
+        .map(|(firm, _)| firm.clone())
+        .collect();
+    changed.sort();
+    planted.tables.year_end_changes = changed;
     Ok((c.into_frame()?, planted, tables))
+}
+
+/// Each row's fiscal-year-end date, `YYYY-MM-DD`: a year ending in June or December is the
+/// fiscal year of its calendar year; one ending in March closes the fiscal year before (so
+/// fiscal year Y ends on 31 March of Y + 1), except after a firm's move from December to
+/// March, where the accounts keep counting years on (fiscal year Y then ends 31 March of Y).
+/// Rows without a firm take December; rows without a year have no date.
+fn year_end_dates(
+    c: &Columns,
+    year_ends: &std::collections::HashMap<String, (u32, Option<i64>)>,
+) -> Vec<Option<String>> {
+    c.firm
+        .iter()
+        .zip(&c.year)
+        .map(|(firm, year)| {
+            let year = (*year)?;
+            let (month, change) = firm
+                .as_ref()
+                .and_then(|f| year_ends.get(f))
+                .copied()
+                .unwrap_or((12, None));
+            Some(match (month, change) {
+                (12, Some(k)) if year >= k => format!("{year}-03-31"),
+                (12, _) => format!("{year}-12-31"),
+                (6, _) => format!("{year}-06-30"),
+                _ => format!("{}-03-31", year + 1),
+            })
+        })
+        .collect()
 }
 
 /// The further files' own defects: headcount typos (set right by the corrections file), stray
@@ -526,6 +582,37 @@ duplicates = "keep-first"
 winsorize = { variables = ["roa", "roa_lagged_assets", "leverage", "interest_cover", "sales_growth", "asset_growth", "working_capital_assets", "rd_assets"], lower = 0.01, upper = 0.99, by = "pooled" }
 "#;
 
+/// A second rules file for the demo: the fiscal year derived from the year-end date instead
+/// of taken from `fiscal_year`.
+pub const RULES_YEAR_END: &str = r#"# The Velmora accounts with the fiscal year derived from each row's year-end date, not
+# taken from the accounts' own `fiscal_year` column (invented data). A year ending January to
+# May belongs to the previous fiscal year (common practice). Firms that moved their year end
+# show up in the Keys section, and the two rows they put into one fiscal year are conflicting
+# keys, handled by [clean] duplicates.
+include = ["standard"]
+
+[panel]
+entity = "firm_id"
+period = "fiscal_year_from_date"
+year_end = "year_end"
+year_end_cutoff = 5
+
+[columns]
+total_assets = "assets_total"
+sales = "revenue"
+net_income = "net_profit"
+ebit = "op_profit"
+interest_expense = "interest_paid"
+rd_expense = "rnd_spend"
+current_assets = "cur_assets"
+current_liabilities = "cur_liabilities"
+short_term_debt = "debt_short"
+long_term_debt = "debt_long"
+
+[clean]
+duplicates = "keep-first"
+"#;
+
 fn readme(p: &Planted, firms: u32, periods: u32, seed: u64) -> String {
     format!(
         "# Velmora demo panel (invented)\n\n\
@@ -541,7 +628,9 @@ Planted defects, for the audit to find:\n\n\
 - {} firm-years with a negative interest expense\n\
 - {} firms observed in one year only, {} firms with an internal gap, late entrants and early leavers\n\
 - {} rows with zero interest paid (firms without debt), {} rows with R&D spending missing\n\
-- time-invariant columns (`sector`, `region`, `founded`) and a macro series (`gdp_growth`)\n\n\
+- time-invariant columns (`sector`, `region`, `founded`) and a macro series (`gdp_growth`)\n\
+- each row's fiscal-year-end date (`year_end`); {} firms move their year end from December to \
+March (`rules_year_end.toml` derives the fiscal year from the date and finds them)\n\n\
 Further raw files, joined onto the accounts by `rules.toml`:\n\n\
 - `{WORKFORCE_FILE}`: headcount by firm-year; {} firm-years of the accounts are missing, {} rows \
 are for firms the accounts do not have, {} row is repeated exactly, and {} headcounts were keyed \
@@ -563,6 +652,7 @@ names the built-in ratios use, joins the further files and deflates sales by the
         p.firms_with_gaps,
         p.zero_interest_rows,
         p.missing_rd_rows,
+        p.tables.year_end_changes.len(),
         p.tables.workforce_gaps,
         p.tables.workforce_strays,
         p.tables.workforce_copies,
@@ -620,6 +710,7 @@ pub fn write_data(dir: &Path, firms: u32, periods: u32, seed: u64) -> Result<Pla
     }
     write(CORRECTIONS_FILE, &corrections)?;
     write("rules.toml", RULES)?;
+    write("rules_year_end.toml", RULES_YEAR_END)?;
     write("README.md", &readme(&planted, firms, periods, seed))?;
     write(
         "planted.json",

@@ -122,11 +122,15 @@ fn build_cmd(cfg: &BuildConfig) -> Result<i32> {
     let manifest = build(cfg)?;
     stdout_write(
         format!(
-            "wrote {}: {} rows read, {} kept in panel.csv / panel.parquet, {} in rejected.csv\n",
+            "wrote {}: {} rows read, {} kept in panel.csv / panel.parquet, {} in rejected.csv{}\n",
             cfg.out.display(),
             manifest.rows.input,
             manifest.rows.kept,
-            manifest.rows.rejected
+            manifest.rows.rejected,
+            match manifest.joins.iter().map(|j| j.rejected).sum::<u64>() {
+                0 => String::new(),
+                n => format!(" (and {n} rows of joined files)"),
+            }
         )
         .as_bytes(),
     )?;

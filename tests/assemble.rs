@@ -219,3 +219,38 @@ fn verify_rebuilds_a_bundle_with_joined_files() {
         "{line}"
     );
 }
+
+#[test]
+fn fiscal_years_from_the_demo_year_end_dates_match_pandas() {
+    // The demo's second rules file derives the fiscal year from `year_end` (a year ending in
+    // January–May belongs to the previous fiscal year, common practice); handoff.py parses the
+    // dates with pandas, recounts the key steps on that period (structure.py) and the firms
+    // whose year-end month changed, which must be the planted ones.
+    let w = Workdir::new();
+    w.ok(&["demo", "--out", "d", "--data-only"]);
+    w.ok(&[
+        "audit",
+        "d/data/velmora_accounts.csv",
+        "--rules",
+        "d/data/rules_year_end.toml",
+        "--report",
+        "ye.json",
+    ]);
+    let out = run_reference(
+        "handoff.py",
+        &[
+            std::path::Path::new("yearend"),
+            &w.path("d/data"),
+            &w.path("ye.json"),
+        ],
+    );
+    assert!(out.contains(" 0 failed"), "{out}");
+    let planted = json(&w, "d/data/planted.json");
+    assert!(
+        !planted["tables"]["year_end_changes"]
+            .as_array()
+            .unwrap()
+            .is_empty(),
+        "the demo plants year-end changes"
+    );
+}

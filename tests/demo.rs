@@ -19,6 +19,7 @@ fn generator_reproduces_the_committed_demo_data() {
             "corrections.csv",
             "planted.json",
             "rules.toml",
+            "rules_year_end.toml",
             "velmora_accounts.csv",
             "velmora_firms.csv",
             "velmora_prices.csv",

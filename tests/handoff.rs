@@ -443,7 +443,7 @@ fn accounting_rules_read_other_periods_gap_aware() {
 }
 
 #[test]
-fn winsorizing_by_any_groups_matches_numpy_with_a_pooled_fallback() {
+fn winsorizing_and_outlier_counts_by_any_groups_match_numpy_with_a_pooled_fallback() {
     let w = Workdir::new();
     w.ok(&["demo", "--out", "d", "--data-only"]);
     let rules = std::fs::read_to_string(w.path("d/data/rules.toml")).unwrap();
@@ -457,7 +457,9 @@ fn winsorizing_by_any_groups_matches_numpy_with_a_pooled_fallback() {
             }
         })
         .collect::<Vec<_>>()
-        .join("\n");
+        .join("\n")
+        // The audit's own outlier counts by the same groups and percentiles.
+        + "\n[audit]\noutliers = { lower = 0.015, upper = 0.985, by = [\"sector\", \"fiscal_year\"] }\n";
     // Beside the demo's rules: the files it joins are named relative to it.
     w.write("d/data/groups.toml", &by_group);
     w.ok(&[

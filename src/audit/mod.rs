@@ -43,8 +43,10 @@ pub struct Settings {
     pub lower: f64,
     /// Upper percentile of the outlier cutoffs, as a fraction.
     pub upper: f64,
-    /// Cutoffs pooled or per period.
+    /// Cutoffs pooled, per period or per group of `group_columns`.
     pub by: CutoffGroups,
+    /// The grouping columns of the outlier cutoffs (with `CutoffGroups::Groups`).
+    pub group_columns: Vec<String>,
 }
 
 impl Default for Settings {
@@ -57,6 +59,7 @@ impl Default for Settings {
             lower: 0.01,
             upper: 0.99,
             by: CutoffGroups::Pooled,
+            group_columns: Vec::new(),
         }
     }
 }
@@ -127,6 +130,38 @@ pub struct Context<'a> {
     pub entities: DataFrame,
     /// Entity and period codes of the panel's rows.
     pub core: PanelCore,
+    /// With outlier cutoffs by groups: each row's group (`NO_GROUP` where a grouping value is
+    /// missing).
+    pub outlier_groups: Option<Vec<u32>>,
+}
+
+/// The group code of a row whose grouping value is missing.
+pub const NO_GROUP: u32 = u32::MAX;
+
+/// Each row's group of `columns`: the position of the group's first row.
+fn group_codes(df: &DataFrame, columns: &[String]) -> Result<Vec<u32>> {
+    let by: Vec<Expr> = columns.iter().map(|c| col(c.as_str())).collect();
+    let missing = by
+        .iter()
+        .map(|c| c.clone().is_null())
+        .reduce(|a, b| a.or(b))
+        .unwrap_or(lit(false));
+    let codes = df
+        .clone()
+        .lazy()
+        .select(by.clone())
+        .with_row_index("__i", None)
+        .select([when(missing)
+            .then(lit(NO_GROUP))
+            .otherwise(col("__i").first().over(by)?.cast(DataType::UInt32))
+            .alias("__g")])
+        .collect()?;
+    Ok(codes
+        .column("__g")?
+        .u32()?
+        .iter()
+        .map(|g| g.unwrap_or(NO_GROUP))
+        .collect())
 }
 
 impl<'a> Context<'a> {
@@ -191,6 +226,10 @@ impl<'a> Context<'a> {
             })
             .cloned()
             .collect();
+        let outlier_groups = match options.settings.by {
+            CutoffGroups::Groups => Some(group_codes(df, &options.settings.group_columns)?),
+            _ => None,
+        };
         Ok(Context {
             df,
             entity,
@@ -205,6 +244,7 @@ impl<'a> Context<'a> {
             keys,
             entities,
             core: PanelCore::new(df, entity, period)?,
+            outlier_groups,
         })
     }
 

@@ -20,7 +20,7 @@ pub enum CutoffGroups {
     Pooled,
     /// A pair of cutoffs per period.
     Period,
-    /// A pair of cutoffs per group of declared columns (treatment in `build` only).
+    /// A pair of cutoffs per group of declared columns.
     Groups,
 }
 
@@ -47,7 +47,7 @@ impl Check for Outliers {
         let lines: Vec<OutlierLine> = vars
             .par_iter()
             .zip(values.par_iter())
-            .map(|(v, x)| line(&ctx.core, v, x, s))
+            .map(|(v, x)| line(&ctx.core, ctx.outlier_groups.as_deref(), v, x, s))
             .collect();
         report.outliers.extend(lines);
         Ok(())
@@ -55,12 +55,46 @@ impl Check for Outliers {
 }
 
 /// The outlier line of one variable.
-fn line(core: &PanelCore, variable: &str, x: &Values, s: &Settings) -> OutlierLine {
+fn line(
+    core: &PanelCore,
+    groups: Option<&[u32]>,
+    variable: &str,
+    x: &Values,
+    s: &Settings,
+) -> OutlierLine {
     let (lo, hi) = (s.lower, s.upper);
     let mut all = x.present();
     let (mut below, mut above) = (0u64, 0u64);
-    let (lower, upper, min_group) = match s.by {
-        CutoffGroups::Pooled | CutoffGroups::Groups => {
+    // A group needs 1 / (the smaller tail) values for its own cutoffs (100 at 1%).
+    let smallest = (1.0 / lo.min(1.0 - hi)).ceil() as u64;
+    let mut fallback = None;
+    let (lower, upper, min_group) = match (s.by, groups) {
+        (CutoffGroups::Groups, Some(codes)) => {
+            // Per group; a group too small, or a row without a group, takes the pooled cutoffs
+            // (as winsorizing by groups does).
+            let pooled = (type7(&mut all, lo), type7(&mut all, hi));
+            let mut by: std::collections::BTreeMap<u32, Vec<f64>> = Default::default();
+            for (r, v) in x.iter() {
+                by.entry(codes[r]).or_default().push(v);
+            }
+            let mut fell_back = 0u64;
+            for (code, g) in &mut by {
+                let small = *code == crate::audit::NO_GROUP || (g.len() as u64) < smallest;
+                let (l, u) = if small {
+                    fell_back += u64::from(*code != crate::audit::NO_GROUP);
+                    pooled
+                } else {
+                    (type7(g, lo), type7(g, hi))
+                };
+                for v in g.iter() {
+                    below += u64::from(l.is_some_and(|l| *v < l));
+                    above += u64::from(u.is_some_and(|u| *v > u));
+                }
+            }
+            fallback = Some(fell_back);
+            (None, None, all.len() as u64)
+        }
+        (CutoffGroups::Pooled | CutoffGroups::Groups, _) => {
             let (l, u) = (type7(&mut all, lo), type7(&mut all, hi));
             for v in &all {
                 below += u64::from(l.is_some_and(|l| *v < l));
@@ -68,7 +102,7 @@ fn line(core: &PanelCore, variable: &str, x: &Values, s: &Settings) -> OutlierLi
             }
             (l, u, all.len() as u64)
         }
-        CutoffGroups::Period => {
+        (CutoffGroups::Period, _) => {
             let mut groups: Vec<Vec<f64>> = vec![Vec::new(); core.periods.len()];
             for (r, v) in x.iter() {
                 groups[core.period[r] as usize].push(v);
@@ -98,7 +132,6 @@ fn line(core: &PanelCore, variable: &str, x: &Values, s: &Settings) -> OutlierLi
             .count() as u64,
         _ => 0,
     };
-    let smallest = (1.0 / lo.min(1.0 - hi)).ceil() as u64;
     OutlierLine {
         variable: variable.to_string(),
         by: s.by,
@@ -109,6 +142,12 @@ fn line(core: &PanelCore, variable: &str, x: &Values, s: &Settings) -> OutlierLi
         mad,
         robust_z_beyond,
         log_jumps: None,
-        small_groups: s.by == CutoffGroups::Period && min_group < smallest,
+        small_groups: (s.by == CutoffGroups::Period && min_group < smallest)
+            || fallback.is_some_and(|n| n > 0),
+        groups: match s.by {
+            CutoffGroups::Groups => s.group_columns.clone(),
+            _ => Vec::new(),
+        },
+        pooled_fallback_groups: fallback,
     }
 }

@@ -380,12 +380,22 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
             });
         }
     }
+    let settings = settings(rules)?;
+    for c in &settings.group_columns {
+        if panel.schema().get(c.as_str()).is_none() {
+            return Err(Error::MissingColumn {
+                file: input.path.clone(),
+                column: c.clone(),
+                context: "named in `[audit] outliers` by".into(),
+            });
+        }
+    }
     let options = Options {
         compare,
         levels,
         exclude: vec![ROW.to_string()],
         categorical: categorical.clone(),
-        settings: settings(rules)?,
+        settings,
         model,
         reach: plan.reach(),
     };

@@ -73,13 +73,20 @@ pub(super) fn settings(rules: &crate::rules::Rules) -> Result<Settings> {
                 "needs 0 < lower < upper < 1 (fractions, e.g. 0.01 and 0.99)",
             ));
         }
-        s.by = match o.by.as_deref() {
-            None | Some("pooled") => CutoffGroups::Pooled,
-            Some("period") => CutoffGroups::Period,
+        use crate::rules::TreatBy;
+        s.by = match &o.by {
+            None => CutoffGroups::Pooled,
+            Some(TreatBy::Word(w)) if w == "pooled" => CutoffGroups::Pooled,
+            Some(TreatBy::Word(w)) if w == "period" => CutoffGroups::Period,
+            Some(TreatBy::Columns(c)) if !c.is_empty() => {
+                s.group_columns = c.iter().map(|c| rules.resolve(c)).collect();
+                CutoffGroups::Groups
+            }
             Some(_) => {
                 return Err(bad(
                     "[audit] outliers",
-                    "`by` must be \"pooled\" or \"period\"",
+                    "`by` must be \"pooled\", \"period\" or grouping columns such as \
+                     [\"sector\", \"fiscal_year\"]",
                 ))
             }
         };

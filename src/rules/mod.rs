@@ -212,9 +212,9 @@ pub struct OutlierSpec {
     /// Upper percentile as a fraction (default 0.99).
     #[serde(default)]
     pub upper: Option<f64>,
-    /// `"pooled"` (default) or `"period"`.
+    /// `"pooled"` (default), `"period"`, or grouping columns such as `["sector", "fiscal_year"]`.
     #[serde(default)]
-    pub by: Option<String>,
+    pub by: Option<TreatBy>,
 }
 
 /// `[thresholds]`: the numbers behind warnings.

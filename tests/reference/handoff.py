@@ -17,7 +17,12 @@
       writes the CSV as a spreadsheet with openpyxl (numbers as numbers, one sheet "panel").
   handoff.py groups BUNDLE
       recomputes winsorizing of roa and leverage by sector x fiscal year with numpy, groups
-      smaller than 1 / (the smaller tail) taking the pooled cutoffs.
+      smaller than 1 / (the smaller tail) taking the pooled cutoffs, and the audit's outlier
+      counts by the same groups when the report has them.
+  handoff.py yearend DATA_DIR REPORT_JSON
+      derives the fiscal year from the demo's year-end dates with pandas (month <= 5: the
+      previous year), recounts the key steps on it and the firms whose year-end month changed,
+      and compares with an `audit` report made with the demo's rules_year_end.toml.
   handoff.py xlsx-hostile OUTDIR
       writes merged.xlsx (merged cells) and mixed.xlsx (a number typed as text in a number
       column, a number in a text column, a second sheet) and dates.xlsx (year-end dates).
@@ -202,6 +207,15 @@ def groups(bundle):
             expected.loc[idx] = x.loc[idx].clip(lo, hi)
         check(f"{v} below", line["below"] == below, (line["below"], below))
         check(f"{v} above", line["above"] == above, (line["above"], above))
+        # The audit's outlier counts by the same groups (on the panel before treatment, which
+        # these raw-column ratios are), when the rules ask for them.
+        audit = {o["variable"]: o for o in report["outliers"]}.get(v, {})
+        if audit.get("by") == "groups":
+            check(f"{v} audit groups", audit["groups"] == ["sector", "fiscal_year"])
+            check(f"{v} audit below", audit["below"] == below, (audit["below"], below))
+            check(f"{v} audit above", audit["above"] == above, (audit["above"], above))
+            check(f"{v} audit fallbacks", audit["pooled_fallback_groups"] == fallbacks,
+                  (audit["pooled_fallback_groups"], fallbacks))
         got = panel[v]
         both = expected.notna() & got.notna()
         check(f"{v} values", bool(np.allclose(got[both], expected[both], rtol=1e-12, atol=1e-15)))
@@ -246,10 +260,41 @@ def xlsx_hostile(outdir):
     print("wrote merged.xlsx and mixed.xlsx")
 
 
+def yearend(data_dir, report_json):
+    """The fiscal year from the year-end date (a year ending in month 5 or earlier belongs to
+    the previous fiscal year: common practice), with pandas' datetime parsing; then the key
+    steps of structure.py on that period, and the firms whose year-end month changed."""
+    import os
+
+    sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+    import structure
+
+    raw = pd.read_csv(f"{data_dir}/velmora_accounts.csv", dtype={"firm_id": "string"})
+    date = pd.to_datetime(raw["year_end"], format="%Y-%m-%d")
+    raw["fiscal_year_from_date"] = (date.dt.year - (date.dt.month <= 5)).astype("Int64")
+    keys, _ = structure.key_steps(raw, "firm_id", "fiscal_year_from_date")
+    report = json.load(open(report_json))
+    for k, v in keys.items():
+        check(f"keys.{k}", report["keys"][k] == v, (report["keys"][k], v))
+    months = raw.assign(m=date.dt.month).dropna(subset=["firm_id", "m"])
+    changed = sorted(months.groupby("firm_id")["m"].nunique().loc[lambda n: n > 1].index)
+    got = report["keys"]["year_end_changes"]
+    check("year_end_changes.entities", got["entities"] == len(changed), (got["entities"], changed))
+    check("year_end_changes.examples", got["examples"] == changed[:5], (got["examples"], changed))
+    planted = json.load(open(f"{data_dir}/planted.json"))["tables"]["year_end_changes"]
+    check("the planted changes", changed == planted, (changed, planted))
+    # The accounts' own fiscal year leaves no such conflicts: the extra conflicting keys are
+    # the changes (one per firm: the year its short period falls into).
+    own, _ = structure.key_steps(raw, "firm_id", "fiscal_year")
+    check("one extra conflicting key per change",
+          keys["conflicting_keys"] - own["conflicting_keys"] == len(changed),
+          (keys["conflicting_keys"], own["conflicting_keys"], len(changed)))
+
+
 if __name__ == "__main__":
     mode, *args = sys.argv[1:]
     {"perturb": perturb, "compare": compare, "parquet": parquet, "xlsx": xlsx,
-     "xlsx-hostile": xlsx_hostile, "groups": groups}[mode](*args)
-    if mode in ("compare", "parquet", "groups"):
+     "xlsx-hostile": xlsx_hostile, "groups": groups, "yearend": yearend}[mode](*args)
+    if mode in ("compare", "parquet", "groups", "yearend"):
         print(f"{passed} passed, {failed} failed")
         sys.exit(1 if failed else 0)

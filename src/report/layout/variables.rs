@@ -195,13 +195,36 @@ pub(super) fn outliers(r: &Report) -> Section {
             "Cutoffs are percentiles (linear interpolation, Hyndman-Fan type 7){}; robust z = \
              (value - median) / (1.4826 MAD); log jumps count changes in the log level between \
              consecutive periods of an entity beyond the threshold (level variables only).",
-            if by == Some(CutoffGroups::Period) {
-                ", computed per period (not listed)"
-            } else {
-                " over all rows"
+            match by {
+                Some(CutoffGroups::Period) => ", computed per period (not listed)".to_string(),
+                Some(CutoffGroups::Groups) => format!(
+                    ", computed per group of {} (not listed); a group with fewer values than \
+                     1 / (the smaller tail), or a row without a group, takes the pooled cutoffs",
+                    r.outliers
+                        .first()
+                        .map(|o| o.groups.join(" × "))
+                        .unwrap_or_default()
+                ),
+                _ => " over all rows".to_string(),
             }
         )));
-        if r.outliers.iter().any(|o| o.small_groups) {
+        if by == Some(CutoffGroups::Groups) {
+            let fell: Vec<String> = r
+                .outliers
+                .iter()
+                .filter_map(|o| {
+                    o.pooled_fallback_groups
+                        .filter(|n| *n > 0)
+                        .map(|n| format!("{} {n}", o.variable))
+                })
+                .collect();
+            if !fell.is_empty() {
+                blocks.push(Block::Note(format!(
+                    "Groups on the pooled cutoffs (too few values): {}.",
+                    fell.join(", ")
+                )));
+            }
+        } else if r.outliers.iter().any(|o| o.small_groups) {
             blocks.push(Block::Note(
                 "Warning: some periods have fewer values than 1 / p, too few for those cutoffs."
                     .into(),

@@ -102,8 +102,16 @@ pub struct OutlierLine {
     pub robust_z_beyond: u64,
     /// Within-entity jumps in the log level beyond the threshold (level variables only).
     pub log_jumps: Option<u64>,
-    /// Some period has fewer values than 1 / p: its cutoffs are unreliable.
+    /// Some period has fewer values than 1 / p: its cutoffs are unreliable (by groups: some
+    /// group took the pooled cutoffs).
     pub small_groups: bool,
+    /// The grouping columns, with cutoffs by groups.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub groups: Vec<String>,
+    /// With cutoffs by groups: groups with fewer than 1 / (the smaller tail) values, which
+    /// took the pooled cutoffs.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub pooled_fallback_groups: Option<u64>,
 }
 
 /// A suspected unit slip.
