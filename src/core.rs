@@ -170,28 +170,62 @@ impl PanelCore {
         let mut b = vec![0.0; nt];
         let mut a = vec![0.0; nt * nt];
         let mut seen: Vec<(usize, f64)> = Vec::new();
+        // Entities with one row per period share their part of A by the set of periods they
+        // have (a bit mask when there are at most 128 periods): sum_i c_i c_i' / T_i is, per
+        // set, the set's all-ones block times (entities with that set) / (its size). So A
+        // costs one pass over the rows plus one block per distinct set, not T_i^2 per entity.
+        let by_mask = nt <= 128;
+        let mut blocks: std::collections::HashMap<u128, f64> = std::collections::HashMap::new();
         for i in 0..ne {
             if e_n[i] == 0 {
                 continue;
             }
             let m = e_sum[i] / e_n[i] as f64;
             seen.clear();
+            let mut mask = 0u128;
+            let mut repeats = false;
             for r in self.starts[i]..self.starts[i + 1] {
                 if let Some(v) = x.get(r) {
                     let t = self.period[r] as usize;
                     b[t] += v - m;
                     match seen.last_mut() {
-                        Some((s, c)) if *s == t => *c += 1.0,
+                        Some((s, c)) if *s == t => {
+                            *c += 1.0;
+                            repeats = true;
+                        }
                         _ => seen.push((t, 1.0)),
                     }
+                    if by_mask {
+                        mask |= 1u128 << t;
+                    }
                 }
+            }
+            for &(t, ct) in &seen {
+                a[t * nt + t] += ct;
+            }
+            if by_mask && !repeats {
+                *blocks.entry(mask).or_insert(0.0) += 1.0 / e_n[i] as f64;
+                continue;
             }
             let inv = 1.0 / e_n[i] as f64;
             for &(t, ct) in &seen {
                 let row = &mut a[t * nt..(t + 1) * nt];
-                row[t] += ct;
                 for &(s, cs) in &seen {
                     row[s] -= ct * cs * inv;
+                }
+            }
+        }
+        // In a fixed order (by mask), so the sums do not depend on the hash map's order.
+        let mut blocks: Vec<(u128, f64)> = blocks.into_iter().collect();
+        blocks.sort_unstable_by_key(|(mask, _)| *mask);
+        let mut members = Vec::with_capacity(nt);
+        for (mask, w) in blocks {
+            members.clear();
+            members.extend((0..nt).filter(|t| mask >> t & 1 == 1));
+            for &t in &members {
+                let row = &mut a[t * nt..(t + 1) * nt];
+                for &s in &members {
+                    row[s] -= w;
                 }
             }
         }

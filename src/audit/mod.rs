@@ -135,6 +135,32 @@ pub struct Context<'a> {
     pub outlier_groups: Option<Vec<u32>>,
 }
 
+/// Every column but the keys and the excluded ones, and the numeric ones among them.
+fn variable_lists(
+    df: &DataFrame,
+    entity: &str,
+    period: &str,
+    options: &Options,
+) -> (Vec<String>, Vec<String>) {
+    let schema = df.schema();
+    let variables: Vec<String> = schema
+        .iter_names()
+        .map(|n| n.to_string())
+        .filter(|n| n != entity && n != period && !options.exclude.contains(n))
+        .collect();
+    let numeric = variables
+        .iter()
+        .filter(|v| {
+            !options.categorical.contains(v)
+                && schema
+                    .get(v.as_str())
+                    .is_some_and(|d| d.is_primitive_numeric() || d.is_bool())
+        })
+        .cloned()
+        .collect();
+    (variables, numeric)
+}
+
 /// The group code of a row whose grouping value is missing.
 pub const NO_GROUP: u32 = u32::MAX;
 
@@ -210,22 +236,7 @@ impl<'a> Context<'a> {
             .with_column((col(LAST) - col(FIRST) + lit(1i64) - col(N)).alias(GAPS))
             .sort([entity], Default::default())
             .collect()?;
-        let schema = df.schema();
-        let variables: Vec<String> = schema
-            .iter_names()
-            .map(|n| n.to_string())
-            .filter(|n| n != entity && n != period && !options.exclude.contains(n))
-            .collect();
-        let numeric = variables
-            .iter()
-            .filter(|v| {
-                !options.categorical.contains(v)
-                    && schema
-                        .get(v.as_str())
-                        .is_some_and(|d| d.is_primitive_numeric() || d.is_bool())
-            })
-            .cloned()
-            .collect();
+        let (variables, numeric) = variable_lists(df, entity, period, &options);
         let outlier_groups = match options.settings.by {
             CutoffGroups::Groups => Some(group_codes(df, &options.settings.group_columns)?),
             _ => None,
@@ -244,6 +255,37 @@ impl<'a> Context<'a> {
             keys,
             entities,
             core: PanelCore::new(df, entity, period)?,
+            outlier_groups,
+        })
+    }
+
+    /// The same keys, codes and shared frames over `df`, a panel with the same rows in the
+    /// same order (values may differ: after winsorizing), and other options. Nothing about the
+    /// keys is computed again.
+    pub fn with_panel<'b>(&self, df: &'b DataFrame, options: Options) -> Result<Context<'b>>
+    where
+        'a: 'b,
+    {
+        debug_assert_eq!(df.height(), self.df.height());
+        let (variables, numeric) = variable_lists(df, self.entity, self.period, &options);
+        let outlier_groups = match options.settings.by {
+            CutoffGroups::Groups => Some(group_codes(df, &options.settings.group_columns)?),
+            _ => None,
+        };
+        Ok(Context {
+            df,
+            entity: self.entity,
+            period: self.period,
+            compare: options.compare,
+            levels: options.levels,
+            variables,
+            numeric,
+            settings: options.settings,
+            model: options.model,
+            reach: options.reach,
+            keys: self.keys.clone(),
+            entities: self.entities.clone(),
+            core: self.core.clone(),
             outlier_groups,
         })
     }

@@ -436,10 +436,13 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
     }
     progress.stage("cleaning");
 
-    // Then `build` cleans, in a fixed order: outliers, balancing, singletons.
-    let mut panel = panel;
+    // Then `build` cleans, in a fixed order: outliers, balancing, singletons. The panel as read
+    // stays for the checks' context (its columns are shared, not copied).
+    let mut panel = panel.clone();
+    let mut treated: Vec<String> = Vec::new();
     {
         for t in treatments {
+            treated.extend(t.variables.iter().cloned());
             let (rest, removed, lines) = t.apply(panel, &keys)?;
             panel = rest;
             report.treatment.extend(lines);
@@ -466,7 +469,8 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
                 &input.entity,
             )?);
         }
-        let (cleaned, model) = cleaned_figures(&panel, input, options, progress)?;
+        let (cleaned, model) =
+            cleaned_figures(&ctx, &panel, &report, &treated, input, options, progress)?;
         report.cleaned = Some(cleaned);
         if model.is_some() {
             report.model = model;
@@ -528,15 +532,21 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
     })
 }
 
-/// Glance, coverage, variation and missing values of the cleaned panel.
+/// Glance, coverage, variation and missing values of the cleaned panel. When cleaning kept
+/// every row (winsorizing only), the keys, codes, glance, coverage and missing values are
+/// those of the panel as read, and only the treated variables' variation is computed again.
 fn cleaned_figures(
+    before: &Context,
     panel: &DataFrame,
+    read: &Report,
+    treated: &[String],
     input: &InputConfig,
     options: Options,
     progress: &Progress,
 ) -> Result<(Cleaned, Option<crate::report::ModelReport>)> {
-    let ctx = Context::new(panel, &input.entity, &input.period, options)?;
     progress.stage("checks on the cleaned panel");
+    // Rows are only ever removed: the same count is the same rows, in the same order.
+    let same_rows = panel.height() == before.df.height();
     let mut r = Report::new(InputSummary {
         path: String::new(),
         format: input.format,
@@ -547,13 +557,44 @@ fn cleaned_figures(
         sheet: None,
         notes: Vec::new(),
     });
-    for check in [
-        Box::new(audit::Glance) as Box<dyn audit::Check>,
-        Box::new(audit::Coverage),
-        Box::new(audit::Variation),
-        Box::new(audit::Missing),
-    ] {
-        check.run(&ctx, &mut r)?;
+    let ctx = if same_rows {
+        before.with_panel(panel, options.clone())?
+    } else {
+        Context::new(panel, &input.entity, &input.period, options.clone())?
+    };
+    if same_rows {
+        r.panel = read.panel.clone();
+        r.coverage = read.coverage.clone();
+        r.missing = read.missing.clone();
+        let mut only = options;
+        only.exclude.extend(
+            ctx.variables
+                .iter()
+                .filter(|v| !treated.contains(v))
+                .cloned(),
+        );
+        audit::Variation.run(&before.with_panel(panel, only)?, &mut r)?;
+        let fresh = std::mem::take(&mut r.variation);
+        r.variation = read
+            .variation
+            .iter()
+            .map(|l| {
+                fresh
+                    .iter()
+                    .find(|f| f.variable == l.variable)
+                    .unwrap_or(l)
+                    .clone()
+            })
+            .collect();
+    } else {
+        for check in [
+            Box::new(audit::Glance) as Box<dyn audit::Check>,
+            Box::new(audit::Coverage),
+            Box::new(audit::Variation),
+            Box::new(audit::Missing),
+        ] {
+            check.run(&ctx, &mut r)?;
+        }
     }
     // Model readiness on the panel that will be estimated; its warnings about absorbed
     // regressors read the variation of that same panel.
