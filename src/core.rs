@@ -258,6 +258,18 @@ impl PanelCore {
 }
 
 impl PanelCore {
+    /// For each row, whether the row before is the previous period (by value) of the same
+    /// entity.
+    pub fn previous_period(&self) -> Vec<bool> {
+        let mut back = vec![false; self.rows()];
+        for r in 1..self.rows() {
+            back[r] = self.entity[r] == self.entity[r - 1]
+                && self.periods[self.period[r] as usize]
+                    == self.periods[self.period[r - 1] as usize] + 1;
+        }
+        back
+    }
+
     /// Distinct keys removed by dropping, again and again, every key whose entity or period
     /// has a single key left (Correia 2015): what is left is the largest set in which every
     /// entity and every period has two keys or more, whatever the order of removal.

@@ -9,6 +9,9 @@ use crate::clean::repair::slip_magnitude;
 use crate::report::{Report, UnitSlip};
 use crate::Result;
 
+/// The hidden column saying whether the row before is the previous period of the entity.
+const BACK: &str = "__back";
+
 /// The longest slip list kept in the report (the count covers all).
 const LISTED: usize = 10_000;
 
@@ -26,11 +29,11 @@ impl Check for UnitSlips {
         if levels.is_empty() {
             return Ok(());
         }
-        // The panel is sorted by entity and period: the row before is the previous period of
-        // the same entity exactly when both match.
-        let back = col(e)
-            .eq(col(e).shift(lit(1)))
-            .and(col(p).eq(col(p).shift(lit(1)) + lit(1)));
+        // The panel is sorted by entity and period: whether the row before is the previous
+        // period of the same entity comes from the panel core's codes, once.
+        let mut frame = ctx.df.clone();
+        frame.with_column(Column::new(BACK.into(), ctx.core.previous_period()))?;
+        let back = col(BACK);
         let mut cols = vec![col(e), col(p)];
         for (i, v) in levels.iter().enumerate() {
             let x = col(v.as_str()).cast(DataType::Float64);
@@ -43,7 +46,7 @@ impl Check for UnitSlips {
                 .then((x.clone() / prev).log(lit(10.0)))
                 .otherwise(lit(NULL));
             // The same detector the repair uses (clean::repair).
-            let mag = slip_magnitude(e, p, x);
+            let mag = slip_magnitude(back.clone(), x);
             cols.push(mag.alias(format!("mag{i}")));
             cols.push(
                 (r * lit(std::f64::consts::LN_10))
@@ -52,7 +55,7 @@ impl Check for UnitSlips {
                     .alias(format!("jump{i}")),
             );
         }
-        let frame = ctx.df.clone().lazy().select(cols).collect()?;
+        let frame = frame.lazy().select(cols).collect()?;
         let mut slips = Vec::new();
         for (i, v) in levels.iter().enumerate() {
             let mag = col(format!("mag{i}").as_str());

@@ -99,10 +99,10 @@ pub struct Keys<'a> {
     pub columns: &'a [String],
 }
 
-/// Split off missing keys, collapse exact copies, apply the duplicate policy.
+/// Split off missing keys, collapse exact copies, apply the duplicate policy. The rows kept
+/// come out sorted by entity, period and row, and every later step keeps that order.
 pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Result<KeyResult> {
     let (entity, period) = (k.entity, k.period);
-    let mut steps = vec![SampleStep::start(&raw, entity)?];
     let mut rejected = Vec::new();
 
     // 1. Missing entity or period.
@@ -123,37 +123,56 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
             lit(NULL).cast(IDX_DTYPE).alias(RELATED),
         ])
         .collect()?;
-    let df = raw.lazy().filter(e_null.or(p_null).not()).collect()?;
-    steps.push(SampleStep::after(&steps, "missing keys", &df, entity)?);
+    let rows_read = raw.height() as u64;
+    // Sorted once: the rows of a key sit together, and entities can be counted by their runs.
+    let df = raw
+        .lazy()
+        .filter(e_null.or(p_null).not())
+        .sort([entity, period, ROW], Default::default())
+        .collect()?;
+    let entities_kept = sorted_distinct(&df, entity)?;
+    // An entity seen only on rows missing their period counts among the entities read.
+    let only_missing = entities_only_in(&missing, &df, entity)?;
+    let mut steps = vec![SampleStep {
+        step: "rows read".into(),
+        rows_before: rows_read,
+        removed: 0,
+        rows_after: rows_read,
+        entities_after: entities_kept + only_missing,
+    }];
+    steps.push(SampleStep::counted(
+        &steps,
+        "missing keys",
+        df.height() as u64,
+        entities_kept,
+    ));
     let missing_key_rows = missing.height() as u64;
     rejected.push(ledger(missing, k.columns)?);
 
     // 2. Exact copies: same key and the same value in every column. Only rows whose key
-    // appears more than once can be copies or conflicts, so the rest is set aside.
+    // appears more than once can be copies or conflicts: in the sorted panel they have a
+    // neighbour with the same key, and only they are looked at (with their position).
     let key = [col(entity), col(period)];
-    let df = df
-        .lazy()
-        .with_column(len().over(key.clone())?.alias("__key_rows"))
-        .collect()?;
-    let single = df
+    let same_key = |offset: i64| {
+        col(entity)
+            .eq(col(entity).shift(lit(offset)))
+            .and(col(period).eq(col(period).shift(lit(offset))))
+            .fill_null(lit(false))
+    };
+    let repeated = df
         .clone()
         .lazy()
-        .filter(col("__key_rows").eq(lit(1)))
-        .drop(cols(["__key_rows"]))
-        .collect()?;
-    let df = df
-        .lazy()
-        .filter(col("__key_rows").gt(lit(1)))
-        .drop(cols(["__key_rows"]))
+        .with_row_index(POS, None)
+        .filter(same_key(1).or(same_key(-1)))
         .collect()?;
     let value_cols: Vec<Expr> = k.columns.iter().map(|c| col(c.as_str())).collect();
     let first_of_copy = col(ROW).min().over(value_cols)?;
-    let df = df
+    let repeated = repeated
         .lazy()
         .with_column(first_of_copy.alias(RELATED))
         .collect()?;
     let is_copy = col(RELATED).neq(col(ROW));
-    let copies = df
+    let copies = repeated
         .clone()
         .lazy()
         .filter(is_copy.clone())
@@ -162,17 +181,19 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
             lit("exact copy of an earlier row (related_row)").alias(REASON),
         ])
         .collect()?;
-    let df = df
+    let repeated = repeated
         .lazy()
         .filter(is_copy.not())
         .drop(cols([RELATED]))
         .collect()?;
-    steps.push(SampleStep::after(
+    let mut dropped: Vec<IdxSize> = positions(&copies)?;
+    // A copy leaves its earlier twin, of the same entity: no entity is lost.
+    steps.push(SampleStep::counted(
         &steps,
         "exact copies",
-        &single.vstack(&df)?,
-        entity,
-    )?);
+        df.height() as u64 - dropped.len() as u64,
+        entities_kept,
+    ));
     let exact_duplicate_rows = copies.height() as u64;
     let exact_duplicate_keys = copies
         .clone()
@@ -181,14 +202,14 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
         .unique(None, UniqueKeepStrategy::First)
         .collect()?
         .height() as u64;
-    rejected.push(ledger(copies, k.columns)?);
+    rejected.push(ledger(copies.drop(POS)?, k.columns)?);
 
     // 3. Conflicting keys: the same key on rows with different values.
-    let df = df
+    let repeated = repeated
         .lazy()
         .with_column(len().over(key.clone())?.alias("__key_rows"))
         .collect()?;
-    let conflicting = df
+    let conflicting = repeated
         .clone()
         .lazy()
         .filter(col("__key_rows").gt(lit(1)))
@@ -230,42 +251,54 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
         }
         DuplicatePolicy::Fail | DuplicatePolicy::Report => None,
     };
-    let df = match kept_row {
-        None => df.lazy().drop(cols(["__key_rows"])).collect()?,
-        Some(kept_row) => {
-            let df = df
-                .lazy()
-                .with_column(
-                    when(col("__key_rows").gt(lit(1)))
-                        .then(kept_row)
-                        .otherwise(col(ROW))
-                        .alias(RELATED),
-                )
-                .drop(cols(["__key_rows"]))
-                .collect()?;
-            let dropped = col(RELATED).neq(col(ROW)).or(col(RELATED).is_null());
-            let removed = df
-                .clone()
-                .lazy()
-                .filter(dropped.clone())
-                .with_columns([
-                    lit("duplicate keys").alias(STEP),
-                    lit(format!(
-                        "same entity and period as other rows with different values; policy {}",
-                        policy.label()
-                    ))
-                    .alias(REASON),
-                ])
-                .collect()?;
-            rejected.push(ledger(removed, k.columns)?);
-            df.lazy()
-                .filter(dropped.not())
-                .drop(cols([RELATED]))
-                .collect()?
+    if let Some(kept_row) = kept_row {
+        let marked = repeated
+            .lazy()
+            .with_column(
+                when(col("__key_rows").gt(lit(1)))
+                    .then(kept_row)
+                    .otherwise(col(ROW))
+                    .alias(RELATED),
+            )
+            .drop(cols(["__key_rows"]))
+            .collect()?;
+        let removed = marked
+            .lazy()
+            .filter(col(RELATED).neq(col(ROW)).or(col(RELATED).is_null()))
+            .with_columns([
+                lit("duplicate keys").alias(STEP),
+                lit(format!(
+                    "same entity and period as other rows with different values; policy {}",
+                    policy.label()
+                ))
+                .alias(REASON),
+            ])
+            .collect()?;
+        dropped.extend(positions(&removed)?);
+        rejected.push(ledger(removed.drop(POS)?, k.columns)?);
+    }
+    // Drop the copies and removed rows by their position: the order stays sorted.
+    let df = if dropped.is_empty() {
+        df
+    } else {
+        let mut keep = vec![true; df.height()];
+        for p in &dropped {
+            keep[*p as usize] = false;
         }
+        df.filter(&BooleanChunked::from_slice("keep".into(), &keep))?
     };
-    let df = single.vstack(&df)?;
-    steps.push(SampleStep::after(&steps, "duplicate keys", &df, entity)?);
+    // Only dropping every row of a key can lose an entity.
+    let entities = if *policy == DuplicatePolicy::DropAll && conflicting_keys > 0 {
+        sorted_distinct(&df, entity)?
+    } else {
+        entities_kept
+    };
+    steps.push(SampleStep::counted(
+        &steps,
+        "duplicate keys",
+        df.height() as u64,
+        entities,
+    ));
 
     Ok(KeyResult {
         kept: df,
@@ -282,6 +315,60 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
         },
         steps,
     })
+}
+
+/// The position column of the rows looked at for copies and conflicts.
+const POS: &str = "__pos";
+
+/// The positions (`POS`) of `df`'s rows.
+fn positions(df: &DataFrame) -> Result<Vec<IdxSize>> {
+    Ok(df.column(POS)?.idx()?.iter().flatten().collect())
+}
+
+/// Distinct values of `column` in a frame sorted by it (nulls not counted): the runs.
+pub fn sorted_distinct(df: &DataFrame, column: &str) -> Result<u64> {
+    let c = col(column);
+    let n = df
+        .clone()
+        .lazy()
+        .select([c
+            .clone()
+            .neq_missing(c.clone().shift(lit(1)))
+            .and(c.is_not_null())
+            .sum()
+            .cast(DataType::UInt64)
+            .alias("n")])
+        .collect()?;
+    Ok(n.column("n")?.u64()?.get(0).unwrap_or(0))
+}
+
+/// Entities of `few` (a handful of rows) that `sorted` (sorted by entity) does not have.
+fn entities_only_in(few: &DataFrame, sorted: &DataFrame, entity: &str) -> Result<u64> {
+    let ids = sorted.column(entity)?.str()?.rechunk();
+    let ids = ids.downcast_as_array();
+    let mut absent: Vec<String> = few
+        .column(entity)?
+        .str()?
+        .iter()
+        .flatten()
+        .filter(|e| {
+            // Binary search over the sorted column.
+            let (mut lo, mut hi) = (0usize, ids.len());
+            while lo < hi {
+                let mid = (lo + hi) / 2;
+                match ids.value(mid).cmp(e) {
+                    std::cmp::Ordering::Less => lo = mid + 1,
+                    std::cmp::Ordering::Greater => hi = mid,
+                    std::cmp::Ordering::Equal => return false,
+                }
+            }
+            true
+        })
+        .map(str::to_string)
+        .collect();
+    absent.sort();
+    absent.dedup();
+    Ok(absent.len() as u64)
 }
 
 /// Move rows where `reason` (a string expression) is not null into the ledger.

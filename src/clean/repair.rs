@@ -316,16 +316,22 @@ pub fn apply_corrections(
     Ok((df, ledger))
 }
 
+/// Whether the row before is the previous period of the same entity, on a frame sorted by
+/// entity and period.
+pub fn previous_period(entity: &str, period: &str) -> Expr {
+    col(entity)
+        .eq(col(entity).shift(lit(1)))
+        .and(col(period).eq(col(period).shift(lit(1)) + lit(1)))
+}
+
 /// The unit-slip magnitude of each row of `x` on a frame sorted by entity and period: 3 or 6
 /// (or −3, −6) when the ratio to the previous period of the same entity is within a factor of
-/// two of 10^3 or 10^6 (or their inverses), else null. Shared with the audit's check.
-pub fn slip_magnitude(entity: &str, period: &str, x: Expr) -> Expr {
+/// two of 10^3 or 10^6 (or their inverses), else null. `back` says whether the row before is
+/// that previous period (`previous_period`, or the panel core's). Shared with the audit.
+pub fn slip_magnitude(back: Expr, x: Expr) -> Expr {
     // How far (in log10 units) a ratio may sit from 10^3 or 10^6 and still count as a slip:
     // log10(2), so factors between 500 and 2000 count as 1000.
     let slack = std::f64::consts::LOG10_2;
-    let back = col(entity)
-        .eq(col(entity).shift(lit(1)))
-        .and(col(period).eq(col(period).shift(lit(1)) + lit(1)));
     let prev = x.clone().shift(lit(1));
     let ok = back
         .and(x.clone().gt(lit(0.0)))
@@ -361,7 +367,7 @@ pub fn repair_slips(
     let mut fixes = Vec::new();
     for (i, v) in levels.iter().enumerate() {
         let x = col(v.as_str()).cast(DataType::Float64);
-        let mag = slip_magnitude(entity, period, x.clone());
+        let mag = slip_magnitude(previous_period(entity, period), x.clone());
         lf = lf.with_column(mag.alias(format!("__mag{i}")));
         let m = col(format!("__mag{i}").as_str());
         let sure = m

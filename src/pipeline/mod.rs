@@ -266,10 +266,9 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
         Layout::Any
     };
     progress.stage("derived variables");
-    let sorted = kept.lazy().sort(
-        [input.entity.as_str(), input.period.as_str(), ROW],
-        Default::default(),
-    );
+    // Sorted by entity, period and row since the key steps: joins keep the panel's order,
+    // repairs and rules only filter or change cells.
+    let sorted = kept.lazy();
     let (lf, hidden) = plan.apply(sorted, &input.entity, &input.period, layout);
     let with_hidden = lf.collect()?;
     let derived = plan.null_counts(&with_hidden)?;

@@ -340,6 +340,18 @@ impl SampleStep {
         })
     }
 
+    /// The line for a step that left `rows` rows of `entities` entities.
+    pub fn counted(steps: &[SampleStep], step: &str, rows: u64, entities: u64) -> SampleStep {
+        let before = steps.last().map_or(0, |s| s.rows_after);
+        SampleStep {
+            step: step.into(),
+            rows_before: before,
+            removed: before - rows,
+            rows_after: rows,
+            entities_after: entities,
+        }
+    }
+
     /// The line for a step that left `df`.
     pub fn after(
         steps: &[SampleStep],
