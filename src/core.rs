@@ -261,13 +261,16 @@ impl PanelCore {
     /// For each row, whether the row before is the previous period (by value) of the same
     /// entity.
     pub fn previous_period(&self) -> Vec<bool> {
-        let mut back = vec![false; self.rows()];
-        for r in 1..self.rows() {
-            back[r] = self.entity[r] == self.entity[r - 1]
-                && self.periods[self.period[r] as usize]
-                    == self.periods[self.period[r - 1] as usize] + 1;
-        }
-        back
+        let value = |code: u32| self.periods[code as usize];
+        std::iter::once(false)
+            .chain(
+                self.entity
+                    .windows(2)
+                    .zip(self.period.windows(2))
+                    .map(|(e, t)| e[0] == e[1] && value(t[1]) == value(t[0]) + 1),
+            )
+            .take(self.rows())
+            .collect()
     }
 
     /// Distinct keys removed by dropping, again and again, every key whose entity or period

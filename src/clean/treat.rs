@@ -7,6 +7,7 @@ use polars::prelude::*;
 
 use super::{drop_where, Keys};
 use crate::audit::CutoffGroups;
+use crate::core::{type7, Values};
 use crate::report::{Cutoff, GroupCutoff, Histogram, TreatLine};
 use crate::rules::{TreatBy, TreatSpec};
 use crate::{Error, Result};
@@ -120,6 +121,33 @@ impl Treatment {
         })
     }
 
+    /// `df` with the columns of `right` (one row per key of `on`) set beside each row: the join
+    /// reads only the key columns, so the panel's other columns are shared, never copied.
+    fn beside(df: &DataFrame, on: Vec<Expr>, right: LazyFrame) -> Result<LazyFrame> {
+        let names: Vec<String> = on
+            .iter()
+            .map(|e| e.clone().meta().output_name().map(|n| n.to_string()))
+            .collect::<PolarsResult<_>>()?;
+        let added = df
+            .clone()
+            .lazy()
+            .select(on.clone())
+            .join(
+                right,
+                on.clone(),
+                on,
+                JoinArgs {
+                    maintain_order: MaintainOrderJoin::Left,
+                    ..JoinArgs::new(JoinType::Left)
+                },
+            )
+            .drop(cols(names))
+            .collect()?;
+        let mut out = df.clone();
+        out.hstack_mut(added.columns())?;
+        Ok(out.lazy())
+    }
+
     /// Apply to `df`; returns the treated frame, the ledger part (trim) and one line per variable.
     pub fn apply(
         &self,
@@ -208,19 +236,7 @@ impl Treatment {
                     right.push(col(format!("__lo{i}").as_str()));
                     right.push(col(format!("__hi{i}").as_str()));
                 }
-                let j = df
-                    .clone()
-                    .lazy()
-                    .join(
-                        c.clone().lazy().select(right),
-                        keys.clone(),
-                        keys,
-                        JoinArgs {
-                            maintain_order: MaintainOrderJoin::Left,
-                            ..JoinArgs::new(JoinType::Left)
-                        },
-                    )
-                    .with_columns(fill);
+                let j = Self::beside(&df, keys, c.clone().lazy().select(right))?.with_columns(fill);
                 (c, j)
             }
             CutoffGroups::Period => {
@@ -231,15 +247,7 @@ impl Treatment {
                     .agg(aggs)
                     .sort([k.period], Default::default())
                     .collect()?;
-                let j = df.clone().lazy().join(
-                    c.clone().lazy(),
-                    [col(k.period)],
-                    [col(k.period)],
-                    JoinArgs {
-                        maintain_order: MaintainOrderJoin::Left,
-                        ..JoinArgs::new(JoinType::Left)
-                    },
-                );
+                let j = Self::beside(&df, vec![col(k.period)], c.clone().lazy())?;
                 (c, j)
             }
         };
@@ -260,7 +268,9 @@ impl Treatment {
                     .alias(format!("__above{i}")),
             );
         }
-        let marked = joined.with_columns(flags).collect()?;
+        // Lazily: the counts read only the treated columns and their cutoffs, and the
+        // treated panel never holds the helper columns all at once.
+        let marked = joined.with_columns(flags);
         let mut counts = Vec::new();
         for i in 0..self.variables.len() {
             counts.push(
@@ -274,17 +284,9 @@ impl Treatment {
                     .cast(DataType::UInt64),
             );
         }
-        let counts = marked.clone().lazy().select(counts).collect()?;
-        let helpers: Vec<String> = marked
-            .get_column_names()
-            .iter()
-            .map(|c| c.to_string())
-            .filter(|c| {
-                c.starts_with("__lo")
-                    || c.starts_with("__hi")
-                    || c.starts_with("__below")
-                    || c.starts_with("__above")
-            })
+        let counts = marked.clone().select(counts).collect()?;
+        let helpers: Vec<String> = (0..self.variables.len())
+            .flat_map(|i| ["lo", "hi", "below", "above"].map(|h| format!("__{h}{i}")))
             .collect();
         let (out, removed) = match self.method {
             Method::Winsorize => {
@@ -301,11 +303,7 @@ impl Treatment {
                             .alias(v.as_str())
                     })
                     .collect();
-                let out = marked
-                    .lazy()
-                    .with_columns(replace)
-                    .drop(cols(helpers))
-                    .collect()?;
+                let out = marked.with_columns(replace).drop(cols(helpers)).collect()?;
                 (out, None)
             }
             Method::Trim => {
@@ -317,7 +315,7 @@ impl Treatment {
                         .then(lit(format!("`{v}` beyond its trimming cutoffs")))
                         .otherwise(reason);
                 }
-                let (kept, removed) = drop_where(marked, reason, "trim", k)?;
+                let (kept, removed) = drop_where(marked.collect()?, reason, "trim", k)?;
                 let kept = kept.lazy().drop(cols(helpers)).collect()?;
                 (kept, Some(removed))
             }
@@ -410,21 +408,9 @@ const BINS: usize = 30;
 /// Equal-width bins between the 0.5th and 99.5th percentiles; values beyond fall in the end
 /// bins. Missing values are left out.
 fn histogram(df: &DataFrame, v: &str) -> Result<Histogram> {
-    let x = col(v).cast(DataType::Float64);
-    let q = df
-        .clone()
-        .lazy()
-        .select([
-            x.clone()
-                .quantile(lit(0.005), QuantileMethod::Linear)
-                .alias("lo"),
-            x.clone()
-                .quantile(lit(0.995), QuantileMethod::Linear)
-                .alias("hi"),
-        ])
-        .collect()?;
-    let (Some(lo), Some(hi)) = (q.column("lo")?.f64()?.get(0), q.column("hi")?.f64()?.get(0))
-    else {
+    // One typed pass: the 0.5% and 99.5% points by selection (type 7), then the counts.
+    let mut x = Values::of(df, v)?.present();
+    let (Some(lo), Some(hi)) = (type7(&mut x, 0.005), type7(&mut x, 0.995)) else {
         return Ok(Histogram::default());
     };
     let width = if hi > lo {
@@ -432,24 +418,13 @@ fn histogram(df: &DataFrame, v: &str) -> Result<Histogram> {
     } else {
         1.0
     };
-    let bins = df
-        .clone()
-        .lazy()
-        .select([((x - lit(lo)) / lit(width))
-            .floor()
-            .clip(lit(0.0), lit((BINS - 1) as f64))
-            .cast(DataType::Int64)
-            .alias("bin")])
-        .drop_nulls(None)
-        .group_by([col("bin")])
-        .agg([len().cast(DataType::UInt64).alias("n")])
-        .collect()?;
     let mut counts = vec![0u64; BINS];
-    let (b, n) = (bins.column("bin")?.i64()?, bins.column("n")?.u64()?);
-    for i in 0..bins.height() {
-        if let (Some(b), Some(n)) = (b.get(i), n.get(i)) {
-            counts[b as usize] += n;
-        }
+    for b in x
+        .iter()
+        .map(|x| ((x - lo) / width).floor().clamp(0.0, (BINS - 1) as f64))
+        .filter(|b| !b.is_nan())
+    {
+        counts[b as usize] += 1;
     }
     Ok(Histogram {
         start: lo,
