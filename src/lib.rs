@@ -150,9 +150,15 @@ fn build_cmd(cfg: &BuildConfig) -> Result<i32> {
 /// Run the whole pipeline and write the bundle; the library entry point behind `build`.
 pub fn build(cfg: &BuildConfig) -> Result<bundle::Manifest> {
     let progress = progress::Progress::new(cfg.input.quiet, cfg.input.timings);
+    // The input's hash for the manifest, read beside the pipeline (both only read the file).
+    let path = cfg.input.path.clone();
+    let hashing = std::thread::spawn(move || bundle::sha256_file(&path));
     let mut prepared = pipeline::prepare(&cfg.input, pipeline::Mode::Build, &progress)?;
     progress.stage("writing the bundle");
-    bundle::write(cfg, &mut prepared, &progress)
+    let input_sha256 = hashing
+        .join()
+        .unwrap_or_else(|panic| std::panic::resume_unwind(panic))?;
+    bundle::write(cfg, &mut prepared, &input_sha256, &progress)
 }
 
 fn demo_cmd(cfg: &DemoConfig) -> Result<i32> {

@@ -52,12 +52,22 @@ impl Check for Attrition {
         if vars.is_empty() {
             return Ok(());
         }
-        // The first row of each entity at its first period (the first of any duplicates).
-        let at_first = ctx
-            .with_span(ctx.df.clone().lazy())
-            .filter(col(ctx.period).eq(col(FIRST)))
-            .unique_stable_generic(Some(vec![col(ctx.entity)]), UniqueKeepStrategy::First)
-            .with_column(leaver.alias("__leaver"));
+        // The first row of each entity at its first period (the first of any duplicates): in
+        // the sorted panel, the entity's first row; it left early if its last period is
+        // before the window's last.
+        let core = &ctx.core;
+        let firsts: Vec<IdxSize> = (0..core.entities())
+            .map(|i| core.starts[i] as IdxSize)
+            .collect();
+        let left: Vec<bool> = (0..core.entities())
+            .map(|i| core.periods[core.period[core.starts[i + 1] - 1] as usize] < last)
+            .collect();
+        let mut first_rows = ctx
+            .df
+            .select(vars.iter().map(|v| v.as_str()))?
+            .take(&IdxCa::from_vec("first".into(), firsts))?;
+        first_rows.with_column(Column::new("__leaver".into(), left))?;
+        let at_first = first_rows.lazy();
         let mut aggs = Vec::new();
         for (i, v) in vars.iter().enumerate() {
             let x = col(v.as_str()).cast(DataType::Float64);

@@ -3,10 +3,8 @@
 
 use std::collections::HashMap;
 
-use polars::prelude::*;
-
-use super::names::*;
 use super::{Check, Context};
+use crate::core::PanelCore;
 use crate::report::{EntryExit as Line, Report, Survival};
 use crate::Result;
 
@@ -22,30 +20,8 @@ impl Check for EntryExit {
         let Some((first, last)) = ctx.window()? else {
             return Ok(());
         };
-        let joined = ctx.with_span(ctx.keys.clone().lazy());
-        let per_period = joined
-            .clone()
-            .group_by([col(ctx.period)])
-            .agg([
-                len().cast(DataType::UInt64).alias("present"),
-                col(ctx.period)
-                    .eq(col(FIRST))
-                    .sum()
-                    .cast(DataType::UInt64)
-                    .alias("entrants"),
-                col(ctx.period)
-                    .eq(col(LAST))
-                    .sum()
-                    .cast(DataType::UInt64)
-                    .alias("leavers"),
-                col(STEP)
-                    .gt(lit(1))
-                    .sum()
-                    .cast(DataType::UInt64)
-                    .alias("reentrants"),
-            ])
-            .collect()?;
-        let counts = by_period(&per_period, ctx.period)?;
+        // One pass over the panel core's distinct keys, entity by entity.
+        let (counts, seen) = counts(&ctx.core);
         report.entry_exit = (first..=last)
             .map(|p| {
                 let [present, entrants, leavers, reentrants] =
@@ -60,22 +36,6 @@ impl Check for EntryExit {
             })
             .collect();
 
-        let cohorts = joined
-            .with_column((col(ctx.period) - col(FIRST)).alias("k"))
-            .group_by([col(FIRST), col("k")])
-            .agg([len().cast(DataType::UInt64).alias("n")])
-            .collect()?;
-        let (c, k, n) = (
-            cohorts.column(FIRST)?.i64()?,
-            cohorts.column("k")?.i64()?,
-            cohorts.column("n")?.u64()?,
-        );
-        let mut seen: HashMap<(i64, i64), u64> = HashMap::new();
-        for i in 0..cohorts.height() {
-            if let (Some(c), Some(k), Some(n)) = (c.get(i), k.get(i), n.get(i)) {
-                seen.insert((c, k), n);
-            }
-        }
         report.survival = (first..=last)
             .filter_map(|cohort| {
                 let size = *seen.get(&(cohort, 0))?;
@@ -93,18 +53,36 @@ impl Check for EntryExit {
     }
 }
 
-fn by_period(df: &DataFrame, period: &str) -> Result<HashMap<i64, [u64; 4]>> {
-    let p = df.column(period)?.i64()?;
-    let cols = ["present", "entrants", "leavers", "reentrants"]
-        .map(|c| df.column(c).and_then(|s| s.u64().cloned()));
-    let [a, b, c, d] = cols;
-    let (a, b, c, d) = (a?, b?, c?, d?);
-    let mut out = HashMap::new();
-    for i in 0..df.height() {
-        if let Some(period) = p.get(i) {
-            let v = |x: &UInt64Chunked| x.get(i).unwrap_or(0);
-            out.insert(period, [v(&a), v(&b), v(&c), v(&d)]);
+/// Per period value: entities present, entering (their first period), leaving (their last)
+/// and returning after a gap; per (entry cohort, periods since entry): entities present.
+type Counts = (HashMap<i64, [u64; 4]>, HashMap<(i64, i64), u64>);
+
+fn counts(core: &PanelCore) -> Counts {
+    let mut by_period: HashMap<i64, [u64; 4]> = HashMap::new();
+    let mut cohorts: HashMap<(i64, i64), u64> = HashMap::new();
+    let mut periods: Vec<i64> = Vec::new();
+    for i in 0..core.entities() {
+        // The entity's distinct periods, ascending (copies of a key sit together).
+        periods.clear();
+        for r in core.starts[i]..core.starts[i + 1] {
+            let t = core.periods[core.period[r] as usize];
+            if periods.last() != Some(&t) {
+                periods.push(t);
+            }
+        }
+        let (Some(&first), Some(&last)) = (periods.first(), periods.last()) else {
+            continue;
+        };
+        let mut previous = None;
+        for &t in &periods {
+            let c = by_period.entry(t).or_default();
+            c[0] += 1;
+            c[1] += u64::from(t == first);
+            c[2] += u64::from(t == last);
+            c[3] += u64::from(previous.is_some_and(|p| t - p > 1));
+            previous = Some(t);
+            *cohorts.entry((first, t - first)).or_default() += 1;
         }
     }
-    Ok(out)
+    (by_period, cohorts)
 }

@@ -143,6 +143,7 @@ pub struct OutputRecord {
 pub fn write(
     cfg: &BuildConfig,
     prepared: &mut Prepared,
+    input_sha256: &str,
     progress: &crate::progress::Progress,
 ) -> Result<Manifest> {
     let out = &cfg.out;
@@ -163,7 +164,7 @@ pub fn write(
         fs::remove_dir_all(&staging).map_err(Error::io(&staging))?;
     }
     fs::create_dir(&staging).map_err(Error::io(&staging))?;
-    let result = write_files(cfg, prepared, &staging, progress);
+    let result = write_files(cfg, prepared, input_sha256, &staging, progress);
     let manifest = match result {
         Ok(m) => m,
         Err(e) => {
@@ -222,6 +223,7 @@ impl Write for HashingFile {
 fn write_files(
     cfg: &BuildConfig,
     p: &mut Prepared,
+    input_sha256: &str,
     dir: &Path,
     progress: &crate::progress::Progress,
 ) -> Result<Manifest> {
@@ -274,7 +276,7 @@ fn write_files(
             .map_err(Error::io(dir.join("dictionary.md")))
     })?;
 
-    progress.stage("hashing the input");
+    progress.stage("writing the manifest");
     let input_abs = std::path::absolute(&cfg.input.path).map_err(Error::io(&cfg.input.path))?;
     let rules_path = match &cfg.input.rules.path {
         Some(r) => Some(
@@ -292,7 +294,7 @@ fn write_files(
         input: InputRecord {
             name: file_name(&input_abs),
             path: input_abs.display().to_string(),
-            sha256: sha256_file(&cfg.input.path)?,
+            sha256: input_sha256.to_string(),
             rows: p.report.input.rows,
             format: cfg.input.format,
             entity: cfg.input.entity.clone(),
@@ -360,7 +362,7 @@ fn write_csv(f: &mut HashingFile, df: &DataFrame) -> Result<()> {
 }
 
 /// SHA-256 of a file, read in blocks.
-fn sha256_file(path: &Path) -> Result<String> {
+pub fn sha256_file(path: &Path) -> Result<String> {
     let mut file = fs::File::open(path).map_err(Error::io(path))?;
     let mut hash = Sha256::new();
     std::io::copy(&mut file, &mut hash).map_err(Error::io(path))?;
