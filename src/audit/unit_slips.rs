@@ -3,14 +3,17 @@
 //! within-entity jumps in log levels.
 
 use polars::prelude::*;
+use rayon::prelude::*;
 
 use super::{Check, Context};
-use crate::clean::repair::slip_magnitude;
+use crate::clean::repair::{log_ratios, magnitude};
+use crate::core::Values;
 use crate::report::{Report, UnitSlip};
 use crate::Result;
 
-/// The hidden column saying whether the row before is the previous period of the entity.
-const BACK: &str = "__back";
+/// One level variable's slips (row, magnitude, jumps back the next period) and its count of
+/// large jumps in the log level.
+type Found = (Vec<(usize, i32, bool)>, u64);
 
 /// The longest slip list kept in the report (the count covers all).
 const LISTED: usize = 10_000;
@@ -24,79 +27,53 @@ impl Check for UnitSlips {
     }
 
     fn run(&self, ctx: &Context, report: &mut Report) -> Result<()> {
-        let (e, p) = (ctx.entity, ctx.period);
         let levels = &ctx.levels;
         if levels.is_empty() {
             return Ok(());
         }
         // The panel is sorted by entity and period: whether the row before is the previous
-        // period of the same entity comes from the panel core's codes, once.
-        let mut frame = ctx.df.clone();
-        frame.with_column(Column::new(BACK.into(), ctx.core.previous_period()))?;
-        let back = col(BACK);
-        let mut cols = vec![col(e), col(p)];
-        for (i, v) in levels.iter().enumerate() {
-            let x = col(v.as_str()).cast(DataType::Float64);
-            let prev = x.clone().shift(lit(1));
-            let ok = back
-                .clone()
-                .and(x.clone().gt(lit(0.0)))
-                .and(prev.clone().gt(lit(0.0)));
-            let r = when(ok)
-                .then((x.clone() / prev).log(lit(10.0)))
-                .otherwise(lit(NULL));
-            // The same detector the repair uses (clean::repair).
-            let mag = slip_magnitude(back.clone(), x);
-            cols.push(mag.alias(format!("mag{i}")));
-            cols.push(
-                (r * lit(std::f64::consts::LN_10))
-                    .abs()
-                    .gt(lit(ctx.settings.log_jump))
-                    .alias(format!("jump{i}")),
-            );
-        }
-        let frame = frame.lazy().select(cols).collect()?;
+        // period of the same entity comes from the panel core's codes, once; then one typed
+        // pass per level variable (in parallel) with the detector the repair uses.
+        let back = ctx.core.previous_period();
+        let log_jump = ctx.settings.log_jump;
+        let found: Vec<Found> = levels
+            .par_iter()
+            .map(|v| {
+                let x = Values::of(ctx.df, v)?;
+                let r = log_ratios(&back, &x);
+                let mag: Vec<Option<i32>> = r.iter().map(|r| r.and_then(magnitude)).collect();
+                let jumps = r
+                    .iter()
+                    .flatten()
+                    .filter(|r| (*r * std::f64::consts::LN_10).abs() > log_jump)
+                    .count() as u64;
+                // A slip is listed once: the jump back of a listed slip is not another slip.
+                let slips = (0..mag.len())
+                    .filter_map(|i| {
+                        let m = mag[i]?;
+                        let listed = i == 0 || mag[i - 1] != Some(-m);
+                        let reverses = mag.get(i + 1).copied().flatten() == Some(-m);
+                        listed.then_some((i, m, reverses))
+                    })
+                    .collect();
+                Ok((slips, jumps))
+            })
+            .collect::<Result<_>>()?;
+        let entity = ctx.df.column(ctx.entity)?.cast(&DataType::String)?;
+        let entity = entity.str()?;
+        let period = ctx.df.column(ctx.period)?.cast(&DataType::Int64)?;
+        let period = period.i64()?;
         let mut slips = Vec::new();
-        for (i, v) in levels.iter().enumerate() {
-            let mag = col(format!("mag{i}").as_str());
-            let listed = mag.clone().is_not_null().and(
-                mag.clone()
-                    .shift(lit(1))
-                    .neq(-mag.clone())
-                    .fill_null(lit(true)),
-            );
-            let reverses = mag
-                .clone()
-                .shift(lit(-1))
-                .eq(-mag.clone())
-                .fill_null(lit(false));
-            let found = frame
-                .clone()
-                .lazy()
-                .with_column(reverses.alias("reverses"))
-                .filter(listed)
-                .select([col(e), col(p), mag.alias("mag"), col("reverses")])
-                .collect()?;
-            let (ent, per, m, rev) = (
-                found.column(e)?.str()?,
-                found.column(p)?.i64()?,
-                found.column("mag")?.i32()?,
-                found.column("reverses")?.bool()?,
-            );
-            for j in 0..found.height() {
+        for (v, (rows, jumps)) in levels.iter().zip(found) {
+            for (r, m, reverses) in rows {
                 slips.push(UnitSlip {
-                    entity: ent.get(j).unwrap_or_default().to_string(),
-                    period: per.get(j).unwrap_or_default(),
+                    entity: entity.get(r).unwrap_or_default().to_string(),
+                    period: period.get(r).unwrap_or_default(),
                     variable: v.clone(),
-                    factor: 10f64.powi(m.get(j).unwrap_or_default()),
-                    reverses: rev.get(j).unwrap_or(false),
+                    factor: 10f64.powi(m),
+                    reverses,
                 });
             }
-            let jumps = frame
-                .column(&format!("jump{i}"))?
-                .bool()?
-                .sum()
-                .unwrap_or(0) as u64;
             if let Some(line) = report.outliers.iter_mut().find(|l| &l.variable == v) {
                 line.log_jumps = Some(jumps);
             }

@@ -7,6 +7,7 @@ use std::path::{Path, PathBuf};
 
 use polars::prelude::*;
 
+use crate::core::{PanelCore, Values};
 use crate::{Error, Result};
 
 /// What to do with a detected unit slip.
@@ -316,36 +317,33 @@ pub fn apply_corrections(
     Ok((df, ledger))
 }
 
-/// Whether the row before is the previous period of the same entity, on a frame sorted by
-/// entity and period.
-pub fn previous_period(entity: &str, period: &str) -> Expr {
-    col(entity)
-        .eq(col(entity).shift(lit(1)))
-        .and(col(period).eq(col(period).shift(lit(1)) + lit(1)))
+/// The log10 ratio of each row of `x` to the previous period of the same entity, where both
+/// are positive (`back[r]`: the row before is that period, on a panel sorted by entity and
+/// period); else None.
+pub fn log_ratios(back: &[bool], x: &Values) -> Vec<Option<f64>> {
+    (0..back.len())
+        .map(|r| {
+            if !back[r] {
+                return None;
+            }
+            match (x.get(r), x.get(r - 1)) {
+                (Some(a), Some(b)) if a > 0.0 && b > 0.0 => Some((a / b).log10()),
+                _ => None,
+            }
+        })
+        .collect()
 }
 
-/// The unit-slip magnitude of each row of `x` on a frame sorted by entity and period: 3 or 6
-/// (or −3, −6) when the ratio to the previous period of the same entity is within a factor of
-/// two of 10^3 or 10^6 (or their inverses), else null. `back` says whether the row before is
-/// that previous period (`previous_period`, or the panel core's). Shared with the audit.
-pub fn slip_magnitude(back: Expr, x: Expr) -> Expr {
+/// The unit-slip magnitude of a log10 ratio to the previous period: 3 or 6 (or −3, −6) when
+/// the ratio is within a factor of two of 10^3 or 10^6 (or their inverses), else None. With
+/// `log_ratios`, the one detector the audit and the repair share.
+pub fn magnitude(r: f64) -> Option<i32> {
     // How far (in log10 units) a ratio may sit from 10^3 or 10^6 and still count as a slip:
     // log10(2), so factors between 500 and 2000 count as 1000.
     let slack = std::f64::consts::LOG10_2;
-    let prev = x.clone().shift(lit(1));
-    let ok = back
-        .and(x.clone().gt(lit(0.0)))
-        .and(prev.clone().gt(lit(0.0)));
-    let r = when(ok)
-        .then((x / prev).log(lit(10.0)))
-        .otherwise(lit(NULL));
-    let mut mag = lit(NULL).cast(DataType::Int32);
-    for m in [6, -6, 3, -3] {
-        mag = when((r.clone() - lit(m as f64)).abs().lt(lit(slack)))
-            .then(lit(m))
-            .otherwise(mag);
-    }
-    mag
+    [6, -6, 3, -3]
+        .into_iter()
+        .find(|m| (r - f64::from(*m)).abs() < slack)
 }
 
 /// Repair the unit slips the detector is sure of in `levels`: a jump by a power of 1000 whose
@@ -362,13 +360,25 @@ pub fn repair_slips(
     if policy == SlipPolicy::Report || levels.is_empty() {
         return Ok((df, empty_ledger(entity, period)?));
     }
-    let mut lf = df.lazy().sort([entity, period, row], Default::default());
+    let mut df = df
+        .lazy()
+        .sort([entity, period, row], Default::default())
+        .collect()?;
+    // The detector the audit uses, over the panel core's codes.
+    let back = PanelCore::new(&df, entity, period)?.previous_period();
+    for (i, v) in levels.iter().enumerate() {
+        let x = Values::of(&df, v)?;
+        let mags: Int32Chunked = log_ratios(&back, &x)
+            .into_iter()
+            .map(|r| r.and_then(magnitude))
+            .collect();
+        df.with_column(mags.into_column().with_name(format!("__mag{i}").into()))?;
+    }
+    let mut lf = df.lazy();
     let mut ledger = Vec::new();
     let mut fixes = Vec::new();
     for (i, v) in levels.iter().enumerate() {
         let x = col(v.as_str()).cast(DataType::Float64);
-        let mag = slip_magnitude(previous_period(entity, period), x.clone());
-        lf = lf.with_column(mag.alias(format!("__mag{i}")));
         let m = col(format!("__mag{i}").as_str());
         let sure = m
             .clone()
