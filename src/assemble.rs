@@ -275,11 +275,10 @@ fn read_table(
         col("__first"),
     )?;
     if repeats.height() > 0 && !keep_first {
-        let row = repeats.column(ROW)?.cast(&DataType::Int64)?;
         let first = repeats.column(RELATED)?.cast(&DataType::Int64)?;
         return Err(Error::Unreadable {
             file: path.to_path_buf(),
-            at: format!(", row {}", row.i64()?.get(0).unwrap_or(0)),
+            at: crate::load::first_row(&repeats)?,
             message: format!(
                 "{} rows repeat the key ({}) of an earlier row with other values (the first: \
                  row {}); a joined table needs one row per key, or `duplicates = \"keep-first\"` \
@@ -353,14 +352,7 @@ fn cast_key(df: DataFrame, column: &str, dtype: &DataType, path: &Path) -> Resul
     if bad.height() > 0 {
         return Err(Error::Unreadable {
             file: path.to_path_buf(),
-            at: format!(
-                ", row {}",
-                bad.column(ROW)?
-                    .cast(&DataType::Int64)?
-                    .i64()?
-                    .get(0)
-                    .unwrap_or(0)
-            ),
+            at: crate::load::first_row(&bad)?,
             message: format!(
                 "`{column}` holds `{}`, which does not match the panel's `{column}` ({})",
                 bad.column(column)?.str()?.get(0).unwrap_or(""),

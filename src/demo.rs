@@ -513,15 +513,10 @@ fn plant_defects(c: &mut Columns, planted: &mut Planted, rng: &mut ChaCha8Rng) {
     }
 }
 
-/// The demo rules file: maps the raw names to canonical ones and adds two variables.
-pub const RULES: &str = r#"# Rules for the Velmora demo panel (invented data).
-include = ["standard"]
-
-[panel]
-entity = "firm_id"
-period = "fiscal_year"
-
-[columns]
+/// The demo's raw column names under the canonical names, shared by both demo rules files.
+macro_rules! demo_columns {
+    () => {
+        r#"[columns]
 total_assets = "assets_total"
 sales = "revenue"
 net_income = "net_profit"
@@ -532,7 +527,22 @@ current_assets = "cur_assets"
 current_liabilities = "cur_liabilities"
 short_term_debt = "debt_short"
 long_term_debt = "debt_long"
+"#
+    };
+}
 
+/// The demo rules file: maps the raw names to canonical ones and adds two variables.
+pub const RULES: &str = concat!(
+    r#"# Rules for the Velmora demo panel (invented data).
+include = ["standard"]
+
+[panel]
+entity = "firm_id"
+period = "fiscal_year"
+
+"#,
+    demo_columns!(),
+    r#"
 # Further raw files, joined onto the accounts after the key steps (paths relative to this
 # file): headcount by firm-year, the stock-market listing by firm, a price index by year.
 [[join]]
@@ -580,11 +590,13 @@ effects = ["firm_id"]              # fixed effects by key column; add "fiscal_ye
 duplicates = "keep-first"
 # Winsorize the ratios at the 1st and 99th percentiles over all firm-years.
 winsorize = { variables = ["roa", "roa_lagged_assets", "leverage", "interest_cover", "sales_growth", "asset_growth", "working_capital_assets", "rd_assets"], lower = 0.01, upper = 0.99, by = "pooled" }
-"#;
+"#
+);
 
 /// A second rules file for the demo: the fiscal year derived from the year-end date instead
 /// of taken from `fiscal_year`.
-pub const RULES_YEAR_END: &str = r#"# The Velmora accounts with the fiscal year derived from each row's year-end date, not
+pub const RULES_YEAR_END: &str = concat!(
+    r#"# The Velmora accounts with the fiscal year derived from each row's year-end date, not
 # taken from the accounts' own `fiscal_year` column (invented data). A year ending January to
 # May belongs to the previous fiscal year (common practice). Firms that moved their year end
 # show up in the Keys section, and the two rows they put into one fiscal year are conflicting
@@ -597,21 +609,13 @@ period = "fiscal_year_from_date"
 year_end = "year_end"
 year_end_cutoff = 5
 
-[columns]
-total_assets = "assets_total"
-sales = "revenue"
-net_income = "net_profit"
-ebit = "op_profit"
-interest_expense = "interest_paid"
-rd_expense = "rnd_spend"
-current_assets = "cur_assets"
-current_liabilities = "cur_liabilities"
-short_term_debt = "debt_short"
-long_term_debt = "debt_long"
-
+"#,
+    demo_columns!(),
+    r#"
 [clean]
 duplicates = "keep-first"
-"#;
+"#
+);
 
 fn readme(p: &Planted, firms: u32, periods: u32, seed: u64) -> String {
     format!(

@@ -254,14 +254,7 @@ fn fiscal_year(
     if bad.height() > 0 {
         return Err(Error::Unreadable {
             file: cfg.path.clone(),
-            at: format!(
-                ", row {}",
-                bad.column(ROW)?
-                    .cast(&DataType::Int64)?
-                    .i64()?
-                    .get(0)
-                    .unwrap_or(0)
-            ),
+            at: first_row(&bad)?,
             message: format!(
                 "`{date}` (named in `[panel] year_end`) holds `{}`, not a date YYYY-MM-DD",
                 bad.column("__ye_text")?.str()?.get(0).unwrap_or("")
@@ -312,6 +305,12 @@ fn fiscal_year(
             examples,
         }),
     ))
+}
+
+/// ", row N" for the first row of `bad` (a frame with the row-number column), for messages.
+pub(crate) fn first_row(bad: &DataFrame) -> Result<String> {
+    let row = bad.column(ROW)?.cast(&DataType::Int64)?;
+    Ok(format!(", row {}", row.i64()?.get(0).unwrap_or(0)))
 }
 
 /// A UTF-8 copy of a Windows-1252 file, removed when dropped.

@@ -236,6 +236,27 @@ impl<'a> Context<'a> {
             .with_column((col(LAST) - col(FIRST) + lit(1i64) - col(N)).alias(GAPS))
             .sort([entity], Default::default())
             .collect()?;
+        Context::from_parts(
+            df,
+            entity,
+            period,
+            options,
+            keys,
+            entities,
+            PanelCore::new(df, entity, period)?,
+        )
+    }
+
+    /// A context over `df` with the key frames and codes given.
+    fn from_parts(
+        df: &'a DataFrame,
+        entity: &'a str,
+        period: &'a str,
+        options: Options,
+        keys: DataFrame,
+        entities: DataFrame,
+        core: PanelCore,
+    ) -> Result<Context<'a>> {
         let (variables, numeric) = variable_lists(df, entity, period, &options);
         let outlier_groups = match options.settings.by {
             CutoffGroups::Groups => Some(group_codes(df, &options.settings.group_columns)?),
@@ -254,7 +275,7 @@ impl<'a> Context<'a> {
             reach: options.reach,
             keys,
             entities,
-            core: PanelCore::new(df, entity, period)?,
+            core,
             outlier_groups,
         })
     }
@@ -267,27 +288,15 @@ impl<'a> Context<'a> {
         'a: 'b,
     {
         debug_assert_eq!(df.height(), self.df.height());
-        let (variables, numeric) = variable_lists(df, self.entity, self.period, &options);
-        let outlier_groups = match options.settings.by {
-            CutoffGroups::Groups => Some(group_codes(df, &options.settings.group_columns)?),
-            _ => None,
-        };
-        Ok(Context {
+        Context::from_parts(
             df,
-            entity: self.entity,
-            period: self.period,
-            compare: options.compare,
-            levels: options.levels,
-            variables,
-            numeric,
-            settings: options.settings,
-            model: options.model,
-            reach: options.reach,
-            keys: self.keys.clone(),
-            entities: self.entities.clone(),
-            core: self.core.clone(),
-            outlier_groups,
-        })
+            self.entity,
+            self.period,
+            options,
+            self.keys.clone(),
+            self.entities.clone(),
+            self.core.clone(),
+        )
     }
 
     /// `lf` with each row's entity's first and last period (`__first`, `__last`) joined on.
