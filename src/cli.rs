@@ -105,7 +105,8 @@ pub(crate) struct CompareArgs {
 /// Where the data is and how to read its keys.
 #[derive(Debug, Args)]
 pub(crate) struct InputArgs {
-    /// The raw panel: a CSV, Parquet or spreadsheet file, one row per firm-year.
+    /// The raw panel: a CSV, Parquet or spreadsheet file, one row per firm-year (further
+    /// files joined onto it are named in the rules file's [[join]] sections).
     pub(crate) data: PathBuf,
 
     #[command(flatten)]
@@ -264,7 +265,8 @@ pub(crate) struct VerifyArgs {
     pub(crate) input: Option<PathBuf>,
 
     /// The rules file, when it is no longer where the manifest says; recognised by its
-    /// SHA-256.
+    /// SHA-256. The files it names (joined tables, the corrections file) are read beside it
+    /// and must match the hashes in the manifest.
     #[arg(long, value_name = "PATH")]
     pub(crate) rules: Option<PathBuf>,
 }

@@ -10,6 +10,10 @@ use polars::prelude::*;
 
 use crate::Result;
 
+/// How many variables the kernels hold in memory at once (several per core, few enough that
+/// memory holds a handful of columns' values rather than the whole panel's).
+pub const BATCH: usize = 4;
+
 /// Entity and period codes of a panel sorted by entity and period.
 #[derive(Debug, Clone, Default)]
 pub struct PanelCore {

@@ -135,6 +135,38 @@ pub struct Context<'a> {
     pub outlier_groups: Option<Vec<u32>>,
 }
 
+/// A context's key frames and codes, kept when its panel is let go.
+pub struct KeyFrames {
+    /// Rows of the panel they describe.
+    pub rows: usize,
+    keys: DataFrame,
+    entities: DataFrame,
+    core: PanelCore,
+}
+
+impl KeyFrames {
+    /// A context over `df`, which has the same rows in the same order as the panel these
+    /// describe, with other options. Nothing about the keys is computed again.
+    pub fn context<'b>(
+        &self,
+        df: &'b DataFrame,
+        entity: &'b str,
+        period: &'b str,
+        options: Options,
+    ) -> Result<Context<'b>> {
+        debug_assert_eq!(df.height(), self.rows);
+        Context::from_parts(
+            df,
+            entity,
+            period,
+            options,
+            self.keys.clone(),
+            self.entities.clone(),
+            self.core.clone(),
+        )
+    }
+}
+
 /// Every column but the keys and the excluded ones, and the numeric ones among them.
 fn variable_lists(
     df: &DataFrame,
@@ -280,23 +312,15 @@ impl<'a> Context<'a> {
         })
     }
 
-    /// The same keys, codes and shared frames over `df`, a panel with the same rows in the
-    /// same order (values may differ: after winsorizing), and other options. Nothing about the
-    /// keys is computed again.
-    pub fn with_panel<'b>(&self, df: &'b DataFrame, options: Options) -> Result<Context<'b>>
-    where
-        'a: 'b,
-    {
-        debug_assert_eq!(df.height(), self.df.height());
-        Context::from_parts(
-            df,
-            self.entity,
-            self.period,
-            options,
-            self.keys.clone(),
-            self.entities.clone(),
-            self.core.clone(),
-        )
+    /// The keys, codes and shared frames, without the panel: for a panel with the same rows
+    /// in the same order (values may differ: after winsorizing).
+    pub fn into_keys(self) -> KeyFrames {
+        KeyFrames {
+            rows: self.df.height(),
+            keys: self.keys,
+            entities: self.entities,
+            core: self.core,
+        }
     }
 
     /// `lf` with each row's entity's first and last period (`__first`, `__last`) joined on.

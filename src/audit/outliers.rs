@@ -40,16 +40,19 @@ impl Check for Outliers {
         }
         // Typed kernels over the panel core, variables in parallel: each order statistic by
         // selection (no full sort), each count in one pass.
-        let values: Vec<Values> = vars
-            .iter()
-            .map(|v| Values::of(ctx.df, v))
-            .collect::<Result<_>>()?;
-        let lines: Vec<OutlierLine> = vars
-            .par_iter()
-            .zip(values.par_iter())
-            .map(|(v, x)| line(&ctx.core, ctx.outlier_groups.as_deref(), v, x, s))
-            .collect();
-        report.outliers.extend(lines);
+        // A few variables at a time, so that memory holds a few columns' values, not all.
+        for batch in vars.chunks(crate::core::BATCH) {
+            let values: Vec<Values> = batch
+                .iter()
+                .map(|v| Values::of(ctx.df, v))
+                .collect::<Result<_>>()?;
+            let lines: Vec<OutlierLine> = batch
+                .par_iter()
+                .zip(values.par_iter())
+                .map(|(v, x)| line(&ctx.core, ctx.outlier_groups.as_deref(), v, x, s))
+                .collect();
+            report.outliers.extend(lines);
+        }
         Ok(())
     }
 }

@@ -36,29 +36,32 @@ impl Check for UnitSlips {
         // pass per level variable (in parallel) with the detector the repair uses.
         let back = ctx.core.previous_period();
         let log_jump = ctx.settings.log_jump;
-        let found: Vec<Found> = levels
-            .par_iter()
-            .map(|v| {
-                let x = Values::of(ctx.df, v)?;
-                let r = log_ratios(&back, &x);
-                let mag: Vec<Option<i32>> = r.iter().map(|r| r.and_then(magnitude)).collect();
-                let jumps = r
-                    .iter()
-                    .flatten()
-                    .filter(|r| (*r * std::f64::consts::LN_10).abs() > log_jump)
-                    .count() as u64;
-                // A slip is listed once: the jump back of a listed slip is not another slip.
-                let slips = (0..mag.len())
-                    .filter_map(|i| {
-                        let m = mag[i]?;
-                        let listed = i == 0 || mag[i - 1] != Some(-m);
-                        let reverses = mag.get(i + 1).copied().flatten() == Some(-m);
-                        listed.then_some((i, m, reverses))
-                    })
-                    .collect();
-                Ok((slips, jumps))
-            })
-            .collect::<Result<_>>()?;
+        let one = |v: &String| -> Result<Found> {
+            let x = Values::of(ctx.df, v)?;
+            let r = log_ratios(&back, &x);
+            let mag: Vec<Option<i32>> = r.iter().map(|r| r.and_then(magnitude)).collect();
+            let jumps = r
+                .iter()
+                .flatten()
+                .filter(|r| (*r * std::f64::consts::LN_10).abs() > log_jump)
+                .count() as u64;
+            // A slip is listed once: the jump back of a listed slip is not another slip.
+            let slips = (0..mag.len())
+                .filter_map(|i| {
+                    let m = mag[i]?;
+                    let listed = i == 0 || mag[i - 1] != Some(-m);
+                    let reverses = mag.get(i + 1).copied().flatten() == Some(-m);
+                    listed.then_some((i, m, reverses))
+                })
+                .collect();
+            Ok((slips, jumps))
+        };
+        // A few variables at a time, in parallel, so that memory holds a few columns.
+        let mut found: Vec<Found> = Vec::with_capacity(levels.len());
+        for batch in levels.chunks(crate::core::BATCH) {
+            let part: Vec<Found> = batch.par_iter().map(one).collect::<Result<_>>()?;
+            found.extend(part);
+        }
         let entity = ctx.df.column(ctx.entity)?.cast(&DataType::String)?;
         let entity = entity.str()?;
         let period = ctx.df.column(ctx.period)?.cast(&DataType::Int64)?;

@@ -29,17 +29,21 @@ impl Check for Variation {
         }
         // One typed pass per variable over the panel core's codes, the variables in parallel;
         // each sum runs in row order, so the figures are the same on every run.
-        let values: Vec<Values> = vars
-            .iter()
-            .map(|v| Values::of(ctx.df, v))
-            .collect::<Result<_>>()?;
+        // A few variables at a time, so that memory holds a few columns' values, not all.
         let core = &ctx.core;
-        let lines: Vec<VariationLine> = vars
-            .par_iter()
-            .zip(values.par_iter())
-            .map(|(v, x)| line(core, v, x, ctx.settings.nearly_absorbed))
-            .collect();
-        let mut lines = lines;
+        let mut lines: Vec<VariationLine> = Vec::with_capacity(vars.len());
+        for batch in vars.chunks(crate::core::BATCH) {
+            let values: Vec<Values> = batch
+                .iter()
+                .map(|v| Values::of(ctx.df, v))
+                .collect::<Result<_>>()?;
+            lines.par_extend(
+                batch
+                    .par_iter()
+                    .zip(values.par_iter())
+                    .map(|(v, x)| line(core, v, x, ctx.settings.nearly_absorbed)),
+            );
+        }
         lines.extend(categorical(ctx)?);
         report.variation = lines;
         Ok(())

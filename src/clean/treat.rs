@@ -121,33 +121,6 @@ impl Treatment {
         })
     }
 
-    /// `df` with the columns of `right` (one row per key of `on`) set beside each row: the join
-    /// reads only the key columns, so the panel's other columns are shared, never copied.
-    fn beside(df: &DataFrame, on: Vec<Expr>, right: LazyFrame) -> Result<LazyFrame> {
-        let names: Vec<String> = on
-            .iter()
-            .map(|e| e.clone().meta().output_name().map(|n| n.to_string()))
-            .collect::<PolarsResult<_>>()?;
-        let added = df
-            .clone()
-            .lazy()
-            .select(on.clone())
-            .join(
-                right,
-                on.clone(),
-                on,
-                JoinArgs {
-                    maintain_order: MaintainOrderJoin::Left,
-                    ..JoinArgs::new(JoinType::Left)
-                },
-            )
-            .drop(cols(names))
-            .collect()?;
-        let mut out = df.clone();
-        out.hstack_mut(added.columns())?;
-        Ok(out.lazy())
-    }
-
     /// Apply to `df`; returns the treated frame, the ledger part (trim) and one line per variable.
     pub fn apply(
         &self,
@@ -167,16 +140,19 @@ impl Treatment {
                     .alias(format!("__hi{i}")),
             );
         }
-        let (cutoffs, joined) = match self.by {
+        let (cutoffs, bounds) = match self.by {
             CutoffGroups::Pooled => {
                 let c = df.clone().lazy().select(aggs).collect()?;
-                let mut lits = Vec::new();
-                for name in c.get_column_names() {
-                    let value = c.column(name)?.f64()?.get(0);
-                    lits.push(lit(value.unwrap_or(f64::NAN)).alias(name.as_str()));
-                }
-                let j = df.clone().lazy().with_columns(lits);
-                (c, j)
+                let pairs = (0..self.variables.len())
+                    .map(|i| -> Result<(f64, f64)> {
+                        let get = |side: &str| -> Result<f64> {
+                            let name = format!("__{side}{i}");
+                            Ok(c.column(&name)?.f64()?.get(0).unwrap_or(f64::NAN))
+                        };
+                        Ok((get("lo")?, get("hi")?))
+                    })
+                    .collect::<Result<_>>()?;
+                (c, Bounds::Fixed(pairs))
             }
             CutoffGroups::Groups => {
                 // Per group; a group with fewer values than 1 / (the smaller tail) gets the
@@ -221,23 +197,21 @@ impl Treatment {
                     .collect()?;
                 let mut fill = Vec::new();
                 for (i, _) in self.variables.iter().enumerate() {
-                    for side in ["lo", "hi"] {
+                    let whole = |side: &str| -> Result<f64> {
                         let name = format!("__{side}{i}");
-                        let whole = pooled.column(&name)?.f64()?.get(0).unwrap_or(f64::NAN);
-                        fill.push(
-                            col(name.as_str())
-                                .fill_null(lit(whole))
-                                .alias(name.as_str()),
-                        );
-                    }
+                        Ok(pooled.column(&name)?.f64()?.get(0).unwrap_or(f64::NAN))
+                    };
+                    fill.push((whole("lo")?, whole("hi")?));
                 }
-                let mut right: Vec<Expr> = keys.clone();
-                for (i, _) in self.variables.iter().enumerate() {
-                    right.push(col(format!("__lo{i}").as_str()));
-                    right.push(col(format!("__hi{i}").as_str()));
-                }
-                let j = Self::beside(&df, keys, c.clone().lazy().select(right))?.with_columns(fill);
-                (c, j)
+                let table = c.clone();
+                (
+                    c,
+                    Bounds::Joined {
+                        keys,
+                        table,
+                        fill: Some(fill),
+                    },
+                )
             }
             CutoffGroups::Period => {
                 let c = df
@@ -247,76 +221,71 @@ impl Treatment {
                     .agg(aggs)
                     .sort([k.period], Default::default())
                     .collect()?;
-                let j = Self::beside(&df, vec![col(k.period)], c.clone().lazy())?;
-                (c, j)
+                let bounds = Bounds::by_period(&c, k.period, self.variables.len())?;
+                (c, bounds)
             }
         };
-        let mut flags = Vec::new();
+        // One variable at a time: its cutoffs set beside each row, its flags, its counts and
+        // its new values, so that the panel never holds more than one variable's helpers.
+        let mut current = df;
+        let mut counts: Vec<(u64, u64)> = Vec::new();
         for (i, v) in self.variables.iter().enumerate() {
-            let (lo, hi) = (
-                col(format!("__lo{i}").as_str()),
-                col(format!("__hi{i}").as_str()),
-            );
-            flags.push(
-                x(v).lt(lo)
+            let [lo, hi, below, above] =
+                ["lo", "hi", "below", "above"].map(|h| format!("__{h}{i}"));
+            let marked = bounds.attach(&current, i)?.with_columns([
+                x(v).lt(col(lo.as_str()))
                     .fill_null(lit(false))
-                    .alias(format!("__below{i}")),
-            );
-            flags.push(
-                x(v).gt(hi)
+                    .alias(below.as_str()),
+                x(v).gt(col(hi.as_str()))
                     .fill_null(lit(false))
-                    .alias(format!("__above{i}")),
-            );
+                    .alias(above.as_str()),
+            ]);
+            let n = marked
+                .clone()
+                .select([
+                    col(below.as_str()).sum().cast(DataType::UInt64),
+                    col(above.as_str()).sum().cast(DataType::UInt64),
+                ])
+                .collect()?;
+            let get = |c: usize| {
+                n.columns()[c]
+                    .u64()
+                    .ok()
+                    .and_then(|s| s.get(0))
+                    .unwrap_or(0)
+            };
+            counts.push((get(0), get(1)));
+            let result = match self.method {
+                Method::Winsorize => when(col(below.as_str()))
+                    .then(col(lo.as_str()))
+                    .when(col(above.as_str()))
+                    .then(col(hi.as_str()))
+                    .otherwise(x(v))
+                    .alias(v.as_str()),
+                Method::Trim => col(below.as_str())
+                    .or(col(above.as_str()))
+                    .alias(format!("__beyond{i}")),
+            };
+            current = marked
+                .with_column(result)
+                .drop(cols([lo, hi, below, above]))
+                .collect()?;
         }
-        // Lazily: the counts read only the treated columns and their cutoffs, and the
-        // treated panel never holds the helper columns all at once.
-        let marked = joined.with_columns(flags);
-        let mut counts = Vec::new();
-        for i in 0..self.variables.len() {
-            counts.push(
-                col(format!("__below{i}").as_str())
-                    .sum()
-                    .cast(DataType::UInt64),
-            );
-            counts.push(
-                col(format!("__above{i}").as_str())
-                    .sum()
-                    .cast(DataType::UInt64),
-            );
-        }
-        let counts = marked.clone().select(counts).collect()?;
-        let helpers: Vec<String> = (0..self.variables.len())
-            .flat_map(|i| ["lo", "hi", "below", "above"].map(|h| format!("__{h}{i}")))
-            .collect();
         let (out, removed) = match self.method {
-            Method::Winsorize => {
-                let replace: Vec<Expr> = self
-                    .variables
-                    .iter()
-                    .enumerate()
-                    .map(|(i, v)| {
-                        when(col(format!("__below{i}").as_str()))
-                            .then(col(format!("__lo{i}").as_str()))
-                            .when(col(format!("__above{i}").as_str()))
-                            .then(col(format!("__hi{i}").as_str()))
-                            .otherwise(x(v))
-                            .alias(v.as_str())
-                    })
-                    .collect();
-                let out = marked.with_columns(replace).drop(cols(helpers)).collect()?;
-                (out, None)
-            }
+            Method::Winsorize => (current, None),
             Method::Trim => {
+                // The first variable beyond its cutoffs names the reason.
                 let mut reason = lit(NULL).cast(DataType::String);
                 for (i, v) in self.variables.iter().enumerate().rev() {
-                    let beyond =
-                        col(format!("__below{i}").as_str()).or(col(format!("__above{i}").as_str()));
-                    reason = when(beyond)
+                    reason = when(col(format!("__beyond{i}").as_str()))
                         .then(lit(format!("`{v}` beyond its trimming cutoffs")))
                         .otherwise(reason);
                 }
-                let (kept, removed) = drop_where(marked.collect()?, reason, "trim", k)?;
-                let kept = kept.lazy().drop(cols(helpers)).collect()?;
+                let beyond: Vec<String> = (0..self.variables.len())
+                    .map(|i| format!("__beyond{i}"))
+                    .collect();
+                let (kept, removed) = drop_where(current, reason, "trim", k)?;
+                let kept = kept.lazy().drop(cols(beyond)).collect()?;
                 (kept, Some(removed))
             }
         };
@@ -345,13 +314,6 @@ impl Treatment {
             } else {
                 Vec::new()
             };
-            let n = |c: usize| {
-                counts.columns()[c]
-                    .u64()
-                    .ok()
-                    .and_then(|s| s.get(0))
-                    .unwrap_or(0)
-            };
             lines.push(TreatLine {
                 variable: v.clone(),
                 method: self.method.label().to_string(),
@@ -361,13 +323,133 @@ impl Treatment {
                 lower_percentile: self.lower * 100.0,
                 upper_percentile: self.upper * 100.0,
                 cutoffs: cut,
-                below: n(2 * i),
-                above: n(2 * i + 1),
+                below: counts[i].0,
+                above: counts[i].1,
                 histogram: histogram(&df_before, v)?,
             });
         }
         Ok((out, removed, lines))
     }
+}
+
+/// Where a variable's cutoffs come from: one pair for all rows, or a table of pairs per key
+/// (period, or group) joined onto the rows, with the pooled pair where a group has none.
+enum Bounds {
+    Fixed(Vec<(f64, f64)>),
+    /// Per period, looked up by the period's offset from the first (no join).
+    ByPeriod {
+        period: String,
+        first: i64,
+        lo: Vec<Series>,
+        hi: Vec<Series>,
+    },
+    Joined {
+        keys: Vec<Expr>,
+        table: DataFrame,
+        fill: Option<Vec<(f64, f64)>>,
+    },
+}
+
+impl Bounds {
+    /// Per-period cutoffs from `c` (one row per period, `__lo{i}`, `__hi{i}`), as lookup
+    /// columns indexed by period − first period; a join on the period where the periods span
+    /// too wide a range for that.
+    fn by_period(c: &DataFrame, period: &str, vars: usize) -> Result<Bounds> {
+        let p = c.column(period)?.i64()?;
+        let (first, last) = (p.min().unwrap_or(0), p.max().unwrap_or(0));
+        let span = (last - first + 1).max(0) as usize;
+        if span > 100_000 {
+            return Ok(Bounds::Joined {
+                keys: vec![col(period)],
+                table: c.clone(),
+                fill: None,
+            });
+        }
+        let lookup = |name: String| -> Result<Series> {
+            let v = c.column(&name)?.f64()?;
+            let mut out: Vec<Option<f64>> = vec![None; span];
+            for (j, t) in p.iter().enumerate() {
+                if let Some(t) = t {
+                    out[(t - first) as usize] = v.get(j);
+                }
+            }
+            Ok(Series::new(name.into(), out))
+        };
+        Ok(Bounds::ByPeriod {
+            period: period.to_string(),
+            first,
+            lo: (0..vars)
+                .map(|i| lookup(format!("__lo{i}")))
+                .collect::<Result<_>>()?,
+            hi: (0..vars)
+                .map(|i| lookup(format!("__hi{i}")))
+                .collect::<Result<_>>()?,
+        })
+    }
+
+    /// `df` with variable `i`'s cutoffs beside each row as `__lo{i}` and `__hi{i}`.
+    fn attach(&self, df: &DataFrame, i: usize) -> Result<LazyFrame> {
+        let (lo, hi) = (format!("__lo{i}"), format!("__hi{i}"));
+        match self {
+            Bounds::Fixed(pairs) => Ok(df.clone().lazy().with_columns([
+                lit(pairs[i].0).alias(lo.as_str()),
+                lit(pairs[i].1).alias(hi.as_str()),
+            ])),
+            Bounds::ByPeriod {
+                period,
+                first,
+                lo: l,
+                hi: h,
+            } => {
+                let at = (col(period.as_str()) - lit(*first)).cast(IDX_DTYPE);
+                Ok(df.clone().lazy().with_columns([
+                    lit(l[i].clone())
+                        .gather(at.clone(), true)
+                        .alias(lo.as_str()),
+                    lit(h[i].clone()).gather(at, true).alias(hi.as_str()),
+                ]))
+            }
+            Bounds::Joined { keys, table, fill } => {
+                let mut right = keys.clone();
+                right.extend([col(lo.as_str()), col(hi.as_str())]);
+                let lf = beside(df, keys.clone(), table.clone().lazy().select(right))?;
+                Ok(match fill {
+                    Some(pooled) => lf.with_columns([
+                        col(lo.as_str()).fill_null(lit(pooled[i].0)),
+                        col(hi.as_str()).fill_null(lit(pooled[i].1)),
+                    ]),
+                    None => lf,
+                })
+            }
+        }
+    }
+}
+
+/// `df` with the columns of `right` (one row per key of `on`) set beside each row: the join
+/// reads only the key columns, so the panel's other columns are shared, never copied.
+fn beside(df: &DataFrame, on: Vec<Expr>, right: LazyFrame) -> Result<LazyFrame> {
+    let names: Vec<String> = on
+        .iter()
+        .map(|e| e.clone().meta().output_name().map(|n| n.to_string()))
+        .collect::<PolarsResult<_>>()?;
+    let added = df
+        .clone()
+        .lazy()
+        .select(on.clone())
+        .join(
+            right,
+            on.clone(),
+            on,
+            JoinArgs {
+                maintain_order: MaintainOrderJoin::Left,
+                ..JoinArgs::new(JoinType::Left)
+            },
+        )
+        .drop(cols(names))
+        .collect()?;
+    let mut out = df.clone();
+    out.hstack_mut(added.columns())?;
+    Ok(out.lazy())
 }
 
 /// One line per group: its values (as text), values counted, cutoffs, and whether the pooled

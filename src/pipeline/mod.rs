@@ -435,9 +435,11 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
     }
     progress.stage("cleaning");
 
-    // Then `build` cleans, in a fixed order: outliers, balancing, singletons. The panel as read
-    // stays for the checks' context (its columns are shared, not copied).
-    let mut panel = panel.clone();
+    // Then `build` cleans, in a fixed order: outliers, balancing, singletons. The panel as
+    // read is let go (its replaced columns freed); its keys and codes stay for the cleaned
+    // panel's figures.
+    let before = ctx.into_keys();
+    let mut panel = panel;
     let mut treated: Vec<String> = Vec::new();
     {
         for t in treatments {
@@ -469,7 +471,7 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
             )?);
         }
         let (cleaned, model) =
-            cleaned_figures(&ctx, &panel, &report, &treated, input, options, progress)?;
+            cleaned_figures(&before, &panel, &report, &treated, input, options, progress)?;
         report.cleaned = Some(cleaned);
         if model.is_some() {
             report.model = model;
@@ -535,7 +537,7 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
 /// every row (winsorizing only), the keys, codes, glance, coverage and missing values are
 /// those of the panel as read, and only the treated variables' variation is computed again.
 fn cleaned_figures(
-    before: &Context,
+    before: &audit::KeyFrames,
     panel: &DataFrame,
     read: &Report,
     treated: &[String],
@@ -545,7 +547,7 @@ fn cleaned_figures(
 ) -> Result<(Cleaned, Option<crate::report::ModelReport>)> {
     progress.stage("checks on the cleaned panel");
     // Rows are only ever removed: the same count is the same rows, in the same order.
-    let same_rows = panel.height() == before.df.height();
+    let same_rows = panel.height() == before.rows;
     let mut r = Report::new(InputSummary {
         path: String::new(),
         format: input.format,
@@ -557,7 +559,7 @@ fn cleaned_figures(
         notes: Vec::new(),
     });
     let ctx = if same_rows {
-        before.with_panel(panel, options.clone())?
+        before.context(panel, &input.entity, &input.period, options.clone())?
     } else {
         Context::new(panel, &input.entity, &input.period, options.clone())?
     };
@@ -572,7 +574,10 @@ fn cleaned_figures(
                 .filter(|v| !treated.contains(v))
                 .cloned(),
         );
-        audit::Variation.run(&before.with_panel(panel, only)?, &mut r)?;
+        audit::Variation.run(
+            &before.context(panel, &input.entity, &input.period, only)?,
+            &mut r,
+        )?;
         let fresh = std::mem::take(&mut r.variation);
         r.variation = read
             .variation
