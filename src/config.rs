@@ -4,6 +4,7 @@
 use std::path::{Path, PathBuf};
 
 use crate::cli::{CliCommand, FailOnArg, InputArgs, InputFormatArg, ReportFormatArg, RulesCommand};
+pub use crate::report::{InputFormat, ReportFormat};
 use crate::rules::Rules;
 use crate::{Error, Result};
 
@@ -139,31 +140,6 @@ impl CsvOptions {
         }
         Ok(o)
     }
-}
-
-/// Input file formats.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
-#[serde(rename_all = "lowercase")]
-pub enum InputFormat {
-    /// Comma-separated values with a header row.
-    Csv,
-    /// Apache Parquet.
-    Parquet,
-    /// A spreadsheet workbook (.xlsx, .xlsm, .ods): one sheet, header in the first row.
-    Spreadsheet,
-}
-
-/// Report output formats.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum ReportFormat {
-    /// Tables for a terminal.
-    Terminal,
-    /// Markdown.
-    Markdown,
-    /// JSON.
-    Json,
-    /// A self-contained HTML page with charts.
-    Html,
 }
 
 /// `audit` settings.

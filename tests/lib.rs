@@ -2,6 +2,7 @@
 
 mod util;
 
+mod architecture;
 mod assemble;
 mod cli;
 mod conservation;

@@ -6,23 +6,12 @@ use rayon::prelude::*;
 
 use super::{Check, Context, Settings};
 use crate::core::{type7, PanelCore, Values};
+pub use crate::report::CutoffGroups;
 use crate::report::{OutlierLine, Report};
 use crate::Result;
 
 /// The MAD's scale for a normal distribution, 1 / Φ⁻¹(3/4).
 pub const MAD_SCALE: f64 = 1.482_602_218_505_602;
-
-/// How cutoffs are computed.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
-#[serde(rename_all = "lowercase")]
-pub enum CutoffGroups {
-    /// One pair of cutoffs over all rows.
-    Pooled,
-    /// A pair of cutoffs per period.
-    Period,
-    /// A pair of cutoffs per group of declared columns.
-    Groups,
-}
 
 /// Outliers.
 pub struct Outliers;

@@ -1,56 +1,8 @@
 //! The verdict: `pass`, `warn` or `fail` for each check family with a one-line reason, and
 //! overall the worst of them. Computed from the finished report; documented in the README.
 
-use serde::{Deserialize, Serialize};
-
 use crate::report::Report;
-
-/// One verdict level, ordered from best to worst.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Serialize, Deserialize)]
-#[serde(rename_all = "lowercase")]
-pub enum Status {
-    /// The check had nothing to examine (no variable, no rule): neither a pass nor evidence.
-    #[serde(rename = "not checked")]
-    NotChecked,
-    /// Nothing to act on.
-    Pass,
-    /// Look before estimating.
-    Warn,
-    /// Do not estimate on this panel as it stands.
-    Fail,
-}
-
-impl Status {
-    /// The word used in reports and on the command line.
-    pub fn label(self) -> &'static str {
-        match self {
-            Status::NotChecked => "not checked",
-            Status::Pass => "pass",
-            Status::Warn => "warn",
-            Status::Fail => "fail",
-        }
-    }
-}
-
-/// The verdict of one check family.
-#[derive(Debug, Clone, Serialize)]
-pub struct CheckVerdict {
-    /// The check family (a report section).
-    pub check: String,
-    /// Its status.
-    pub status: Status,
-    /// Why, in one line.
-    pub reason: String,
-}
-
-/// Every check's verdict and the overall one.
-#[derive(Debug, Clone, Serialize)]
-pub struct Verdict {
-    /// The worst status of all checks.
-    pub overall: Status,
-    /// One line per check family.
-    pub checks: Vec<CheckVerdict>,
-}
+pub use crate::report::{CheckVerdict, Status, Verdict};
 
 /// The level each finding raises the verdict to, from `[verdict]`.
 #[derive(Debug, Clone)]

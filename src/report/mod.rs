@@ -12,7 +12,6 @@ pub(crate) use layout::{level, strings, Block, Section};
 
 use std::io::Write;
 
-use crate::config::ReportFormat;
 use crate::Result;
 use polars::prelude::*;
 

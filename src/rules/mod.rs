@@ -10,6 +10,7 @@ use std::path::{Path, PathBuf};
 
 use serde::Deserialize;
 
+pub use crate::report::Origin;
 use crate::{Error, Result};
 
 /// The built-in ratio library, a readable file in `rules/` embedded in the binary.
@@ -382,16 +383,6 @@ pub enum SingletonDrop {
     Flag(bool),
     /// `"entity"` or `"entity+period"`.
     Mode(String),
-}
-
-/// Where a derived variable came from.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
-#[serde(rename_all = "lowercase")]
-pub enum Origin {
-    /// The user's rules file.
-    User,
-    /// The built-in standard library.
-    Standard,
 }
 
 /// A rules file with its libraries merged in, ready for `Config`.

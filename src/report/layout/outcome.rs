@@ -302,7 +302,7 @@ pub(super) fn verdict(r: &Report) -> Section {
             blocks: vec![],
         };
     };
-    let word = |s: crate::audit::verdict::Status| s.label();
+    let word = |s: Status| s.label();
     let rows = v
         .checks
         .iter()
@@ -335,7 +335,6 @@ pub(crate) struct Headline {
 }
 
 pub(crate) fn headline(r: &Report) -> Option<Headline> {
-    use crate::audit::verdict::Status;
     let v = r.verdict.as_ref()?;
     let titles: Vec<&str> = sections(r).iter().map(|s| s.title).collect();
     let mut lines: Vec<_> = v

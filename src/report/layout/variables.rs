@@ -2,7 +2,6 @@
 //! unit slips, accounting rules, derived variables.
 
 use super::*;
-use crate::audit::CutoffGroups;
 
 pub(super) fn variation(r: &Report) -> Section {
     let mut blocks = Vec::new();

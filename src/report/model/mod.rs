@@ -5,15 +5,15 @@ use polars::prelude::*;
 use serde::Serialize;
 
 use super::distinct;
-use crate::config::InputFormat;
-use crate::rules::Origin;
 use crate::Result;
 
 mod outcome;
+mod shared;
 mod structure;
 mod variables;
 
 pub use outcome::*;
+pub use shared::*;
 pub use structure::*;
 pub use variables::*;
 
@@ -73,7 +73,7 @@ pub struct Report {
     /// Diagnostics for the model declared in `[model]` (on the cleaned panel for `build`).
     pub model: Option<ModelReport>,
     /// Pass, warn or fail per check family, and overall.
-    pub verdict: Option<crate::audit::verdict::Verdict>,
+    pub verdict: Option<Verdict>,
     /// Repairs applied before the checks (`build` and `audit` alike), if any was asked for.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub repairs: Option<Repairs>,

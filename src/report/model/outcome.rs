@@ -137,7 +137,7 @@ pub struct TreatLine {
     /// `winsorize` or `trim`.
     pub method: String,
     /// Pooled or per period.
-    pub by: crate::audit::CutoffGroups,
+    pub by: CutoffGroups,
     /// The grouping columns, when cutoffs are by group.
     #[serde(skip_serializing_if = "Vec::is_empty")]
     pub groups: Vec<String>,

@@ -3,6 +3,8 @@
 
 use serde::Serialize;
 
+use super::CutoffGroups;
+
 /// Which fixed effects absorb a variable completely.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
 pub enum Absorbed {
@@ -87,7 +89,7 @@ pub struct OutlierLine {
     /// The variable.
     pub variable: String,
     /// Cutoffs pooled over all rows or per period.
-    pub by: crate::audit::CutoffGroups,
+    pub by: CutoffGroups,
     /// Lower cutoff (pooled only; per-period cutoffs vary).
     pub lower: Option<f64>,
     /// Upper cutoff (pooled only).
