@@ -145,6 +145,11 @@ pub struct KeyFrames {
 }
 
 impl KeyFrames {
+    /// The entity and period codes.
+    pub fn core(&self) -> &PanelCore {
+        &self.core
+    }
+
     /// A context over `df`, which has the same rows in the same order as the panel these
     /// describe, with other options. Nothing about the keys is computed again.
     pub fn context<'b>(

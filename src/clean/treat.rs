@@ -7,7 +7,7 @@ use polars::prelude::*;
 
 use super::{drop_where, Keys};
 use crate::audit::CutoffGroups;
-use crate::core::{type7, Values};
+use crate::core::{type7, PanelCore, Values};
 use crate::report::{Cutoff, GroupCutoff, Histogram, TreatLine};
 use crate::rules::{TreatBy, TreatSpec};
 use crate::{Error, Result};
@@ -126,9 +126,15 @@ impl Treatment {
         &self,
         df: DataFrame,
         k: &Keys,
+        core: Option<&PanelCore>,
     ) -> Result<(DataFrame, Option<DataFrame>, Vec<TreatLine>)> {
         let x = |v: &str| col(v).cast(DataType::Float64);
         let df_before = df.clone();
+        if let (CutoffGroups::Period, Some(core)) = (self.by, core) {
+            if core.rows() == df.height() {
+                return self.by_period_codes(df, k, core);
+            }
+        }
         let mut aggs = Vec::new();
         for (i, v) in self.variables.iter().enumerate() {
             aggs.push(
@@ -271,7 +277,15 @@ impl Treatment {
                 .drop(cols([lo, hi, below, above]))
                 .collect()?;
         }
-        let (out, removed) = match self.method {
+        let (out, removed) = self.finish(current, k)?;
+        let lines = self.lines(&cutoffs, &counts, k, &df_before)?;
+        Ok((out, removed, lines))
+    }
+
+    /// Winsorized: the frame as it is. Trimmed: rows beyond a variable's cutoffs (flagged in
+    /// `__beyond{i}`) go to the ledger, the first such variable naming the reason.
+    fn finish(&self, current: DataFrame, k: &Keys) -> Result<(DataFrame, Option<DataFrame>)> {
+        Ok(match self.method {
             Method::Winsorize => (current, None),
             Method::Trim => {
                 // The first variable beyond its cutoffs names the reason.
@@ -288,7 +302,17 @@ impl Treatment {
                 let kept = kept.lazy().drop(cols(beyond)).collect()?;
                 (kept, Some(removed))
             }
-        };
+        })
+    }
+
+    /// One report line per variable from the cutoffs table and the counts.
+    fn lines(
+        &self,
+        cutoffs: &DataFrame,
+        counts: &[(u64, u64)],
+        k: &Keys,
+        df_before: &DataFrame,
+    ) -> Result<Vec<TreatLine>> {
         let mut lines = Vec::new();
         for (i, v) in self.variables.iter().enumerate() {
             let lo = cutoffs.column(&format!("__lo{i}"))?.f64()?;
@@ -310,7 +334,7 @@ impl Treatment {
                 })
                 .collect();
             let group_cutoffs = if self.by == CutoffGroups::Groups {
-                group_cutoffs(&cutoffs, &self.groups, i)?
+                group_cutoffs(cutoffs, &self.groups, i)?
             } else {
                 Vec::new()
             };
@@ -325,9 +349,86 @@ impl Treatment {
                 cutoffs: cut,
                 below: counts[i].0,
                 above: counts[i].1,
-                histogram: histogram(&df_before, v)?,
+                histogram: histogram(df_before, v)?,
             });
         }
+        Ok(lines)
+    }
+
+    /// Per-period cutoffs by selection over the panel core's period codes (type 7, as the
+    /// engine's linear quantile), then each variable's new values (or trimming flags) in one
+    /// typed pass: no group-by, no join, one variable's values in memory at a time.
+    fn by_period_codes(
+        &self,
+        df: DataFrame,
+        k: &Keys,
+        core: &PanelCore,
+    ) -> Result<(DataFrame, Option<DataFrame>, Vec<TreatLine>)> {
+        let df_before = df.clone();
+        let nt = core.periods.len();
+        let mut table: Vec<Column> = vec![Column::new(k.period.into(), core.periods.clone())];
+        let mut counts = Vec::new();
+        let mut current = df;
+        for (i, v) in self.variables.iter().enumerate() {
+            let x = Values::of(&df_before, v)?;
+            let mut groups: Vec<Vec<f64>> = vec![Vec::new(); nt];
+            for (r, value) in x.iter() {
+                groups[core.period[r] as usize].push(value);
+            }
+            let (lo, hi): (Vec<Option<f64>>, Vec<Option<f64>>) = groups
+                .iter_mut()
+                .map(|g| (type7(g, self.lower), type7(g, self.upper)))
+                .unzip();
+            drop(groups);
+            let (mut below, mut above) = (0u64, 0u64);
+            let beyond = |r: usize, value: f64| -> (bool, bool) {
+                let t = core.period[r] as usize;
+                (
+                    lo[t].is_some_and(|l| value < l),
+                    hi[t].is_some_and(|h| value > h),
+                )
+            };
+            let column = match self.method {
+                Method::Winsorize => {
+                    let new: Float64Chunked = (0..core.rows())
+                        .map(|r| {
+                            x.get(r).map(|value| match beyond(r, value) {
+                                (true, _) => {
+                                    below += 1;
+                                    lo[core.period[r] as usize].unwrap_or(value)
+                                }
+                                (_, true) => {
+                                    above += 1;
+                                    hi[core.period[r] as usize].unwrap_or(value)
+                                }
+                                _ => value,
+                            })
+                        })
+                        .collect();
+                    new.into_column().with_name(v.as_str().into())
+                }
+                Method::Trim => {
+                    let flags: BooleanChunked = (0..core.rows())
+                        .map(|r| {
+                            Some(x.get(r).is_some_and(|value| {
+                                let (b, a) = beyond(r, value);
+                                below += u64::from(b);
+                                above += u64::from(a);
+                                b || a
+                            }))
+                        })
+                        .collect();
+                    flags.into_column().with_name(format!("__beyond{i}").into())
+                }
+            };
+            current.with_column(column)?;
+            counts.push((below, above));
+            table.push(Column::new(format!("__lo{i}").into(), lo));
+            table.push(Column::new(format!("__hi{i}").into(), hi));
+        }
+        let cutoffs = DataFrame::new(nt, table)?;
+        let (out, removed) = self.finish(current, k)?;
+        let lines = self.lines(&cutoffs, &counts, k, &df_before)?;
         Ok((out, removed, lines))
     }
 }

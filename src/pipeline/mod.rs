@@ -444,7 +444,9 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
     {
         for t in treatments {
             treated.extend(t.variables.iter().cloned());
-            let (rest, removed, lines) = t.apply(panel, &keys)?;
+            // Per-period cutoffs on the panel core's codes while the rows are those it codes.
+            let core = (panel.height() == before.rows).then(|| before.core());
+            let (rest, removed, lines) = t.apply(panel, &keys, core)?;
             panel = rest;
             report.treatment.extend(lines);
             if let Some(removed) = removed {
