@@ -178,6 +178,16 @@ fn verify_passes_then_names_a_changed_file_and_refuses_a_moved_input() {
     w.fails(&["verify", "d/bundle"], "was it moved?");
 }
 
+/// `verify` on the demo bundle moved to `elsewhere/`, with its input and rules there too.
+const RELOCATED: [&str; 6] = [
+    "verify",
+    "elsewhere/bundle",
+    "--input",
+    "elsewhere/accounts-2026.csv",
+    "--rules",
+    "elsewhere/r.toml",
+];
+
 #[test]
 fn verify_checks_a_bundle_against_relocated_files_recognised_by_hash() {
     let w = Workdir::new();
@@ -198,17 +208,7 @@ fn verify_checks_a_bundle_against_relocated_files_recognised_by_hash() {
     );
     // The files the rules name (joined tables, corrections) are read beside the rules file:
     // without them `verify` names the first one missing.
-    w.fails(
-        &[
-            "verify",
-            "elsewhere/bundle",
-            "--input",
-            "elsewhere/accounts-2026.csv",
-            "--rules",
-            "elsewhere/r.toml",
-        ],
-        "velmora_workforce.csv",
-    );
+    w.fails(&RELOCATED, "velmora_workforce.csv");
     for name in [
         "velmora_workforce.csv",
         "velmora_firms.csv",
@@ -217,14 +217,7 @@ fn verify_checks_a_bundle_against_relocated_files_recognised_by_hash() {
     ] {
         std::fs::rename(w.path("d/data").join(name), w.path("elsewhere").join(name)).unwrap();
     }
-    let r = w.ok(&[
-        "verify",
-        "elsewhere/bundle",
-        "--input",
-        "elsewhere/accounts-2026.csv",
-        "--rules",
-        "elsewhere/r.toml",
-    ]);
+    let r = w.ok(&RELOCATED);
     assert!(r.stdout.contains("rebuilt bit for bit"), "{}", r.stdout);
     // A wrong file is recognised by its hash.
     w.write("other.csv", "firm_id,fiscal_year\nA,2020\n");
@@ -248,17 +241,7 @@ fn verify_checks_a_bundle_against_relocated_files_recognised_by_hash() {
     let prices = w.path("elsewhere/velmora_prices.csv");
     let text = std::fs::read_to_string(&prices).unwrap();
     std::fs::write(&prices, text.replacen("100.0", "100.1", 1)).unwrap();
-    w.fails(
-        &[
-            "verify",
-            "elsewhere/bundle",
-            "--input",
-            "elsewhere/accounts-2026.csv",
-            "--rules",
-            "elsewhere/r.toml",
-        ],
-        "velmora_prices.csv",
-    );
+    w.fails(&RELOCATED, "velmora_prices.csv");
 }
 
 #[test]
