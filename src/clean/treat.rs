@@ -130,10 +130,12 @@ impl Treatment {
     ) -> Result<(DataFrame, Option<DataFrame>, Vec<TreatLine>)> {
         let x = |v: &str| col(v).cast(DataType::Float64);
         let df_before = df.clone();
-        if let (CutoffGroups::Period, Some(core)) = (self.by, core) {
-            if core.rows() == df.height() {
-                return self.by_period_codes(df, k, core);
+        match (self.by, core) {
+            (CutoffGroups::Period, Some(core)) if core.rows() == df.height() => {
+                let group = |r: usize| core.period[r] as usize;
+                return self.by_codes(df, k, &group, core.periods.len(), Some(&core.periods));
             }
+            _ => {}
         }
         let mut aggs = Vec::new();
         for (i, v) in self.variables.iter().enumerate() {
@@ -147,19 +149,8 @@ impl Treatment {
             );
         }
         let (cutoffs, bounds) = match self.by {
-            CutoffGroups::Pooled => {
-                let c = df.clone().lazy().select(aggs).collect()?;
-                let pairs = (0..self.variables.len())
-                    .map(|i| -> Result<(f64, f64)> {
-                        let get = |side: &str| -> Result<f64> {
-                            let name = format!("__{side}{i}");
-                            Ok(c.column(&name)?.f64()?.get(0).unwrap_or(f64::NAN))
-                        };
-                        Ok((get("lo")?, get("hi")?))
-                    })
-                    .collect::<Result<_>>()?;
-                (c, Bounds::Fixed(pairs))
-            }
+            // One group of every row, on the typed path.
+            CutoffGroups::Pooled => return self.by_codes(df, k, &|_| 0, 1, None),
             CutoffGroups::Groups => {
                 // Per group; a group with fewer values than 1 / (the smaller tail) gets the
                 // pooled cutoffs instead (the stated fallback), as do rows whose group is missing.
@@ -355,25 +346,32 @@ impl Treatment {
         Ok(lines)
     }
 
-    /// Per-period cutoffs by selection over the panel core's period codes (type 7, as the
-    /// engine's linear quantile), then each variable's new values (or trimming flags) in one
-    /// typed pass: no group-by, no join, one variable's values in memory at a time.
-    fn by_period_codes(
+    /// Cutoffs per group of rows (`group(r)` of `n` groups: one for pooled cutoffs, the
+    /// periods by the panel core's codes) by selection (type 7, as the engine's linear
+    /// quantile), then each variable's new values (or trimming flags) in one typed pass: no
+    /// group-by, no join, one variable's values in memory at a time. `periods` names the
+    /// groups in the cutoffs table when they are periods.
+    fn by_codes(
         &self,
         df: DataFrame,
         k: &Keys,
-        core: &PanelCore,
+        group: &dyn Fn(usize) -> usize,
+        nt: usize,
+        periods: Option<&[i64]>,
     ) -> Result<(DataFrame, Option<DataFrame>, Vec<TreatLine>)> {
         let df_before = df.clone();
-        let nt = core.periods.len();
-        let mut table: Vec<Column> = vec![Column::new(k.period.into(), core.periods.clone())];
+        let rows = df.height();
+        let mut table: Vec<Column> = periods
+            .map(|p| Column::new(k.period.into(), p.to_vec()))
+            .into_iter()
+            .collect();
         let mut counts = Vec::new();
         let mut current = df;
         for (i, v) in self.variables.iter().enumerate() {
             let x = Values::of(&df_before, v)?;
             let mut groups: Vec<Vec<f64>> = vec![Vec::new(); nt];
             for (r, value) in x.iter() {
-                groups[core.period[r] as usize].push(value);
+                groups[group(r)].push(value);
             }
             let (lo, hi): (Vec<Option<f64>>, Vec<Option<f64>>) = groups
                 .iter_mut()
@@ -382,7 +380,7 @@ impl Treatment {
             drop(groups);
             let (mut below, mut above) = (0u64, 0u64);
             let beyond = |r: usize, value: f64| -> (bool, bool) {
-                let t = core.period[r] as usize;
+                let t = group(r);
                 (
                     lo[t].is_some_and(|l| value < l),
                     hi[t].is_some_and(|h| value > h),
@@ -390,16 +388,16 @@ impl Treatment {
             };
             let column = match self.method {
                 Method::Winsorize => {
-                    let new: Float64Chunked = (0..core.rows())
+                    let new: Float64Chunked = (0..rows)
                         .map(|r| {
                             x.get(r).map(|value| match beyond(r, value) {
                                 (true, _) => {
                                     below += 1;
-                                    lo[core.period[r] as usize].unwrap_or(value)
+                                    lo[group(r)].unwrap_or(value)
                                 }
                                 (_, true) => {
                                     above += 1;
-                                    hi[core.period[r] as usize].unwrap_or(value)
+                                    hi[group(r)].unwrap_or(value)
                                 }
                                 _ => value,
                             })
@@ -408,7 +406,7 @@ impl Treatment {
                     new.into_column().with_name(v.as_str().into())
                 }
                 Method::Trim => {
-                    let flags: BooleanChunked = (0..core.rows())
+                    let flags: BooleanChunked = (0..rows)
                         .map(|r| {
                             Some(x.get(r).is_some_and(|value| {
                                 let (b, a) = beyond(r, value);
@@ -433,10 +431,10 @@ impl Treatment {
     }
 }
 
-/// Where a variable's cutoffs come from: one pair for all rows, or a table of pairs per key
-/// (period, or group) joined onto the rows, with the pooled pair where a group has none.
+/// Where a variable's cutoffs come from when the typed path cannot serve: a table of pairs per
+/// period looked up by offset, or per group joined onto the rows, with the pooled pair where
+/// a group has none.
 enum Bounds {
-    Fixed(Vec<(f64, f64)>),
     /// Per period, looked up by the period's offset from the first (no join).
     ByPeriod {
         period: String,
@@ -492,10 +490,6 @@ impl Bounds {
     fn attach(&self, df: &DataFrame, i: usize) -> Result<LazyFrame> {
         let (lo, hi) = (format!("__lo{i}"), format!("__hi{i}"));
         match self {
-            Bounds::Fixed(pairs) => Ok(df.clone().lazy().with_columns([
-                lit(pairs[i].0).alias(lo.as_str()),
-                lit(pairs[i].1).alias(hi.as_str()),
-            ])),
             Bounds::ByPeriod {
                 period,
                 first,
