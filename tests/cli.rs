@@ -602,6 +602,36 @@ fn audit_rejects_exactly_the_rules_files_build_rejects() {
         );
         assert_eq!(audit.stderr, build.stderr, "{value}");
     }
+    // Joined files: the same settings and errors for both commands.
+    w.write("t.csv", "firm,sector\nA,x\nB,y\nB,z\n");
+    let joins = [
+        "on = [\"firm\"]\nduplicates = \"keep-first\"",
+        "on = [\"firm\"]",
+        "on = [\"firm\"]\nduplicates = \"last\"",
+        "on = [\"firm\"]\nduplicates = \"keep-first\"\nunmatched = \"skip\"",
+        "on = [\"nosuch\"]",
+        "on = [\"firm\"]\nduplicates = \"keep-first\"\ncolumns = [\"a\"]",
+    ];
+    for (i, join) in joins.iter().enumerate() {
+        w.write(
+            "rules.toml",
+            &format!(
+                "[panel]\nentity = \"firm\"\nperiod = \"year\"\n[[join]]\nfile = \"t.csv\"\n{join}\n"
+            ),
+        );
+        let audit = w.run(&["audit", "raw.csv", "--rules", "rules.toml"]);
+        let build = w.run(&["build", "raw.csv", "--rules", "rules.toml", "--out", "b"]);
+        assert_eq!(
+            audit.code == 2,
+            build.code == 2,
+            "{join}: {} / {}",
+            audit.stderr,
+            build.stderr
+        );
+        assert_eq!(audit.stderr, build.stderr, "{join}");
+        // The first is accepted (B's repeated key kept first); every other one is an error.
+        assert_eq!(audit.code == 2, i > 0, "{join}: {}", audit.stderr);
+    }
 }
 
 #[test]
