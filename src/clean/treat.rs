@@ -203,7 +203,7 @@ impl Treatment {
                 let table = c.clone();
                 (
                     c,
-                    Bounds::Joined {
+                    Bounds {
                         keys,
                         table,
                         fill: Some(fill),
@@ -218,8 +218,15 @@ impl Treatment {
                     .agg(aggs)
                     .sort([k.period], Default::default())
                     .collect()?;
-                let bounds = Bounds::by_period(&c, k.period, self.variables.len())?;
-                (c, bounds)
+                let table = c.clone();
+                (
+                    c,
+                    Bounds {
+                        keys: vec![col(k.period)],
+                        table,
+                        fill: None,
+                    },
+                )
             }
         };
         // One variable at a time: its cutoffs set beside each row, its flags, its counts and
@@ -431,92 +438,33 @@ impl Treatment {
     }
 }
 
-/// Where a variable's cutoffs come from when the typed path cannot serve: a table of pairs per
-/// period looked up by offset, or per group joined onto the rows, with the pooled pair where
-/// a group has none.
-enum Bounds {
-    /// Per period, looked up by the period's offset from the first (no join).
-    ByPeriod {
-        period: String,
-        first: i64,
-        lo: Vec<Series>,
-        hi: Vec<Series>,
-    },
-    Joined {
-        keys: Vec<Expr>,
-        table: DataFrame,
-        fill: Option<Vec<(f64, f64)>>,
-    },
+/// Cutoffs per group (or per period, when the panel core does not code the rows) on the
+/// engine's path: a table of pairs per key, joined onto the rows, with the pooled pair where a
+/// group has none.
+struct Bounds {
+    keys: Vec<Expr>,
+    table: DataFrame,
+    fill: Option<Vec<(f64, f64)>>,
 }
 
 impl Bounds {
-    /// Per-period cutoffs from `c` (one row per period, `__lo{i}`, `__hi{i}`), as lookup
-    /// columns indexed by period − first period; a join on the period where the periods span
-    /// too wide a range for that.
-    fn by_period(c: &DataFrame, period: &str, vars: usize) -> Result<Bounds> {
-        let p = c.column(period)?.i64()?;
-        let (first, last) = (p.min().unwrap_or(0), p.max().unwrap_or(0));
-        let span = (last - first + 1).max(0) as usize;
-        if span > 100_000 {
-            return Ok(Bounds::Joined {
-                keys: vec![col(period)],
-                table: c.clone(),
-                fill: None,
-            });
-        }
-        let lookup = |name: String| -> Result<Series> {
-            let v = c.column(&name)?.f64()?;
-            let mut out: Vec<Option<f64>> = vec![None; span];
-            for (j, t) in p.iter().enumerate() {
-                if let Some(t) = t {
-                    out[(t - first) as usize] = v.get(j);
-                }
-            }
-            Ok(Series::new(name.into(), out))
-        };
-        Ok(Bounds::ByPeriod {
-            period: period.to_string(),
-            first,
-            lo: (0..vars)
-                .map(|i| lookup(format!("__lo{i}")))
-                .collect::<Result<_>>()?,
-            hi: (0..vars)
-                .map(|i| lookup(format!("__hi{i}")))
-                .collect::<Result<_>>()?,
-        })
-    }
-
     /// `df` with variable `i`'s cutoffs beside each row as `__lo{i}` and `__hi{i}`.
     fn attach(&self, df: &DataFrame, i: usize) -> Result<LazyFrame> {
         let (lo, hi) = (format!("__lo{i}"), format!("__hi{i}"));
-        match self {
-            Bounds::ByPeriod {
-                period,
-                first,
-                lo: l,
-                hi: h,
-            } => {
-                let at = (col(period.as_str()) - lit(*first)).cast(IDX_DTYPE);
-                Ok(df.clone().lazy().with_columns([
-                    lit(l[i].clone())
-                        .gather(at.clone(), true)
-                        .alias(lo.as_str()),
-                    lit(h[i].clone()).gather(at, true).alias(hi.as_str()),
-                ]))
-            }
-            Bounds::Joined { keys, table, fill } => {
-                let mut right = keys.clone();
-                right.extend([col(lo.as_str()), col(hi.as_str())]);
-                let lf = beside(df, keys.clone(), table.clone().lazy().select(right))?;
-                Ok(match fill {
-                    Some(pooled) => lf.with_columns([
-                        col(lo.as_str()).fill_null(lit(pooled[i].0)),
-                        col(hi.as_str()).fill_null(lit(pooled[i].1)),
-                    ]),
-                    None => lf,
-                })
-            }
-        }
+        let mut right = self.keys.clone();
+        right.extend([col(lo.as_str()), col(hi.as_str())]);
+        let lf = beside(
+            df,
+            self.keys.clone(),
+            self.table.clone().lazy().select(right),
+        )?;
+        Ok(match &self.fill {
+            Some(pooled) => lf.with_columns([
+                col(lo.as_str()).fill_null(lit(pooled[i].0)),
+                col(hi.as_str()).fill_null(lit(pooled[i].1)),
+            ]),
+            None => lf,
+        })
     }
 }
 

@@ -13,6 +13,14 @@ use serde::Serialize;
 
 use crate::{Error, Result};
 
+mod tables;
+mod text;
+
+pub use tables::PlantedTables;
+use tables::{plant_table_defects, year_end_dates, Tables, LISTINGS};
+use text::readme;
+pub use text::{RULES, RULES_YEAR_END};
+
 /// The first fiscal year of the demo window.
 pub const FIRST_YEAR: i64 = 2010;
 /// The data file inside the demo data folder.
@@ -25,8 +33,6 @@ pub const FIRMS_FILE: &str = "velmora_firms.csv";
 pub const PRICES_FILE: &str = "velmora_prices.csv";
 /// The corrections file of the demo.
 pub const CORRECTIONS_FILE: &str = "corrections.csv";
-
-const LISTINGS: [&str; 3] = ["main board", "growth board", "unlisted"];
 
 const SECTORS: [&str; 6] = [
     "agrifood",
@@ -75,43 +81,6 @@ pub struct Planted {
     pub missing_rd_rows: u64,
     /// The further raw files and what they hold.
     pub tables: PlantedTables,
-}
-
-/// What the further demo files hold, for the references to check the joins against.
-#[derive(Debug, Default, Serialize)]
-pub struct PlantedTables {
-    /// Firm-years whose headcount was keyed with an extra zero (x10), as (firm, year); the
-    /// corrections file sets them right.
-    pub headcount_typos: Vec<(String, i64)>,
-    /// Firm-years of the accounts left out of the headcount file.
-    pub workforce_gaps: u64,
-    /// Rows of the headcount file for firm-years the accounts do not have.
-    pub workforce_strays: u64,
-    /// Rows of the headcount file repeated exactly.
-    pub workforce_copies: u64,
-    /// Firms left out of the firm file.
-    pub firms_left_out: u64,
-    /// Rows of the firm file for firms the accounts do not have.
-    pub firms_strays: u64,
-    /// Years of the price index beyond the accounts' window.
-    pub price_years_beyond: u64,
-    /// Firms that moved their year end from December to March: the accounts' `fiscal_year`
-    /// runs on, but a fiscal year derived from `year_end` (a year ending January–May belongs
-    /// to the previous fiscal year) puts two of their rows into one year.
-    pub year_end_changes: Vec<String>,
-}
-
-/// The further raw files of the demo, column by column.
-#[derive(Default)]
-struct Tables {
-    wf_firm: Vec<String>,
-    wf_year: Vec<i64>,
-    wf_employees: Vec<i64>,
-    firm: Vec<String>,
-    listing: Vec<&'static str>,
-    price_year: Vec<i64>,
-    price_index: Vec<f64>,
-    corrections: Vec<(String, i64, i64)>,
 }
 
 /// Column vectors under construction.
@@ -339,93 +308,6 @@ fn generate_all(firms: u32, periods: u32, seed: u64) -> Result<(DataFrame, Plant
     Ok((c.into_frame()?, planted, tables))
 }
 
-/// Each row's fiscal-year-end date, `YYYY-MM-DD`: a year ending in June or December is the
-/// fiscal year of its calendar year; one ending in March closes the fiscal year before (so
-/// fiscal year Y ends on 31 March of Y + 1), except after a firm's move from December to
-/// March, where the accounts keep counting years on (fiscal year Y then ends 31 March of Y).
-/// Rows without a firm take December; rows without a year have no date.
-fn year_end_dates(
-    c: &Columns,
-    year_ends: &std::collections::HashMap<String, (u32, Option<i64>)>,
-) -> Vec<Option<String>> {
-    c.firm
-        .iter()
-        .zip(&c.year)
-        .map(|(firm, year)| {
-            let year = (*year)?;
-            let (month, change) = firm
-                .as_ref()
-                .and_then(|f| year_ends.get(f))
-                .copied()
-                .unwrap_or((12, None));
-            Some(match (month, change) {
-                (12, Some(k)) if year >= k => format!("{year}-03-31"),
-                (12, _) => format!("{year}-12-31"),
-                (6, _) => format!("{year}-06-30"),
-                _ => format!("{}-03-31", year + 1),
-            })
-        })
-        .collect()
-}
-
-/// The further files' own defects: headcount typos (set right by the corrections file), stray
-/// rows for firm-years and firms the accounts lack, an exact copy, a price index that runs a
-/// year beyond the accounts.
-fn plant_table_defects(
-    t: &mut Tables,
-    planted: &mut PlantedTables,
-    rng: &mut ChaCha8Rng,
-    periods: i64,
-    width: usize,
-) {
-    let n = t.wf_firm.len();
-    if n >= 20 {
-        let mut picked: Vec<usize> = Vec::new();
-        while picked.len() < 2 {
-            let i = rng.random_range(0..n);
-            if !picked.contains(&i) {
-                picked.push(i);
-            }
-        }
-        picked.sort_unstable();
-        for i in picked {
-            let right = t.wf_employees[i];
-            t.wf_employees[i] = right * 10;
-            planted
-                .headcount_typos
-                .push((t.wf_firm[i].clone(), t.wf_year[i]));
-            t.corrections
-                .push((t.wf_firm[i].clone(), t.wf_year[i], right));
-        }
-        let i = rng.random_range(0..n);
-        let (f, y, e) = (t.wf_firm[i].clone(), t.wf_year[i], t.wf_employees[i]);
-        t.wf_firm.push(f);
-        t.wf_year.push(y);
-        t.wf_employees.push(e);
-        planted.workforce_copies = 1;
-    }
-    // Firms that are not in the accounts (ids beyond the generated ones).
-    let stray = |k: usize| format!("VX{:0width$}", k + 1);
-    for k in 0..2 {
-        t.wf_firm.push(stray(k));
-        t.wf_year.push(FIRST_YEAR);
-        t.wf_employees.push(40 + k as i64);
-        planted.workforce_strays += 1;
-        t.firm.push(stray(k));
-        t.listing.push("unlisted");
-        planted.firms_strays += 1;
-    }
-    // The index: 2010 = 100, about two per cent a year, one decimal as statistical offices
-    // publish it; it runs one year beyond the accounts.
-    let mut level = 100.0f64;
-    for y in 0..=periods {
-        t.price_year.push(FIRST_YEAR + y);
-        t.price_index.push((level * 10.0).round() / 10.0);
-        level *= 1.0 + rng.random_range(0.005..0.035);
-    }
-    planted.price_years_beyond = 1;
-}
-
 /// Plant the defects a careful researcher must catch. Counts scale with the panel.
 fn plant_defects(c: &mut Columns, planted: &mut Planted, rng: &mut ChaCha8Rng) {
     let n = c.firm.len();
@@ -511,159 +393,6 @@ fn plant_defects(c: &mut Columns, planted: &mut Planted, rng: &mut ChaCha8Rng) {
         }
         planted.missing_key_rows += 1;
     }
-}
-
-/// The demo's raw column names under the canonical names, shared by both demo rules files.
-macro_rules! demo_columns {
-    () => {
-        r#"[columns]
-total_assets = "assets_total"
-sales = "revenue"
-net_income = "net_profit"
-ebit = "op_profit"
-interest_expense = "interest_paid"
-rd_expense = "rnd_spend"
-current_assets = "cur_assets"
-current_liabilities = "cur_liabilities"
-short_term_debt = "debt_short"
-long_term_debt = "debt_long"
-"#
-    };
-}
-
-/// The demo rules file: maps the raw names to canonical ones and adds two variables.
-pub const RULES: &str = concat!(
-    r#"# Rules for the Velmora demo panel (invented data).
-include = ["standard"]
-
-[panel]
-entity = "firm_id"
-period = "fiscal_year"
-
-"#,
-    demo_columns!(),
-    r#"
-# Further raw files, joined onto the accounts after the key steps (paths relative to this
-# file): headcount by firm-year, the stock-market listing by firm, a price index by year.
-[[join]]
-file = "velmora_workforce.csv"
-on = ["firm_id", "fiscal_year"]
-
-[[join]]
-file = "velmora_firms.csv"
-on = ["firm_id"]
-
-[[join]]
-file = "velmora_prices.csv"
-on = ["fiscal_year"]
-rename = { year = "fiscal_year" }
-
-# Firm-year overrides, each with its reason; every changed cell goes to corrections.csv.
-[repair]
-corrections = "corrections.csv"
-
-# Deflating: sales at 2010 prices, an ordinary derived expression over a joined column.
-[derive.real_sales]
-expr = "sales / cpi * 100"
-label = "Sales at 2010 prices"
-unit = "thousand crowns of 2010"
-source = "common practice (deflating by a price index)"
-
-[derive.firm_age]
-expr = "fiscal_year - founded"
-label = "Firm age in years"
-unit = "years"
-source = "common practice"
-
-[derive.asset_growth]
-expr = "growth(total_assets, 1)"
-label = "Growth of total assets on the previous fiscal year"
-unit = "ratio"
-source = "common practice"
-
-[model]
-outcome = "roa"
-regressors = ["size", "leverage", "rd_assets", "working_capital_assets"]
-effects = ["firm_id"]              # fixed effects by key column; add "fiscal_year" for period effects
-
-[clean]
-duplicates = "keep-first"
-# Winsorize the ratios at the 1st and 99th percentiles over all firm-years.
-winsorize = { variables = ["roa", "roa_lagged_assets", "leverage", "interest_cover", "sales_growth", "asset_growth", "working_capital_assets", "rd_assets"], lower = 0.01, upper = 0.99, by = "pooled" }
-"#
-);
-
-/// A second rules file for the demo: the fiscal year derived from the year-end date instead
-/// of taken from `fiscal_year`.
-pub const RULES_YEAR_END: &str = concat!(
-    r#"# The Velmora accounts with the fiscal year derived from each row's year-end date, not
-# taken from the accounts' own `fiscal_year` column (invented data). A year ending January to
-# May belongs to the previous fiscal year (common practice). Firms that moved their year end
-# show up in the Keys section, and the two rows they put into one fiscal year are conflicting
-# keys, handled by [clean] duplicates.
-include = ["standard"]
-
-[panel]
-entity = "firm_id"
-period = "fiscal_year_from_date"
-year_end = "year_end"
-year_end_cutoff = 5
-
-"#,
-    demo_columns!(),
-    r#"
-[clean]
-duplicates = "keep-first"
-"#
-);
-
-fn readme(p: &Planted, firms: u32, periods: u32, seed: u64) -> String {
-    format!(
-        "# Velmora demo panel (invented)\n\n\
-Accounts of {firms} fictional firms in the imaginary Republic of Velmora over {periods} fiscal \
-years from {FIRST_YEAR}, in thousands of Velmoran crowns. Every firm, region and number here is \
-made up by `panelready demo --firms {firms} --periods {periods} --seed {seed}`; none describes a \
-real company.\n\n\
-Planted defects, for the audit to find:\n\n\
-- {} rows with a blank firm id or fiscal year\n\
-- {} firm-years repeated exactly, {} firm-years given a second row with other values\n\
-- {} single-year slips where total assets and revenue were keyed in crowns, not thousands (x1000)\n\
-- {} firm-years with total assets of zero or below, {} firm-years with net profit blown up\n\
-- {} firm-years with a negative interest expense\n\
-- {} firms observed in one year only, {} firms with an internal gap, late entrants and early leavers\n\
-- {} rows with zero interest paid (firms without debt), {} rows with R&D spending missing\n\
-- time-invariant columns (`sector`, `region`, `founded`) and a macro series (`gdp_growth`)\n\
-- each row's fiscal-year-end date (`year_end`); {} firms move their year end from December to \
-March (`rules_year_end.toml` derives the fiscal year from the date and finds them)\n\n\
-Further raw files, joined onto the accounts by `rules.toml`:\n\n\
-- `{WORKFORCE_FILE}`: headcount by firm-year; {} firm-years of the accounts are missing, {} rows \
-are for firms the accounts do not have, {} row is repeated exactly, and {} headcounts were keyed \
-with an extra zero\n\
-- `{FIRMS_FILE}`: each firm's stock-market listing; {} firms are missing, {} rows are for firms \
-the accounts do not have\n\
-- `{PRICES_FILE}`: an invented consumer price index (2010 = 100), one year beyond the accounts\n\
-- `{CORRECTIONS_FILE}`: the right headcounts for the typos above, each with its reason\n\n\
-`planted.json` lists every planted defect; `rules.toml` maps the raw columns to the canonical \
-names the built-in ratios use, joins the further files and deflates sales by the index.\n",
-        p.missing_key_rows,
-        p.exact_copies.len(),
-        p.conflicting_keys.len(),
-        p.unit_slips.len(),
-        p.nonpositive_assets.len(),
-        p.outliers.len(),
-        p.negative_interest.len(),
-        p.singleton_firms,
-        p.firms_with_gaps,
-        p.zero_interest_rows,
-        p.missing_rd_rows,
-        p.tables.year_end_changes.len(),
-        p.tables.workforce_gaps,
-        p.tables.workforce_strays,
-        p.tables.workforce_copies,
-        p.tables.headcount_typos.len(),
-        p.tables.firms_left_out,
-        p.tables.firms_strays,
-    )
 }
 
 /// Write the demo data folder: the CSV, its rules file, a README and `planted.json`.
