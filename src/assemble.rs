@@ -96,13 +96,9 @@ pub fn read_tables(
         .collect()
 }
 
-fn read_table(
-    spec: &JoinSpec,
-    path: &Path,
-    csv: &CsvOptions,
-    entity: &str,
-    period: &str,
-) -> Result<Table> {
+/// A join's `duplicates` and `unmatched`: whether to keep the first of repeated keys, and
+/// whether to drop panel rows without a match. Checked before any data is read.
+pub fn options(spec: &JoinSpec) -> Result<(bool, bool)> {
     let keep_first = match spec.duplicates.as_deref() {
         None | Some("fail") => false,
         Some("keep-first") => true,
@@ -123,6 +119,17 @@ fn read_table(
             )))
         }
     };
+    Ok((keep_first, drop_unmatched))
+}
+
+fn read_table(
+    spec: &JoinSpec,
+    path: &Path,
+    csv: &CsvOptions,
+    entity: &str,
+    period: &str,
+) -> Result<Table> {
+    let (keep_first, drop_unmatched) = options(spec)?;
     if spec.on.is_empty() {
         return Err(setting(format!(
             "`{}`: `on` names no column to match",
@@ -131,7 +138,7 @@ fn read_table(
     }
     let format = crate::config::format_from_extension(path)?;
     let bytes = std::fs::read(path).map_err(Error::io(path))?;
-    let sha256 = crate::bundle::sha256_hex(&bytes);
+    let sha256 = crate::load::sha256_hex(&bytes);
     drop(bytes);
     let raw = crate::load::read_raw(path, format, csv, spec.sheet.as_deref())?;
     let missing = |column: &str, context: &str| Error::MissingColumn {

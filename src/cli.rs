@@ -198,10 +198,10 @@ pub(crate) enum FailOnArg {
 }
 
 impl FailOnArg {
-    pub(crate) fn status(self) -> crate::audit::verdict::Status {
+    pub(crate) fn status(self) -> crate::report::Status {
         match self {
-            FailOnArg::Warn => crate::audit::verdict::Status::Warn,
-            FailOnArg::Fail => crate::audit::verdict::Status::Fail,
+            FailOnArg::Warn => crate::report::Status::Warn,
+            FailOnArg::Fail => crate::report::Status::Fail,
         }
     }
 }

@@ -1,7 +1,10 @@
 //! `Config::from_cli`: command-line arguments become a validated configuration — rules parsed,
 //! keys resolved, paths checked — before any data is loaded.
 
+use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
+
+use serde::Serialize;
 
 use crate::cli::{CliCommand, FailOnArg, InputArgs, InputFormatArg, ReportFormatArg, RulesCommand};
 pub use crate::report::{InputFormat, ReportFormat};
@@ -20,11 +23,77 @@ pub enum Command {
     /// `panelready ratios`.
     Ratios,
     /// `panelready verify DIR`.
-    Verify(PathBuf, crate::bundle::Relocated),
+    Verify(PathBuf, Relocated),
     /// `compare OLD NEW`.
-    Compare(Box<crate::compare::CompareConfig>),
+    Compare(Box<CompareConfig>),
     /// `rules draft DATA`.
     Draft(DraftConfig),
+}
+
+/// One side of a comparison.
+#[derive(Debug, Clone)]
+pub enum Side {
+    /// A raw file, read as `audit` reads it.
+    Raw(Box<InputConfig>),
+    /// A bundle folder written by `build`: its cleaned panel and dictionary.
+    Bundle(PathBuf),
+}
+
+/// When a numeric cell counts as changed: |new − old| > absolute + relative · |old|.
+#[derive(Debug, Clone, Serialize)]
+pub struct Tolerance {
+    /// Absolute part, for every column without its own.
+    pub absolute: f64,
+    /// Relative part, for every column without its own.
+    pub relative: f64,
+    /// Per-column (absolute, relative) overrides.
+    pub by_column: BTreeMap<String, (f64, f64)>,
+}
+
+impl Default for Tolerance {
+    fn default() -> Self {
+        Tolerance {
+            absolute: 0.0,
+            relative: 1e-9,
+            by_column: BTreeMap::new(),
+        }
+    }
+}
+
+impl Tolerance {
+    pub(crate) fn of(&self, column: &str) -> (f64, f64) {
+        self.by_column
+            .get(column)
+            .copied()
+            .unwrap_or((self.absolute, self.relative))
+    }
+}
+
+/// `compare` settings.
+#[derive(Debug, Clone)]
+pub struct CompareConfig {
+    /// The earlier vintage.
+    pub old: Side,
+    /// The later vintage.
+    pub new: Side,
+    /// When a number counts as changed.
+    pub tolerance: Tolerance,
+    /// How to print the summary.
+    pub format: ReportFormat,
+    /// Write the summary here instead of stdout.
+    pub report: Option<PathBuf>,
+    /// Write the change ledger (CSV) here.
+    pub changes: Option<PathBuf>,
+}
+
+/// Where `verify` finds the files a bundle was built from, when they are not where the
+/// manifest says they were (another machine, another folder).
+#[derive(Debug, Clone, Default)]
+pub struct Relocated {
+    /// The raw input.
+    pub input: Option<PathBuf>,
+    /// The rules file.
+    pub rules: Option<PathBuf>,
 }
 
 /// How to read the raw panel.
@@ -152,7 +221,7 @@ pub struct AuditConfig {
     /// Write the report here instead of stdout.
     pub report: Option<PathBuf>,
     /// Exit 1 at or above this verdict.
-    pub fail_on: Option<crate::audit::verdict::Status>,
+    pub fail_on: Option<crate::report::Status>,
 }
 
 /// `build` settings.
@@ -167,7 +236,7 @@ pub struct BuildConfig {
     /// Write `panel.csv` beside `panel.parquet`.
     pub panel_csv: bool,
     /// Exit 1 (after writing the bundle) at or above this verdict.
-    pub fail_on: Option<crate::audit::verdict::Status>,
+    pub fail_on: Option<crate::report::Status>,
 }
 
 /// `rules draft` settings.
@@ -343,9 +412,9 @@ impl Command {
             }
             CliCommand::Compare(c) => {
                 let format = report_format(c.report.as_deref(), c.format)?;
-                let side = |path: &Path| -> Result<crate::compare::Side> {
+                let side = |path: &Path| -> Result<Side> {
                     if path.is_dir() {
-                        return Ok(crate::compare::Side::Bundle(path.to_path_buf()));
+                        return Ok(Side::Bundle(path.to_path_buf()));
                     }
                     let args = InputArgs {
                         data: path.to_path_buf(),
@@ -354,11 +423,9 @@ impl Command {
                         quiet: true,
                         timings: false,
                     };
-                    Ok(crate::compare::Side::Raw(Box::new(InputConfig::from_args(
-                        args,
-                    )?)))
+                    Ok(Side::Raw(Box::new(InputConfig::from_args(args)?)))
                 };
-                let mut tolerance = crate::compare::Tolerance::default();
+                let mut tolerance = Tolerance::default();
                 let mut by_column = std::collections::BTreeMap::new();
                 tolerances(
                     &c.absolute,
@@ -386,7 +453,7 @@ impl Command {
                         )
                     })
                     .collect();
-                Command::Compare(Box::new(crate::compare::CompareConfig {
+                Command::Compare(Box::new(CompareConfig {
                     old: side(&c.old)?,
                     new: side(&c.new)?,
                     tolerance,
@@ -397,7 +464,7 @@ impl Command {
             }
             CliCommand::Verify(v) => Command::Verify(
                 v.dir,
-                crate::bundle::Relocated {
+                Relocated {
                     input: v.input,
                     rules: v.rules,
                 },

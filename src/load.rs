@@ -538,3 +538,11 @@ fn check_period(df: &DataFrame, cfg: &InputConfig, dtype: &DataType) -> Result<(
         value: value.unwrap_or_else(|| dtype.to_string()),
     })
 }
+/// Lowercase hex SHA-256.
+pub fn sha256_hex(bytes: &[u8]) -> String {
+    use sha2::Digest;
+    sha2::Sha256::digest(bytes)
+        .iter()
+        .map(|b| format!("{b:02x}"))
+        .collect()
+}

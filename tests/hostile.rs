@@ -30,6 +30,7 @@ fn check_bad(case: &Bad) {
     let w = Workdir::new();
     std::fs::write(w.path(case.file), case.data).unwrap();
     w.write("rules.toml", &case.rules);
+    let mut messages = Vec::new();
     for cmd in ["build", "audit"] {
         let mut args = vec![cmd, case.file, "--rules", "rules.toml"];
         if cmd == "build" {
@@ -65,7 +66,13 @@ fn check_bad(case: &Bad) {
             .filter(|n| n.contains("partial"))
             .collect();
         assert!(leftovers.is_empty(), "{}: {leftovers:?}", case.name);
+        messages.push(line.to_string());
     }
+    assert_eq!(
+        messages[0], messages[1],
+        "{}: build and audit refuse differently",
+        case.name
+    );
 }
 
 #[test]
@@ -257,6 +264,75 @@ fn bad_rules_stop_before_any_data_is_read_identically_for_audit_and_build() {
     ];
     for case in &cases {
         check_bad(case);
+    }
+}
+
+/// Raw data that stops the reader (a row with more fields than the header).
+const UNREADABLE: &[u8] = b"firm,year,assets\nA,2001,10\nA,2002,12,99,98\n";
+
+#[test]
+fn values_of_the_rules_file_are_checked_before_any_file_is_read() {
+    // The data file is unreadable, so a rules error can only win if the rules were checked
+    // first; each setting below needs no data to be judged wrong.
+    let plain = bad("unreadable data", UNREADABLE, "", &["raw.csv"]);
+    check_bad(&plain);
+    let cases = [
+        ("[clean]\nduplicates = \"keep-some\"\n", "keep-some"),
+        ("[clean]\ndrop_singletons = \"often\"\n", "drop_singletons"),
+        ("[clean]\nbalance = \"tidy\"\n", "[clean] balance"),
+        (
+            "[clean]\nwinsorize = { variables = [\"assets\"], lower = 0.9, upper = 0.1 }\n",
+            "[clean] winsorize",
+        ),
+        (
+            "[clean]\ntrim = { variables = [\"assets\"], by = \"sector\" }\n",
+            "[clean] trim",
+        ),
+        ("[repair]\nunit_slips = \"shrug\"\n", "[repair] unit_slips"),
+        ("[panel]\nyear_end_cutoff = 13\n", "year_end_cutoff"),
+        ("[verdict]\ngaps = \"maybe\"\n", "[verdict] gaps"),
+        ("[thresholds]\nattrition_p = 2\n", "attrition_p"),
+        ("[thresholds]\nrobust_z = -1\n", "robust_z"),
+        (
+            "[audit]\noutliers = { lower = 0.5, upper = 0.2 }\n",
+            "[audit] outliers",
+        ),
+        (
+            "[model]\noutcome = \"assets\"\nregressors = [\"assets\"]\neffects = \"firm\"\n",
+            "[model] effects",
+        ),
+        (
+            "[[rule]]\nname = \"pos\"\nexpr = \"assets > 0\"\naction = \"explode\"\n",
+            "`pos`",
+        ),
+        (
+            "[[join]]\nfile = \"nowhere.csv\"\non = [\"firm\"]\nunmatched = \"lose\"\n",
+            "unmatched",
+        ),
+    ];
+    for (rules, want) in cases {
+        // `[panel]` appears twice in one case: merge it into the keys' table.
+        let rules = match rules.strip_prefix("[panel]\n") {
+            Some(rest) => format!("{KEYS}{rest}"),
+            None => format!("{KEYS}{rules}"),
+        };
+        let case = Bad {
+            name: "a bad value with unreadable data",
+            data: UNREADABLE,
+            file: "raw.csv",
+            rules,
+            want: &[],
+        };
+        check_bad(&case);
+        let w = Workdir::new();
+        std::fs::write(w.path("raw.csv"), UNREADABLE).unwrap();
+        w.write("rules.toml", &case.rules);
+        let r = w.run(&["audit", "raw.csv", "--rules", "rules.toml"]);
+        assert!(
+            r.stderr.contains(want) && !r.stderr.contains("raw.csv"),
+            "the rules error must come first ({want}): {}",
+            r.stderr
+        );
     }
 }
 

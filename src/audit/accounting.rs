@@ -6,7 +6,8 @@ use std::collections::BTreeSet;
 
 use polars::prelude::*;
 
-use crate::report::{RuleLine, SkippedRule};
+use super::verdict::{line, CheckVerdict, Levels, Status};
+use crate::report::{Report, RuleLine, SkippedRule};
 use crate::rules::expr::{self, Scope};
 use crate::rules::{Origin, Rules, CANONICAL_COLUMNS};
 use crate::{Error, Result};
@@ -23,6 +24,19 @@ pub enum Action {
 }
 
 impl Action {
+    /// A rule's `action`; absent means `flag`.
+    pub fn parse(rule: &crate::rules::AccountingRule) -> Result<Action> {
+        match rule.action.as_deref() {
+            None | Some("flag") => Ok(Action::Flag),
+            Some("null") => Ok(Action::Null),
+            Some("drop") => Ok(Action::Drop),
+            Some(other) => Err(Error::AccountingRule {
+                rule: format!("accounting rule `{}`", rule.name),
+                message: format!("action `{other}` is not flag, null or drop"),
+            }),
+        }
+    }
+
     /// The name used in rules files and reports.
     pub fn label(self) -> &'static str {
         match self {
@@ -63,16 +77,7 @@ pub fn compile(rules: &Rules, raw: &[String]) -> Result<(Vec<CompiledRule>, Vec<
     let mut skipped = Vec::new();
     for (rule, origin) in &rules.accounting {
         let label = format!("accounting rule `{}`", rule.name);
-        let bad = |message: String| Error::AccountingRule {
-            rule: label.clone(),
-            message,
-        };
-        let action = match rule.action.as_deref() {
-            None | Some("flag") => Action::Flag,
-            Some("null") => Action::Null,
-            Some("drop") => Action::Drop,
-            Some(other) => return Err(bad(format!("action `{other}` is not flag, null or drop"))),
-        };
+        let action = Action::parse(rule)?;
         let compiled = match expr::compile(&label, &rule.expr, &scope) {
             Ok(c) => c,
             Err(Error::UnknownColumn { column, .. })
@@ -252,4 +257,29 @@ pub fn drop_reason(rules: &[CompiledRule]) -> Option<Expr> {
                     .otherwise(rest.unwrap_or(lit(NULL).cast(DataType::String))),
             )
         })
+}
+
+/// The accounting rules' verdict line (the rules act before derivation, outside the checks).
+pub fn verdict(r: &Report, lv: &Levels) -> Option<CheckVerdict> {
+    use Status::*;
+    let broken: u64 = r.rules.iter().map(|l| l.violations).sum();
+    Some(if r.rules.is_empty() {
+        line(
+            "Accounting rules",
+            NotChecked,
+            "no accounting rule applies".into(),
+        )
+    } else if broken > 0 {
+        line(
+            "Accounting rules",
+            lv.rule_violations,
+            format!("{broken} rule violations"),
+        )
+    } else {
+        line(
+            "Accounting rules",
+            Pass,
+            format!("{} rules hold on every row", r.rules.len()),
+        )
+    })
 }

@@ -6,6 +6,7 @@ use polars::prelude::*;
 use statrs::distribution::{ContinuousCDF, StudentsT};
 
 use super::names::*;
+use super::verdict::{line, CheckVerdict, Levels, Status};
 use super::{Check, Context};
 use crate::report::{AttritionTest, Report};
 use crate::Result;
@@ -131,6 +132,48 @@ impl Check for Attrition {
             });
         }
         Ok(())
+    }
+
+    fn verdict(&self, r: &Report, lv: &Levels) -> Option<CheckVerdict> {
+        use Status::*;
+        let compared: Vec<&str> = r
+            .attrition
+            .iter()
+            .filter(|a| a.p.is_some())
+            .map(|a| a.variable.as_str())
+            .collect();
+        let differ: Vec<&str> = r
+            .attrition
+            .iter()
+            .filter(|a| a.p.is_some_and(|p| p < lv.attrition_p))
+            .map(|a| a.variable.as_str())
+            .collect();
+        Some(if compared.is_empty() {
+            line(
+                "Entry and exit",
+                NotChecked,
+                "no variable could be compared between leavers and stayers".into(),
+            )
+        } else if differ.is_empty() {
+            line(
+                "Entry and exit",
+                Pass,
+                format!(
+                    "leavers and stayers do not differ at entry (p >= {}) in {} variables compared",
+                    lv.attrition_p,
+                    compared.len()
+                ),
+            )
+        } else {
+            line(
+                "Entry and exit",
+                lv.attrition,
+                format!(
+                    "leavers differ from stayers at entry in {}",
+                    differ.join(", ")
+                ),
+            )
+        })
     }
 }
 

@@ -5,6 +5,7 @@
 use polars::prelude::*;
 
 use super::names::*;
+use super::verdict::{line, worst, CheckVerdict, Levels, Status};
 use super::{scalar_f64, scalar_u64, Check, Context};
 use crate::report::{CoverageGrid, Distribution, GridRow, Report, Shape};
 use crate::Result;
@@ -32,10 +33,6 @@ impl Check for Coverage {
                 col(LONGEST).max().alias("longest"),
                 col(N).eq(lit(1)).sum().alias("singletons"),
                 col(SPELLS).sum().alias("spells"),
-                len().cast(DataType::Float64).alias("entities"),
-                n.clone().sum().alias("rows"),
-                (lit(1.0) / n.clone()).sum().alias("inv_sum"),
-                (n.clone() * n.clone()).sum().alias("sq_sum"),
                 n.clone().min().alias("min"),
                 n.clone()
                     .quantile(lit(0.25), QuantileMethod::Linear)
@@ -51,12 +48,6 @@ impl Check for Coverage {
             ])
             .collect()?;
         let f = |c: &str| -> Result<f64> { Ok(scalar_f64(&s, c)?.unwrap_or(0.0)) };
-        let (entities, rows) = (f("entities")?, f("rows")?);
-        if entities > 0.0 {
-            // Ahrens & Pincus (1981): gamma = n / (T-bar * sum 1/T_i), nu = N^2 / (n sum T_i^2).
-            report.panel.evenness_harmonic = Some(entities * entities / (rows * f("inv_sum")?));
-            report.panel.evenness_squares = Some(rows * rows / (entities * f("sq_sum")?));
-        }
         let c = &mut report.coverage;
         c.entities_with_gaps = scalar_u64(&s, "with_gaps")?;
         c.gap_periods = scalar_u64(&s, "gap_periods")?;
@@ -77,6 +68,26 @@ impl Check for Coverage {
         c.singletons_two_way = ctx.core.two_way_singletons();
         c.grid = grid(ctx)?;
         Ok(())
+    }
+
+    fn verdict(&self, r: &Report, lv: &Levels) -> Option<CheckVerdict> {
+        use Status::*;
+        let c = &r.coverage;
+        let mut coverage = Vec::new();
+        if c.entities_with_gaps > 0 {
+            coverage.push((
+                lv.gaps,
+                format!("{} entities with gaps", c.entities_with_gaps),
+            ));
+        }
+        if c.singletons > 0 {
+            coverage.push((lv.singletons, format!("{} singletons", c.singletons)));
+        }
+        Some(if coverage.is_empty() {
+            line("Coverage", Pass, "no gaps and no singletons".into())
+        } else {
+            worst("Coverage", coverage)
+        })
     }
 }
 

@@ -2,7 +2,8 @@
 
 use polars::prelude::*;
 
-use super::{Check, Context};
+use super::names::N;
+use super::{scalar_f64, Check, Context};
 use crate::report::{PanelSummary, Report};
 use crate::Result;
 
@@ -15,9 +16,36 @@ impl Check for Glance {
     }
 
     fn run(&self, ctx: &Context, report: &mut Report) -> Result<()> {
-        report.panel = summarize(ctx.df, ctx.entity, ctx.period, ctx.keys.height() as u64)?;
+        let mut panel = summarize(ctx.df, ctx.entity, ctx.period, ctx.keys.height() as u64)?;
+        (panel.evenness_harmonic, panel.evenness_squares) = evenness(&ctx.entities)?;
+        report.panel = panel;
         Ok(())
     }
+}
+
+/// How evenly the observations spread over the entities, from their counts `__n`; Ahrens &
+/// Pincus (1981): gamma = N / (T-bar · Σ 1/T_i), nu = n² / (N · Σ T_i²). None without entities.
+fn evenness(entities: &DataFrame) -> Result<(Option<f64>, Option<f64>)> {
+    let n = col(N).cast(DataType::Float64);
+    let s = entities
+        .clone()
+        .lazy()
+        .select([
+            len().cast(DataType::Float64).alias("entities"),
+            n.clone().sum().alias("rows"),
+            (lit(1.0) / n.clone()).sum().alias("inv_sum"),
+            (n.clone() * n).sum().alias("sq_sum"),
+        ])
+        .collect()?;
+    let f = |c: &str| -> Result<f64> { Ok(scalar_f64(&s, c)?.unwrap_or(0.0)) };
+    let (count, rows) = (f("entities")?, f("rows")?);
+    if count == 0.0 {
+        return Ok((None, None));
+    }
+    Ok((
+        Some(count * count / (rows * f("inv_sum")?)),
+        Some(rows * rows / (count * f("sq_sum")?)),
+    ))
 }
 
 /// The glance figures of one frame with `keys` distinct (entity, period) pairs.

@@ -3,6 +3,7 @@
 
 use polars::prelude::*;
 
+use super::verdict::{line, CheckVerdict, Levels, Status};
 use super::{Check, Context};
 use crate::report::{MissingBreak, MissingLine, Report};
 use crate::Result;
@@ -98,5 +99,28 @@ impl Check for Missing {
             }
         }
         Ok(())
+    }
+
+    fn verdict(&self, r: &Report, lv: &Levels) -> Option<CheckVerdict> {
+        use Status::*;
+        Some(if r.missing.is_empty() {
+            line(
+                "Missing values",
+                NotChecked,
+                "no variable besides the keys".into(),
+            )
+        } else if r.missing_breaks.is_empty() {
+            line(
+                "Missing values",
+                Pass,
+                "no sharp change in coverage between periods".into(),
+            )
+        } else {
+            line(
+                "Missing values",
+                lv.missing_breaks,
+                format!("{} coverage breaks between periods", r.missing_breaks.len()),
+            )
+        })
     }
 }

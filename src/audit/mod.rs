@@ -25,7 +25,6 @@ pub use entry_exit::EntryExit;
 pub use glance::Glance;
 pub use missing::Missing;
 pub use outliers::{CutoffGroups, Outliers, MAD_SCALE};
-pub use unit_slips::UnitSlips;
 pub use variation::{Variation, ABSORBED_SHARE};
 
 /// Thresholds and settings of the checks, from `[thresholds]` and `[audit]`.
@@ -371,6 +370,33 @@ pub trait Check {
     fn cleaned_only(&self) -> bool {
         false
     }
+    /// The check's line of the verdict, from the finished report at the configured levels;
+    /// none for a check that only describes.
+    fn verdict(
+        &self,
+        _report: &Report,
+        _levels: &verdict::Levels,
+    ) -> Option<verdict::CheckVerdict> {
+        None
+    }
+}
+
+/// One line of the verdict from the finished report, or none.
+pub type VerdictLine = fn(&Report, &verdict::Levels) -> Option<verdict::CheckVerdict>;
+
+/// The verdict's lines in the order the reports list them: the key steps', the checks' in
+/// registry order, the accounting rules' (which act before derivation) before the model's.
+pub fn verdict_order() -> Vec<VerdictLine> {
+    vec![
+        verdict::keys,
+        |r, lv| Coverage.verdict(r, lv),
+        |r, lv| Attrition.verdict(r, lv),
+        |r, lv| Variation.verdict(r, lv),
+        |r, lv| Missing.verdict(r, lv),
+        |r, lv| Outliers.verdict(r, lv),
+        accounting::verdict,
+        |r, lv| model::Model.verdict(r, lv),
+    ]
 }
 
 /// Every check, in report order.
@@ -383,7 +409,6 @@ pub fn registry() -> Vec<Box<dyn Check>> {
         Box::new(Variation),
         Box::new(Missing),
         Box::new(Outliers),
-        Box::new(UnitSlips),
         Box::new(model::Model),
     ]
 }

@@ -1,10 +1,12 @@
-//! Outliers: percentile cutoffs (Hyndman–Fan type 7, pooled or by period) with the counts
-//! beyond them, robust z-scores from the median and the MAD, and within-entity jumps in log
-//! levels. Missing values never enter a cutoff.
+//! Outliers and unit slips: percentile cutoffs (Hyndman–Fan type 7, pooled, by period or by
+//! groups) with the counts beyond them, robust z-scores from the median and the MAD, and in
+//! the level variables within-entity jumps in log levels and unit slips (`unit_slips.rs`).
+//! Missing values never enter a cutoff.
 
 use rayon::prelude::*;
 
-use super::{Check, Context, Settings};
+use super::verdict::{line as verdict_line, worst, CheckVerdict, Levels, Status};
+use super::{unit_slips, Check, Context, Settings};
 use crate::core::{type7, PanelCore, Values};
 pub use crate::report::CutoffGroups;
 use crate::report::{OutlierLine, Report};
@@ -13,20 +15,17 @@ use crate::Result;
 /// The MAD's scale for a normal distribution, 1 / Φ⁻¹(3/4).
 pub const MAD_SCALE: f64 = 1.482_602_218_505_602;
 
-/// Outliers.
+/// Outliers and unit slips.
 pub struct Outliers;
 
 impl Check for Outliers {
     fn name(&self) -> &'static str {
-        "outliers"
+        "outliers and unit slips"
     }
 
     fn run(&self, ctx: &Context, report: &mut Report) -> Result<()> {
         let s = &ctx.settings;
         let vars = &ctx.numeric;
-        if vars.is_empty() {
-            return Ok(());
-        }
         // Typed kernels over the panel core, variables in parallel: each order statistic by
         // selection (no full sort), each count in one pass.
         // A few variables at a time, so that memory holds a few columns' values, not all.
@@ -42,7 +41,45 @@ impl Check for Outliers {
                 .collect();
             report.outliers.extend(lines);
         }
+        let found = unit_slips::search(ctx)?;
+        for (v, jumps) in found.jumps {
+            if let Some(line) = report.outliers.iter_mut().find(|l| l.variable == v) {
+                line.log_jumps = Some(jumps);
+            }
+        }
+        report.unit_slips_total = found.total;
+        report.unit_slips_searched = found.searched;
+        report.unit_slips = found.slips;
         Ok(())
+    }
+
+    fn verdict(&self, r: &Report, lv: &Levels) -> Option<CheckVerdict> {
+        use Status::*;
+        let mut outliers = Vec::new();
+        if r.unit_slips_total > 0 {
+            outliers.push((
+                lv.unit_slips,
+                format!("{} suspected unit slips", r.unit_slips_total),
+            ));
+        }
+        if r.outliers.iter().any(|o| o.small_groups) {
+            outliers.push((Warn, "some periods are too small for their cutoffs".into()));
+        }
+        Some(if !outliers.is_empty() {
+            worst("Outliers and unit slips", outliers)
+        } else if r.unit_slips_searched == 0 {
+            verdict_line(
+                "Outliers and unit slips",
+                NotChecked,
+                "no level variable to search for unit slips".into(),
+            )
+        } else {
+            verdict_line(
+                "Outliers and unit slips",
+                Pass,
+                format!("no unit slips in {} level variables", r.unit_slips_searched),
+            )
+        })
     }
 }
 

@@ -5,10 +5,10 @@
 use polars::prelude::*;
 use rayon::prelude::*;
 
-use super::{Check, Context};
-use crate::clean::repair::{log_ratios, magnitude};
+use super::Context;
 use crate::core::Values;
-use crate::report::{Report, UnitSlip};
+use crate::core::{log_ratios, magnitude};
+use crate::report::UnitSlip;
 use crate::Result;
 
 /// One level variable's slips (row, magnitude, jumps back the next period) and its count of
@@ -18,73 +18,81 @@ type Found = (Vec<(usize, i32, bool)>, u64);
 /// The longest slip list kept in the report (the count covers all).
 const LISTED: usize = 10_000;
 
-/// Unit slips and jumps.
-pub struct UnitSlips;
+/// What the unit-slip search found: the slips (the first `LISTED`), their total, the level
+/// variables searched, and each one's count of large jumps in the log level.
+pub(super) struct Search {
+    pub slips: Vec<UnitSlip>,
+    pub total: u64,
+    pub searched: u64,
+    pub jumps: Vec<(String, u64)>,
+}
 
-impl Check for UnitSlips {
-    fn name(&self) -> &'static str {
-        "unit slips"
+/// Search the level variables for unit slips and count their large log jumps.
+pub(super) fn search(ctx: &Context) -> Result<Search> {
+    let levels = &ctx.levels;
+    if levels.is_empty() {
+        return Ok(Search {
+            slips: Vec::new(),
+            total: 0,
+            searched: 0,
+            jumps: Vec::new(),
+        });
     }
-
-    fn run(&self, ctx: &Context, report: &mut Report) -> Result<()> {
-        let levels = &ctx.levels;
-        if levels.is_empty() {
-            return Ok(());
-        }
-        // The panel is sorted by entity and period: whether the row before is the previous
-        // period of the same entity comes from the panel core's codes, once; then one typed
-        // pass per level variable (in parallel) with the detector the repair uses.
-        let back = ctx.core.previous_period();
-        let log_jump = ctx.settings.log_jump;
-        let one = |v: &String| -> Result<Found> {
-            let x = Values::of(ctx.df, v)?;
-            let r = log_ratios(&back, &x);
-            let mag: Vec<Option<i32>> = r.iter().map(|r| r.and_then(magnitude)).collect();
-            let jumps = r
-                .iter()
-                .flatten()
-                .filter(|r| (*r * std::f64::consts::LN_10).abs() > log_jump)
-                .count() as u64;
-            // A slip is listed once: the jump back of a listed slip is not another slip.
-            let slips = (0..mag.len())
-                .filter_map(|i| {
-                    let m = mag[i]?;
-                    let listed = i == 0 || mag[i - 1] != Some(-m);
-                    let reverses = mag.get(i + 1).copied().flatten() == Some(-m);
-                    listed.then_some((i, m, reverses))
-                })
-                .collect();
-            Ok((slips, jumps))
-        };
-        // A few variables at a time, in parallel, so that memory holds a few columns.
-        let mut found: Vec<Found> = Vec::with_capacity(levels.len());
-        for batch in levels.chunks(crate::core::BATCH) {
-            let part: Vec<Found> = batch.par_iter().map(one).collect::<Result<_>>()?;
-            found.extend(part);
-        }
-        let entity = ctx.df.column(ctx.entity)?.cast(&DataType::String)?;
-        let entity = entity.str()?;
-        let period = ctx.df.column(ctx.period)?.cast(&DataType::Int64)?;
-        let period = period.i64()?;
-        let mut slips = Vec::new();
-        for (v, (rows, jumps)) in levels.iter().zip(found) {
-            for (r, m, reverses) in rows {
-                slips.push(UnitSlip {
-                    entity: entity.get(r).unwrap_or_default().to_string(),
-                    period: period.get(r).unwrap_or_default(),
-                    variable: v.clone(),
-                    factor: 10f64.powi(m),
-                    reverses,
-                });
-            }
-            if let Some(line) = report.outliers.iter_mut().find(|l| &l.variable == v) {
-                line.log_jumps = Some(jumps);
-            }
-        }
-        report.unit_slips_total = slips.len() as u64;
-        report.unit_slips_searched = levels.len() as u64;
-        slips.truncate(LISTED);
-        report.unit_slips = slips;
-        Ok(())
+    // The panel is sorted by entity and period: whether the row before is the previous
+    // period of the same entity comes from the panel core's codes, once; then one typed
+    // pass per level variable (in parallel) with the detector the repair uses.
+    let back = ctx.core.previous_period();
+    let log_jump = ctx.settings.log_jump;
+    let one = |v: &String| -> Result<Found> {
+        let x = Values::of(ctx.df, v)?;
+        let r = log_ratios(&back, &x);
+        let mag: Vec<Option<i32>> = r.iter().map(|r| r.and_then(magnitude)).collect();
+        let jumps = r
+            .iter()
+            .flatten()
+            .filter(|r| (*r * std::f64::consts::LN_10).abs() > log_jump)
+            .count() as u64;
+        // A slip is listed once: the jump back of a listed slip is not another slip.
+        let slips = (0..mag.len())
+            .filter_map(|i| {
+                let m = mag[i]?;
+                let listed = i == 0 || mag[i - 1] != Some(-m);
+                let reverses = mag.get(i + 1).copied().flatten() == Some(-m);
+                listed.then_some((i, m, reverses))
+            })
+            .collect();
+        Ok((slips, jumps))
+    };
+    // A few variables at a time, in parallel, so that memory holds a few columns.
+    let mut found: Vec<Found> = Vec::with_capacity(levels.len());
+    for batch in levels.chunks(crate::core::BATCH) {
+        let part: Vec<Found> = batch.par_iter().map(one).collect::<Result<_>>()?;
+        found.extend(part);
     }
+    let entity = ctx.df.column(ctx.entity)?.cast(&DataType::String)?;
+    let entity = entity.str()?;
+    let period = ctx.df.column(ctx.period)?.cast(&DataType::Int64)?;
+    let period = period.i64()?;
+    let mut slips = Vec::new();
+    let mut jump_counts = Vec::new();
+    for (v, (rows, jumps)) in levels.iter().zip(found) {
+        for (r, m, reverses) in rows {
+            slips.push(UnitSlip {
+                entity: entity.get(r).unwrap_or_default().to_string(),
+                period: period.get(r).unwrap_or_default(),
+                variable: v.clone(),
+                factor: 10f64.powi(m),
+                reverses,
+            });
+        }
+        jump_counts.push((v.clone(), jumps));
+    }
+    let total = slips.len() as u64;
+    slips.truncate(LISTED);
+    Ok(Search {
+        slips,
+        total,
+        searched: levels.len() as u64,
+        jumps: jump_counts,
+    })
 }

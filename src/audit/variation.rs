@@ -6,6 +6,7 @@
 use polars::prelude::*;
 use rayon::prelude::*;
 
+use super::verdict::{self, worst, CheckVerdict, Levels, Status};
 use super::{Check, Context};
 use crate::core::{PanelCore, Values};
 use crate::report::{Absorbed, Report, VariationLine};
@@ -17,36 +18,91 @@ pub const ABSORBED_SHARE: f64 = 1e-10;
 /// Variation and absorption.
 pub struct Variation;
 
+/// The variation lines of the numeric variables `vars`.
+pub(super) fn lines(ctx: &Context, vars: &[String]) -> Result<Vec<VariationLine>> {
+    // One typed pass per variable over the panel core's codes, the variables in parallel;
+    // each sum runs in row order, so the figures are the same on every run.
+    // A few variables at a time, so that memory holds a few columns' values, not all.
+    let core = &ctx.core;
+    let mut lines: Vec<VariationLine> = Vec::with_capacity(vars.len());
+    for batch in vars.chunks(crate::core::BATCH) {
+        let values: Vec<Values> = batch
+            .iter()
+            .map(|v| Values::of(ctx.df, v))
+            .collect::<Result<_>>()?;
+        lines.par_extend(
+            batch
+                .par_iter()
+                .zip(values.par_iter())
+                .map(|(v, x)| line(core, v, x, ctx.settings.nearly_absorbed)),
+        );
+    }
+    Ok(lines)
+}
+
 impl Check for Variation {
     fn name(&self) -> &'static str {
         "variation"
     }
 
     fn run(&self, ctx: &Context, report: &mut Report) -> Result<()> {
-        let vars = &ctx.numeric;
-        if vars.is_empty() {
-            return Ok(());
-        }
-        // One typed pass per variable over the panel core's codes, the variables in parallel;
-        // each sum runs in row order, so the figures are the same on every run.
-        // A few variables at a time, so that memory holds a few columns' values, not all.
-        let core = &ctx.core;
-        let mut lines: Vec<VariationLine> = Vec::with_capacity(vars.len());
-        for batch in vars.chunks(crate::core::BATCH) {
-            let values: Vec<Values> = batch
-                .iter()
-                .map(|v| Values::of(ctx.df, v))
-                .collect::<Result<_>>()?;
-            lines.par_extend(
-                batch
-                    .par_iter()
-                    .zip(values.par_iter())
-                    .map(|(v, x)| line(core, v, x, ctx.settings.nearly_absorbed)),
-            );
-        }
+        let mut lines = lines(ctx, &ctx.numeric)?;
         lines.extend(categorical(ctx)?);
         report.variation = lines;
         Ok(())
+    }
+
+    fn verdict(&self, r: &Report, lv: &Levels) -> Option<CheckVerdict> {
+        use Status::*;
+        // A model regressor counts as absorbed only under the effects the model declares.
+        let absorbed_regressor: Vec<&str> = r
+            .model
+            .iter()
+            .flat_map(|m| m.not_identified_within.iter().chain(&m.not_identified))
+            .map(String::as_str)
+            .collect();
+        let nearly: Vec<&str> = r
+            .variation
+            .iter()
+            .filter(|v| v.nearly_absorbed)
+            .map(|v| v.variable.as_str())
+            .collect();
+        let absorbed = r
+            .variation
+            .iter()
+            .filter(|v| v.absorbed_by.is_some())
+            .count();
+        let mut absorption = Vec::new();
+        if !absorbed_regressor.is_empty() {
+            absorption.push((
+                lv.absorbed_regressor,
+                format!(
+                    "model regressors absorbed by fixed effects: {}",
+                    absorbed_regressor.join(", ")
+                ),
+            ));
+        }
+        if !nearly.is_empty() {
+            absorption.push((
+                lv.nearly_absorbed,
+                format!("nearly absorbed: {}", nearly.join(", ")),
+            ));
+        }
+        Some(if r.variation.is_empty() {
+            verdict::line(
+                "Absorbed by fixed effects",
+                NotChecked,
+                "no variable besides the keys".into(),
+            )
+        } else if absorption.is_empty() {
+            verdict::line(
+                "Absorbed by fixed effects",
+                Pass,
+                format!("{absorbed} variables absorbed (time-invariant traits or macro series), none nearly"),
+            )
+        } else {
+            worst("Absorbed by fixed effects", absorption)
+        })
     }
 }
 
@@ -99,7 +155,7 @@ fn line(core: &PanelCore, variable: &str, x: &Values, nearly: f64) -> VariationL
 /// Text and other non-numeric variables: only whether each entity (or each period) holds
 /// a single value, which makes the variable's dummies absorbed by those effects. One pass over
 /// the sorted panel per variable for entities; periods by the panel core's codes.
-fn categorical(ctx: &Context) -> Result<Vec<VariationLine>> {
+pub(super) fn categorical(ctx: &Context) -> Result<Vec<VariationLine>> {
     let others: Vec<&String> = ctx
         .variables
         .iter()

@@ -122,7 +122,7 @@ impl Levels {
     }
 }
 
-fn line(check: &str, status: Status, reason: String) -> CheckVerdict {
+pub(crate) fn line(check: &str, status: Status, reason: String) -> CheckVerdict {
     CheckVerdict {
         check: check.to_string(),
         status,
@@ -130,13 +130,29 @@ fn line(check: &str, status: Status, reason: String) -> CheckVerdict {
     }
 }
 
-/// Judge a finished report: each finding at the level `[verdict]` gives it.
+/// Judge a finished report: each finding at the level `[verdict]` gives it. Each line is
+/// written by what found it (`Check::verdict`, the key steps, the accounting rules), in the
+/// order of [`super::verdict_order`]; overall is the worst of them.
 pub fn judge(r: &Report, lv: &Levels) -> Verdict {
+    let checks: Vec<CheckVerdict> = super::verdict_order()
+        .into_iter()
+        .filter_map(|judge| judge(r, lv))
+        .collect();
+    let overall = checks
+        .iter()
+        .map(|c| c.status)
+        .max()
+        .unwrap_or(Status::Pass)
+        .max(Status::Pass);
+    Verdict { overall, checks }
+}
+
+/// The key steps' verdict line: unresolved conflicting keys, or the repairs made.
+pub(super) fn keys(r: &Report, lv: &Levels) -> Option<CheckVerdict> {
     use Status::*;
-    let mut checks = Vec::new();
     let k = &r.keys;
     let unresolved = k.policy == "report only" && k.conflicting_keys > 0;
-    checks.push(if unresolved {
+    Some(if unresolved {
         line(
             "Keys",
             lv.conflicting_keys,
@@ -160,221 +176,11 @@ pub fn judge(r: &Report, lv: &Levels) -> Verdict {
             Pass,
             "every entity-period key is present and unique".into(),
         )
-    });
-    let c = &r.coverage;
-    let mut coverage = Vec::new();
-    if c.entities_with_gaps > 0 {
-        coverage.push((
-            lv.gaps,
-            format!("{} entities with gaps", c.entities_with_gaps),
-        ));
-    }
-    if c.singletons > 0 {
-        coverage.push((lv.singletons, format!("{} singletons", c.singletons)));
-    }
-    checks.push(if coverage.is_empty() {
-        line("Coverage", Pass, "no gaps and no singletons".into())
-    } else {
-        worst("Coverage", coverage)
-    });
-    let compared: Vec<&str> = r
-        .attrition
-        .iter()
-        .filter(|a| a.p.is_some())
-        .map(|a| a.variable.as_str())
-        .collect();
-    let differ: Vec<&str> = r
-        .attrition
-        .iter()
-        .filter(|a| a.p.is_some_and(|p| p < lv.attrition_p))
-        .map(|a| a.variable.as_str())
-        .collect();
-    checks.push(if compared.is_empty() {
-        line(
-            "Entry and exit",
-            NotChecked,
-            "no variable could be compared between leavers and stayers".into(),
-        )
-    } else if differ.is_empty() {
-        line(
-            "Entry and exit",
-            Pass,
-            format!(
-                "leavers and stayers do not differ at entry (p >= {}) in {} variables compared",
-                lv.attrition_p,
-                compared.len()
-            ),
-        )
-    } else {
-        line(
-            "Entry and exit",
-            lv.attrition,
-            format!(
-                "leavers differ from stayers at entry in {}",
-                differ.join(", ")
-            ),
-        )
-    });
-    // A model regressor counts as absorbed only under the effects the model declares.
-    let absorbed_regressor: Vec<&str> = r
-        .model
-        .iter()
-        .flat_map(|m| m.not_identified_within.iter().chain(&m.not_identified))
-        .map(String::as_str)
-        .collect();
-    let nearly: Vec<&str> = r
-        .variation
-        .iter()
-        .filter(|v| v.nearly_absorbed)
-        .map(|v| v.variable.as_str())
-        .collect();
-    let absorbed = r
-        .variation
-        .iter()
-        .filter(|v| v.absorbed_by.is_some())
-        .count();
-    let mut absorption = Vec::new();
-    if !absorbed_regressor.is_empty() {
-        absorption.push((
-            lv.absorbed_regressor,
-            format!(
-                "model regressors absorbed by fixed effects: {}",
-                absorbed_regressor.join(", ")
-            ),
-        ));
-    }
-    if !nearly.is_empty() {
-        absorption.push((
-            lv.nearly_absorbed,
-            format!("nearly absorbed: {}", nearly.join(", ")),
-        ));
-    }
-    checks.push(if r.variation.is_empty() {
-        line(
-            "Absorbed by fixed effects",
-            NotChecked,
-            "no variable besides the keys".into(),
-        )
-    } else if absorption.is_empty() {
-        line(
-            "Absorbed by fixed effects",
-            Pass,
-            format!("{absorbed} variables absorbed (time-invariant traits or macro series), none nearly"),
-        )
-    } else {
-        worst("Absorbed by fixed effects", absorption)
-    });
-    checks.push(if r.missing.is_empty() {
-        line(
-            "Missing values",
-            NotChecked,
-            "no variable besides the keys".into(),
-        )
-    } else if r.missing_breaks.is_empty() {
-        line(
-            "Missing values",
-            Pass,
-            "no sharp change in coverage between periods".into(),
-        )
-    } else {
-        line(
-            "Missing values",
-            lv.missing_breaks,
-            format!("{} coverage breaks between periods", r.missing_breaks.len()),
-        )
-    });
-    let mut outliers = Vec::new();
-    if r.unit_slips_total > 0 {
-        outliers.push((
-            lv.unit_slips,
-            format!("{} suspected unit slips", r.unit_slips_total),
-        ));
-    }
-    if r.outliers.iter().any(|o| o.small_groups) {
-        outliers.push((Warn, "some periods are too small for their cutoffs".into()));
-    }
-    checks.push(if !outliers.is_empty() {
-        worst("Outliers and unit slips", outliers)
-    } else if r.unit_slips_searched == 0 {
-        line(
-            "Outliers and unit slips",
-            NotChecked,
-            "no level variable to search for unit slips".into(),
-        )
-    } else {
-        line(
-            "Outliers and unit slips",
-            Pass,
-            format!("no unit slips in {} level variables", r.unit_slips_searched),
-        )
-    });
-    let broken: u64 = r.rules.iter().map(|l| l.violations).sum();
-    checks.push(if r.rules.is_empty() {
-        line(
-            "Accounting rules",
-            NotChecked,
-            "no accounting rule applies".into(),
-        )
-    } else if broken > 0 {
-        line(
-            "Accounting rules",
-            lv.rule_violations,
-            format!("{broken} rule violations"),
-        )
-    } else {
-        line(
-            "Accounting rules",
-            Pass,
-            format!("{} rules hold on every row", r.rules.len()),
-        )
-    });
-    if let Some(m) = &r.model {
-        let not_identified: Vec<&String> = m
-            .not_identified
-            .iter()
-            .chain(&m.not_identified_within)
-            .collect();
-        let mut findings = Vec::new();
-        if !not_identified.is_empty() {
-            findings.push((
-                lv.absorbed_regressor,
-                format!(
-                    "not identified by every estimator: {}",
-                    not_identified
-                        .iter()
-                        .map(|s| s.as_str())
-                        .collect::<Vec<_>>()
-                        .join(", ")
-                ),
-            ));
-        }
-        let thumbs = m.warnings.len().saturating_sub(not_identified.len());
-        if thumbs > 0 {
-            findings.push((lv.model_warnings, format!("{thumbs} rules of thumb apply")));
-        }
-        checks.push(if m.questions.iter().all(|q| q.tests.is_empty()) {
-            line(
-                "Model readiness",
-                Fail,
-                "no diagnostic could be computed".into(),
-            )
-        } else if findings.is_empty() {
-            line("Model readiness", Pass, "no rule of thumb applies".into())
-        } else {
-            worst("Model readiness", findings)
-        });
-    }
-    let overall = checks
-        .iter()
-        .map(|c| c.status)
-        .max()
-        .unwrap_or(Pass)
-        .max(Pass);
-    Verdict { overall, checks }
+    })
 }
 
 /// One line at the worst level among several findings, their reasons joined.
-fn worst(check: &str, findings: Vec<(Status, String)>) -> CheckVerdict {
+pub(crate) fn worst(check: &str, findings: Vec<(Status, String)>) -> CheckVerdict {
     let status = findings
         .iter()
         .map(|(s, _)| *s)

@@ -7,7 +7,7 @@ use std::path::{Path, PathBuf};
 
 use polars::prelude::*;
 
-use crate::core::{PanelCore, Values};
+use crate::core::{log_ratios, magnitude, PanelCore, Values};
 use crate::{Error, Result};
 
 /// What to do with a detected unit slip.
@@ -61,7 +61,7 @@ fn bad(path: &Path, message: String) -> Error {
 /// Read and check a corrections file (before any data is read).
 pub fn read_corrections(path: &Path) -> Result<Corrections> {
     let bytes = std::fs::read(path).map_err(Error::io(path))?;
-    let sha256 = crate::bundle::sha256_hex(&bytes);
+    let sha256 = crate::load::sha256_hex(&bytes);
     let schema: Schema = CORRECTION_COLUMNS
         .iter()
         .map(|c| Field::new((*c).into(), DataType::String))
@@ -315,35 +315,6 @@ pub fn apply_corrections(
         concat(ledger, UnionArgs::default())?.collect()?
     };
     Ok((df, ledger))
-}
-
-/// The log10 ratio of each row of `x` to the previous period of the same entity, where both
-/// are positive (`back[r]`: the row before is that period, on a panel sorted by entity and
-/// period); else None.
-pub fn log_ratios(back: &[bool], x: &Values) -> Vec<Option<f64>> {
-    (0..back.len())
-        .map(|r| {
-            if !back[r] {
-                return None;
-            }
-            match (x.get(r), x.get(r - 1)) {
-                (Some(a), Some(b)) if a > 0.0 && b > 0.0 => Some((a / b).log10()),
-                _ => None,
-            }
-        })
-        .collect()
-}
-
-/// The unit-slip magnitude of a log10 ratio to the previous period: 3 or 6 (or −3, −6) when
-/// the ratio is within a factor of two of 10^3 or 10^6 (or their inverses), else None. With
-/// `log_ratios`, the one detector the audit and the repair share.
-pub fn magnitude(r: f64) -> Option<i32> {
-    // How far (in log10 units) a ratio may sit from 10^3 or 10^6 and still count as a slip:
-    // log10(2), so factors between 500 and 2000 count as 1000.
-    let slack = std::f64::consts::LOG10_2;
-    [6, -6, 3, -3]
-        .into_iter()
-        .find(|m| (r - f64::from(*m)).abs() < slack)
 }
 
 /// Repair the unit slips the detector is sure of in `levels`: a jump by a power of 1000 whose

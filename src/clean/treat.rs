@@ -6,8 +6,8 @@
 use polars::prelude::*;
 
 use super::{drop_where, Keys};
-use crate::audit::CutoffGroups;
 use crate::core::{type7, PanelCore, Values};
+use crate::report::CutoffGroups;
 use crate::report::{Cutoff, GroupCutoff, Histogram, TreatLine};
 use crate::rules::{TreatBy, TreatSpec};
 use crate::{Error, Result};
@@ -22,6 +22,14 @@ pub enum Method {
 }
 
 impl Method {
+    /// The rules-file table that configures it.
+    fn setting(self) -> &'static str {
+        match self {
+            Method::Winsorize => "[clean] winsorize",
+            Method::Trim => "[clean] trim",
+        }
+    }
+
     fn label(self) -> &'static str {
         match self {
             Method::Winsorize => "winsorize",
@@ -48,19 +56,11 @@ pub struct Treatment {
 }
 
 impl Treatment {
-    /// Validate a `[clean] winsorize` or `trim` table; `resolve` maps canonical names.
-    pub fn from_spec(
-        method: Method,
-        spec: &TreatSpec,
-        resolve: impl Fn(&str) -> String,
-        columns: &[String],
-    ) -> Result<Treatment> {
-        let setting = match method {
-            Method::Winsorize => "[clean] winsorize",
-            Method::Trim => "[clean] trim",
-        };
+    /// Check the values of a `[clean] winsorize` or `trim` table (cutoffs, `by`), before any
+    /// data is read; the names stay as written until [`Treatment::resolve`].
+    pub fn from_spec(method: Method, spec: &TreatSpec) -> Result<Treatment> {
         let bad = |message: &str| Error::Setting {
-            setting,
+            setting: method.setting(),
             message: message.to_string(),
         };
         let lower = spec.lower.unwrap_or(0.01);
@@ -83,21 +83,41 @@ impl Treatment {
                 if list.is_empty() {
                     return Err(bad("`by` lists no grouping column"));
                 }
-                let resolved = list
-                    .iter()
-                    .map(|c| {
-                        let r = resolve(c);
-                        if columns.contains(&r) {
-                            Ok(r)
-                        } else {
-                            Err(bad(&format!("`by` names `{c}`, which is not a column")))
-                        }
-                    })
-                    .collect::<Result<Vec<_>>>()?;
-                (CutoffGroups::Groups, resolved)
+                (CutoffGroups::Groups, list.clone())
             }
         };
-        let variables = spec
+        Ok(Treatment {
+            method,
+            variables: spec.variables.clone(),
+            lower,
+            upper,
+            by,
+            groups,
+        })
+    }
+
+    /// The names of the variables and grouping columns mapped to the panel's columns
+    /// (`resolve` maps canonical names), each checked to exist.
+    pub fn resolve(
+        self,
+        resolve: impl Fn(&str) -> String,
+        columns: &[String],
+    ) -> Result<Treatment> {
+        let setting = self.method.setting();
+        let bad = |message: String| Error::Setting { setting, message };
+        let groups = self
+            .groups
+            .iter()
+            .map(|c| {
+                let r = resolve(c);
+                if columns.contains(&r) {
+                    Ok(r)
+                } else {
+                    Err(bad(format!("`by` names `{c}`, which is not a column")))
+                }
+            })
+            .collect::<Result<Vec<_>>>()?;
+        let variables = self
             .variables
             .iter()
             .map(|v| {
@@ -105,19 +125,16 @@ impl Treatment {
                 if columns.contains(&r) {
                     Ok(r)
                 } else {
-                    Err(bad(&format!(
+                    Err(bad(format!(
                         "names `{v}`, which is not a column or derived variable"
                     )))
                 }
             })
             .collect::<Result<_>>()?;
         Ok(Treatment {
-            method,
             variables,
-            lower,
-            upper,
-            by,
             groups,
+            ..self
         })
     }
 

@@ -3,76 +3,20 @@
 //! the firm-years in both that changed beyond a tolerance, with a change ledger (CSV) and a
 //! summary in the report formats. One full join on the keys, computed by polars.
 
-use std::collections::BTreeMap;
-use std::path::{Path, PathBuf};
+use std::path::Path;
 
 use polars::prelude::*;
 use serde::Serialize;
 
 use crate::bundle::Manifest;
-use crate::config::{InputConfig, ReportFormat};
+use crate::config::InputConfig;
+pub use crate::config::{CompareConfig, Side, Tolerance};
 use crate::report::{level, strings, Block, Page, Section};
 use crate::{Error, Result};
 
 mod page;
 
 pub(crate) use page::page;
-
-/// One side of a comparison.
-#[derive(Debug, Clone)]
-pub enum Side {
-    /// A raw file, read as `audit` reads it.
-    Raw(Box<InputConfig>),
-    /// A bundle folder written by `build`: its cleaned panel and dictionary.
-    Bundle(PathBuf),
-}
-
-/// When a numeric cell counts as changed: |new − old| > absolute + relative · |old|.
-#[derive(Debug, Clone, Serialize)]
-pub struct Tolerance {
-    /// Absolute part, for every column without its own.
-    pub absolute: f64,
-    /// Relative part, for every column without its own.
-    pub relative: f64,
-    /// Per-column (absolute, relative) overrides.
-    pub by_column: BTreeMap<String, (f64, f64)>,
-}
-
-impl Default for Tolerance {
-    fn default() -> Self {
-        Tolerance {
-            absolute: 0.0,
-            relative: 1e-9,
-            by_column: BTreeMap::new(),
-        }
-    }
-}
-
-impl Tolerance {
-    fn of(&self, column: &str) -> (f64, f64) {
-        self.by_column
-            .get(column)
-            .copied()
-            .unwrap_or((self.absolute, self.relative))
-    }
-}
-
-/// `compare` settings.
-#[derive(Debug, Clone)]
-pub struct CompareConfig {
-    /// The earlier vintage.
-    pub old: Side,
-    /// The later vintage.
-    pub new: Side,
-    /// When a number counts as changed.
-    pub tolerance: Tolerance,
-    /// How to print the summary.
-    pub format: ReportFormat,
-    /// Write the summary here instead of stdout.
-    pub report: Option<PathBuf>,
-    /// Write the change ledger (CSV) here.
-    pub changes: Option<PathBuf>,
-}
 
 /// One vintage as compared.
 #[derive(Debug, Clone, Serialize)]

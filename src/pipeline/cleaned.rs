@@ -71,8 +71,8 @@ pub(super) fn cleaned_figures(
         }
     }
     // Model readiness on the panel that will be estimated; its warnings about absorbed
-    // regressors read the variation of that same panel.
-    audit::model::Model.run(&ctx, &mut r)?;
+    // regressors read the variation of that same panel, just computed.
+    r.model = audit::model::readiness(&ctx, &r.variation)?;
     Ok((
         Cleaned {
             panel: r.panel,

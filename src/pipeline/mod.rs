@@ -22,7 +22,7 @@ mod settings;
 
 use cleaned::cleaned_figures;
 use dictionary::dictionary;
-use settings::{level_columns, model_effects, resolve_policy, settings};
+use settings::{level_columns, typed, Typed};
 
 /// `audit` is a dry run of `build`: the same steps on the same rules, nothing written. The one
 /// difference: where the duplicate policy is `fail`, `audit` keeps the conflicting rows and
@@ -93,23 +93,17 @@ pub struct DictionaryEntry {
 pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<Prepared> {
     progress.stage("reading the input");
     let rules = &input.rules;
-    // Every setting of `[clean]` is checked before any data is read, by both commands.
-    let policy = match (
-        mode,
-        DuplicatePolicy::parse(rules.file.clean.duplicates.as_deref())?,
-    ) {
-        (Mode::Audit, DuplicatePolicy::Fail) => DuplicatePolicy::Report,
-        (_, p) => resolve_policy(p, input),
-    };
-    let singletons = SingletonPolicy::parse(rules.file.clean.drop_singletons.as_ref())?;
-    let balance = Balance::parse(rules.file.clean.balance.as_ref())?;
-    let slip_policy = repair::SlipPolicy::parse(rules.file.repair.unit_slips.as_deref())?;
-    if rules.file.panel.year_end_cutoff.is_some_and(|m| m > 12) {
-        return Err(Error::Setting {
-            setting: "[panel] year_end_cutoff",
-            message: "a month, 0 to 12 (0: a fiscal year is the calendar year of its end)".into(),
-        });
-    }
+    // Every value of the rules file is checked before any file is read, by both commands.
+    let Typed {
+        policy,
+        singletons,
+        balance,
+        slips: slip_policy,
+        levels: verdict_levels,
+        settings,
+        effects,
+        treatments,
+    } = typed(input, mode)?;
     let corrections = match &rules.file.repair.corrections {
         Some(name) => {
             let base = assemble::rules_dir(rules);
@@ -140,7 +134,6 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
     progress.stage("key steps");
     let plan = Plan::new(rules, &columns)?;
     let (accounting_rules, skipped_rules) = accounting::compile(rules, &columns)?;
-    let verdict_levels = audit::verdict::Levels::from_rules(&rules.file)?;
     let keys = Keys {
         file: &input.path,
         entity: &input.entity,
@@ -339,10 +332,8 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
             });
         }
     }
-    let model = match &rules.file.model {
-        None => None,
-        Some(m) => {
-            let effects = model_effects(m.effects.as_ref(), input)?;
+    let model = match (&rules.file.model, effects) {
+        (Some(m), Some(effects)) => {
             let names: Vec<String> = std::iter::once(&m.outcome)
                 .chain(m.regressors.iter())
                 .map(resolve)
@@ -363,6 +354,7 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
                 effects,
             })
         }
+        _ => None,
     };
     let categorical: Vec<String> = rules
         .file
@@ -381,7 +373,6 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
             });
         }
     }
-    let settings = settings(rules)?;
     for c in &settings.group_columns {
         if panel.schema().get(c.as_str()).is_none() {
             return Err(Error::MissingColumn {
@@ -406,25 +397,22 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
         .iter()
         .map(|c| c.to_string())
         .collect();
-    let treat = &rules.file.clean;
-    let mut treatments = Vec::new();
-    for (method, spec) in [
-        (Method::Winsorize, &treat.winsorize),
-        (Method::Trim, &treat.trim),
-    ] {
-        if let Some(spec) = spec {
-            let t = Treatment::from_spec(method, spec, |v| resolve(&v.to_string()), &columns)?;
-            if let Some(c) = t.variables.iter().find(|v| categorical.contains(v)) {
-                return Err(Error::Setting {
-                    setting: "[clean] winsorize / trim",
-                    message: format!(
-                        "`{c}` is declared categorical in `[panel] categorical`: codes are never \
-                         winsorized or trimmed"
-                    ),
-                });
-            }
-            treatments.push(t);
-        }
+    let treatments = treatments
+        .into_iter()
+        .map(|t| t.resolve(|v| resolve(&v.to_string()), &columns))
+        .collect::<Result<Vec<_>>>()?;
+    if let Some(c) = treatments
+        .iter()
+        .flat_map(|t| &t.variables)
+        .find(|v| categorical.contains(v))
+    {
+        return Err(Error::Setting {
+            setting: "[clean] winsorize / trim",
+            message: format!(
+                "`{c}` is declared categorical in `[panel] categorical`: codes are never \
+                 winsorized or trimmed"
+            ),
+        });
     }
     // The report describes the panel as read (after the key steps and derivation).
     let ctx = Context::new(&panel, &input.entity, &input.period, options.clone())?;

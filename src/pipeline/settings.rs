@@ -137,3 +137,75 @@ pub(super) fn resolve_policy(policy: DuplicatePolicy, input: &InputConfig) -> Du
         p => p,
     }
 }
+
+/// Every value of the rules file that needs no data, typed: checked in one place, before any
+/// file is read, and identically for `audit` and `build`. Names of columns are checked as
+/// soon as the panel's columns are known.
+pub(super) struct Typed {
+    /// `[clean] duplicates` (`audit` turns `fail` into reporting).
+    pub policy: DuplicatePolicy,
+    /// `[clean] drop_singletons`.
+    pub singletons: SingletonPolicy,
+    /// `[clean] balance`.
+    pub balance: Balance,
+    /// `[repair] unit_slips`.
+    pub slips: repair::SlipPolicy,
+    /// `[verdict]` and `[thresholds] attrition_p`.
+    pub levels: audit::verdict::Levels,
+    /// `[thresholds]` and `[audit] outliers`.
+    pub settings: Settings,
+    /// `[model] effects`, when a model is declared.
+    pub effects: Option<Effects>,
+    /// `[clean] winsorize` and `trim`, in that order, names not yet resolved.
+    pub treatments: Vec<Treatment>,
+}
+
+/// Type and check every value of the rules file that needs no data.
+pub(super) fn typed(input: &InputConfig, mode: Mode) -> Result<Typed> {
+    let file = &input.rules.file;
+    let policy = match (
+        mode,
+        DuplicatePolicy::parse(file.clean.duplicates.as_deref())?,
+    ) {
+        (Mode::Audit, DuplicatePolicy::Fail) => DuplicatePolicy::Report,
+        (_, p) => resolve_policy(p, input),
+    };
+    let singletons = SingletonPolicy::parse(file.clean.drop_singletons.as_ref())?;
+    let balance = Balance::parse(file.clean.balance.as_ref())?;
+    let slips = repair::SlipPolicy::parse(file.repair.unit_slips.as_deref())?;
+    if file.panel.year_end_cutoff.is_some_and(|m| m > 12) {
+        return Err(Error::Setting {
+            setting: "[panel] year_end_cutoff",
+            message: "a month, 0 to 12 (0: a fiscal year is the calendar year of its end)".into(),
+        });
+    }
+    let mut treatments = Vec::new();
+    for (method, spec) in [
+        (Method::Winsorize, &file.clean.winsorize),
+        (Method::Trim, &file.clean.trim),
+    ] {
+        if let Some(spec) = spec {
+            treatments.push(Treatment::from_spec(method, spec)?);
+        }
+    }
+    for join in &file.join {
+        assemble::options(join)?;
+    }
+    for (rule, _) in &input.rules.accounting {
+        accounting::Action::parse(rule)?;
+    }
+    let effects = match &file.model {
+        Some(m) => Some(model_effects(m.effects.as_ref(), input)?),
+        None => None,
+    };
+    Ok(Typed {
+        policy,
+        singletons,
+        balance,
+        slips,
+        levels: audit::verdict::Levels::from_rules(file)?,
+        settings: settings(&input.rules)?,
+        effects,
+        treatments,
+    })
+}

@@ -11,6 +11,7 @@ use nalgebra::{DMatrix, DVector};
 use polars::prelude::*;
 use statrs::distribution::{ChiSquared, ContinuousCDF, FisherSnedecor, Normal};
 
+use super::verdict::{line, worst, CheckVerdict, Levels, Status};
 use super::{Check, Context};
 use crate::report::{ErrorSplit, ModelReport, Report, Slope, VariationLine};
 use crate::Result;
@@ -66,12 +67,69 @@ impl Check for Model {
         true
     }
 
+    /// Reads nothing of the report: the rules of thumb get the variation of the model's own
+    /// variables, computed here (see [`readiness`] to pass figures already computed).
     fn run(&self, ctx: &Context, report: &mut Report) -> Result<()> {
-        if let Some(spec) = &ctx.model {
-            let model = diagnose(ctx, spec, &report.variation)?;
-            report.model = Some(model);
-        }
+        let Some(spec) = &ctx.model else {
+            return Ok(());
+        };
+        let names: Vec<String> = std::iter::once(&spec.outcome)
+            .chain(&spec.regressors)
+            .cloned()
+            .collect();
+        let numeric: Vec<String> = ctx
+            .numeric
+            .iter()
+            .filter(|v| names.contains(v))
+            .cloned()
+            .collect();
+        let mut variation = super::variation::lines(ctx, &numeric)?;
+        variation.extend(
+            super::variation::categorical(ctx)?
+                .into_iter()
+                .filter(|l| names.contains(&l.variable)),
+        );
+        report.model = readiness(ctx, &variation)?;
         Ok(())
+    }
+
+    fn verdict(&self, r: &Report, lv: &Levels) -> Option<CheckVerdict> {
+        use Status::*;
+        let m = r.model.as_ref()?;
+        let not_identified: Vec<&String> = m
+            .not_identified
+            .iter()
+            .chain(&m.not_identified_within)
+            .collect();
+        let mut findings = Vec::new();
+        if !not_identified.is_empty() {
+            findings.push((
+                lv.absorbed_regressor,
+                format!(
+                    "not identified by every estimator: {}",
+                    not_identified
+                        .iter()
+                        .map(|s| s.as_str())
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                ),
+            ));
+        }
+        let thumbs = m.warnings.len().saturating_sub(not_identified.len());
+        if thumbs > 0 {
+            findings.push((lv.model_warnings, format!("{thumbs} rules of thumb apply")));
+        }
+        Some(if m.questions.iter().all(|q| q.tests.is_empty()) {
+            line(
+                "Model readiness",
+                Fail,
+                "no diagnostic could be computed".into(),
+            )
+        } else if findings.is_empty() {
+            line("Model readiness", Pass, "no rule of thumb applies".into())
+        } else {
+            worst("Model readiness", findings)
+        })
     }
 }
 
@@ -87,6 +145,15 @@ pub(crate) fn upper_tail(stat: f64, sf: impl FnOnce(f64) -> Option<f64>) -> Opti
         return None;
     }
     sf(stat).filter(|p| p.is_finite())
+}
+
+/// Model readiness of the declared model on `ctx`'s panel, given the variation lines of that
+/// same panel (at least those of the model's variables); none without a model.
+pub fn readiness(ctx: &Context, variation: &[VariationLine]) -> Result<Option<ModelReport>> {
+    ctx.model
+        .as_ref()
+        .map(|spec| diagnose(ctx, spec, variation))
+        .transpose()
 }
 
 fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Result<ModelReport> {

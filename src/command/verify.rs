@@ -1,7 +1,42 @@
 //! `verify`: re-run a bundle from its manifest's input and rules (or relocated copies,
 //! recognised by their hashes) and compare every output hash.
 
-use super::*;
+use std::fs;
+use std::path::{Path, PathBuf};
+
+use crate::bundle::{file_name, sha256_file, sha256_hex, Manifest};
+use crate::config::{BuildConfig, InputConfig, Relocated};
+use crate::rules::Rules;
+use crate::{Error, Result};
+
+use super::{build::build, stdout_write};
+
+/// Run `verify`; exit 1 when an output changed or was not rebuilt bit for bit.
+pub fn run(dir: &Path, moved: &Relocated) -> Result<i32> {
+    let v = verify(dir, moved)?;
+    let mut msg = String::new();
+    if let Some(version) = &v.other_version {
+        msg.push_str(&format!(
+            "note: the bundle was made by panelready {version}, this is {}\n",
+            env!("CARGO_PKG_VERSION")
+        ));
+    }
+    for f in &v.changed {
+        msg.push_str(&format!("changed since it was written: {f}\n"));
+    }
+    for f in &v.not_reproduced {
+        msg.push_str(&format!("not reproduced by a fresh build: {f}\n"));
+    }
+    let ok = v.changed.is_empty() && v.not_reproduced.is_empty();
+    if ok {
+        msg.push_str(&format!(
+            "{}: every output matches its manifest hash and was rebuilt bit for bit\n",
+            dir.display()
+        ));
+    }
+    stdout_write(msg.as_bytes())?;
+    Ok(if ok { 0 } else { 1 })
+}
 
 /// What `verify` found.
 #[derive(Debug, Clone, Default)]
@@ -14,25 +49,9 @@ pub struct Verification {
     pub other_version: Option<String>,
 }
 
-/// Where `verify` finds the files a bundle was built from, when they are not where the
-/// manifest says they were (another machine, another folder).
-#[derive(Debug, Clone, Default)]
-pub struct Relocated {
-    /// The raw input.
-    pub input: Option<PathBuf>,
-    /// The rules file.
-    pub rules: Option<PathBuf>,
-}
-
 /// Checks that `path` holds the file the manifest recorded, by its hash; `what` and the
 /// recorded name go into the message.
-pub(super) fn recognise(
-    path: &Path,
-    sha256: &str,
-    what: &str,
-    name: &str,
-    given: bool,
-) -> Result<()> {
+fn recognise(path: &Path, sha256: &str, what: &str, name: &str, given: bool) -> Result<()> {
     let hash = sha256_file(path).map_err(|e| Error::VerifyInput {
         path: path.to_path_buf(),
         message: if given {
@@ -167,7 +186,7 @@ pub fn verify(dir: &Path, moved: &Relocated) -> Result<Verification> {
         panel_csv: manifest.outputs.iter().any(|o| o.path == "panel.csv"),
         fail_on: None,
     };
-    let rebuilt = crate::build(&cfg);
+    let rebuilt = build(&cfg);
     let _ = fs::remove_dir_all(&scratch);
     let rebuilt = rebuilt?;
     for out in &manifest.outputs {
@@ -179,7 +198,7 @@ pub fn verify(dir: &Path, moved: &Relocated) -> Result<Verification> {
     Ok(found)
 }
 
-pub(super) fn link_or_copy(from: &Path, to: &Path) -> Result<()> {
+fn link_or_copy(from: &Path, to: &Path) -> Result<()> {
     let from = std::path::absolute(from).map_err(Error::io(from))?;
     #[cfg(unix)]
     let made = std::os::unix::fs::symlink(&from, to);
@@ -188,7 +207,7 @@ pub(super) fn link_or_copy(from: &Path, to: &Path) -> Result<()> {
     made.map_err(Error::io(to))
 }
 
-pub(super) fn tempdir_beside(dir: &Path) -> Result<PathBuf> {
+fn tempdir_beside(dir: &Path) -> Result<PathBuf> {
     let parent = std::path::absolute(dir)
         .map_err(Error::io(dir))?
         .parent()

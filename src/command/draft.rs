@@ -1,0 +1,31 @@
+//! `panelready rules draft`: a starter rules file guessed from a raw file.
+
+use crate::config::DraftConfig;
+use crate::{bundle, draft, load, Result};
+
+use super::stdout_write;
+
+/// Run `rules draft`.
+pub fn run(cfg: &DraftConfig) -> Result<i32> {
+    let df = load::read_raw(&cfg.data, cfg.format, &cfg.csv, cfg.sheet.as_deref())?;
+    let name = cfg
+        .data
+        .file_name()
+        .map(|n| n.to_string_lossy().to_string())
+        .unwrap_or_default();
+    let text = draft::draft(&df, &name)?;
+    match &cfg.out {
+        Some(path) => {
+            bundle::write_atomic(path, text.as_bytes())?;
+            stdout_write(
+                format!(
+                    "wrote {}: check every guess before building\n",
+                    path.display()
+                )
+                .as_bytes(),
+            )?;
+        }
+        None => stdout_write(text.as_bytes())?,
+    }
+    Ok(0)
+}
