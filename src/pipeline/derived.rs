@@ -1,0 +1,33 @@
+//! Stage 5, derived variables: the rules' expressions in dependency order, lags by looking
+//! at the nearby rows of the sorted panel (or by a join where keys repeat), each variable's
+//! null reasons counted.
+
+use super::*;
+
+/// The panel with its derived columns (row number, raw columns, derived columns, in that
+/// order, still sorted by entity, period and row), and the derived variables' report lines.
+pub(super) fn derive(
+    panel: DataFrame,
+    plan: &Plan,
+    columns: &[String],
+    layout: Layout,
+    input: &InputConfig,
+) -> Result<(DataFrame, Vec<crate::report::DerivedSummary>)> {
+    // Sorted by entity, period and row since the key steps: joins keep the panel's order,
+    // repairs and rules only filter or change cells.
+    let (lf, hidden) = plan.apply(panel.lazy(), &input.entity, &input.period, layout);
+    let with_hidden = lf.collect()?;
+    let derived = plan.null_counts(&with_hidden)?;
+    let mut order = vec![col(ROW)];
+    order.extend(columns.iter().map(|c| col(c.as_str())));
+    order.extend(plan.vars.iter().map(|v| col(v.name.as_str())));
+    let mut panel = with_hidden.lazy().drop(cols(hidden)).select(order);
+    if layout == Layout::Any {
+        // The joins of the lag columns may reorder rows; sorted lags keep the order.
+        panel = panel.sort(
+            [input.entity.as_str(), input.period.as_str(), ROW],
+            Default::default(),
+        );
+    }
+    Ok((panel.collect()?, derived))
+}

@@ -1,0 +1,116 @@
+//! Between derivation and the checks: every column the rules name checked against the
+//! derived panel, and what the checks look at (compared variables, levels, categorical
+//! columns, the model, the thresholds) gathered into `Options`; the treatments' names
+//! resolved.
+
+use super::*;
+
+/// Options of the checks from the rules file and the panel's columns.
+pub(super) fn options(
+    panel: &DataFrame,
+    plan: &Plan,
+    columns: &[String],
+    levels: Vec<String>,
+    settings: Settings,
+    effects: Option<Effects>,
+    input: &InputConfig,
+) -> Result<Options> {
+    let rules = &input.rules;
+    let resolve = |c: &String| rules.resolve(c);
+    let missing = |column: &String, context: &str| Error::MissingColumn {
+        file: input.path.clone(),
+        column: column.clone(),
+        context: context.into(),
+    };
+    let compare: Vec<String> = match &rules.file.audit.compare {
+        Some(list) => list.iter().map(resolve).collect(),
+        None => plan.vars.iter().map(|v| v.name.clone()).collect(),
+    };
+    if let Some(c) = compare
+        .iter()
+        .find(|c| panel.schema().get(c.as_str()).is_none())
+    {
+        return Err(missing(c, "named in `[audit] compare`"));
+    }
+    let model = match (&rules.file.model, effects) {
+        (Some(m), Some(effects)) => {
+            let names: Vec<String> = std::iter::once(&m.outcome)
+                .chain(m.regressors.iter())
+                .map(resolve)
+                .collect();
+            if let Some(c) = names
+                .iter()
+                .find(|c| panel.schema().get(c.as_str()).is_none())
+            {
+                return Err(missing(c, "named in `[model]`"));
+            }
+            Some(ModelSpec {
+                outcome: names[0].clone(),
+                regressors: names[1..].to_vec(),
+                lagged_outcome: m.lagged_outcome,
+                effects,
+            })
+        }
+        _ => None,
+    };
+    let categorical: Vec<String> = rules
+        .file
+        .panel
+        .categorical
+        .iter()
+        .flatten()
+        .map(resolve)
+        .collect();
+    if let Some(c) = categorical.iter().find(|c| !columns.contains(c)) {
+        return Err(missing(c, "named in `[panel] categorical`"));
+    }
+    if let Some(c) = settings
+        .group_columns
+        .iter()
+        .find(|c| panel.schema().get(c.as_str()).is_none())
+    {
+        return Err(missing(c, "named in `[audit] outliers` by"));
+    }
+    Ok(Options {
+        compare,
+        levels,
+        exclude: vec![ROW.to_string()],
+        categorical,
+        settings,
+        model,
+        reach: plan.reach(),
+    })
+}
+
+/// The treatments' variables and groups resolved to the panel's columns; a categorical
+/// column is never treated.
+pub(super) fn treatments(
+    treatments: Vec<Treatment>,
+    panel: &DataFrame,
+    categorical: &[String],
+    rules: &Rules,
+) -> Result<Vec<Treatment>> {
+    let columns: Vec<String> = panel
+        .get_column_names()
+        .iter()
+        .map(|c| c.to_string())
+        .collect();
+    let treatments = treatments
+        .into_iter()
+        .map(|t| t.resolve(|v| rules.resolve(v), &columns))
+        .collect::<Result<Vec<_>>>()?;
+    if let Some(c) = treatments
+        .iter()
+        .flat_map(|t| &t.variables)
+        .find(|v| categorical.contains(v))
+    {
+        return Err(Error::Setting {
+            setting: "[clean] winsorize / trim",
+            message: format!(
+                "`{c}` is declared categorical in `[panel] categorical`: codes are never \
+                 winsorized or trimmed"
+            ),
+        });
+    }
+    Ok(treatments)
+}

@@ -1,0 +1,46 @@
+//! The panel between the stages: its rows, the steps of the sample's construction so far,
+//! and the rows each step moved to the rejects ledger.
+
+use super::*;
+
+/// The panel as the stages pass it on.
+pub(super) struct Sample<'a> {
+    /// The rows kept so far, sorted by entity, period and row number.
+    pub panel: DataFrame,
+    /// One line per step that removed or changed rows.
+    pub steps: Vec<SampleStep>,
+    /// The rows removed, in ledger form, one frame per step.
+    pub ledger: Vec<DataFrame>,
+    /// The entity column (steps count the entities left).
+    pub entity: &'a str,
+}
+
+impl Sample<'_> {
+    /// Record a step that left the panel as it is now.
+    pub fn step(&mut self, name: &str) -> Result<()> {
+        let line = SampleStep::after(&self.steps, name, &self.panel, self.entity)?;
+        self.steps.push(line);
+        Ok(())
+    }
+
+    /// Record a step that moved `removed` (ledger-shaped) out of the panel.
+    pub fn removed(&mut self, name: &str, removed: DataFrame) -> Result<()> {
+        self.ledger.push(removed);
+        self.step(name)
+    }
+
+    /// Apply a step that may remove rows: `f` returns the rows kept and those removed.
+    pub fn filter(
+        &mut self,
+        name: &str,
+        f: impl FnOnce(DataFrame) -> Result<(DataFrame, Option<DataFrame>)>,
+    ) -> Result<()> {
+        let panel = std::mem::take(&mut self.panel);
+        let (rest, removed) = f(panel)?;
+        self.panel = rest;
+        match removed {
+            Some(removed) => self.removed(name, removed),
+            None => Ok(()),
+        }
+    }
+}
