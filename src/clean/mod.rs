@@ -125,11 +125,16 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
         .collect()?;
     let rows_read = raw.height() as u64;
     // Sorted once: the rows of a key sit together, and entities can be counted by their runs.
-    let df = raw
-        .lazy()
-        .filter(e_null.or(p_null).not())
-        .sort([entity, period, ROW], Default::default())
-        .collect()?;
+    // Files usually arrive in key order already; then the rows (numbered in file order) are
+    // sorted by entity, period and row as they stand, and the sort is skipped.
+    let df = raw.lazy().filter(e_null.or(p_null).not()).collect()?;
+    let df = if in_key_order(&df, entity, period)? {
+        df
+    } else {
+        df.lazy()
+            .sort([entity, period, ROW], Default::default())
+            .collect()?
+    };
     let entities_kept = sorted_distinct(&df, entity)?;
     // An entity seen only on rows missing their period counts among the entities read.
     let only_missing = entities_only_in(&missing, &df, entity)?;
@@ -315,6 +320,26 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
         },
         steps,
     })
+}
+
+/// Whether every row's (entity, period) is at or after the previous row's: the frame is in
+/// key order (ties in file order, which is the row numbers' order).
+fn in_key_order(df: &DataFrame, entity: &str, period: &str) -> Result<bool> {
+    let (e, p) = (col(entity), col(period));
+    let at_or_after = e
+        .clone()
+        .gt(e.clone().shift(lit(1)))
+        .or(e
+            .clone()
+            .eq(e.shift(lit(1)))
+            .and(p.clone().gt_eq(p.shift(lit(1)))))
+        .fill_null(lit(true));
+    let s = df
+        .clone()
+        .lazy()
+        .select([at_or_after.all(true).alias("ordered")])
+        .collect()?;
+    Ok(s.column("ordered")?.bool()?.get(0) == Some(true))
 }
 
 /// The position column of the rows looked at for copies and conflicts.
@@ -504,6 +529,37 @@ mod tests {
             "x" => [1.0, 1.0, 5.0, 2.0, 3.0, 4.0, 9.0],
         )
         .unwrap()
+    }
+
+    #[test]
+    fn rows_already_in_key_order_come_out_as_a_sorted_frame_would() {
+        // The frame is in key order once its missing keys are set aside; reversed, it is not
+        // and must be sorted. Both give the same rows in the same order.
+        let columns = ["firm", "year", "x"].map(String::from);
+        let keys = Keys {
+            file: std::path::Path::new("t.csv"),
+            entity: "firm",
+            period: "year",
+            columns: &columns,
+        };
+        let ordered = frame();
+        assert!(
+            in_key_order(&ordered.drop_nulls::<String>(None).unwrap(), "firm", "year").unwrap()
+        );
+        let reversed = ordered.reverse();
+        assert!(!in_key_order(
+            &reversed.drop_nulls::<String>(None).unwrap(),
+            "firm",
+            "year"
+        )
+        .unwrap());
+        let a = resolve_keys(ordered, &keys, &DuplicatePolicy::KeepLast).unwrap();
+        let b = resolve_keys(reversed, &keys, &DuplicatePolicy::KeepLast).unwrap();
+        assert!(a.kept.equals_missing(&b.kept), "{}\n{}", a.kept, b.kept);
+        assert_eq!(
+            a.kept.column(ROW).unwrap().u32().unwrap().to_vec(),
+            vec![Some(1), Some(3), Some(6)]
+        );
     }
 
     fn run(policy: DuplicatePolicy) -> Result<KeyResult> {
