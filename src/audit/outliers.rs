@@ -7,7 +7,7 @@ use rayon::prelude::*;
 
 use super::verdict::{line as verdict_line, worst, CheckVerdict, Levels, Status};
 use super::{unit_slips, Check, Context, Settings};
-use crate::core::{type7, PanelCore, Values};
+use crate::core::{type7, type7_many, PanelCore, Values};
 pub use crate::report::CutoffGroups;
 use crate::report::{OutlierLine, Report};
 use crate::Result;
@@ -97,6 +97,7 @@ fn line(
     // A group needs 1 / (the smaller tail) values for its own cutoffs (100 at 1%).
     let smallest = (1.0 / lo.min(1.0 - hi)).ceil() as u64;
     let mut fallback = None;
+    let mut median: Option<Option<f64>> = None;
     let (lower, upper, min_group) = match (s.by, groups) {
         (CutoffGroups::Groups, Some(codes)) => {
             // Per group; a group too small, or a row without a group, takes the pooled cutoffs
@@ -124,7 +125,10 @@ fn line(
             (None, None, all.len() as u64)
         }
         (CutoffGroups::Pooled | CutoffGroups::Groups, _) => {
-            let (l, u) = (type7(&mut all, lo), type7(&mut all, hi));
+            // The cutoffs and the median (for the robust z below) in one nested selection.
+            let q = type7_many(&mut all, &[lo, hi, 0.5]);
+            median = Some(q[2]);
+            let (l, u) = (q[0], q[1]);
             for v in &all {
                 below += u64::from(l.is_some_and(|l| *v < l));
                 above += u64::from(u.is_some_and(|u| *v > u));
@@ -149,7 +153,10 @@ fn line(
         }
     };
     // Robust z from the pooled median and MAD; with a MAD of zero nothing is counted.
-    let median = type7(&mut all, 0.5);
+    let median = match median {
+        Some(m) => m,
+        None => type7(&mut all, 0.5),
+    };
     let mad = median.and_then(|m| {
         let mut dev: Vec<f64> = all.iter().map(|v| (v - m).abs()).collect();
         type7(&mut dev, 0.5).map(|d| d * MAD_SCALE)

@@ -129,6 +129,9 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
     // sorted by entity, period and row as they stand, and the sort is skipped.
     let df = raw.lazy().filter(e_null.or(p_null).not()).collect()?;
     let df = if in_key_order(&df, entity, period)? {
+        // One chunk per column, as the sort would leave it: later steps work on whole columns.
+        let mut df = df;
+        df.rechunk_mut_par();
         df
     } else {
         df.lazy()
