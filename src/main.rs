@@ -4,6 +4,12 @@
 
 use std::panic;
 
+/// The allocator: the checks allocate and free a column-sized buffer per variable, and the
+/// engine many more; the system allocator hands each back to the kernel and faults it in
+/// again, which cost about a quarter of the time at 10 million rows.
+#[global_allocator]
+static ALLOCATOR: mimalloc::MiMalloc = mimalloc::MiMalloc;
+
 /// The exit code of a run that ended in a panic (an internal error).
 const PANIC_EXIT: i32 = 3;
 
