@@ -157,15 +157,16 @@ fn line(
         Some(m) => m,
         None => type7(&mut all, 0.5),
     };
-    let mad = median.and_then(|m| {
-        let mut dev: Vec<f64> = all.iter().map(|v| (v - m).abs()).collect();
-        type7(&mut dev, 0.5).map(|d| d * MAD_SCALE)
-    });
-    let robust_z_beyond = match (median, mad) {
-        (Some(m), Some(d)) if d > 0.0 => all
-            .iter()
-            .filter(|v| ((*v - m) / d).abs() > s.robust_z)
-            .count() as u64,
+    // The absolute deviations replace the values in place (no second column-sized buffer);
+    // |v - m| / d is exactly |(v - m) / d|, so the count is the one the z-scores give.
+    if let Some(m) = median {
+        for v in all.iter_mut() {
+            *v = (*v - m).abs();
+        }
+    }
+    let mad = median.and_then(|_| type7(&mut all, 0.5).map(|d| d * MAD_SCALE));
+    let robust_z_beyond = match mad {
+        Some(d) if d > 0.0 => all.iter().filter(|dev| *dev / d > s.robust_z).count() as u64,
         _ => 0,
     };
     OutlierLine {
