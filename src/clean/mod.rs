@@ -127,11 +127,18 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
     // Sorted once: the rows of a key sit together, and entities can be counted by their runs.
     // Files usually arrive in key order already; then the rows (numbered in file order) are
     // sorted by entity, period and row as they stand, and the sort is skipped.
-    let df = raw.lazy().filter(e_null.or(p_null).not()).collect()?;
+    // Without a missing key (the usual case) the rows stay where they are: no copy.
+    let keyless = raw.column(entity)?.null_count() + raw.column(period)?.null_count();
+    let df = if keyless == 0 {
+        raw
+    } else {
+        raw.lazy().filter(e_null.or(p_null).not()).collect()?
+    };
     let df = if in_key_order(&df, entity, period)? {
-        // One chunk per column, as the sort would leave it: later steps work on whole columns.
+        // One chunk per column, as the sort would leave it: later steps work on whole
+        // columns. Column by column, so that only one column is held twice at a time.
         let mut df = df;
-        df.rechunk_mut_par();
+        df.rechunk_mut();
         df
     } else {
         df.lazy()
@@ -406,22 +413,31 @@ pub fn drop_where(
     step: &str,
     k: &Keys,
 ) -> Result<(DataFrame, DataFrame)> {
-    let marked = df.lazy().with_column(reason.alias(REASON)).collect()?;
+    let mut marked = df.lazy().with_column(reason.alias(REASON)).collect()?;
+    let hit = marked.column(REASON)?.is_not_null();
     let removed = marked
-        .clone()
+        .filter(&hit)?
         .lazy()
-        .filter(col(REASON).is_not_null())
         .with_columns([
             lit(step.to_string()).alias(STEP),
             lit(NULL).cast(IDX_DTYPE).alias(RELATED),
         ])
         .collect()?;
-    let kept = marked
-        .lazy()
-        .filter(col(REASON).is_null())
-        .drop(cols([REASON]))
-        .collect()?;
+    marked.drop_in_place(REASON)?;
+    let kept = keep_rows(marked, &!hit)?;
     Ok((kept, ledger(removed, k.columns)?))
+}
+
+/// The rows of `df` where `keep` is true, one column at a time, each column let go once
+/// filtered: the panel is never held twice (a frame-wide filter holds old and new whole).
+pub fn keep_rows(df: DataFrame, keep: &BooleanChunked) -> Result<DataFrame> {
+    let height = keep.sum().unwrap_or(0) as usize;
+    let columns = df
+        .into_columns()
+        .into_iter()
+        .map(|c| c.filter(keep))
+        .collect::<PolarsResult<Vec<_>>>()?;
+    Ok(DataFrame::new(height, columns)?)
 }
 
 /// Which singletons `build` drops.
