@@ -554,13 +554,6 @@ mod tests {
     fn rows_already_in_key_order_come_out_as_a_sorted_frame_would() {
         // The frame is in key order once its missing keys are set aside; reversed, it is not
         // and must be sorted. Both give the same rows in the same order.
-        let columns = ["firm", "year", "x"].map(String::from);
-        let keys = Keys {
-            file: std::path::Path::new("t.csv"),
-            entity: "firm",
-            period: "year",
-            columns: &columns,
-        };
         let ordered = frame();
         assert!(
             in_key_order(&ordered.drop_nulls::<String>(None).unwrap(), "firm", "year").unwrap()
@@ -572,8 +565,8 @@ mod tests {
             "year"
         )
         .unwrap());
-        let a = resolve_keys(ordered, &keys, &DuplicatePolicy::KeepLast).unwrap();
-        let b = resolve_keys(reversed, &keys, &DuplicatePolicy::KeepLast).unwrap();
+        let a = run_on(ordered, DuplicatePolicy::KeepLast).unwrap();
+        let b = run_on(reversed, DuplicatePolicy::KeepLast).unwrap();
         assert!(a.kept.equals_missing(&b.kept), "{}\n{}", a.kept, b.kept);
         assert_eq!(
             a.kept.column(ROW).unwrap().u32().unwrap().to_vec(),
@@ -582,6 +575,10 @@ mod tests {
     }
 
     fn run(policy: DuplicatePolicy) -> Result<KeyResult> {
+        run_on(frame(), policy)
+    }
+
+    fn run_on(df: DataFrame, policy: DuplicatePolicy) -> Result<KeyResult> {
         let columns = ["firm", "year", "x"].map(String::from);
         let keys = Keys {
             file: std::path::Path::new("t.csv"),
@@ -589,7 +586,7 @@ mod tests {
             period: "year",
             columns: &columns,
         };
-        resolve_keys(frame(), &keys, &policy)
+        resolve_keys(df, &keys, &policy)
     }
 
     fn rows(df: &DataFrame) -> Vec<u32> {
