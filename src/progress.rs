@@ -1,10 +1,11 @@
 //! Progress on stderr for the long stages (load, derive, each check family, write): a
-//! spinner with the stage's name, shown only when stderr is a terminal and `--quiet` is not
-//! set, so logs and pipes stay clean; and, with `--timings`, the wall time of each stage on
-//! stderr at the end.
+//! spinner with the stage's name and its time so far, and for the checks that go through the
+//! variables a few at a time, a bar with the variables done, the total and the time left.
+//! Shown only when stderr is a terminal and `--quiet` is not set, so logs and pipes stay
+//! clean; and, with `--timings`, the wall time of each stage on stderr at the end.
 
-use std::cell::RefCell;
 use std::io::IsTerminal;
+use std::sync::Mutex;
 use std::time::{Duration, Instant};
 
 use indicatif::{ProgressBar, ProgressStyle};
@@ -13,22 +14,19 @@ use indicatif::{ProgressBar, ProgressStyle};
 pub struct Progress {
     bar: Option<ProgressBar>,
     /// Stages begun so far, when timings were asked for.
-    stages: Option<RefCell<Vec<(String, Instant)>>>,
+    stages: Option<Mutex<Vec<(String, Instant)>>>,
 }
 
 impl Progress {
     /// A spinner when stderr is a terminal and `quiet` is false; with `timings`, a table of
     /// each stage's wall time on stderr when the run ends.
     pub fn new(quiet: bool, timings: bool) -> Progress {
-        let stages = timings.then(|| RefCell::new(Vec::new()));
+        let stages = timings.then(|| Mutex::new(Vec::new()));
         if quiet || !std::io::stderr().is_terminal() {
             return Progress { bar: None, stages };
         }
         let bar = ProgressBar::new_spinner();
-        bar.set_style(
-            ProgressStyle::with_template("{spinner} {msg} ({elapsed})")
-                .unwrap_or_else(|_| ProgressStyle::default_spinner()),
-        );
+        bar.set_style(spinner());
         bar.enable_steady_tick(Duration::from_millis(120));
         Progress {
             bar: Some(bar),
@@ -39,10 +37,40 @@ impl Progress {
     /// Name the stage now running (it ends when the next begins).
     pub fn stage(&self, name: &str) {
         if let Some(bar) = &self.bar {
+            bar.set_style(spinner());
+            bar.set_length(0);
+            bar.set_position(0);
+            bar.reset_elapsed();
+            bar.reset_eta();
             bar.set_message(name.to_string());
         }
         if let Some(stages) = &self.stages {
-            stages.borrow_mut().push((name.to_string(), Instant::now()));
+            if let Ok(mut stages) = stages.lock() {
+                stages.push((name.to_string(), Instant::now()));
+            }
+        }
+    }
+
+    /// The running stage goes through `total` items (variables): show a bar from now on.
+    pub fn items(&self, total: usize) {
+        if let Some(bar) = &self.bar {
+            bar.set_length(total as u64);
+            bar.set_position(0);
+            bar.reset_eta();
+            bar.set_style(
+                ProgressStyle::with_template(
+                    "{spinner} {msg} [{bar:24}] {pos}/{len} variables, {eta} left ({elapsed})",
+                )
+                .map(|s| s.progress_chars("=> "))
+                .unwrap_or_else(|_| spinner()),
+            );
+        }
+    }
+
+    /// `n` more items of the running stage are done.
+    pub fn done(&self, n: usize) {
+        if let Some(bar) = &self.bar {
+            bar.inc(n as u64);
         }
     }
 
@@ -51,7 +79,9 @@ impl Progress {
         let Some(stages) = &self.stages else {
             return Vec::new();
         };
-        let stages = stages.borrow();
+        let Ok(stages) = stages.lock() else {
+            return Vec::new();
+        };
         let end = Instant::now();
         stages
             .iter()
@@ -62,6 +92,12 @@ impl Progress {
             })
             .collect()
     }
+}
+
+/// The spinner of a stage without a count.
+fn spinner() -> ProgressStyle {
+    ProgressStyle::with_template("{spinner} {msg} ({elapsed})")
+        .unwrap_or_else(|_| ProgressStyle::default_spinner())
 }
 
 impl Drop for Progress {

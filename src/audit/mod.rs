@@ -132,6 +132,8 @@ pub struct Context<'a> {
     /// With outlier cutoffs by groups: each row's group (`NO_GROUP` where a grouping value is
     /// missing).
     pub outlier_groups: Option<Vec<u32>>,
+    /// Where a check that goes through the variables a few at a time reports how far it is.
+    progress: Option<&'a crate::progress::Progress>,
 }
 
 /// A context's key frames and codes, kept when its panel is let go.
@@ -313,7 +315,28 @@ impl<'a> Context<'a> {
             entities,
             core,
             outlier_groups,
+            progress: None,
         })
+    }
+
+    /// The same context, reporting the checks' progress through the variables to `progress`.
+    pub fn with_progress(mut self, progress: &'a crate::progress::Progress) -> Context<'a> {
+        self.progress = Some(progress);
+        self
+    }
+
+    /// The running check will go through `total` variables.
+    pub fn items(&self, total: usize) {
+        if let Some(p) = self.progress {
+            p.items(total);
+        }
+    }
+
+    /// `n` more variables of the running check are done.
+    pub fn done(&self, n: usize) {
+        if let Some(p) = self.progress {
+            p.done(n);
+        }
     }
 
     /// The keys, codes and shared frames, without the panel: for a panel with the same rows

@@ -29,6 +29,7 @@ impl Check for Outliers {
         // Typed kernels over the panel core, variables in parallel: each order statistic by
         // selection (no full sort), each count in one pass.
         // A few variables at a time, so that memory holds a few columns' values, not all.
+        ctx.items(vars.len() + ctx.levels.len());
         for batch in vars.chunks(crate::core::BATCH) {
             let values: Vec<Values> = batch
                 .iter()
@@ -40,6 +41,7 @@ impl Check for Outliers {
                 .map(|(v, x)| line(&ctx.core, ctx.outlier_groups.as_deref(), v, x, s))
                 .collect();
             report.outliers.extend(lines);
+            ctx.done(batch.len());
         }
         let found = unit_slips::search(ctx)?;
         for (v, jumps) in found.jumps {

@@ -68,6 +68,7 @@ pub(super) fn search(ctx: &Context) -> Result<Search> {
     for batch in levels.chunks(crate::core::BATCH) {
         let part: Vec<Found> = batch.par_iter().map(one).collect::<Result<_>>()?;
         found.extend(part);
+        ctx.done(batch.len());
     }
     let entity = ctx.df.column(ctx.entity)?.cast(&DataType::String)?;
     let entity = entity.str()?;

@@ -25,6 +25,7 @@ pub(super) fn lines(ctx: &Context, vars: &[String]) -> Result<Vec<VariationLine>
     // A few variables at a time, so that memory holds a few columns' values, not all.
     let core = &ctx.core;
     let mut lines: Vec<VariationLine> = Vec::with_capacity(vars.len());
+    ctx.items(vars.len());
     for batch in vars.chunks(crate::core::BATCH) {
         let values: Vec<Values> = batch
             .iter()
@@ -36,6 +37,7 @@ pub(super) fn lines(ctx: &Context, vars: &[String]) -> Result<Vec<VariationLine>
                 .zip(values.par_iter())
                 .map(|(v, x)| line(core, v, x, ctx.settings.nearly_absorbed)),
         );
+        ctx.done(batch.len());
     }
     Ok(lines)
 }

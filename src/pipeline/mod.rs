@@ -177,7 +177,8 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
 
     // The checks describe the panel as read (after the key steps, repairs, rules and
     // derivation).
-    let ctx = Context::new(&panel, &input.entity, &input.period, options.clone())?;
+    let ctx = Context::new(&panel, &input.entity, &input.period, options.clone())?
+        .with_progress(progress);
     for check in audit::registry() {
         if check.cleaned_only() {
             continue;
