@@ -94,6 +94,7 @@ fn line(
     s: &Settings,
 ) -> OutlierLine {
     let (lo, hi) = (s.lower, s.upper);
+    let x = x.view();
     let mut all = x.present();
     let (mut below, mut above) = (0u64, 0u64);
     // A group needs 1 / (the smaller tail) values for its own cutoffs (100 at 1%).

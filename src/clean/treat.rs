@@ -392,7 +392,8 @@ impl Treatment {
         let mut counts = Vec::new();
         let mut current = df;
         for (i, v) in self.variables.iter().enumerate() {
-            let x = Values::of(&df_before, v)?;
+            let values = Values::of(&df_before, v)?;
+            let x = values.view();
             let mut groups: Vec<Vec<f64>> = vec![Vec::new(); nt];
             for (r, value) in x.iter() {
                 groups[group(r)].push(value);
