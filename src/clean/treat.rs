@@ -104,33 +104,29 @@ impl Treatment {
         columns: &[String],
     ) -> Result<Treatment> {
         let setting = self.method.setting();
-        let bad = |message: String| Error::Setting { setting, message };
-        let groups = self
-            .groups
-            .iter()
-            .map(|c| {
-                let r = resolve(c);
-                if columns.contains(&r) {
-                    Ok(r)
-                } else {
-                    Err(bad(format!("`by` names `{c}`, which is not a column")))
-                }
-            })
-            .collect::<Result<Vec<_>>>()?;
-        let variables = self
-            .variables
-            .iter()
-            .map(|v| {
-                let r = resolve(v);
-                if columns.contains(&r) {
-                    Ok(r)
-                } else {
-                    Err(bad(format!(
-                        "names `{v}`, which is not a column or derived variable"
-                    )))
-                }
-            })
-            .collect::<Result<_>>()?;
+        // Each name mapped and checked; `missing` says what a name that is no column was.
+        let all = |names: &[String], missing: &dyn Fn(&str) -> String| {
+            names
+                .iter()
+                .map(|name| {
+                    let r = resolve(name);
+                    if columns.contains(&r) {
+                        Ok(r)
+                    } else {
+                        Err(Error::Setting {
+                            setting,
+                            message: missing(name),
+                        })
+                    }
+                })
+                .collect::<Result<Vec<_>>>()
+        };
+        let groups = all(&self.groups, &|c| {
+            format!("`by` names `{c}`, which is not a column")
+        })?;
+        let variables = all(&self.variables, &|v| {
+            format!("names `{v}`, which is not a column or derived variable")
+        })?;
         Ok(Treatment {
             variables,
             groups,
