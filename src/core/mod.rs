@@ -10,6 +10,12 @@ use polars::prelude::*;
 
 use crate::Result;
 
+mod quantile;
+mod values;
+
+pub use quantile::{type7, type7_many};
+pub use values::{Values, View};
+
 /// How many variables the kernels hold in memory at once (several per core, few enough that
 /// memory holds a handful of columns' values rather than the whole panel's).
 pub const BATCH: usize = 4;
@@ -356,30 +362,6 @@ impl PanelCore {
     }
 }
 
-/// The `p` quantile of `v` by linear interpolation between order statistics (Hyndman & Fan
-/// type 7, numpy's default): position (n − 1) p in the sorted values. Reorders `v`; NaN sorts
-/// above every number, as the engine sorts it. None when `v` is empty.
-pub fn type7(v: &mut [f64], p: f64) -> Option<f64> {
-    let n = v.len();
-    if n == 0 {
-        return None;
-    }
-    let h = (n - 1) as f64 * p;
-    let lo = (h.floor() as usize).min(n - 1);
-    let (_, a, above) = v.select_nth_unstable_by(lo, f64::total_cmp);
-    let a = *a;
-    let frac = h - lo as f64;
-    if frac <= 0.0 || above.is_empty() {
-        return Some(a);
-    }
-    let b = above
-        .iter()
-        .copied()
-        .min_by(f64::total_cmp)
-        .expect("not empty");
-    Some(a + (b - a) * frac)
-}
-
 /// Hashing of the period-set masks in `two_way`: the mask folded to 64 bits and mixed by the
 /// SplitMix64 finalizer. The default SipHash, keyed against hostile input that a mask of our
 /// own making cannot be, cost more than the rest of the loop over the entities.
@@ -410,173 +392,6 @@ impl std::hash::Hasher for MaskHasher {
     }
     fn write_u128(&mut self, x: u128) {
         self.0 ^= (x as u64) ^ ((x >> 64) as u64).rotate_left(32);
-    }
-}
-
-/// Type-7 quantiles of `v` at each of `ps`, the same values `type7` gives one at a time, from
-/// one nested selection: each order statistic needed is selected within the part the earlier
-/// selections left it in, so three quantiles cost about two passes of selection over `v`, not
-/// three. `v` is reordered.
-pub fn type7_many(v: &mut [f64], ps: &[f64]) -> Vec<Option<f64>> {
-    let n = v.len();
-    if n == 0 {
-        return vec![None; ps.len()];
-    }
-    let at = |p: f64| {
-        let h = (n - 1) as f64 * p;
-        let lo = (h.floor() as usize).min(n - 1);
-        (lo, h - lo as f64)
-    };
-    let mut ks: Vec<usize> = ps
-        .iter()
-        .flat_map(|p| {
-            let (lo, _) = at(*p);
-            [lo, (lo + 1).min(n - 1)]
-        })
-        .collect();
-    ks.sort_unstable();
-    ks.dedup();
-    select_each(v, &ks);
-    ps.iter()
-        .map(|p| {
-            let (lo, frac) = at(*p);
-            let a = v[lo];
-            if frac <= 0.0 || lo + 1 >= n {
-                Some(a)
-            } else {
-                Some(a + (v[lo + 1] - a) * frac)
-            }
-        })
-        .collect()
-}
-
-/// Put the `k`-th smallest value (by `total_cmp`) at position `k` for every `k` of the sorted
-/// `ks`, by selecting the middle one and recursing into either side.
-fn select_each(v: &mut [f64], ks: &[usize]) {
-    if ks.is_empty() {
-        return;
-    }
-    let mid = ks.len() / 2;
-    let k = ks[mid];
-    let (left, _, right) = v.select_nth_unstable_by(k, f64::total_cmp);
-    select_each(left, &ks[..mid]);
-    let beyond: Vec<usize> = ks[mid + 1..].iter().map(|x| x - k - 1).collect();
-    select_each(right, &beyond);
-}
-
-/// One variable's values in row order, as f64, and which rows have one. A column that is
-/// already f64 in one chunk without nulls is shared, not copied (no column-sized buffer).
-#[derive(Debug, Clone, Default)]
-pub struct Values {
-    /// The shared column, when it can be read in place.
-    shared: Option<Float64Chunked>,
-    /// The values otherwise (0.0 where absent).
-    v: Vec<f64>,
-    /// Whether each row has a value; None when every row has one.
-    ok: Option<Vec<bool>>,
-}
-
-/// Values borrowed for a pass over the rows: the slice and the presence flags.
-#[derive(Debug, Clone, Copy)]
-pub struct View<'a> {
-    v: &'a [f64],
-    ok: Option<&'a [bool]>,
-}
-
-impl<'a> View<'a> {
-    /// The value of row `r`, if present.
-    pub fn get(&self, r: usize) -> Option<f64> {
-        match self.ok {
-            None => Some(self.v[r]),
-            Some(ok) => ok[r].then(|| self.v[r]),
-        }
-    }
-
-    /// Rows with a value and the value, in row order.
-    pub fn iter(&self) -> impl Iterator<Item = (usize, f64)> + 'a {
-        let ok = self.ok;
-        self.v
-            .iter()
-            .enumerate()
-            .filter(move |(r, _)| ok.is_none_or(|ok| ok[*r]))
-            .map(|(r, v)| (r, *v))
-    }
-
-    /// The values present, in row order.
-    pub fn present(&self) -> Vec<f64> {
-        match self.ok {
-            None => self.v.to_vec(),
-            Some(_) => self.iter().map(|(_, v)| v).collect(),
-        }
-    }
-}
-
-impl Values {
-    /// The values of a column cast to f64 (nulls are absent; NaN is a value).
-    pub fn new(x: &Float64Chunked) -> Values {
-        if x.null_count() == 0 {
-            if x.cont_slice().is_ok() {
-                return Values {
-                    shared: Some(x.clone()),
-                    v: Vec::new(),
-                    ok: None,
-                };
-            }
-            // No nulls: copy the buffers chunk by chunk, no per-value branching.
-            let mut v = Vec::with_capacity(x.len());
-            for chunk in x.downcast_iter() {
-                v.extend_from_slice(chunk.values().as_slice());
-            }
-            return Values {
-                shared: None,
-                v,
-                ok: None,
-            };
-        }
-        let mut v = Vec::with_capacity(x.len());
-        let mut ok = Vec::with_capacity(x.len());
-        for a in x.iter() {
-            v.push(a.unwrap_or(0.0));
-            ok.push(a.is_some());
-        }
-        Values {
-            shared: None,
-            v,
-            ok: Some(ok),
-        }
-    }
-
-    /// The values of column `name` of `df`, cast to f64.
-    pub fn of(df: &DataFrame, name: &str) -> Result<Values> {
-        let c = df.column(name)?.cast(&DataType::Float64)?;
-        Ok(Values::new(c.f64()?))
-    }
-
-    /// The values for a pass over the rows (take it once, outside the loop).
-    pub fn view(&self) -> View<'_> {
-        let v = match &self.shared {
-            Some(c) => c.cont_slice().unwrap_or(&[]),
-            None => &self.v,
-        };
-        View {
-            v,
-            ok: self.ok.as_deref(),
-        }
-    }
-
-    /// The values present, in row order.
-    pub fn present(&self) -> Vec<f64> {
-        self.view().present()
-    }
-
-    /// The value of row `r`, if present (in a loop, take `view()` once instead).
-    pub fn get(&self, r: usize) -> Option<f64> {
-        self.view().get(r)
-    }
-
-    /// Rows with a value and the value, in row order.
-    pub fn iter(&self) -> impl Iterator<Item = (usize, f64)> + '_ {
-        self.view().iter()
     }
 }
 
@@ -701,69 +516,6 @@ mod tests {
         let c = core(&["A", "A", "A", "B", "B", "D"], &[1, 2, 2, 1, 2, 1]);
         assert_eq!(c.two_way_singletons(), 1);
         assert_eq!(c.two_way_kept(), [true, true, true, true, true, false]);
-    }
-
-    #[test]
-    fn values_read_in_place_copied_or_with_nulls_look_the_same() {
-        // One chunk without nulls is shared; two chunks are copied; nulls are flagged.
-        let one = Float64Chunked::from_slice("x".into(), &[1.0, f64::NAN, 3.0]);
-        let mut two = Float64Chunked::from_slice("x".into(), &[1.0, f64::NAN]);
-        two.append(&Float64Chunked::from_slice("x".into(), &[3.0]))
-            .unwrap();
-        assert_eq!(two.chunks().len(), 2);
-        let bits =
-            |x: &Values| -> Vec<(usize, u64)> { x.iter().map(|(r, v)| (r, v.to_bits())).collect() };
-        let (a, b) = (Values::new(&one), Values::new(&two));
-        assert!(a.shared.is_some() && b.shared.is_none());
-        assert_eq!(bits(&a), bits(&b));
-        assert_eq!(a.get(2), Some(3.0));
-        let gaps = Float64Chunked::from_slice_options("x".into(), &[Some(1.0), None, Some(3.0)]);
-        let c = Values::new(&gaps);
-        assert_eq!(c.iter().collect::<Vec<_>>(), vec![(0, 1.0), (2, 3.0)]);
-        assert_eq!((c.get(1), c.present()), (None, vec![1.0, 3.0]));
-    }
-
-    #[test]
-    fn many_quantiles_at_once_equal_each_one_alone() {
-        // Against `type7` itself (checked by hand below): sizes 1 to 300, ties, NaN and both
-        // zeros, the probabilities the outlier check asks for and the extremes.
-        let mut seed = 0x2545_f491_4f6c_dd1du64;
-        let mut next = || {
-            seed ^= seed << 13;
-            seed ^= seed >> 7;
-            seed ^= seed << 17;
-            seed
-        };
-        let ps = [0.01, 0.99, 0.5, 0.0, 1.0, 0.25];
-        for n in 1..300usize {
-            let v: Vec<f64> = (0..n)
-                .map(|_| match next() % 20 {
-                    0 => f64::NAN,
-                    1 => -0.0,
-                    2 => 0.0,
-                    r => (next() % 50) as f64 / (r as f64),
-                })
-                .collect();
-            let many = type7_many(&mut v.clone(), &ps);
-            for (p, q) in ps.iter().zip(&many) {
-                let one = type7(&mut v.clone(), *p);
-                assert_eq!(one.map(f64::to_bits), q.map(f64::to_bits), "n {n}, p {p}");
-            }
-        }
-        assert_eq!(type7_many(&mut [], &[0.5]), vec![None]);
-    }
-
-    #[test]
-    fn type7_quantiles_match_hand_worked_values() {
-        // Sorted 1, 2, 3, 4: position 3 p. p = 0.5 -> 2.5; p = 0.1 -> 1.3; p = 1 -> 4
-        // (numpy.percentile's default method gives the same, by hand).
-        let q = |p: f64| type7(&mut [4.0, 1.0, 3.0, 2.0], p).unwrap();
-        assert!((q(0.5) - 2.5).abs() < 1e-12);
-        assert!((q(0.1) - 1.3).abs() < 1e-12);
-        assert_eq!(q(1.0), 4.0);
-        assert_eq!(q(0.0), 1.0);
-        assert_eq!(type7(&mut [], 0.5), None);
-        assert_eq!(type7(&mut [7.0], 0.99), Some(7.0));
     }
 
     #[test]

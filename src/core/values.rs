@@ -1,0 +1,147 @@
+//! One variable's values as the kernels read them: a plain f64 slice in row order beside the
+//! rows that have a value, shared with the column when it needs no conversion.
+
+use polars::prelude::*;
+
+use crate::Result;
+
+/// One variable's values in row order, as f64, and which rows have one. A column that is
+/// already f64 in one chunk without nulls is shared, not copied (no column-sized buffer).
+#[derive(Debug, Clone, Default)]
+pub struct Values {
+    /// The shared column, when it can be read in place.
+    shared: Option<Float64Chunked>,
+    /// The values otherwise (0.0 where absent).
+    v: Vec<f64>,
+    /// Whether each row has a value; None when every row has one.
+    ok: Option<Vec<bool>>,
+}
+
+/// Values borrowed for a pass over the rows: the slice and the presence flags.
+#[derive(Debug, Clone, Copy)]
+pub struct View<'a> {
+    v: &'a [f64],
+    ok: Option<&'a [bool]>,
+}
+
+impl<'a> View<'a> {
+    /// The value of row `r`, if present.
+    pub fn get(&self, r: usize) -> Option<f64> {
+        match self.ok {
+            None => Some(self.v[r]),
+            Some(ok) => ok[r].then(|| self.v[r]),
+        }
+    }
+
+    /// Rows with a value and the value, in row order.
+    pub fn iter(&self) -> impl Iterator<Item = (usize, f64)> + 'a {
+        let ok = self.ok;
+        self.v
+            .iter()
+            .enumerate()
+            .filter(move |(r, _)| ok.is_none_or(|ok| ok[*r]))
+            .map(|(r, v)| (r, *v))
+    }
+
+    /// The values present, in row order.
+    pub fn present(&self) -> Vec<f64> {
+        match self.ok {
+            None => self.v.to_vec(),
+            Some(_) => self.iter().map(|(_, v)| v).collect(),
+        }
+    }
+}
+
+impl Values {
+    /// The values of a column cast to f64 (nulls are absent; NaN is a value).
+    pub fn new(x: &Float64Chunked) -> Values {
+        if x.null_count() == 0 {
+            if x.cont_slice().is_ok() {
+                return Values {
+                    shared: Some(x.clone()),
+                    v: Vec::new(),
+                    ok: None,
+                };
+            }
+            // No nulls: copy the buffers chunk by chunk, no per-value branching.
+            let mut v = Vec::with_capacity(x.len());
+            for chunk in x.downcast_iter() {
+                v.extend_from_slice(chunk.values().as_slice());
+            }
+            return Values {
+                shared: None,
+                v,
+                ok: None,
+            };
+        }
+        let mut v = Vec::with_capacity(x.len());
+        let mut ok = Vec::with_capacity(x.len());
+        for a in x.iter() {
+            v.push(a.unwrap_or(0.0));
+            ok.push(a.is_some());
+        }
+        Values {
+            shared: None,
+            v,
+            ok: Some(ok),
+        }
+    }
+
+    /// The values of column `name` of `df`, cast to f64.
+    pub fn of(df: &DataFrame, name: &str) -> Result<Values> {
+        let c = df.column(name)?.cast(&DataType::Float64)?;
+        Ok(Values::new(c.f64()?))
+    }
+
+    /// The values for a pass over the rows (take it once, outside the loop).
+    pub fn view(&self) -> View<'_> {
+        let v = match &self.shared {
+            Some(c) => c.cont_slice().unwrap_or(&[]),
+            None => &self.v,
+        };
+        View {
+            v,
+            ok: self.ok.as_deref(),
+        }
+    }
+
+    /// The values present, in row order.
+    pub fn present(&self) -> Vec<f64> {
+        self.view().present()
+    }
+
+    /// The value of row `r`, if present (in a loop, take `view()` once instead).
+    pub fn get(&self, r: usize) -> Option<f64> {
+        self.view().get(r)
+    }
+
+    /// Rows with a value and the value, in row order.
+    pub fn iter(&self) -> impl Iterator<Item = (usize, f64)> + '_ {
+        self.view().iter()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn values_read_in_place_copied_or_with_nulls_look_the_same() {
+        // One chunk without nulls is shared; two chunks are copied; nulls are flagged.
+        let one = Float64Chunked::from_slice("x".into(), &[1.0, f64::NAN, 3.0]);
+        let mut two = Float64Chunked::from_slice("x".into(), &[1.0, f64::NAN]);
+        two.append(&Float64Chunked::from_slice("x".into(), &[3.0]))
+            .unwrap();
+        assert_eq!(two.chunks().len(), 2);
+        let bits =
+            |x: &Values| -> Vec<(usize, u64)> { x.iter().map(|(r, v)| (r, v.to_bits())).collect() };
+        let (a, b) = (Values::new(&one), Values::new(&two));
+        assert!(a.shared.is_some() && b.shared.is_none());
+        assert_eq!(bits(&a), bits(&b));
+        assert_eq!(a.get(2), Some(3.0));
+        let gaps = Float64Chunked::from_slice_options("x".into(), &[Some(1.0), None, Some(3.0)]);
+        let c = Values::new(&gaps);
+        assert_eq!(c.iter().collect::<Vec<_>>(), vec![(0, 1.0), (2, 3.0)]);
+        assert_eq!((c.get(1), c.present()), (None, vec![1.0, 3.0]));
+    }
+}
