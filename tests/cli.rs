@@ -586,21 +586,27 @@ fn audit_rejects_exactly_the_rules_files_build_rejects() {
         "winsorize = { variables = [\"nosuch\"], lower = 0.01, upper = 0.99 }",
         "trim = { variables = [\"a\"], lower = 0.2, upper = 0.1 }",
     ];
-    for value in clean_values {
-        w.write(
-            "rules.toml",
-            &format!("[panel]\nentity = \"firm\"\nperiod = \"year\"\n[clean]\n{value}\n"),
-        );
+    // Both commands on the same rules: both refuse with the same line, or both accept.
+    // Returns whether they refused.
+    let both = |rules: String, label: &str| -> bool {
+        w.write("rules.toml", &rules);
         let audit = w.run(&["audit", "raw.csv", "--rules", "rules.toml"]);
         let build = w.run(&["build", "raw.csv", "--rules", "rules.toml", "--out", "b"]);
         assert_eq!(
             audit.code == 2,
             build.code == 2,
-            "{value}: {} / {}",
+            "{label}: {} / {}",
             audit.stderr,
             build.stderr
         );
-        assert_eq!(audit.stderr, build.stderr, "{value}");
+        assert_eq!(audit.stderr, build.stderr, "{label}");
+        audit.code == 2
+    };
+    for value in clean_values {
+        both(
+            format!("[panel]\nentity = \"firm\"\nperiod = \"year\"\n[clean]\n{value}\n"),
+            value,
+        );
     }
     // Joined files: the same settings and errors for both commands.
     w.write("t.csv", "firm,sector\nA,x\nB,y\nB,z\n");
@@ -613,24 +619,14 @@ fn audit_rejects_exactly_the_rules_files_build_rejects() {
         "on = [\"firm\"]\nduplicates = \"keep-first\"\ncolumns = [\"a\"]",
     ];
     for (i, join) in joins.iter().enumerate() {
-        w.write(
-            "rules.toml",
-            &format!(
+        let refused = both(
+            format!(
                 "[panel]\nentity = \"firm\"\nperiod = \"year\"\n[[join]]\nfile = \"t.csv\"\n{join}\n"
             ),
+            join,
         );
-        let audit = w.run(&["audit", "raw.csv", "--rules", "rules.toml"]);
-        let build = w.run(&["build", "raw.csv", "--rules", "rules.toml", "--out", "b"]);
-        assert_eq!(
-            audit.code == 2,
-            build.code == 2,
-            "{join}: {} / {}",
-            audit.stderr,
-            build.stderr
-        );
-        assert_eq!(audit.stderr, build.stderr, "{join}");
         // The first is accepted (B's repeated key kept first); every other one is an error.
-        assert_eq!(audit.code == 2, i > 0, "{join}: {}", audit.stderr);
+        assert_eq!(refused, i > 0, "{join}");
     }
 }
 
