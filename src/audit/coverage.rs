@@ -6,8 +6,11 @@ use polars::prelude::*;
 
 use super::names::*;
 use super::verdict::{line, worst, CheckVerdict, Levels, Status};
-use super::{scalar_f64, scalar_u64, Check, Context};
-use crate::report::{CoverageGrid, Distribution, GridRow, Report, Shape};
+use super::{own, scalar_f64, scalar_u64, Check, Context};
+use crate::report::layout::{num, pairs, strings, Block, Section};
+use crate::report::{
+    Coverage as Figures, CoverageGrid, Distribution, Finding, GridRow, Report, Shape,
+};
 use crate::Result;
 
 /// How many coverage shapes the report lists.
@@ -21,7 +24,7 @@ impl Check for Coverage {
         "coverage"
     }
 
-    fn run(&self, ctx: &Context, report: &mut Report) -> Result<()> {
+    fn run(&self, ctx: &Context) -> Result<Box<dyn Finding>> {
         let n = col(N).cast(DataType::Float64);
         let s = ctx
             .entities
@@ -48,31 +51,46 @@ impl Check for Coverage {
             ])
             .collect()?;
         let f = |c: &str| -> Result<f64> { Ok(scalar_f64(&s, c)?.unwrap_or(0.0)) };
-        let c = &mut report.coverage;
-        c.entities_with_gaps = scalar_u64(&s, "with_gaps")?;
-        c.gap_periods = scalar_u64(&s, "gap_periods")?;
-        c.longest_gap = scalar_u64(&s, "longest")?;
-        c.singletons = scalar_u64(&s, "singletons")?;
-        c.spells = scalar_u64(&s, "spells")?;
-        c.per_entity = Distribution {
-            min: f("min")?,
-            q1: f("q1")?,
-            median: f("median")?,
-            q3: f("q3")?,
-            max: f("max")?,
-            mean: f("mean")?,
+        let (shapes, distinct_shapes) = shapes(&ctx.entities)?;
+        let c = Figures {
+            entities_with_gaps: scalar_u64(&s, "with_gaps")?,
+            gap_periods: scalar_u64(&s, "gap_periods")?,
+            longest_gap: scalar_u64(&s, "longest")?,
+            singletons: scalar_u64(&s, "singletons")?,
+            singletons_two_way: ctx.core.two_way_singletons(),
+            spells: scalar_u64(&s, "spells")?,
+            per_entity: Distribution {
+                min: f("min")?,
+                q1: f("q1")?,
+                median: f("median")?,
+                q3: f("q3")?,
+                max: f("max")?,
+                mean: f("mean")?,
+            },
+            shapes,
+            distinct_shapes,
+            grid: grid(ctx)?,
         };
-        let (shapes, distinct) = shapes(&ctx.entities)?;
-        c.shapes = shapes;
-        c.distinct_shapes = distinct;
-        c.singletons_two_way = ctx.core.two_way_singletons();
-        c.grid = grid(ctx)?;
-        Ok(())
+        Ok(Box::new(c))
+    }
+
+    fn on_cleaned(&self) -> bool {
+        true
+    }
+
+    /// Coverage counts keys: with the same rows, the cleaned panel's is the one as read.
+    fn after_treatment(
+        &self,
+        _ctx: &Context,
+        read: &dyn Finding,
+        _treated: &[String],
+    ) -> Result<Box<dyn Finding>> {
+        Ok(Box::new(own::<Figures>(read).cloned().unwrap_or_default()))
     }
 
     fn verdict(&self, r: &Report, lv: &Levels) -> Option<CheckVerdict> {
         use Status::*;
-        let c = &r.coverage;
+        let c = r.findings.get::<Figures>()?;
         let mut coverage = Vec::new();
         if c.entities_with_gaps > 0 {
             coverage.push((
@@ -88,6 +106,79 @@ impl Check for Coverage {
         } else {
             worst("Coverage", coverage)
         })
+    }
+}
+
+impl Finding for Figures {
+    fn entries(&self) -> Vec<(&'static str, &dyn crate::report::ToJson)> {
+        vec![("coverage", self)]
+    }
+
+    fn cleaned_entries(&self) -> Vec<(&'static str, &dyn crate::report::ToJson)> {
+        vec![("coverage", self)]
+    }
+
+    fn sections(&self, _report: &Report) -> Vec<Section> {
+        vec![section(self)]
+    }
+}
+
+fn shape_words(s: &Shape) -> String {
+    let span = if s.first == s.last {
+        format!("only {}", s.first)
+    } else {
+        format!("{} to {}", s.first, s.last)
+    };
+    match s.gap_periods {
+        0 => format!("{span}, no gaps"),
+        1 => format!("{span}, 1 period missing"),
+        g => format!("{span}, {g} periods missing"),
+    }
+}
+
+fn section(c: &Figures) -> Section {
+    let d = &c.per_entity;
+    let mut blocks = vec![pairs(&[
+        (
+            "observations per entity: min / q1 / median / q3 / max",
+            format!(
+                "{} / {} / {} / {} / {}",
+                num(d.min, 0),
+                num(d.q1, 2),
+                num(d.median, 1),
+                num(d.q3, 2),
+                num(d.max, 0)
+            ),
+        ),
+        ("observations per entity: mean", num(d.mean, 2)),
+        ("spells (runs of consecutive periods)", c.spells.to_string()),
+        ("entities with gaps", c.entities_with_gaps.to_string()),
+        ("periods missing inside spans", c.gap_periods.to_string()),
+        ("longest gap (periods)", c.longest_gap.to_string()),
+        ("singletons (one period only)", c.singletons.to_string()),
+        (
+            "rows lost to singletons under entity + period effects",
+            c.singletons_two_way.to_string(),
+        ),
+    ])];
+    if !c.shapes.is_empty() {
+        let rows = c
+            .shapes
+            .iter()
+            .map(|s| vec![shape_words(s), s.entities.to_string()])
+            .collect();
+        blocks.push(Block::Table(
+            strings(&["most common coverage", "entities"]),
+            rows,
+        ));
+        blocks.push(Block::Note(format!(
+            "{} distinct coverage shapes in all.",
+            c.distinct_shapes
+        )));
+    }
+    Section {
+        title: "Coverage",
+        blocks,
     }
 }
 

@@ -3,24 +3,15 @@
 use polars::prelude::*;
 
 use super::names::N;
-use super::{scalar_f64, Check, Context};
-use crate::report::{PanelSummary, Report};
+use super::{scalar_f64, Context};
+use crate::report::PanelSummary;
 use crate::Result;
 
-/// Rows, entities, periods and balance.
-pub struct Glance;
-
-impl Check for Glance {
-    fn name(&self) -> &'static str {
-        "panel at a glance"
-    }
-
-    fn run(&self, ctx: &Context, report: &mut Report) -> Result<()> {
-        let mut panel = summarize(ctx.df, ctx.entity, ctx.period, ctx.keys.height() as u64)?;
-        (panel.evenness_harmonic, panel.evenness_squares) = evenness(&ctx.entities)?;
-        report.panel = panel;
-        Ok(())
-    }
+/// The panel of `ctx` at a glance: rows, entities, periods, window, balance and evenness.
+pub fn panel_summary(ctx: &Context) -> Result<PanelSummary> {
+    let mut panel = summarize(ctx.df, ctx.entity, ctx.period, ctx.keys.height() as u64)?;
+    (panel.evenness_harmonic, panel.evenness_squares) = evenness(&ctx.entities)?;
+    Ok(panel)
 }
 
 /// How evenly the observations spread over the entities, from their counts `__n`; Ahrens &

@@ -4,8 +4,11 @@
 use polars::prelude::*;
 
 use super::verdict::{line, CheckVerdict, Levels, Status};
-use super::{Check, Context};
-use crate::report::{MissingBreak, MissingLine, Report};
+use super::{own, Check, Context};
+use crate::report::layout::{num, strings, Block, Section};
+use crate::report::{
+    Finding, MissingBreak, MissingByPeriod, MissingFigures as Figures, MissingLine, Report, ToJson,
+};
 use crate::Result;
 
 /// Missing values.
@@ -16,10 +19,11 @@ impl Check for Missing {
         "missing values"
     }
 
-    fn run(&self, ctx: &Context, report: &mut Report) -> Result<()> {
+    fn run(&self, ctx: &Context) -> Result<Box<dyn Finding>> {
+        let mut f = Figures::default();
         let vars = &ctx.variables;
         if vars.is_empty() || ctx.df.height() == 0 {
-            return Ok(());
+            return Ok(Box::new(f));
         }
         let rows = ctx.df.height() as f64;
         let counts = ctx
@@ -38,14 +42,14 @@ impl Check for Missing {
             if missing > 0 {
                 gappy.push(v.clone());
             }
-            report.missing.push(MissingLine {
+            f.lines.push(MissingLine {
                 variable: v.clone(),
                 missing,
                 share: missing as f64 / rows,
             });
         }
         if gappy.is_empty() {
-            return Ok(());
+            return Ok(Box::new(f));
         }
         let by_period = ctx
             .df
@@ -78,7 +82,7 @@ impl Check for Missing {
                 };
                 let structural = p0 < first + back || p1 > last - ahead;
                 if p1 == p0 + 1 && !structural && (b - a).abs() >= ctx.settings.missing_jump {
-                    report.missing_breaks.push(MissingBreak {
+                    f.breaks.push(MissingBreak {
                         variable: v.clone(),
                         period: p1,
                         share_before: a,
@@ -88,28 +92,41 @@ impl Check for Missing {
             }
             for i in 0..by_period.height() {
                 if let (Some(period), Some(share)) = (periods.get(i), shares.get(i)) {
-                    report
-                        .missing_by_period
-                        .push(crate::report::MissingByPeriod {
-                            variable: v.clone(),
-                            period,
-                            share,
-                        });
+                    f.by_period.push(MissingByPeriod {
+                        variable: v.clone(),
+                        period,
+                        share,
+                    });
                 }
             }
         }
-        Ok(())
+        Ok(Box::new(f))
+    }
+
+    fn on_cleaned(&self) -> bool {
+        true
+    }
+
+    /// Treatment changes values, never whether one is missing: the figures as read stand.
+    fn after_treatment(
+        &self,
+        _ctx: &Context,
+        read: &dyn Finding,
+        _treated: &[String],
+    ) -> Result<Box<dyn Finding>> {
+        Ok(Box::new(own::<Figures>(read).cloned().unwrap_or_default()))
     }
 
     fn verdict(&self, r: &Report, lv: &Levels) -> Option<CheckVerdict> {
         use Status::*;
-        Some(if r.missing.is_empty() {
+        let f = r.findings.get::<Figures>()?;
+        Some(if f.lines.is_empty() {
             line(
                 "Missing values",
                 NotChecked,
                 "no variable besides the keys".into(),
             )
-        } else if r.missing_breaks.is_empty() {
+        } else if f.breaks.is_empty() {
             line(
                 "Missing values",
                 Pass,
@@ -119,8 +136,70 @@ impl Check for Missing {
             line(
                 "Missing values",
                 lv.missing_breaks,
-                format!("{} coverage breaks between periods", r.missing_breaks.len()),
+                format!("{} coverage breaks between periods", f.breaks.len()),
             )
         })
+    }
+}
+
+impl Finding for Figures {
+    fn entries(&self) -> Vec<(&'static str, &dyn ToJson)> {
+        vec![
+            ("missing", &self.lines),
+            ("missing_by_period", &self.by_period),
+            ("missing_breaks", &self.breaks),
+        ]
+    }
+
+    fn cleaned_entries(&self) -> Vec<(&'static str, &dyn ToJson)> {
+        vec![("missing", &self.lines)]
+    }
+
+    fn sections(&self, _report: &Report) -> Vec<Section> {
+        vec![section(self)]
+    }
+}
+
+fn section(r: &Figures) -> Section {
+    let rows: Vec<Vec<String>> = r
+        .lines
+        .iter()
+        .filter(|m| m.missing > 0)
+        .map(|m| vec![m.variable.clone(), m.missing.to_string(), num(m.share, 3)])
+        .collect();
+    let mut blocks = if rows.is_empty() {
+        vec![Block::Note("No missing values.".into())]
+    } else {
+        vec![Block::Table(
+            strings(&["variable", "missing", "share"]),
+            rows,
+        )]
+    };
+    if !r.breaks.is_empty() {
+        let rows = r
+            .breaks
+            .iter()
+            .map(|b| {
+                vec![
+                    b.variable.clone(),
+                    b.period.to_string(),
+                    num(b.share_before, 3),
+                    num(b.share_after, 3),
+                ]
+            })
+            .collect();
+        blocks.push(Block::Table(
+            strings(&["coverage break", "period", "missing before", "missing from"]),
+            rows,
+        ));
+        blocks.push(Block::Note(
+            "A sharp change in the missing share between consecutive periods often marks a change \
+             of source or definition (or, for lags and growth rates, the window's first period)."
+                .into(),
+        ));
+    }
+    Section {
+        title: "Missing values",
+        blocks,
     }
 }

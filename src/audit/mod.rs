@@ -1,5 +1,7 @@
 //! The checks: one file per check family, each behind the small `Check` trait, run in the
-//! order of `registry()`. Checks compute and fill the `Report`; they never print.
+//! order of `registry()`. Each returns its finding (its figures, laid out by themselves) and
+//! writes its verdict line; none prints or writes into another's figures. The panel summary
+//! (`glance`) and model readiness (`model`) are computed beside the checks, not among them.
 
 pub mod accounting;
 mod attrition;
@@ -16,13 +18,14 @@ pub mod verdict;
 use polars::prelude::*;
 
 use crate::core::PanelCore;
-use crate::report::Report;
+use crate::report::{Finding, Findings, Report};
 use crate::Result;
+use verdict::CheckVerdict;
 
-pub use attrition::{welch, Attrition};
+pub use attrition::welch;
 pub use coverage::Coverage;
 pub use entry_exit::EntryExit;
-pub use glance::Glance;
+pub use glance::panel_summary;
 pub use missing::Missing;
 pub use outliers::{CutoffGroups, Outliers, MAD_SCALE};
 pub use variation::{Variation, ABSORBED_SHARE};
@@ -382,66 +385,59 @@ impl<'a> Context<'a> {
     }
 }
 
-/// One family of checks.
+/// One family of checks: it computes its finding (its own figures, which lay themselves out
+/// in the reports), and judges it.
 pub trait Check {
     /// A short name for progress and errors.
     fn name(&self) -> &'static str;
-    /// Compute the check's figures into `report`.
-    fn run(&self, ctx: &Context, report: &mut Report) -> Result<()>;
-    /// Whether `build` runs the check only on the cleaned panel (its figures describe what
-    /// will be estimated), not on the panel as read.
-    fn cleaned_only(&self) -> bool {
+    /// Compute the check's finding on the panel of `ctx`.
+    fn run(&self, ctx: &Context) -> Result<Box<dyn Finding>>;
+    /// Whether `build` reports the check's figures for the cleaned panel too (in
+    /// `report.cleaned`, beside the panel as read).
+    fn on_cleaned(&self) -> bool {
         false
+    }
+    /// The finding for the cleaned panel when cleaning kept every row in the same order and
+    /// changed only the values of the variables `treated` (winsorizing), from `read`, this
+    /// check's finding for the panel as read. By default computed again.
+    fn after_treatment(
+        &self,
+        ctx: &Context,
+        _read: &dyn Finding,
+        _treated: &[String],
+    ) -> Result<Box<dyn Finding>> {
+        self.run(ctx)
     }
     /// The check's line of the verdict, from the finished report at the configured levels;
     /// none for a check that only describes.
-    fn verdict(
-        &self,
-        _report: &Report,
-        _levels: &verdict::Levels,
-    ) -> Option<verdict::CheckVerdict> {
+    fn verdict(&self, _report: &Report, _levels: &verdict::Levels) -> Option<CheckVerdict> {
         None
     }
 }
 
-/// One line of the verdict from the finished report, or none.
-pub type VerdictLine = fn(&Report, &verdict::Levels) -> Option<verdict::CheckVerdict>;
-
-/// The verdict's lines in the order the reports list them: the key steps', the checks' in
-/// registry order, the accounting rules' (which act before derivation) before the model's.
-pub fn verdict_order() -> Vec<VerdictLine> {
-    vec![
-        verdict::keys,
-        |r, lv| Coverage.verdict(r, lv),
-        |r, lv| Attrition.verdict(r, lv),
-        |r, lv| Variation.verdict(r, lv),
-        |r, lv| Missing.verdict(r, lv),
-        |r, lv| Outliers.verdict(r, lv),
-        accounting::verdict,
-        |r, lv| model::Model.verdict(r, lv),
-    ]
+/// The finding of type `T` among `findings`, for a check reading back its own figures.
+pub(crate) fn own<T: Finding>(finding: &dyn Finding) -> Option<&T> {
+    (finding as &dyn std::any::Any).downcast_ref::<T>()
 }
 
-/// Every check, in report order.
+/// Every check, in report order: their findings, sections and verdict lines follow it.
 pub fn registry() -> Vec<Box<dyn Check>> {
     vec![
-        Box::new(Glance),
         Box::new(Coverage),
         Box::new(EntryExit),
-        Box::new(Attrition),
         Box::new(Variation),
         Box::new(Missing),
         Box::new(Outliers),
-        Box::new(model::Model),
     ]
 }
 
-/// Run every check.
-pub fn run_all(ctx: &Context, report: &mut Report) -> Result<()> {
+/// Run every check on the panel of `ctx`, in registry order.
+pub fn run_all(ctx: &Context) -> Result<Findings> {
+    let mut findings = Findings::default();
     for check in registry() {
-        check.run(ctx, report)?;
+        findings.push(check.run(ctx)?);
     }
-    Ok(())
+    Ok(findings)
 }
 
 /// Read one value of a one-row frame as f64.

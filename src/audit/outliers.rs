@@ -8,8 +8,9 @@ use rayon::prelude::*;
 use super::verdict::{line as verdict_line, worst, CheckVerdict, Levels, Status};
 use super::{unit_slips, Check, Context, Settings};
 use crate::core::{type7, type7_many, PanelCore, Values};
+use crate::report::layout::{opt_level, strings, Block, Section};
 pub use crate::report::CutoffGroups;
-use crate::report::{OutlierLine, Report};
+use crate::report::{Finding, OutlierLine, Report, ToJson, UnitSlip};
 use crate::Result;
 
 /// The MAD's scale for a normal distribution, 1 / Φ⁻¹(3/4).
@@ -18,12 +19,26 @@ pub const MAD_SCALE: f64 = 1.482_602_218_505_602;
 /// Outliers and unit slips.
 pub struct Outliers;
 
+/// The figures of the outlier and unit-slip check.
+#[derive(Debug, Clone, Default)]
+pub struct Figures {
+    /// Per numeric variable: values beyond the cutoffs and robust z-scores.
+    pub lines: Vec<OutlierLine>,
+    /// Suspected unit slips in level variables (at most 10,000 listed).
+    pub slips: Vec<UnitSlip>,
+    /// How many unit slips were found in all.
+    pub total: u64,
+    /// How many level variables were searched for unit slips.
+    pub searched: u64,
+}
+
 impl Check for Outliers {
     fn name(&self) -> &'static str {
         "outliers and unit slips"
     }
 
-    fn run(&self, ctx: &Context, report: &mut Report) -> Result<()> {
+    fn run(&self, ctx: &Context) -> Result<Box<dyn Finding>> {
+        let mut f = Figures::default();
         let s = &ctx.settings;
         let vars = &ctx.numeric;
         // Typed kernels over the panel core, variables in parallel: each order statistic by
@@ -40,36 +55,34 @@ impl Check for Outliers {
                 .zip(values.par_iter())
                 .map(|(v, x)| line(&ctx.core, ctx.outlier_groups.as_deref(), v, x, s))
                 .collect();
-            report.outliers.extend(lines);
+            f.lines.extend(lines);
             ctx.done(batch.len());
         }
         let found = unit_slips::search(ctx)?;
         for (v, jumps) in found.jumps {
-            if let Some(line) = report.outliers.iter_mut().find(|l| l.variable == v) {
+            if let Some(line) = f.lines.iter_mut().find(|l| l.variable == v) {
                 line.log_jumps = Some(jumps);
             }
         }
-        report.unit_slips_total = found.total;
-        report.unit_slips_searched = found.searched;
-        report.unit_slips = found.slips;
-        Ok(())
+        f.total = found.total;
+        f.searched = found.searched;
+        f.slips = found.slips;
+        Ok(Box::new(f))
     }
 
-    fn verdict(&self, r: &Report, lv: &Levels) -> Option<CheckVerdict> {
+    fn verdict(&self, report: &Report, lv: &Levels) -> Option<CheckVerdict> {
         use Status::*;
+        let r = report.findings.get::<Figures>()?;
         let mut outliers = Vec::new();
-        if r.unit_slips_total > 0 {
-            outliers.push((
-                lv.unit_slips,
-                format!("{} suspected unit slips", r.unit_slips_total),
-            ));
+        if r.total > 0 {
+            outliers.push((lv.unit_slips, format!("{} suspected unit slips", r.total)));
         }
-        if r.outliers.iter().any(|o| o.small_groups) {
+        if r.lines.iter().any(|o| o.small_groups) {
             outliers.push((Warn, "some periods are too small for their cutoffs".into()));
         }
         Some(if !outliers.is_empty() {
             worst("Outliers and unit slips", outliers)
-        } else if r.unit_slips_searched == 0 {
+        } else if r.searched == 0 {
             verdict_line(
                 "Outliers and unit slips",
                 NotChecked,
@@ -79,9 +92,174 @@ impl Check for Outliers {
             verdict_line(
                 "Outliers and unit slips",
                 Pass,
-                format!("no unit slips in {} level variables", r.unit_slips_searched),
+                format!("no unit slips in {} level variables", r.searched),
             )
         })
+    }
+}
+
+impl Finding for Figures {
+    fn entries(&self) -> Vec<(&'static str, &dyn ToJson)> {
+        vec![
+            ("outliers", &self.lines),
+            ("unit_slips", &self.slips),
+            ("unit_slips_total", &self.total),
+            ("unit_slips_searched", &self.searched),
+        ]
+    }
+
+    fn sections(&self, report: &Report) -> Vec<Section> {
+        vec![section(self, report)]
+    }
+}
+
+fn section(f: &Figures, r: &Report) -> Section {
+    let rows: Vec<Vec<String>> = f
+        .lines
+        .iter()
+        .map(|o| {
+            vec![
+                o.variable.clone(),
+                opt_level(o.lower),
+                opt_level(o.upper),
+                o.below.to_string(),
+                o.above.to_string(),
+                o.robust_z_beyond.to_string(),
+                o.log_jumps.map_or("–".into(), |j| j.to_string()),
+            ]
+        })
+        .collect();
+    let mut blocks = Vec::new();
+    if !rows.is_empty() {
+        let by = f.lines.first().map(|o| o.by);
+        blocks.push(Block::Table(
+            strings(&[
+                "variable",
+                "lower cut",
+                "upper cut",
+                "below",
+                "above",
+                "robust z beyond",
+                "log jumps",
+            ]),
+            rows,
+        ));
+        blocks.push(Block::Note(format!(
+            "Cutoffs are percentiles (linear interpolation, Hyndman-Fan type 7){}; robust z = \
+             (value - median) / (1.4826 MAD); log jumps count changes in the log level between \
+             consecutive periods of an entity beyond the threshold (level variables only).",
+            match by {
+                Some(CutoffGroups::Period) => ", computed per period (not listed)".to_string(),
+                Some(CutoffGroups::Groups) => format!(
+                    ", computed per group of {} (not listed); a group with fewer values than \
+                     1 / (the smaller tail), or a row without a group, takes the pooled cutoffs",
+                    f.lines
+                        .first()
+                        .map(|o| o.groups.join(" × "))
+                        .unwrap_or_default()
+                ),
+                _ => " over all rows".to_string(),
+            }
+        )));
+        if by == Some(CutoffGroups::Groups) {
+            let fell: Vec<String> = f
+                .lines
+                .iter()
+                .filter_map(|o| {
+                    o.pooled_fallback_groups
+                        .filter(|n| *n > 0)
+                        .map(|n| format!("{} {n}", o.variable))
+                })
+                .collect();
+            if !fell.is_empty() {
+                blocks.push(Block::Note(format!(
+                    "Groups on the pooled cutoffs (too few values): {}.",
+                    fell.join(", ")
+                )));
+            }
+        } else if f.lines.iter().any(|o| o.small_groups) {
+            blocks.push(Block::Note(
+                "Warning: some periods have fewer values than 1 / p, too few for those cutoffs."
+                    .into(),
+            ));
+        }
+    }
+    if f.slips.is_empty() {
+        blocks.push(Block::Note(
+            "No unit slips found in the level variables.".into(),
+        ));
+    } else {
+        let rows = f
+            .slips
+            .iter()
+            .take(20)
+            .map(|u| {
+                vec![
+                    u.entity.clone(),
+                    u.period.to_string(),
+                    u.variable.clone(),
+                    factor(u.factor),
+                    if u.reverses { "yes" } else { "no" }.into(),
+                ]
+            })
+            .collect();
+        blocks.push(Block::Table(
+            strings(&[
+                "unit slip: entity",
+                "period",
+                "variable",
+                "times previous",
+                "back next period",
+            ]),
+            rows,
+        ));
+        blocks.push(Block::Note(format!(
+            "{} suspected unit slips in all (a ratio near 1000 or 1,000,000, or their inverse, to \
+             the previous period){}.",
+            f.total,
+            if f.total > 20 {
+                "; the first 20 are shown, report.json has them all"
+            } else {
+                ""
+            }
+        )));
+    }
+    if let Some(rep) = &r.repairs {
+        let mut parts = Vec::new();
+        if let Some(f) = &rep.corrections_file {
+            parts.push(format!(
+                "the corrections file `{f}` changed {} cells",
+                rep.corrected_cells
+            ));
+        }
+        if rep.unit_slips != "report" {
+            parts.push(format!(
+                "{} unit slips that jump back the next period were {} (`[repair] unit_slips = \"{}\"`); a slip without a jump back is never repaired and is listed above",
+                rep.unit_slips_repaired,
+                if rep.unit_slips == "rescale" {
+                    "divided by their factor"
+                } else {
+                    "set to null"
+                },
+                rep.unit_slips
+            ));
+        }
+        blocks.push(Block::Note(format!(
+            "Repaired before the checks: {}. Every changed cell is in corrections.csv.",
+            parts.join("; ")
+        )));
+    }
+    Section {
+        title: "Outliers and unit slips",
+        blocks,
+    }
+}
+
+fn factor(f: f64) -> String {
+    if f >= 1.0 {
+        format!("x {}", f as u64)
+    } else {
+        format!("/ {}", (1.0 / f).round() as u64)
     }
 }
 

@@ -12,8 +12,17 @@ fn report_for(df: &DataFrame, compare: &[&str]) -> Report {
         ..Options::default()
     };
     let ctx = Context::new(df, "f", "y", options).unwrap();
-    run_all(&ctx, &mut report).unwrap();
+    report.panel = panel_summary(&ctx).unwrap();
+    report.findings = run_all(&ctx).unwrap();
     report
+}
+
+fn cov(r: &Report) -> &crate::report::Coverage {
+    r.findings.get().unwrap()
+}
+
+fn turnover(r: &Report) -> &crate::report::EntryExitFigures {
+    r.findings.get().unwrap()
 }
 
 fn blank() -> Report {
@@ -36,8 +45,8 @@ fn ahrens_pincus_hand_example() {
     let r = report_for(&df, &[]);
     assert!((r.panel.evenness_harmonic.unwrap() - 9.0 / 11.0).abs() < 1e-12);
     assert!((r.panel.evenness_squares.unwrap() - 6.0 / 7.0).abs() < 1e-12);
-    assert_eq!(r.coverage.singletons, 1);
-    assert_eq!(r.coverage.per_entity.median, 2.0);
+    assert_eq!(cov(&r).singletons, 1);
+    assert_eq!(cov(&r).per_entity.median, 2.0);
 }
 
 #[test]
@@ -46,8 +55,8 @@ fn iterated_two_way_singletons_remove_every_row() {
     // one row, and so on until nothing is left (Correia 2015; worked by hand).
     let df = df!("f" => ["A", "A", "B", "B", "C"], "y" => [1i64, 2, 2, 3, 3]).unwrap();
     let r = report_for(&df, &[]);
-    assert_eq!(r.coverage.singletons, 1);
-    assert_eq!(r.coverage.singletons_two_way, 5);
+    assert_eq!(cov(&r).singletons, 1);
+    assert_eq!(cov(&r).singletons_two_way, 5);
 }
 
 #[test]
@@ -59,12 +68,12 @@ fn gaps_spells_entry_exit_and_survival() {
     )
     .unwrap();
     let r = report_for(&df, &[]);
-    let c = &r.coverage;
+    let c = cov(&r);
     assert_eq!(
         (c.entities_with_gaps, c.gap_periods, c.longest_gap, c.spells),
         (1, 1, 1, 4)
     );
-    let lines: Vec<_> = r
+    let lines: Vec<_> = turnover(&r)
         .entry_exit
         .iter()
         .map(|l| (l.period, l.present, l.entrants, l.leavers, l.reentrants))
@@ -79,10 +88,13 @@ fn gaps_spells_entry_exit_and_survival() {
         ]
     );
     // Cohort 1 (a, b): observed at k = 0, 1, 2, 3 -> 2, 2, 1, 2 of 2. Cohort 2 (c): 1, 1, 0.
-    assert_eq!(r.survival[0].shares, [1.0, 1.0, 0.5, 1.0]);
-    assert_eq!(r.survival[1].shares, [1.0, 1.0, 0.0]);
+    assert_eq!(turnover(&r).survival[0].shares, [1.0, 1.0, 0.5, 1.0]);
+    assert_eq!(turnover(&r).survival[1].shares, [1.0, 1.0, 0.0]);
     assert_eq!(
-        (r.attrition_groups.leavers, r.attrition_groups.stayers),
+        (
+            turnover(&r).attrition_groups.leavers,
+            turnover(&r).attrition_groups.stayers
+        ),
         (1, 2)
     );
 }

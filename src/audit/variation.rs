@@ -7,9 +7,13 @@ use polars::prelude::*;
 use rayon::prelude::*;
 
 use super::verdict::{self, worst, CheckVerdict, Levels, Status};
-use super::{Check, Context};
+use super::{own, Check, Context};
 use crate::core::{PanelCore, Values};
-use crate::report::{Absorbed, Report, VariationLine};
+use crate::report::layout::{opt, opt_level, strings, Block, Section};
+use crate::report::{
+    Absorbed, Finding, Report, ToJson, VariationFigures as Figures, VariationLine,
+    VARIATION_CONVENTION,
+};
 use crate::Result;
 
 /// A share of the sum of squares below this counts as no variation at all.
@@ -47,15 +51,51 @@ impl Check for Variation {
         "variation"
     }
 
-    fn run(&self, ctx: &Context, report: &mut Report) -> Result<()> {
+    fn run(&self, ctx: &Context) -> Result<Box<dyn Finding>> {
         let mut lines = lines(ctx, &ctx.numeric)?;
         lines.extend(categorical(ctx)?);
-        report.variation = lines;
-        Ok(())
+        Ok(Box::new(Figures { lines }))
+    }
+
+    fn on_cleaned(&self) -> bool {
+        true
+    }
+
+    /// Only the treated variables' lines are computed again; the others' values did not
+    /// change.
+    fn after_treatment(
+        &self,
+        ctx: &Context,
+        read: &dyn Finding,
+        treated: &[String],
+    ) -> Result<Box<dyn Finding>> {
+        let Some(read) = own::<Figures>(read) else {
+            return self.run(ctx);
+        };
+        let again: Vec<String> = ctx
+            .numeric
+            .iter()
+            .filter(|v| treated.contains(v))
+            .cloned()
+            .collect();
+        let fresh = lines(ctx, &again)?;
+        let lines = read
+            .lines
+            .iter()
+            .map(|l| {
+                fresh
+                    .iter()
+                    .find(|f| f.variable == l.variable)
+                    .unwrap_or(l)
+                    .clone()
+            })
+            .collect();
+        Ok(Box::new(Figures { lines }))
     }
 
     fn verdict(&self, r: &Report, lv: &Levels) -> Option<CheckVerdict> {
         use Status::*;
+        let variation = &r.findings.get::<Figures>()?.lines;
         // A model regressor counts as absorbed only under the effects the model declares.
         let absorbed_regressor: Vec<&str> = r
             .model
@@ -63,17 +103,12 @@ impl Check for Variation {
             .flat_map(|m| m.not_identified_within.iter().chain(&m.not_identified))
             .map(String::as_str)
             .collect();
-        let nearly: Vec<&str> = r
-            .variation
+        let nearly: Vec<&str> = variation
             .iter()
             .filter(|v| v.nearly_absorbed)
             .map(|v| v.variable.as_str())
             .collect();
-        let absorbed = r
-            .variation
-            .iter()
-            .filter(|v| v.absorbed_by.is_some())
-            .count();
+        let absorbed = variation.iter().filter(|v| v.absorbed_by.is_some()).count();
         let mut absorption = Vec::new();
         if !absorbed_regressor.is_empty() {
             absorption.push((
@@ -90,7 +125,7 @@ impl Check for Variation {
                 format!("nearly absorbed: {}", nearly.join(", ")),
             ));
         }
-        Some(if r.variation.is_empty() {
+        Some(if variation.is_empty() {
             verdict::line(
                 "Absorbed by fixed effects",
                 NotChecked,
@@ -105,6 +140,135 @@ impl Check for Variation {
         } else {
             worst("Absorbed by fixed effects", absorption)
         })
+    }
+}
+
+impl Finding for Figures {
+    fn entries(&self) -> Vec<(&'static str, &dyn ToJson)> {
+        vec![
+            ("variation_convention", &VARIATION_CONVENTION),
+            ("variation", &self.lines),
+        ]
+    }
+
+    fn cleaned_entries(&self) -> Vec<(&'static str, &dyn ToJson)> {
+        vec![("variation", &self.lines)]
+    }
+
+    fn sections(&self, report: &Report) -> Vec<Section> {
+        vec![variation(self, report), absorbed(self)]
+    }
+}
+
+fn variation(read: &Figures, r: &Report) -> Section {
+    let mut blocks = Vec::new();
+    match r.cleaned.as_ref().and_then(|c| c.findings.get::<Figures>()) {
+        Some(c) => {
+            blocks.push(Block::Note(
+                "The cleaned panel, as handed over (after treatment, balancing and singletons):"
+                    .into(),
+            ));
+            blocks.extend(variation_blocks(&c.lines));
+            blocks.push(Block::Note(
+                "The panel as read (after the key steps and accounting rules, before treatment):"
+                    .into(),
+            ));
+            blocks.extend(variation_blocks(&read.lines));
+        }
+        None => blocks.extend(variation_blocks(&read.lines)),
+    }
+    Section {
+        title: "Variation",
+        blocks,
+    }
+}
+
+fn variation_blocks(lines: &[VariationLine]) -> Vec<Block> {
+    let rows: Vec<Vec<String>> = lines
+        .iter()
+        .filter(|v| v.sd_total.is_some())
+        .map(|v| {
+            vec![
+                v.variable.clone(),
+                v.n.to_string(),
+                opt_level(v.mean),
+                opt_level(v.sd_total),
+                opt_level(v.sd_between),
+                opt_level(v.sd_within),
+                opt(v.within_share, 3),
+                v.zero_within_entities.to_string(),
+            ]
+        })
+        .collect();
+    let mut blocks = Vec::new();
+    if rows.is_empty() {
+        blocks.push(Block::Note("No numeric variables.".into()));
+    } else {
+        blocks.push(Block::Table(
+            strings(&[
+                "variable",
+                "n",
+                "mean",
+                "total SD",
+                "between SD",
+                "within SD",
+                "within share",
+                "flat entities",
+            ]),
+            rows,
+        ));
+        blocks.push(Block::Note(
+            "SDs over each variable's non-missing rows; total and within SDs divide by N - 1, \
+             the between SD is the SD of entity means (each entity once). Within share = within \
+             sum of squares / total sum of squares. Flat entities: two or more values, all equal."
+                .into(),
+        ));
+    }
+    blocks
+}
+
+fn absorbed(read: &Figures) -> Section {
+    let words = |a: Absorbed| match a {
+        Absorbed::Entity => "entity effects (no change within any entity)",
+        Absorbed::Period => "period effects (no change within any period)",
+        Absorbed::EntityPeriod => {
+            "entity + period effects together (e.g. age = period - founding year)"
+        }
+    };
+    let mut rows: Vec<Vec<String>> = read
+        .lines
+        .iter()
+        .filter_map(|v| {
+            v.absorbed_by
+                .map(|a| vec![v.variable.clone(), words(a).to_string()])
+        })
+        .collect();
+    rows.extend(read.lines.iter().filter(|v| v.nearly_absorbed).map(|v| {
+        vec![
+            v.variable.clone(),
+            format!(
+                "nearly absorbed by entity effects: within share {}; fixed-effects estimates for it will be imprecise",
+                opt(v.within_share, 4)
+            ),
+        ]
+    }));
+    let blocks = if rows.is_empty() {
+        vec![Block::Note(
+            "No variable is absorbed or nearly absorbed.".into(),
+        )]
+    } else {
+        vec![
+            Block::Table(strings(&["variable", "absorbed by"]), rows),
+            Block::Note(
+                "An absorbed variable has no variation left once those effects are removed: its \
+                 coefficient is not identified in a model with them."
+                    .into(),
+            ),
+        ]
+    };
+    Section {
+        title: "Absorbed by fixed effects",
+        blocks,
     }
 }
 

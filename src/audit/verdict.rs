@@ -131,13 +131,15 @@ pub(crate) fn line(check: &str, status: Status, reason: String) -> CheckVerdict 
 }
 
 /// Judge a finished report: each finding at the level `[verdict]` gives it. Each line is
-/// written by what found it (`Check::verdict`, the key steps, the accounting rules), in the
-/// order of [`super::verdict_order`]; overall is the worst of them.
+/// written by what found it, in the order the reports list them: the key steps', each
+/// check's (`Check::verdict`, registry order), the accounting rules' (which act before
+/// derivation), then model readiness; overall is the worst of them.
 pub fn judge(r: &Report, lv: &Levels) -> Verdict {
-    let checks: Vec<CheckVerdict> = super::verdict_order()
-        .into_iter()
-        .filter_map(|judge| judge(r, lv))
-        .collect();
+    let mut checks: Vec<CheckVerdict> = Vec::new();
+    checks.extend(keys(r, lv));
+    checks.extend(super::registry().iter().filter_map(|c| c.verdict(r, lv)));
+    checks.extend(super::accounting::verdict(r, lv));
+    checks.extend(super::model::verdict(r, lv));
     let overall = checks
         .iter()
         .map(|c| c.status)

@@ -3,9 +3,10 @@
 
 use super::*;
 
-/// Glance, coverage, variation and missing values of the cleaned panel. When cleaning kept
-/// every row (winsorizing only), the keys, codes, glance, coverage and missing values are
-/// those of the panel as read, and only the treated variables' variation is computed again.
+/// The glance and the findings of the checks that describe the cleaned panel too
+/// (`Check::on_cleaned`). When cleaning kept every row (winsorizing only), the keys, codes and
+/// glance are those of the panel as read, and each check derives its figures from those as
+/// read (`Check::after_treatment`: only the treated variables' variation is computed again).
 pub(super) fn cleaned_figures(
     before: &audit::KeyFrames,
     panel: &DataFrame,
@@ -18,68 +19,38 @@ pub(super) fn cleaned_figures(
     progress.stage("checks on the cleaned panel");
     // Rows are only ever removed: the same count is the same rows, in the same order.
     let same_rows = panel.height() == before.rows;
-    let mut r = Report::new(InputSummary {
-        path: String::new(),
-        format: input.format,
-        rows: 0,
-        columns: 0,
-        entity: input.entity.clone(),
-        period: input.period.clone(),
-        sheet: None,
-        notes: Vec::new(),
-    });
     let ctx = if same_rows {
-        before.context(panel, &input.entity, &input.period, options.clone())?
+        before.context(panel, &input.entity, &input.period, options)?
     } else {
-        Context::new(panel, &input.entity, &input.period, options.clone())?
+        Context::new(panel, &input.entity, &input.period, options)?
     };
-    if same_rows {
-        r.panel = read.panel.clone();
-        r.coverage = read.coverage.clone();
-        r.missing = read.missing.clone();
-        let mut only = options;
-        only.exclude.extend(
-            ctx.variables
-                .iter()
-                .filter(|v| !treated.contains(v))
-                .cloned(),
-        );
-        audit::Variation.run(
-            &before.context(panel, &input.entity, &input.period, only)?,
-            &mut r,
-        )?;
-        let fresh = std::mem::take(&mut r.variation);
-        r.variation = read
-            .variation
-            .iter()
-            .map(|l| {
-                fresh
-                    .iter()
-                    .find(|f| f.variable == l.variable)
-                    .unwrap_or(l)
-                    .clone()
-            })
-            .collect();
+    let panel_summary = if same_rows {
+        read.panel.clone()
     } else {
-        for check in [
-            Box::new(audit::Glance) as Box<dyn audit::Check>,
-            Box::new(audit::Coverage),
-            Box::new(audit::Variation),
-            Box::new(audit::Missing),
-        ] {
-            check.run(&ctx, &mut r)?;
+        audit::panel_summary(&ctx)?
+    };
+    let mut findings = Findings::default();
+    for (check, as_read) in audit::registry().iter().zip(read.findings.iter()) {
+        if !check.on_cleaned() {
+            continue;
         }
+        findings.push(if same_rows {
+            check.after_treatment(&ctx, as_read, treated)?
+        } else {
+            check.run(&ctx)?
+        });
     }
     // Model readiness on the panel that will be estimated; its warnings about absorbed
     // regressors read the variation of that same panel, just computed.
-    r.model = audit::model::readiness(&ctx, &r.variation)?;
+    let variation = findings
+        .get::<VariationFigures>()
+        .map_or(&[][..], |f| &f.lines);
+    let model = audit::model::readiness(&ctx, variation)?;
     Ok((
         Cleaned {
-            panel: r.panel,
-            coverage: r.coverage,
-            variation: r.variation,
-            missing: r.missing,
+            panel: panel_summary,
+            findings,
         },
-        r.model,
+        model,
     ))
 }

@@ -15,15 +15,14 @@ pub(super) fn dictionary(
         .iter()
         .map(|(c, r)| (r, c))
         .collect();
-    let missing = |name: &str| {
-        report
-            .cleaned
-            .as_ref()
-            .map_or(&report.missing, |c| &c.missing)
-            .iter()
-            .find(|m| m.variable == name)
-            .map(|m| m.share)
-    };
+    let findings = report
+        .cleaned
+        .as_ref()
+        .map_or(&report.findings, |c| &c.findings);
+    let lines = findings
+        .get::<crate::report::MissingFigures>()
+        .map_or(&[][..], |f| &f.lines);
+    let missing = |name: &str| lines.iter().find(|m| m.variable == name).map(|m| m.share);
     panel
         .get_column_names()
         .iter()

@@ -9,7 +9,7 @@ use polars::prelude::*;
 
 use crate::assemble;
 use crate::audit::model::{Effects, ModelSpec};
-use crate::audit::{self, accounting, Check, Context, CutoffGroups, Options, Settings};
+use crate::audit::{self, accounting, Context, CutoffGroups, Options, Settings};
 use crate::clean::balance::{self, Balance};
 use crate::clean::treat::{Method, Treatment};
 use crate::clean::{self, repair, DuplicatePolicy, Keys, SingletonPolicy};
@@ -17,7 +17,7 @@ use crate::config::InputConfig;
 use crate::derive::{Layout, Plan};
 use crate::load::{self, ROW};
 use crate::progress::Progress;
-use crate::report::{Cleaned, InputSummary, Report, SampleStep};
+use crate::report::{Cleaned, Findings, InputSummary, Report, SampleStep, VariationFigures};
 use crate::rules::{Rules, LEVEL_COLUMNS};
 use crate::{Error, Result};
 
@@ -179,12 +179,11 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
     // derivation).
     let ctx = Context::new(&panel, &input.entity, &input.period, options.clone())?
         .with_progress(progress);
+    progress.stage("check: panel at a glance");
+    report.panel = audit::panel_summary(&ctx)?;
     for check in audit::registry() {
-        if check.cleaned_only() {
-            continue;
-        }
         progress.stage(&format!("check: {}", check.name()));
-        check.run(&ctx, &mut report)?;
+        report.findings.push(check.run(&ctx)?);
     }
 
     progress.stage("cleaning");

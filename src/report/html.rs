@@ -8,7 +8,7 @@ use maud::{html, Markup, PreEscaped, DOCTYPE};
 
 use super::layout::{figure_column, headline, level, num, sections, slug, Block, Section};
 use super::Page;
-use super::{Render, Report};
+use super::{Coverage, EntryExitFigures, MissingFigures, Render, Report, VariationFigures};
 
 /// Renders the report as a self-contained HTML page.
 pub struct Html;
@@ -251,7 +251,8 @@ fn legend(x: f64, y: f64, items: &[(&str, String)]) -> Markup {
 }
 
 fn coverage_chart(r: &Report) -> Markup {
-    let g = &r.coverage.grid;
+    let none = Coverage::default();
+    let g = &r.findings.get::<Coverage>().unwrap_or(&none).grid;
     let caption = format!(
         "Coverage: {} of {} entities, evenly spaced in entity order, one row each",
         g.rows.len(),
@@ -291,6 +292,8 @@ fn coverage_chart(r: &Report) -> Markup {
 }
 
 fn entry_exit_chart(r: &Report) -> Markup {
+    let none = EntryExitFigures::default();
+    let r = r.findings.get::<EntryExitFigures>().unwrap_or(&none);
     let caption = "Entrants and leavers per period (none counted at the window's edges)";
     if r.entry_exit.is_empty() {
         return empty("chart-entry-exit", caption, "No periods.");
@@ -334,6 +337,8 @@ fn entry_exit_chart(r: &Report) -> Markup {
 }
 
 fn survival_chart(r: &Report) -> Markup {
+    let none = EntryExitFigures::default();
+    let r = r.findings.get::<EntryExitFigures>().unwrap_or(&none);
     let caption =
         "Survival of the largest entry cohorts: share still observed k periods after entry";
     let mut cohorts: Vec<_> = r.survival.iter().filter(|s| s.shares.len() > 1).collect();
@@ -386,7 +391,9 @@ fn survival_chart(r: &Report) -> Markup {
 fn within_chart(r: &Report) -> Markup {
     let caption = "Within share of each numeric variable's variation (as read)";
     let vars: Vec<_> = r
-        .variation
+        .findings
+        .get::<VariationFigures>()
+        .map_or(&[][..], |f| &f.lines)
         .iter()
         .filter(|v| v.within_share.is_some())
         .collect();
@@ -419,14 +426,16 @@ fn within_chart(r: &Report) -> Markup {
 }
 
 fn missing_chart(r: &Report) -> Markup {
+    let none = MissingFigures::default();
+    let by_period = &r
+        .findings
+        .get::<MissingFigures>()
+        .unwrap_or(&none)
+        .by_period;
     let caption = "Missing share by variable and period; variables with no missing value left out";
-    let mut vars: Vec<&str> = r
-        .missing_by_period
-        .iter()
-        .map(|m| m.variable.as_str())
-        .collect();
+    let mut vars: Vec<&str> = by_period.iter().map(|m| m.variable.as_str()).collect();
     vars.dedup();
-    let mut periods: Vec<i64> = r.missing_by_period.iter().map(|m| m.period).collect();
+    let mut periods: Vec<i64> = by_period.iter().map(|m| m.period).collect();
     periods.sort();
     periods.dedup();
     if vars.is_empty() {
@@ -448,7 +457,7 @@ fn missing_chart(r: &Report) -> Markup {
             @for (i, v) in vars.iter().enumerate() {
                 text x=(left - 6.0) y=(top + ch * i as f64 + ch * 0.75) text-anchor="end" { (v) }
             }
-            @for m in &r.missing_by_period {
+            @for m in by_period {
                 @let i = vars.iter().position(|v| *v == m.variable).unwrap_or(0);
                 @let j = periods.iter().position(|p| *p == m.period).unwrap_or(0);
                 rect x=(left + cw * j as f64) y=(top + ch * i as f64) width=(cw - 1.0) height=(ch - 1.0)

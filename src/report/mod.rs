@@ -1,20 +1,24 @@
 //! The readiness report: one typed `Report` filled by the pipeline and the checks, and one
 //! renderer per output format behind the `Render` trait. Renderers never compute.
 
+mod finding;
 mod html;
 mod json;
-mod layout;
+pub(crate) mod layout;
 mod markdown;
 mod model;
 mod terminal;
 
-pub(crate) use layout::{level, strings, Block, Section};
+pub use erased::Json as ToJson;
+pub(crate) use layout::{level, strings};
+pub use layout::{Block, Section};
 
 use std::io::Write;
 
 use crate::Result;
 use polars::prelude::*;
 
+pub use finding::{Finding, Findings};
 pub use html::Html;
 pub use json::Json;
 pub use markdown::Markdown;
@@ -82,10 +86,10 @@ pub(crate) fn render_page(
     }
 }
 
-/// Object-safe JSON for `render_page`.
-pub(crate) mod erased {
+/// Object-safe JSON, for `render_page` and the findings' entries.
+pub mod erased {
     /// Anything serialisable, as pretty JSON.
-    pub(crate) trait Json {
+    pub trait Json {
         /// The value as pretty-printed JSON.
         fn to_json(&self) -> String;
     }

@@ -39,30 +39,37 @@ fn sample() -> Report {
         }],
         year_end_changes: None,
     };
-    r.coverage.singletons = 41;
-    r.coverage.shapes = vec![Shape {
+    let mut coverage = Coverage {
+        singletons: 41,
+        ..Coverage::default()
+    };
+    coverage.shapes = vec![Shape {
         first: 2012,
         last: 2024,
         gap_periods: 2,
         entities: 33,
     }];
-    r.entry_exit = vec![EntryExit {
-        period: 2011,
-        present: 77,
-        entrants: Some(6),
-        leavers: None,
-        reentrants: 2,
-    }];
-    r.attrition = vec![AttritionTest {
-        variable: "roa".into(),
-        n_leavers: 20,
-        n_stayers: 60,
-        mean_leavers: Some(0.0123),
-        mean_stayers: Some(0.0456),
-        t: Some(-2.5),
-        df: Some(31.2),
-        p: Some(0.0179),
-    }];
+    r.findings.push(Box::new(coverage));
+    r.findings.push(Box::new(EntryExitFigures {
+        entry_exit: vec![EntryExit {
+            period: 2011,
+            present: 77,
+            entrants: Some(6),
+            leavers: None,
+            reentrants: 2,
+        }],
+        attrition: vec![AttritionTest {
+            variable: "roa".into(),
+            n_leavers: 20,
+            n_stayers: 60,
+            mean_leavers: Some(0.0123),
+            mean_stayers: Some(0.0456),
+            t: Some(-2.5),
+            df: Some(31.2),
+            p: Some(0.0179),
+        }],
+        ..EntryExitFigures::default()
+    }));
     r.derived = vec![DerivedSummary {
         name: "size".into(),
         label: "log assets".into(),

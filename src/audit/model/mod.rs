@@ -12,7 +12,7 @@ use polars::prelude::*;
 use statrs::distribution::{ChiSquared, ContinuousCDF, FisherSnedecor, Normal};
 
 use super::verdict::{line, worst, CheckVerdict, Levels, Status};
-use super::{Check, Context};
+use super::Context;
 use crate::report::{ErrorSplit, ModelReport, Report, Slope, VariationLine};
 use crate::Result;
 
@@ -55,82 +55,45 @@ pub struct ModelSpec {
 /// Pesaran's CD test is skipped above this many entities (n² / 2 pairs).
 const CD_MAX_ENTITIES: usize = 3000;
 
-/// Model readiness.
-pub struct Model;
-
-impl Check for Model {
-    fn name(&self) -> &'static str {
-        "model readiness"
+/// The model-readiness line of the verdict: regressors no estimator identifies, and the rules
+/// of thumb that apply. None without a declared model.
+pub fn verdict(r: &Report, lv: &Levels) -> Option<CheckVerdict> {
+    use Status::*;
+    let m = r.model.as_ref()?;
+    let not_identified: Vec<&String> = m
+        .not_identified
+        .iter()
+        .chain(&m.not_identified_within)
+        .collect();
+    let mut findings = Vec::new();
+    if !not_identified.is_empty() {
+        findings.push((
+            lv.absorbed_regressor,
+            format!(
+                "not identified by every estimator: {}",
+                not_identified
+                    .iter()
+                    .map(|s| s.as_str())
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            ),
+        ));
     }
-
-    fn cleaned_only(&self) -> bool {
-        true
+    let thumbs = m.warnings.len().saturating_sub(not_identified.len());
+    if thumbs > 0 {
+        findings.push((lv.model_warnings, format!("{thumbs} rules of thumb apply")));
     }
-
-    /// Reads nothing of the report: the rules of thumb get the variation of the model's own
-    /// variables, computed here (see [`readiness`] to pass figures already computed).
-    fn run(&self, ctx: &Context, report: &mut Report) -> Result<()> {
-        let Some(spec) = &ctx.model else {
-            return Ok(());
-        };
-        let names: Vec<String> = std::iter::once(&spec.outcome)
-            .chain(&spec.regressors)
-            .cloned()
-            .collect();
-        let numeric: Vec<String> = ctx
-            .numeric
-            .iter()
-            .filter(|v| names.contains(v))
-            .cloned()
-            .collect();
-        let mut variation = super::variation::lines(ctx, &numeric)?;
-        variation.extend(
-            super::variation::categorical(ctx)?
-                .into_iter()
-                .filter(|l| names.contains(&l.variable)),
-        );
-        report.model = readiness(ctx, &variation)?;
-        Ok(())
-    }
-
-    fn verdict(&self, r: &Report, lv: &Levels) -> Option<CheckVerdict> {
-        use Status::*;
-        let m = r.model.as_ref()?;
-        let not_identified: Vec<&String> = m
-            .not_identified
-            .iter()
-            .chain(&m.not_identified_within)
-            .collect();
-        let mut findings = Vec::new();
-        if !not_identified.is_empty() {
-            findings.push((
-                lv.absorbed_regressor,
-                format!(
-                    "not identified by every estimator: {}",
-                    not_identified
-                        .iter()
-                        .map(|s| s.as_str())
-                        .collect::<Vec<_>>()
-                        .join(", ")
-                ),
-            ));
-        }
-        let thumbs = m.warnings.len().saturating_sub(not_identified.len());
-        if thumbs > 0 {
-            findings.push((lv.model_warnings, format!("{thumbs} rules of thumb apply")));
-        }
-        Some(if m.questions.iter().all(|q| q.tests.is_empty()) {
-            line(
-                "Model readiness",
-                Fail,
-                "no diagnostic could be computed".into(),
-            )
-        } else if findings.is_empty() {
-            line("Model readiness", Pass, "no rule of thumb applies".into())
-        } else {
-            worst("Model readiness", findings)
-        })
-    }
+    Some(if m.questions.iter().all(|q| q.tests.is_empty()) {
+        line(
+            "Model readiness",
+            Fail,
+            "no diagnostic could be computed".into(),
+        )
+    } else if findings.is_empty() {
+        line("Model readiness", Pass, "no rule of thumb applies".into())
+    } else {
+        worst("Model readiness", findings)
+    })
 }
 
 fn p_chi2(stat: f64, df: f64) -> Option<f64> {

@@ -3,25 +3,23 @@
 //! numbers happens here; nothing is computed.
 
 mod outcome;
-mod structure;
 mod variables;
 
 pub(crate) use super::model::*;
 pub(crate) use outcome::headline;
 use outcome::*;
-use structure::*;
 use variables::*;
 
 /// One titled section.
-pub(crate) struct Section {
+pub struct Section {
     /// The label, from the project vocabulary.
-    pub(crate) title: &'static str,
+    pub title: &'static str,
     /// Its content in order.
-    pub(crate) blocks: Vec<Block>,
+    pub blocks: Vec<Block>,
 }
 
 /// A piece of a section.
-pub(crate) enum Block {
+pub enum Block {
     /// Label and value rows.
     Pairs(Vec<(String, String)>),
     /// A table: header, rows; columns after the first are right-aligned.
@@ -132,19 +130,8 @@ pub(crate) fn sections(r: &Report) -> Vec<Section> {
     [glance(r), keys(r)]
         .into_iter()
         .chain(joins)
-        .chain([
-            coverage(r),
-            entry_exit(r),
-            variation(r),
-            absorbed(r),
-            missing(r),
-            outliers(r),
-            accounting(r),
-            derived(r),
-            model(r),
-            sample(r),
-            verdict(r),
-        ])
+        .chain(r.findings.iter().flat_map(|f| f.sections(r)))
+        .chain([accounting(r), derived(r), model(r), sample(r), verdict(r)])
         .collect()
 }
 

@@ -267,6 +267,12 @@ pub(super) fn cleaning_blocks(r: &Report) -> Vec<Block> {
         blocks.push(Block::Note(text));
     }
     if let Some(c) = &r.cleaned {
+        let (gaps, singletons) = c
+            .findings
+            .get::<Coverage>()
+            .map_or(("–".to_string(), "–".to_string()), |v| {
+                (v.entities_with_gaps.to_string(), v.singletons.to_string())
+            });
         let window = match (c.panel.first_period, c.panel.last_period) {
             (Some(a), Some(b)) => format!("{a}..{b}"),
             _ => "none".into(),
@@ -282,14 +288,8 @@ pub(super) fn cleaning_blocks(r: &Report) -> Vec<Block> {
                 "cleaned panel: balanced".into(),
                 if c.panel.balanced { "yes" } else { "no" }.into(),
             ),
-            (
-                "cleaned panel: entities with gaps".into(),
-                c.coverage.entities_with_gaps.to_string(),
-            ),
-            (
-                "cleaned panel: singletons".into(),
-                c.coverage.singletons.to_string(),
-            ),
+            ("cleaned panel: entities with gaps".into(), gaps),
+            ("cleaned panel: singletons".into(), singletons),
         ]));
     }
     blocks

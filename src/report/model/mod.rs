@@ -4,7 +4,7 @@
 use polars::prelude::*;
 use serde::Serialize;
 
-use super::distinct;
+use super::{distinct, Findings};
 use crate::Result;
 
 mod outcome;
@@ -17,8 +17,9 @@ pub use shared::*;
 pub use structure::*;
 pub use variables::*;
 
-/// Every figure the readiness report shows. Field names are the JSON contract.
-#[derive(Debug, Clone, Serialize)]
+/// Every figure the readiness report shows. Field names are the JSON contract
+/// (`report::Json` writes them in this order).
+#[derive(Debug)]
 pub struct Report {
     /// The panelready version that made the report.
     pub tool_version: String,
@@ -28,34 +29,9 @@ pub struct Report {
     pub panel: PanelSummary,
     /// Missing and duplicate keys in the input.
     pub keys: KeysSummary,
-    /// Gaps, spells, singletons and the shape of each entity's coverage.
-    pub coverage: Coverage,
-    /// Entities present, entering, leaving and returning, per period.
-    pub entry_exit: Vec<EntryExit>,
-    /// Share of each entry cohort still observed k periods after entry.
-    pub survival: Vec<Survival>,
-    /// How many entities left before the window's end and how many stayed.
-    pub attrition_groups: AttritionGroups,
-    /// Leavers against stayers at their first observed period, one line per variable.
-    pub attrition: Vec<AttritionTest>,
-    /// How the variation figures are computed.
-    pub variation_convention: String,
-    /// Per numeric variable: variation and absorption by fixed effects.
-    pub variation: Vec<VariationLine>,
-    /// Per variable: missing values.
-    pub missing: Vec<MissingLine>,
-    /// Per variable with missing values and period: the share missing.
-    pub missing_by_period: Vec<MissingByPeriod>,
-    /// Sharp changes in a variable's missing share from one period to the next.
-    pub missing_breaks: Vec<MissingBreak>,
-    /// Per numeric variable: values beyond the cutoffs and robust z-scores.
-    pub outliers: Vec<OutlierLine>,
-    /// Suspected unit slips in level variables (at most 10,000 listed).
-    pub unit_slips: Vec<UnitSlip>,
-    /// How many unit slips were found in all.
-    pub unit_slips_total: u64,
-    /// How many level variables were searched for unit slips.
-    pub unit_slips_searched: u64,
+    /// Each check's figures, in the order the checks ran (`audit::registry`); in
+    /// `report.json` their entries stand here, each under its own field names.
+    pub findings: Findings,
     /// Accounting rules and their violations.
     pub rules: Vec<RuleLine>,
     /// Each derived variable with its null counts by reason.
@@ -74,19 +50,13 @@ pub struct Report {
     pub model: Option<ModelReport>,
     /// Pass, warn or fail per check family, and overall.
     pub verdict: Option<Verdict>,
-    /// Repairs applied before the checks (`build` and `audit` alike), if any was asked for.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
+    /// Repairs applied before the checks (`build` and `audit` alike), if any was asked for
+    /// (left out of `report.json` when none was).
     pub repairs: Option<Repairs>,
-    /// Further raw files joined onto the panel (`[[join]]`), each with its match report.
-    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    /// Further raw files joined onto the panel (`[[join]]`), each with its match report
+    /// (left out of `report.json` when there are none).
     pub joins: Vec<JoinLine>,
 }
-
-/// The degrees-of-freedom convention of the variation figures.
-pub const VARIATION_CONVENTION: &str = "over each variable's non-missing rows: sd_total = \
-sqrt(TSS / (N - 1)); sd_within = sqrt(WSS / (N - 1)) with WSS the squared deviations from entity \
-means (descriptive, N - 1, not N - n); sd_between = SD of the entity means, each entity once, \
-n - 1; within_share = WSS / TSS";
 
 impl Report {
     /// A report with no figures yet, for the pipeline and the checks to fill.
@@ -96,20 +66,7 @@ impl Report {
             input,
             panel: PanelSummary::default(),
             keys: KeysSummary::default(),
-            coverage: Coverage::default(),
-            entry_exit: Vec::new(),
-            survival: Vec::new(),
-            attrition_groups: AttritionGroups::default(),
-            attrition: Vec::new(),
-            variation_convention: VARIATION_CONVENTION.to_string(),
-            variation: Vec::new(),
-            missing: Vec::new(),
-            missing_by_period: Vec::new(),
-            missing_breaks: Vec::new(),
-            outliers: Vec::new(),
-            unit_slips: Vec::new(),
-            unit_slips_total: 0,
-            unit_slips_searched: 0,
+            findings: Findings::default(),
             rules: Vec::new(),
             derived: Vec::new(),
             skipped: Vec::new(),

@@ -116,17 +116,14 @@ pub struct Slope {
     pub material: bool,
 }
 
-/// Figures of the cleaned panel.
-#[derive(Debug, Clone, Serialize)]
+/// The figures of the cleaned panel written by `build`.
+#[derive(Debug)]
 pub struct Cleaned {
     /// Panel at a glance.
     pub panel: PanelSummary,
-    /// Coverage.
-    pub coverage: Coverage,
-    /// Variation.
-    pub variation: Vec<VariationLine>,
-    /// Missing values.
-    pub missing: Vec<MissingLine>,
+    /// The findings of the checks that describe the cleaned panel too
+    /// (`audit::Check::on_cleaned`), in registry order.
+    pub findings: crate::report::Findings,
 }
 
 /// Outlier treatment of one variable.

@@ -78,6 +78,20 @@ pub struct Shape {
     pub entities: u64,
 }
 
+/// The entry-and-exit check's figures: turnover per period, survival per entry cohort, and
+/// leavers against stayers at entry.
+#[derive(Debug, Clone, Default)]
+pub struct EntryExitFigures {
+    /// Entities present, entering, leaving and returning, per period.
+    pub entry_exit: Vec<EntryExit>,
+    /// Share of each entry cohort still observed k periods after entry.
+    pub survival: Vec<Survival>,
+    /// How many entities left before the window's end and how many stayed.
+    pub attrition_groups: AttritionGroups,
+    /// Leavers against stayers at their first observed period, one line per variable.
+    pub attrition: Vec<AttritionTest>,
+}
+
 /// One period's entry and exit. Entrants are not counted in the window's first period and
 /// leavers not in its last (`null`): whether an entity entered or left there is not
 /// observable.

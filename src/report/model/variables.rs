@@ -19,6 +19,19 @@ pub enum Absorbed {
     EntityPeriod,
 }
 
+/// The degrees-of-freedom convention of the variation figures.
+pub const VARIATION_CONVENTION: &str = "over each variable's non-missing rows: sd_total = \
+sqrt(TSS / (N - 1)); sd_within = sqrt(WSS / (N - 1)) with WSS the squared deviations from entity \
+means (descriptive, N - 1, not N - n); sd_between = SD of the entity means, each entity once, \
+n - 1; within_share = WSS / TSS";
+
+/// The variation check's figures: one line per variable.
+#[derive(Debug, Clone, Default)]
+pub struct VariationFigures {
+    /// Per variable (numeric, then categorical): variation and absorption by fixed effects.
+    pub lines: Vec<VariationLine>,
+}
+
 /// Variation of one numeric variable.
 #[derive(Debug, Clone, Serialize)]
 pub struct VariationLine {
@@ -46,6 +59,17 @@ pub struct VariationLine {
     /// Within share below the `nearly_absorbed` threshold: fixed-effects estimates will be
     /// imprecise.
     pub nearly_absorbed: bool,
+}
+
+/// The missing-values check's figures.
+#[derive(Debug, Clone, Default)]
+pub struct MissingFigures {
+    /// Per variable: missing values.
+    pub lines: Vec<MissingLine>,
+    /// Per variable with missing values and period: the share missing.
+    pub by_period: Vec<MissingByPeriod>,
+    /// Sharp changes in a variable's missing share from one period to the next.
+    pub breaks: Vec<MissingBreak>,
 }
 
 /// Missing values of one variable.
