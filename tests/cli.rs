@@ -516,6 +516,13 @@ fn every_verdict_level_sets_its_finding() {
         ("rule_violations", "Accounting rules", ""),
         ("model_warnings", "Model readiness", ""),
     ];
+    // Every finding with a level is here: a new one needs its case above.
+    let declared: Vec<&str> = panelready::audit::verdict::level_keys()
+        .iter()
+        .map(|k| k.name)
+        .collect();
+    let listed: Vec<&str> = keys.iter().map(|k| k.0).collect();
+    assert_eq!(listed, declared);
     for (key, check, clean) in keys {
         let mut verdict = String::from("[verdict]\n");
         for (other, _, _) in keys {
@@ -699,4 +706,29 @@ fn a_check_that_examined_nothing_says_not_checked_and_lags_raise_no_break() {
         !breaks.iter().any(|(v, p)| v != "x" && *p <= 2003),
         "{breaks:?}"
     );
+}
+
+/// The README's `[verdict]` block lists every finding with a level, in order, with its
+/// default: the levels are declared in the code of the checks, so a new one must reach the
+/// README too.
+#[test]
+fn the_readme_lists_every_verdict_level_with_its_default() {
+    let readme =
+        std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/README.md")).unwrap();
+    let block: Vec<(String, String)> = readme
+        .lines()
+        .skip_while(|l| !l.starts_with("[verdict]"))
+        .skip(1)
+        .take_while(|l| !l.trim().is_empty())
+        .map(|l| {
+            let (name, rest) = l.split_once('=').unwrap();
+            let level = rest.split('"').nth(1).unwrap();
+            (name.trim().to_string(), level.to_string())
+        })
+        .collect();
+    let declared: Vec<(String, String)> = panelready::audit::verdict::level_keys()
+        .iter()
+        .map(|k| (k.name.to_string(), k.default.label().to_string()))
+        .collect();
+    assert_eq!(block, declared);
 }

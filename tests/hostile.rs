@@ -213,6 +213,12 @@ fn bad_rules_stop_before_any_data_is_read_identically_for_audit_and_build() {
             &["[verdict] gaps", "maybe"],
         ),
         bad(
+            "unknown verdict finding",
+            GOOD.as_bytes(),
+            "[verdict]\ngapz = \"fail\"\n",
+            &["[verdict]", "`gapz`", "gaps, singletons"],
+        ),
+        bad(
             "bad threshold",
             GOOD.as_bytes(),
             "[thresholds]\nrobust_z = -1\n",
@@ -291,6 +297,7 @@ fn values_of_the_rules_file_are_checked_before_any_file_is_read() {
         ("[repair]\nunit_slips = \"shrug\"\n", "[repair] unit_slips"),
         ("[panel]\nyear_end_cutoff = 13\n", "year_end_cutoff"),
         ("[verdict]\ngaps = \"maybe\"\n", "[verdict] gaps"),
+        ("[verdict]\ngapz = \"fail\"\n", "`gapz`"),
         ("[thresholds]\nattrition_p = 2\n", "attrition_p"),
         ("[thresholds]\nrobust_z = -1\n", "robust_z"),
         (

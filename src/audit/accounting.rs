@@ -6,7 +6,7 @@ use std::collections::BTreeSet;
 
 use polars::prelude::*;
 
-use super::verdict::{line, CheckVerdict, Levels, Status};
+use super::verdict::{level_key, line, CheckVerdict, LevelKey, Levels, Status};
 use crate::report::{Report, RuleLine, SkippedRule};
 use crate::rules::expr::{self, Scope};
 use crate::rules::{Origin, Rules, CANONICAL_COLUMNS};
@@ -259,6 +259,9 @@ pub fn drop_reason(rules: &[CompiledRule]) -> Option<Expr> {
         })
 }
 
+/// Accounting-rule violations.
+pub const RULE_VIOLATIONS: LevelKey = level_key!("rule_violations", Warn);
+
 /// The accounting rules' verdict line (the rules act before derivation, outside the checks).
 pub fn verdict(r: &Report, lv: &Levels) -> Option<CheckVerdict> {
     use Status::*;
@@ -272,7 +275,7 @@ pub fn verdict(r: &Report, lv: &Levels) -> Option<CheckVerdict> {
     } else if broken > 0 {
         line(
             "Accounting rules",
-            lv.rule_violations,
+            lv.of(&RULE_VIOLATIONS),
             format!("{broken} rule violations"),
         )
     } else {

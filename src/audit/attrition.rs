@@ -6,10 +6,13 @@ use polars::prelude::*;
 use statrs::distribution::{ContinuousCDF, StudentsT};
 
 use super::names::*;
-use super::verdict::{line, CheckVerdict, Levels, Status};
+use super::verdict::{level_key, line, CheckVerdict, LevelKey, Levels, Status};
 use super::Context;
 use crate::report::{AttritionGroups, AttritionTest, EntryExitFigures};
 use crate::Result;
+
+/// Leavers differing from stayers at entry.
+pub const ATTRITION: LevelKey = level_key!("attrition", Warn);
 
 /// Leavers against stayers: how many of each, and per variable compared their means at
 /// their first observed period with Welch's t-test (part of the entry-and-exit check).
@@ -164,7 +167,7 @@ pub(super) fn verdict(r: &EntryExitFigures, lv: &Levels) -> Option<CheckVerdict>
     } else {
         line(
             "Entry and exit",
-            lv.attrition,
+            lv.of(&ATTRITION),
             format!(
                 "leavers differ from stayers at entry in {}",
                 differ.join(", ")

@@ -5,7 +5,7 @@
 use polars::prelude::*;
 
 use super::names::*;
-use super::verdict::{line, worst, CheckVerdict, Levels, Status};
+use super::verdict::{level_key, line, worst, CheckVerdict, LevelKey, Levels, Status};
 use super::{own, scalar_f64, scalar_u64, Check, Context};
 use crate::report::layout::{num, pairs, strings, Block, Section};
 use crate::report::{
@@ -15,6 +15,11 @@ use crate::Result;
 
 /// How many coverage shapes the report lists.
 const SHAPES: usize = 8;
+
+/// Entities with gaps.
+pub const GAPS_LEVEL: LevelKey = level_key!("gaps", Warn);
+/// Entities observed in one period only.
+pub const SINGLETONS_LEVEL: LevelKey = level_key!("singletons", Warn);
 
 /// Coverage figures.
 pub struct Coverage;
@@ -78,6 +83,10 @@ impl Check for Coverage {
         true
     }
 
+    fn levels(&self) -> Vec<LevelKey> {
+        vec![GAPS_LEVEL, SINGLETONS_LEVEL]
+    }
+
     /// Coverage counts keys: with the same rows, the cleaned panel's is the one as read.
     fn after_treatment(
         &self,
@@ -94,12 +103,15 @@ impl Check for Coverage {
         let mut coverage = Vec::new();
         if c.entities_with_gaps > 0 {
             coverage.push((
-                lv.gaps,
+                lv.of(&GAPS_LEVEL),
                 format!("{} entities with gaps", c.entities_with_gaps),
             ));
         }
         if c.singletons > 0 {
-            coverage.push((lv.singletons, format!("{} singletons", c.singletons)));
+            coverage.push((
+                lv.of(&SINGLETONS_LEVEL),
+                format!("{} singletons", c.singletons),
+            ));
         }
         Some(if coverage.is_empty() {
             line("Coverage", Pass, "no gaps and no singletons".into())

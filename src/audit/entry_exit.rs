@@ -3,7 +3,7 @@
 
 use std::collections::HashMap;
 
-use super::verdict::{CheckVerdict, Levels};
+use super::verdict::{CheckVerdict, LevelKey, Levels};
 use super::{attrition, Check, Context};
 use crate::core::PanelCore;
 use crate::report::layout::{num, opt, opt_level, pval, strings, Block, Section};
@@ -54,6 +54,10 @@ impl Check for EntryExit {
             })
             .collect();
         Ok(Box::new(f))
+    }
+
+    fn levels(&self) -> Vec<LevelKey> {
+        vec![attrition::ATTRITION]
     }
 
     fn verdict(&self, r: &Report, lv: &Levels) -> Option<CheckVerdict> {

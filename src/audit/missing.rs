@@ -3,13 +3,16 @@
 
 use polars::prelude::*;
 
-use super::verdict::{line, CheckVerdict, Levels, Status};
+use super::verdict::{level_key, line, CheckVerdict, LevelKey, Levels, Status};
 use super::{own, Check, Context};
 use crate::report::layout::{num, strings, Block, Section};
 use crate::report::{
     Finding, MissingBreak, MissingByPeriod, MissingFigures as Figures, MissingLine, Report, ToJson,
 };
 use crate::Result;
+
+/// Sharp changes in a variable's missing share between periods.
+pub const MISSING_BREAKS: LevelKey = level_key!("missing_breaks", Warn);
 
 /// Missing values.
 pub struct Missing;
@@ -107,6 +110,10 @@ impl Check for Missing {
         true
     }
 
+    fn levels(&self) -> Vec<LevelKey> {
+        vec![MISSING_BREAKS]
+    }
+
     /// Treatment changes values, never whether one is missing: the figures as read stand.
     fn after_treatment(
         &self,
@@ -135,7 +142,7 @@ impl Check for Missing {
         } else {
             line(
                 "Missing values",
-                lv.missing_breaks,
+                lv.of(&MISSING_BREAKS),
                 format!("{} coverage breaks between periods", f.breaks.len()),
             )
         })

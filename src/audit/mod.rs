@@ -408,6 +408,11 @@ pub trait Check {
     ) -> Result<Box<dyn Finding>> {
         self.run(ctx)
     }
+    /// The findings whose level `[verdict]` may set, which `verdict` reads (none for a check
+    /// that only describes or judges at fixed levels).
+    fn levels(&self) -> Vec<verdict::LevelKey> {
+        Vec::new()
+    }
     /// The check's line of the verdict, from the finished report at the configured levels;
     /// none for a check that only describes.
     fn verdict(&self, _report: &Report, _levels: &verdict::Levels) -> Option<CheckVerdict> {

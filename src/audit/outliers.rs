@@ -5,7 +5,9 @@
 
 use rayon::prelude::*;
 
-use super::verdict::{line as verdict_line, worst, CheckVerdict, Levels, Status};
+use super::verdict::{
+    level_key, line as verdict_line, worst, CheckVerdict, LevelKey, Levels, Status,
+};
 use super::{unit_slips, Check, Context, Settings};
 use crate::core::{type7, type7_many, PanelCore, Values};
 use crate::report::layout::{opt_level, strings, Block, Section};
@@ -15,6 +17,9 @@ use crate::Result;
 
 /// The MAD's scale for a normal distribution, 1 / Φ⁻¹(3/4).
 pub const MAD_SCALE: f64 = 1.482_602_218_505_602;
+
+/// Suspected unit slips.
+pub const UNIT_SLIPS: LevelKey = level_key!("unit_slips", Warn);
 
 /// Outliers and unit slips.
 pub struct Outliers;
@@ -70,12 +75,19 @@ impl Check for Outliers {
         Ok(Box::new(f))
     }
 
+    fn levels(&self) -> Vec<LevelKey> {
+        vec![UNIT_SLIPS]
+    }
+
     fn verdict(&self, report: &Report, lv: &Levels) -> Option<CheckVerdict> {
         use Status::*;
         let r = report.findings.get::<Figures>()?;
         let mut outliers = Vec::new();
         if r.total > 0 {
-            outliers.push((lv.unit_slips, format!("{} suspected unit slips", r.total)));
+            outliers.push((
+                lv.of(&UNIT_SLIPS),
+                format!("{} suspected unit slips", r.total),
+            ));
         }
         if r.lines.iter().any(|o| o.small_groups) {
             outliers.push((Warn, "some periods are too small for their cutoffs".into()));

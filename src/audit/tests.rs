@@ -126,3 +126,16 @@ fn pesaran_cd_hand_example() {
     ]);
     assert!((cd - (2.0f64 / 6.0).sqrt() * 2.0).abs() < 1e-12, "{cd}");
 }
+
+#[test]
+fn every_verdict_key_is_declared_once() {
+    // Each check declares its own `[verdict]` keys: two findings must not share one.
+    let keys = verdict::level_keys();
+    let mut names: Vec<&str> = keys.iter().map(|k| k.name).collect();
+    names.sort_unstable();
+    names.dedup();
+    assert_eq!(names.len(), keys.len(), "{keys:?}");
+    for k in &keys {
+        assert_eq!(k.setting, format!("[verdict] {}", k.name));
+    }
+}

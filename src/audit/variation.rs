@@ -6,7 +6,7 @@
 use polars::prelude::*;
 use rayon::prelude::*;
 
-use super::verdict::{self, worst, CheckVerdict, Levels, Status};
+use super::verdict::{self, level_key, worst, CheckVerdict, LevelKey, Levels, Status};
 use super::{own, Check, Context};
 use crate::core::{PanelCore, Values};
 use crate::report::layout::{opt, opt_level, strings, Block, Section};
@@ -18,6 +18,12 @@ use crate::Result;
 
 /// A share of the sum of squares below this counts as no variation at all.
 pub const ABSORBED_SHARE: f64 = 1e-10;
+
+/// A model regressor absorbed by fixed effects or not identified (model readiness judges it
+/// too).
+pub const ABSORBED_REGRESSOR: LevelKey = level_key!("absorbed_regressor", Fail);
+/// Variables nearly absorbed by entity effects.
+pub const NEARLY_ABSORBED: LevelKey = level_key!("nearly_absorbed", Warn);
 
 /// Variation and absorption.
 pub struct Variation;
@@ -59,6 +65,10 @@ impl Check for Variation {
 
     fn on_cleaned(&self) -> bool {
         true
+    }
+
+    fn levels(&self) -> Vec<LevelKey> {
+        vec![ABSORBED_REGRESSOR, NEARLY_ABSORBED]
     }
 
     /// Only the treated variables' lines are computed again; the others' values did not
@@ -112,7 +122,7 @@ impl Check for Variation {
         let mut absorption = Vec::new();
         if !absorbed_regressor.is_empty() {
             absorption.push((
-                lv.absorbed_regressor,
+                lv.of(&ABSORBED_REGRESSOR),
                 format!(
                     "model regressors absorbed by fixed effects: {}",
                     absorbed_regressor.join(", ")
@@ -121,7 +131,7 @@ impl Check for Variation {
         }
         if !nearly.is_empty() {
             absorption.push((
-                lv.nearly_absorbed,
+                lv.of(&NEARLY_ABSORBED),
                 format!("nearly absorbed: {}", nearly.join(", ")),
             ));
         }

@@ -1,113 +1,106 @@
 //! The verdict: `pass`, `warn` or `fail` for each check family with a one-line reason, and
 //! overall the worst of them. Computed from the finished report; documented in the README.
 
+use std::collections::BTreeMap;
+
 use crate::report::Report;
 pub use crate::report::{CheckVerdict, Status, Verdict};
+
+/// A finding whose level `[verdict]` may set: the key under `[verdict]` and the level it
+/// raises the verdict to by default. Declared beside the code that judges the finding (a
+/// check's through `Check::levels`), so that a new one needs no other file.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct LevelKey {
+    /// The key under `[verdict]`.
+    pub name: &'static str,
+    /// `[verdict] name`, for messages.
+    pub setting: &'static str,
+    /// The level without a setting.
+    pub default: Status,
+}
+
+/// A `LevelKey` constant: `level_key!("gaps", Warn)`.
+#[macro_export]
+#[doc(hidden)]
+macro_rules! level_key {
+    ($name:literal, $default:ident) => {
+        $crate::audit::verdict::LevelKey {
+            name: $name,
+            setting: concat!("[verdict] ", $name),
+            default: $crate::report::Status::$default,
+        }
+    };
+}
+pub use crate::level_key;
+
+/// Keys on rows with different values left unresolved.
+pub const CONFLICTING_KEYS: LevelKey = level_key!("conflicting_keys", Fail);
+/// Rows missing a key, exact copies, or conflicts resolved by a policy.
+pub const KEY_REPAIRS: LevelKey = level_key!("key_repairs", Warn);
+
+/// Every finding `[verdict]` may set, in the order the reports judge them: the key steps',
+/// each check's (registry order), the accounting rules', model readiness's.
+pub fn level_keys() -> Vec<LevelKey> {
+    let mut keys = vec![CONFLICTING_KEYS, KEY_REPAIRS];
+    for check in super::registry() {
+        keys.extend(check.levels());
+    }
+    keys.push(super::accounting::RULE_VIOLATIONS);
+    keys.push(super::model::MODEL_WARNINGS);
+    keys
+}
 
 /// The level each finding raises the verdict to, from `[verdict]`.
 #[derive(Debug, Clone)]
 pub struct Levels {
-    /// Unresolved conflicting keys.
-    pub conflicting_keys: Status,
-    /// Missing keys, copies, resolved conflicts.
-    pub key_repairs: Status,
-    /// Gaps.
-    pub gaps: Status,
-    /// Singletons.
-    pub singletons: Status,
-    /// Leavers differ at entry.
-    pub attrition: Status,
-    /// Absorbed or unidentified model regressor.
-    pub absorbed_regressor: Status,
-    /// Nearly absorbed variables.
-    pub nearly_absorbed: Status,
-    /// Coverage breaks.
-    pub missing_breaks: Status,
-    /// Unit slips.
-    pub unit_slips: Status,
-    /// Rule violations.
-    pub rule_violations: Status,
-    /// Model rules of thumb.
-    pub model_warnings: Status,
+    /// The levels set in `[verdict]`, by key; the others take their default.
+    set: BTreeMap<&'static str, Status>,
     /// p-value for the attrition finding.
     pub attrition_p: f64,
 }
 
 impl Default for Levels {
     fn default() -> Levels {
-        use Status::*;
         Levels {
-            conflicting_keys: Fail,
-            key_repairs: Warn,
-            gaps: Warn,
-            singletons: Warn,
-            attrition: Warn,
-            absorbed_regressor: Fail,
-            nearly_absorbed: Warn,
-            missing_breaks: Warn,
-            unit_slips: Warn,
-            rule_violations: Warn,
-            model_warnings: Warn,
+            set: BTreeMap::new(),
             attrition_p: 0.05,
         }
     }
 }
 
 impl Levels {
+    /// The level of `key`'s finding.
+    pub fn of(&self, key: &LevelKey) -> Status {
+        self.set.get(key.name).copied().unwrap_or(key.default)
+    }
+
     /// Read `[verdict]` and `[thresholds] attrition_p`.
     pub fn from_rules(rules: &crate::rules::RulesFile) -> crate::Result<Levels> {
         let mut l = Levels::default();
-        let v = &rules.verdict;
-        for (value, slot, name) in [
-            (
-                &v.conflicting_keys,
-                &mut l.conflicting_keys,
-                "[verdict] conflicting_keys",
-            ),
-            (&v.key_repairs, &mut l.key_repairs, "[verdict] key_repairs"),
-            (&v.gaps, &mut l.gaps, "[verdict] gaps"),
-            (&v.singletons, &mut l.singletons, "[verdict] singletons"),
-            (&v.attrition, &mut l.attrition, "[verdict] attrition"),
-            (
-                &v.absorbed_regressor,
-                &mut l.absorbed_regressor,
-                "[verdict] absorbed_regressor",
-            ),
-            (
-                &v.nearly_absorbed,
-                &mut l.nearly_absorbed,
-                "[verdict] nearly_absorbed",
-            ),
-            (
-                &v.missing_breaks,
-                &mut l.missing_breaks,
-                "[verdict] missing_breaks",
-            ),
-            (&v.unit_slips, &mut l.unit_slips, "[verdict] unit_slips"),
-            (
-                &v.rule_violations,
-                &mut l.rule_violations,
-                "[verdict] rule_violations",
-            ),
-            (
-                &v.model_warnings,
-                &mut l.model_warnings,
-                "[verdict] model_warnings",
-            ),
-        ] {
-            if let Some(text) = value {
-                *slot = match text.as_str() {
-                    "pass" => Status::Pass,
-                    "warn" => Status::Warn,
-                    "fail" => Status::Fail,
-                    other => {
-                        return Err(crate::Error::Setting {
-                            setting: name,
-                            message: format!("\"{other}\" is not \"pass\", \"warn\" or \"fail\""),
-                        })
-                    }
-                };
-            }
+        let keys = level_keys();
+        for (name, text) in &rules.verdict {
+            let Some(key) = keys.iter().find(|k| k.name == name) else {
+                let known: Vec<&str> = keys.iter().map(|k| k.name).collect();
+                return Err(crate::Error::Setting {
+                    setting: "[verdict]",
+                    message: format!(
+                        "`{name}` is not a finding with a level; the findings are {}",
+                        known.join(", ")
+                    ),
+                });
+            };
+            let status = match text.as_str() {
+                "pass" => Status::Pass,
+                "warn" => Status::Warn,
+                "fail" => Status::Fail,
+                other => {
+                    return Err(crate::Error::Setting {
+                        setting: key.setting,
+                        message: format!("\"{other}\" is not \"pass\", \"warn\" or \"fail\""),
+                    })
+                }
+            };
+            l.set.insert(key.name, status);
         }
         if let Some(p) = rules.thresholds.attrition_p {
             if !(0.0 < p && p < 1.0) {
@@ -157,7 +150,7 @@ pub(super) fn keys(r: &Report, lv: &Levels) -> Option<CheckVerdict> {
     Some(if unresolved {
         line(
             "Keys",
-            lv.conflicting_keys,
+            lv.of(&CONFLICTING_KEYS),
             format!(
                 "{} entity-period keys appear on rows with different values",
                 k.conflicting_keys
@@ -166,7 +159,7 @@ pub(super) fn keys(r: &Report, lv: &Levels) -> Option<CheckVerdict> {
     } else if k.missing_key_rows + k.exact_duplicate_rows + k.conflicting_rows > 0 {
         line(
             "Keys",
-            lv.key_repairs,
+            lv.of(&KEY_REPAIRS),
             format!(
                 "{} rows missing a key, {} exact copies, {} conflicting keys resolved by {}",
                 k.missing_key_rows, k.exact_duplicate_rows, k.conflicting_keys, k.policy

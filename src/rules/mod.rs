@@ -79,9 +79,11 @@ pub struct RulesFile {
     /// The panel model the user plans to estimate.
     #[serde(default)]
     pub model: Option<ModelSection>,
-    /// The verdict level of each finding.
+    /// `[verdict]`: the level (`"pass"`, `"warn"` or `"fail"`) of each finding, by its key.
+    /// The keys are declared by the code that judges them (`audit::verdict::level_keys`) and
+    /// checked, like the levels, before any file is read.
     #[serde(default)]
-    pub verdict: VerdictSection,
+    pub verdict: BTreeMap<String, String>,
     /// Further raw files joined onto the main one (`[[join]]`), in order.
     #[serde(default)]
     pub join: Vec<JoinSpec>,
@@ -114,34 +116,6 @@ pub struct JoinSpec {
     /// The sheet of a spreadsheet file (default: the first).
     #[serde(default)]
     pub sheet: Option<String>,
-}
-
-/// `[verdict]`: what each finding makes the verdict: `"pass"`, `"warn"` or `"fail"`.
-#[derive(Debug, Default, Clone, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct VerdictSection {
-    /// Keys on rows with different values left unresolved (default fail).
-    pub conflicting_keys: Option<String>,
-    /// Rows missing a key, exact copies, or conflicts resolved by a policy (default warn).
-    pub key_repairs: Option<String>,
-    /// Entities with gaps (default warn).
-    pub gaps: Option<String>,
-    /// Singletons (default warn).
-    pub singletons: Option<String>,
-    /// Leavers differing from stayers at entry (default warn).
-    pub attrition: Option<String>,
-    /// A model regressor absorbed by fixed effects or not identified (default fail).
-    pub absorbed_regressor: Option<String>,
-    /// Nearly absorbed variables (default warn).
-    pub nearly_absorbed: Option<String>,
-    /// Coverage breaks between periods (default warn).
-    pub missing_breaks: Option<String>,
-    /// Unit slips (default warn).
-    pub unit_slips: Option<String>,
-    /// Accounting-rule violations (default warn).
-    pub rule_violations: Option<String>,
-    /// Model rules of thumb that apply (default warn).
-    pub model_warnings: Option<String>,
 }
 
 /// `[model]`: the regression the diagnostics are about.

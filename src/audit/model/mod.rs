@@ -11,7 +11,7 @@ use nalgebra::{DMatrix, DVector};
 use polars::prelude::*;
 use statrs::distribution::{ChiSquared, ContinuousCDF, FisherSnedecor, Normal};
 
-use super::verdict::{line, worst, CheckVerdict, Levels, Status};
+use super::verdict::{level_key, line, worst, CheckVerdict, LevelKey, Levels, Status};
 use super::Context;
 use crate::report::{ErrorSplit, ModelReport, Report, Slope, VariationLine};
 use crate::Result;
@@ -55,6 +55,9 @@ pub struct ModelSpec {
 /// Pesaran's CD test is skipped above this many entities (n² / 2 pairs).
 const CD_MAX_ENTITIES: usize = 3000;
 
+/// Model rules of thumb that apply.
+pub const MODEL_WARNINGS: LevelKey = level_key!("model_warnings", Warn);
+
 /// The model-readiness line of the verdict: regressors no estimator identifies, and the rules
 /// of thumb that apply. None without a declared model.
 pub fn verdict(r: &Report, lv: &Levels) -> Option<CheckVerdict> {
@@ -68,7 +71,7 @@ pub fn verdict(r: &Report, lv: &Levels) -> Option<CheckVerdict> {
     let mut findings = Vec::new();
     if !not_identified.is_empty() {
         findings.push((
-            lv.absorbed_regressor,
+            lv.of(&super::variation::ABSORBED_REGRESSOR),
             format!(
                 "not identified by every estimator: {}",
                 not_identified
@@ -81,7 +84,10 @@ pub fn verdict(r: &Report, lv: &Levels) -> Option<CheckVerdict> {
     }
     let thumbs = m.warnings.len().saturating_sub(not_identified.len());
     if thumbs > 0 {
-        findings.push((lv.model_warnings, format!("{thumbs} rules of thumb apply")));
+        findings.push((
+            lv.of(&MODEL_WARNINGS),
+            format!("{thumbs} rules of thumb apply"),
+        ));
     }
     Some(if m.questions.iter().all(|q| q.tests.is_empty()) {
         line(
