@@ -11,7 +11,7 @@ use crate::clean::{self, Keys, REASON, RELATED, STEP};
 use crate::config::CsvOptions;
 use crate::load::ROW;
 use crate::report::JoinLine;
-use crate::rules::{JoinSpec, Rules};
+use crate::rules::{JoinSpec, RepeatedKeys, Rules, Unmatched};
 use crate::{Error, Result};
 
 /// The internal column holding the file a ledger row came from (`source_file` in the output).
@@ -96,32 +96,6 @@ pub fn read_tables(
         .collect()
 }
 
-/// A join's `duplicates` and `unmatched`: whether to keep the first of repeated keys, and
-/// whether to drop panel rows without a match. Checked before any data is read.
-pub fn options(spec: &JoinSpec) -> Result<(bool, bool)> {
-    let keep_first = match spec.duplicates.as_deref() {
-        None | Some("fail") => false,
-        Some("keep-first") => true,
-        Some(other) => {
-            return Err(setting(format!(
-                "`{}`: duplicates = \"{other}\": use \"fail\" or \"keep-first\"",
-                spec.file
-            )))
-        }
-    };
-    let drop_unmatched = match spec.unmatched.as_deref() {
-        None | Some("keep") => false,
-        Some("drop") => true,
-        Some(other) => {
-            return Err(setting(format!(
-                "`{}`: unmatched = \"{other}\": use \"keep\" or \"drop\"",
-                spec.file
-            )))
-        }
-    };
-    Ok((keep_first, drop_unmatched))
-}
-
 fn read_table(
     spec: &JoinSpec,
     path: &Path,
@@ -129,7 +103,8 @@ fn read_table(
     entity: &str,
     period: &str,
 ) -> Result<Table> {
-    let (keep_first, drop_unmatched) = options(spec)?;
+    let keep_first = spec.duplicates == RepeatedKeys::KeepFirst;
+    let drop_unmatched = spec.unmatched == Unmatched::Drop;
     if spec.on.is_empty() {
         return Err(setting(format!(
             "`{}`: `on` names no column to match",

@@ -70,15 +70,6 @@ pub enum Error {
     /// The expression parsed, but polars could not translate it.
     #[error("{rule}: {message}")]
     RuleExpr { rule: String, message: String },
-    /// A `[clean] duplicates` policy that we do not know.
-    #[error("rules file: `[clean] duplicates = \"{value}\"` is not a policy (fail, keep-first, keep-last, drop-all, prefer-max:COL, prefer-min:COL)")]
-    DuplicatePolicy { value: String },
-    /// A `[clean] drop_singletons` value that we do not know.
-    #[error("rules file: `[clean] drop_singletons = \"{value}\"` is not a choice (true, false, \"entity\", \"entity+period\")")]
-    SingletonPolicy { value: String },
-    /// An accounting rule with an action we do not know, or a panel function.
-    #[error("{rule}: {message}")]
-    AccountingRule { rule: String, message: String },
     /// A setting in the rules file is out of range.
     #[error("rules file: `{setting}` {message}")]
     Setting {

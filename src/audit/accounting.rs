@@ -12,40 +12,7 @@ use crate::rules::expr::{self, Scope};
 use crate::rules::{Origin, Rules, CANONICAL_COLUMNS};
 use crate::{Error, Result};
 
-/// What `build` does where a rule does not hold.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum Action {
-    /// Report only.
-    Flag,
-    /// Set the rule's columns to null.
-    Null,
-    /// Move the row to the rejects ledger.
-    Drop,
-}
-
-impl Action {
-    /// A rule's `action`; absent means `flag`.
-    pub fn parse(rule: &crate::rules::AccountingRule) -> Result<Action> {
-        match rule.action.as_deref() {
-            None | Some("flag") => Ok(Action::Flag),
-            Some("null") => Ok(Action::Null),
-            Some("drop") => Ok(Action::Drop),
-            Some(other) => Err(Error::AccountingRule {
-                rule: format!("accounting rule `{}`", rule.name),
-                message: format!("action `{other}` is not flag, null or drop"),
-            }),
-        }
-    }
-
-    /// The name used in rules files and reports.
-    pub fn label(self) -> &'static str {
-        match self {
-            Action::Flag => "flag",
-            Action::Null => "null",
-            Action::Drop => "drop",
-        }
-    }
-}
+pub use crate::rules::Action;
 
 /// One rule, ready to evaluate.
 #[derive(Debug, Clone)]
@@ -77,7 +44,7 @@ pub fn compile(rules: &Rules, raw: &[String]) -> Result<(Vec<CompiledRule>, Vec<
     let mut skipped = Vec::new();
     for (rule, origin) in &rules.accounting {
         let label = format!("accounting rule `{}`", rule.name);
-        let action = Action::parse(rule)?;
+        let action = rule.action;
         let compiled = match expr::compile(&label, &rule.expr, &scope) {
             Ok(c) => c,
             Err(Error::UnknownColumn { column, .. })

@@ -6,46 +6,12 @@ use polars::prelude::*;
 
 use super::{drop_where, Keys};
 use crate::report::{BalanceLine, WindowScore};
-use crate::rules::BalanceSpec;
-use crate::{Error, Result};
+use crate::Result;
 
-/// How `build` balances the panel.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum Balance {
-    /// Leave it unbalanced.
-    Keep,
-    /// Keep entities observed in every period of first..last, cut to it.
-    Window(i64, i64),
-    /// The window with the most entities × periods.
-    Largest,
-}
+pub use crate::rules::Balance;
 
 /// How many runner-up windows the report lists.
 const RUNNERS_UP: usize = 5;
-
-impl Balance {
-    /// Parse `[clean] balance`.
-    pub fn parse(spec: Option<&BalanceSpec>) -> Result<Balance> {
-        let bad = |message: String| Error::Setting {
-            setting: "[clean] balance",
-            message,
-        };
-        Ok(match spec {
-            None => Balance::Keep,
-            Some(BalanceSpec::Mode(m)) if m == "keep" => Balance::Keep,
-            Some(BalanceSpec::Mode(m)) if m == "largest" => Balance::Largest,
-            Some(BalanceSpec::Mode(m)) => {
-                return Err(bad(format!(
-                    "\"{m}\" is not \"keep\", \"largest\" or {{ window = [FIRST, LAST] }}"
-                )))
-            }
-            Some(BalanceSpec::Window { window: [a, b] }) if a <= b => Balance::Window(*a, *b),
-            Some(BalanceSpec::Window { .. }) => {
-                return Err(bad("window must be [FIRST, LAST] with FIRST <= LAST".into()))
-            }
-        })
-    }
-}
 
 /// Every window's score from the distinct keys: for each (first, last), the entities
 /// observed in every period of it. Sorted best first (entities × periods, then longer, then

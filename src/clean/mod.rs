@@ -10,7 +10,7 @@ use polars::prelude::*;
 
 use crate::load::ROW;
 use crate::report::{KeyExample, KeysSummary, SampleStep};
-use crate::rules::SingletonDrop;
+pub use crate::rules::{DuplicatePolicy, SingletonPolicy};
 use crate::{Error, Result};
 
 /// Ledger column: the cleaning step that removed the row (`step` in the output).
@@ -19,61 +19,6 @@ pub const STEP: &str = "__step";
 pub const REASON: &str = "__reason";
 /// Ledger column: the row that was kept instead, where there is one (`related_row`).
 pub const RELATED: &str = "__related";
-
-/// What to do with entity-period keys that appear on rows with different values.
-#[derive(Debug, Clone, PartialEq, Eq)]
-pub enum DuplicatePolicy {
-    /// Stop with an error (the default for `build`).
-    Fail,
-    /// Keep the row that comes first in the file.
-    KeepFirst,
-    /// Keep the row that comes last in the file.
-    KeepLast,
-    /// Drop every row of a conflicting key.
-    DropAll,
-    /// Keep the row with the largest value of the column (ties: the first such row).
-    PreferMax(String),
-    /// Keep the row with the smallest value of the column (ties: the first such row).
-    PreferMin(String),
-    /// Keep every row and only report (what `audit` does).
-    Report,
-}
-
-impl DuplicatePolicy {
-    /// Parse `[clean] duplicates`; absent means `fail`.
-    pub fn parse(value: Option<&str>) -> Result<DuplicatePolicy> {
-        let Some(value) = value else {
-            return Ok(DuplicatePolicy::Fail);
-        };
-        let bad = || Error::DuplicatePolicy {
-            value: value.to_string(),
-        };
-        Ok(match value {
-            "fail" => DuplicatePolicy::Fail,
-            "keep-first" => DuplicatePolicy::KeepFirst,
-            "keep-last" => DuplicatePolicy::KeepLast,
-            "drop-all" => DuplicatePolicy::DropAll,
-            v => match v.split_once(':') {
-                Some(("prefer-max", c)) if !c.is_empty() => DuplicatePolicy::PreferMax(c.into()),
-                Some(("prefer-min", c)) if !c.is_empty() => DuplicatePolicy::PreferMin(c.into()),
-                _ => return Err(bad()),
-            },
-        })
-    }
-
-    /// The name written into the ledger and the report.
-    pub fn label(&self) -> String {
-        match self {
-            DuplicatePolicy::Fail => "fail".into(),
-            DuplicatePolicy::KeepFirst => "keep-first".into(),
-            DuplicatePolicy::KeepLast => "keep-last".into(),
-            DuplicatePolicy::DropAll => "drop-all".into(),
-            DuplicatePolicy::PreferMax(c) => format!("prefer-max:{c}"),
-            DuplicatePolicy::PreferMin(c) => format!("prefer-min:{c}"),
-            DuplicatePolicy::Report => "report only".into(),
-        }
-    }
-}
 
 /// The panel after the key steps, with what they removed.
 pub struct KeyResult {
@@ -440,32 +385,6 @@ pub fn keep_rows(df: DataFrame, keep: &BooleanChunked) -> Result<DataFrame> {
     Ok(DataFrame::new(height, columns)?)
 }
 
-/// Which singletons `build` drops.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum SingletonPolicy {
-    /// Keep them (the default).
-    Keep,
-    /// Drop entities observed in one period only.
-    Entity,
-    /// Drop rows whose entity or period has one row, again and again until none is left.
-    EntityPeriod,
-}
-
-impl SingletonPolicy {
-    /// Parse `[clean] drop_singletons`.
-    pub fn parse(value: Option<&SingletonDrop>) -> Result<SingletonPolicy> {
-        Ok(match value {
-            None | Some(SingletonDrop::Flag(false)) => SingletonPolicy::Keep,
-            Some(SingletonDrop::Flag(true)) => SingletonPolicy::Entity,
-            Some(SingletonDrop::Mode(m)) if m == "entity" => SingletonPolicy::Entity,
-            Some(SingletonDrop::Mode(m)) if m == "entity+period" => SingletonPolicy::EntityPeriod,
-            Some(SingletonDrop::Mode(m)) => {
-                return Err(Error::SingletonPolicy { value: m.clone() })
-            }
-        })
-    }
-}
-
 /// Drop singletons by the policy; returns the kept rows and the ledger part, if any.
 pub fn drop_singletons(
     df: DataFrame,
@@ -636,15 +555,5 @@ mod tests {
         assert_eq!((r.keys.conflicting_keys, r.keys.conflicting_rows), (1, 2));
         let err = run(DuplicatePolicy::Fail).err().unwrap().to_string();
         assert!(err.contains("entity `b`, period 1"), "{err}");
-    }
-
-    #[test]
-    fn policy_names_parse() {
-        assert_eq!(DuplicatePolicy::parse(None).unwrap(), DuplicatePolicy::Fail);
-        assert_eq!(
-            DuplicatePolicy::parse(Some("prefer-min:assets")).unwrap(),
-            DuplicatePolicy::PreferMin("assets".into())
-        );
-        assert!(DuplicatePolicy::parse(Some("newest")).is_err());
     }
 }

@@ -10,31 +10,7 @@ use polars::prelude::*;
 use crate::core::{log_ratios, magnitude, PanelCore, Values};
 use crate::{Error, Result};
 
-/// What to do with a detected unit slip.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum SlipPolicy {
-    /// List it in the report only (the default).
-    Report,
-    /// Divide the slipped cell by the detected power of 1000.
-    Rescale,
-    /// Set the slipped cell to null.
-    Null,
-}
-
-impl SlipPolicy {
-    /// `[repair] unit_slips`.
-    pub fn parse(value: Option<&str>) -> Result<SlipPolicy> {
-        match value {
-            None | Some("report") => Ok(SlipPolicy::Report),
-            Some("rescale") => Ok(SlipPolicy::Rescale),
-            Some("null") => Ok(SlipPolicy::Null),
-            Some(other) => Err(Error::Setting {
-                setting: "[repair] unit_slips",
-                message: format!("\"{other}\" is not a policy (report, rescale, null)"),
-            }),
-        }
-    }
-}
+pub use crate::rules::SlipPolicy;
 
 /// The corrections file: one override per line.
 #[derive(Debug, Clone)]

@@ -9,7 +9,7 @@ use super::{drop_where, Keys};
 use crate::core::{type7, PanelCore, Values};
 use crate::report::CutoffGroups;
 use crate::report::{Cutoff, GroupCutoff, Histogram, TreatLine};
-use crate::rules::{TreatBy, TreatSpec};
+use crate::rules::TreatSpec;
 use crate::{Error, Result};
 
 /// Winsorize or trim.
@@ -56,44 +56,19 @@ pub struct Treatment {
 }
 
 impl Treatment {
-    /// Check the values of a `[clean] winsorize` or `trim` table (cutoffs, `by`), before any
-    /// data is read; the names stay as written until [`Treatment::resolve`].
-    pub fn from_spec(method: Method, spec: &TreatSpec) -> Result<Treatment> {
-        let bad = |message: &str| Error::Setting {
-            setting: method.setting(),
-            message: message.to_string(),
-        };
-        let lower = spec.lower.unwrap_or(0.01);
-        let upper = spec.upper.unwrap_or(0.99);
-        if !(0.0 <= lower && lower < upper && upper <= 1.0) {
-            return Err(bad(
-                "needs 0 <= lower < upper <= 1 (fractions, e.g. 0.01 and 0.99)",
-            ));
-        }
-        let (by, groups) = match &spec.by {
-            None => (CutoffGroups::Pooled, Vec::new()),
-            Some(TreatBy::Word(w)) if w == "pooled" => (CutoffGroups::Pooled, Vec::new()),
-            Some(TreatBy::Word(w)) if w == "period" => (CutoffGroups::Period, Vec::new()),
-            Some(TreatBy::Word(_)) => {
-                return Err(bad(
-                    "`by` must be \"pooled\", \"period\" or a list of grouping columns",
-                ))
-            }
-            Some(TreatBy::Columns(list)) => {
-                if list.is_empty() {
-                    return Err(bad("`by` lists no grouping column"));
-                }
-                (CutoffGroups::Groups, list.clone())
-            }
-        };
-        Ok(Treatment {
+    /// The treatment a `[clean] winsorize` or `trim` table asks for (its values typed and
+    /// checked as the rules file was read); the names stay as written until
+    /// [`Treatment::resolve`].
+    pub fn from_spec(method: Method, spec: &TreatSpec) -> Treatment {
+        let c = &spec.cutoffs;
+        Treatment {
             method,
             variables: spec.variables.clone(),
-            lower,
-            upper,
-            by,
-            groups,
-        })
+            lower: c.lower,
+            upper: c.upper,
+            by: c.by,
+            groups: c.groups.clone(),
+        }
     }
 
     /// The names of the variables and grouping columns mapped to the panel's columns

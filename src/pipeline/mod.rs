@@ -9,7 +9,7 @@ use polars::prelude::*;
 
 use crate::assemble;
 use crate::audit::model::{Effects, ModelSpec};
-use crate::audit::{self, accounting, Context, CutoffGroups, Options, Settings};
+use crate::audit::{self, accounting, Context, Options, Settings};
 use crate::clean::balance::{self, Balance};
 use crate::clean::treat::{Method, Treatment};
 use crate::clean::{self, repair, DuplicatePolicy, Keys, SingletonPolicy};

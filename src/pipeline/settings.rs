@@ -65,31 +65,8 @@ pub(super) fn settings(rules: &crate::rules::Rules) -> Result<Settings> {
         }
     }
     if let Some(o) = &rules.file.audit.outliers {
-        s.lower = o.lower.unwrap_or(s.lower);
-        s.upper = o.upper.unwrap_or(s.upper);
-        if !(0.0 < s.lower && s.lower < s.upper && s.upper < 1.0) {
-            return Err(bad(
-                "[audit] outliers",
-                "needs 0 < lower < upper < 1 (fractions, e.g. 0.01 and 0.99)",
-            ));
-        }
-        use crate::rules::TreatBy;
-        s.by = match &o.by {
-            None => CutoffGroups::Pooled,
-            Some(TreatBy::Word(w)) if w == "pooled" => CutoffGroups::Pooled,
-            Some(TreatBy::Word(w)) if w == "period" => CutoffGroups::Period,
-            Some(TreatBy::Columns(c)) if !c.is_empty() => {
-                s.group_columns = c.iter().map(|c| rules.resolve(c)).collect();
-                CutoffGroups::Groups
-            }
-            Some(_) => {
-                return Err(bad(
-                    "[audit] outliers",
-                    "`by` must be \"pooled\", \"period\" or grouping columns such as \
-                     [\"sector\", \"fiscal_year\"]",
-                ))
-            }
-        };
+        (s.lower, s.upper, s.by) = (o.lower, o.upper, o.by);
+        s.group_columns = o.groups.iter().map(|c| rules.resolve(c)).collect();
     }
     Ok(s)
 }
@@ -138,9 +115,12 @@ pub(super) fn resolve_policy(policy: DuplicatePolicy, input: &InputConfig) -> Du
     }
 }
 
-/// Every value of the rules file that needs no data, typed: checked in one place, before any
-/// file is read, and identically for `audit` and `build`. Names of columns are checked as
-/// soon as the panel's columns are known.
+/// The settings of a run: the rules file's typed values (typed as the file was read,
+/// `rules::policy`) with what still needs the command or the keys — `audit` reporting
+/// conflicting keys instead of failing, `prefer-max:COL` mapped to a raw column, `[model]
+/// effects` named by the key columns, the `[verdict]` keys the checks declare, the ranges of
+/// the thresholds — all before any file is read, identically for `audit` and `build`. Names of
+/// columns are checked as soon as the panel's columns are known.
 pub(super) struct Typed {
     /// `[clean] duplicates` (`audit` turns `fail` into reporting).
     pub policy: DuplicatePolicy,
@@ -160,49 +140,35 @@ pub(super) struct Typed {
     pub treatments: Vec<Treatment>,
 }
 
-/// Type and check every value of the rules file that needs no data.
+/// The settings of a run, from the rules file and the command; no file is read.
 pub(super) fn typed(input: &InputConfig, mode: Mode) -> Result<Typed> {
     let file = &input.rules.file;
-    let policy = match (
-        mode,
-        DuplicatePolicy::parse(file.clean.duplicates.as_deref())?,
-    ) {
+    let policy = match (mode, file.clean.duplicates.clone()) {
         (Mode::Audit, DuplicatePolicy::Fail) => DuplicatePolicy::Report,
         (_, p) => resolve_policy(p, input),
     };
-    let singletons = SingletonPolicy::parse(file.clean.drop_singletons.as_ref())?;
-    let balance = Balance::parse(file.clean.balance.as_ref())?;
-    let slips = repair::SlipPolicy::parse(file.repair.unit_slips.as_deref())?;
     if file.panel.year_end_cutoff.is_some_and(|m| m > 12) {
         return Err(Error::Setting {
             setting: "[panel] year_end_cutoff",
             message: "a month, 0 to 12 (0: a fiscal year is the calendar year of its end)".into(),
         });
     }
-    let mut treatments = Vec::new();
-    for (method, spec) in [
+    let treatments = [
         (Method::Winsorize, &file.clean.winsorize),
         (Method::Trim, &file.clean.trim),
-    ] {
-        if let Some(spec) = spec {
-            treatments.push(Treatment::from_spec(method, spec)?);
-        }
-    }
-    for join in &file.join {
-        assemble::options(join)?;
-    }
-    for (rule, _) in &input.rules.accounting {
-        accounting::Action::parse(rule)?;
-    }
+    ]
+    .into_iter()
+    .filter_map(|(method, spec)| spec.as_ref().map(|s| Treatment::from_spec(method, s)))
+    .collect();
     let effects = match &file.model {
         Some(m) => Some(model_effects(m.effects.as_ref(), input)?),
         None => None,
     };
     Ok(Typed {
         policy,
-        singletons,
-        balance,
-        slips,
+        singletons: file.clean.drop_singletons,
+        balance: file.clean.balance,
+        slips: file.repair.unit_slips,
         levels: audit::verdict::Levels::from_rules(file)?,
         settings: settings(&input.rules)?,
         effects,

@@ -1,7 +1,14 @@
-//! The rules file: its serde model, the built-in libraries it can include, and the
-//! translation of derived-variable expressions into polars plans (`expr`).
+//! The rules file: its serde model (every value that needs no data typed as it is read,
+//! `policy`), the built-in libraries it can include, and the translation of derived-variable
+//! expressions into polars plans (`expr`).
 
 pub(crate) mod expr;
+mod policy;
+
+pub use policy::{
+    Action, Balance, CutoffGroups, Cutoffs, DuplicatePolicy, RepeatedKeys, SingletonPolicy,
+    SlipPolicy, TreatSpec, Unmatched,
+};
 
 use std::collections::BTreeMap;
 
@@ -92,7 +99,7 @@ pub struct RulesFile {
 /// `[[join]]`: a further raw file (firm-year, firm, year or group-year table) joined onto the
 /// panel after the key steps.
 #[derive(Debug, Clone, Deserialize)]
-#[serde(deny_unknown_fields)]
+#[serde(try_from = "JoinFields")]
 pub struct JoinSpec {
     /// The file, relative to the rules file (CSV, Parquet or spreadsheet; CSV read with the
     /// main file's `[input]` settings).
@@ -101,21 +108,69 @@ pub struct JoinSpec {
     /// column of the panel.
     pub on: Vec<String>,
     /// The columns brought in, as named in the panel (default: every other column).
-    #[serde(default)]
     pub columns: Option<Vec<String>>,
     /// Column names of the joined file -> names in the panel.
-    #[serde(default)]
     pub rename: BTreeMap<String, String>,
     /// `"fail"` (default) or `"keep-first"` when a key repeats with other values.
-    #[serde(default)]
-    pub duplicates: Option<String>,
+    pub duplicates: RepeatedKeys,
     /// `"keep"` (default: left join) or `"drop"` (panel rows without a match go to the
     /// ledger).
-    #[serde(default)]
-    pub unmatched: Option<String>,
+    pub unmatched: Unmatched,
     /// The sheet of a spreadsheet file (default: the first).
-    #[serde(default)]
     pub sheet: Option<String>,
+}
+
+/// `[[join]]` as written.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct JoinFields {
+    file: String,
+    on: Vec<String>,
+    #[serde(default)]
+    columns: Option<Vec<String>>,
+    #[serde(default)]
+    rename: BTreeMap<String, String>,
+    #[serde(default)]
+    duplicates: Option<String>,
+    #[serde(default)]
+    unmatched: Option<String>,
+    #[serde(default)]
+    sheet: Option<String>,
+}
+
+impl TryFrom<JoinFields> for JoinSpec {
+    type Error = String;
+    fn try_from(f: JoinFields) -> std::result::Result<JoinSpec, String> {
+        let duplicates = match f.duplicates.as_deref() {
+            None | Some("fail") => RepeatedKeys::Fail,
+            Some("keep-first") => RepeatedKeys::KeepFirst,
+            Some(other) => {
+                return Err(format!(
+                    "`[[join]]` `{}`: duplicates = \"{other}\": use \"fail\" or \"keep-first\"",
+                    f.file
+                ))
+            }
+        };
+        let unmatched = match f.unmatched.as_deref() {
+            None | Some("keep") => Unmatched::Keep,
+            Some("drop") => Unmatched::Drop,
+            Some(other) => {
+                return Err(format!(
+                    "`[[join]]` `{}`: unmatched = \"{other}\": use \"keep\" or \"drop\"",
+                    f.file
+                ))
+            }
+        };
+        Ok(JoinSpec {
+            file: f.file,
+            on: f.on,
+            columns: f.columns,
+            rename: f.rename,
+            duplicates,
+            unmatched,
+            sheet: f.sheet,
+        })
+    }
 }
 
 /// `[model]`: the regression the diagnostics are about.
@@ -148,18 +203,44 @@ pub enum EffectsSpec {
 
 /// `[[rule]]`: an accounting identity or bound that should hold on every row.
 #[derive(Debug, Clone, Deserialize)]
-#[serde(deny_unknown_fields)]
+#[serde(try_from = "RuleFields")]
 pub struct AccountingRule {
     /// The rule's name, as reported.
     pub name: String,
     /// An SQL boolean expression that must hold.
     pub expr: String,
     /// `flag` (default), `null` or `drop`.
-    #[serde(default)]
-    pub action: Option<String>,
+    pub action: Action,
     /// With `null`: the columns to set to null (default: every column the rule names).
-    #[serde(default)]
     pub columns: Option<Vec<String>>,
+}
+
+/// `[[rule]]` as written.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RuleFields {
+    name: String,
+    expr: String,
+    #[serde(default)]
+    action: Option<String>,
+    #[serde(default)]
+    columns: Option<Vec<String>>,
+}
+
+impl TryFrom<RuleFields> for AccountingRule {
+    type Error = String;
+    fn try_from(f: RuleFields) -> std::result::Result<AccountingRule, String> {
+        let action = match &f.action {
+            Some(a) => Action::parse(&f.name, a)?,
+            None => Action::default(),
+        };
+        Ok(AccountingRule {
+            name: f.name,
+            expr: f.expr,
+            action,
+            columns: f.columns,
+        })
+    }
 }
 
 /// `[audit]`: settings of the checks.
@@ -173,23 +254,8 @@ pub struct AuditSection {
     #[serde(default)]
     pub levels: Option<Vec<String>>,
     /// Outlier cutoffs.
-    #[serde(default)]
-    pub outliers: Option<OutlierSpec>,
-}
-
-/// `[audit] outliers`: percentile cutoffs of the outlier check.
-#[derive(Debug, Clone, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct OutlierSpec {
-    /// Lower percentile as a fraction (default 0.01).
-    #[serde(default)]
-    pub lower: Option<f64>,
-    /// Upper percentile as a fraction (default 0.99).
-    #[serde(default)]
-    pub upper: Option<f64>,
-    /// `"pooled"` (default), `"period"`, or grouping columns such as `["sector", "fiscal_year"]`.
-    #[serde(default)]
-    pub by: Option<TreatBy>,
+    #[serde(default, deserialize_with = "policy::outliers")]
+    pub outliers: Option<Cutoffs>,
 }
 
 /// `[thresholds]`: the numbers behind warnings.
@@ -232,7 +298,8 @@ pub struct InputSection {
 #[serde(deny_unknown_fields)]
 pub struct RepairSection {
     /// Detected unit slips: `report` (default), `rescale` or `null`.
-    pub unit_slips: Option<String>,
+    #[serde(default)]
+    pub unit_slips: SlipPolicy,
     /// A CSV of firm-year overrides (`entity,period,column,value,reason`), relative to the
     /// rules file.
     pub corrections: Option<String>,
@@ -291,39 +358,22 @@ pub struct NullWhen {
 #[derive(Debug, Default, Clone, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct CleanSection {
-    /// Policy for conflicting duplicate keys; see `DuplicatePolicy`.
+    /// Policy for conflicting duplicate keys (default `fail`).
     #[serde(default)]
-    pub duplicates: Option<String>,
+    pub duplicates: DuplicatePolicy,
     /// Drop singletons: `false` (default), `true` or `"entity"` for entities with one row,
     /// `"entity+period"` for the iterated two-way rule.
     #[serde(default)]
-    pub drop_singletons: Option<SingletonDrop>,
+    pub drop_singletons: SingletonPolicy,
     /// Replace values beyond percentile cutoffs by the cutoffs.
-    #[serde(default)]
+    #[serde(default, deserialize_with = "policy::winsorize")]
     pub winsorize: Option<TreatSpec>,
     /// Drop rows with values beyond percentile cutoffs.
-    #[serde(default)]
+    #[serde(default, deserialize_with = "policy::trim")]
     pub trim: Option<TreatSpec>,
     /// `"keep"` (default), `"largest"` or `{ window = [FIRST, LAST] }`.
     #[serde(default)]
-    pub balance: Option<BalanceSpec>,
-}
-
-/// `[clean] winsorize` / `trim`: which variables, which percentiles, pooled or by period.
-#[derive(Debug, Clone, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct TreatSpec {
-    /// Variables treated (raw, canonical or derived names).
-    pub variables: Vec<String>,
-    /// Lower percentile as a fraction (default 0.01).
-    #[serde(default)]
-    pub lower: Option<f64>,
-    /// Upper percentile as a fraction (default 0.99).
-    #[serde(default)]
-    pub upper: Option<f64>,
-    /// `"pooled"` (default), `"period"`, or grouping columns such as `["sector", "fiscal_year"]`.
-    #[serde(default)]
-    pub by: Option<TreatBy>,
+    pub balance: Balance,
 }
 
 /// `by` of a treatment: a word (`"pooled"`, `"period"`) or grouping columns.
