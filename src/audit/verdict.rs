@@ -13,8 +13,6 @@ pub use crate::report::{CheckVerdict, Status, Verdict};
 pub struct LevelKey {
     /// The key under `[verdict]`.
     pub name: &'static str,
-    /// `[verdict] name`, for messages.
-    pub setting: &'static str,
     /// The level without a setting.
     pub default: Status,
 }
@@ -26,7 +24,6 @@ macro_rules! level_key {
     ($name:literal, $default:ident) => {
         $crate::audit::verdict::LevelKey {
             name: $name,
-            setting: concat!("[verdict] ", $name),
             default: $crate::report::Status::$default,
         }
     };
@@ -78,7 +75,7 @@ impl Levels {
     pub fn from_rules(rules: &crate::rules::RulesFile) -> crate::Result<Levels> {
         let mut l = Levels::default();
         let keys = level_keys();
-        for (name, text) in &rules.verdict {
+        for (name, status) in &rules.verdict {
             let Some(key) = keys.iter().find(|k| k.name == name) else {
                 let known: Vec<&str> = keys.iter().map(|k| k.name).collect();
                 return Err(crate::Error::Setting {
@@ -89,18 +86,7 @@ impl Levels {
                     ),
                 });
             };
-            let status = match text.as_str() {
-                "pass" => Status::Pass,
-                "warn" => Status::Warn,
-                "fail" => Status::Fail,
-                other => {
-                    return Err(crate::Error::Setting {
-                        setting: key.setting,
-                        message: format!("\"{other}\" is not \"pass\", \"warn\" or \"fail\""),
-                    })
-                }
-            };
-            l.set.insert(key.name, status);
+            l.set.insert(key.name, *status);
         }
         if let Some(p) = rules.thresholds.attrition_p {
             if !(0.0 < p && p < 1.0) {

@@ -88,9 +88,9 @@ pub struct RulesFile {
     pub model: Option<ModelSection>,
     /// `[verdict]`: the level (`"pass"`, `"warn"` or `"fail"`) of each finding, by its key.
     /// The keys are declared by the code that judges them (`audit::verdict::level_keys`) and
-    /// checked, like the levels, before any file is read.
-    #[serde(default)]
-    pub verdict: BTreeMap<String, String>,
+    /// checked against them before any file is read.
+    #[serde(default, deserialize_with = "policy::verdict")]
+    pub verdict: BTreeMap<String, crate::report::Status>,
     /// Further raw files joined onto the main one (`[[join]]`), in order.
     #[serde(default)]
     pub join: Vec<JoinSpec>,

@@ -8,6 +8,8 @@ use serde::{de, Deserialize, Deserializer};
 
 use super::{BalanceSpec, SingletonDrop, TreatBy};
 pub use crate::report::CutoffGroups;
+use crate::report::Status;
+use std::collections::BTreeMap;
 
 /// Deserialise `R` and turn it into `T`, the error becoming the parse error's message.
 fn typed<'de, D, R, T>(d: D, make: impl FnOnce(R) -> Result<T, String>) -> Result<T, D::Error>
@@ -350,6 +352,30 @@ pub(super) fn winsorize<'de, D: Deserializer<'de>>(d: D) -> Result<Option<TreatS
 /// `[clean] trim`.
 pub(super) fn trim<'de, D: Deserializer<'de>>(d: D) -> Result<Option<TreatSpec>, D::Error> {
     typed(d, |f| treat_spec("[clean] trim", f))
+}
+
+/// `[verdict]`: each finding's level, `"pass"`, `"warn"` or `"fail"`, by its key (the keys
+/// are declared by the checks and checked against them by `audit::verdict::Levels`).
+pub(super) fn verdict<'de, D: Deserializer<'de>>(
+    d: D,
+) -> Result<BTreeMap<String, Status>, D::Error> {
+    typed(d, |m: BTreeMap<String, String>| {
+        m.into_iter()
+            .map(|(key, level)| {
+                let status = match level.as_str() {
+                    "pass" => Status::Pass,
+                    "warn" => Status::Warn,
+                    "fail" => Status::Fail,
+                    other => {
+                        return Err(format!(
+                            "`[verdict] {key}` \"{other}\" is not \"pass\", \"warn\" or \"fail\""
+                        ))
+                    }
+                };
+                Ok((key, status))
+            })
+            .collect()
+    })
 }
 
 #[cfg(test)]
