@@ -6,7 +6,7 @@ use polars::prelude::*;
 
 use super::names::*;
 use super::verdict::{level_key, line, worst, CheckVerdict, LevelKey, Levels, Status};
-use super::{own, scalar_f64, scalar_u64, Check, Context};
+use super::{scalar_f64, scalar_u64, unchanged, Check, Context};
 use crate::report::layout::{num, pairs, strings, Block, Section};
 use crate::report::{
     Coverage as Figures, CoverageGrid, Distribution, Finding, GridRow, Report, Shape,
@@ -90,11 +90,11 @@ impl Check for Coverage {
     /// Coverage counts keys: with the same rows, the cleaned panel's is the one as read.
     fn after_treatment(
         &self,
-        _ctx: &Context,
+        ctx: &Context,
         read: &dyn Finding,
         _treated: &[String],
     ) -> Result<Box<dyn Finding>> {
-        Ok(Box::new(own::<Figures>(read).cloned().unwrap_or_default()))
+        unchanged::<Figures>(self, ctx, read)
     }
 
     fn verdict(&self, r: &Report, lv: &Levels) -> Option<CheckVerdict> {

@@ -4,7 +4,7 @@
 use polars::prelude::*;
 
 use super::verdict::{level_key, line, CheckVerdict, LevelKey, Levels, Status};
-use super::{own, Check, Context};
+use super::{unchanged, Check, Context};
 use crate::report::layout::{num, strings, Block, Section};
 use crate::report::{
     Finding, MissingBreak, MissingByPeriod, MissingFigures as Figures, MissingLine, Report, ToJson,
@@ -117,11 +117,11 @@ impl Check for Missing {
     /// Treatment changes values, never whether one is missing: the figures as read stand.
     fn after_treatment(
         &self,
-        _ctx: &Context,
+        ctx: &Context,
         read: &dyn Finding,
         _treated: &[String],
     ) -> Result<Box<dyn Finding>> {
-        Ok(Box::new(own::<Figures>(read).cloned().unwrap_or_default()))
+        unchanged::<Figures>(self, ctx, read)
     }
 
     fn verdict(&self, r: &Report, lv: &Levels) -> Option<CheckVerdict> {

@@ -420,9 +420,22 @@ pub trait Check {
     }
 }
 
-/// The finding of type `T` among `findings`, for a check reading back its own figures.
+/// `finding` as the check's own figures `T`, if it is.
 pub(crate) fn own<T: Finding>(finding: &dyn Finding) -> Option<&T> {
     (finding as &dyn std::any::Any).downcast_ref::<T>()
+}
+
+/// `Check::after_treatment` of a check whose figures treatment cannot change: the figures as
+/// read, `read` (computed again should it not be the check's own).
+pub(crate) fn unchanged<T: Finding + Clone>(
+    check: &dyn Check,
+    ctx: &Context,
+    read: &dyn Finding,
+) -> Result<Box<dyn Finding>> {
+    match own::<T>(read) {
+        Some(figures) => Ok(Box::new(figures.clone())),
+        None => check.run(ctx),
+    }
 }
 
 /// Every check, in report order: their findings, sections and verdict lines follow it.
