@@ -105,8 +105,9 @@ pub(crate) struct CompareArgs {
 /// Where the data is and how to read its keys.
 #[derive(Debug, Args)]
 pub(crate) struct InputArgs {
-    /// The raw panel: a CSV, Parquet or spreadsheet file, one row per firm-year (further
-    /// files joined onto it are named in the rules file's [[join]] sections).
+    /// The raw panel: a CSV, Parquet or spreadsheet file, or a folder of Parquet files
+    /// (hive-partitioned or not), one row per firm-year (further files joined onto it are
+    /// named in the rules file's [[join]] sections).
     pub(crate) data: PathBuf,
 
     #[command(flatten)]
@@ -123,6 +124,12 @@ pub(crate) struct InputArgs {
     /// on stderr when the run ends.
     #[arg(long)]
     pub(crate) timings: bool,
+
+    /// Stop before reading the panel when the run would need more memory than SIZE (such as
+    /// `8GiB`, `500MB`): an estimate from the input's rows and columns and the derived
+    /// variables, since the whole panel is held in memory.
+    #[arg(long, value_name = "SIZE")]
+    pub(crate) memory_budget: Option<String>,
 }
 
 /// The rules file and the panel keys: shared by every command that reads a raw panel.

@@ -117,6 +117,8 @@ pub struct InputConfig {
     pub csv: CsvOptions,
     /// The sheet of a spreadsheet input (default: the first).
     pub sheet: Option<String>,
+    /// Stop before reading when the run's estimated peak memory exceeds this many bytes.
+    pub memory_budget: Option<u64>,
 }
 
 /// How a CSV input is read: from `[input]` in the rules file, overridden on the command line.
@@ -413,7 +415,9 @@ impl Command {
             CliCommand::Compare(c) => {
                 let format = report_format(c.report.as_deref(), c.format)?;
                 let side = |path: &Path| -> Result<Side> {
-                    if path.is_dir() {
+                    // A folder is a bundle, unless it is a Parquet dataset without a manifest.
+                    let dataset = !path.join("manifest.json").is_file() && holds_parquet(path);
+                    if path.is_dir() && !dataset {
                         return Ok(Side::Bundle(path.to_path_buf()));
                     }
                     let args = InputArgs {
@@ -422,6 +426,7 @@ impl Command {
                         read: c.read.clone(),
                         quiet: true,
                         timings: false,
+                        memory_budget: None,
                     };
                     Ok(Side::Raw(Box::new(InputConfig::from_args(args)?)))
                 };
@@ -512,6 +517,7 @@ impl InputConfig {
             timings: a.timings,
             csv,
             sheet,
+            memory_budget: a.memory_budget.as_deref().map(parse_size).transpose()?,
         })
     }
 
@@ -542,11 +548,80 @@ impl InputConfig {
             timings: false,
             sheet,
             csv,
+            memory_budget: None,
         })
     }
 }
 
+/// Whether `path` is a folder with a Parquet file somewhere below it (a dataset, partitioned
+/// into `key=value` folders or not).
+pub fn holds_parquet(path: &Path) -> bool {
+    parquet_files(path).is_ok_and(|files| !files.is_empty())
+}
+
+/// The Parquet files below the folder `dir`, sorted by path (hidden files and those starting
+/// with `_`, which writers use for metadata, left out).
+pub fn parquet_files(dir: &Path) -> Result<Vec<std::path::PathBuf>> {
+    let mut files = Vec::new();
+    let mut folders = vec![dir.to_path_buf()];
+    while let Some(folder) = folders.pop() {
+        for entry in std::fs::read_dir(&folder).map_err(Error::io(&folder))? {
+            let path = entry.map_err(Error::io(&folder))?.path();
+            let name = path.file_name().map(|n| n.to_string_lossy().to_string());
+            if name
+                .as_deref()
+                .is_some_and(|n| n.starts_with('.') || n.starts_with('_'))
+            {
+                continue;
+            }
+            if path.is_dir() {
+                folders.push(path);
+            } else if name.is_some_and(|n| n.ends_with(".parquet") || n.ends_with(".pq")) {
+                files.push(path);
+            }
+        }
+    }
+    files.sort();
+    Ok(files)
+}
+
+/// A size such as `8GiB`, `8 GB`, `500MiB`, `2g` or a number of bytes. Binary and decimal
+/// units are both taken at their word (GiB = 2^30, GB = 10^9).
+pub(crate) fn parse_size(text: &str) -> Result<u64> {
+    let bad = || Error::BadOption {
+        option: "memory-budget",
+        message: format!("\"{text}\" is not a size such as 8GiB, 500MB or 2000000000"),
+    };
+    let t = text.trim();
+    let split = t
+        .find(|c: char| !(c.is_ascii_digit() || c == '.'))
+        .unwrap_or(t.len());
+    let (number, unit) = t.split_at(split);
+    let number: f64 = number.parse().map_err(|_| bad())?;
+    let factor: f64 = match unit.trim().to_ascii_lowercase().as_str() {
+        "" | "b" => 1.0,
+        "k" | "kb" => 1e3,
+        "m" | "mb" => 1e6,
+        "g" | "gb" => 1e9,
+        "t" | "tb" => 1e12,
+        "kib" => 1024.0,
+        "mib" => 1024f64.powi(2),
+        "gib" => 1024f64.powi(3),
+        "tib" => 1024f64.powi(4),
+        _ => return Err(bad()),
+    };
+    let bytes = number * factor;
+    if !(bytes >= 1.0 && bytes.is_finite()) {
+        return Err(bad());
+    }
+    Ok(bytes as u64)
+}
+
 pub(crate) fn format_from_extension(path: &Path) -> Result<InputFormat> {
+    // A folder is a Parquet dataset: its Parquet files, partitioned or not.
+    if path.is_dir() {
+        return Ok(InputFormat::Parquet);
+    }
     let name = path
         .file_name()
         .map(|n| n.to_string_lossy().to_ascii_lowercase())

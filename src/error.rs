@@ -111,9 +111,18 @@ pub enum Error {
         entity: String,
         period: i64,
     },
-    /// The input file does not exist (or is a folder).
+    /// The input file does not exist (or is a folder without Parquet files).
     #[error("`{file}`: no such file")]
     NoInput { file: PathBuf },
+    /// The run would need more memory than `--memory-budget` allows.
+    #[error("`{file}`: holding its {rows} rows × {columns} columns (with the derived variables) needs about {needed} at the peak, more than the memory budget of {budget} (`--memory-budget`); the whole panel is held in memory: raise the budget, or split the panel, by period range or by entities")]
+    MemoryBudget {
+        file: PathBuf,
+        rows: u64,
+        columns: usize,
+        needed: String,
+        budget: String,
+    },
     /// The input holds a header but no data rows.
     #[error("`{file}`: no data rows (only a header)")]
     NoRows { file: PathBuf },

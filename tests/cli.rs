@@ -732,3 +732,113 @@ fn the_readme_lists_every_verdict_level_with_its_default() {
         .collect();
     assert_eq!(block, declared);
 }
+
+/// A small panel written as Parquet: one file, a folder of parts, a hive-partitioned folder.
+fn parquet_layouts(w: &Workdir) {
+    use polars::prelude::*;
+    let write = |df: &mut DataFrame, path: std::path::PathBuf| {
+        std::fs::create_dir_all(path.parent().unwrap()).unwrap();
+        let f = std::fs::File::create(path).unwrap();
+        ParquetWriter::new(f).finish(df).unwrap();
+    };
+    let firms = ["A", "A", "A", "B", "B", "C", "C", "C"];
+    let years = [2001i64, 2002, 2003, 2001, 2003, 2001, 2002, 2003];
+    let assets = [10.0, 11.0, 12.5, 7.0, 7.5, 3.0, 2.0, 4.0];
+    let mut whole = df!("firm" => firms, "year" => years, "assets" => assets).unwrap();
+    write(&mut whole, w.path("one.parquet"));
+    write(&mut whole.slice(0, 5), w.path("parts/part-0.parquet"));
+    write(&mut whole.slice(5, 3), w.path("parts/part-1.parquet"));
+    for year in [2001i64, 2002, 2003] {
+        let mut part = whole
+            .clone()
+            .lazy()
+            .filter(col("year").eq(lit(year)))
+            .drop(cols(["year"]))
+            .collect()
+            .unwrap();
+        write(&mut part, w.path(&format!("hive/year={year}/data.parquet")));
+    }
+}
+
+#[test]
+fn a_folder_of_parquet_files_reads_as_one_panel() {
+    let w = Workdir::new();
+    parquet_layouts(&w);
+    let audit = |data: &str| -> serde_json::Value {
+        let r = w.ok(&[
+            "audit", data, "--entity", "firm", "--period", "year", "--format", "json",
+        ]);
+        serde_json::from_str(&r.stdout).unwrap()
+    };
+    let one = audit("one.parquet");
+    for folder in ["parts", "hive"] {
+        let r = audit(folder);
+        assert_eq!(r["input"]["rows"], 8, "{folder}");
+        assert_eq!(r["input"]["format"], "parquet", "{folder}");
+        for figures in ["panel", "keys", "coverage", "entry_exit", "survival"] {
+            assert_eq!(r[figures], one[figures], "{folder}: {figures}");
+        }
+    }
+    // A bundle built from a folder verifies: the folder's hash covers each of its files.
+    w.ok(&[
+        "build", "parts", "--entity", "firm", "--period", "year", "--out", "b",
+    ]);
+    w.ok(&["verify", "b"]);
+    std::fs::remove_file(w.path("parts/part-1.parquet")).unwrap();
+    let r = w.run(&["verify", "b"]);
+    assert_ne!(r.code, 0, "verify passed on a changed folder: {}", r.stdout);
+}
+
+#[test]
+fn a_memory_budget_too_small_stops_before_reading() {
+    let w = Workdir::new();
+    parquet_layouts(&w);
+    for cmd in ["audit", "build"] {
+        let mut args = vec![
+            cmd,
+            "one.parquet",
+            "--entity",
+            "firm",
+            "--period",
+            "year",
+            "--memory-budget",
+            "1KiB",
+        ];
+        if cmd == "build" {
+            args.extend(["--out", "b"]);
+        }
+        let r = w.run(&args);
+        assert_eq!(r.code, 2, "{cmd}: {}", r.stderr);
+        let line = r.stderr.trim_end();
+        assert_eq!(line.lines().count(), 1, "{line}");
+        assert!(
+            line.contains("one.parquet") && line.contains("8 rows"),
+            "{line}"
+        );
+        assert!(line.contains("memory budget of 1 KiB"), "{line}");
+        assert!(!w.path("b").exists());
+    }
+    // A budget that holds it lets the run go on; a size that is not one is refused.
+    w.ok(&[
+        "audit",
+        "one.parquet",
+        "--entity",
+        "firm",
+        "--period",
+        "year",
+        "--memory-budget",
+        "1GiB",
+    ]);
+    let r = w.run(&[
+        "audit",
+        "one.parquet",
+        "--entity",
+        "firm",
+        "--period",
+        "year",
+        "--memory-budget",
+        "lots",
+    ]);
+    assert_eq!(r.code, 2);
+    assert!(r.stderr.contains("--memory-budget"), "{}", r.stderr);
+}

@@ -183,10 +183,29 @@ fn write_csv(f: &mut HashingFile, df: &DataFrame) -> Result<()> {
 
 /// SHA-256 of a file, read in blocks.
 pub fn sha256_file(path: &Path) -> Result<String> {
+    if path.is_dir() {
+        return sha256_dataset(path);
+    }
     let mut file = fs::File::open(path).map_err(Error::io(path))?;
     let mut hash = Sha256::new();
     std::io::copy(&mut file, &mut hash).map_err(Error::io(path))?;
     Ok(format!("{:x}", hash.finalize()))
+}
+
+/// The SHA-256 of a folder of Parquet files: of one line per file, sorted by path,
+/// `relative/path<TAB>sha256<LF>` (its path inside the folder, with `/`, and the hash of its
+/// bytes), so that a moved, renamed or re-partitioned dataset is told apart.
+fn sha256_dataset(dir: &Path) -> Result<String> {
+    let mut listing = String::new();
+    for file in crate::config::parquet_files(dir)? {
+        let relative = file.strip_prefix(dir).unwrap_or(&file);
+        let name: Vec<String> = relative
+            .components()
+            .map(|c| c.as_os_str().to_string_lossy().to_string())
+            .collect();
+        listing.push_str(&format!("{}\t{}\n", name.join("/"), sha256_file(&file)?));
+    }
+    Ok(sha256_hex(listing.as_bytes()))
 }
 
 /// An existing `--out` may be replaced only if it is empty or an earlier bundle.

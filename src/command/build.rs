@@ -10,10 +10,15 @@ pub fn run(cfg: &BuildConfig) -> Result<i32> {
     let manifest = build(cfg)?;
     stdout_write(
         format!(
-            "wrote {}: {} rows read, {} kept in panel.csv / panel.parquet, {} in rejected.csv{}\n",
+            "wrote {}: {} rows read, {} kept in {}, {} in rejected.csv{}\n",
             cfg.out.display(),
             manifest.rows.input,
             manifest.rows.kept,
+            if cfg.panel_csv {
+                "panel.csv / panel.parquet"
+            } else {
+                "panel.parquet"
+            },
             manifest.rows.rejected,
             match manifest.joins.iter().map(|j| j.rejected).sum::<u64>() {
                 0 => String::new(),

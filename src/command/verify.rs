@@ -171,6 +171,7 @@ pub fn verify(dir: &Path, moved: &Relocated) -> Result<Verification> {
     };
     let cfg = BuildConfig {
         input: InputConfig {
+            memory_budget: None,
             path: input,
             format: manifest.input.format,
             rules,
