@@ -9,7 +9,7 @@ use super::verdict::{
     level_key, line as verdict_line, worst, CheckVerdict, LevelKey, Levels, Status,
 };
 use super::{unit_slips, Check, Context, Settings};
-use crate::core::{type7, type7_many, PanelCore, Values};
+use crate::core::{quantiles, type7, PanelCore, Values};
 use crate::report::layout::{opt_level, strings, Block, Section};
 pub use crate::report::CutoffGroups;
 use crate::report::{Finding, OutlierLine, Report, ToJson, UnitSlip};
@@ -285,7 +285,8 @@ fn line(
 ) -> OutlierLine {
     let (lo, hi) = (s.lower, s.upper);
     let x = x.view();
-    let mut all = x.present();
+    // The column is read in place: quantiles by bracketing (core::quantiles), no copy.
+    let n = x.iter().count();
     let (mut below, mut above) = (0u64, 0u64);
     // A group needs 1 / (the smaller tail) values for its own cutoffs (100 at 1%).
     let smallest = (1.0 / lo.min(1.0 - hi)).ceil() as u64;
@@ -295,7 +296,8 @@ fn line(
         (CutoffGroups::Groups, Some(codes)) => {
             // Per group; a group too small, or a row without a group, takes the pooled cutoffs
             // (as winsorizing by groups does).
-            let pooled = (type7(&mut all, lo), type7(&mut all, hi));
+            let q = quantiles(&x, n, |v| v, &[lo, hi]);
+            let pooled = (q[0], q[1]);
             let mut by: std::collections::BTreeMap<u32, Vec<f64>> = Default::default();
             for (r, v) in x.iter() {
                 by.entry(codes[r]).or_default().push(v);
@@ -315,18 +317,18 @@ fn line(
                 }
             }
             fallback = Some(fell_back);
-            (None, None, all.len() as u64)
+            (None, None, n as u64)
         }
         (CutoffGroups::Pooled | CutoffGroups::Groups, _) => {
-            // The cutoffs and the median (for the robust z below) in one nested selection.
-            let q = type7_many(&mut all, &[lo, hi, 0.5]);
+            // The cutoffs and the median (for the robust z below) from one pass.
+            let q = quantiles(&x, n, |v| v, &[lo, hi, 0.5]);
             median = Some(q[2]);
             let (l, u) = (q[0], q[1]);
-            for v in &all {
-                below += u64::from(l.is_some_and(|l| *v < l));
-                above += u64::from(u.is_some_and(|u| *v > u));
+            for (_, v) in x.iter() {
+                below += u64::from(l.is_some_and(|l| v < l));
+                above += u64::from(u.is_some_and(|u| v > u));
             }
-            (l, u, all.len() as u64)
+            (l, u, n as u64)
         }
         (CutoffGroups::Period, _) => {
             let mut groups: Vec<Vec<f64>> = vec![Vec::new(); core.periods.len()];
@@ -348,18 +350,16 @@ fn line(
     // Robust z from the pooled median and MAD; with a MAD of zero nothing is counted.
     let median = match median {
         Some(m) => m,
-        None => type7(&mut all, 0.5),
+        None => quantiles(&x, n, |v| v, &[0.5])[0],
     };
-    // The absolute deviations replace the values in place (no second column-sized buffer);
+    // The MAD from the absolute deviations, computed as they are read;
     // |v - m| / d is exactly |(v - m) / d|, so the count is the one the z-scores give.
-    if let Some(m) = median {
-        for v in all.iter_mut() {
-            *v = (*v - m).abs();
-        }
-    }
-    let mad = median.and_then(|_| type7(&mut all, 0.5).map(|d| d * MAD_SCALE));
-    let robust_z_beyond = match mad {
-        Some(d) if d > 0.0 => all.iter().filter(|dev| *dev / d > s.robust_z).count() as u64,
+    let mad = median.and_then(|m| quantiles(&x, n, |v| (v - m).abs(), &[0.5])[0].map(|d| d * MAD_SCALE));
+    let robust_z_beyond = match (median, mad) {
+        (Some(m), Some(d)) if d > 0.0 => x
+            .iter()
+            .filter(|(_, v)| (*v - m).abs() / d > s.robust_z)
+            .count() as u64,
         _ => 0,
     };
     OutlierLine {

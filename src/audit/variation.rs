@@ -285,7 +285,7 @@ fn absorbed(read: &Figures) -> Section {
 /// The variation line of one numeric variable; the two-way residual only when neither
 /// effect alone absorbs it.
 fn line(core: &PanelCore, variable: &str, x: &Values, nearly: f64) -> VariationLine {
-    let m = core.moments(x);
+    let (m, sums) = core.moments_and_sums(x);
     let n = m.n as f64;
     let sd = |ss: f64| {
         if n > 1.0 {
@@ -307,7 +307,7 @@ fn line(core: &PanelCore, variable: &str, x: &Values, nearly: f64) -> VariationL
     };
     let mut two_way_share = None;
     if n >= 2.0 && absorbed_by.is_none() {
-        let s = share(core.two_way(x));
+        let s = share(core.two_way_from(x, &sums));
         two_way_share = finite(s);
         if s < ABSORBED_SHARE {
             absorbed_by = Some(Absorbed::EntityPeriod);

@@ -13,7 +13,7 @@ use crate::Result;
 mod quantile;
 mod values;
 
-pub use quantile::{type7, type7_many};
+pub use quantile::{quantiles, type7, type7_many};
 pub use values::{Values, View};
 
 /// How many variables the kernels hold in memory at once (several per core, few enough that
@@ -31,6 +31,18 @@ pub struct PanelCore {
     pub periods: Vec<i64>,
     /// The rows of entity `i` are `starts[i]..starts[i + 1]`.
     pub starts: Vec<usize>,
+    /// The period system of the two-way residual for a variable with a value on every row:
+    /// it depends only on which rows have one, so it is built once, on first use.
+    complete_system: std::sync::OnceLock<Vec<f64>>,
+}
+
+/// What the moments' passes leave for the two-way residual: each entity's sum and count of
+/// values, and the period sums of the entity-demeaned values.
+#[derive(Debug, Clone)]
+pub struct TwoWaySums {
+    e_sum: Vec<f64>,
+    e_n: Vec<u32>,
+    b: Vec<f64>,
 }
 
 impl PanelCore {
@@ -75,6 +87,7 @@ impl PanelCore {
             period,
             periods,
             starts,
+            complete_system: Default::default(),
         })
     }
 
@@ -91,6 +104,32 @@ impl PanelCore {
     /// Variation figures of one variable given as f64 values in row order (nulls skipped).
     /// The two-way residual is left for [`PanelCore::two_way`].
     pub fn moments(&self, x: &Values) -> Moments {
+        self.moments_and_sums(x).0
+    }
+
+    /// Each row with a value, as (entity code, period code, value), in row order.
+    fn each(&self, x: &View, mut f: impl FnMut(usize, usize, f64)) {
+        let (values, ok) = x.parts();
+        let codes = self.entity.iter().zip(&self.period);
+        match ok {
+            None => {
+                for (v, (e, t)) in values.iter().zip(codes) {
+                    f(*e as usize, *t as usize, *v);
+                }
+            }
+            Some(ok) => {
+                for ((v, o), (e, t)) in values.iter().zip(ok).zip(codes) {
+                    if *o {
+                        f(*e as usize, *t as usize, *v);
+                    }
+                }
+            }
+        }
+    }
+
+    /// [`PanelCore::moments`], and the sums the two-way residual starts from, gathered in
+    /// the same two passes over the rows.
+    pub fn moments_and_sums(&self, x: &Values) -> (Moments, TwoWaySums) {
         let x = x.view();
         let (ne, nt) = (self.entities(), self.periods.len());
         let mut e_sum = vec![0.0; ne];
@@ -100,8 +139,7 @@ impl PanelCore {
         let mut p_sum = vec![0.0; nt];
         let mut p_n = vec![0u64; nt];
         let (mut sum, mut n) = (0.0, 0u64);
-        for (r, v) in x.iter() {
-            let (e, t) = (self.entity[r] as usize, self.period[r] as usize);
+        self.each(&x, |e, t, v| {
             e_sum[e] += v;
             e_n[e] += 1;
             // NaN never compares: an entity holding one is not counted as flat.
@@ -115,7 +153,7 @@ impl PanelCore {
             p_n[t] += 1;
             sum += v;
             n += 1;
-        }
+        });
         let mean = sum / n as f64;
         let e_mean: Vec<f64> = e_sum
             .iter()
@@ -128,12 +166,14 @@ impl PanelCore {
             .map(|(s, c)| if *c > 0 { s / *c as f64 } else { 0.0 })
             .collect();
         let (mut tss, mut wss, mut pss) = (0.0, 0.0, 0.0);
-        for (r, v) in x.iter() {
-            let (e, t) = (self.entity[r] as usize, self.period[r] as usize);
+        // b of the two-way system: period sums of the entity-demeaned values.
+        let mut b = vec![0.0; nt];
+        self.each(&x, |e, t, v| {
             tss += (v - mean).powi(2);
             wss += (v - e_mean[e]).powi(2);
             pss += (v - p_mean[t]).powi(2);
-        }
+            b[t] += v - e_mean[e];
+        });
         // Between: SD of the entity means, each entity with a value once, n - 1.
         let observed: Vec<f64> = e_mean
             .iter()
@@ -153,7 +193,7 @@ impl PanelCore {
             .zip(e_min.iter().zip(&e_max))
             .filter(|(c, (lo, hi))| **c > 1 && lo == hi)
             .count() as u64;
-        Moments {
+        let moments = Moments {
             n,
             mean,
             tss,
@@ -161,25 +201,22 @@ impl PanelCore {
             pss,
             sd_between,
             flat,
-        }
+        };
+        (moments, TwoWaySums { e_sum, e_n, b })
     }
 
     /// Residual sum of squares of `x` on entity and period effects together, exactly: remove
     /// entity means, then solve the small period system (Frisch–Waugh–Lovell; the T × T matrix
     /// is assembled from each entity's period counts). Rows with a null are left out.
     pub fn two_way(&self, x: &Values) -> f64 {
-        let x = x.view();
+        let (_, sums) = self.moments_and_sums(x);
+        self.two_way_from(x, &sums)
+    }
+
+    /// The period system's matrix A = D' M D = diag(n_t) - sum_i c_i c_i' / T_i, c_i the
+    /// entity's counts per period over the rows where `x` has a value (`e_n` of them).
+    fn period_system(&self, x: &View, e_n: &[u32]) -> Vec<f64> {
         let (ne, nt) = (self.entities(), self.periods.len());
-        // Entity means over the rows with a value.
-        let mut e_sum = vec![0.0; ne];
-        let mut e_n = vec![0u32; ne];
-        for (r, v) in x.iter() {
-            e_sum[self.entity[r] as usize] += v;
-            e_n[self.entity[r] as usize] += 1;
-        }
-        // b = D' x~ (period sums of the entity-demeaned values) and A = D' M D =
-        // diag(n_t) - sum_i c_i c_i' / T_i, c_i the entity's counts per period.
-        let mut b = vec![0.0; nt];
         let mut a = vec![0.0; nt * nt];
         let mut seen: Vec<(usize, f64)> = Vec::new();
         // Entities with one row per period share their part of A by the set of periods they
@@ -192,14 +229,12 @@ impl PanelCore {
             if e_n[i] == 0 {
                 continue;
             }
-            let m = e_sum[i] / e_n[i] as f64;
             seen.clear();
             let mut mask = 0u128;
             let mut repeats = false;
             for r in self.starts[i]..self.starts[i + 1] {
-                if let Some(v) = x.get(r) {
+                if x.get(r).is_some() {
                     let t = self.period[r] as usize;
-                    b[t] += v - m;
                     match seen.last_mut() {
                         Some((s, c)) if *s == t => {
                             *c += 1.0;
@@ -241,6 +276,24 @@ impl PanelCore {
                 }
             }
         }
+        a
+    }
+
+    /// [`PanelCore::two_way`] from the sums of [`PanelCore::moments_and_sums`] on the same
+    /// `x`: the period system (built once for variables with a value on every row), its
+    /// solution, and one pass for the residual.
+    pub fn two_way_from(&self, x: &Values, sums: &TwoWaySums) -> f64 {
+        let x = x.view();
+        let (ne, nt) = (self.entities(), self.periods.len());
+        let (e_sum, e_n) = (&sums.e_sum, &sums.e_n);
+        let a = if x.parts().1.is_none() {
+            self.complete_system
+                .get_or_init(|| self.period_system(&x, e_n))
+                .clone()
+        } else {
+            self.period_system(&x, e_n)
+        };
+        let b = sums.b.clone();
         let beta = solve_psd(DMatrix::from_row_slice(nt, nt, &a), &DVector::from_vec(b));
         // Fitted period part of each row, entity-demeaned: beta_t - mean over the entity's
         // rows of beta; the residual is what is left of x~.

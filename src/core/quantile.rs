@@ -1,5 +1,10 @@
 //! Quantiles by linear interpolation between order statistics (Hyndman & Fan type 7), by
-//! selection rather than a full sort: one at a time, or several from one nested selection.
+//! selection rather than a full sort: one at a time, several from one nested selection, or —
+//! for a whole column, read in place — from a deterministic sample that brackets each order
+//! statistic, one pass that counts what lies below each bracket and keeps what lies in it,
+//! and a selection within the few kept values.
+
+use super::values::View;
 
 /// The `p` quantile of `v` by linear interpolation between order statistics (Hyndman & Fan
 /// type 7, numpy's default): position (n − 1) p in the sorted values. Reorders `v`; NaN sorts
@@ -76,6 +81,162 @@ fn select_each(v: &mut [f64], ks: &[usize]) {
     select_each(right, &beyond);
 }
 
+/// Where type-7 interpolation reads: (index of the lower order statistic, fraction).
+fn position(n: usize, p: f64) -> (usize, f64) {
+    let h = (n - 1) as f64 * p;
+    let lo = (h.floor() as usize).min(n - 1);
+    (lo, h - lo as f64)
+}
+
+/// The key by which `f64::total_cmp` orders: compared as integers, the same order.
+fn key(x: f64) -> i64 {
+    let b = x.to_bits() as i64;
+    b ^ (((b >> 63) as u64) >> 1) as i64
+}
+
+/// Below this many values, `quantiles` copies them and selects (the sample would be most of
+/// them anyway).
+const SMALL: usize = 1 << 16;
+
+/// Rows the sample of `quantiles` takes, evenly spaced.
+const SAMPLE: usize = 1 << 14;
+
+/// Type-7 quantiles at each of `ps` of `map(v)` over the values `v` present in `x` (`n` of
+/// them), the same values `type7` gives, without reordering or copying the column: a sample
+/// of evenly spaced rows brackets each order statistic needed (its rank in the sample ± four
+/// standard errors), one pass counts the values below each bracket and keeps those inside it,
+/// and each order statistic is selected among the kept ones. Should one fall outside its
+/// bracket (rare; a count says so exactly), the values are copied and selected whole. Every
+/// step is deterministic.
+pub fn quantiles(x: &View, n: usize, map: impl Fn(f64) -> f64, ps: &[f64]) -> Vec<Option<f64>> {
+    if n == 0 {
+        return vec![None; ps.len()];
+    }
+    let mut ks: Vec<usize> = ps
+        .iter()
+        .flat_map(|p| {
+            let (lo, _) = position(n, *p);
+            [lo, (lo + 1).min(n - 1)]
+        })
+        .collect();
+    ks.sort_unstable();
+    ks.dedup();
+    let stats = order_stats(x, n, &map, &ks);
+    let at = |k: usize| stats[ks.binary_search(&k).expect("selected")];
+    ps.iter()
+        .map(|p| {
+            let (lo, frac) = position(n, *p);
+            let a = at(lo);
+            if frac <= 0.0 || lo + 1 >= n {
+                Some(a)
+            } else {
+                Some(a + (at(lo + 1) - a) * frac)
+            }
+        })
+        .collect()
+}
+
+/// The `k`-th smallest of the mapped values (by `total_cmp`) for each of the sorted, distinct
+/// `ks`.
+fn order_stats(x: &View, n: usize, map: &impl Fn(f64) -> f64, ks: &[usize]) -> Vec<f64> {
+    let (values, ok) = x.parts();
+    let each = |f: &mut dyn FnMut(f64)| match ok {
+        None => values.iter().for_each(|v| f(map(*v))),
+        Some(ok) => values
+            .iter()
+            .zip(ok)
+            .filter(|(_, o)| **o)
+            .for_each(|(v, _)| f(map(*v))),
+    };
+    let whole = |ks: &[usize]| {
+        let mut all = Vec::with_capacity(n);
+        each(&mut |v| all.push(v));
+        select_each(&mut all, ks);
+        ks.iter().map(|k| all[*k]).collect::<Vec<f64>>()
+    };
+    if n <= SMALL {
+        return whole(ks);
+    }
+    // Every `step`-th row with a value, in row order.
+    let step = values.len().div_ceil(SAMPLE).max(1);
+    let mut sample: Vec<i64> = (0..values.len())
+        .step_by(step)
+        .filter(|r| ok.is_none_or(|ok| ok[*r]))
+        .map(|r| key(map(values[r])))
+        .collect();
+    sample.sort_unstable();
+    let m = sample.len();
+    if m < 2 {
+        return whole(ks);
+    }
+    // Each k's bracket of keys: its rank in the sample, four standard errors either side
+    // (and a few ranks more); open at the ends.
+    let mut brackets: Vec<(i64, i64)> = ks
+        .iter()
+        .map(|k| {
+            let p = *k as f64 / n as f64;
+            let at = p * m as f64;
+            let spread = 4.0 * (m as f64 * p * (1.0 - p)).sqrt() + 8.0;
+            let lo = at - spread;
+            let hi = at + spread;
+            let lo = if lo < 0.0 { i64::MIN } else { sample[lo as usize] };
+            let hi = if hi >= (m - 1) as f64 {
+                i64::MAX
+            } else {
+                sample[hi.ceil() as usize]
+            };
+            (lo, hi)
+        })
+        .collect();
+    // Overlapping brackets merged: disjoint and ascending.
+    brackets.sort_unstable();
+    let mut merged: Vec<(i64, i64)> = Vec::with_capacity(brackets.len());
+    for (lo, hi) in brackets {
+        match merged.last_mut() {
+            Some(last) if lo <= last.1 => last.1 = last.1.max(hi),
+            _ => merged.push((lo, hi)),
+        }
+    }
+    // gap[j]: values between bracket j - 1 and bracket j; kept[j]: those inside bracket j.
+    let mut gap = vec![0usize; merged.len()];
+    let mut kept: Vec<Vec<f64>> = vec![Vec::new(); merged.len()];
+    each(&mut |v| {
+        let k = key(v);
+        for (j, (lo, hi)) in merged.iter().enumerate() {
+            if k < *lo {
+                gap[j] += 1;
+                break;
+            }
+            if k <= *hi {
+                kept[j].push(v);
+                break;
+            }
+        }
+    });
+    // The values below bracket j: the gaps up to it and the brackets before it.
+    let mut below = vec![0usize; merged.len()];
+    let mut before = 0usize;
+    for j in 0..merged.len() {
+        below[j] = before + gap[j];
+        before = below[j] + kept[j].len();
+    }
+    let mut out = Vec::with_capacity(ks.len());
+    for (j, bucket) in kept.iter_mut().enumerate() {
+        let inside: Vec<usize> = ks
+            .iter()
+            .filter(|k| **k >= below[j] && **k < below[j] + bucket.len())
+            .map(|k| k - below[j])
+            .collect();
+        select_each(bucket, &inside);
+        out.extend(inside.iter().map(|i| (below[j] + i, bucket[*i])));
+    }
+    if out.len() < ks.len() {
+        return whole(ks);
+    }
+    out.sort_unstable_by_key(|(k, _)| *k);
+    out.into_iter().map(|(_, v)| v).collect()
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -109,6 +270,58 @@ mod tests {
             }
         }
         assert_eq!(type7_many(&mut [], &[0.5]), vec![None]);
+    }
+
+    #[test]
+    fn bracketed_quantiles_equal_selection_on_whole_columns() {
+        // `quantiles` against `type7` on a copy (itself checked against numpy): columns larger
+        // than SMALL (so that the sample and the brackets are used) with ties, NaN, both
+        // zeros, nulls, a pattern the evenly spaced sample misreads, and the absolute
+        // deviations the MAD takes.
+        use polars::prelude::*;
+        let mut seed = 0x9e37_79b9_7f4a_7c15u64;
+        let mut next = move || {
+            seed ^= seed << 13;
+            seed ^= seed >> 7;
+            seed ^= seed << 17;
+            seed
+        };
+        let ps = [0.01, 0.99, 0.5, 0.0, 1.0, 0.25];
+        let n = 3 * SMALL + 17;
+        let columns: Vec<Vec<Option<f64>>> = vec![
+            (0..n).map(|_| Some((next() % 1000) as f64 / 7.0)).collect(),
+            (0..n)
+                .map(|_| match next() % 50 {
+                    0 => None,
+                    1 => Some(f64::NAN),
+                    2 => Some(-0.0),
+                    3 => Some(0.0),
+                    r => Some((next() % 100_000) as f64 * r as f64 - 1e6),
+                })
+                .collect(),
+            // Every sampled row is 0, all others 1 or 2: the sample is no guide.
+            (0..n)
+                .map(|r| Some(if r % (n.div_ceil(SAMPLE)) == 0 { 0.0 } else { (r % 2 + 1) as f64 }))
+                .collect(),
+            (0..n).map(|_| Some(if next() % 3 == 0 { 5.0 } else { 7.0 })).collect(),
+        ];
+        for (c, col) in columns.iter().enumerate() {
+            let values = crate::core::Values::new(&Float64Chunked::from_iter_options(
+                "x".into(),
+                col.iter().copied(),
+            ));
+            let present: Vec<f64> = col.iter().flatten().copied().collect();
+            let got = quantiles(&values.view(), present.len(), |v| v, &ps);
+            for (p, q) in ps.iter().zip(&got) {
+                let want = type7(&mut present.clone(), *p);
+                assert_eq!(q.map(f64::to_bits), want.map(f64::to_bits), "column {c}, p {p}");
+            }
+            let m = 3.5;
+            let got = quantiles(&values.view(), present.len(), |v| (v - m).abs(), &[0.5]);
+            let mut dev: Vec<f64> = present.iter().map(|v| (v - m).abs()).collect();
+            let want = type7(&mut dev, 0.5);
+            assert_eq!(got[0].map(f64::to_bits), want.map(f64::to_bits), "column {c}, MAD");
+        }
     }
 
     #[test]

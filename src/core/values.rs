@@ -43,6 +43,11 @@ impl<'a> View<'a> {
             .map(|(r, v)| (r, *v))
     }
 
+    /// The values (0.0 where absent) and whether each row has one (none: every row has).
+    pub fn parts(&self) -> (&'a [f64], Option<&'a [bool]>) {
+        (self.v, self.ok)
+    }
+
     /// The values present, in row order.
     pub fn present(&self) -> Vec<f64> {
         match self.ok {
