@@ -7,7 +7,7 @@ use rayon::prelude::*;
 
 use super::Context;
 use crate::core::Values;
-use crate::core::{log_ratios, magnitude};
+use crate::core::magnitude;
 use crate::report::UnitSlip;
 use crate::Result;
 
@@ -43,22 +43,45 @@ pub(super) fn search(ctx: &Context) -> Result<Search> {
     // pass per level variable (in parallel) with the detector the repair uses.
     let back = ctx.core.previous_period();
     let log_jump = ctx.settings.log_jump;
+    // Below this |log10 ratio| a change is neither a slip nor a jump (with a margin far above
+    // rounding): most rows, whose logarithm is then not taken.
+    let quiet = 0.99 * (log_jump / std::f64::consts::LN_10).min(3.0 - std::f64::consts::LOG10_2);
+    let (calm_lo, calm_hi) = (10f64.powf(-quiet), 10f64.powf(quiet));
     let one = |v: &String| -> Result<Found> {
-        let x = Values::of(ctx.df, v)?;
-        let r = log_ratios(&back, &x);
-        let mag: Vec<Option<i32>> = r.iter().map(|r| r.and_then(magnitude)).collect();
-        let jumps = r
-            .iter()
-            .flatten()
-            .filter(|r| (*r * std::f64::consts::LN_10).abs() > log_jump)
-            .count() as u64;
+        let values = Values::of(ctx.df, v)?;
+        let x = values.view();
+        // Per row, the slip magnitude (0: none); the same detector as `log_ratios` and
+        // `magnitude`, one row at a time, with no column-sized buffer of ratios.
+        let mut mag = vec![0i8; back.len()];
+        let mut jumps = 0u64;
+        for r in 1..back.len() {
+            if !back[r] {
+                continue;
+            }
+            let (Some(a), Some(b)) = (x.get(r), x.get(r - 1)) else {
+                continue;
+            };
+            if !(a > 0.0 && b > 0.0) {
+                continue;
+            }
+            let q = a / b;
+            if q > calm_lo && q < calm_hi {
+                continue;
+            }
+            let ratio = q.log10();
+            jumps += u64::from((ratio * std::f64::consts::LN_10).abs() > log_jump);
+            mag[r] = magnitude(ratio).map_or(0, |m| m as i8);
+        }
         // A slip is listed once: the jump back of a listed slip is not another slip.
         let slips = (0..mag.len())
             .filter_map(|i| {
-                let m = mag[i]?;
-                let listed = i == 0 || mag[i - 1] != Some(-m);
-                let reverses = mag.get(i + 1).copied().flatten() == Some(-m);
-                listed.then_some((i, m, reverses))
+                let m = mag[i];
+                if m == 0 {
+                    return None;
+                }
+                let listed = i == 0 || mag[i - 1] != -m;
+                let reverses = mag.get(i + 1) == Some(&-m);
+                listed.then_some((i, i32::from(m), reverses))
             })
             .collect();
         Ok((slips, jumps))
