@@ -6,7 +6,7 @@
 use polars::prelude::*;
 
 use super::{drop_where, Keys};
-use crate::core::{type7, PanelCore, Values};
+use crate::core::{quantiles, type7, PanelCore, Values};
 use crate::report::CutoffGroups;
 use crate::report::{Cutoff, GroupCutoff, Histogram, TreatLine};
 use crate::rules::TreatSpec;
@@ -362,10 +362,15 @@ impl Treatment {
             .collect();
         let mut counts = Vec::new();
         let mut current = df;
+        // Rows per group, so that each group's values are gathered without regrowing.
+        let mut sizes = vec![0usize; nt];
+        for r in 0..rows {
+            sizes[group(r)] += 1;
+        }
         for (i, v) in self.variables.iter().enumerate() {
             let values = Values::of(&df_before, v)?;
             let x = values.view();
-            let mut groups: Vec<Vec<f64>> = vec![Vec::new(); nt];
+            let mut groups: Vec<Vec<f64>> = sizes.iter().map(|n| Vec::with_capacity(*n)).collect();
             for (r, value) in x.iter() {
                 groups[group(r)].push(value);
             }
@@ -383,6 +388,26 @@ impl Treatment {
                 )
             };
             let column = match self.method {
+                Method::Winsorize if x.parts().1.is_none() => {
+                    // Every row has a value: the new values straight into one buffer.
+                    let (values, _) = x.parts();
+                    let new: Vec<f64> = values
+                        .iter()
+                        .enumerate()
+                        .map(|(r, value)| match beyond(r, *value) {
+                            (true, _) => {
+                                below += 1;
+                                lo[group(r)].unwrap_or(*value)
+                            }
+                            (_, true) => {
+                                above += 1;
+                                hi[group(r)].unwrap_or(*value)
+                            }
+                            _ => *value,
+                        })
+                        .collect();
+                    Float64Chunked::from_vec(v.as_str().into(), new).into_column()
+                }
                 Method::Winsorize => {
                     let new: Float64Chunked = (0..rows)
                         .map(|r| {
@@ -522,9 +547,13 @@ const BINS: usize = 30;
 /// Equal-width bins between the 0.5th and 99.5th percentiles; values beyond fall in the end
 /// bins. Missing values are left out.
 fn histogram(df: &DataFrame, v: &str) -> Result<Histogram> {
-    // One typed pass: the 0.5% and 99.5% points by selection (type 7), then the counts.
-    let mut x = Values::of(df, v)?.present();
-    let (Some(lo), Some(hi)) = (type7(&mut x, 0.005), type7(&mut x, 0.995)) else {
+    // The 0.5% and 99.5% points (type 7, by bracketed selection over the column read in
+    // place), then the counts in one pass.
+    let values = Values::of(df, v)?;
+    let view = values.view();
+    let n = view.iter().count();
+    let q = quantiles(&view, n, |x| x, &[0.005, 0.995]);
+    let (Some(lo), Some(hi)) = (q[0], q[1]) else {
         return Ok(Histogram::default());
     };
     let width = if hi > lo {
@@ -533,9 +562,9 @@ fn histogram(df: &DataFrame, v: &str) -> Result<Histogram> {
         1.0
     };
     let mut counts = vec![0u64; BINS];
-    for b in x
+    for b in view
         .iter()
-        .map(|x| ((x - lo) / width).floor().clamp(0.0, (BINS - 1) as f64))
+        .map(|(_, x)| ((x - lo) / width).floor().clamp(0.0, (BINS - 1) as f64))
         .filter(|b| !b.is_nan())
     {
         counts[b as usize] += 1;
