@@ -354,7 +354,8 @@ fn line(
     };
     // The MAD from the absolute deviations, computed as they are read;
     // |v - m| / d is exactly |(v - m) / d|, so the count is the one the z-scores give.
-    let mad = median.and_then(|m| quantiles(&x, n, |v| (v - m).abs(), &[0.5])[0].map(|d| d * MAD_SCALE));
+    let mad =
+        median.and_then(|m| quantiles(&x, n, |v| (v - m).abs(), &[0.5])[0].map(|d| d * MAD_SCALE));
     let robust_z_beyond = match (median, mad) {
         (Some(m), Some(d)) if d > 0.0 => x
             .iter()

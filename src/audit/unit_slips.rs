@@ -6,8 +6,8 @@ use polars::prelude::*;
 use rayon::prelude::*;
 
 use super::Context;
-use crate::core::Values;
 use crate::core::magnitude;
+use crate::core::Values;
 use crate::report::UnitSlip;
 use crate::Result;
 

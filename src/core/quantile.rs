@@ -179,7 +179,11 @@ fn order_stats(x: &View, n: usize, map: &impl Fn(f64) -> f64, ks: &[usize]) -> V
             let spread = 4.0 * (m as f64 * p * (1.0 - p)).sqrt() + 8.0;
             let lo = at - spread;
             let hi = at + spread;
-            let lo = if lo < 0.0 { i64::MIN } else { sample[lo as usize] };
+            let lo = if lo < 0.0 {
+                i64::MIN
+            } else {
+                sample[lo as usize]
+            };
             let hi = if hi >= (m - 1) as f64 {
                 i64::MAX
             } else {
@@ -301,9 +305,17 @@ mod tests {
                 .collect(),
             // Every sampled row is 0, all others 1 or 2: the sample is no guide.
             (0..n)
-                .map(|r| Some(if r % (n.div_ceil(SAMPLE)) == 0 { 0.0 } else { (r % 2 + 1) as f64 }))
+                .map(|r| {
+                    Some(if r % (n.div_ceil(SAMPLE)) == 0 {
+                        0.0
+                    } else {
+                        (r % 2 + 1) as f64
+                    })
+                })
                 .collect(),
-            (0..n).map(|_| Some(if next() % 3 == 0 { 5.0 } else { 7.0 })).collect(),
+            (0..n)
+                .map(|_| Some(if next() % 3 == 0 { 5.0 } else { 7.0 }))
+                .collect(),
         ];
         for (c, col) in columns.iter().enumerate() {
             let values = crate::core::Values::new(&Float64Chunked::from_iter_options(
@@ -314,13 +326,21 @@ mod tests {
             let got = quantiles(&values.view(), present.len(), |v| v, &ps);
             for (p, q) in ps.iter().zip(&got) {
                 let want = type7(&mut present.clone(), *p);
-                assert_eq!(q.map(f64::to_bits), want.map(f64::to_bits), "column {c}, p {p}");
+                assert_eq!(
+                    q.map(f64::to_bits),
+                    want.map(f64::to_bits),
+                    "column {c}, p {p}"
+                );
             }
             let m = 3.5;
             let got = quantiles(&values.view(), present.len(), |v| (v - m).abs(), &[0.5]);
             let mut dev: Vec<f64> = present.iter().map(|v| (v - m).abs()).collect();
             let want = type7(&mut dev, 0.5);
-            assert_eq!(got[0].map(f64::to_bits), want.map(f64::to_bits), "column {c}, MAD");
+            assert_eq!(
+                got[0].map(f64::to_bits),
+                want.map(f64::to_bits),
+                "column {c}, MAD"
+            );
         }
     }
 
