@@ -225,14 +225,14 @@ impl PanelCore {
         // costs one pass over the rows plus one block per distinct set, not T_i^2 per entity.
         let by_mask = nt <= 128;
         let mut blocks: std::collections::HashMap<u128, f64, MaskHash> = Default::default();
-        for i in 0..ne {
+        for (i, rows) in self.starts.windows(2).enumerate().take(ne) {
             if e_n[i] == 0 {
                 continue;
             }
             seen.clear();
             let mut mask = 0u128;
             let mut repeats = false;
-            for r in self.starts[i]..self.starts[i + 1] {
+            for r in rows[0]..rows[1] {
                 if x.get(r).is_some() {
                     let t = self.period[r] as usize;
                     match seen.last_mut() {
