@@ -30,7 +30,10 @@ pub(super) fn cleaned_figures(
         audit::panel_summary(&ctx)?
     };
     let mut findings = Findings::default();
-    for (check, as_read) in audit::registry().iter().zip(read.findings.iter()) {
+    // The panel as read has one finding per check, in registry order (`prepare` ran them).
+    let checks = audit::registry();
+    debug_assert_eq!(checks.len(), read.findings.iter().count());
+    for (check, as_read) in checks.iter().zip(read.findings.iter()) {
         if !check.on_cleaned() {
             continue;
         }
