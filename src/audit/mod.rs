@@ -231,6 +231,68 @@ fn group_codes(df: &DataFrame, columns: &[String]) -> Result<Vec<u32>> {
         .collect())
 }
 
+/// The distinct (entity, period) keys with `__step`, and one row per entity with `__n`,
+/// `__first`, `__last`, `__spells`, `__longest` and `__gaps` (see [`names`]), from the panel
+/// core of `df`, which is sorted by entity and period: copies of a key sit together.
+fn key_frames(
+    df: &DataFrame,
+    entity: &str,
+    period: &str,
+    core: &PanelCore,
+) -> Result<(DataFrame, DataFrame)> {
+    use names::*;
+    let ne = core.entities();
+    let mut first_rows: Vec<IdxSize> = Vec::with_capacity(core.rows());
+    let mut step: Vec<Option<i64>> = Vec::with_capacity(core.rows());
+    let (mut n, mut first, mut last) = (vec![0i64; ne], vec![0i64; ne], vec![0i64; ne]);
+    let (mut spells, mut longest) = (vec![1i64; ne], vec![0i64; ne]);
+    for (i, rows) in core.starts.windows(2).enumerate() {
+        let mut previous: Option<i64> = None;
+        for r in rows[0]..rows[1] {
+            let t = core.periods[core.period[r] as usize];
+            if previous == Some(t) {
+                continue;
+            }
+            let gap = previous.map(|p| t - p);
+            first_rows.push(r as IdxSize);
+            step.push(gap);
+            if let Some(g) = gap {
+                spells[i] += i64::from(g > 1);
+                longest[i] = longest[i].max(g - 1);
+            } else {
+                first[i] = t;
+            }
+            n[i] += 1;
+            last[i] = t;
+            previous = Some(t);
+        }
+    }
+    let key_columns = df.select([entity, period])?;
+    let mut keys = if first_rows.len() == df.height() {
+        key_columns
+    } else {
+        key_columns.take(&IdxCa::from_vec("rows".into(), first_rows))?
+    };
+    keys.with_column(Column::new(STEP.into(), step))?;
+    let starts: Vec<IdxSize> = core.starts[..ne].iter().map(|r| *r as IdxSize).collect();
+    let ids = df
+        .select([entity])?
+        .take(&IdxCa::from_vec("starts".into(), starts))?;
+    let gaps: Vec<i64> = (0..ne).map(|i| last[i] - first[i] + 1 - n[i]).collect();
+    let mut entities = ids;
+    for (name, values) in [
+        (N, n),
+        (FIRST, first),
+        (LAST, last),
+        (SPELLS, spells),
+        (LONGEST, longest),
+        (GAPS, gaps),
+    ] {
+        entities.with_column(Column::new(name.into(), values))?;
+    }
+    Ok((keys, entities))
+}
+
 impl<'a> Context<'a> {
     /// Compute the shared frames.
     pub fn new(
@@ -239,53 +301,11 @@ impl<'a> Context<'a> {
         period: &'a str,
         options: Options,
     ) -> Result<Context<'a>> {
-        use names::*;
-        // The panel arrives sorted by entity and period; keep that order.
-        let same_entity = col(entity).eq(col(entity).shift(lit(1)));
-        // Sorted by entity and period, so copies of a key sit next to each other: keep the
-        // first row of each run (no hashing).
-        let repeat = same_entity
-            .clone()
-            .and(col(period).eq(col(period).shift(lit(1))))
-            .fill_null(lit(false));
-        let keys = df
-            .clone()
-            .lazy()
-            .select([col(entity), col(period)])
-            .filter(repeat.not())
-            .with_column(
-                when(same_entity)
-                    .then(col(period) - col(period).shift(lit(1)))
-                    .otherwise(lit(NULL))
-                    .alias(STEP),
-            )
-            .collect()?;
-        let entities = keys
-            .clone()
-            .lazy()
-            .group_by([col(entity)])
-            .agg([
-                len().cast(DataType::Int64).alias(N),
-                col(period).min().alias(FIRST),
-                col(period).max().alias(LAST),
-                (lit(1i64) + col(STEP).gt(lit(1)).cast(DataType::Int64).sum()).alias(SPELLS),
-                (col(STEP) - lit(1))
-                    .max()
-                    .fill_null(lit(0i64))
-                    .alias(LONGEST),
-            ])
-            .with_column((col(LAST) - col(FIRST) + lit(1i64) - col(N)).alias(GAPS))
-            .sort([entity], Default::default())
-            .collect()?;
-        Context::from_parts(
-            df,
-            entity,
-            period,
-            options,
-            keys,
-            entities,
-            PanelCore::new(df, entity, period)?,
-        )
+        // The panel arrives sorted by entity and period: its core's codes give the distinct
+        // keys and each entity's span in one typed pass, with no group-by or sort.
+        let core = PanelCore::new(df, entity, period)?;
+        let (keys, entities) = key_frames(df, entity, period, &core)?;
+        Context::from_parts(df, entity, period, options, keys, entities, core)
     }
 
     /// A context over `df` with the key frames and codes given.

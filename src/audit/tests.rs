@@ -136,3 +136,43 @@ fn every_verdict_key_is_declared_once() {
     names.dedup();
     assert_eq!(names.len(), keys.len(), "{keys:?}");
 }
+
+#[test]
+fn key_frames_count_each_key_once() {
+    // a: 2001, 2001 (a copy), 2002, 2005 -> 3 keys, steps -, 1, 3; spells 2, longest gap 2,
+    // gaps 2. b: 2003 alone. Worked by hand.
+    let df = df!(
+        "f" => ["a", "a", "a", "a", "b"],
+        "y" => [2001i64, 2001, 2002, 2005, 2003],
+    )
+    .unwrap();
+    let ctx = Context::new(&df, "f", "y", Options::default()).unwrap();
+    let steps: Vec<Option<i64>> = ctx
+        .keys
+        .column(names::STEP)
+        .unwrap()
+        .i64()
+        .unwrap()
+        .iter()
+        .collect();
+    assert_eq!(steps, [None, Some(1), Some(3), None]);
+    let e = &ctx.entities;
+    let col = |n: &str| -> Vec<i64> {
+        e.column(n)
+            .unwrap()
+            .i64()
+            .unwrap()
+            .into_no_null_iter()
+            .collect()
+    };
+    assert_eq!(col(names::N), [3, 1]);
+    assert_eq!(
+        (col(names::FIRST), col(names::LAST)),
+        (vec![2001, 2003], vec![2005, 2003])
+    );
+    assert_eq!(col(names::SPELLS), [2, 1]);
+    assert_eq!(col(names::LONGEST), [2, 0]);
+    assert_eq!(col(names::GAPS), [2, 0]);
+    let ids: Vec<Option<&str>> = e.column("f").unwrap().str().unwrap().iter().collect();
+    assert_eq!(ids, [Some("a"), Some("b")]);
+}

@@ -177,6 +177,7 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
 
     // The checks describe the panel as read (after the key steps, repairs, rules and
     // derivation).
+    progress.stage("panel core");
     let ctx = Context::new(&panel, &input.entity, &input.period, options.clone())?
         .with_progress(progress);
     progress.stage("check: panel at a glance");
