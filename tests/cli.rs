@@ -793,7 +793,7 @@ fn a_folder_of_parquet_files_reads_as_one_panel() {
 fn a_memory_budget_too_small_stops_before_reading() {
     let w = Workdir::new();
     parquet_layouts(&w);
-    for cmd in ["audit", "build"] {
+    let run = |cmd: &str, budget: &str| {
         let mut args = vec![
             cmd,
             "one.parquet",
@@ -802,12 +802,15 @@ fn a_memory_budget_too_small_stops_before_reading() {
             "--period",
             "year",
             "--memory-budget",
-            "1KiB",
+            budget,
         ];
         if cmd == "build" {
             args.extend(["--out", "b"]);
         }
-        let r = w.run(&args);
+        w.run(&args)
+    };
+    for cmd in ["audit", "build"] {
+        let r = run(cmd, "1KiB");
         assert_eq!(r.code, 2, "{cmd}: {}", r.stderr);
         let line = r.stderr.trim_end();
         assert_eq!(line.lines().count(), 1, "{line}");
@@ -819,20 +822,8 @@ fn a_memory_budget_too_small_stops_before_reading() {
         assert!(!w.path("b").exists());
     }
     // A budget that holds it lets the run go on; a size that is not one is refused.
-    let audit = |budget: &str| {
-        w.run(&[
-            "audit",
-            "one.parquet",
-            "--entity",
-            "firm",
-            "--period",
-            "year",
-            "--memory-budget",
-            budget,
-        ])
-    };
-    assert_eq!(audit("1GiB").code, 0);
-    let r = audit("lots");
+    assert_eq!(run("audit", "1GiB").code, 0);
+    let r = run("audit", "lots");
     assert_eq!(r.code, 2);
     assert!(r.stderr.contains("--memory-budget"), "{}", r.stderr);
 }
