@@ -4,6 +4,7 @@
 //! values never enter them.
 
 use polars::prelude::*;
+use rayon::prelude::*;
 
 use super::{drop_where, Keys};
 use crate::core::{quantiles, type7, PanelCore, Values};
@@ -344,13 +345,13 @@ impl Treatment {
     /// Cutoffs per group of rows (`group(r)` of `n` groups: one for pooled cutoffs, the
     /// periods by the panel core's codes) by selection (type 7, as the engine's linear
     /// quantile), then each variable's new values (or trimming flags) in one typed pass: no
-    /// group-by, no join, one variable's values in memory at a time. `periods` names the
+    /// group-by, no join, a few variables' values in memory at a time. `periods` names the
     /// groups in the cutoffs table when they are periods.
     fn by_codes(
         &self,
         df: DataFrame,
         k: &Keys,
-        group: &dyn Fn(usize) -> usize,
+        group: &(dyn Fn(usize) -> usize + Sync),
         nt: usize,
         periods: Option<&[i64]>,
     ) -> Result<(DataFrame, Option<DataFrame>, Vec<TreatLine>)> {
@@ -367,7 +368,10 @@ impl Treatment {
         for r in 0..rows {
             sizes[group(r)] += 1;
         }
-        for (i, v) in self.variables.iter().enumerate() {
+        // Each variable on its own (its cutoffs, its new column, its counts), a few at a time
+        // in parallel; their columns replace the old ones in the variables' order.
+        type Treated = (Column, (u64, u64), Vec<Option<f64>>, Vec<Option<f64>>);
+        let one = |i: usize, v: &String| -> Result<Treated> {
             let values = Values::of(&df_before, v)?;
             let x = values.view();
             let mut groups: Vec<Vec<f64>> = sizes.iter().map(|n| Vec::with_capacity(*n)).collect();
@@ -440,10 +444,20 @@ impl Treatment {
                     flags.into_column().with_name(format!("__beyond{i}").into())
                 }
             };
-            current.with_column(column)?;
-            counts.push((below, above));
-            table.push(Column::new(format!("__lo{i}").into(), lo));
-            table.push(Column::new(format!("__hi{i}").into(), hi));
+            Ok((column, (below, above), lo, hi))
+        };
+        let indexed: Vec<(usize, &String)> = self.variables.iter().enumerate().collect();
+        for batch in indexed.chunks(crate::core::BATCH) {
+            let done: Vec<Treated> = batch
+                .par_iter()
+                .map(|(i, v)| one(*i, v))
+                .collect::<Result<_>>()?;
+            for ((i, _), (column, count, lo, hi)) in batch.iter().zip(done) {
+                current.with_column(column)?;
+                counts.push(count);
+                table.push(Column::new(format!("__lo{i}").into(), lo));
+                table.push(Column::new(format!("__hi{i}").into(), hi));
+            }
         }
         let cutoffs = DataFrame::new(nt, table)?;
         let (out, removed) = self.finish(current, k)?;
