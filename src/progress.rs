@@ -53,14 +53,20 @@ impl Progress {
 
     /// The running stage goes through `total` items (variables): show a bar from now on.
     pub fn items(&self, total: usize) {
+        self.items_of(total, "variables");
+    }
+
+    /// The running stage goes through `total` items, each one `unit` (plural): show a bar
+    /// from now on.
+    pub fn items_of(&self, total: usize, unit: &str) {
         if let Some(bar) = &self.bar {
             bar.set_length(total as u64);
             bar.set_position(0);
             bar.reset_eta();
             bar.set_style(
-                ProgressStyle::with_template(
-                    "{spinner} {msg} [{bar:24}] {pos}/{len} variables, {eta} left ({elapsed})",
-                )
+                ProgressStyle::with_template(&format!(
+                    "{{spinner}} {{msg}} [{{bar:24}}] {{pos}}/{{len}} {unit}, {{eta}} left ({{elapsed}})"
+                ))
                 .map(|s| s.progress_chars("=> "))
                 .unwrap_or_else(|_| spinner()),
             );

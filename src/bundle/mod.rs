@@ -18,6 +18,7 @@ use crate::{Error, Result};
 mod dictionary;
 mod guard;
 mod manifest;
+mod parquet;
 
 pub use crate::config::Relocated;
 use dictionary::{dictionary_md, parquet_labels, DictionaryFile};
@@ -178,10 +179,8 @@ fn write_files(
     write("panel.parquet", &mut |f| {
         // Snappy, as most Parquet writers default to: several times faster to write than
         // zstd, at a somewhat larger file.
-        ParquetWriter::new(f)
-            .with_compression(ParquetCompression::Snappy)
-            .with_key_value_metadata(Some(parquet_labels(&p.panel, &p.dictionary)))
-            .finish(&mut p.panel)?;
+        let labels = parquet_labels(&p.panel, &p.dictionary);
+        parquet::write_parquet(f, &mut p.panel, labels, progress)?;
         Ok(())
     })?;
     progress.stage("writing panel.csv and rejected.csv");
