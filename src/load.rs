@@ -496,13 +496,14 @@ fn scan(
 /// Peak memory of a run beyond the panel itself: the program, the engine's threads, the
 /// report. Measured on the bench panel at 1 M and 10 M rows (BENCHMARKS.md), with
 /// `PEAK_PER_PANEL_BYTE`.
-const PEAK_FIXED: f64 = 128.0 * 1024.0 * 1024.0;
+const PEAK_FIXED: f64 = 256.0 * 1024.0 * 1024.0;
 
 /// Peak memory per byte of the panel as held (raw and derived columns): the panel, the
-/// columns that cleaning replaces while it holds both, the kernels' buffers. Measured 1.5 to
-/// 1.6 on the bench panel (peak RSS of `build`: 484 MiB at 1 M rows, 3.5 GiB at 10 M); set
-/// above, so that the estimate errs on the safe side (by 10 to 20 % there).
-const PEAK_PER_PANEL_BYTE: f64 = 1.8;
+/// columns that cleaning replaces while it holds both, the kernels' buffers. Fitted on the
+/// bench panel (3 December 2026: peak RSS of `build` and `audit` 483–526 MiB at 1 M rows,
+/// 2.9–3.0 GiB at 10 M, for a panel as held of about 233 MiB and 2.3 GiB: 241 MiB and 1.17 a
+/// byte); both set above, so that the estimate errs on the safe side (by 10 to 20 % there).
+const PEAK_PER_PANEL_BYTE: f64 = 1.35;
 
 /// Bytes one value of a column of type `dtype` takes in memory (text: the view and a short
 /// string).

@@ -245,7 +245,7 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
         for p in &dropped {
             keep[*p as usize] = false;
         }
-        df.filter(&BooleanChunked::from_slice("keep".into(), &keep))?
+        keep_rows(df, &BooleanChunked::from_slice("keep".into(), &keep))?
     };
     // Only dropping every row of a key can lose an entity.
     let entities = if *policy == DuplicatePolicy::DropAll && conflicting_keys > 0 {
