@@ -7,6 +7,7 @@ pub mod repair;
 pub mod treat;
 
 use polars::prelude::*;
+use rayon::prelude::*;
 
 use crate::load::ROW;
 use crate::report::{KeyExample, KeysSummary, SampleStep};
@@ -373,16 +374,23 @@ pub fn drop_where(
     Ok((kept, ledger(removed, k.columns)?))
 }
 
-/// The rows of `df` where `keep` is true, one column at a time, each column let go once
-/// filtered: the panel is never held twice (a frame-wide filter holds old and new whole).
+/// The rows of `df` where `keep` is true, a few columns at a time (in parallel), each column
+/// let go once filtered: the panel is never held twice (a frame-wide filter holds old and new
+/// whole).
 pub fn keep_rows(df: DataFrame, keep: &BooleanChunked) -> Result<DataFrame> {
     let height = keep.sum().unwrap_or(0) as usize;
-    let columns = df
-        .into_columns()
-        .into_iter()
-        .map(|c| c.filter(keep))
-        .collect::<PolarsResult<Vec<_>>>()?;
-    Ok(DataFrame::new(height, columns)?)
+    let mut old = df.into_columns();
+    let mut kept = Vec::with_capacity(old.len());
+    while !old.is_empty() {
+        let batch: Vec<Column> = old.drain(..crate::core::BATCH.min(old.len())).collect();
+        kept.extend(
+            batch
+                .into_par_iter()
+                .map(|c| c.filter(keep))
+                .collect::<PolarsResult<Vec<_>>>()?,
+        );
+    }
+    Ok(DataFrame::new(height, kept)?)
 }
 
 /// Drop singletons by the policy; returns the kept rows and the ledger part, if any.
