@@ -79,11 +79,27 @@ impl Values {
                 ok: None,
             };
         }
+        // With nulls: chunk by chunk, the values beside the validity bits (a select, no
+        // per-value branching or options).
         let mut v = Vec::with_capacity(x.len());
         let mut ok = Vec::with_capacity(x.len());
-        for a in x.iter() {
-            v.push(a.unwrap_or(0.0));
-            ok.push(a.is_some());
+        for chunk in x.downcast_iter() {
+            let values = chunk.values().as_slice();
+            match chunk.validity() {
+                Some(bits) => {
+                    v.extend(
+                        values
+                            .iter()
+                            .zip(bits.iter())
+                            .map(|(a, present)| if present { *a } else { 0.0 }),
+                    );
+                    ok.extend(bits.iter());
+                }
+                None => {
+                    v.extend_from_slice(values);
+                    ok.resize(ok.len() + values.len(), true);
+                }
+            }
         }
         Values {
             shared: None,
@@ -148,5 +164,25 @@ mod tests {
         let c = Values::new(&gaps);
         assert_eq!(c.iter().collect::<Vec<_>>(), vec![(0, 1.0), (2, 3.0)]);
         assert_eq!((c.get(1), c.present()), (None, vec![1.0, 3.0]));
+        // Two chunks, one with nulls, one without: the same as read one value at a time, and
+        // 0.0 under a null whatever the buffer holds there (here a division by zero).
+        let mut mixed = Float64Chunked::from_slice_options("x".into(), &[Some(2.0), None]);
+        mixed
+            .append(&Float64Chunked::from_slice("x".into(), &[5.0, -0.0]))
+            .unwrap();
+        let ratio = &Float64Chunked::from_slice_options("x".into(), &[Some(1.0), None])
+            / &Float64Chunked::from_slice("y".into(), &[0.0, 0.0]);
+        for x in [mixed, ratio] {
+            let d = Values::new(&x);
+            let (v, ok) = d.view().parts();
+            let want: Vec<Option<f64>> = x.iter().collect();
+            assert_eq!(
+                ok.map(<[bool]>::to_vec),
+                Some(want.iter().map(Option::is_some).collect())
+            );
+            let got: Vec<u64> = v.iter().map(|a| a.to_bits()).collect();
+            let want: Vec<u64> = want.iter().map(|a| a.unwrap_or(0.0).to_bits()).collect();
+            assert_eq!(got, want);
+        }
     }
 }
