@@ -51,15 +51,13 @@ impl Check for Outliers {
         // A few variables at a time, so that memory holds a few columns' values, not all.
         ctx.items(vars.len() + ctx.levels.len());
         for batch in vars.chunks(crate::core::BATCH) {
-            let values: Vec<Values> = batch
-                .iter()
-                .map(|v| Values::of(ctx.df, v))
-                .collect::<Result<_>>()?;
             let lines: Vec<OutlierLine> = batch
                 .par_iter()
-                .zip(values.par_iter())
-                .map(|(v, x)| line(&ctx.core, ctx.outlier_groups.as_deref(), v, x, s))
-                .collect();
+                .map(|v| {
+                    let x = Values::of(ctx.df, v)?;
+                    Ok(line(&ctx.core, ctx.outlier_groups.as_deref(), v, &x, s))
+                })
+                .collect::<Result<_>>()?;
             f.lines.extend(lines);
             ctx.done(batch.len());
         }

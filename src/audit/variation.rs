@@ -37,16 +37,14 @@ pub(super) fn lines(ctx: &Context, vars: &[String]) -> Result<Vec<VariationLine>
     let mut lines: Vec<VariationLine> = Vec::with_capacity(vars.len());
     ctx.items(vars.len());
     for batch in vars.chunks(crate::core::BATCH) {
-        let values: Vec<Values> = batch
-            .iter()
-            .map(|v| Values::of(ctx.df, v))
+        let part: Vec<VariationLine> = batch
+            .par_iter()
+            .map(|v| {
+                let x = Values::of(ctx.df, v)?;
+                Ok(line(core, v, &x, ctx.settings.nearly_absorbed))
+            })
             .collect::<Result<_>>()?;
-        lines.par_extend(
-            batch
-                .par_iter()
-                .zip(values.par_iter())
-                .map(|(v, x)| line(core, v, x, ctx.settings.nearly_absorbed)),
-        );
+        lines.extend(part);
         ctx.done(batch.len());
     }
     Ok(lines)
