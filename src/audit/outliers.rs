@@ -3,13 +3,11 @@
 //! the level variables within-entity jumps in log levels and unit slips (`unit_slips.rs`).
 //! Missing values never enter a cutoff.
 
-use rayon::prelude::*;
-
 use super::verdict::{
     level_key, line as verdict_line, worst, CheckVerdict, LevelKey, Levels, Status,
 };
 use super::{unit_slips, Check, Context, Settings};
-use crate::core::{quantiles, type7, PanelCore, Values};
+use crate::core::{in_batches, quantiles, type7, PanelCore, Values};
 use crate::report::layout::{opt_level, strings, Block, Section};
 pub use crate::report::CutoffGroups;
 use crate::report::{Finding, OutlierLine, Report, ToJson, UnitSlip};
@@ -50,17 +48,18 @@ impl Check for Outliers {
         // selection (no full sort), each count in one pass.
         // A few variables at a time, so that memory holds a few columns' values, not all.
         ctx.items(vars.len() + ctx.levels.len());
-        for batch in vars.chunks(crate::core::BATCH) {
-            let lines: Vec<OutlierLine> = batch
-                .par_iter()
-                .map(|v| {
-                    let x = Values::of(ctx.df, v)?;
-                    Ok(line(&ctx.core, ctx.outlier_groups.as_deref(), v, &x, s))
-                })
-                .collect::<Result<_>>()?;
-            f.lines.extend(lines);
-            ctx.done(batch.len());
-        }
+        in_batches(
+            vars,
+            |v| {
+                let x = Values::of(ctx.df, v)?;
+                Ok(line(&ctx.core, ctx.outlier_groups.as_deref(), v, &x, s))
+            },
+            |batch, lines| {
+                f.lines.extend(lines);
+                ctx.done(batch.len());
+                Ok(())
+            },
+        )?;
         let found = unit_slips::search(ctx)?;
         for (v, jumps) in found.jumps {
             if let Some(line) = f.lines.iter_mut().find(|l| l.variable == v) {

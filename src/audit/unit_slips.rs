@@ -3,11 +3,10 @@
 //! within-entity jumps in log levels.
 
 use polars::prelude::*;
-use rayon::prelude::*;
 
 use super::Context;
 use crate::core::magnitude;
-use crate::core::Values;
+use crate::core::{in_batches, Values};
 use crate::report::UnitSlip;
 use crate::Result;
 
@@ -88,11 +87,11 @@ pub(super) fn search(ctx: &Context) -> Result<Search> {
     };
     // A few variables at a time, in parallel, so that memory holds a few columns.
     let mut found: Vec<Found> = Vec::with_capacity(levels.len());
-    for batch in levels.chunks(crate::core::BATCH) {
-        let part: Vec<Found> = batch.par_iter().map(one).collect::<Result<_>>()?;
+    in_batches(levels, one, |batch, part| {
         found.extend(part);
         ctx.done(batch.len());
-    }
+        Ok(())
+    })?;
     let entity = ctx.df.column(ctx.entity)?.cast(&DataType::String)?;
     let entity = entity.str()?;
     let period = ctx.df.column(ctx.period)?.cast(&DataType::Int64)?;

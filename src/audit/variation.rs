@@ -4,11 +4,10 @@
 //! exactly by the panel core, unbalanced panels included).
 
 use polars::prelude::*;
-use rayon::prelude::*;
 
 use super::verdict::{self, level_key, worst, CheckVerdict, LevelKey, Levels, Status};
 use super::{own, Check, Context};
-use crate::core::{PanelCore, Values};
+use crate::core::{in_batches, PanelCore, Values};
 use crate::report::layout::{opt, opt_level, strings, Block, Section};
 use crate::report::{
     Absorbed, Finding, Report, ToJson, VariationFigures as Figures, VariationLine,
@@ -36,17 +35,18 @@ pub(super) fn lines(ctx: &Context, vars: &[String]) -> Result<Vec<VariationLine>
     let core = &ctx.core;
     let mut lines: Vec<VariationLine> = Vec::with_capacity(vars.len());
     ctx.items(vars.len());
-    for batch in vars.chunks(crate::core::BATCH) {
-        let part: Vec<VariationLine> = batch
-            .par_iter()
-            .map(|v| {
-                let x = Values::of(ctx.df, v)?;
-                Ok(line(core, v, &x, ctx.settings.nearly_absorbed))
-            })
-            .collect::<Result<_>>()?;
-        lines.extend(part);
-        ctx.done(batch.len());
-    }
+    in_batches(
+        vars,
+        |v| {
+            let x = Values::of(ctx.df, v)?;
+            Ok(line(core, v, &x, ctx.settings.nearly_absorbed))
+        },
+        |batch, part| {
+            lines.extend(part);
+            ctx.done(batch.len());
+            Ok(())
+        },
+    )?;
     Ok(lines)
 }
 

@@ -4,10 +4,9 @@
 //! values never enter them.
 
 use polars::prelude::*;
-use rayon::prelude::*;
 
 use super::{drop_where, Keys};
-use crate::core::{quantiles, type7, PanelCore, Values};
+use crate::core::{in_batches, quantiles, type7, PanelCore, Values};
 use crate::report::CutoffGroups;
 use crate::report::{Cutoff, GroupCutoff, Histogram, TreatLine};
 use crate::rules::TreatSpec;
@@ -447,18 +446,19 @@ impl Treatment {
             Ok((column, (below, above), lo, hi))
         };
         let indexed: Vec<(usize, &String)> = self.variables.iter().enumerate().collect();
-        for batch in indexed.chunks(crate::core::BATCH) {
-            let done: Vec<Treated> = batch
-                .par_iter()
-                .map(|(i, v)| one(*i, v))
-                .collect::<Result<_>>()?;
-            for ((i, _), (column, count, lo, hi)) in batch.iter().zip(done) {
-                current.with_column(column)?;
-                counts.push(count);
-                table.push(Column::new(format!("__lo{i}").into(), lo));
-                table.push(Column::new(format!("__hi{i}").into(), hi));
-            }
-        }
+        in_batches(
+            &indexed,
+            |(i, v)| one(*i, v),
+            |batch, done| {
+                for ((i, _), (column, count, lo, hi)) in batch.iter().zip(done) {
+                    current.with_column(column)?;
+                    counts.push(count);
+                    table.push(Column::new(format!("__lo{i}").into(), lo));
+                    table.push(Column::new(format!("__hi{i}").into(), hi));
+                }
+                Ok(())
+            },
+        )?;
         let cutoffs = DataFrame::new(nt, table)?;
         let (out, removed) = self.finish(current, k)?;
         let lines = self.lines(&cutoffs, &counts, k, &df_before)?;

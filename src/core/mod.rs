@@ -7,6 +7,7 @@
 
 use nalgebra::{DMatrix, DVector};
 use polars::prelude::*;
+use rayon::prelude::*;
 
 use crate::Result;
 
@@ -19,6 +20,21 @@ pub use values::{Values, View};
 /// How many variables the kernels hold in memory at once (several per core, few enough that
 /// memory holds a handful of columns' values rather than the whole panel's).
 pub const BATCH: usize = 4;
+
+/// `f` on every item, [`BATCH`] items at a time in parallel; each batch's results, in the
+/// items' order, go to `take` before the next batch starts, so that memory holds a few items'
+/// results rather than all.
+pub fn in_batches<T: Sync, R: Send>(
+    items: &[T],
+    f: impl Fn(&T) -> Result<R> + Sync,
+    mut take: impl FnMut(&[T], Vec<R>) -> Result<()>,
+) -> Result<()> {
+    for batch in items.chunks(BATCH) {
+        let done = batch.par_iter().map(&f).collect::<Result<Vec<R>>>()?;
+        take(batch, done)?;
+    }
+    Ok(())
+}
 
 /// Entity and period codes of a panel sorted by entity and period.
 #[derive(Debug, Clone, Default)]
