@@ -1,0 +1,109 @@
+//! The memory budget: before the panel is read, an estimate of the peak memory holding it
+//! takes (rows from the file, columns by type, the derived variables), against the budget
+//! `--memory-budget` sets.
+
+use std::path::Path;
+
+use polars::prelude::*;
+
+use crate::config::{InputConfig, InputFormat};
+use crate::{Error, Result};
+
+/// Peak memory of a run beyond the panel itself: the program, the engine's threads, the
+/// report. Measured on the bench panel at 1 M and 10 M rows (BENCHMARKS.md), with
+/// `PEAK_PER_PANEL_BYTE`.
+const PEAK_FIXED: f64 = 256.0 * 1024.0 * 1024.0;
+
+/// Peak memory per byte of the panel as held (raw and derived columns): the panel, the
+/// columns that cleaning replaces while it holds both, the kernels' buffers. Fitted on the
+/// bench panel (3 December 2026: peak RSS of `build` and `audit` 483–526 MiB at 1 M rows,
+/// 2.9–3.0 GiB at 10 M, for a panel as held of about 233 MiB and 2.3 GiB: 241 MiB and 1.17 a
+/// byte); both set above, so that the estimate errs on the safe side (by 10 to 20 % there).
+const PEAK_PER_PANEL_BYTE: f64 = 1.35;
+
+/// Bytes one value of a column of type `dtype` takes in memory (text: the view and a short
+/// string).
+fn value_bytes(dtype: &DataType) -> f64 {
+    match dtype {
+        DataType::Boolean | DataType::Int8 | DataType::UInt8 => 1.0,
+        DataType::Int16 | DataType::UInt16 => 2.0,
+        DataType::Int32 | DataType::UInt32 | DataType::Float32 | DataType::Date => 4.0,
+        DataType::String | DataType::Binary => 24.0,
+        _ => 8.0,
+    }
+}
+
+/// A size for people: `800 bytes`, `12 KiB`, `512 MiB`, `3.9 GiB`.
+fn human_bytes(bytes: f64) -> String {
+    let k = 1024.0;
+    if bytes < k {
+        format!("{bytes:.0} bytes")
+    } else if bytes < k * k {
+        format!("{:.0} KiB", bytes / k)
+    } else if bytes < k * k * k {
+        format!("{:.0} MiB", bytes / (k * k))
+    } else {
+        format!("{:.1} GiB", bytes / (k * k * k))
+    }
+}
+
+/// Stop before reading when holding the panel would take more than `budget` bytes: the rows
+/// from the Parquet metadata, or for a CSV file from its size and the length of its first
+/// lines; each column's width from its type, the derived variables as numbers. A compressed
+/// CSV file or a spreadsheet is not estimated.
+pub(super) fn check_budget(
+    cfg: &InputConfig,
+    lf: &LazyFrame,
+    schema: &Schema,
+    budget: u64,
+) -> Result<()> {
+    let rows = match cfg.format {
+        InputFormat::Parquet => {
+            let n = lf
+                .clone()
+                .select([len().cast(DataType::UInt64)])
+                .collect()?;
+            n.columns()[0].u64()?.get(0).unwrap_or(0)
+        }
+        InputFormat::Csv => match csv_rows(&cfg.path)? {
+            Some(rows) => rows,
+            None => return Ok(()),
+        },
+        InputFormat::Spreadsheet => return Ok(()),
+    };
+    let derived = cfg.rules.derive.len();
+    let width: f64 = schema.iter_values().map(value_bytes).sum::<f64>()
+        + 8.0 * derived as f64
+        + std::mem::size_of::<IdxSize>() as f64;
+    let needed = PEAK_FIXED + PEAK_PER_PANEL_BYTE * rows as f64 * width;
+    if needed > budget as f64 {
+        return Err(Error::MemoryBudget {
+            file: cfg.path.clone(),
+            rows,
+            columns: schema.len() + derived,
+            needed: human_bytes(needed),
+            budget: human_bytes(budget as f64),
+        });
+    }
+    Ok(())
+}
+
+/// The data rows of an uncompressed CSV file, estimated from its size and its first lines;
+/// none for a compressed file.
+fn csv_rows(path: &Path) -> Result<Option<u64>> {
+    use std::io::Read;
+    let size = std::fs::metadata(path).map_err(Error::io(path))?.len();
+    let mut head = Vec::new();
+    std::fs::File::open(path)
+        .map_err(Error::io(path))?
+        .take(1 << 20)
+        .read_to_end(&mut head)
+        .map_err(Error::io(path))?;
+    // gzip and zstd start with these bytes.
+    if head.starts_with(&[0x1f, 0x8b]) || head.starts_with(&[0x28, 0xb5, 0x2f, 0xfd]) {
+        return Ok(None);
+    }
+    let lines = head.iter().filter(|b| **b == b'\n').count().max(1) as u64;
+    let per_line = head.len() as u64 / lines;
+    Ok(Some((size / per_line.max(1)).saturating_sub(1)))
+}
