@@ -80,11 +80,17 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
     } else {
         raw.lazy().filter(e_null.or(p_null).not()).collect()?
     };
+    // The key columns in one chunk each first: the order check shifts them, which on a column
+    // read in many chunks copies it piece by piece.
+    let mut df = df;
+    for name in [entity, period] {
+        let whole = df.column(name)?.rechunk();
+        df.with_column(whole)?;
+    }
     let df = if in_key_order(&df, entity, period)? {
         // One chunk per column, as the sort would leave it: later steps work on whole
-        // columns. Column by column, so that only one column is held twice at a time.
-        let mut df = df;
-        df.rechunk_mut();
+        // columns. A column per thread, so that only a column a thread is held twice.
+        df.rechunk_mut_par();
         df
     } else {
         df.lazy()
