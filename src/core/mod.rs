@@ -125,53 +125,54 @@ impl PanelCore {
         self.moments_and_sums(x).0
     }
 
-    /// Each row with a value, as (entity code, period code, value), in row order.
-    fn each(&self, x: &View, mut f: impl FnMut(usize, usize, f64)) {
-        let (values, ok) = x.parts();
-        let codes = self.entity.iter().zip(&self.period);
-        match ok {
-            None => {
-                for (v, (e, t)) in values.iter().zip(codes) {
-                    f(*e as usize, *t as usize, *v);
-                }
-            }
-            Some(ok) => {
-                for ((v, o), (e, t)) in values.iter().zip(ok).zip(codes) {
-                    if *o {
-                        f(*e as usize, *t as usize, *v);
-                    }
-                }
-            }
-        }
-    }
-
     /// [`PanelCore::moments`], and the sums the two-way residual starts from, gathered in
     /// the same two passes over the rows.
     pub fn moments_and_sums(&self, x: &Values) -> (Moments, TwoWaySums) {
-        let x = x.view();
+        match x.view().parts() {
+            (values, None) => self.moments_with(values, |_| true),
+            (values, Some(ok)) => self.moments_with(values, |r| ok[r]),
+        }
+    }
+
+    /// [`PanelCore::moments_and_sums`] over `values` where `present(r)`. Entity by entity
+    /// (their rows are contiguous), so that each entity's sums stay in registers; every sum
+    /// still runs in row order.
+    fn moments_with(
+        &self,
+        values: &[f64],
+        present: impl Fn(usize) -> bool,
+    ) -> (Moments, TwoWaySums) {
         let (ne, nt) = (self.entities(), self.periods.len());
         let mut e_sum = vec![0.0; ne];
         let mut e_n = vec![0u32; ne];
-        let mut e_min = vec![f64::INFINITY; ne];
-        let mut e_max = vec![f64::NEG_INFINITY; ne];
+        let mut flat = 0u64;
         let mut p_sum = vec![0.0; nt];
         let mut p_n = vec![0u64; nt];
         let (mut sum, mut n) = (0.0, 0u64);
-        self.each(&x, |e, t, v| {
-            e_sum[e] += v;
-            e_n[e] += 1;
-            // NaN never compares: an entity holding one is not counted as flat.
-            if v.is_nan() {
-                e_min[e] = f64::NAN;
-            } else if !e_min[e].is_nan() {
-                e_min[e] = e_min[e].min(v);
-                e_max[e] = e_max[e].max(v);
+        for (e, rows) in self.starts.windows(2).enumerate() {
+            let (mut s, mut c) = (0.0, 0u32);
+            let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
+            for r in (rows[0]..rows[1]).filter(|r| present(*r)) {
+                let v = values[r];
+                s += v;
+                c += 1;
+                // NaN never compares: an entity holding one is not counted as flat.
+                if v.is_nan() {
+                    lo = f64::NAN;
+                } else if !lo.is_nan() {
+                    lo = lo.min(v);
+                    hi = hi.max(v);
+                }
+                let t = self.period[r] as usize;
+                p_sum[t] += v;
+                p_n[t] += 1;
+                sum += v;
+                n += 1;
             }
-            p_sum[t] += v;
-            p_n[t] += 1;
-            sum += v;
-            n += 1;
-        });
+            e_sum[e] = s;
+            e_n[e] = c;
+            flat += u64::from(c > 1 && lo == hi);
+        }
         let mean = sum / n as f64;
         let e_mean: Vec<f64> = e_sum
             .iter()
@@ -186,12 +187,15 @@ impl PanelCore {
         let (mut tss, mut wss, mut pss) = (0.0, 0.0, 0.0);
         // b of the two-way system: period sums of the entity-demeaned values.
         let mut b = vec![0.0; nt];
-        self.each(&x, |e, t, v| {
-            tss += (v - mean).powi(2);
-            wss += (v - e_mean[e]).powi(2);
-            pss += (v - p_mean[t]).powi(2);
-            b[t] += v - e_mean[e];
-        });
+        for (m, rows) in e_mean.iter().zip(self.starts.windows(2)) {
+            for r in (rows[0]..rows[1]).filter(|r| present(*r)) {
+                let (v, t) = (values[r], self.period[r] as usize);
+                tss += (v - mean).powi(2);
+                wss += (v - m).powi(2);
+                pss += (v - p_mean[t]).powi(2);
+                b[t] += v - m;
+            }
+        }
         // Between: SD of the entity means, each entity with a value once, n - 1.
         let observed: Vec<f64> = e_mean
             .iter()
@@ -206,11 +210,6 @@ impl PanelCore {
         } else {
             f64::NAN
         };
-        let flat = e_n
-            .iter()
-            .zip(e_min.iter().zip(&e_max))
-            .filter(|(c, (lo, hi))| **c > 1 && lo == hi)
-            .count() as u64;
         let moments = Moments {
             n,
             mean,
@@ -302,8 +301,7 @@ impl PanelCore {
     /// solution, and one pass for the residual.
     pub fn two_way_from(&self, x: &Values, sums: &TwoWaySums) -> f64 {
         let x = x.view();
-        let (ne, nt) = (self.entities(), self.periods.len());
-        let (e_sum, e_n) = (&sums.e_sum, &sums.e_n);
+        let (nt, e_n) = (self.periods.len(), &sums.e_n);
         let a = if x.parts().1.is_none() {
             self.complete_system
                 .get_or_init(|| self.period_system(&x, e_n))
@@ -313,27 +311,38 @@ impl PanelCore {
         };
         let b = sums.b.clone();
         let beta = solve_psd(DMatrix::from_row_slice(nt, nt, &a), &DVector::from_vec(b));
-        // Fitted period part of each row, entity-demeaned: beta_t - mean over the entity's
-        // rows of beta; the residual is what is left of x~.
+        match x.parts() {
+            (values, None) => self.residual(values, |_| true, &beta, sums),
+            (values, Some(ok)) => self.residual(values, |r| ok[r], &beta, sums),
+        }
+    }
+
+    /// The residual sum of squares once the period effects `beta` are known: the fitted
+    /// period part of each row, entity-demeaned, is beta_t - the mean of beta over the
+    /// entity's rows; the residual is what is left of x~ (rows where `present(r)`).
+    fn residual(
+        &self,
+        values: &[f64],
+        present: impl Fn(usize) -> bool,
+        beta: &DVector<f64>,
+        sums: &TwoWaySums,
+    ) -> f64 {
+        let (e_sum, e_n) = (&sums.e_sum, &sums.e_n);
         let mut rss = 0.0;
-        for i in 0..ne {
+        for (i, rows) in self.starts.windows(2).enumerate() {
             if e_n[i] == 0 {
                 continue;
             }
-            let rows = self.starts[i]..self.starts[i + 1];
+            let rows = || (rows[0]..rows[1]).filter(|r| present(*r));
             let m = e_sum[i] / e_n[i] as f64;
             let mut mb = 0.0;
-            for r in rows.clone() {
-                if x.get(r).is_some() {
-                    mb += beta[self.period[r] as usize];
-                }
+            for r in rows() {
+                mb += beta[self.period[r] as usize];
             }
             mb /= e_n[i] as f64;
-            for r in rows {
-                if let Some(v) = x.get(r) {
-                    let fitted = beta[self.period[r] as usize] - mb;
-                    rss += (v - m - fitted).powi(2);
-                }
+            for r in rows() {
+                let fitted = beta[self.period[r] as usize] - mb;
+                rss += (values[r] - m - fitted).powi(2);
             }
         }
         rss

@@ -136,21 +136,31 @@ pub fn quantiles(x: &View, n: usize, map: impl Fn(f64) -> f64, ps: &[f64]) -> Ve
         .collect()
 }
 
-/// The `k`-th smallest of the mapped values (by `total_cmp`) for each of the sorted, distinct
-/// `ks`.
-fn order_stats(x: &View, n: usize, map: &impl Fn(f64) -> f64, ks: &[usize]) -> Vec<f64> {
-    let (values, ok) = x.parts();
-    let each = |f: &mut dyn FnMut(f64)| match ok {
+/// `f(map(v))` for each value `v` where `ok` says there is one, in row order (generic, so
+/// that `f` is inlined into the loop).
+fn each_mapped(
+    values: &[f64],
+    ok: Option<&[bool]>,
+    map: &impl Fn(f64) -> f64,
+    mut f: impl FnMut(f64),
+) {
+    match ok {
         None => values.iter().for_each(|v| f(map(*v))),
         Some(ok) => values
             .iter()
             .zip(ok)
             .filter(|(_, o)| **o)
             .for_each(|(v, _)| f(map(*v))),
-    };
+    }
+}
+
+/// The `k`-th smallest of the mapped values (by `total_cmp`) for each of the sorted, distinct
+/// `ks`.
+fn order_stats(x: &View, n: usize, map: &impl Fn(f64) -> f64, ks: &[usize]) -> Vec<f64> {
+    let (values, ok) = x.parts();
     let whole = |ks: &[usize]| {
         let mut all = Vec::with_capacity(n);
-        each(&mut |v| all.push(v));
+        each_mapped(values, ok, map, |v| all.push(v));
         select_each(&mut all, ks);
         ks.iter().map(|k| all[*k]).collect::<Vec<f64>>()
     };
@@ -204,7 +214,7 @@ fn order_stats(x: &View, n: usize, map: &impl Fn(f64) -> f64, ks: &[usize]) -> V
     // gap[j]: values between bracket j - 1 and bracket j; kept[j]: those inside bracket j.
     let mut gap = vec![0usize; merged.len()];
     let mut kept: Vec<Vec<f64>> = vec![Vec::new(); merged.len()];
-    each(&mut |v| {
+    each_mapped(values, ok, map, |v| {
         let k = key(v);
         for (j, (lo, hi)) in merged.iter().enumerate() {
             if k < *lo {
