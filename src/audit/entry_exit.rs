@@ -184,15 +184,26 @@ fn section(r: &Figures) -> Section {
 /// and returning after a gap; per (entry cohort, periods since entry): entities present.
 type Counts = (HashMap<i64, [u64; 4]>, HashMap<(i64, i64), u64>);
 
+/// Up to this many distinct periods the cohort counts are a dense table of period codes
+/// (8 MiB at most); beyond, a map of the pairs seen.
+const DENSE_PERIODS: usize = 1024;
+
 fn counts(core: &PanelCore) -> Counts {
-    let mut by_period: HashMap<i64, [u64; 4]> = HashMap::new();
-    let mut cohorts: HashMap<(i64, i64), u64> = HashMap::new();
-    let mut periods: Vec<i64> = Vec::new();
-    for i in 0..core.entities() {
-        // The entity's distinct periods, ascending (copies of a key sit together).
+    tally(core, core.periods.len() <= DENSE_PERIODS)
+}
+
+/// [`counts`], the cohorts in a dense table of period codes or in a map of the pairs seen.
+fn tally(core: &PanelCore, dense: bool) -> Counts {
+    let nt = core.periods.len();
+    // Tallied by period code (no hashing per entity and period), named by value at the end.
+    let mut by_period = vec![[0u64; 4]; nt];
+    let mut table = vec![0u64; if dense { nt * nt } else { 0 }];
+    let mut pairs: HashMap<(u32, u32), u64> = HashMap::new();
+    let mut periods: Vec<u32> = Vec::new();
+    for rows in core.starts.windows(2) {
+        // The entity's distinct period codes, ascending (copies of a key sit together).
         periods.clear();
-        for r in core.starts[i]..core.starts[i + 1] {
-            let t = core.periods[core.period[r] as usize];
+        for &t in &core.period[rows[0]..rows[1]] {
             if periods.last() != Some(&t) {
                 periods.push(t);
             }
@@ -200,16 +211,99 @@ fn counts(core: &PanelCore) -> Counts {
         let (Some(&first), Some(&last)) = (periods.first(), periods.last()) else {
             continue;
         };
-        let mut previous = None;
+        let mut previous: Option<i64> = None;
         for &t in &periods {
-            let c = by_period.entry(t).or_default();
+            let value = core.periods[t as usize];
+            let c = &mut by_period[t as usize];
             c[0] += 1;
             c[1] += u64::from(t == first);
             c[2] += u64::from(t == last);
-            c[3] += u64::from(previous.is_some_and(|p| t - p > 1));
-            previous = Some(t);
-            *cohorts.entry((first, t - first)).or_default() += 1;
+            c[3] += u64::from(previous.is_some_and(|p| value - p > 1));
+            previous = Some(value);
+            if dense {
+                table[first as usize * nt + t as usize] += 1;
+            } else {
+                *pairs.entry((first, t)).or_default() += 1;
+            }
         }
     }
+    if dense {
+        pairs.extend(
+            table
+                .iter()
+                .enumerate()
+                .filter(|(_, n)| **n > 0)
+                .map(|(i, n)| (((i / nt) as u32, (i % nt) as u32), *n)),
+        );
+    }
+    let value = |t: u32| core.periods[t as usize];
+    let by_period = by_period
+        .into_iter()
+        .enumerate()
+        .filter(|(_, c)| c[0] > 0)
+        .map(|(t, c)| (value(t as u32), c))
+        .collect();
+    let cohorts = pairs
+        .into_iter()
+        .map(|((first, t), n)| ((value(first), value(t) - value(first)), n))
+        .collect();
     (by_period, cohorts)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use polars::prelude::*;
+
+    fn core(f: &[&str], y: &[i64]) -> PanelCore {
+        let df = df!("f" => f, "y" => y).unwrap();
+        PanelCore::new(&df, "f", "y").unwrap()
+    }
+
+    #[test]
+    fn counts_match_a_hand_count_in_both_tallies() {
+        // a: 2001, 2002, 2004 (returns after a gap); b: 2002, 2003; c: 2001 twice (a copy).
+        let f = ["a", "a", "a", "b", "b", "c", "c"];
+        let y = [2001, 2002, 2004, 2002, 2003, 2001, 2001];
+        let core = core(&f, &y);
+        let want_periods: HashMap<i64, [u64; 4]> = [
+            (2001, [2, 2, 1, 0]),
+            (2002, [2, 1, 0, 0]),
+            (2003, [1, 0, 1, 0]),
+            (2004, [1, 0, 1, 1]),
+        ]
+        .into();
+        let want_cohorts: HashMap<(i64, i64), u64> = [
+            ((2001, 0), 2),
+            ((2001, 1), 1),
+            ((2001, 3), 1),
+            ((2002, 0), 1),
+            ((2002, 1), 1),
+        ]
+        .into();
+        for dense in [true, false] {
+            let (periods, cohorts) = tally(&core, dense);
+            assert_eq!(periods, want_periods, "dense {dense}");
+            assert_eq!(cohorts, want_cohorts, "dense {dense}");
+        }
+    }
+
+    #[test]
+    fn many_periods_are_tallied_without_the_dense_table() {
+        // More distinct periods than the dense table takes: one entity a period, and one
+        // entity present in the first and the last.
+        let n = DENSE_PERIODS + 10;
+        let names: Vec<String> = (0..n).map(|i| format!("e{i:05}")).collect();
+        let mut f: Vec<&str> = names.iter().map(String::as_str).collect();
+        let mut y: Vec<i64> = (0..n as i64).collect();
+        f.extend(["z", "z"]);
+        y.extend([0, n as i64 - 1]);
+        let (periods, cohorts) = counts(&core(&f, &y));
+        assert_eq!(periods.len(), n);
+        assert_eq!(periods[&0], [2, 2, 1, 0]);
+        assert_eq!(periods[&(n as i64 - 1)], [2, 1, 2, 1]);
+        assert_eq!(cohorts[&(0, 0)], 2);
+        assert_eq!(cohorts[&(0, n as i64 - 1)], 1);
+        assert_eq!(cohorts.values().sum::<u64>(), n as u64 + 2);
+    }
 }

@@ -335,8 +335,8 @@ pub(super) fn categorical(ctx: &Context) -> Result<Vec<VariationLine>> {
         .iter()
         .filter(|v| !ctx.numeric.contains(v))
         .collect();
-    let mut lines = Vec::new();
-    for v in others {
+    // One column at a time on each core: each compares its whole text column.
+    let one = |v: &&String| -> Result<VariationLine> {
         let text = ctx.df.column(v)?.cast(&DataType::String)?;
         let text = text.str()?;
         let n = text.len() - text.null_count();
@@ -363,8 +363,8 @@ pub(super) fn categorical(ctx: &Context) -> Result<Vec<VariationLine>> {
         } else {
             None
         };
-        lines.push(VariationLine {
-            variable: v.clone(),
+        Ok(VariationLine {
+            variable: v.to_string(),
             n: n as u64,
             mean: None,
             sd_total: None,
@@ -375,8 +375,13 @@ pub(super) fn categorical(ctx: &Context) -> Result<Vec<VariationLine>> {
             zero_within_entities: 0,
             absorbed_by,
             nearly_absorbed: false,
-        });
-    }
+        })
+    };
+    let mut lines = Vec::with_capacity(others.len());
+    in_batches(&others, one, |_, done| {
+        lines.extend(done);
+        Ok(())
+    })?;
     Ok(lines)
 }
 
