@@ -9,7 +9,23 @@ use crate::Result;
 
 /// The panel of `ctx` at a glance: rows, entities, periods, window, balance and evenness.
 pub fn panel_summary(ctx: &Context) -> Result<PanelSummary> {
-    let mut panel = summarize(ctx.df, ctx.entity, ctx.period, ctx.keys.height() as u64)?;
+    let keys = ctx.keys.height() as u64;
+    let (df, core) = (ctx.df, &ctx.core);
+    // The panel core codes these rows (sorted, no key missing): its counts are the distinct
+    // entities and periods, with no hashing of the entity names.
+    let coded = core.rows() == df.height()
+        && df.column(ctx.entity)?.null_count() == 0
+        && df.column(ctx.period)?.null_count() == 0;
+    let mut panel = if coded {
+        let (first, last) = (core.periods.first().copied(), core.periods.last().copied());
+        summary(
+            [df.height(), core.entities(), core.periods.len()].map(|n| n as u64),
+            first.zip(last),
+            keys,
+        )
+    } else {
+        summarize(df, ctx.entity, ctx.period, keys)?
+    };
     (panel.evenness_harmonic, panel.evenness_squares) = evenness(&ctx.entities)?;
     Ok(panel)
 }
@@ -61,21 +77,31 @@ pub fn summarize(df: &DataFrame, entity: &str, period: &str, keys: u64) -> Resul
     let u = |c: &str| -> Result<u64> { Ok(s.column(c)?.u64()?.get(0).unwrap_or(0)) };
     let first = s.column("first")?.i64()?.get(0);
     let last = s.column("last")?.i64()?.get(0);
-    let (rows, entities) = (u("rows")?, u("entities")?);
-    let window = match (first, last) {
-        (Some(a), Some(b)) => (b - a + 1) as u64,
-        _ => 0,
-    };
-    Ok(PanelSummary {
+    Ok(summary(
+        [u("rows")?, u("entities")?, u("periods")?],
+        first.zip(last),
+        keys,
+    ))
+}
+
+/// The summary from the counts of rows, entities and periods, the first and last period and
+/// the distinct keys.
+fn summary(
+    [rows, entities, periods]: [u64; 3],
+    window: Option<(i64, i64)>,
+    keys: u64,
+) -> PanelSummary {
+    let width = window.map_or(0, |(a, b)| (b - a + 1) as u64);
+    PanelSummary {
         rows,
         entities,
-        periods: u("periods")?,
-        first_period: first,
-        last_period: last,
-        balanced: rows > 0 && rows == keys && rows == entities * window,
+        periods,
+        first_period: window.map(|w| w.0),
+        last_period: window.map(|w| w.1),
+        balanced: rows > 0 && rows == keys && rows == entities * width,
         evenness_harmonic: None,
         evenness_squares: None,
-    })
+    }
 }
 
 #[cfg(test)]
@@ -94,5 +120,27 @@ mod tests {
         // A duplicated key makes the count match but is not balanced.
         let df = df!("f" => ["a", "a", "b", "c"], "y" => [2001i64, 2001, 2001, 2001]).unwrap();
         assert!(!summarize(&df, "f", "y", 3).unwrap().balanced);
+    }
+
+    #[test]
+    fn the_panel_core_counts_what_the_engine_counts() {
+        // Entities by the core's runs, against the engine's distinct counts on the same rows.
+        let df = df!(
+            "f" => ["a", "a", "b", "c", "c", "c"],
+            "y" => [2001i64, 2003, 2002, 2001, 2002, 2003]
+        )
+        .unwrap();
+        let core = crate::core::PanelCore::new(&df, "f", "y").unwrap();
+        let engine = summarize(&df, "f", "y", 6).unwrap();
+        let coded = summary(
+            [6, core.entities() as u64, core.periods.len() as u64],
+            core.periods
+                .first()
+                .copied()
+                .zip(core.periods.last().copied()),
+            6,
+        );
+        assert_eq!(format!("{coded:?}"), format!("{engine:?}"));
+        assert_eq!((coded.entities, coded.periods), (3, 3));
     }
 }
