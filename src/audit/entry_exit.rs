@@ -253,12 +253,7 @@ fn tally(core: &PanelCore, dense: bool) -> Counts {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use polars::prelude::*;
-
-    fn core(f: &[&str], y: &[i64]) -> PanelCore {
-        let df = df!("f" => f, "y" => y).unwrap();
-        PanelCore::new(&df, "f", "y").unwrap()
-    }
+    use crate::core::coded as core;
 
     #[test]
     fn counts_match_a_hand_count_in_both_tallies() {

@@ -4,6 +4,7 @@
 //! values never enter them.
 
 use polars::prelude::*;
+use rayon::prelude::*;
 
 use super::{drop_where, Keys};
 use crate::core::{in_batches, quantiles, type7, PanelCore, Values};
@@ -299,16 +300,12 @@ impl Treatment {
         k: &Keys,
         df_before: &DataFrame,
     ) -> Result<Vec<TreatLine>> {
-        // The charts, a few variables at a time in parallel: each reads its whole column.
-        let mut histograms = Vec::with_capacity(self.variables.len());
-        in_batches(
-            &self.variables,
-            |v| histogram(df_before, v),
-            |_, done| {
-                histograms.extend(done);
-                Ok(())
-            },
-        )?;
+        // The charts in parallel, a variable a thread: each reads its whole column.
+        let histograms: Vec<Histogram> = self
+            .variables
+            .par_iter()
+            .map(|v| histogram(df_before, v))
+            .collect::<Result<_>>()?;
         let mut lines = Vec::new();
         for ((i, v), histogram) in self.variables.iter().enumerate().zip(histograms) {
             let lo = cutoffs.column(&format!("__lo{i}"))?.f64()?;

@@ -513,13 +513,19 @@ pub struct Moments {
     pub flat: u64,
 }
 
+/// The panel core of entities `f` and periods `y` (sorted by both), for unit tests.
+#[cfg(test)]
+pub(crate) fn coded(f: &[&str], y: &[i64]) -> PanelCore {
+    let df = df!("f" => f, "y" => y).unwrap();
+    PanelCore::new(&df, "f", "y").unwrap()
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
 
     fn core(f: &[&str], y: &[i64]) -> PanelCore {
-        let df = df!("f" => f, "y" => y).unwrap();
-        PanelCore::new(&df, "f", "y").unwrap()
+        coded(f, y)
     }
 
     #[test]
