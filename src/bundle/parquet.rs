@@ -25,7 +25,7 @@ const ROW_GROUP: usize = 512 * 512;
 
 /// Write `df` as Snappy-compressed Parquet with the file-level `metadata`, showing the row
 /// groups done on `progress`.
-pub(super) fn write_parquet<W: Write>(
+pub(super) fn write_parquet<W: Write + Send>(
     sink: W,
     df: &mut DataFrame,
     metadata: KeyValueMetadata,
@@ -52,9 +52,9 @@ pub(super) fn write_parquet<W: Write>(
         .filter(|b| !b.is_empty())
         .collect();
     progress.items_of(batches.len(), "row groups");
-    for batch in batches {
-        let columns: Vec<Vec<CompressedPage>> = batch
-            .columns()
+    // Each row group's columns made into compressed pages in parallel.
+    let encode = |columns: &[ArrayRef]| -> PolarsResult<Vec<Vec<CompressedPage>>> {
+        Ok(columns
             .par_iter()
             .zip(&fields)
             .zip(encodings.as_ref())
@@ -71,8 +71,26 @@ pub(super) fn write_parquet<W: Write>(
             .collect::<PolarsResult<Vec<_>>>()?
             .into_iter()
             .flatten()
-            .collect();
-        writer.write_row_group(batch.len() as u64, &columns)?;
+            .collect())
+    };
+    // The file writer lays out one row group while the next is encoded: the cores are not
+    // left idle while pages are copied out.
+    let mut ready: Option<(u64, Vec<Vec<CompressedPage>>)> = None;
+    for batch in &batches {
+        let (pages, written) = rayon::join(
+            || encode(batch.columns()),
+            || match ready.take() {
+                Some((rows, pages)) => writer.write_row_group(rows, &pages).map(|_| true),
+                None => Ok(false),
+            },
+        );
+        if written? {
+            progress.done(1);
+        }
+        ready = Some((batch.len() as u64, pages?));
+    }
+    if let Some((rows, pages)) = ready {
+        writer.write_row_group(rows, &pages)?;
         progress.done(1);
     }
     writer.finish()?;
