@@ -376,7 +376,12 @@ pub fn drop_where(
         ])
         .collect()?;
     marked.drop_in_place(REASON)?;
-    let kept = keep_rows(marked, &!hit)?;
+    // Nothing hit (a clean panel): the frame as it is, not a copy of every column.
+    let kept = if hit.any() {
+        keep_rows(marked, &!hit)?
+    } else {
+        marked
+    };
     Ok((kept, ledger(removed, k.columns)?))
 }
 
