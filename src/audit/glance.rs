@@ -17,12 +17,7 @@ pub fn panel_summary(ctx: &Context) -> Result<PanelSummary> {
         && df.column(ctx.entity)?.null_count() == 0
         && df.column(ctx.period)?.null_count() == 0;
     let mut panel = if coded {
-        let (first, last) = (core.periods.first().copied(), core.periods.last().copied());
-        summary(
-            [df.height(), core.entities(), core.periods.len()].map(|n| n as u64),
-            first.zip(last),
-            keys,
-        )
+        from_core(core, keys)
     } else {
         summarize(df, ctx.entity, ctx.period, keys)?
     };
@@ -84,6 +79,16 @@ pub fn summarize(df: &DataFrame, entity: &str, period: &str, keys: u64) -> Resul
     ))
 }
 
+/// The summary from the panel core's codes, for rows it codes with no key missing.
+fn from_core(core: &crate::core::PanelCore, keys: u64) -> PanelSummary {
+    let (first, last) = (core.periods.first().copied(), core.periods.last().copied());
+    summary(
+        [core.rows(), core.entities(), core.periods.len()].map(|n| n as u64),
+        first.zip(last),
+        keys,
+    )
+}
+
 /// The summary from the counts of rows, entities and periods, the first and last period and
 /// the distinct keys.
 fn summary(
@@ -132,14 +137,7 @@ mod tests {
         .unwrap();
         let core = crate::core::PanelCore::new(&df, "f", "y").unwrap();
         let engine = summarize(&df, "f", "y", 6).unwrap();
-        let coded = summary(
-            [6, core.entities() as u64, core.periods.len() as u64],
-            core.periods
-                .first()
-                .copied()
-                .zip(core.periods.last().copied()),
-            6,
-        );
+        let coded = from_core(&core, 6);
         assert_eq!(format!("{coded:?}"), format!("{engine:?}"));
         assert_eq!((coded.entities, coded.periods), (3, 3));
     }
