@@ -212,28 +212,17 @@ fn fiscal_year(
         .cast(DataType::String)
         .str()
         .strip_chars(lit(NULL));
-    let year = text
-        .clone()
-        .str()
-        .slice(lit(0), lit(4))
-        .cast(DataType::Int64);
-    let month = text
-        .clone()
-        .str()
-        .slice(lit(5), lit(2))
-        .cast(DataType::Int64);
-    let day = text
-        .clone()
-        .str()
-        .slice(lit(8), lit(2))
-        .cast(DataType::Int64);
+    // `len` characters from `start` of a YYYY-MM-DD date.
+    let part = |start: i32, len: i32| text.clone().str().slice(lit(start), lit(len));
+    let [year, month, day] =
+        [(0, 4), (5, 2), (8, 2)].map(|(s, l)| part(s, l).cast(DataType::Int64));
     let well_formed = text
         .clone()
         .str()
         .len_chars()
         .eq(lit(10u32))
-        .and(text.clone().str().slice(lit(4), lit(1)).eq(lit("-")))
-        .and(text.clone().str().slice(lit(7), lit(1)).eq(lit("-")))
+        .and(part(4, 1).eq(lit("-")))
+        .and(part(7, 1).eq(lit("-")))
         .and(year.clone().is_not_null())
         .and(
             month
