@@ -257,6 +257,8 @@ mod tests {
 
     #[test]
     fn counts_match_a_hand_count_in_both_tallies() {
+        // Source: counted by hand from the rows below (entry = first period, exit = last,
+        // return = a period after a gap; cohorts by first period and periods since).
         // a: 2001, 2002, 2004 (returns after a gap); b: 2002, 2003; c: 2001 twice (a copy).
         let f = ["a", "a", "a", "b", "b", "c", "c"];
         let y = [2001, 2002, 2004, 2002, 2003, 2001, 2001];
@@ -287,6 +289,7 @@ mod tests {
     fn many_periods_are_tallied_without_the_dense_table() {
         // More distinct periods than the dense table takes: one entity a period, and one
         // entity present in the first and the last.
+        // Source: counted by hand, as above.
         let n = DENSE_PERIODS + 10;
         let names: Vec<String> = (0..n).map(|i| format!("e{i:05}")).collect();
         let mut f: Vec<&str> = names.iter().map(String::as_str).collect();

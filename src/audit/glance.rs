@@ -129,7 +129,8 @@ mod tests {
 
     #[test]
     fn the_panel_core_counts_what_the_engine_counts() {
-        // Entities by the core's runs, against the engine's distinct counts on the same rows.
+        // Source: polars' own n_unique, min and max on the same rows (`summarize`), against
+        // the entities and periods the panel core counts by its runs and codes.
         let df = df!(
             "f" => ["a", "a", "b", "c", "c", "c"],
             "y" => [2001i64, 2003, 2002, 2001, 2002, 2003]
