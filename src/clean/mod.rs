@@ -3,16 +3,17 @@
 //! its effect for the sample-construction table.
 
 pub mod balance;
+mod keep;
 pub mod repair;
 pub mod treat;
 
 use polars::prelude::*;
-use rayon::prelude::*;
 
 use crate::load::ROW;
 use crate::report::{KeyExample, KeysSummary, SampleStep};
 pub use crate::rules::{DuplicatePolicy, SingletonPolicy};
 use crate::{Error, Result};
+pub use keep::keep_rows;
 
 /// Ledger column: the cleaning step that removed the row (`step` in the output).
 pub const STEP: &str = "__step";
@@ -87,10 +88,9 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
         let whole = df.column(name)?.rechunk();
         df.with_column(whole)?;
     }
+    // In key order the other columns stay in the chunks they were read in until the rows
+    // to drop are known: then each is copied once, into one chunk (`keep_rows`).
     let df = if in_key_order(&df, entity, period)? {
-        // One chunk per column, as the sort would leave it: later steps work on whole
-        // columns. A column per thread, so that only a column a thread is held twice.
-        df.rechunk_mut_par();
         df
     } else {
         df.lazy()
@@ -246,6 +246,10 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
     }
     // Drop the copies and removed rows by their position: the order stays sorted.
     let df = if dropped.is_empty() {
+        // One chunk per column, as the sort would leave it: later steps work on whole
+        // columns. A column per thread, so that only a column a thread is held twice.
+        let mut df = df;
+        df.rechunk_mut_par();
         df
     } else {
         let mut keep = vec![true; df.height()];
@@ -383,25 +387,6 @@ pub fn drop_where(
         marked
     };
     Ok((kept, ledger(removed, k.columns)?))
-}
-
-/// The rows of `df` where `keep` is true, a few columns at a time (in parallel), each column
-/// let go once filtered: the panel is never held twice (a frame-wide filter holds old and new
-/// whole).
-pub fn keep_rows(df: DataFrame, keep: &BooleanChunked) -> Result<DataFrame> {
-    let height = keep.sum().unwrap_or(0) as usize;
-    let mut old = df.into_columns();
-    let mut kept = Vec::with_capacity(old.len());
-    while !old.is_empty() {
-        let batch: Vec<Column> = old.drain(..crate::core::BATCH.min(old.len())).collect();
-        kept.extend(
-            batch
-                .into_par_iter()
-                .map(|c| c.filter(keep))
-                .collect::<PolarsResult<Vec<_>>>()?,
-        );
-    }
-    Ok(DataFrame::new(height, kept)?)
 }
 
 /// Drop singletons by the policy; returns the kept rows and the ledger part, if any.
