@@ -113,6 +113,21 @@ pub(super) fn write_parquet<W: Write + Send>(
 mod tests {
     use super::*;
 
+    /// `df` written by `write_parquet` and by the engine's one-call writer, with the same
+    /// file-level metadata.
+    fn ours_and_theirs(df: &mut DataFrame) -> (Vec<u8>, Vec<u8>) {
+        let metadata = KeyValueMetadata::from_static(vec![("label".into(), "test".into())]);
+        let mut ours = Vec::new();
+        write_parquet(&mut ours, df, metadata.clone(), &Progress::new(true, false)).unwrap();
+        let mut theirs = Vec::new();
+        ParquetWriter::new(&mut theirs)
+            .with_compression(ParquetCompression::Snappy)
+            .with_key_value_metadata(Some(metadata))
+            .finish(df)
+            .unwrap();
+        (ours, theirs)
+    }
+
     /// The file is the engine's writer's own, byte for byte: several row groups (one short),
     /// floats with nulls, integers, text, a boolean, and a frame in several chunks.
     #[test]
@@ -128,21 +143,7 @@ mod tests {
         let mut chunked = whole.slice(0, 1_000);
         chunked.vstack_mut(&whole.slice(1_000, n)).unwrap();
         for mut df in [whole, chunked] {
-            let metadata = KeyValueMetadata::from_static(vec![("label".into(), "test".into())]);
-            let mut ours = Vec::new();
-            write_parquet(
-                &mut ours,
-                &mut df,
-                metadata.clone(),
-                &Progress::new(true, false),
-            )
-            .unwrap();
-            let mut theirs = Vec::new();
-            ParquetWriter::new(&mut theirs)
-                .with_compression(ParquetCompression::Snappy)
-                .with_key_value_metadata(Some(metadata))
-                .finish(&mut df)
-                .unwrap();
+            let (ours, theirs) = ours_and_theirs(&mut df);
             assert_eq!(ours.len(), theirs.len());
             assert!(ours == theirs, "the bytes differ");
         }
@@ -158,21 +159,7 @@ mod tests {
             .collect();
         let firm: Vec<String> = (0..n).map(|i| format!("F{:03}", i / 20)).collect();
         let mut df = df!("firm" => firm, "dummy" => dummy).unwrap();
-        let metadata = KeyValueMetadata::from_static(vec![]);
-        let mut ours = Vec::new();
-        write_parquet(
-            &mut ours,
-            &mut df,
-            metadata.clone(),
-            &Progress::new(true, false),
-        )
-        .unwrap();
-        let mut theirs = Vec::new();
-        ParquetWriter::new(&mut theirs)
-            .with_compression(ParquetCompression::Snappy)
-            .with_key_value_metadata(Some(metadata))
-            .finish(&mut df)
-            .unwrap();
+        let (ours, theirs) = ours_and_theirs(&mut df);
         assert!(ours == theirs, "the bytes differ");
     }
 }
