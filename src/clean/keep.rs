@@ -3,8 +3,8 @@
 //! A column read from a file arrives in many chunks (one per row group); the later kernels
 //! read a column in place only when it is one chunk. A filter keeps the chunks as they are,
 //! so the engine would copy such a column twice, once to filter it and once to join its
-//! chunks. A numeric column is instead copied once, run by run of kept rows, straight into
-//! one buffer.
+//! chunks. A numeric column in several chunks is instead copied once, run by run of kept
+//! rows, straight into one buffer; every other column goes through the engine's filter.
 
 use polars::prelude::*;
 use rayon::prelude::*;
@@ -58,7 +58,12 @@ fn keep_column(
     runs: &[(usize, usize)],
     height: usize,
 ) -> PolarsResult<Column> {
-    let s = c.as_materialized_series();
+    // A column in one chunk, or not held as values (a constant), needs no joining: the
+    // engine's filter copies it once, or not at all.
+    let s = match c.as_series() {
+        Some(s) if s.n_chunks() > 1 => s,
+        _ => return Ok(c.filter(keep)?.rechunk()),
+    };
     let copied = match s.dtype() {
         DataType::Float64 => keep_numeric(s.f64()?, keep, runs, height)?.into_series(),
         DataType::Float32 => keep_numeric(s.f32()?, keep, runs, height)?.into_series(),
@@ -123,8 +128,8 @@ mod tests {
     use super::*;
 
     /// The same frame as the engine's filter gives (checked against polars' own filter),
-    /// every column in one chunk: numbers with and without missing values, text, across
-    /// chunk boundaries, with runs that start, end and straddle a boundary.
+    /// every column in one chunk: numbers with and without missing values, text, a constant,
+    /// across chunk boundaries, with runs that start, end and straddle a boundary.
     #[test]
     fn same_rows_as_the_engine_filter_in_one_chunk() {
         let n = 1_000;
@@ -139,6 +144,10 @@ mod tests {
         chunked.vstack_mut(&whole.slice(333, 333)).unwrap();
         chunked.vstack_mut(&whole.slice(666, n)).unwrap();
         assert_eq!(chunked.first_col_n_chunks(), 3);
+        // And a constant, which the engine holds as one value and a length.
+        let constant = Column::new_scalar("c".into(), Scalar::from(7i32), n);
+        let whole = whole.hstack(std::slice::from_ref(&constant)).unwrap();
+        let chunked = chunked.hstack(&[constant]).unwrap();
         for pattern in [
             Box::new(|i: usize| i % 10 != 3) as Box<dyn Fn(usize) -> bool>,
             Box::new(|i: usize| !(330..340).contains(&i) && i != 0 && i != n - 1),
