@@ -283,7 +283,10 @@ fn line(
     let (lo, hi) = (s.lower, s.upper);
     let x = x.view();
     // The column is read in place: quantiles by bracketing (core::quantiles), no copy.
-    let n = x.iter().count();
+    let n = match x.parts().1 {
+        None => x.parts().0.len(),
+        Some(ok) => ok.iter().filter(|present| **present).count(),
+    };
     let (mut below, mut above) = (0u64, 0u64);
     // A group needs 1 / (the smaller tail) values for its own cutoffs (100 at 1%).
     let smallest = (1.0 / lo.min(1.0 - hi)).ceil() as u64;
@@ -318,14 +321,10 @@ fn line(
         }
         (CutoffGroups::Pooled | CutoffGroups::Groups, _) => {
             // The cutoffs and the median (for the robust z below) from one pass.
+            // Counted below, in the same pass as the robust z.
             let q = quantiles(&x, n, |v| v, &[lo, hi, 0.5]);
             median = Some(q[2]);
-            let (l, u) = (q[0], q[1]);
-            for (_, v) in x.iter() {
-                below += u64::from(l.is_some_and(|l| v < l));
-                above += u64::from(u.is_some_and(|u| v > u));
-            }
-            (l, u, n as u64)
+            (q[0], q[1], n as u64)
         }
         (CutoffGroups::Period, _) => {
             let mut groups: Vec<Vec<f64>> = vec![Vec::new(); core.periods.len()];
@@ -353,13 +352,21 @@ fn line(
     // |v - m| / d is exactly |(v - m) / d|, so the count is the one the z-scores give.
     let mad =
         median.and_then(|m| quantiles(&x, n, |v| (v - m).abs(), &[0.5])[0].map(|d| d * MAD_SCALE));
-    let robust_z_beyond = match (median, mad) {
-        (Some(m), Some(d)) if d > 0.0 => x
-            .iter()
-            .filter(|(_, v)| (*v - m).abs() / d > s.robust_z)
-            .count() as u64,
-        _ => 0,
+    // One pass for the robust z and, with pooled cutoffs, the values beyond them.
+    let z_cut = match (median, mad) {
+        (Some(m), Some(d)) if d > 0.0 => Some((m, d)),
+        _ => None,
     };
+    let mut robust_z_beyond = 0u64;
+    let (l, u) = (lower, upper);
+    if z_cut.is_some() || l.is_some() || u.is_some() {
+        for (_, v) in x.iter() {
+            below += u64::from(l.is_some_and(|l| v < l));
+            above += u64::from(u.is_some_and(|u| v > u));
+            robust_z_beyond +=
+                u64::from(z_cut.is_some_and(|(m, d)| (v - m).abs() / d > s.robust_z));
+        }
+    }
     OutlierLine {
         variable: variable.to_string(),
         by: s.by,
