@@ -7,7 +7,7 @@ use super::verdict::{
     level_key, line as verdict_line, worst, CheckVerdict, LevelKey, Levels, Status,
 };
 use super::{unit_slips, Check, Context, Settings};
-use crate::core::{in_batches, quantiles, type7, PanelCore, Values};
+use crate::core::{in_batches, quantiles, PanelCore, Values, View};
 use crate::report::layout::{opt_level, strings, Block, Section};
 pub use crate::report::CutoffGroups;
 use crate::report::{Finding, OutlierLine, Report, ToJson, UnitSlip};
@@ -309,7 +309,8 @@ fn line(
                     fell_back += u64::from(*code != crate::audit::NO_GROUP);
                     pooled
                 } else {
-                    (type7(g, lo), type7(g, hi))
+                    let q = quantiles(&View::all(g), g.len(), |v| v, &[lo, hi]);
+                    (q[0], q[1])
                 };
                 for v in g.iter() {
                     below += u64::from(l.is_some_and(|l| *v < l));
@@ -334,7 +335,8 @@ fn line(
             let mut smallest = u64::MAX;
             for g in &mut groups {
                 smallest = smallest.min(g.len() as u64);
-                let (l, u) = (type7(g, lo), type7(g, hi));
+                let q = quantiles(&View::all(g), g.len(), |v| v, &[lo, hi]);
+                let (l, u) = (q[0], q[1]);
                 for v in g.iter() {
                     below += u64::from(l.is_some_and(|l| *v < l));
                     above += u64::from(u.is_some_and(|u| *v > u));

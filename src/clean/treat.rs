@@ -7,7 +7,7 @@ use polars::prelude::*;
 use rayon::prelude::*;
 
 use super::{drop_where, Keys};
-use crate::core::{in_batches, quantiles, type7, PanelCore, Values};
+use crate::core::{in_batches, quantiles, PanelCore, Values, View};
 use crate::report::CutoffGroups;
 use crate::report::{Cutoff, GroupCutoff, Histogram, TreatLine};
 use crate::rules::TreatSpec;
@@ -384,9 +384,14 @@ impl Treatment {
             for (r, value) in x.iter() {
                 groups[group(r)].push(value);
             }
+            // Both cutoffs of a group from one bracketing pass over its values, the values two
+            // selections give (`core::quantiles`).
             let (lo, hi): (Vec<Option<f64>>, Vec<Option<f64>>) = groups
-                .iter_mut()
-                .map(|g| (type7(g, self.lower), type7(g, self.upper)))
+                .iter()
+                .map(|g| {
+                    let q = quantiles(&View::all(g), g.len(), |v| v, &[self.lower, self.upper]);
+                    (q[0], q[1])
+                })
                 .unzip();
             drop(groups);
             let (mut below, mut above) = (0u64, 0u64);

@@ -25,6 +25,11 @@ pub struct View<'a> {
 }
 
 impl<'a> View<'a> {
+    /// Values that are all present (a group's values gathered from a column).
+    pub fn all(v: &'a [f64]) -> View<'a> {
+        View { v, ok: None }
+    }
+
     /// The value of row `r`, if present.
     pub fn get(&self, r: usize) -> Option<f64> {
         match self.ok {
