@@ -3,6 +3,7 @@
 //! its effect for the sample-construction table.
 
 pub mod balance;
+mod histogram;
 mod keep;
 pub mod repair;
 pub mod treat;

@@ -6,6 +6,7 @@
 use polars::prelude::*;
 use rayon::prelude::*;
 
+use super::histogram::histogram;
 use super::{drop_where, Keys};
 use crate::core::{in_batches, quantiles, PanelCore, Values, View};
 use crate::report::CutoffGroups;
@@ -565,39 +566,4 @@ fn group_cutoffs(c: &DataFrame, groups: &[String], i: usize) -> Result<Vec<Group
             pooled_fallback: small.get(j).unwrap_or(false),
         })
         .collect())
-}
-
-/// Bins of the chart of a treated variable.
-const BINS: usize = 30;
-
-/// Equal-width bins between the 0.5th and 99.5th percentiles; values beyond fall in the end
-/// bins. Missing values are left out.
-fn histogram(df: &DataFrame, v: &str) -> Result<Histogram> {
-    // The 0.5% and 99.5% points (type 7, by bracketed selection over the column read in
-    // place), then the counts in one pass.
-    let values = Values::of(df, v)?;
-    let view = values.view();
-    let n = view.iter().count();
-    let q = quantiles(&view, n, |x| x, &[0.005, 0.995]);
-    let (Some(lo), Some(hi)) = (q[0], q[1]) else {
-        return Ok(Histogram::default());
-    };
-    let width = if hi > lo {
-        (hi - lo) / BINS as f64
-    } else {
-        1.0
-    };
-    let mut counts = vec![0u64; BINS];
-    for b in view
-        .iter()
-        .map(|(_, x)| ((x - lo) / width).floor().clamp(0.0, (BINS - 1) as f64))
-        .filter(|b| !b.is_nan())
-    {
-        counts[b as usize] += 1;
-    }
-    Ok(Histogram {
-        start: lo,
-        width,
-        counts,
-    })
 }
