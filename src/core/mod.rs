@@ -152,8 +152,12 @@ impl PanelCore {
         for (e, rows) in self.starts.windows(2).enumerate() {
             let (mut s, mut c) = (0.0, 0u32);
             let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
-            for r in (rows[0]..rows[1]).filter(|r| present(*r)) {
-                let v = values[r];
+            // The entity's rows as slices: no bounds check per row.
+            let (v_rows, t_rows) = (&values[rows[0]..rows[1]], &self.period[rows[0]..rows[1]]);
+            for (i, (&v, &t)) in v_rows.iter().zip(t_rows).enumerate() {
+                if !present(rows[0] + i) {
+                    continue;
+                }
                 s += v;
                 c += 1;
                 // NaN never compares: an entity holding one is not counted as flat.
@@ -163,7 +167,7 @@ impl PanelCore {
                     lo = lo.min(v);
                     hi = hi.max(v);
                 }
-                let t = self.period[r] as usize;
+                let t = t as usize;
                 p_sum[t] += v;
                 p_n[t] += 1;
                 sum += v;
@@ -188,8 +192,12 @@ impl PanelCore {
         // b of the two-way system: period sums of the entity-demeaned values.
         let mut b = vec![0.0; nt];
         for (m, rows) in e_mean.iter().zip(self.starts.windows(2)) {
-            for r in (rows[0]..rows[1]).filter(|r| present(*r)) {
-                let (v, t) = (values[r], self.period[r] as usize);
+            let (v_rows, t_rows) = (&values[rows[0]..rows[1]], &self.period[rows[0]..rows[1]]);
+            for (i, (&v, &t)) in v_rows.iter().zip(t_rows).enumerate() {
+                if !present(rows[0] + i) {
+                    continue;
+                }
+                let t = t as usize;
                 tss += (v - mean).powi(2);
                 wss += (v - m).powi(2);
                 pss += (v - p_mean[t]).powi(2);
