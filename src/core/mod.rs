@@ -336,21 +336,31 @@ impl PanelCore {
         sums: &TwoWaySums,
     ) -> f64 {
         let (e_sum, e_n) = (&sums.e_sum, &sums.e_n);
+        let beta = beta.as_slice();
         let mut rss = 0.0;
         for (i, rows) in self.starts.windows(2).enumerate() {
             if e_n[i] == 0 {
                 continue;
             }
-            let rows = || (rows[0]..rows[1]).filter(|r| present(*r));
+            // The entity's rows as slices (no bounds check per row), with their row numbers.
+            let (start, end) = (rows[0], rows[1]);
+            let rows = || {
+                values[start..end]
+                    .iter()
+                    .zip(&self.period[start..end])
+                    .enumerate()
+                    .filter(|(j, _)| present(start + j))
+                    .map(|(_, (&v, &t))| (v, t as usize))
+            };
             let m = e_sum[i] / e_n[i] as f64;
             let mut mb = 0.0;
-            for r in rows() {
-                mb += beta[self.period[r] as usize];
+            for (_, t) in rows() {
+                mb += beta[t];
             }
             mb /= e_n[i] as f64;
-            for r in rows() {
-                let fitted = beta[self.period[r] as usize] - mb;
-                rss += (values[r] - m - fitted).powi(2);
+            for (v, t) in rows() {
+                let fitted = beta[t] - mb;
+                rss += (v - m - fitted).powi(2);
             }
         }
         rss
