@@ -283,10 +283,7 @@ fn line(
     let (lo, hi) = (s.lower, s.upper);
     let x = x.view();
     // The column is read in place: quantiles by bracketing (core::quantiles), no copy.
-    let n = match x.parts().1 {
-        None => x.parts().0.len(),
-        Some(ok) => ok.iter().filter(|present| **present).count(),
-    };
+    let n = x.count();
     let (mut below, mut above) = (0u64, 0u64);
     // A group needs 1 / (the smaller tail) values for its own cutoffs (100 at 1%).
     let smallest = (1.0 / lo.min(1.0 - hi)).ceil() as u64;
@@ -360,11 +357,10 @@ fn line(
         _ => None,
     };
     let mut robust_z_beyond = 0u64;
-    let (l, u) = (lower, upper);
-    if z_cut.is_some() || l.is_some() || u.is_some() {
+    if z_cut.is_some() || lower.is_some() || upper.is_some() {
         for (_, v) in x.iter() {
-            below += u64::from(l.is_some_and(|l| v < l));
-            above += u64::from(u.is_some_and(|u| v > u));
+            below += u64::from(lower.is_some_and(|l| v < l));
+            above += u64::from(upper.is_some_and(|u| v > u));
             robust_z_beyond +=
                 u64::from(z_cut.is_some_and(|(m, d)| (v - m).abs() / d > s.robust_z));
         }

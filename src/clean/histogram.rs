@@ -16,7 +16,7 @@ pub(super) fn histogram(df: &DataFrame, v: &str) -> Result<Histogram> {
     // place), then the counts in one pass.
     let values = Values::of(df, v)?;
     let view = values.view();
-    let n = view.iter().count();
+    let n = view.count();
     let q = quantiles(&view, n, |x| x, &[0.005, 0.995]);
     let (Some(lo), Some(hi)) = (q[0], q[1]) else {
         return Ok(Histogram::default());

@@ -30,6 +30,14 @@ impl<'a> View<'a> {
         View { v, ok: None }
     }
 
+    /// How many rows have a value (from the presence flags, not a pass over the values).
+    pub fn count(&self) -> usize {
+        match self.ok {
+            None => self.v.len(),
+            Some(ok) => ok.iter().filter(|present| **present).count(),
+        }
+    }
+
     /// The value of row `r`, if present.
     pub fn get(&self, r: usize) -> Option<f64> {
         match self.ok {
