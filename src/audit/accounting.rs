@@ -109,32 +109,41 @@ pub fn with_shifts(
     Ok((lf.collect()?, hidden))
 }
 
-/// Violations (condition false) and unknowns (condition null) per rule.
-pub fn count(df: &DataFrame, rules: &[CompiledRule]) -> Result<Vec<RuleLine>> {
+/// Violations (condition false) and unknowns (condition null) per rule, over the rows
+/// `within` marks (every row when None).
+pub fn count(
+    df: &DataFrame,
+    rules: &[CompiledRule],
+    within: Option<&BooleanChunked>,
+) -> Result<Vec<RuleLine>> {
     if rules.is_empty() {
         return Ok(Vec::new());
+    }
+    const WITHIN: &str = "__within";
+    let mut df = df.clone();
+    let among = |e: Expr| match within {
+        Some(_) => e.and(col(WITHIN)),
+        None => e,
+    };
+    if let Some(w) = within {
+        df.with_column(w.clone().with_name(WITHIN.into()).into_column())?;
     }
     let mut aggs = Vec::new();
     for (i, r) in rules.iter().enumerate() {
         aggs.push(
-            r.holds
-                .clone()
-                .not()
-                .fill_null(lit(false))
+            among(r.holds.clone().not().fill_null(lit(false)))
                 .sum()
                 .cast(DataType::UInt64)
                 .alias(format!("v{i}")),
         );
         aggs.push(
-            r.holds
-                .clone()
-                .is_null()
+            among(r.holds.clone().is_null())
                 .sum()
                 .cast(DataType::UInt64)
                 .alias(format!("u{i}")),
         );
     }
-    let c = df.clone().lazy().select(aggs).collect()?;
+    let c = df.lazy().select(aggs).collect()?;
     rules
         .iter()
         .enumerate()

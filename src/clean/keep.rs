@@ -31,6 +31,20 @@ pub fn keep_rows(df: DataFrame, keep: &BooleanChunked) -> Result<DataFrame> {
     Ok(DataFrame::new(height, kept)?)
 }
 
+/// `df` down to the rows `keep` marks (every row when there is no mask), each column in one
+/// chunk: the copy a step that removed rows left for later (see [`crate::clean::KeyResult`]).
+pub fn settle(df: DataFrame, keep: Option<&BooleanChunked>) -> Result<DataFrame> {
+    match keep {
+        Some(keep) => keep_rows(df, keep),
+        None => {
+            // A column per thread, so that only a column a thread is held twice.
+            let mut df = df;
+            df.rechunk_mut_par();
+            Ok(df)
+        }
+    }
+}
+
 /// The stretches `[start, end)` of consecutive rows where `keep` is true (a null is false).
 fn kept_runs(keep: &BooleanChunked) -> Vec<(usize, usize)> {
     let mut runs = Vec::new();

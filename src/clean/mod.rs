@@ -14,7 +14,7 @@ use crate::load::ROW;
 use crate::report::{KeyExample, KeysSummary, SampleStep};
 pub use crate::rules::{DuplicatePolicy, SingletonPolicy};
 use crate::{Error, Result};
-pub use keep::keep_rows;
+pub use keep::{keep_rows, settle};
 
 /// Ledger column: the cleaning step that removed the row (`step` in the output).
 pub const STEP: &str = "__step";
@@ -25,8 +25,13 @@ pub const RELATED: &str = "__related";
 
 /// The panel after the key steps, with what they removed.
 pub struct KeyResult {
-    /// Rows kept.
+    /// The rows in key order, those dropped still among them: the rows kept are those
+    /// `pending` marks (every row when None). The copy that drops the others, into one chunk
+    /// per column, is left to [`settle`] or to the next step that drops rows, so that both
+    /// go in one copy of the panel.
     pub kept: DataFrame,
+    /// Which rows of `kept` the key steps keep (None: every row).
+    pub pending: Option<BooleanChunked>,
     /// Rows removed, in ledger form (source_row, step, reason, related_row, raw columns).
     pub rejected: Vec<DataFrame>,
     /// Counts for the report.
@@ -90,7 +95,7 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
         df.with_column(whole)?;
     }
     // In key order the other columns stay in the chunks they were read in until the rows
-    // to drop are known: then each is copied once, into one chunk (`keep_rows`).
+    // to drop are known: then each is copied once, into one chunk (`settle`, `keep_rows`).
     let df = if in_key_order(&df, entity, period)? {
         df
     } else {
@@ -245,35 +250,36 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
         dropped.extend(positions(&removed)?);
         rejected.push(ledger(removed.drop(POS)?, k.columns)?);
     }
-    // Drop the copies and removed rows by their position: the order stays sorted.
-    let df = if dropped.is_empty() {
-        // One chunk per column, as the sort would leave it: later steps work on whole
-        // columns. A column per thread, so that only a column a thread is held twice.
-        let mut df = df;
-        df.rechunk_mut_par();
-        df
-    } else {
+    // The copies and removed rows are only marked, by their position (the order stays
+    // sorted): dropping them copies every column, which the next step that drops rows can
+    // do in the same copy.
+    let pending = (!dropped.is_empty()).then(|| {
         let mut keep = vec![true; df.height()];
         for p in &dropped {
             keep[*p as usize] = false;
         }
-        keep_rows(df, &BooleanChunked::from_slice("keep".into(), &keep))?
-    };
+        BooleanChunked::from_slice("keep".into(), &keep)
+    });
+    let rows_kept = pending
+        .as_ref()
+        .map_or(df.height(), |keep| keep.sum().unwrap_or(0) as usize);
     // Only dropping every row of a key can lose an entity.
-    let entities = if *policy == DuplicatePolicy::DropAll && conflicting_keys > 0 {
-        sorted_distinct(&df, entity)?
-    } else {
-        entities_kept
+    let entities = match &pending {
+        Some(keep) if *policy == DuplicatePolicy::DropAll && conflicting_keys > 0 => {
+            sorted_distinct(&df.select([entity])?.filter(keep)?, entity)?
+        }
+        _ => entities_kept,
     };
     steps.push(SampleStep::counted(
         &steps,
         "duplicate keys",
-        df.height() as u64,
+        rows_kept as u64,
         entities,
     ));
 
     Ok(KeyResult {
         kept: df,
+        pending,
         rejected,
         keys: KeysSummary {
             missing_key_rows,
@@ -363,15 +369,23 @@ fn entities_only_in(few: &DataFrame, sorted: &DataFrame, entity: &str) -> Result
     Ok(absent.len() as u64)
 }
 
-/// Move rows where `reason` (a string expression) is not null into the ledger.
+/// Move rows where `reason` (a string expression) is not null into the ledger, among the rows
+/// `within` marks (every row when None; the others an earlier step removed, whose copy is
+/// done here with this step's). Rows dropped leave each column in one chunk.
 pub fn drop_where(
     df: DataFrame,
     reason: Expr,
     step: &str,
     k: &Keys,
+    within: Option<&BooleanChunked>,
 ) -> Result<(DataFrame, DataFrame)> {
     let mut marked = df.lazy().with_column(reason.alias(REASON)).collect()?;
     let hit = marked.column(REASON)?.is_not_null();
+    // Rows an earlier step removed (`within` false) are not this step's to remove.
+    let hit = match within {
+        Some(within) => &hit & within,
+        None => hit,
+    };
     let removed = marked
         .filter(&hit)?
         .lazy()
@@ -381,11 +395,12 @@ pub fn drop_where(
         ])
         .collect()?;
     marked.drop_in_place(REASON)?;
-    // Nothing hit (a clean panel): the frame as it is, not a copy of every column.
-    let kept = if hit.any() {
-        keep_rows(marked, &!hit)?
-    } else {
-        marked
+    // One copy of each column drops this step's rows and the earlier step's together.
+    let kept = match within {
+        Some(within) => keep_rows(marked, &(within & &!&hit))?,
+        None if hit.any() => keep_rows(marked, &!&hit)?,
+        // Nothing hit (a clean panel): the frame as it is, not a copy of every column.
+        None => marked,
     };
     Ok((kept, ledger(removed, k.columns)?))
 }
@@ -510,7 +525,10 @@ mod tests {
             period: "year",
             columns: &columns,
         };
-        resolve_keys(df, &keys, &policy)
+        // The rows kept, copied down as the pipeline's next step would.
+        let mut r = resolve_keys(df, &keys, &policy)?;
+        r.kept = settle(r.kept, r.pending.take().as_ref())?;
+        Ok(r)
     }
 
     fn rows(df: &DataFrame) -> Vec<u32> {

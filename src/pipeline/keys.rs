@@ -24,12 +24,17 @@ pub(super) fn key_steps<'a>(
     let resolved = clean::resolve_keys(df, keys, policy)?;
     let mut sample = Sample {
         panel: resolved.kept,
+        pending: resolved.pending,
         steps: resolved.steps,
         ledger: resolved.rejected,
         entity: keys.entity,
     };
     let mut joins = Vec::new();
     let mut join_ledgers = Vec::new();
+    // A join matches the panel as it stands.
+    if !tables.is_empty() {
+        sample.settle()?;
+    }
     for t in tables {
         progress.stage(&format!("joining {}", t.name()));
         let joined = assemble::join(std::mem::take(&mut sample.panel), t, keys)?;

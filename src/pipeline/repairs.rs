@@ -24,6 +24,10 @@ pub(super) fn repair(
     let (entity, period) = (input.entity.as_str(), input.period.as_str());
     let mut corrected = Vec::new();
     let (mut corrected_cells, mut slips_repaired) = (0u64, 0u64);
+    // Repairs find their cells by key in the panel as it stands.
+    if corrections.is_some() || slip_policy != repair::SlipPolicy::Report {
+        sample.settle()?;
+    }
     if let Some(c) = corrections {
         progress.stage("corrections file");
         let (df, lines) =

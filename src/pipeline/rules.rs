@@ -4,11 +4,18 @@
 use super::*;
 
 /// Count each rule's violations and apply the actions; returns the rules' report lines.
+/// Rules that read only their own row work on the panel with the rows the key steps removed
+/// still in it, so that one copy of the panel drops both steps' rows.
 pub(super) fn accounting_rules(
     sample: &mut Sample,
     compiled: &[accounting::CompiledRule],
     keys: &Keys,
 ) -> Result<Vec<crate::report::RuleLine>> {
+    // Rules that read other periods need the panel as it stands.
+    if compiled.iter().any(|r| !r.shifts.is_empty()) {
+        sample.settle()?;
+    }
+    let within = sample.pending.take();
     // Rules with panel functions read other periods through hidden columns, added first.
     let (with_shifts, hidden) = accounting::with_shifts(
         std::mem::take(&mut sample.panel),
@@ -16,25 +23,33 @@ pub(super) fn accounting_rules(
         keys.entity,
         keys.period,
     )?;
-    let lines = accounting::count(&with_shifts, compiled)?;
+    let lines = accounting::count(&with_shifts, compiled, within.as_ref())?;
     let panel = accounting::apply_nulls(with_shifts, compiled)?;
-    let drop = accounting::drop_reason(compiled);
-    let drops = drop.is_some();
-    sample.panel = panel
-        .lazy()
-        .with_column(
-            drop.unwrap_or(lit(NULL).cast(DataType::String))
-                .alias("__rule_drop"),
-        )
-        .drop(cols(hidden))
-        .collect()?;
-    if drops {
-        sample.filter("accounting rules", |panel| {
-            let (rest, removed) =
-                clean::drop_where(panel, col("__rule_drop"), "accounting rules", keys)?;
-            Ok((rest, Some(removed)))
-        })?;
+    match accounting::drop_reason(compiled) {
+        Some(reason) => {
+            sample.panel = panel
+                .lazy()
+                .with_column(reason.alias("__rule_drop"))
+                .drop(cols(hidden))
+                .collect()?;
+            sample.filter("accounting rules", |panel| {
+                let (rest, removed) = clean::drop_where(
+                    panel,
+                    col("__rule_drop"),
+                    "accounting rules",
+                    keys,
+                    within.as_ref(),
+                )?;
+                Ok((rest, Some(removed)))
+            })?;
+            sample.panel = sample.panel.drop("__rule_drop")?;
+        }
+        None => {
+            sample.panel = panel.lazy().drop(cols(hidden)).collect()?;
+            sample.pending = within;
+        }
     }
-    sample.panel = sample.panel.drop("__rule_drop")?;
+    // Derivation reads the panel as it stands, each column in one chunk.
+    sample.settle()?;
     Ok(lines)
 }

@@ -5,8 +5,12 @@ use super::*;
 
 /// The panel as the stages pass it on.
 pub(super) struct Sample<'a> {
-    /// The rows kept so far, sorted by entity, period and row number.
+    /// The rows kept so far, sorted by entity, period and row number — with the rows of
+    /// `pending`, if any, still among them.
     pub panel: DataFrame,
+    /// Rows of `panel` a step removed without copying the panel down to the others (false:
+    /// removed; see [`Sample::settle`]). None once settled.
+    pub pending: Option<BooleanChunked>,
     /// One line per step that removed or changed rows.
     pub steps: Vec<SampleStep>,
     /// The rows removed, in ledger form, one frame per step.
@@ -16,6 +20,14 @@ pub(super) struct Sample<'a> {
 }
 
 impl Sample<'_> {
+    /// Copy the panel down to the rows kept, each column in one chunk (a step that needs
+    /// the panel as it stands calls this first).
+    pub fn settle(&mut self) -> Result<()> {
+        let panel = std::mem::take(&mut self.panel);
+        self.panel = clean::settle(panel, self.pending.take().as_ref())?;
+        Ok(())
+    }
+
     /// Record a step that left the panel as it is now.
     pub fn step(&mut self, name: &str) -> Result<()> {
         let line = SampleStep::after(&self.steps, name, &self.panel, self.entity)?;
