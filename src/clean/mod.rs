@@ -5,6 +5,7 @@
 pub mod balance;
 mod histogram;
 mod keep;
+mod keyscan;
 pub mod repair;
 pub mod treat;
 
@@ -96,14 +97,18 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
     }
     // In key order the other columns stay in the chunks they were read in until the rows
     // to drop are known: then each is copied once, into one chunk (`settle`, `keep_rows`).
-    let df = if in_key_order(&df, entity, period)? {
+    let mut found = keyscan::scan(&df, entity, period)?;
+    let df = if found.in_order {
         df
     } else {
-        df.lazy()
+        let sorted = df
+            .lazy()
             .sort([entity, period, ROW], Default::default())
-            .collect()?
+            .collect()?;
+        found = keyscan::scan(&sorted, entity, period)?;
+        sorted
     };
-    let entities_kept = sorted_distinct(&df, entity)?;
+    let entities_kept = found.entities;
     // An entity seen only on rows missing their period counts among the entities read.
     let only_missing = entities_only_in(&missing, &df, entity)?;
     let mut steps = vec![SampleStep {
@@ -126,18 +131,9 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
     // appears more than once can be copies or conflicts: in the sorted panel they have a
     // neighbour with the same key, and only they are looked at (with their position).
     let key = [col(entity), col(period)];
-    let same_key = |offset: i64| {
-        col(entity)
-            .eq(col(entity).shift(lit(offset)))
-            .and(col(period).eq(col(period).shift(lit(offset))))
-            .fill_null(lit(false))
-    };
-    let repeated = df
-        .clone()
-        .lazy()
-        .with_row_index(POS, None)
-        .filter(same_key(1).or(same_key(-1)))
-        .collect()?;
+    let positions_looked_at = IdxCa::from_vec(POS.into(), found.repeated);
+    let mut repeated = df.take(&positions_looked_at)?;
+    repeated.insert_column(0, positions_looked_at.into_column())?;
     let value_cols: Vec<Expr> = k.columns.iter().map(|c| col(c.as_str())).collect();
     let first_of_copy = col(ROW).min().over(value_cols)?;
     let repeated = repeated
@@ -266,7 +262,7 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
     // Only dropping every row of a key can lose an entity.
     let entities = match &pending {
         Some(keep) if *policy == DuplicatePolicy::DropAll && conflicting_keys > 0 => {
-            sorted_distinct(&df.select([entity])?.filter(keep)?, entity)?
+            keyscan::sorted_entities(&df.select([entity])?.filter(keep)?, entity)?
         }
         _ => entities_kept,
     };
@@ -295,49 +291,12 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
     })
 }
 
-/// Whether every row's (entity, period) is at or after the previous row's: the frame is in
-/// key order (ties in file order, which is the row numbers' order).
-fn in_key_order(df: &DataFrame, entity: &str, period: &str) -> Result<bool> {
-    let (e, p) = (col(entity), col(period));
-    let at_or_after = e
-        .clone()
-        .gt(e.clone().shift(lit(1)))
-        .or(e
-            .clone()
-            .eq(e.shift(lit(1)))
-            .and(p.clone().gt_eq(p.shift(lit(1)))))
-        .fill_null(lit(true));
-    let s = df
-        .clone()
-        .lazy()
-        .select([at_or_after.all(true).alias("ordered")])
-        .collect()?;
-    Ok(s.column("ordered")?.bool()?.get(0) == Some(true))
-}
-
 /// The position column of the rows looked at for copies and conflicts.
 const POS: &str = "__pos";
 
 /// The positions (`POS`) of `df`'s rows.
 fn positions(df: &DataFrame) -> Result<Vec<IdxSize>> {
     Ok(df.column(POS)?.idx()?.iter().flatten().collect())
-}
-
-/// Distinct values of `column` in a frame sorted by it (nulls not counted): the runs.
-pub fn sorted_distinct(df: &DataFrame, column: &str) -> Result<u64> {
-    let c = col(column);
-    let n = df
-        .clone()
-        .lazy()
-        .select([c
-            .clone()
-            .neq_missing(c.clone().shift(lit(1)))
-            .and(c.is_not_null())
-            .sum()
-            .cast(DataType::UInt64)
-            .alias("n")])
-        .collect()?;
-    Ok(n.column("n")?.u64()?.get(0).unwrap_or(0))
 }
 
 /// Entities of `few` (a handful of rows) that `sorted` (sorted by entity) does not have.
@@ -494,16 +453,13 @@ mod tests {
         // The frame is in key order once its missing keys are set aside; reversed, it is not
         // and must be sorted. Both give the same rows in the same order.
         let ordered = frame();
-        assert!(
-            in_key_order(&ordered.drop_nulls::<String>(None).unwrap(), "firm", "year").unwrap()
-        );
+        let in_order = |df: &DataFrame| {
+            let df = df.drop_nulls::<String>(None).unwrap();
+            keyscan::scan(&df, "firm", "year").unwrap().in_order
+        };
+        assert!(in_order(&ordered));
         let reversed = ordered.reverse();
-        assert!(!in_key_order(
-            &reversed.drop_nulls::<String>(None).unwrap(),
-            "firm",
-            "year"
-        )
-        .unwrap());
+        assert!(!in_order(&reversed));
         let a = run_on(ordered, DuplicatePolicy::KeepLast).unwrap();
         let b = run_on(reversed, DuplicatePolicy::KeepLast).unwrap();
         assert!(a.kept.equals_missing(&b.kept), "{}\n{}", a.kept, b.kept);
