@@ -103,6 +103,7 @@ proptest! {
         let own_row = format!(
             "[panel]\nentity = \"firm\"\nperiod = \"year\"\n[clean]\nduplicates = \"{policy}\"\n\
              [[rule]]\nname = \"not_too_low\"\nexpr = \"x > -6\"\naction = \"drop\"\n\
+             [[rule]]\nname = \"not_three\"\nexpr = \"x <> 3\"\naction = \"drop\"\n\
              [[rule]]\nname = \"capped\"\nexpr = \"x < 6\"\naction = \"null\"\ncolumns = [\"x\"]\n\
              [[rule]]\nname = \"not_zero\"\nexpr = \"x <> 0\"\n"
         );
@@ -126,7 +127,7 @@ proptest! {
                 .as_array()
                 .unwrap()
                 .iter()
-                .take(3)
+                .take(4)
                 .map(|r| (r["violations"].as_u64().unwrap(), r["unknown"].as_u64().unwrap()))
                 .collect();
             outputs.push((
@@ -137,4 +138,39 @@ proptest! {
         }
         prop_assert_eq!(&outputs[0], &outputs[1]);
     }
+}
+
+/// Hand-worked: a `drop` rule that reads the year before is judged on the panel before any
+/// rule drops a row (A's third year is compared with its second, which the rule itself
+/// drops); a row breaking two rules is named by the first.
+#[test]
+fn a_rule_reading_the_year_before_drops_with_its_own_reason() {
+    let dir = tempfile::tempdir().unwrap();
+    let data = dir.path().join("p.csv");
+    std::fs::write(&data, "f,y,x\nA,1,5\nA,2,1\nA,3,9\nB,1,4\nB,2,4\nB,2,4\n").unwrap();
+    let rules = "[panel]\nentity = \"f\"\nperiod = \"y\"\n\
+        [[rule]]\nname = \"no_fall\"\nexpr = \"lag(x, 1) IS NULL OR x >= lag(x, 1)\"\naction = \"drop\"\n\
+        [[rule]]\nname = \"small\"\nexpr = \"x < 9\"\naction = \"drop\"\n";
+    let out = dir.path().join("out");
+    let cfg = BuildConfig {
+        input: InputConfig::new(data, Rules::from_text(None, rules.into()).unwrap()).unwrap(),
+        out: out.clone(),
+        command_line: "test".into(),
+        panel_csv: true,
+        fail_on: None,
+    };
+    panelready::build(&cfg).unwrap();
+    let panel = std::fs::read_to_string(out.join("panel.csv")).unwrap();
+    assert_eq!(panel, "source_row,f,y,x\n1,A,1,5\n4,B,1,4\n5,B,2,4\n");
+    let ledger = std::fs::read_to_string(out.join("rejected.csv")).unwrap();
+    let lines: Vec<&str> = ledger.lines().skip(1).collect();
+    assert_eq!(
+        lines,
+        [
+            "2,accounting rules,\"rule `no_fall` does not hold: lag(x, 1) IS NULL OR x >= lag(x, 1)\",,A,2,1",
+            "3,accounting rules,rule `small` does not hold: x < 9,,A,3,9",
+            "6,exact copies,exact copy of an earlier row (related_row),5,B,2,4",
+        ],
+        "{ledger}"
+    );
 }

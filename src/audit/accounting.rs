@@ -218,6 +218,20 @@ pub fn apply_nulls(df: DataFrame, rules: &[CompiledRule]) -> Result<DataFrame> {
     Ok(lf.with_columns(nulling).drop(cols(helper)).collect()?)
 }
 
+/// Whether a row breaks the rule: its condition is false (unknown is not broken).
+fn broken(r: &CompiledRule) -> Expr {
+    r.holds.clone().not().fill_null(lit(false))
+}
+
+/// Whether each row breaks any `drop` rule (true or false, never null); None without one.
+pub fn drop_mask(rules: &[CompiledRule]) -> Option<Expr> {
+    rules
+        .iter()
+        .filter(|r| r.action == Action::Drop)
+        .map(broken)
+        .reduce(|a, b| a.or(b))
+}
+
 /// The first `drop` rule each row breaks, as a reason (null where none).
 pub fn drop_reason(rules: &[CompiledRule]) -> Option<Expr> {
     rules
@@ -226,9 +240,8 @@ pub fn drop_reason(rules: &[CompiledRule]) -> Option<Expr> {
         .rev()
         .fold(None, |rest: Option<Expr>, r| {
             let reason = lit(format!("rule `{}` does not hold: {}", r.name, r.text));
-            let broken = r.holds.clone().not().fill_null(lit(false));
             Some(
-                when(broken)
+                when(broken(r))
                     .then(reason)
                     .otherwise(rest.unwrap_or(lit(NULL).cast(DataType::String))),
             )

@@ -329,8 +329,8 @@ fn entities_only_in(few: &DataFrame, sorted: &DataFrame, entity: &str) -> Result
 }
 
 /// Move rows where `reason` (a string expression) is not null into the ledger, among the rows
-/// `within` marks (every row when None; the others an earlier step removed, whose copy is
-/// done here with this step's). Rows dropped leave each column in one chunk.
+/// `within` marks (see [`drop_marked`]). The reason may read other rows (a window over the
+/// entity): it is evaluated on the whole frame, before any row is dropped.
 pub fn drop_where(
     df: DataFrame,
     reason: Expr,
@@ -338,28 +338,45 @@ pub fn drop_where(
     k: &Keys,
     within: Option<&BooleanChunked>,
 ) -> Result<(DataFrame, DataFrame)> {
-    let mut marked = df.lazy().with_column(reason.alias(REASON)).collect()?;
+    let marked = df.lazy().with_column(reason.alias(REASON)).collect()?;
     let hit = marked.column(REASON)?.is_not_null();
+    drop_marked(marked, &hit, col(REASON), &[REASON], step, k, within)
+}
+
+/// Move the rows `hit` marks into the ledger, with `reason` (a string expression, read on
+/// those rows only) and without the `helper` columns; only among the rows `within` marks
+/// (every row when None; the others an earlier step removed, whose copy is done here with
+/// this step's). Rows dropped leave each column in one chunk.
+pub fn drop_marked(
+    df: DataFrame,
+    hit: &BooleanChunked,
+    reason: Expr,
+    helpers: &[&str],
+    step: &str,
+    k: &Keys,
+    within: Option<&BooleanChunked>,
+) -> Result<(DataFrame, DataFrame)> {
     // Rows an earlier step removed (`within` false) are not this step's to remove.
     let hit = match within {
-        Some(within) => &hit & within,
-        None => hit,
+        Some(within) => hit & within,
+        None => hit.clone(),
     };
-    let removed = marked
+    let removed = df
         .filter(&hit)?
         .lazy()
         .with_columns([
+            reason.alias(REASON),
             lit(step.to_string()).alias(STEP),
             lit(NULL).cast(IDX_DTYPE).alias(RELATED),
         ])
         .collect()?;
-    marked.drop_in_place(REASON)?;
+    let df = df.drop_many(helpers.iter().copied());
     // One copy of each column drops this step's rows and the earlier step's together.
     let kept = match within {
-        Some(within) => keep_rows(marked, &(within & &!&hit))?,
-        None if hit.any() => keep_rows(marked, &!&hit)?,
+        Some(within) => keep_rows(df, &(within & &!&hit))?,
+        None if hit.any() => keep_rows(df, &!&hit)?,
         // Nothing hit (a clean panel): the frame as it is, not a copy of every column.
-        None => marked,
+        None => df,
     };
     Ok((kept, ledger(removed, k.columns)?))
 }

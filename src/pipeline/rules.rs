@@ -25,26 +25,34 @@ pub(super) fn accounting_rules(
     )?;
     let lines = accounting::count(&with_shifts, compiled, within.as_ref())?;
     let panel = accounting::apply_nulls(with_shifts, compiled)?;
-    match accounting::drop_reason(compiled) {
-        Some(reason) => {
-            sample.panel = panel
+    match (
+        accounting::drop_mask(compiled),
+        accounting::drop_reason(compiled),
+    ) {
+        (Some(mask), Some(reason)) => {
+            // Which rows break a rule, as flags; the reason's text only for those rows.
+            let hit = panel
+                .clone()
                 .lazy()
-                .with_column(reason.alias("__rule_drop"))
-                .drop(cols(hidden))
+                .select([mask.alias("__rule_drop")])
                 .collect()?;
+            let hit = hit.column("__rule_drop")?.bool()?.clone();
+            let helpers: Vec<&str> = hidden.iter().map(String::as_str).collect();
+            sample.panel = panel;
             sample.filter("accounting rules", |panel| {
-                let (rest, removed) = clean::drop_where(
+                let (rest, removed) = clean::drop_marked(
                     panel,
-                    col("__rule_drop"),
+                    &hit,
+                    reason,
+                    &helpers,
                     "accounting rules",
                     keys,
                     within.as_ref(),
                 )?;
                 Ok((rest, Some(removed)))
             })?;
-            sample.panel = sample.panel.drop("__rule_drop")?;
         }
-        None => {
+        _ => {
             sample.panel = panel.lazy().drop(cols(hidden)).collect()?;
             sample.pending = within;
         }
