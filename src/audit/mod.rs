@@ -243,7 +243,10 @@ fn key_frames(
     use names::*;
     let ne = core.entities();
     let mut first_rows: Vec<IdxSize> = Vec::with_capacity(core.rows());
-    let mut step: Vec<Option<i64>> = Vec::with_capacity(core.rows());
+    // The step from the entity's previous period (none on its first row), as values and
+    // presence flags: no option per row.
+    let mut step: Vec<i64> = Vec::with_capacity(core.rows());
+    let mut has_step: Vec<bool> = Vec::with_capacity(core.rows());
     let (mut n, mut first, mut last) = (vec![0i64; ne], vec![0i64; ne], vec![0i64; ne]);
     let (mut spells, mut longest) = (vec![1i64; ne], vec![0i64; ne]);
     for (i, rows) in core.starts.windows(2).enumerate() {
@@ -255,7 +258,8 @@ fn key_frames(
             }
             let gap = previous.map(|p| t - p);
             first_rows.push(r as IdxSize);
-            step.push(gap);
+            step.push(gap.unwrap_or(0));
+            has_step.push(gap.is_some());
             if let Some(g) = gap {
                 spells[i] += i64::from(g > 1);
                 longest[i] = longest[i].max(g - 1);
@@ -273,7 +277,9 @@ fn key_frames(
     } else {
         key_columns.take(&IdxCa::from_vec("rows".into(), first_rows))?
     };
-    keys.with_column(Column::new(STEP.into(), step))?;
+    let has_step = BooleanChunked::from_slice(STEP.into(), &has_step);
+    let validity = has_step.downcast_iter().next().map(|b| b.values().clone());
+    keys.with_column(Int64Chunked::from_vec_validity(STEP.into(), step, validity).into_column())?;
     let starts: Vec<IdxSize> = core.starts[..ne].iter().map(|r| *r as IdxSize).collect();
     let ids = df
         .select([entity])?

@@ -64,6 +64,31 @@ pub struct TwoWaySums {
     b: Vec<f64>,
 }
 
+/// Each row's index into the ascending distinct `periods` (0 for a missing period): from a
+/// table over the periods' range when it is short (years, quarters), else by binary search.
+fn period_codes(p: &Int64Chunked, periods: &[i64]) -> Vec<u32> {
+    let (Some(first), Some(last)) = (periods.first(), periods.last()) else {
+        return vec![0; p.len()];
+    };
+    match usize::try_from(last.abs_diff(*first)) {
+        Ok(span) if span < 1 << 16 => {
+            let mut table = vec![0u32; span + 1];
+            for (code, v) in periods.iter().enumerate() {
+                table[(v - first) as usize] = code as u32;
+            }
+            let code = |v: i64| table[(v - first) as usize];
+            match p.cont_slice() {
+                Ok(values) => values.iter().map(|v| code(*v)).collect(),
+                Err(_) => p.iter().map(|v| v.map_or(0, code)).collect(),
+            }
+        }
+        _ => p
+            .iter()
+            .map(|v| v.map_or(0, |v| periods.binary_search(&v).unwrap_or(0) as u32))
+            .collect(),
+    }
+}
+
 impl PanelCore {
     /// Codes for `df`, which must be sorted by `entity` then `period`; rows missing a key are
     /// not expected (the key steps remove them) and count as one more entity or period.
@@ -72,13 +97,26 @@ impl PanelCore {
         let ids = ids.str()?;
         let mut codes = Vec::with_capacity(df.height());
         let mut starts = Vec::new();
-        let mut last: Option<Option<&str>> = None;
-        for (r, id) in ids.iter().enumerate() {
-            if last != Some(id) {
-                starts.push(r);
-                last = Some(id);
+        if ids.chunks().len() == 1 && ids.null_count() == 0 {
+            // One chunk without a missing name: the text's views compared whole first (equal
+            // views, equal text), the text itself only where they differ.
+            let array = ids.downcast_as_array();
+            let views = array.views().as_slice();
+            for r in 0..views.len() {
+                if r == 0 || (views[r] != views[r - 1] && array.value(r) != array.value(r - 1)) {
+                    starts.push(r);
+                }
+                codes.push((starts.len() - 1) as u32);
             }
-            codes.push((starts.len() - 1) as u32);
+        } else {
+            let mut last: Option<Option<&str>> = None;
+            for (r, id) in ids.iter().enumerate() {
+                if last != Some(id) {
+                    starts.push(r);
+                    last = Some(id);
+                }
+                codes.push((starts.len() - 1) as u32);
+            }
         }
         starts.push(df.height());
         let p = df.column(period)?.cast(&DataType::Int64)?;
@@ -94,13 +132,7 @@ impl PanelCore {
                 previous = Some(v);
             }
         }
-        let period = p
-            .iter()
-            .map(|v| match v {
-                Some(v) => periods.binary_search(&v).unwrap_or(0) as u32,
-                None => 0,
-            })
-            .collect();
+        let period = period_codes(p, &periods);
         Ok(PanelCore {
             entity: codes,
             period,
@@ -461,6 +493,56 @@ mod tests {
         assert_eq!(c.periods, [2001, 2002, 2003]);
         assert_eq!(c.period, [0, 2, 1, 0, 1]);
         assert_eq!(c.starts, [0, 2, 3, 5]);
+        // The same codes by every path: names longer than a view holds (equal names in
+        // different places of the buffer), a missing name, several chunks, a period range
+        // too wide for a table, and a missing period (code 0, as the binary search gives).
+        let long = [
+            "a firm with a long name",
+            "a firm with a long name",
+            "another firm's long name",
+        ];
+        let by_path = |f: Vec<Option<&str>>, y: Vec<Option<i64>>, chunked: bool| {
+            let whole = df!("f" => f, "y" => y).unwrap();
+            let df = if chunked {
+                let mut df = whole.slice(0, 1);
+                df.vstack_mut(&whole.slice(1, whole.height())).unwrap();
+                df
+            } else {
+                whole
+            };
+            let c = PanelCore::new(&df, "f", "y").unwrap();
+            (c.entity, c.period, c.periods, c.starts)
+        };
+        for chunked in [false, true] {
+            let (e, p, periods, starts) = by_path(
+                long.map(Some).to_vec(),
+                vec![Some(1), Some(1 << 40), Some(5)],
+                chunked,
+            );
+            assert_eq!(
+                (e, p, periods, starts),
+                (
+                    vec![0, 0, 1],
+                    vec![0, 2, 1],
+                    vec![1, 5, 1 << 40],
+                    vec![0, 2, 3]
+                )
+            );
+            let (e, p, periods, starts) = by_path(
+                vec![Some("a"), Some("a"), None],
+                vec![Some(2001), None, Some(2003)],
+                chunked,
+            );
+            assert_eq!(
+                (e, p, periods, starts),
+                (
+                    vec![0, 0, 1],
+                    vec![0, 0, 1],
+                    vec![2001, 2003],
+                    vec![0, 2, 3]
+                )
+            );
+        }
     }
 
     #[test]
