@@ -370,7 +370,11 @@ pub fn drop_marked(
             lit(NULL).cast(IDX_DTYPE).alias(RELATED),
         ])
         .collect()?;
-    let df = df.drop_many(helpers.iter().copied());
+    // In place: the old frame is let go column by column as the rows kept are copied.
+    let mut df = df;
+    for helper in helpers {
+        df.drop_in_place(helper)?;
+    }
     // One copy of each column drops this step's rows and the earlier step's together.
     let kept = match within {
         Some(within) => keep_rows(df, &(within & &!&hit))?,
