@@ -201,6 +201,12 @@ fn bad_rules_stop_before_any_data_is_read_identically_for_audit_and_build() {
             &["nosuch"],
         ),
         bad(
+            "winsorize a variable twice",
+            GOOD.as_bytes(),
+            "[clean]\nwinsorize = { variables = [\"assets\", \"assets\"], lower = 0.01, upper = 0.99 }\n",
+            &["winsorize", "`assets` twice"],
+        ),
+        bad(
             "winsorize bad range",
             GOOD.as_bytes(),
             "[clean]\nwinsorize = { variables = [\"assets\"], lower = 0.9, upper = 0.1 }\n",

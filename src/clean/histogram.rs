@@ -1,25 +1,20 @@
 //! The chart of a treated variable: equal-width bins over its central 99 %.
 
-use polars::prelude::*;
-
-use crate::core::{quantiles, Values};
+use crate::core::{quantiles, View};
 use crate::report::Histogram;
-use crate::Result;
 
 /// Bins of the chart of a treated variable.
 const BINS: usize = 30;
 
 /// Equal-width bins between the 0.5th and 99.5th percentiles; values beyond fall in the end
 /// bins. Missing values are left out.
-pub(super) fn histogram(df: &DataFrame, v: &str) -> Result<Histogram> {
+pub(super) fn histogram(view: &View) -> Histogram {
     // The 0.5% and 99.5% points (type 7, by bracketed selection over the column read in
     // place), then the counts in one pass.
-    let values = Values::of(df, v)?;
-    let view = values.view();
     let n = view.count();
     let q = quantiles(&view, n, |x| x, &[0.005, 0.995]);
     let (Some(lo), Some(hi)) = (q[0], q[1]) else {
-        return Ok(Histogram::default());
+        return Histogram::default();
     };
     let width = if hi > lo {
         (hi - lo) / BINS as f64
@@ -40,16 +35,18 @@ pub(super) fn histogram(df: &DataFrame, v: &str) -> Result<Histogram> {
         };
         counts[b] += 1;
     }
-    Ok(Histogram {
+    Histogram {
         start: lo,
         width,
         counts,
-    })
+    }
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::core::Values;
+    use polars::prelude::*;
 
     /// The bins are the floor of (x − start) / width clamped to the end bins, written out
     /// directly (equal-width binning as commonly defined: common practice), for values on the edges of
@@ -66,7 +63,8 @@ mod tests {
             None,
         ]);
         let df = df!("x" => x.clone()).unwrap();
-        let h = histogram(&df, "x").unwrap();
+        let values = Values::of(&df, "x").unwrap();
+        let h = histogram(&values.view());
         assert_eq!(h.counts.len(), BINS);
         let mut want = vec![0u64; BINS];
         for v in x.iter().flatten() {

@@ -8,7 +8,7 @@ use rayon::prelude::*;
 
 use super::histogram::histogram;
 use super::{drop_where, Keys};
-use crate::core::{in_batches, quantiles, PanelCore, Values, View};
+use crate::core::{quantiles, PanelCore, Values, View, BATCH};
 use crate::report::CutoffGroups;
 use crate::report::{Cutoff, GroupCutoff, Histogram, TreatLine};
 use crate::rules::TreatSpec;
@@ -104,6 +104,15 @@ impl Treatment {
         let variables = all(&self.variables, &|v| {
             format!("names `{v}`, which is not a column or derived variable")
         })?;
+        // Each variable is treated once, from its values before treatment.
+        let repeated = (1..variables.len()).find(|i| variables[..*i].contains(&variables[*i]));
+        if let Some(i) = repeated {
+            let v = &variables[i];
+            return Err(Error::Setting {
+                setting,
+                message: format!("names `{v}` twice"),
+            });
+        }
         Ok(Treatment {
             variables,
             groups,
@@ -119,7 +128,6 @@ impl Treatment {
         core: Option<&PanelCore>,
     ) -> Result<(DataFrame, Option<DataFrame>, Vec<TreatLine>)> {
         let x = |v: &str| col(v).cast(DataType::Float64);
-        let df_before = df.clone();
         match (self.by, core) {
             (CutoffGroups::Period, Some(core)) if core.rows() == df.height() => {
                 let group = |r: usize| core.period[r] as usize;
@@ -219,6 +227,13 @@ impl Treatment {
                 )
             }
         };
+        // The charts of the values before treatment, so that each old column can go once
+        // replaced.
+        let histograms = self
+            .variables
+            .par_iter()
+            .map(|v| Ok(histogram(&Values::of(&df, v)?.view())))
+            .collect::<Result<Vec<Histogram>>>()?;
         // One variable at a time: its cutoffs set beside each row, its flags, its counts and
         // its new values, so that the panel never holds more than one variable's helpers.
         let mut current = df;
@@ -266,7 +281,7 @@ impl Treatment {
                 .collect()?;
         }
         let (out, removed) = self.finish(current, k)?;
-        let lines = self.lines(&cutoffs, &counts, k, &df_before)?;
+        let lines = self.lines(&cutoffs, &counts, k, histograms)?;
         Ok((out, removed, lines))
     }
 
@@ -299,14 +314,8 @@ impl Treatment {
         cutoffs: &DataFrame,
         counts: &[(u64, u64)],
         k: &Keys,
-        df_before: &DataFrame,
+        histograms: Vec<Histogram>,
     ) -> Result<Vec<TreatLine>> {
-        // The charts in parallel, a variable a thread: each reads its whole column.
-        let histograms: Vec<Histogram> = self
-            .variables
-            .par_iter()
-            .map(|v| histogram(df_before, v))
-            .collect::<Result<_>>()?;
         let mut lines = Vec::new();
         for ((i, v), histogram) in self.variables.iter().enumerate().zip(histograms) {
             let lo = cutoffs.column(&format!("__lo{i}"))?.f64()?;
@@ -362,7 +371,6 @@ impl Treatment {
         nt: usize,
         periods: Option<&[i64]>,
     ) -> Result<(DataFrame, Option<DataFrame>, Vec<TreatLine>)> {
-        let df_before = df.clone();
         let rows = df.height();
         let mut table: Vec<Column> = periods
             .map(|p| Column::new(k.period.into(), p.to_vec()))
@@ -377,10 +385,17 @@ impl Treatment {
         }
         // Each variable on its own (its cutoffs, its new column, its counts), a few at a time
         // in parallel; their columns replace the old ones in the variables' order.
-        type Treated = (Column, (u64, u64), Vec<Option<f64>>, Vec<Option<f64>>);
-        let one = |i: usize, v: &String| -> Result<Treated> {
-            let values = Values::of(&df_before, v)?;
+        type Treated = (
+            Column,
+            (u64, u64),
+            Vec<Option<f64>>,
+            Vec<Option<f64>>,
+            Histogram,
+        );
+        let one = |i: usize, v: &String, current: &DataFrame| -> Result<Treated> {
+            let values = Values::of(current, v)?;
             let x = values.view();
+            let chart = histogram(&x);
             let mut groups: Vec<Vec<f64>> = sizes.iter().map(|n| Vec::with_capacity(*n)).collect();
             for (r, value) in x.iter() {
                 groups[group(r)].push(value);
@@ -456,25 +471,28 @@ impl Treatment {
                     flags.into_column().with_name(format!("__beyond{i}").into())
                 }
             };
-            Ok((column, (below, above), lo, hi))
+            Ok((column, (below, above), lo, hi, chart))
         };
+        // A few variables at a time in parallel; each new column replaces its old one as soon
+        // as the batch is done, and the old one is let go.
         let indexed: Vec<(usize, &String)> = self.variables.iter().enumerate().collect();
-        in_batches(
-            &indexed,
-            |(i, v)| one(*i, v),
-            |batch, done| {
-                for ((i, _), (column, count, lo, hi)) in batch.iter().zip(done) {
-                    current.with_column(column)?;
-                    counts.push(count);
-                    table.push(Column::new(format!("__lo{i}").into(), lo));
-                    table.push(Column::new(format!("__hi{i}").into(), hi));
-                }
-                Ok(())
-            },
-        )?;
+        let mut histograms = Vec::new();
+        for batch in indexed.chunks(BATCH) {
+            let done = batch
+                .par_iter()
+                .map(|(i, v)| one(*i, v, &current))
+                .collect::<Result<Vec<Treated>>>()?;
+            for ((i, _), (column, count, lo, hi, chart)) in batch.iter().zip(done) {
+                current.with_column(column)?;
+                counts.push(count);
+                table.push(Column::new(format!("__lo{i}").into(), lo));
+                table.push(Column::new(format!("__hi{i}").into(), hi));
+                histograms.push(chart);
+            }
+        }
         let cutoffs = DataFrame::new(nt, table)?;
         let (out, removed) = self.finish(current, k)?;
-        let lines = self.lines(&cutoffs, &counts, k, &df_before)?;
+        let lines = self.lines(&cutoffs, &counts, k, histograms)?;
         Ok((out, removed, lines))
     }
 }
