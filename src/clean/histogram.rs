@@ -12,7 +12,7 @@ pub(super) fn histogram(view: &View) -> Histogram {
     // The 0.5% and 99.5% points (type 7, by bracketed selection over the column read in
     // place), then the counts in one pass.
     let n = view.count();
-    let q = quantiles(&view, n, |x| x, &[0.005, 0.995]);
+    let q = quantiles(view, n, |x| x, &[0.005, 0.995]);
     let (Some(lo), Some(hi)) = (q[0], q[1]) else {
         return Histogram::default();
     };
