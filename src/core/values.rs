@@ -6,12 +6,13 @@ use polars::prelude::*;
 use crate::Result;
 
 /// One variable's values in row order, as f64, and which rows have one. A column that is
-/// already f64 in one chunk without nulls is shared, not copied (no column-sized buffer).
+/// already f64 in one chunk is shared, not copied (no column-sized buffer).
 #[derive(Debug, Clone, Default)]
 pub struct Values {
     /// The shared column, when it can be read in place.
     shared: Option<Float64Chunked>,
-    /// The values otherwise (0.0 where absent).
+    /// The values otherwise (0.0 where absent; a shared column's missing rows hold whatever
+    /// the engine left there: no pass reads them).
     v: Vec<f64>,
     /// Whether each row has a value; None when every row has one.
     ok: Option<Vec<bool>>,
@@ -56,7 +57,8 @@ impl<'a> View<'a> {
             .map(|(r, v)| (r, *v))
     }
 
-    /// The values (0.0 where absent) and whether each row has one (none: every row has).
+    /// The values (anything where absent: read only the rows `ok` marks) and whether each row
+    /// has one (none: every row has).
     pub fn parts(&self) -> (&'a [f64], Option<&'a [bool]>) {
         (self.v, self.ok)
     }
@@ -92,7 +94,21 @@ impl Values {
                 ok: None,
             };
         }
-        // With nulls: chunk by chunk, the values beside the validity bits (a select, no
+        // With nulls, in one chunk: the values shared as they stand (whatever the engine keeps
+        // in the missing rows' slots is never read: every pass skips the rows without a
+        // value), the presence flags from the validity bits.
+        if let (1, Some(chunk)) = (x.chunks().len(), x.downcast_iter().next()) {
+            let ok: Vec<bool> = match chunk.validity() {
+                Some(bits) => bits.iter().collect(),
+                None => vec![true; chunk.len()],
+            };
+            return Values {
+                shared: Some(x.clone()),
+                v: Vec::new(),
+                ok: Some(ok),
+            };
+        }
+        // In several chunks: chunk by chunk, the values beside the validity bits (a select, no
         // per-value branching or options).
         let mut v = Vec::with_capacity(x.len());
         let mut ok = Vec::with_capacity(x.len());
@@ -130,7 +146,11 @@ impl Values {
     /// The values for a pass over the rows (take it once, outside the loop).
     pub fn view(&self) -> View<'_> {
         let v = match &self.shared {
-            Some(c) => c.cont_slice().unwrap_or(&[]),
+            // One chunk (with or without missing values): its value buffer.
+            Some(c) => c
+                .downcast_iter()
+                .next()
+                .map_or(&[][..], |chunk| chunk.values().as_slice()),
             None => &self.v,
         };
         View {
@@ -175,10 +195,13 @@ mod tests {
         assert_eq!(a.get(2), Some(3.0));
         let gaps = Float64Chunked::from_slice_options("x".into(), &[Some(1.0), None, Some(3.0)]);
         let c = Values::new(&gaps);
+        // One chunk with nulls is shared too, its presence flags from the validity bits.
+        assert!(c.shared.is_some());
         assert_eq!(c.iter().collect::<Vec<_>>(), vec![(0, 1.0), (2, 3.0)]);
         assert_eq!((c.get(1), c.present()), (None, vec![1.0, 3.0]));
-        // Two chunks, one with nulls, one without: the same as read one value at a time, and
-        // 0.0 under a null whatever the buffer holds there (here a division by zero).
+        // Two chunks, one with nulls, one without (copied), and one chunk whose buffer holds
+        // a division by zero under its null (shared): the same values as read one at a time
+        // wherever a row has one.
         let mut mixed = Float64Chunked::from_slice_options("x".into(), &[Some(2.0), None]);
         mixed
             .append(&Float64Chunked::from_slice("x".into(), &[5.0, -0.0]))
@@ -193,8 +216,12 @@ mod tests {
                 ok.map(<[bool]>::to_vec),
                 Some(want.iter().map(Option::is_some).collect())
             );
-            let got: Vec<u64> = v.iter().map(|a| a.to_bits()).collect();
-            let want: Vec<u64> = want.iter().map(|a| a.unwrap_or(0.0).to_bits()).collect();
+            let got: Vec<Option<u64>> = v
+                .iter()
+                .zip(ok.unwrap())
+                .map(|(a, present)| present.then(|| a.to_bits()))
+                .collect();
+            let want: Vec<Option<u64>> = want.iter().map(|a| a.map(f64::to_bits)).collect();
             assert_eq!(got, want);
         }
     }
