@@ -27,6 +27,20 @@ fn ids(text: &str) -> Vec<u64> {
         .collect()
 }
 
+/// `rows` with exact copies of some of them appended, written to `p.csv` in a new temporary
+/// folder (returned with the file's path).
+fn written(rows: &mut Vec<Row>, copies: &[usize]) -> (tempfile::TempDir, std::path::PathBuf) {
+    for i in copies {
+        if let Some(r) = rows.get(i % rows.len()).copied() {
+            rows.push(r);
+        }
+    }
+    let dir = tempfile::tempdir().unwrap();
+    let data = dir.path().join("p.csv");
+    std::fs::write(&data, csv(rows)).unwrap();
+    (dir, data)
+}
+
 fn row() -> impl Strategy<Value = Row> {
     (
         prop::option::weighted(0.95, 0u8..5),
@@ -47,15 +61,7 @@ proptest! {
         balance in prop::sample::select(vec!["\"keep\"", "\"largest\"", "{ window = [2001, 2003] }"]),
         trim in any::<bool>(),
     ) {
-        // Exact copies of some rows, appended.
-        for i in copies {
-            if let Some(r) = rows.get(i % rows.len()).copied() {
-                rows.push(r);
-            }
-        }
-        let dir = tempfile::tempdir().unwrap();
-        let data = dir.path().join("p.csv");
-        std::fs::write(&data, csv(&rows)).unwrap();
+        let (dir, data) = written(&mut rows, &copies);
         let trim = if trim { "trim = { variables = [\"x\"], lower = 0.1, upper = 0.9 }\n" } else { "" };
         let rules = format!(
             "[panel]\nentity = \"firm\"\nperiod = \"year\"\n\
@@ -92,14 +98,7 @@ proptest! {
         copies in prop::collection::vec(0usize..40, 0..5),
         policy in prop::sample::select(vec!["keep-first", "keep-last", "drop-all", "prefer-max:x"]),
     ) {
-        for i in copies {
-            if let Some(r) = rows.get(i % rows.len()).copied() {
-                rows.push(r);
-            }
-        }
-        let dir = tempfile::tempdir().unwrap();
-        let data = dir.path().join("p.csv");
-        std::fs::write(&data, csv(&rows)).unwrap();
+        let (dir, data) = written(&mut rows, &copies);
         let own_row = format!(
             "[panel]\nentity = \"firm\"\nperiod = \"year\"\n[clean]\nduplicates = \"{policy}\"\n\
              [[rule]]\nname = \"not_too_low\"\nexpr = \"x > -6\"\naction = \"drop\"\n\
