@@ -184,7 +184,9 @@ impl PanelCore {
         let (mut sum, mut n) = (0.0, 0u64);
         for (e, rows) in self.starts.windows(2).enumerate() {
             let (mut s, mut c) = (0.0, 0u32);
-            let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
+            // Flat: every value equal to the entity's first (NaN equals nothing, so an entity
+            // holding one is not counted as flat; 0.0 and -0.0 are equal).
+            let (mut first, mut same) = (None, true);
             // The entity's rows as slices: no bounds check per row.
             let (v_rows, t_rows) = (&values[rows[0]..rows[1]], &self.period[rows[0]..rows[1]]);
             for (i, (&v, &t)) in v_rows.iter().zip(t_rows).enumerate() {
@@ -193,13 +195,7 @@ impl PanelCore {
                 }
                 s += v;
                 c += 1;
-                // NaN never compares: an entity holding one is not counted as flat.
-                if v.is_nan() {
-                    lo = f64::NAN;
-                } else if !lo.is_nan() {
-                    lo = lo.min(v);
-                    hi = hi.max(v);
-                }
+                same &= v == *first.get_or_insert(v);
                 let t = t as usize;
                 p_sum[t] += v;
                 p_n[t] += 1;
@@ -208,7 +204,7 @@ impl PanelCore {
             }
             e_sum[e] = s;
             e_n[e] = c;
-            flat += u64::from(c > 1 && lo == hi);
+            flat += u64::from(c > 1 && same);
         }
         let mean = sum / n as f64;
         let e_mean: Vec<f64> = e_sum
@@ -480,11 +476,8 @@ pub(crate) fn coded(f: &[&str], y: &[i64]) -> PanelCore {
 
 #[cfg(test)]
 mod tests {
+    use super::coded as core;
     use super::*;
-
-    fn core(f: &[&str], y: &[i64]) -> PanelCore {
-        coded(f, y)
-    }
 
     #[test]
     fn codes_follow_the_sort_order() {
@@ -595,5 +588,12 @@ mod tests {
         assert!((m.wss - 2.0).abs() < 1e-12);
         assert!((m.sd_between - 4.5f64.sqrt()).abs() < 1e-12);
         assert_eq!(m.flat, 1);
+        // Flat entities: c (0.0, -0.0) is, d (NaN, NaN) and e (2, NaN) are not, f has one row.
+        let c = core(&["c", "c", "d", "d", "e", "e", "f"], &[1, 2, 1, 2, 1, 2, 1]);
+        let x: Float64Chunked = [0.0, -0.0, f64::NAN, f64::NAN, 2.0, f64::NAN, 7.0]
+            .into_iter()
+            .map(Some)
+            .collect();
+        assert_eq!(c.moments(&Values::new(&x)).flat, 1);
     }
 }
