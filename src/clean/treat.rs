@@ -8,7 +8,7 @@ use rayon::prelude::*;
 
 use super::histogram::histogram;
 use super::{drop_where, Keys};
-use crate::core::{quantiles, PanelCore, Values, View, BATCH};
+use crate::core::{grouped_quantiles, quantiles, PanelCore, Values, View, BATCH};
 use crate::report::CutoffGroups;
 use crate::report::{Cutoff, GroupCutoff, Histogram, TreatLine};
 use crate::rules::TreatSpec;
@@ -396,20 +396,26 @@ impl Treatment {
             let values = Values::of(current, v)?;
             let x = values.view();
             let chart = histogram(&x);
-            let mut groups: Vec<Vec<f64>> = sizes.iter().map(|n| Vec::with_capacity(*n)).collect();
-            for (r, value) in x.iter() {
-                groups[group(r)].push(value);
-            }
-            // Both cutoffs of a group from one bracketing pass over its values, the values two
-            // selections give (`core::quantiles`).
-            let (lo, hi): (Vec<Option<f64>>, Vec<Option<f64>>) = groups
-                .iter()
-                .map(|g| {
-                    let q = quantiles(&View::all(g), g.len(), |v| v, &[self.lower, self.upper]);
-                    (q[0], q[1])
-                })
-                .unzip();
-            drop(groups);
+            // Both cutoffs of every group from one bracketing pass over the column
+            // (`core::grouped_quantiles`); groups too small for it gathered and each
+            // bracketed or selected on its own (`core::quantiles`): the values two selections
+            // give either way.
+            let cutoffs = |g: &[f64]| {
+                let q = quantiles(&View::all(g), g.len(), |v| v, &[self.lower, self.upper]);
+                (q[0], q[1])
+            };
+            let (lo, hi): (Vec<Option<f64>>, Vec<Option<f64>>) =
+                match grouped_quantiles(&x, group, nt, &[self.lower, self.upper]) {
+                    Some(q) => q.into_iter().map(|q| (q[0], q[1])).unzip(),
+                    None => {
+                        let mut groups: Vec<Vec<f64>> =
+                            sizes.iter().map(|n| Vec::with_capacity(*n)).collect();
+                        for (r, value) in x.iter() {
+                            groups[group(r)].push(value);
+                        }
+                        groups.iter().map(|g| cutoffs(g)).unzip()
+                    }
+                };
             let (mut below, mut above) = (0u64, 0u64);
             let beyond = |r: usize, value: f64| -> (bool, bool) {
                 let t = group(r);

@@ -16,7 +16,7 @@ mod singletons;
 mod slip;
 mod values;
 
-pub use quantile::{quantiles, type7, type7_many};
+pub use quantile::{grouped_quantiles, quantiles, type7, type7_many};
 pub use slip::{log_ratios, magnitude};
 pub use values::{Values, View};
 

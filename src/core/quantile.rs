@@ -112,6 +112,66 @@ pub fn quantiles(x: &View, n: usize, map: impl Fn(f64) -> f64, ps: &[f64]) -> Ve
     if n == 0 {
         return vec![None; ps.len()];
     }
+    let ks = ranks(n, ps);
+    let stats = order_stats(x, n, &map, &ks);
+    interpolate(n, ps, &ks, &stats)
+}
+
+/// [`quantiles`] of each group's values (`group(r)`, below `groups`, of the rows with a value
+/// in `x`), the same values, from one pass over the column rather than a copy of each group:
+/// each group's order statistics are bracketed by its share of an evenly spaced sample, and
+/// its values counted and kept as [`quantiles`] does. None when a group has values but too
+/// few for bracketing, or an order statistic falls outside its bracket: the caller then
+/// gathers the groups.
+pub fn grouped_quantiles(
+    x: &View,
+    group: impl Fn(usize) -> usize,
+    groups: usize,
+    ps: &[f64],
+) -> Option<Vec<Vec<Option<f64>>>> {
+    let (values, ok) = x.parts();
+    let present = |r: usize| ok.is_none_or(|ok| ok[r]);
+    let mut sizes = vec![0usize; groups];
+    for r in (0..values.len()).filter(|r| present(*r)) {
+        sizes[group(r)] += 1;
+    }
+    if sizes.iter().any(|n| (1..=SMALL).contains(n)) {
+        return None;
+    }
+    let step = values.len().div_ceil(SAMPLE).max(1);
+    let mut samples: Vec<Vec<i64>> = vec![Vec::new(); groups];
+    for r in (0..values.len()).step_by(step).filter(|r| present(*r)) {
+        samples[group(r)].push(key(values[r]));
+    }
+    let ks: Vec<Vec<usize>> = sizes.iter().map(|n| ranks(*n, ps)).collect();
+    let mut tallies = Vec::with_capacity(groups);
+    for ((sample, ks), n) in samples.iter_mut().zip(&ks).zip(&sizes) {
+        if *n > 0 && sample.len() < 2 {
+            return None;
+        }
+        sample.sort_unstable();
+        tallies.push(Tally::new(brackets(ks, *n, sample)));
+    }
+    for r in (0..values.len()).filter(|r| present(*r)) {
+        tallies[group(r)].add(values[r]);
+    }
+    sizes
+        .iter()
+        .zip(&ks)
+        .zip(tallies)
+        .map(|((n, ks), tally)| match n {
+            0 => Some(vec![None; ps.len()]),
+            _ => Some(interpolate(*n, ps, ks, &tally.select(ks)?)),
+        })
+        .collect()
+}
+
+/// The order statistics type-7 interpolation at `ps` reads among `n` values: sorted, distinct
+/// (none when `n` is 0).
+fn ranks(n: usize, ps: &[f64]) -> Vec<usize> {
+    if n == 0 {
+        return Vec::new();
+    }
     let mut ks: Vec<usize> = ps
         .iter()
         .flat_map(|p| {
@@ -121,7 +181,12 @@ pub fn quantiles(x: &View, n: usize, map: impl Fn(f64) -> f64, ps: &[f64]) -> Ve
         .collect();
     ks.sort_unstable();
     ks.dedup();
-    let stats = order_stats(x, n, &map, &ks);
+    ks
+}
+
+/// The type-7 quantiles at `ps` of `n` values from their order statistics `stats` at the
+/// ranks `ks` ([`ranks`]).
+fn interpolate(n: usize, ps: &[f64], ks: &[usize], stats: &[f64]) -> Vec<Option<f64>> {
     let at = |k: usize| stats[ks.binary_search(&k).expect("selected")];
     ps.iter()
         .map(|p| {
@@ -179,8 +244,17 @@ fn order_stats(x: &View, n: usize, map: &impl Fn(f64) -> f64, ks: &[usize]) -> V
     if m < 2 {
         return whole(ks);
     }
-    // Each k's bracket of keys: its rank in the sample, four standard errors either side
-    // (and a few ranks more); open at the ends.
+    let mut tally = Tally::new(brackets(ks, n, &sample));
+    each_mapped(values, ok, map, |v| tally.add(v));
+    tally.select(ks).unwrap_or_else(|| whole(ks))
+}
+
+/// Each rank of `ks` (among `n` values)'s bracket of keys, from the sorted keys of an evenly
+/// spaced `sample` of the values: its rank in the sample, four standard errors either side
+/// (and a few ranks more), open at the ends; overlapping brackets merged, so that they are
+/// disjoint and ascending.
+fn brackets(ks: &[usize], n: usize, sample: &[i64]) -> Vec<(i64, i64)> {
+    let m = sample.len();
     let mut brackets: Vec<(i64, i64)> = ks
         .iter()
         .map(|k| {
@@ -202,7 +276,6 @@ fn order_stats(x: &View, n: usize, map: &impl Fn(f64) -> f64, ks: &[usize]) -> V
             (lo, hi)
         })
         .collect();
-    // Overlapping brackets merged: disjoint and ascending.
     brackets.sort_unstable();
     let mut merged: Vec<(i64, i64)> = Vec::with_capacity(brackets.len());
     for (lo, hi) in brackets {
@@ -211,44 +284,67 @@ fn order_stats(x: &View, n: usize, map: &impl Fn(f64) -> f64, ks: &[usize]) -> V
             _ => merged.push((lo, hi)),
         }
     }
-    // gap[j]: values between bracket j - 1 and bracket j; kept[j]: those inside bracket j.
-    let mut gap = vec![0usize; merged.len()];
-    let mut kept: Vec<Vec<f64>> = vec![Vec::new(); merged.len()];
-    each_mapped(values, ok, map, |v| {
+    merged
+}
+
+/// One pass's tally against the brackets: `gap[j]` counts the values between bracket j - 1
+/// and bracket j, `kept[j]` holds those inside bracket j.
+struct Tally {
+    merged: Vec<(i64, i64)>,
+    gap: Vec<usize>,
+    kept: Vec<Vec<f64>>,
+}
+
+impl Tally {
+    fn new(merged: Vec<(i64, i64)>) -> Tally {
+        Tally {
+            gap: vec![0; merged.len()],
+            kept: vec![Vec::new(); merged.len()],
+            merged,
+        }
+    }
+
+    /// Count or keep `v`.
+    fn add(&mut self, v: f64) {
         let k = key(v);
-        for (j, (lo, hi)) in merged.iter().enumerate() {
+        for (j, (lo, hi)) in self.merged.iter().enumerate() {
             if k < *lo {
-                gap[j] += 1;
+                self.gap[j] += 1;
                 break;
             }
             if k <= *hi {
-                kept[j].push(v);
+                self.kept[j].push(v);
                 break;
             }
         }
-    });
-    // The values below bracket j: the gaps up to it and the brackets before it.
-    let mut below = vec![0usize; merged.len()];
-    let mut before = 0usize;
-    for j in 0..merged.len() {
-        below[j] = before + gap[j];
-        before = below[j] + kept[j].len();
     }
-    let mut out = Vec::with_capacity(ks.len());
-    for (j, bucket) in kept.iter_mut().enumerate() {
-        let inside: Vec<usize> = ks
-            .iter()
-            .filter(|k| **k >= below[j] && **k < below[j] + bucket.len())
-            .map(|k| k - below[j])
-            .collect();
-        select_each(bucket, &inside);
-        out.extend(inside.iter().map(|i| (below[j] + i, bucket[*i])));
+
+    /// The `k`-th smallest value for each of the sorted, distinct `ks`, selected among the
+    /// kept ones; None when one fell outside every bracket.
+    fn select(mut self, ks: &[usize]) -> Option<Vec<f64>> {
+        // The values below bracket j: the gaps up to it and the brackets before it.
+        let mut below = Vec::with_capacity(self.merged.len());
+        let mut before = 0usize;
+        for (gap, kept) in self.gap.iter().zip(&self.kept) {
+            below.push(before + gap);
+            before += gap + kept.len();
+        }
+        let mut out = Vec::with_capacity(ks.len());
+        for (j, bucket) in self.kept.iter_mut().enumerate() {
+            let inside: Vec<usize> = ks
+                .iter()
+                .filter(|k| **k >= below[j] && **k < below[j] + bucket.len())
+                .map(|k| k - below[j])
+                .collect();
+            select_each(bucket, &inside);
+            out.extend(inside.iter().map(|i| (below[j] + i, bucket[*i])));
+        }
+        if out.len() < ks.len() {
+            return None;
+        }
+        out.sort_unstable_by_key(|(k, _)| *k);
+        Some(out.into_iter().map(|(_, v)| v).collect())
     }
-    if out.len() < ks.len() {
-        return whole(ks);
-    }
-    out.sort_unstable_by_key(|(k, _)| *k);
-    out.into_iter().map(|(_, v)| v).collect()
 }
 
 #[cfg(test)]
@@ -352,6 +448,52 @@ mod tests {
                 "column {c}, MAD"
             );
         }
+    }
+
+    #[test]
+    fn grouped_quantiles_equal_each_group_selected_alone() {
+        // `grouped_quantiles` against `type7` on each group's values copied (type7 itself
+        // checked against numpy): three groups interleaved as periods are in a panel sorted
+        // by entity, one empty, with ties, NaN, nulls; and None when a group is too small.
+        use polars::prelude::*;
+        let mut seed = 0x2545_f491_4f6c_dd1du64;
+        let mut next = move || {
+            seed ^= seed << 13;
+            seed ^= seed >> 7;
+            seed ^= seed << 17;
+            seed
+        };
+        let n = 3 * (SMALL + 5_000);
+        let group = |r: usize| [0, 2, 3][r % 3];
+        let col: Vec<Option<f64>> = (0..n)
+            .map(|r| match next() % 40 {
+                0 => None,
+                1 => Some(f64::NAN),
+                v => Some((next() % 5_000) as f64 * (1 + r % 3) as f64 / v as f64),
+            })
+            .collect();
+        let values = crate::core::Values::new(&Float64Chunked::from_iter_options(
+            "x".into(),
+            col.iter().copied(),
+        ));
+        let ps = [0.01, 0.99, 0.5];
+        let got = grouped_quantiles(&values.view(), group, 4, &ps).expect("groups large enough");
+        for (g, q) in got.iter().enumerate() {
+            let mut mine: Vec<f64> = (0..n)
+                .filter(|r| group(*r) == g)
+                .filter_map(|r| col[r])
+                .collect();
+            for (p, q) in ps.iter().zip(q) {
+                let want = type7(&mut mine, *p);
+                assert_eq!(
+                    q.map(f64::to_bits),
+                    want.map(f64::to_bits),
+                    "group {g}, p {p}"
+                );
+            }
+        }
+        let small = |r: usize| usize::from(r.is_multiple_of(100));
+        assert!(grouped_quantiles(&values.view(), small, 2, &ps).is_none());
     }
 
     #[test]
