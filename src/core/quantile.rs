@@ -351,18 +351,22 @@ impl Tally {
 mod tests {
     use super::*;
 
+    /// A xorshift generator (Marsaglia 2003) from `seed`: reproducible test data.
+    fn xorshift(mut seed: u64) -> impl FnMut() -> u64 {
+        move || {
+            seed ^= seed << 13;
+            seed ^= seed >> 7;
+            seed ^= seed << 17;
+            seed
+        }
+    }
+
     #[test]
     fn many_quantiles_at_once_equal_each_one_alone() {
         // Against `type7` itself (Hyndman & Fan 1996, definition 7, numpy's default method;
         // checked by hand below, and against numpy in tests/reference): sizes 1 to 300, ties,
         // NaN and both zeros, the probabilities the outlier check asks for and the extremes.
-        let mut seed = 0x2545_f491_4f6c_dd1du64;
-        let mut next = || {
-            seed ^= seed << 13;
-            seed ^= seed >> 7;
-            seed ^= seed << 17;
-            seed
-        };
+        let mut next = xorshift(0x2545_f491_4f6c_dd1du64);
         let ps = [0.01, 0.99, 0.5, 0.0, 1.0, 0.25];
         for n in 1..300usize {
             let v: Vec<f64> = (0..n)
@@ -389,13 +393,7 @@ mod tests {
         // zeros, nulls, a pattern the evenly spaced sample misreads, and the absolute
         // deviations the MAD takes.
         use polars::prelude::*;
-        let mut seed = 0x9e37_79b9_7f4a_7c15u64;
-        let mut next = move || {
-            seed ^= seed << 13;
-            seed ^= seed >> 7;
-            seed ^= seed << 17;
-            seed
-        };
+        let mut next = xorshift(0x9e37_79b9_7f4a_7c15u64);
         let ps = [0.01, 0.99, 0.5, 0.0, 1.0, 0.25];
         let n = 3 * SMALL + 17;
         let columns: Vec<Vec<Option<f64>>> = vec![
@@ -456,13 +454,7 @@ mod tests {
         // checked against numpy): three groups interleaved as periods are in a panel sorted
         // by entity, one empty, with ties, NaN, nulls; and None when a group is too small.
         use polars::prelude::*;
-        let mut seed = 0x2545_f491_4f6c_dd1du64;
-        let mut next = move || {
-            seed ^= seed << 13;
-            seed ^= seed >> 7;
-            seed ^= seed << 17;
-            seed
-        };
+        let mut next = xorshift(0x2545_f491_4f6c_dd1du64);
         let n = 3 * (SMALL + 5_000);
         let group = |r: usize| [0, 2, 3][r % 3];
         let col: Vec<Option<f64>> = (0..n)
