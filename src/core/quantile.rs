@@ -418,7 +418,7 @@ mod tests {
                 })
                 .collect(),
             (0..n)
-                .map(|_| Some(if next() % 3 == 0 { 5.0 } else { 7.0 }))
+                .map(|_| Some(if next().is_multiple_of(3) { 5.0 } else { 7.0 }))
                 .collect(),
         ];
         for (c, col) in columns.iter().enumerate() {
