@@ -459,7 +459,6 @@ pub fn join(panel: DataFrame, t: &Table, k: &Keys) -> Result<Joined> {
                 .otherwise(lit(NULL).cast(DataType::String)),
             "join: unmatched",
             k,
-            None,
         )?;
         (kept, Some(removed))
     } else {

@@ -118,7 +118,7 @@ pub fn apply(
             "period outside the balancing window {first}..{last}"
         )))
         .otherwise(lit(NULL).cast(DataType::String));
-    let (kept, removed) = drop_where(df, reason, "balance", k, None)?;
+    let (kept, removed) = drop_where(df, reason, "balance", k)?;
     let entities = crate::report::distinct(&kept, e)?;
     let line = BalanceLine {
         mode: mode.to_string(),

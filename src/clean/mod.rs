@@ -88,8 +88,8 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
     } else {
         raw.lazy().filter(e_null.or(p_null).not()).collect()?
     };
-    // The key columns in one chunk each first: the order check shifts them, which on a column
-    // read in many chunks copies it piece by piece.
+    // The key columns in one chunk each first: the key scan reads them in place as one chunk
+    // (and the panel core later does the same).
     let mut df = df;
     for name in [entity, period] {
         let whole = df.column(name)?.rechunk();
@@ -328,19 +328,18 @@ fn entities_only_in(few: &DataFrame, sorted: &DataFrame, entity: &str) -> Result
     Ok(absent.len() as u64)
 }
 
-/// Move rows where `reason` (a string expression) is not null into the ledger, among the rows
-/// `within` marks (see [`drop_marked`]). The reason may read other rows (a window over the
-/// entity): it is evaluated on the whole frame, before any row is dropped.
+/// Move rows where `reason` (a string expression) is not null into the ledger. The reason may
+/// read other rows (a window over the entity): it is evaluated on the whole frame, before any
+/// row is dropped.
 pub fn drop_where(
     df: DataFrame,
     reason: Expr,
     step: &str,
     k: &Keys,
-    within: Option<&BooleanChunked>,
 ) -> Result<(DataFrame, DataFrame)> {
     let marked = df.lazy().with_column(reason.alias(REASON)).collect()?;
     let hit = marked.column(REASON)?.is_not_null();
-    drop_marked(marked, &hit, col(REASON), &[REASON], step, k, within)
+    drop_marked(marked, &hit, col(REASON), &[REASON], step, k, None)
 }
 
 /// Move the rows `hit` marks into the ledger, with `reason` (a string expression, read on

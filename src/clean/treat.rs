@@ -301,7 +301,7 @@ impl Treatment {
                 let beyond: Vec<String> = (0..self.variables.len())
                     .map(|i| format!("__beyond{i}"))
                     .collect();
-                let (kept, removed) = drop_where(current, reason, "trim", k, None)?;
+                let (kept, removed) = drop_where(current, reason, "trim", k)?;
                 let kept = kept.lazy().drop(cols(beyond)).collect()?;
                 (kept, Some(removed))
             }
