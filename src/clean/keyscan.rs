@@ -29,34 +29,31 @@ pub(super) fn scan(df: &DataFrame, entity: &str, period: &str) -> Result<KeyScan
         entities: 0,
         repeated: Vec::new(),
     };
-    // The usual case, each column in one chunk without a missing key: the text's views
-    // compared whole first (equal views, equal text), the text itself only where they differ.
-    if ids.chunks().len() == 1 && ids.null_count() == 0 && periods.null_count() == 0 {
-        if let Ok(periods) = periods.cont_slice() {
-            let ids = ids.downcast_as_array();
-            let views = ids.views().as_slice();
-            out.entities = u64::from(!views.is_empty());
-            let mut previous_repeated = false;
-            for (r, (v, p)) in views.windows(2).zip(periods.windows(2)).enumerate() {
-                let r = r + 1;
-                let same_entity = v[1] == v[0] || ids.value(r) == ids.value(r - 1);
-                if same_entity {
-                    out.in_order &= p[1] >= p[0];
-                } else {
-                    out.entities += 1;
-                    out.in_order &= ids.value(r) > ids.value(r - 1);
-                }
-                let same = same_entity && p[1] == p[0];
-                if same {
-                    if !previous_repeated {
-                        out.repeated.push((r - 1) as IdxSize);
-                    }
-                    out.repeated.push(r as IdxSize);
-                }
-                previous_repeated = same;
+    // The usual case, each column in one chunk without a missing key: the names' runs read
+    // in place (`core::same_as_previous`), the text compared for order only where it changes.
+    // (The engine gives a column's values as a slice only in one chunk without nulls.)
+    if let (Some(same), Ok(periods)) = (crate::core::same_as_previous(ids), periods.cont_slice()) {
+        let array = ids.downcast_as_array();
+        out.entities = u64::from(!periods.is_empty());
+        let mut previous_repeated = false;
+        for (r, (same_entity, p)) in same.zip(periods.windows(2)).enumerate() {
+            let r = r + 1;
+            if same_entity {
+                out.in_order &= p[1] >= p[0];
+            } else {
+                out.entities += 1;
+                out.in_order &= array.value(r) > array.value(r - 1);
             }
-            return Ok(out);
+            let same = same_entity && p[1] == p[0];
+            if same {
+                if !previous_repeated {
+                    out.repeated.push((r - 1) as IdxSize);
+                }
+                out.repeated.push(r as IdxSize);
+            }
+            previous_repeated = same;
         }
+        return Ok(out);
     }
     let mut previous: Option<(Option<&str>, Option<i64>)> = None;
     // Whether the previous row is already among the repeated ones.

@@ -14,10 +14,12 @@ use crate::Result;
 mod quantile;
 mod singletons;
 mod slip;
+mod text;
 mod values;
 
 pub use quantile::{grouped_quantiles, quantiles, type7, type7_many};
 pub use slip::{log_ratios, magnitude};
+pub use text::same_as_previous;
 pub use values::{Values, View};
 
 /// How many variables the kernels hold in memory at once (several per core, few enough that
@@ -97,14 +99,14 @@ impl PanelCore {
         let ids = ids.str()?;
         let mut codes = Vec::with_capacity(df.height());
         let mut starts = Vec::new();
-        if ids.chunks().len() == 1 && ids.null_count() == 0 {
-            // One chunk without a missing name: the text's views compared whole first (equal
-            // views, equal text), the text itself only where they differ.
-            let array = ids.downcast_as_array();
-            let views = array.views().as_slice();
-            for r in 0..views.len() {
-                if r == 0 || (views[r] != views[r - 1] && array.value(r) != array.value(r - 1)) {
-                    starts.push(r);
+        if let Some(same) = text::same_as_previous(ids) {
+            if !ids.is_empty() {
+                starts.push(0);
+                codes.push(0);
+            }
+            for (r, same) in same.enumerate() {
+                if !same {
+                    starts.push(r + 1);
                 }
                 codes.push((starts.len() - 1) as u32);
             }
