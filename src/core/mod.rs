@@ -11,15 +11,15 @@ use rayon::prelude::*;
 
 use crate::Result;
 
+mod keys;
 mod quantile;
 mod singletons;
 mod slip;
-mod text;
 mod values;
 
+pub use keys::same_as_previous;
 pub use quantile::{grouped_quantiles, quantiles, type7, type7_many};
 pub use slip::{log_ratios, magnitude};
-pub use text::same_as_previous;
 pub use values::{Values, View};
 
 /// How many variables the kernels hold in memory at once (several per core, few enough that
@@ -66,31 +66,6 @@ pub struct TwoWaySums {
     b: Vec<f64>,
 }
 
-/// Each row's index into the ascending distinct `periods` (0 for a missing period): from a
-/// table over the periods' range when it is short (years, quarters), else by binary search.
-fn period_codes(p: &Int64Chunked, periods: &[i64]) -> Vec<u32> {
-    let (Some(first), Some(last)) = (periods.first(), periods.last()) else {
-        return vec![0; p.len()];
-    };
-    match usize::try_from(last.abs_diff(*first)) {
-        Ok(span) if span < 1 << 16 => {
-            let mut table = vec![0u32; span + 1];
-            for (code, v) in periods.iter().enumerate() {
-                table[(v - first) as usize] = code as u32;
-            }
-            let code = |v: i64| table[(v - first) as usize];
-            match p.cont_slice() {
-                Ok(values) => values.iter().map(|v| code(*v)).collect(),
-                Err(_) => p.iter().map(|v| v.map_or(0, code)).collect(),
-            }
-        }
-        _ => p
-            .iter()
-            .map(|v| v.map_or(0, |v| periods.binary_search(&v).unwrap_or(0) as u32))
-            .collect(),
-    }
-}
-
 impl PanelCore {
     /// Codes for `df`, which must be sorted by `entity` then `period`; rows missing a key are
     /// not expected (the key steps remove them) and count as one more entity or period.
@@ -99,7 +74,7 @@ impl PanelCore {
         let ids = ids.str()?;
         let mut codes = Vec::with_capacity(df.height());
         let mut starts = Vec::new();
-        if let Some(same) = text::same_as_previous(ids) {
+        if let Some(same) = keys::same_as_previous(ids) {
             if !ids.is_empty() {
                 starts.push(0);
                 codes.push(0);
@@ -134,7 +109,7 @@ impl PanelCore {
                 previous = Some(v);
             }
         }
-        let period = period_codes(p, &periods);
+        let period = keys::period_codes(p, &periods);
         Ok(PanelCore {
             entity: codes,
             period,
@@ -488,9 +463,9 @@ mod tests {
         assert_eq!(c.periods, [2001, 2002, 2003]);
         assert_eq!(c.period, [0, 2, 1, 0, 1]);
         assert_eq!(c.starts, [0, 2, 3, 5]);
-        // The same codes by every path: names longer than a view holds (equal names in
-        // different places of the buffer), a missing name, several chunks, a period range
-        // too wide for a table, and a missing period (code 0, as the binary search gives).
+        // Codes worked by hand, the same by every path: long names (equal ones in different
+        // places of the buffer), a missing name, several chunks, a period range too wide for
+        // a table, a missing period (code 0, as the binary search gives).
         let long = [
             "a firm with a long name",
             "a firm with a long name",
@@ -590,7 +565,7 @@ mod tests {
         assert!((m.wss - 2.0).abs() < 1e-12);
         assert!((m.sd_between - 4.5f64.sqrt()).abs() < 1e-12);
         assert_eq!(m.flat, 1);
-        // Flat entities: c (0.0, -0.0) is, d (NaN, NaN) and e (2, NaN) are not, f has one row.
+        // Flat, worked by hand: c (0.0, -0.0) is; d (NaN, NaN), e (2, NaN), f (one row) not.
         let c = core(&["c", "c", "d", "d", "e", "e", "f"], &[1, 2, 1, 2, 1, 2, 1]);
         let x: Float64Chunked = [0.0, -0.0, f64::NAN, f64::NAN, 2.0, f64::NAN, 7.0]
             .into_iter()
