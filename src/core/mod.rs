@@ -18,7 +18,7 @@ mod slip;
 mod values;
 
 pub use keys::same_as_previous;
-pub use quantile::{grouped_quantiles, quantiles, type7, type7_many};
+pub use quantile::{grouped_quantiles, quantiles, quantiles_visiting, type7, type7_many};
 pub use slip::{log_ratios, magnitude};
 pub use values::{Values, View};
 

@@ -109,12 +109,28 @@ const SAMPLE: usize = 1 << 14;
 /// bracket (rare; a count says so exactly), the values are copied and selected whole. Every
 /// step is deterministic.
 pub fn quantiles(x: &View, n: usize, map: impl Fn(f64) -> f64, ps: &[f64]) -> Vec<Option<f64>> {
+    quantiles_visiting(x, n, map, ps, |_| |_, _| {}).0
+}
+
+/// [`quantiles`], with a caller's count riding on the pass that reads every value: `visitor`
+/// is told the range of mapped values the order statistics will be selected in, as far as the
+/// sample shows before that pass (None when it does not: few values, an open bracket), and
+/// returns a function called as `visit(v, map(v))` on each value in row order, once. Should
+/// the statistics in the end fall outside that range (the rare case where they are selected
+/// from the whole values), the caller sees it in the quantiles themselves.
+pub fn quantiles_visiting<V: FnMut(f64, f64)>(
+    x: &View,
+    n: usize,
+    map: impl Fn(f64) -> f64,
+    ps: &[f64],
+    visitor: impl FnOnce(Option<(f64, f64)>) -> V,
+) -> (Vec<Option<f64>>, V) {
     if n == 0 {
-        return vec![None; ps.len()];
+        return (vec![None; ps.len()], visitor(None));
     }
     let ks = ranks(n, ps);
-    let stats = order_stats(x, n, &map, &ks);
-    interpolate(n, ps, &ks, &stats)
+    let (stats, visit) = order_stats(x, n, &map, &ks, visitor);
+    (interpolate(n, ps, &ks, &stats), visit)
 }
 
 /// [`quantiles`] of each group's values (`group(r)`, below `groups`, of the rows with a value
@@ -201,36 +217,50 @@ fn interpolate(n: usize, ps: &[f64], ks: &[usize], stats: &[f64]) -> Vec<Option<
         .collect()
 }
 
-/// `f(map(v))` for each value `v` where `ok` says there is one, in row order (generic, so
+/// `f(v, map(v))` for each value `v` where `ok` says there is one, in row order (generic, so
 /// that `f` is inlined into the loop).
 fn each_mapped(
     values: &[f64],
     ok: Option<&[bool]>,
     map: &impl Fn(f64) -> f64,
-    mut f: impl FnMut(f64),
+    mut f: impl FnMut(f64, f64),
 ) {
     match ok {
-        None => values.iter().for_each(|v| f(map(*v))),
+        None => values.iter().for_each(|v| f(*v, map(*v))),
         Some(ok) => values
             .iter()
             .zip(ok)
             .filter(|(_, o)| **o)
-            .for_each(|(v, _)| f(map(*v))),
+            .for_each(|(v, _)| f(*v, map(*v))),
     }
 }
 
 /// The `k`-th smallest of the mapped values (by `total_cmp`) for each of the sorted, distinct
-/// `ks`.
-fn order_stats(x: &View, n: usize, map: &impl Fn(f64) -> f64, ks: &[usize]) -> Vec<f64> {
+/// `ks`, and the visit of [`quantiles_visiting`] made once on every value.
+fn order_stats<V: FnMut(f64, f64)>(
+    x: &View,
+    n: usize,
+    map: &impl Fn(f64) -> f64,
+    ks: &[usize],
+    visitor: impl FnOnce(Option<(f64, f64)>) -> V,
+) -> (Vec<f64>, V) {
     let (values, ok) = x.parts();
-    let whole = |ks: &[usize]| {
+    // Every value copied and selected among; `visit` sees them on the way when given.
+    let whole = |ks: &[usize], visit: Option<&mut V>| {
         let mut all = Vec::with_capacity(n);
-        each_mapped(values, ok, map, |v| all.push(v));
+        match visit {
+            Some(visit) => each_mapped(values, ok, map, |v, a| {
+                visit(v, a);
+                all.push(a);
+            }),
+            None => each_mapped(values, ok, map, |_, a| all.push(a)),
+        }
         select_each(&mut all, ks);
         ks.iter().map(|k| all[*k]).collect::<Vec<f64>>()
     };
     if n <= SMALL {
-        return whole(ks);
+        let mut visit = visitor(None);
+        return (whole(ks, Some(&mut visit)), visit);
     }
     // Every `step`-th row with a value, in row order.
     let step = values.len().div_ceil(SAMPLE).max(1);
@@ -242,11 +272,30 @@ fn order_stats(x: &View, n: usize, map: &impl Fn(f64) -> f64, ks: &[usize]) -> V
     sample.sort_unstable();
     let m = sample.len();
     if m < 2 {
-        return whole(ks);
+        let mut visit = visitor(None);
+        return (whole(ks, Some(&mut visit)), visit);
     }
-    let mut tally = Tally::new(brackets(ks, n, &sample));
-    each_mapped(values, ok, map, |v| tally.add(v));
-    tally.select(ks).unwrap_or_else(|| whole(ks))
+    let merged = brackets(ks, n, &sample);
+    // The lowest and highest value the brackets hold, when both ends are closed.
+    let range = match (merged.first(), merged.last()) {
+        (Some(&(lo, _)), Some(&(_, hi))) if lo != i64::MIN && hi != i64::MAX => {
+            Some((from_key(lo), from_key(hi)))
+        }
+        _ => None,
+    };
+    let mut visit = visitor(range);
+    let mut tally = Tally::new(merged);
+    each_mapped(values, ok, map, |v, a| {
+        tally.add(a);
+        visit(v, a);
+    });
+    let stats = tally.select(ks).unwrap_or_else(|| whole(ks, None));
+    (stats, visit)
+}
+
+/// The value whose [`key`] is `k` (`key` is its own inverse on the bits).
+fn from_key(k: i64) -> f64 {
+    f64::from_bits((k ^ (((k >> 63) as u64) >> 1) as i64) as u64)
 }
 
 /// Each rank of `ks` (among `n` values)'s bracket of keys, from the sorted keys of an evenly
@@ -445,6 +494,53 @@ mod tests {
                 want.map(f64::to_bits),
                 "column {c}, MAD"
             );
+        }
+    }
+
+    #[test]
+    fn a_visit_sees_each_value_once_and_the_range_holds_the_quantiles() {
+        // `quantiles_visiting` against `quantiles` (the same bits) and the column itself: each
+        // present value visited once, in row order, with its mapped value; the range told
+        // beforehand holds the quantiles (they interpolate between order statistics inside
+        // it); a small column (selected whole) is visited too, with no range.
+        use polars::prelude::*;
+        let mut next = xorshift(0x2545_f491_4f6c_dd1du64);
+        let n = 2 * SMALL + 5;
+        let column: Vec<Option<f64>> = (0..n)
+            .map(|_| match next() % 30 {
+                0 => None,
+                r => Some((next() % 10_000) as f64 / r as f64 - 100.0),
+            })
+            .collect();
+        for rows in [n, SMALL / 2] {
+            let values = super::super::Values::new(&Float64Chunked::from_iter_options(
+                "x".into(),
+                column[..rows].iter().copied(),
+            ));
+            let x = values.view();
+            let present: Vec<f64> = column[..rows].iter().flatten().copied().collect();
+            let map = |v: f64| (v - 3.0).abs();
+            let ps = [0.5, 0.01];
+            let (mut seen, mut told) = (Vec::new(), None);
+            let (q, _) = quantiles_visiting(&x, present.len(), map, &ps, |range| {
+                told = Some(range);
+                |v: f64, a: f64| seen.push((v, a))
+            });
+            let expected: Vec<(f64, f64)> = present.iter().map(|v| (*v, map(*v))).collect();
+            assert_eq!(seen, expected, "{rows} rows");
+            let bits =
+                |q: &[Option<f64>]| q.iter().map(|v| v.map(f64::to_bits)).collect::<Vec<_>>();
+            assert_eq!(bits(&q), bits(&quantiles(&x, present.len(), map, &ps)));
+            match told.expect("the visitor is made") {
+                Some((lo, hi)) => {
+                    assert_eq!(rows, n);
+                    assert!(
+                        q.iter().flatten().all(|v| lo <= *v && *v <= hi),
+                        "{lo} {hi} {q:?}"
+                    );
+                }
+                None => assert_eq!(rows, SMALL / 2),
+            }
         }
     }
 
