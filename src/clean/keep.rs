@@ -1,10 +1,10 @@
 //! Keeping rows: the panel without the rows a step removed, each column in one chunk.
 //!
-//! A column read from a file arrives in many chunks (one per row group); the later kernels
-//! read a column in place only when it is one chunk. A filter keeps the chunks as they are,
-//! so the engine would copy such a column twice, once to filter it and once to join its
-//! chunks. A numeric column in several chunks is instead copied once, run by run of kept
-//! rows, straight into one buffer; every other column goes through the engine's filter.
+//! A numeric column read from Parquet arrives in one chunk (`load::contiguous`); when nothing
+//! else holds it, its kept rows are moved up within its own buffer, with no new buffer. A
+//! column in many chunks (a CSV read, a joined table) is copied once, run by run of kept rows,
+//! straight into one buffer (a filter would keep the chunks as they are, and joining them
+//! would copy the column a second time); every other column goes through the engine's filter.
 
 use polars::prelude::*;
 use rayon::prelude::*;
@@ -24,7 +24,7 @@ pub fn keep_rows(df: DataFrame, keep: &BooleanChunked) -> Result<DataFrame> {
         kept.extend(
             batch
                 .into_par_iter()
-                .map(|c| keep_column(&c, keep, &runs, height))
+                .map(|c| keep_column(c, keep, &runs, height))
                 .collect::<PolarsResult<Vec<_>>>()?,
         );
     }
@@ -67,16 +67,29 @@ fn kept_runs(keep: &BooleanChunked) -> Vec<(usize, usize)> {
 
 /// One column's kept rows in one chunk.
 fn keep_column(
-    c: &Column,
+    c: Column,
     keep: &BooleanChunked,
     runs: &[(usize, usize)],
     height: usize,
 ) -> PolarsResult<Column> {
-    // A column in one chunk, or not held as values (a constant), needs no joining: the
-    // engine's filter copies it once, or not at all.
+    // A numeric column in one chunk keeps its rows in its own buffer; any other column in
+    // one chunk, or not held as values (a constant), needs no joining: the engine's filter
+    // copies it once, or not at all.
     let s = match c.as_series() {
         Some(s) if s.n_chunks() > 1 => s,
-        _ => return Ok(c.filter(keep)?.rechunk()),
+        Some(_) => {
+            let s = c.take_materialized_series();
+            return match s.dtype() {
+                DataType::Float64 => keep_in_place::<Float64Type>(s, keep, runs, height),
+                DataType::Float32 => keep_in_place::<Float32Type>(s, keep, runs, height),
+                DataType::Int64 => keep_in_place::<Int64Type>(s, keep, runs, height),
+                DataType::Int32 => keep_in_place::<Int32Type>(s, keep, runs, height),
+                DataType::UInt64 => keep_in_place::<UInt64Type>(s, keep, runs, height),
+                DataType::UInt32 => keep_in_place::<UInt32Type>(s, keep, runs, height),
+                _ => Ok(s.filter(keep)?.rechunk().into_column()),
+            };
+        }
+        None => return Ok(c.filter(keep)?.rechunk()),
     };
     let copied = match s.dtype() {
         DataType::Float64 => keep_numeric(s.f64()?, keep, runs, height)?.into_series(),
@@ -89,6 +102,54 @@ fn keep_column(
         _ => return Ok(c.filter(keep)?.rechunk()),
     };
     Ok(copied.into_column())
+}
+
+/// A numeric column in one chunk down to its kept rows, moved up run by run within its own
+/// buffer when nothing else holds it (no new buffer: the rows dropped leave room at its end),
+/// else through the engine's filter. Missing values and the order flag as the filter leaves
+/// them.
+fn keep_in_place<T: PolarsNumericType>(
+    s: Series,
+    keep: &BooleanChunked,
+    runs: &[(usize, usize)],
+    height: usize,
+) -> PolarsResult<Column> {
+    let name = s.name().clone();
+    let ca: ChunkedArray<T> = s.take_inner();
+    let sorted = ca.is_sorted_flag();
+    let validity = validity_kept(&ca, keep)?;
+    let mut chunk = ca.downcast_into_iter().next().expect("one chunk");
+    let Some(values) = chunk.get_mut_values() else {
+        let ca = ChunkedArray::<T>::with_chunk(name, chunk);
+        return Ok(ca.filter(keep)?.rechunk().into_owned().into_column());
+    };
+    let mut to = 0;
+    for &(start, end) in runs {
+        values.copy_within(start..end, to);
+        to += end - start;
+    }
+    chunk.slice(0, height);
+    let chunk = chunk.with_validity(validity);
+    let mut ca = ChunkedArray::<T>::with_chunk(name, chunk);
+    ca.set_sorted_flag(sorted);
+    Ok(ca.into_series().into_column())
+}
+
+/// The validity bits of `ca`'s kept rows (none when it has no missing value), from the
+/// engine's filter of its presence, a bit a row.
+fn validity_kept<T: PolarsNumericType>(
+    ca: &ChunkedArray<T>,
+    keep: &BooleanChunked,
+) -> PolarsResult<Option<polars_arrow::bitmap::Bitmap>> {
+    if ca.null_count() == 0 {
+        return Ok(None);
+    }
+    let present = ca.is_not_null().filter(keep)?.rechunk().into_owned();
+    let bits = present
+        .downcast_iter()
+        .next()
+        .map(|bits| bits.values().clone());
+    Ok(bits)
 }
 
 /// The kept values of a numeric column, run by run, across its chunks into one buffer; its
@@ -120,16 +181,7 @@ fn keep_numeric<T: PolarsNumericType>(
         }
         chunk_start = chunk_end;
     }
-    let validity = if ca.null_count() > 0 {
-        let present = ca.is_not_null().filter(keep)?.rechunk().into_owned();
-        let bits = present
-            .downcast_iter()
-            .next()
-            .map(|bits| bits.values().clone());
-        bits
-    } else {
-        None
-    };
+    let validity = validity_kept(ca, keep)?;
     Ok(ChunkedArray::from_vec_validity(
         ca.name().clone(),
         values,
@@ -171,6 +223,28 @@ mod tests {
             let mask: Vec<bool> = (0..n).map(&pattern).collect();
             let keep = BooleanChunked::from_slice("keep".into(), &mask);
             let expected = whole.filter(&keep).unwrap();
+            // A frame nothing else holds keeps its numeric rows in its own buffers.
+            let own = df!(
+                "x" => (0..n).map(|i| (i % 7 != 0).then_some(i as f64 * 0.5)).collect::<Vec<_>>(),
+                "y" => (0..n as i64).map(|i| i * 3).collect::<Vec<i64>>(),
+                "z" => (0..n as u32).collect::<Vec<u32>>(),
+                "t" => (0..n).map(|i| format!("firm {i}")).collect::<Vec<String>>(),
+                "c" => vec![7i32; n]
+            )
+            .unwrap();
+            let before = own
+                .column("y")
+                .unwrap()
+                .i64()
+                .unwrap()
+                .cont_slice()
+                .unwrap()
+                .as_ptr();
+            let got = keep_rows(own, &keep).unwrap();
+            assert!(got.equals_missing(&expected));
+            if let Ok(values) = got.column("y").unwrap().i64().unwrap().cont_slice() {
+                assert_eq!(values.as_ptr(), before, "moved within its own buffer");
+            }
             for df in [whole.clone(), chunked.clone()] {
                 let got = keep_rows(df, &keep).unwrap();
                 assert!(got.equals_missing(&expected));

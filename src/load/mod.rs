@@ -9,6 +9,7 @@ use crate::config::{holds_parquet, CsvOptions, Encoding, InputConfig, InputForma
 use crate::{Error, Result};
 
 mod budget;
+mod contiguous;
 
 use budget::check_budget;
 
@@ -142,7 +143,11 @@ pub fn load(cfg: &InputConfig, joined: &[String]) -> Result<Loaded> {
     }
     // Read once. Column types are guessed from the first rows; if a later row does not fit
     // (a decimal in a column of whole numbers, say), read again guessing from every row.
-    let df = match lf.with_row_index(ROW, Some(1)).collect() {
+    let read = match cfg.format {
+        InputFormat::Parquet => contiguous::collect(lf, ROW),
+        _ => lf.with_row_index(ROW, Some(1)).collect(),
+    };
+    let df = match read {
         Ok(df) => df,
         Err(_) if cfg.format == InputFormat::Csv => scan(None)?
             .with_row_index(ROW, Some(1))
