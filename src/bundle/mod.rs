@@ -17,12 +17,14 @@ use crate::{Error, Result};
 
 mod dictionary;
 mod guard;
+mod hashing;
 mod manifest;
 mod parquet;
 
 pub use crate::config::Relocated;
 use dictionary::{dictionary_md, parquet_labels, DictionaryFile};
 pub use guard::guard_text;
+use hashing::HashingFile;
 pub use manifest::{
     CorrectionsRecord, InputRecord, JoinedRecord, Manifest, OutputRecord, RowCounts, RulesRecord,
 };
@@ -62,102 +64,6 @@ pub fn write(
     };
     swap_into_place(&staging, out)?;
     Ok(manifest)
-}
-
-/// A file being written, hashed and counted on the way (no second read). Writes gather in
-/// batches; each full batch goes to the file and then to a hashing thread, so that hashing a
-/// large panel runs beside the encoding that produces it. The hasher hands emptied batches
-/// back for reuse.
-struct HashingFile {
-    path: PathBuf,
-    file: fs::File,
-    batch: Vec<u8>,
-    to_hasher: Option<std::sync::mpsc::SyncSender<Vec<u8>>>,
-    emptied: std::sync::mpsc::Receiver<Vec<u8>>,
-    hasher: Option<std::thread::JoinHandle<Sha256>>,
-    bytes: u64,
-}
-
-/// Bytes gathered before a batch is written and hashed.
-const HASH_BATCH: usize = 4 << 20;
-
-impl HashingFile {
-    fn create(dir: &Path, name: &str) -> Result<HashingFile> {
-        let path = dir.join(name);
-        let file = fs::File::create(&path).map_err(Error::io(&path))?;
-        let (to_hasher, batches) = std::sync::mpsc::sync_channel::<Vec<u8>>(4);
-        let (give_back, emptied) = std::sync::mpsc::channel::<Vec<u8>>();
-        let hasher = std::thread::spawn(move || {
-            let mut hash = Sha256::new();
-            for mut batch in batches {
-                hash.update(&batch);
-                batch.clear();
-                // The writer may have finished; then the batch is simply dropped.
-                let _ = give_back.send(batch);
-            }
-            hash
-        });
-        Ok(HashingFile {
-            path,
-            file,
-            batch: Vec::with_capacity(HASH_BATCH),
-            to_hasher: Some(to_hasher),
-            emptied,
-            hasher: Some(hasher),
-            bytes: 0,
-        })
-    }
-
-    /// Write the gathered batch to the file and pass it to the hasher.
-    fn spill(&mut self) -> std::io::Result<()> {
-        if self.batch.is_empty() {
-            return Ok(());
-        }
-        self.file.write_all(&self.batch)?;
-        let next = self
-            .emptied
-            .try_recv()
-            .unwrap_or_else(|_| Vec::with_capacity(HASH_BATCH));
-        let full = std::mem::replace(&mut self.batch, next);
-        self.to_hasher
-            .as_ref()
-            .and_then(|tx| tx.send(full).ok())
-            .ok_or_else(|| std::io::Error::other("the hashing thread stopped"))
-    }
-
-    /// Flush and return the file's record.
-    fn finish(mut self, name: &str) -> Result<OutputRecord> {
-        self.spill().map_err(Error::io(&self.path))?;
-        self.file.flush().map_err(Error::io(&self.path))?;
-        drop(self.to_hasher.take());
-        let hash = self
-            .hasher
-            .take()
-            .expect("joined once")
-            .join()
-            .unwrap_or_else(|panic| std::panic::resume_unwind(panic));
-        Ok(OutputRecord {
-            path: name.to_string(),
-            sha256: format!("{:x}", hash.finalize()),
-            bytes: self.bytes,
-        })
-    }
-}
-
-impl Write for HashingFile {
-    fn write(&mut self, buf: &[u8]) -> std::io::Result<usize> {
-        self.batch.extend_from_slice(buf);
-        self.bytes += buf.len() as u64;
-        if self.batch.len() >= HASH_BATCH {
-            self.spill()?;
-        }
-        Ok(buf.len())
-    }
-
-    fn flush(&mut self) -> std::io::Result<()> {
-        self.spill()?;
-        self.file.flush()
-    }
 }
 
 fn write_files(
