@@ -4,12 +4,14 @@
 //! only when it is one chunk, so every column was later copied whole into one buffer, while
 //! the chunks it came from were let go. Here each numeric column's buffer is made once, at
 //! its full length, and each slice of rows the engine reads is copied into it and let go
-//! before the next is read, so that the memory of one slice serves the next. Text and other
-//! columns keep the engine's chunks and are joined at the end (for text that copies the
-//! 16-byte views, not the strings).
+//! before the next is read, so that the memory of one slice serves the next. Text whose values
+//! all fit in their 16-byte views (12 bytes or fewer: codes, short names) is gathered the same
+//! way, view by view; other text and other columns keep the engine's chunks and are joined at
+//! the end (for text that copies the views, not the strings).
 
 use polars::prelude::*;
-use polars_arrow::bitmap::MutableBitmap;
+use polars_arrow::array::{Array, Utf8ViewArray, View};
+use polars_arrow::bitmap::{Bitmap, MutableBitmap};
 use rayon::prelude::*;
 
 /// Rows read at a time: a row group of pyarrow's default size, four of the engine's.
@@ -83,6 +85,12 @@ fn sink(c: &Column, height: usize) -> Box<dyn Sink> {
         DataType::Int32 => numeric::<Int32Type>(c, height),
         DataType::UInt64 => numeric::<UInt64Type>(c, height),
         DataType::UInt32 => numeric::<UInt32Type>(c, height),
+        DataType::String => Box::new(Text {
+            name: c.name().clone(),
+            views: Vec::with_capacity(height),
+            validity: None,
+            chunks: None,
+        }),
         _ => Box::new(Chunks { parts: Vec::new() }),
     }
 }
@@ -101,20 +109,7 @@ impl<T: PolarsNumericType> Sink for Numeric<T> {
         for chunk in ca.downcast_iter() {
             let before = self.values.len();
             self.values.extend_from_slice(chunk.values().as_slice());
-            match (
-                chunk.validity().filter(|bits| bits.unset_bits() > 0),
-                &mut self.validity,
-            ) {
-                (Some(bits), Some(validity)) => validity.extend_from_bitmap(bits),
-                (Some(bits), None) => {
-                    let mut validity = MutableBitmap::with_capacity(self.values.capacity());
-                    validity.extend_constant(before, true);
-                    validity.extend_from_bitmap(bits);
-                    self.validity = Some(validity);
-                }
-                (None, Some(validity)) => validity.extend_constant(chunk.len(), true),
-                (None, None) => {}
-            }
+            extend_validity(&mut self.validity, before, chunk.validity(), chunk.len());
         }
         Ok(())
     }
@@ -127,6 +122,80 @@ impl<T: PolarsNumericType> Sink for Numeric<T> {
         } = *self;
         let ca = ChunkedArray::<T>::from_vec_validity(name, values, validity.map(Into::into));
         Ok(ca.into_series().into_column())
+    }
+}
+
+/// The validity bits of `len` more rows after `before` rows, from `bits` (none: all present);
+/// `validity` stays None until the first missing value.
+fn extend_validity(
+    validity: &mut Option<MutableBitmap>,
+    before: usize,
+    bits: Option<&Bitmap>,
+    len: usize,
+) {
+    match (bits.filter(|bits| bits.unset_bits() > 0), validity) {
+        (Some(bits), Some(validity)) => validity.extend_from_bitmap(bits),
+        (Some(bits), validity @ None) => {
+            let mut fresh = MutableBitmap::with_capacity(before + len);
+            fresh.extend_constant(before, true);
+            fresh.extend_from_bitmap(bits);
+            *validity = Some(fresh);
+        }
+        (None, Some(validity)) => validity.extend_constant(len, true),
+        (None, None) => {}
+    }
+}
+
+/// A text column: while every value fits in its view, the views in one buffer of the full
+/// length (no string buffers at all); from the first slice with a longer value on, the
+/// engine's chunks.
+struct Text {
+    name: PlSmallStr,
+    views: Vec<View>,
+    validity: Option<MutableBitmap>,
+    chunks: Option<Chunks>,
+}
+
+impl Text {
+    /// The views gathered so far as a column (no string buffers: every value is inline).
+    fn gathered(&mut self) -> PolarsResult<Column> {
+        let views = std::mem::take(&mut self.views);
+        let validity = self.validity.take().map(Into::into);
+        let array = Utf8ViewArray::try_new(
+            ArrowDataType::Utf8View,
+            views.into(),
+            Vec::new().into(),
+            validity,
+        )?;
+        Ok(StringChunked::with_chunk(self.name.clone(), array).into_column())
+    }
+}
+
+impl Sink for Text {
+    fn push(&mut self, c: &Column) -> PolarsResult<()> {
+        let ca = c.as_materialized_series().str()?;
+        let inline =
+            |a: &Utf8ViewArray| a.views().iter().all(|v| v.length <= View::MAX_INLINE_SIZE);
+        if self.chunks.is_none() && !ca.downcast_iter().all(inline) {
+            let first = self.gathered()?;
+            self.chunks = Some(Chunks { parts: vec![first] });
+        }
+        if let Some(chunks) = &mut self.chunks {
+            return chunks.push(c);
+        }
+        for chunk in ca.downcast_iter() {
+            let before = self.views.len();
+            self.views.extend_from_slice(chunk.views().as_slice());
+            extend_validity(&mut self.validity, before, chunk.validity(), chunk.len());
+        }
+        Ok(())
+    }
+
+    fn finish(mut self: Box<Self>) -> PolarsResult<Column> {
+        match self.chunks.take() {
+            Some(chunks) => Box::new(chunks).finish(),
+            None => self.gathered(),
+        }
     }
 }
 
@@ -157,8 +226,8 @@ mod tests {
 
     /// The frame the engine's own collect gives (row number first, from 1), with every numeric
     /// column in one chunk: a Parquet file of several row groups read in slices that do and do
-    /// not fall on their bounds, with missing values first met in a later slice, text, a
-    /// boolean, and a frame of one slice.
+    /// not fall on their bounds, with missing values first met in a later slice, short text,
+    /// text that outgrows its views in a later slice, a boolean, and a frame of one slice.
     #[test]
     fn same_frame_as_the_engine_collect_in_one_chunk() {
         let n: usize = 3_500;
@@ -169,7 +238,15 @@ mod tests {
         let z: Vec<Option<i32>> = (0..n as i32).map(|i| (i % 11 != 0).then_some(i)).collect();
         let t: Vec<String> = (0..n).map(|i| format!("firm {}", i / 9)).collect();
         let b: Vec<bool> = (0..n).map(|i| i % 3 == 0).collect();
-        let mut df = df!("x" => x, "y" => y, "z" => z, "t" => t, "b" => b).unwrap();
+        // Short text, then from row 2,500 on values too long for their views, and missing ones.
+        let l: Vec<Option<String>> = (0..n)
+            .map(|i| match i {
+                _ if i % 13 == 0 => None,
+                0..2_500 => Some(format!("s{i}")),
+                _ => Some(format!("a longer name, number {i}")),
+            })
+            .collect();
+        let mut df = df!("x" => x, "y" => y, "z" => z, "t" => t, "b" => b, "l" => l).unwrap();
         let dir =
             std::env::temp_dir().join(format!("panelready-contiguous-{}", std::process::id()));
         std::fs::create_dir_all(&dir).unwrap();
@@ -188,7 +265,7 @@ mod tests {
             assert!(got.equals_missing(&expected), "slices of {slice}");
             for c in got.columns() {
                 let s = c.as_materialized_series();
-                if s.dtype().is_primitive_numeric() {
+                if s.dtype().is_primitive_numeric() || s.name() == "t" {
                     assert_eq!(s.n_chunks(), 1, "{} in slices of {slice}", s.name());
                 }
             }
