@@ -75,8 +75,12 @@ pub(super) struct HashingFile {
 }
 
 impl HashingFile {
+    /// Create `name` in `dir`, for direct I/O unless `PANELREADY_NO_DIRECT_IO` is set (on a
+    /// slow disk or a network file system the page cache may well be the faster way: the
+    /// program then ends before the disk has the file).
     pub(super) fn create(dir: &Path, name: &str) -> Result<HashingFile> {
-        HashingFile::create_with(dir, name, true)
+        let direct = std::env::var_os("PANELREADY_NO_DIRECT_IO").is_none();
+        HashingFile::create_with(dir, name, direct)
     }
 
     /// [`HashingFile::create`], asking for direct I/O only when `direct`.

@@ -1,4 +1,4 @@
-//! Reading a large Parquet input into columns of one chunk each, a slice of rows at a time.
+//! Reading a Parquet input into columns of one chunk each, a slice of rows at a time.
 //!
 //! The engine reads a file into one chunk per row group; the kernels read a column in place
 //! only when it is one chunk, so every column was later copied whole into one buffer, while
@@ -17,9 +17,10 @@ use rayon::prelude::*;
 /// Rows read at a time: a row group of pyarrow's default size, four of the engine's.
 const SLICE: usize = 1 << 20;
 
-/// `lf` collected with each numeric column in one chunk, a slice of rows at a time, and the
-/// row number (from 1) in a first column `index`. The slice goes straight to the file's reader (a row number before it would make the
-/// reader count from the top for every slice).
+/// `lf` collected with each numeric column (and short text) in one chunk, a slice of rows at
+/// a time, and the row number (from 1) in a first column `index`. The slice goes straight to
+/// the file's reader; the row number is added to each slice after it is read (asked for
+/// before the slice, it made the reader count from the top for every slice).
 pub(super) fn collect(lf: LazyFrame, index: &str) -> PolarsResult<DataFrame> {
     collect_in_slices(lf, index, SLICE)
 }
