@@ -126,11 +126,7 @@ fn keep_in_place<T: PolarsNumericType>(
         let ca = ChunkedArray::<T>::with_chunk(name, chunk);
         return Ok(ca.filter(keep)?.rechunk().into_owned().into_column());
     };
-    let mut to = 0;
-    for &(start, end) in runs {
-        values.copy_within(start..end, to);
-        to += end - start;
-    }
+    move_up(values, runs);
     chunk.slice(0, height);
     let chunk = chunk.with_validity(validity);
     let mut ca = ChunkedArray::<T>::with_chunk(name, chunk);
@@ -159,15 +155,20 @@ fn keep_text_in_place(
         let ca = StringChunked::with_chunk(name, chunk);
         return Ok(ca.filter(keep)?.rechunk().into_owned().into_column());
     };
+    move_up(slots, runs);
+    let chunk = Utf8ViewArray::try_new(dtype, views.sliced(..height), buffers, validity)?;
+    let mut ca = StringChunked::with_chunk(name, chunk);
+    ca.set_sorted_flag(sorted);
+    Ok(ca.into_series().into_column())
+}
+
+/// The `runs` of kept rows of `slots` moved up to its start, in order.
+fn move_up<T: Copy>(slots: &mut [T], runs: &[(usize, usize)]) {
     let mut to = 0;
     for &(start, end) in runs {
         slots.copy_within(start..end, to);
         to += end - start;
     }
-    let chunk = Utf8ViewArray::try_new(dtype, views.sliced(..height), buffers, validity)?;
-    let mut ca = StringChunked::with_chunk(name, chunk);
-    ca.set_sorted_flag(sorted);
-    Ok(ca.into_series().into_column())
 }
 
 /// The validity bits of `ca`'s kept rows (none when it has no missing value), from the
