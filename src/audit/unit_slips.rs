@@ -49,14 +49,11 @@ pub(super) fn search(ctx: &Context) -> Result<Search> {
     let one = |v: &String| -> Result<Found> {
         let values = Values::of(ctx.df, v)?;
         let x = values.view();
-        // Per row, the slip magnitude (0: none); the same detector as `log_ratios` and
-        // `magnitude`, one row at a time, with no column-sized buffer of ratios.
-        let mut mag = vec![0i8; back.len()];
+        // The rows with a slip and its magnitude, in row order (few); the same detector as
+        // `log_ratios` and `magnitude`, one row at a time, with no column-sized buffer.
+        let mut hits: Vec<(usize, i8)> = Vec::new();
         let mut jumps = 0u64;
-        for r in 1..back.len() {
-            if !back[r] {
-                continue;
-            }
+        for (r, _) in back.iter().enumerate().skip(1).filter(|(_, back)| **back) {
             let (Some(a), Some(b)) = (x.get(r), x.get(r - 1)) else {
                 continue;
             };
@@ -69,18 +66,23 @@ pub(super) fn search(ctx: &Context) -> Result<Search> {
             }
             let ratio = q.log10();
             jumps += u64::from((ratio * std::f64::consts::LN_10).abs() > log_jump);
-            mag[r] = magnitude(ratio).map_or(0, |m| m as i8);
+            if let Some(m) = magnitude(ratio) {
+                hits.push((r, m as i8));
+            }
         }
         // A slip is listed once: the jump back of a listed slip is not another slip.
-        let slips = (0..mag.len())
-            .filter_map(|i| {
-                let m = mag[i];
-                if m == 0 {
-                    return None;
-                }
-                let listed = i == 0 || mag[i - 1] != -m;
-                let reverses = mag.get(i + 1) == Some(&-m);
-                listed.then_some((i, i32::from(m), reverses))
+        let at = |i: usize, r: usize| match hits.get(i) {
+            Some(&(row, m)) if row == r => m,
+            _ => 0,
+        };
+        let slips = hits
+            .iter()
+            .enumerate()
+            .filter_map(|(i, &(r, m))| {
+                let before = if i > 0 && r > 0 { at(i - 1, r - 1) } else { 0 };
+                let listed = r == 0 || before != -m;
+                let reverses = at(i + 1, r + 1) == -m;
+                listed.then_some((r, i32::from(m), reverses))
             })
             .collect();
         Ok((slips, jumps))
