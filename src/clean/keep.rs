@@ -1,14 +1,14 @@
 //! Keeping rows: the panel without the rows a step removed, each column in one chunk.
 //!
-//! A numeric column read from Parquet arrives in one chunk (`load::contiguous`), as does text
-//! whose values fit in their views; when nothing else holds such a column, its kept rows (for
-//! text, their views) are moved up within its own buffer, with no new buffer. A
+//! A numeric column read from Parquet arrives in one chunk (`load::contiguous`); when nothing
+//! else holds it, its kept rows are moved up within its own buffer, with no new buffer. A
 //! column in many chunks (a CSV read, a joined table) is copied once, run by run of kept rows,
 //! straight into one buffer (a filter would keep the chunks as they are, and joining them
-//! would copy the column a second time); every other column goes through the engine's filter.
+//! would copy the column a second time); every other column goes through the engine's filter
+//! (text too: moving its views in place would have the engine check every string again, which
+//! costs more than the copy of the views).
 
 use polars::prelude::*;
-use polars_arrow::array::{Array, Utf8ViewArray};
 use rayon::prelude::*;
 
 use crate::Result;
@@ -88,7 +88,6 @@ fn keep_column(
                 DataType::Int32 => keep_in_place::<Int32Type>(s, keep, runs, height),
                 DataType::UInt64 => keep_in_place::<UInt64Type>(s, keep, runs, height),
                 DataType::UInt32 => keep_in_place::<UInt32Type>(s, keep, runs, height),
-                DataType::String => keep_text_in_place(s, keep, runs, height),
                 _ => Ok(s.filter(keep)?.rechunk().into_column()),
             };
         }
@@ -130,34 +129,6 @@ fn keep_in_place<T: PolarsNumericType>(
     chunk.slice(0, height);
     let chunk = chunk.with_validity(validity);
     let mut ca = ChunkedArray::<T>::with_chunk(name, chunk);
-    ca.set_sorted_flag(sorted);
-    Ok(ca.into_series().into_column())
-}
-
-/// A text column in one chunk down to its kept rows: its views moved up run by run within
-/// their own buffer when nothing else holds it (the strings stay where they are), else through
-/// the engine's filter.
-fn keep_text_in_place(
-    s: Series,
-    keep: &BooleanChunked,
-    runs: &[(usize, usize)],
-    height: usize,
-) -> PolarsResult<Column> {
-    let name = s.name().clone();
-    let ca: StringChunked = s.take_inner();
-    let sorted = ca.is_sorted_flag();
-    let validity = validity_kept(&ca, keep)?;
-    let chunk = ca.downcast_into_iter().next().expect("one chunk");
-    let dtype = chunk.dtype().clone();
-    let (mut views, buffers, old_validity, _, _) = chunk.into_inner();
-    let Some(slots) = views.get_mut_slice() else {
-        let chunk = Utf8ViewArray::try_new(dtype, views, buffers, old_validity)?;
-        let ca = StringChunked::with_chunk(name, chunk);
-        return Ok(ca.filter(keep)?.rechunk().into_owned().into_column());
-    };
-    move_up(slots, runs);
-    let chunk = Utf8ViewArray::try_new(dtype, views.sliced(..height), buffers, validity)?;
-    let mut ca = StringChunked::with_chunk(name, chunk);
     ca.set_sorted_flag(sorted);
     Ok(ca.into_series().into_column())
 }
@@ -276,17 +247,11 @@ mod tests {
                 .cont_slice()
                 .unwrap()
                 .as_ptr();
-            let views = |df: &DataFrame| {
-                let t = df.column("t").unwrap().str().unwrap();
-                t.downcast_iter().next().unwrap().views().as_ptr()
-            };
-            let text_before = views(&own);
             let got = keep_rows(own, &keep).unwrap();
             assert!(got.equals_missing(&expected));
             if let Ok(values) = got.column("y").unwrap().i64().unwrap().cont_slice() {
                 assert_eq!(values.as_ptr(), before, "moved within its own buffer");
             }
-            assert_eq!(views(&got), text_before, "text moved within its own views");
             for df in [whole.clone(), chunked.clone()] {
                 let got = keep_rows(df, &keep).unwrap();
                 assert!(got.equals_missing(&expected));

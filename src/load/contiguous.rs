@@ -4,20 +4,19 @@
 //! only when it is one chunk, so every column was later copied whole into one buffer, while
 //! the chunks it came from were let go. Here each numeric column's buffer is made once, at
 //! its full length, and each slice of rows the engine reads is copied into it and let go
-//! before the next is read, so that the memory of one slice serves the next. Text whose values
-//! all fit in their 16-byte views (12 bytes or fewer: codes, short names) is gathered the same
-//! way, view by view; other text and other columns keep the engine's chunks and are joined at
-//! the end (for text that copies the views, not the strings).
+//! before the next is read, so that the memory of one slice serves the next. Text is gathered
+//! the same way, view by view (the strings' buffers are shared); other columns keep the
+//! engine's chunks and are joined at the end.
 
 use polars::prelude::*;
-use polars_arrow::array::{Array, Utf8ViewArray, View};
+use polars_arrow::array::MutableBinaryViewArray;
 use polars_arrow::bitmap::{Bitmap, MutableBitmap};
 use rayon::prelude::*;
 
 /// Rows read at a time: a row group of pyarrow's default size, four of the engine's.
 const SLICE: usize = 1 << 20;
 
-/// `lf` collected with each numeric column (and short text) in one chunk, a slice of rows at
+/// `lf` collected with each numeric and text column in one chunk, a slice of rows at
 /// a time, and the row number (from 1) in a first column `index`. The slice goes straight to
 /// the file's reader; the row number is added to each slice after it is read (asked for
 /// before the slice, it made the reader count from the top for every slice).
@@ -88,9 +87,7 @@ fn sink(c: &Column, height: usize) -> Box<dyn Sink> {
         DataType::UInt32 => numeric::<UInt32Type>(c, height),
         DataType::String => Box::new(Text {
             name: c.name().clone(),
-            views: Vec::with_capacity(height),
-            validity: None,
-            chunks: None,
+            array: MutableBinaryViewArray::with_capacity(height),
         }),
         _ => Box::new(Chunks { parts: Vec::new() }),
     }
@@ -147,56 +144,24 @@ fn extend_validity(
     }
 }
 
-/// A text column: while every value fits in its view, the views in one buffer of the full
-/// length (no string buffers at all); from the first slice with a longer value on, the
-/// engine's chunks.
+/// A text column: the views of each slice appended to one growing array of the full length
+/// (the strings' own buffers shared, not copied; no string checked again).
 struct Text {
     name: PlSmallStr,
-    views: Vec<View>,
-    validity: Option<MutableBitmap>,
-    chunks: Option<Chunks>,
-}
-
-impl Text {
-    /// The views gathered so far as a column (no string buffers: every value is inline).
-    fn gathered(&mut self) -> PolarsResult<Column> {
-        let views = std::mem::take(&mut self.views);
-        let validity = self.validity.take().map(Into::into);
-        let array = Utf8ViewArray::try_new(
-            ArrowDataType::Utf8View,
-            views.into(),
-            Vec::new().into(),
-            validity,
-        )?;
-        Ok(StringChunked::with_chunk(self.name.clone(), array).into_column())
-    }
+    array: MutableBinaryViewArray<str>,
 }
 
 impl Sink for Text {
     fn push(&mut self, c: &Column) -> PolarsResult<()> {
-        let ca = c.as_materialized_series().str()?;
-        let inline =
-            |a: &Utf8ViewArray| a.views().iter().all(|v| v.length <= View::MAX_INLINE_SIZE);
-        if self.chunks.is_none() && !ca.downcast_iter().all(inline) {
-            let first = self.gathered()?;
-            self.chunks = Some(Chunks { parts: vec![first] });
-        }
-        if let Some(chunks) = &mut self.chunks {
-            return chunks.push(c);
-        }
-        for chunk in ca.downcast_iter() {
-            let before = self.views.len();
-            self.views.extend_from_slice(chunk.views().as_slice());
-            extend_validity(&mut self.validity, before, chunk.validity(), chunk.len());
+        for chunk in c.as_materialized_series().str()?.downcast_iter() {
+            self.array.extend_from_array(chunk);
         }
         Ok(())
     }
 
-    fn finish(mut self: Box<Self>) -> PolarsResult<Column> {
-        match self.chunks.take() {
-            Some(chunks) => Box::new(chunks).finish(),
-            None => self.gathered(),
-        }
+    fn finish(self: Box<Self>) -> PolarsResult<Column> {
+        let Text { name, array } = *self;
+        Ok(StringChunked::with_chunk(name, array.freeze()).into_column())
     }
 }
 
@@ -266,7 +231,7 @@ mod tests {
             assert!(got.equals_missing(&expected), "slices of {slice}");
             for c in got.columns() {
                 let s = c.as_materialized_series();
-                if s.dtype().is_primitive_numeric() || s.name() == "t" {
+                if s.dtype().is_primitive_numeric() || s.dtype() == &DataType::String {
                     assert_eq!(s.n_chunks(), 1, "{} in slices of {slice}", s.name());
                 }
             }
