@@ -74,36 +74,37 @@ fn keep_column(
     runs: &[(usize, usize)],
     height: usize,
 ) -> PolarsResult<Column> {
-    // A numeric column in one chunk keeps its rows in its own buffer; any other column in
-    // one chunk, or not held as values (a constant), needs no joining: the engine's filter
-    // copies it once, or not at all.
-    let s = match c.as_series() {
-        Some(s) if s.n_chunks() > 1 => s,
-        Some(_) => {
-            let s = c.take_materialized_series();
-            return match s.dtype() {
-                DataType::Float64 => keep_in_place::<Float64Type>(s, keep, runs, height),
-                DataType::Float32 => keep_in_place::<Float32Type>(s, keep, runs, height),
-                DataType::Int64 => keep_in_place::<Int64Type>(s, keep, runs, height),
-                DataType::Int32 => keep_in_place::<Int32Type>(s, keep, runs, height),
-                DataType::UInt64 => keep_in_place::<UInt64Type>(s, keep, runs, height),
-                DataType::UInt32 => keep_in_place::<UInt32Type>(s, keep, runs, height),
-                _ => Ok(s.filter(keep)?.rechunk().into_column()),
-            };
-        }
-        None => return Ok(c.filter(keep)?.rechunk()),
-    };
-    let copied = match s.dtype() {
-        DataType::Float64 => keep_numeric(s.f64()?, keep, runs, height)?.into_series(),
-        DataType::Float32 => keep_numeric(s.f32()?, keep, runs, height)?.into_series(),
-        DataType::Int64 => keep_numeric(s.i64()?, keep, runs, height)?.into_series(),
-        DataType::Int32 => keep_numeric(s.i32()?, keep, runs, height)?.into_series(),
-        DataType::UInt64 => keep_numeric(s.u64()?, keep, runs, height)?.into_series(),
-        DataType::UInt32 => keep_numeric(s.u32()?, keep, runs, height)?.into_series(),
+    // A column not held as values (a constant) needs no joining: the engine's filter does
+    // not copy it.
+    if c.as_series().is_none() {
+        return Ok(c.filter(keep)?.rechunk());
+    }
+    let s = c.take_materialized_series();
+    match s.dtype() {
+        DataType::Float64 => keep_typed::<Float64Type>(s, keep, runs, height),
+        DataType::Float32 => keep_typed::<Float32Type>(s, keep, runs, height),
+        DataType::Int64 => keep_typed::<Int64Type>(s, keep, runs, height),
+        DataType::Int32 => keep_typed::<Int32Type>(s, keep, runs, height),
+        DataType::UInt64 => keep_typed::<UInt64Type>(s, keep, runs, height),
+        DataType::UInt32 => keep_typed::<UInt32Type>(s, keep, runs, height),
         // Text and the rest: the engine's filter, then its chunks joined.
-        _ => return Ok(c.filter(keep)?.rechunk()),
-    };
-    Ok(copied.into_column())
+        _ => Ok(s.filter(keep)?.rechunk().into_column()),
+    }
+}
+
+/// A numeric column's kept rows: in its own buffer when it is one chunk, else copied run by
+/// run across its chunks into one.
+fn keep_typed<T: PolarsNumericType>(
+    s: Series,
+    keep: &BooleanChunked,
+    runs: &[(usize, usize)],
+    height: usize,
+) -> PolarsResult<Column> {
+    if s.n_chunks() > 1 {
+        let copied = keep_numeric(s.unpack::<T>()?, keep, runs, height)?;
+        return Ok(copied.into_series().into_column());
+    }
+    keep_in_place::<T>(s, keep, runs, height)
 }
 
 /// A numeric column in one chunk down to its kept rows, moved up run by run within its own
