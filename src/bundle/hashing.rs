@@ -234,10 +234,11 @@ fn open(path: &Path, _direct: bool) -> std::io::Result<(fs::File, bool)> {
 mod tests {
     use super::*;
 
-    /// The file holds exactly the bytes written, and its record the SHA-256 (`sha2`, checked
-    /// against `sha256sum` and Python's hashlib in the bundle tests) and count of them, for
-    /// writes of every awkward size — a byte, one short of a block, a batch and one more, many
-    /// batches at once — with direct I/O asked for and not.
+    /// The file holds exactly the bytes written, and its record the SHA-256 and count of them,
+    /// for writes of every awkward size — a byte, one short of a block, a batch and one more,
+    /// many batches at once — with direct I/O asked for and not. The digest of a large file
+    /// against the same `sha2` hashing the bytes in one piece; the batching itself against the
+    /// published example of FIPS 180-2 (appendix B.1: SHA-256 of "abc").
     #[test]
     fn the_file_and_its_record_hold_exactly_what_was_written() {
         let dir = std::env::temp_dir().join(format!("panelready-hashing-{}", std::process::id()));
@@ -281,6 +282,16 @@ mod tests {
                 assert_eq!(record.sha256, crate::load::sha256_hex(&expected[..total]));
             }
         }
+        let mut f = HashingFile::create_with(&dir, "abc", true).unwrap();
+        for b in [b"a", b"b", b"c"] {
+            f.write_all(b).unwrap();
+        }
+        let record = f.finish("abc").unwrap();
+        assert_eq!(
+            record.sha256,
+            "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad"
+        );
+        assert_eq!(fs::read(dir.join("abc")).unwrap(), b"abc");
         fs::remove_dir_all(&dir).unwrap();
     }
 }
