@@ -95,7 +95,7 @@ fn at_or_after(a: (Option<&str>, Option<i64>), b: (Option<&str>, Option<i64>)) -
 }
 
 /// Distinct entities in `df`, whose rows are in key order: the runs of its entity column.
-pub(super) fn sorted_entities(df: &DataFrame, entity: &str) -> Result<u64> {
+pub(crate) fn sorted_entities(df: &DataFrame, entity: &str) -> Result<u64> {
     let ids = df.column(entity)?.str()?;
     let mut previous: Option<Option<&str>> = None;
     let mut n = 0u64;

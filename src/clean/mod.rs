@@ -6,6 +6,7 @@ pub mod balance;
 mod histogram;
 mod keep;
 mod keyscan;
+pub(crate) use keyscan::sorted_entities;
 pub mod repair;
 pub mod treat;
 

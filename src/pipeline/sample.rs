@@ -30,7 +30,14 @@ impl Sample<'_> {
 
     /// Record a step that left the panel as it is now.
     pub fn step(&mut self, name: &str) -> Result<()> {
-        let line = SampleStep::after(&self.steps, name, &self.panel, self.entity)?;
+        let rows = self.panel.height() as u64;
+        // A step that removed nothing left the same entities; otherwise they are the runs of
+        // the entity column, the panel being in key order (no hash table of the entities).
+        let entities = match self.steps.last() {
+            Some(last) if last.rows_after == rows => last.entities_after,
+            _ => clean::sorted_entities(&self.panel, self.entity)?,
+        };
+        let line = SampleStep::counted(&self.steps, name, rows, entities);
         self.steps.push(line);
         Ok(())
     }

@@ -308,27 +308,4 @@ impl SampleStep {
             entities_after: entities,
         }
     }
-
-    /// The line for a step that left `df`.
-    pub fn after(
-        steps: &[SampleStep],
-        step: &str,
-        df: &DataFrame,
-        entity: &str,
-    ) -> Result<SampleStep> {
-        let before = steps.last().map_or(0, |s| s.rows_after);
-        let after = df.height() as u64;
-        // A step that removed nothing left the same entities: no need to count them again.
-        let entities_after = match steps.last() {
-            Some(last) if last.rows_after == after => last.entities_after,
-            _ => distinct(df, entity)?,
-        };
-        Ok(SampleStep {
-            step: step.into(),
-            rows_before: before,
-            removed: before - after,
-            rows_after: after,
-            entities_after,
-        })
-    }
 }
