@@ -9,6 +9,7 @@ mod keyscan;
 pub(crate) use keyscan::sorted_entities;
 pub mod repair;
 pub mod treat;
+mod winsorize;
 
 use polars::prelude::*;
 

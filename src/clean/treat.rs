@@ -7,6 +7,7 @@ use polars::prelude::*;
 use rayon::prelude::*;
 
 use super::histogram::histogram;
+use super::winsorize::{winsorize, Cutoffs};
 use super::{drop_where, Keys};
 use crate::core::{grouped_quantiles, quantiles, PanelCore, Values, View, BATCH};
 use crate::report::CutoffGroups;
@@ -383,15 +384,15 @@ impl Treatment {
         for r in 0..rows {
             sizes[group(r)] += 1;
         }
-        // Each variable on its own (its cutoffs, its new column, its counts), a few at a time
-        // in parallel; their columns replace the old ones in the variables' order.
         type Treated = (
-            Column,
+            Option<Column>,
             (u64, u64),
             Vec<Option<f64>>,
             Vec<Option<f64>>,
             Histogram,
         );
+        // A variable's cutoffs, its chart and, when trimming, its flags and counts (reading
+        // the panel; winsorizing changes the column afterwards, below).
         let one = |i: usize, v: &String, current: &DataFrame| -> Result<Treated> {
             let values = Values::of(current, v)?;
             let x = values.view();
@@ -417,70 +418,30 @@ impl Treatment {
                     }
                 };
             let (mut below, mut above) = (0u64, 0u64);
-            let beyond = |r: usize, value: f64| -> (bool, bool) {
-                let t = group(r);
-                (
-                    lo[t].is_some_and(|l| value < l),
-                    hi[t].is_some_and(|h| value > h),
-                )
-            };
-            let column = match self.method {
-                Method::Winsorize if x.parts().1.is_none() => {
-                    // Every row has a value: the new values straight into one buffer.
-                    let (values, _) = x.parts();
-                    let new: Vec<f64> = values
-                        .iter()
-                        .enumerate()
-                        .map(|(r, value)| match beyond(r, *value) {
-                            (true, _) => {
-                                below += 1;
-                                lo[group(r)].unwrap_or(*value)
-                            }
-                            (_, true) => {
-                                above += 1;
-                                hi[group(r)].unwrap_or(*value)
-                            }
-                            _ => *value,
-                        })
-                        .collect();
-                    Float64Chunked::from_vec(v.as_str().into(), new).into_column()
-                }
-                Method::Winsorize => {
-                    let new: Float64Chunked = (0..rows)
-                        .map(|r| {
-                            x.get(r).map(|value| match beyond(r, value) {
-                                (true, _) => {
-                                    below += 1;
-                                    lo[group(r)].unwrap_or(value)
-                                }
-                                (_, true) => {
-                                    above += 1;
-                                    hi[group(r)].unwrap_or(value)
-                                }
-                                _ => value,
-                            })
-                        })
-                        .collect();
-                    new.into_column().with_name(v.as_str().into())
-                }
+            let flags = match self.method {
+                Method::Winsorize => None,
                 Method::Trim => {
                     let flags: BooleanChunked = (0..rows)
                         .map(|r| {
                             Some(x.get(r).is_some_and(|value| {
-                                let (b, a) = beyond(r, value);
+                                let t = group(r);
+                                let b = lo[t].is_some_and(|l| value < l);
+                                let a = hi[t].is_some_and(|h| value > h);
                                 below += u64::from(b);
                                 above += u64::from(a);
                                 b || a
                             }))
                         })
                         .collect();
-                    flags.into_column().with_name(format!("__beyond{i}").into())
+                    Some(flags.into_column().with_name(format!("__beyond{i}").into()))
                 }
             };
-            Ok((column, (below, above), lo, hi, chart))
+            Ok((flags, (below, above), lo, hi, chart))
         };
-        // A few variables at a time in parallel; each new column replaces its old one as soon
-        // as the batch is done, and the old one is let go.
+        // A few variables at a time in parallel. Winsorizing takes each column out of the
+        // panel once its cutoffs are known and sets its values within its own buffer
+        // (`winsorize`), then puts it back in its place; trimming adds its flags.
+        let order = current.get_column_names_owned();
         let indexed: Vec<(usize, &String)> = self.variables.iter().enumerate().collect();
         let mut histograms = Vec::new();
         for batch in indexed.chunks(BATCH) {
@@ -488,13 +449,44 @@ impl Treatment {
                 .par_iter()
                 .map(|(i, v)| one(*i, v, &current))
                 .collect::<Result<Vec<Treated>>>()?;
+            let taken = match self.method {
+                Method::Winsorize => batch
+                    .iter()
+                    .map(|(_, v)| Ok(Some(current.drop_in_place(v)?)))
+                    .collect::<Result<Vec<_>>>()?,
+                Method::Trim => vec![None; batch.len()],
+            };
+            let done = done
+                .into_par_iter()
+                .zip(taken)
+                .map(|((flags, count, lo, hi, chart), column)| {
+                    let (column, count) = match column {
+                        Some(column) => {
+                            let cut = Cutoffs {
+                                group,
+                                lo: &lo,
+                                hi: &hi,
+                            };
+                            let (column, count) = winsorize(column, &cut)?;
+                            (Some(column), count)
+                        }
+                        None => (flags, count),
+                    };
+                    Ok((column, count, lo, hi, chart))
+                })
+                .collect::<Result<Vec<Treated>>>()?;
             for ((i, _), (column, count, lo, hi, chart)) in batch.iter().zip(done) {
-                current.with_column(column)?;
+                if let Some(column) = column {
+                    current.with_column(column)?;
+                }
                 counts.push(count);
                 table.push(Column::new(format!("__lo{i}").into(), lo));
                 table.push(Column::new(format!("__hi{i}").into(), hi));
                 histograms.push(chart);
             }
+        }
+        if self.method == Method::Winsorize {
+            current = current.select(order)?;
         }
         let cutoffs = DataFrame::new(nt, table)?;
         let (out, removed) = self.finish(current, k)?;

@@ -1,0 +1,207 @@
+//! Winsorizing one column against per-group cutoffs: within the column's own buffer when it
+//! is one chunk of floats that nothing else holds (no new buffer, so no fresh memory for the
+//! system to hand over), else into a new column.
+
+use polars::prelude::*;
+
+use crate::core::Values;
+use crate::Result;
+
+/// Per-group cutoffs: row `r` is in group `group(r)`, whose lower and upper cutoffs are
+/// `lo[group(r)]` and `hi[group(r)]` (None: no cutoff on that side).
+pub(super) struct Cutoffs<'a> {
+    pub group: &'a (dyn Fn(usize) -> usize + Sync),
+    pub lo: &'a [Option<f64>],
+    pub hi: &'a [Option<f64>],
+}
+
+impl Cutoffs<'_> {
+    /// Row `r`'s `value` winsorized, and whether it was below / above its group's cutoffs
+    /// (NaN is neither).
+    fn clip(&self, r: usize, value: f64) -> (f64, bool, bool) {
+        let t = (self.group)(r);
+        if let Some(l) = self.lo[t].filter(|l| value < *l) {
+            return (l, true, false);
+        }
+        if let Some(h) = self.hi[t].filter(|h| value > *h) {
+            return (h, false, true);
+        }
+        (value, false, false)
+    }
+}
+
+/// `column` winsorized (as floats, under its name; missing values stay missing), and how many
+/// values were raised to the lower cutoff and lowered to the upper one.
+pub(super) fn winsorize(column: Column, cut: &Cutoffs) -> Result<(Column, (u64, u64))> {
+    match in_place(column, cut) {
+        (column, Some(counts)) => Ok((column, counts)),
+        (column, None) => copied(&column, cut),
+    }
+}
+
+/// Within the column's own buffer, with the counts; the column back, unchanged and without
+/// counts, when it is not one chunk of floats that nothing else holds. The slots of missing
+/// values are left as they are (no pass reads them, and the Parquet writer skips them).
+fn in_place(column: Column, cut: &Cutoffs) -> (Column, Option<(u64, u64)>) {
+    if column.dtype() != &DataType::Float64
+        || column.as_series().is_none()
+        || column.n_chunks() != 1
+    {
+        return (column, None);
+    }
+    let name = column.name().clone();
+    let ca: Float64Chunked = column.take_materialized_series().take_inner();
+    let mut chunk = ca.downcast_into_iter().next().expect("one chunk");
+    let validity = chunk.validity().cloned();
+    let Some(values) = chunk.get_mut_values() else {
+        return (Float64Chunked::with_chunk(name, chunk).into_column(), None);
+    };
+    let mut counts = (0u64, 0u64);
+    let mut set = |r: usize, v: &mut f64| {
+        let (new, below, above) = cut.clip(r, *v);
+        *v = new;
+        counts.0 += u64::from(below);
+        counts.1 += u64::from(above);
+    };
+    match &validity {
+        None => values.iter_mut().enumerate().for_each(|(r, v)| set(r, v)),
+        Some(bits) => values
+            .iter_mut()
+            .zip(bits.iter())
+            .enumerate()
+            .filter(|(_, (_, present))| *present)
+            .for_each(|(r, (v, _))| set(r, v)),
+    }
+    (
+        Float64Chunked::with_chunk(name, chunk).into_column(),
+        Some(counts),
+    )
+}
+
+/// Into a new column of floats.
+fn copied(column: &Column, cut: &Cutoffs) -> Result<(Column, (u64, u64))> {
+    let name = column.name().clone();
+    let floats = column.cast(&DataType::Float64)?;
+    let values = Values::new(floats.f64()?);
+    let x = values.view();
+    let mut counts = (0u64, 0u64);
+    let mut clip = |r: usize, value: f64| {
+        let (new, below, above) = cut.clip(r, value);
+        counts.0 += u64::from(below);
+        counts.1 += u64::from(above);
+        new
+    };
+    let column = match x.parts() {
+        // Every row has a value: the new values straight into one buffer.
+        (values, None) => {
+            let new: Vec<f64> = values
+                .iter()
+                .enumerate()
+                .map(|(r, value)| clip(r, *value))
+                .collect();
+            Float64Chunked::from_vec(name, new).into_column()
+        }
+        _ => {
+            let new: Float64Chunked = (0..column.len())
+                .map(|r| x.get(r).map(|value| clip(r, value)))
+                .collect();
+            new.into_column().with_name(name)
+        }
+    };
+    Ok((column, counts))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// In place and copied give the same values and counts as the definition applied value by
+    /// value (a value below its group's lower cutoff becomes that cutoff, above the upper the
+    /// upper; missing values and NaN stay), and in place keeps the column's own buffer.
+    #[test]
+    fn in_place_and_copied_agree_with_the_definition() {
+        let n = 1_000;
+        let x: Vec<Option<f64>> = (0..n)
+            .map(|i| match i % 11 {
+                0 => None,
+                5 => Some(f64::NAN),
+                _ => Some(((i * 37) % 101) as f64 - 50.0),
+            })
+            .collect();
+        let group = |r: usize| r % 3;
+        let lo = [Some(-40.0), None, Some(-10.0)];
+        let hi = [Some(40.0), Some(0.0), None];
+        let cut = Cutoffs {
+            group: &group,
+            lo: &lo,
+            hi: &hi,
+        };
+        let mut expected = Vec::new();
+        let (mut below, mut above) = (0, 0);
+        for (r, v) in x.iter().enumerate() {
+            expected.push(v.map(|v| {
+                let t = r % 3;
+                match (lo[t], hi[t]) {
+                    (Some(l), _) if v < l => {
+                        below += 1;
+                        l
+                    }
+                    (_, Some(h)) if v > h => {
+                        above += 1;
+                        h
+                    }
+                    _ => v,
+                }
+            }));
+        }
+        assert!(below > 0 && above > 0);
+        let same = |got: &Column| {
+            let got: Vec<Option<f64>> = got.f64().unwrap().iter().collect();
+            for (g, e) in got.iter().zip(&expected) {
+                match (g, e) {
+                    (Some(g), Some(e)) => assert!(g == e || (g.is_nan() && e.is_nan())),
+                    _ => assert_eq!(g.is_none(), e.is_none()),
+                }
+            }
+        };
+        // Nothing else holds it: its own buffer.
+        let own = Column::new("x".into(), x.clone());
+        let before = own
+            .f64()
+            .unwrap()
+            .downcast_iter()
+            .next()
+            .unwrap()
+            .values()
+            .as_ptr();
+        let (got, counts) = winsorize(own, &cut).unwrap();
+        same(&got);
+        assert_eq!(counts, (below, above));
+        let after = got
+            .f64()
+            .unwrap()
+            .downcast_iter()
+            .next()
+            .unwrap()
+            .values()
+            .as_ptr();
+        assert_eq!(before, after, "winsorized within its own buffer");
+        // Held elsewhere too: copied, the other holder unchanged.
+        let shared = Column::new("x".into(), x.clone());
+        let other = shared.clone();
+        let (got, counts) = winsorize(shared, &cut).unwrap();
+        same(&got);
+        assert_eq!(counts, (below, above));
+        let untouched: Vec<Option<f64>> = other.f64().unwrap().iter().collect();
+        assert_eq!(
+            format!("{untouched:?}"),
+            format!("{x:?}"),
+            "the other holder keeps its values"
+        );
+        // Integers: copied into floats.
+        let ints = Column::new("k".into(), (0..n as i64).collect::<Vec<_>>());
+        let (got, _) = winsorize(ints, &cut).unwrap();
+        assert_eq!(got.dtype(), &DataType::Float64);
+        assert_eq!(got.name().as_str(), "k");
+    }
+}
