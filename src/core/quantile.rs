@@ -6,6 +6,9 @@
 
 use super::values::View;
 
+mod tally;
+use tally::Tally;
+
 /// The `p` quantile of `v` by linear interpolation between order statistics (Hyndman & Fan
 /// type 7, numpy's default): position (n − 1) p in the sorted values. Reorders `v`; NaN sorts
 /// above every number, as the engine sorts it. None when `v` is empty.
@@ -334,66 +337,6 @@ fn brackets(ks: &[usize], n: usize, sample: &[i64]) -> Vec<(i64, i64)> {
         }
     }
     merged
-}
-
-/// One pass's tally against the brackets: `gap[j]` counts the values between bracket j - 1
-/// and bracket j, `kept[j]` holds those inside bracket j.
-struct Tally {
-    merged: Vec<(i64, i64)>,
-    gap: Vec<usize>,
-    kept: Vec<Vec<f64>>,
-}
-
-impl Tally {
-    fn new(merged: Vec<(i64, i64)>) -> Tally {
-        Tally {
-            gap: vec![0; merged.len()],
-            kept: vec![Vec::new(); merged.len()],
-            merged,
-        }
-    }
-
-    /// Count or keep `v`.
-    fn add(&mut self, v: f64) {
-        let k = key(v);
-        for (j, (lo, hi)) in self.merged.iter().enumerate() {
-            if k < *lo {
-                self.gap[j] += 1;
-                break;
-            }
-            if k <= *hi {
-                self.kept[j].push(v);
-                break;
-            }
-        }
-    }
-
-    /// The `k`-th smallest value for each of the sorted, distinct `ks`, selected among the
-    /// kept ones; None when one fell outside every bracket.
-    fn select(mut self, ks: &[usize]) -> Option<Vec<f64>> {
-        // The values below bracket j: the gaps up to it and the brackets before it.
-        let mut below = Vec::with_capacity(self.merged.len());
-        let mut before = 0usize;
-        for (gap, kept) in self.gap.iter().zip(&self.kept) {
-            below.push(before + gap);
-            before += gap + kept.len();
-        }
-        let mut out = Vec::with_capacity(ks.len());
-        for (j, bucket) in self.kept.iter_mut().enumerate() {
-            let inside: Vec<usize> = ks
-                .iter()
-                .filter(|k| **k >= below[j] && **k < below[j] + bucket.len())
-                .map(|k| k - below[j])
-                .collect();
-            select_each(bucket, &inside);
-            out.extend(inside.iter().map(|i| (below[j] + i, bucket[*i])));
-        }
-        if out.len() < ks.len() {
-            return None;
-        }
-        out.sort_unstable_by_key(|(k, _)| *k);
-        Some(out.into_iter().map(|(_, v)| v).collect())
-    }
 }
 
 #[cfg(test)]

@@ -29,5 +29,9 @@ pub(super) fn derive(
             Default::default(),
         );
     }
-    Ok((panel.collect()?, derived))
+    // Each column in one chunk (a lag can come out in several): the checks read a column in
+    // place only when it is one chunk, and would each copy it otherwise.
+    let mut panel = panel.collect()?;
+    panel.rechunk_mut_par();
+    Ok((panel, derived))
 }
