@@ -550,6 +550,10 @@ mod tests {
         let c = core(&["A", "A", "A", "B", "B", "D"], &[1, 2, 2, 1, 2, 1]);
         assert_eq!(c.two_way_singletons(), 1);
         assert_eq!(c.two_way_kept(), [true, true, true, true, true, false]);
+        // Every row its own key: the 2 x 2 block of A and B stays, C goes.
+        let c = core(&["A", "A", "B", "B", "C"], &[1, 2, 1, 2, 1]);
+        assert_eq!(c.two_way_singletons(), 1);
+        assert_eq!(c.two_way_kept(), [true, true, true, true, false]);
     }
 
     #[test]

@@ -29,35 +29,66 @@ impl PanelCore {
 
     /// For each row, whether its key survives that iterated dropping.
     pub fn two_way_kept(&self) -> Vec<bool> {
-        let (key_of_row, alive) = self.peel();
-        key_of_row.iter().map(|k| alive[*k as usize]).collect()
+        match self.peel() {
+            // Every row its own key.
+            (None, alive) => alive,
+            (Some(starts), alive) => {
+                let mut k = 0;
+                (0..self.rows())
+                    .map(|r| {
+                        if starts.get(k + 1).is_some_and(|s| *s as usize == r) {
+                            k += 1;
+                        }
+                        alive[k]
+                    })
+                    .collect()
+            }
+        }
     }
 
-    /// The distinct key of each row and whether each key survives the peeling.
-    fn peel(&self) -> (Vec<u32>, Vec<bool>) {
-        // Distinct keys: copies of a key sit next to each other in the sorted panel.
-        let mut keys: Vec<(u32, u32)> = Vec::with_capacity(self.rows());
-        let mut key_of_row = Vec::with_capacity(self.rows());
-        for (e, t) in self.entity.iter().zip(&self.period) {
-            if keys.last() != Some(&(*e, *t)) {
-                keys.push((*e, *t));
-            }
-            key_of_row.push((keys.len() - 1) as u32);
-        }
+    /// The distinct keys and whether each survives the peeling. Copies of a key sit next to
+    /// each other in the sorted panel: the keys are the rows where each starts, None when
+    /// every row is its own key (the usual case, which needs no list).
+    fn peel(&self) -> (Option<Vec<u32>>, Vec<bool>) {
+        let rows = self.rows();
+        let same = |r: usize| {
+            r > 0 && self.entity[r] == self.entity[r - 1] && self.period[r] == self.period[r - 1]
+        };
+        let starts: Option<Vec<u32>> = (1..rows)
+            .any(same)
+            .then(|| (0..rows).filter(|r| !same(*r)).map(|r| r as u32).collect());
+        let keys = starts.as_ref().map_or(rows, Vec::len);
+        let row = |k: usize| starts.as_ref().map_or(k, |s| s[k] as usize);
+        let key = |k: usize| {
+            let r = row(k);
+            (self.entity[r] as usize, self.period[r] as usize)
+        };
         let (ne, nt) = (self.entities(), self.periods.len());
         let mut e_keys = vec![0u32; ne];
         let mut t_keys = vec![0u32; nt];
-        let mut e_start = vec![0usize; ne + 1];
-        let mut by_period: Vec<Vec<u32>> = vec![Vec::new(); nt];
-        for (k, (e, t)) in keys.iter().enumerate() {
-            e_keys[*e as usize] += 1;
-            t_keys[*t as usize] += 1;
-            by_period[*t as usize].push(k as u32);
+        for k in 0..keys {
+            let (e, t) = key(k);
+            e_keys[e] += 1;
+            t_keys[t] += 1;
         }
-        for e in 0..ne {
-            e_start[e + 1] = e_start[e] + e_keys[e] as usize;
+        // An entity's keys are consecutive; each period's keys in one buffer, in key order
+        // (a counting sort by period).
+        let offsets = |counts: &[u32]| {
+            let mut at = vec![0usize; counts.len() + 1];
+            for (i, n) in counts.iter().enumerate() {
+                at[i + 1] = at[i] + *n as usize;
+            }
+            at
+        };
+        let (e_start, t_start) = (offsets(&e_keys), offsets(&t_keys));
+        let mut by_period = vec![0u32; keys];
+        let mut next = t_start.clone();
+        for k in 0..keys {
+            let t = key(k).1;
+            by_period[next[t]] = k as u32;
+            next[t] += 1;
         }
-        let mut alive = vec![true; keys.len()];
+        let mut alive = vec![true; keys];
         let mut stack: Vec<(bool, u32)> = (0..ne)
             .filter(|e| e_keys[*e] == 1)
             .map(|e| (true, e as u32))
@@ -78,11 +109,14 @@ impl PanelCore {
                 if t_keys[i] != 1 {
                     continue;
                 }
-                by_period[i].iter().map(|k| *k as usize).find(|k| alive[*k])
+                by_period[t_start[i]..t_start[i + 1]]
+                    .iter()
+                    .map(|k| *k as usize)
+                    .find(|k| alive[*k])
             };
             let Some(k) = k else { continue };
             alive[k] = false;
-            let (e, t) = (keys[k].0 as usize, keys[k].1 as usize);
+            let (e, t) = key(k);
             e_keys[e] -= 1;
             t_keys[t] -= 1;
             if e_keys[e] == 1 {
@@ -92,6 +126,6 @@ impl PanelCore {
                 stack.push((false, t as u32));
             }
         }
-        (key_of_row, alive)
+        (starts, alive)
     }
 }
