@@ -16,6 +16,7 @@ mod variation;
 pub mod verdict;
 
 use polars::prelude::*;
+use polars_arrow::bitmap::MutableBitmap;
 
 use crate::core::PanelCore;
 use crate::report::{Finding, Findings, Report};
@@ -242,11 +243,12 @@ fn key_frames(
 ) -> Result<(DataFrame, DataFrame)> {
     use names::*;
     let ne = core.entities();
-    let mut first_rows: Vec<IdxSize> = Vec::with_capacity(core.rows());
+    // The first row of each key, listed only once a key repeats (until then, every row).
+    let mut first_rows: Option<Vec<IdxSize>> = None;
     // The step from the entity's previous period (none on its first row), as values and
-    // presence flags: no option per row.
+    // presence bits: no option per row.
     let mut step: Vec<i64> = Vec::with_capacity(core.rows());
-    let mut has_step: Vec<bool> = Vec::with_capacity(core.rows());
+    let mut has_step = MutableBitmap::with_capacity(core.rows());
     let (mut n, mut first, mut last) = (vec![0i64; ne], vec![0i64; ne], vec![0i64; ne]);
     let (mut spells, mut longest) = (vec![1i64; ne], vec![0i64; ne]);
     for (i, rows) in core.starts.windows(2).enumerate() {
@@ -254,10 +256,13 @@ fn key_frames(
         for r in rows[0]..rows[1] {
             let t = core.periods[core.period[r] as usize];
             if previous == Some(t) {
+                first_rows.get_or_insert_with(|| (0..r as IdxSize).collect());
                 continue;
             }
             let gap = previous.map(|p| t - p);
-            first_rows.push(r as IdxSize);
+            if let Some(first_rows) = &mut first_rows {
+                first_rows.push(r as IdxSize);
+            }
             step.push(gap.unwrap_or(0));
             has_step.push(gap.is_some());
             if let Some(g) = gap {
@@ -272,13 +277,11 @@ fn key_frames(
         }
     }
     let key_columns = df.select([entity, period])?;
-    let mut keys = if first_rows.len() == df.height() {
-        key_columns
-    } else {
-        key_columns.take(&IdxCa::from_vec("rows".into(), first_rows))?
+    let mut keys = match first_rows {
+        None => key_columns,
+        Some(first_rows) => key_columns.take(&IdxCa::from_vec("rows".into(), first_rows))?,
     };
-    let has_step = BooleanChunked::from_slice(STEP.into(), &has_step);
-    let validity = has_step.downcast_iter().next().map(|b| b.values().clone());
+    let validity = Some(has_step.into());
     keys.with_column(Int64Chunked::from_vec_validity(STEP.into(), step, validity).into_column())?;
     let starts: Vec<IdxSize> = core.starts[..ne].iter().map(|r| *r as IdxSize).collect();
     let ids = df
