@@ -421,12 +421,15 @@ impl Treatment {
             let flags = match self.method {
                 Method::Winsorize => None,
                 Method::Trim => {
+                    let cut = Cutoffs {
+                        group,
+                        lo: &lo,
+                        hi: &hi,
+                    };
                     let flags: BooleanChunked = (0..rows)
                         .map(|r| {
                             Some(x.get(r).is_some_and(|value| {
-                                let t = group(r);
-                                let b = lo[t].is_some_and(|l| value < l);
-                                let a = hi[t].is_some_and(|h| value > h);
+                                let (b, a) = cut.beyond(r, value);
                                 below += u64::from(b);
                                 above += u64::from(a);
                                 b || a

@@ -16,17 +16,23 @@ pub(super) struct Cutoffs<'a> {
 }
 
 impl Cutoffs<'_> {
-    /// Row `r`'s `value` winsorized, and whether it was below / above its group's cutoffs
-    /// (NaN is neither).
+    /// Whether row `r`'s `value` is below / above its group's cutoffs (NaN is neither).
+    pub(super) fn beyond(&self, r: usize, value: f64) -> (bool, bool) {
+        let t = (self.group)(r);
+        (
+            self.lo[t].is_some_and(|l| value < l),
+            self.hi[t].is_some_and(|h| value > h),
+        )
+    }
+
+    /// Row `r`'s `value` winsorized, and whether it was below / above its group's cutoffs.
     fn clip(&self, r: usize, value: f64) -> (f64, bool, bool) {
         let t = (self.group)(r);
-        if let Some(l) = self.lo[t].filter(|l| value < *l) {
-            return (l, true, false);
+        match self.beyond(r, value) {
+            (true, _) => (self.lo[t].unwrap_or(value), true, false),
+            (_, true) => (self.hi[t].unwrap_or(value), false, true),
+            _ => (value, false, false),
         }
-        if let Some(h) = self.hi[t].filter(|h| value > *h) {
-            return (h, false, true);
-        }
-        (value, false, false)
     }
 }
 
