@@ -172,26 +172,12 @@ mod tests {
         };
         // Nothing else holds it: its own buffer.
         let own = Column::new("x".into(), x.clone());
-        let before = own
-            .f64()
-            .unwrap()
-            .downcast_iter()
-            .next()
-            .unwrap()
-            .values()
-            .as_ptr();
+        let buffer = |c: &Column| c.f64().unwrap().downcast_as_array().values().as_ptr();
+        let before = buffer(&own);
         let (got, counts) = winsorize(own, &cut).unwrap();
         same(&got);
         assert_eq!(counts, (below, above));
-        let after = got
-            .f64()
-            .unwrap()
-            .downcast_iter()
-            .next()
-            .unwrap()
-            .values()
-            .as_ptr();
-        assert_eq!(before, after, "winsorized within its own buffer");
+        assert_eq!(before, buffer(&got), "winsorized within its own buffer");
         // Held elsewhere too: copied, the other holder unchanged.
         let shared = Column::new("x".into(), x.clone());
         let other = shared.clone();
