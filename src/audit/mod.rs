@@ -16,7 +16,6 @@ mod variation;
 pub mod verdict;
 
 use polars::prelude::*;
-use polars_arrow::bitmap::MutableBitmap;
 
 use crate::core::PanelCore;
 use crate::report::{Finding, Findings, Report};
@@ -88,8 +87,6 @@ pub struct Options {
 
 /// Column names in `Context::keys` and `Context::entities`.
 pub mod names {
-    /// Periods since the entity's previous observation (null at its first).
-    pub const STEP: &str = "__step";
     /// Observations of the entity.
     pub const N: &str = "__n";
     /// The entity's first period.
@@ -127,7 +124,7 @@ pub struct Context<'a> {
     pub model: Option<model::ModelSpec>,
     /// Periods back and ahead each derived variable reads.
     pub reach: std::collections::BTreeMap<String, (i64, i64)>,
-    /// Distinct (entity, period) keys sorted by entity and period, with `__step`.
+    /// Distinct (entity, period) keys sorted by entity and period.
     pub keys: DataFrame,
     /// One row per entity: `__n`, `__first`, `__last`, `__gaps`, `__spells`, `__longest`.
     pub entities: DataFrame,
@@ -232,7 +229,7 @@ fn group_codes(df: &DataFrame, columns: &[String]) -> Result<Vec<u32>> {
         .collect())
 }
 
-/// The distinct (entity, period) keys with `__step`, and one row per entity with `__n`,
+/// The distinct (entity, period) keys, and one row per entity with `__n`,
 /// `__first`, `__last`, `__spells`, `__longest` and `__gaps` (see [`names`]), from the panel
 /// core of `df`, which is sorted by entity and period: copies of a key sit together.
 fn key_frames(
@@ -245,10 +242,6 @@ fn key_frames(
     let ne = core.entities();
     // The first row of each key, listed only once a key repeats (until then, every row).
     let mut first_rows: Option<Vec<IdxSize>> = None;
-    // The step from the entity's previous period (none on its first row), as values and
-    // presence bits: no option per row.
-    let mut step: Vec<i64> = Vec::with_capacity(core.rows());
-    let mut has_step = MutableBitmap::with_capacity(core.rows());
     let (mut n, mut first, mut last) = (vec![0i64; ne], vec![0i64; ne], vec![0i64; ne]);
     let (mut spells, mut longest) = (vec![1i64; ne], vec![0i64; ne]);
     for (i, rows) in core.starts.windows(2).enumerate() {
@@ -263,8 +256,6 @@ fn key_frames(
             if let Some(first_rows) = &mut first_rows {
                 first_rows.push(r as IdxSize);
             }
-            step.push(gap.unwrap_or(0));
-            has_step.push(gap.is_some());
             if let Some(g) = gap {
                 spells[i] += i64::from(g > 1);
                 longest[i] = longest[i].max(g - 1);
@@ -277,12 +268,10 @@ fn key_frames(
         }
     }
     let key_columns = df.select([entity, period])?;
-    let mut keys = match first_rows {
+    let keys = match first_rows {
         None => key_columns,
         Some(first_rows) => key_columns.take(&IdxCa::from_vec("rows".into(), first_rows))?,
     };
-    let validity = Some(has_step.into());
-    keys.with_column(Int64Chunked::from_vec_validity(STEP.into(), step, validity).into_column())?;
     let starts: Vec<IdxSize> = core.starts[..ne].iter().map(|r| *r as IdxSize).collect();
     let ids = df
         .select([entity])?

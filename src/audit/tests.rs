@@ -147,15 +147,15 @@ fn key_frames_count_each_key_once() {
     )
     .unwrap();
     let ctx = Context::new(&df, "f", "y", Options::default()).unwrap();
-    let steps: Vec<Option<i64>> = ctx
+    let years: Vec<Option<i64>> = ctx
         .keys
-        .column(names::STEP)
+        .column("y")
         .unwrap()
         .i64()
         .unwrap()
         .iter()
         .collect();
-    assert_eq!(steps, [None, Some(1), Some(3), None]);
+    assert_eq!(years, [Some(2001), Some(2002), Some(2005), Some(2003)]);
     let e = &ctx.entities;
     let col = |n: &str| -> Vec<i64> {
         e.column(n)
