@@ -13,11 +13,11 @@ use rayon::prelude::*;
 
 use crate::Result;
 
-/// The rows of `df` where `keep` is true, each column in one chunk. The numeric columns a
-/// few at a time (in parallel), each let go once kept: the panel is never held twice (a
-/// frame-wide filter holds old and new whole). The columns that are copied (text and the
-/// other types) one after another, so that the buffer one lets go is there for the next to
-/// reuse instead of each taking fresh memory from the system.
+/// The rows of `df` where `keep` is true, each column in one chunk. The numeric columns (most
+/// kept within their own buffers) a few at a time, in parallel, each let go once kept: the
+/// panel is never held twice (a frame-wide filter holds old and new whole). The others (text
+/// and the rest, always copied) one after another, so that the buffer one lets go is there
+/// for the next to reuse instead of each taking fresh memory from the system.
 pub fn keep_rows(df: DataFrame, keep: &BooleanChunked) -> Result<DataFrame> {
     let runs = kept_runs(keep);
     let height = runs.iter().map(|(start, end)| end - start).sum();
@@ -26,7 +26,7 @@ pub fn keep_rows(df: DataFrame, keep: &BooleanChunked) -> Result<DataFrame> {
     let (mut numeric, mut copied): (Vec<_>, Vec<_>) = columns
         .into_iter()
         .enumerate()
-        .partition(|(_, c)| is_kept_numeric(c.dtype()));
+        .partition(|(_, c)| c.dtype().is_primitive_numeric());
     let mut kept: Vec<(usize, Column)> = Vec::with_capacity(width);
     while !numeric.is_empty() {
         let batch: Vec<(usize, Column)> = numeric
@@ -47,19 +47,6 @@ pub fn keep_rows(df: DataFrame, keep: &BooleanChunked) -> Result<DataFrame> {
         height,
         kept.into_iter().map(|(_, c)| c).collect(),
     )?)
-}
-
-/// Whether a column of type `dtype` is kept by a numeric kernel (see [`keep_typed`]).
-fn is_kept_numeric(dtype: &DataType) -> bool {
-    matches!(
-        dtype,
-        DataType::Float64
-            | DataType::Float32
-            | DataType::Int64
-            | DataType::Int32
-            | DataType::UInt64
-            | DataType::UInt32
-    )
 }
 
 /// `df` down to the rows `keep` marks (every row when there is no mask), each column in one

@@ -19,8 +19,8 @@ const PEAK_FIXED: f64 = 256.0 * 1024.0 * 1024.0;
 /// bench panel (3 December 2026: peak RSS of `build` and `audit` 476–557 MiB at 1 M rows,
 /// 2.7–3.35 GiB at 10 M over many runs — the allocator returns freed memory late in some —
 /// for a panel as held of about 233 MiB and 2.3 GiB); set above the highest, so that the
-/// estimate errs on the safe side (3.5 GiB at 10 M: 5 % above the highest peak seen, 20–30 %
-/// above the usual).
+/// estimate errs on the safe side (3.5 GiB at 10 M: 5 % above the highest peak seen, about
+/// 30 % above the 2.6–2.7 GiB of the runs since the checks took less memory).
 const PEAK_PER_PANEL_BYTE: f64 = 1.45;
 
 /// Bytes one value of a column of type `dtype` takes in memory (text: the view and a short
