@@ -133,11 +133,10 @@ fn keep_in_place<T: PolarsNumericType>(
     runs: &[(usize, usize)],
     height: usize,
 ) -> PolarsResult<Column> {
-    let name = s.name().clone();
     let ca: ChunkedArray<T> = s.take_inner();
     let sorted = ca.is_sorted_flag();
     let validity = validity_kept(&ca, keep)?;
-    let mut chunk = ca.downcast_into_iter().next().expect("one chunk");
+    let (name, mut chunk) = sole_chunk(ca);
     let Some(values) = chunk.get_mut_values() else {
         let ca = ChunkedArray::<T>::with_chunk(name, chunk);
         return Ok(ca.filter(keep)?.rechunk().into_owned().into_column());
@@ -148,6 +147,15 @@ fn keep_in_place<T: PolarsNumericType>(
     let mut ca = ChunkedArray::<T>::with_chunk(name, chunk);
     ca.set_sorted_flag(sorted);
     Ok(ca.into_series().into_column())
+}
+
+/// The name and the one array of a column in one chunk, taken out of it: its values can be
+/// changed in place (`get_mut_values`) when nothing else holds them.
+pub(super) fn sole_chunk<T: PolarsNumericType>(
+    ca: ChunkedArray<T>,
+) -> (PlSmallStr, polars_arrow::array::PrimitiveArray<T::Native>) {
+    let name = ca.name().clone();
+    (name, ca.downcast_into_iter().next().expect("one chunk"))
 }
 
 /// The `runs` of kept rows of `slots` moved up to its start, in order.
