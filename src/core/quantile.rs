@@ -288,10 +288,7 @@ fn order_stats<V: FnMut(f64, f64)>(
     };
     let mut visit = visitor(range);
     let mut tally = Tally::new(merged);
-    each_mapped(values, ok, map, |v, a| {
-        tally.add(a);
-        visit(v, a);
-    });
+    tally.add_each(values, ok, map, &mut visit);
     let stats = tally.select(ks).unwrap_or_else(|| whole(ks, None));
     (stats, visit)
 }
