@@ -204,37 +204,22 @@ fn grid(ctx: &Context) -> Result<CoverageGrid> {
     let ids = ctx.entities.column(ctx.entity)?.str()?;
     let n = ctx.entities.height();
     let step = (n as f64 / GRID_ROWS as f64).max(1.0);
-    let picked: Vec<String> = (0..n.min(GRID_ROWS))
-        .filter_map(|i| ids.get((i as f64 * step) as usize).map(str::to_string))
-        .collect();
-    let keys = ctx
-        .keys
-        .clone()
-        .lazy()
-        .filter(col(ctx.entity).is_in(
-            lit(Series::new("picked".into(), picked.clone())).implode(true),
-            false,
-        ))
-        .collect()?;
-    let (e, p) = (
-        keys.column(ctx.entity)?.str()?,
-        keys.column(ctx.period)?.i64()?,
-    );
-    let mut present: std::collections::HashMap<&str, Vec<bool>> = std::collections::HashMap::new();
     let width = (last - first + 1) as usize;
-    for i in 0..keys.height() {
-        if let (Some(e), Some(p)) = (e.get(i), p.get(i)) {
-            present.entry(e).or_insert_with(|| vec![false; width])[(p - first) as usize] = true;
-        }
-    }
-    let rows = picked
-        .iter()
-        .map(|id| GridRow {
-            entity: id.clone(),
-            present: present
-                .get(id.as_str())
-                .cloned()
-                .unwrap_or_else(|| vec![false; width]),
+    // Each picked entity's periods from its rows in the panel core (the entity frame lists
+    // the entities in the order of their codes), not by a search of every key for its name.
+    let core = &ctx.core;
+    let rows = (0..n.min(GRID_ROWS))
+        .map(|i| (i as f64 * step) as usize)
+        .filter_map(|e| {
+            let id = ids.get(e)?;
+            let mut present = vec![false; width];
+            for r in core.starts[e]..core.starts[e + 1] {
+                present[(core.periods[core.period[r] as usize] - first) as usize] = true;
+            }
+            Some(GridRow {
+                entity: id.to_string(),
+                present,
+            })
         })
         .collect();
     Ok(CoverageGrid {
