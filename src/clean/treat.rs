@@ -7,7 +7,7 @@ use polars::prelude::*;
 use rayon::prelude::*;
 
 use super::histogram::histogram;
-use super::winsorize::{winsorize, Cutoffs};
+use super::winsorize::{winsorize, Cutoffs, RowGroups};
 use super::{drop_where, Keys};
 use crate::core::{grouped_quantiles, quantiles, PanelCore, Values, View, BATCH};
 use crate::report::CutoffGroups;
@@ -131,8 +131,8 @@ impl Treatment {
         let x = |v: &str| col(v).cast(DataType::Float64);
         match (self.by, core) {
             (CutoffGroups::Period, Some(core)) if core.rows() == df.height() => {
-                let group = |r: usize| core.period[r] as usize;
-                return self.by_codes(df, k, &group, core.periods.len(), Some(&core.periods));
+                let group = RowGroups::Codes(&core.period);
+                return self.by_codes(df, k, group, core.periods.len(), Some(&core.periods));
             }
             _ => {}
         }
@@ -149,7 +149,7 @@ impl Treatment {
         }
         let (cutoffs, bounds) = match self.by {
             // One group of every row, on the typed path.
-            CutoffGroups::Pooled => return self.by_codes(df, k, &|_| 0, 1, None),
+            CutoffGroups::Pooled => return self.by_codes(df, k, RowGroups::One, 1, None),
             CutoffGroups::Groups => {
                 // Per group; a group with fewer values than 1 / (the smaller tail) gets the
                 // pooled cutoffs instead (the stated fallback), as do rows whose group is missing.
@@ -359,7 +359,7 @@ impl Treatment {
         Ok(lines)
     }
 
-    /// Cutoffs per group of rows (`group(r)` of `n` groups: one for pooled cutoffs, the
+    /// Cutoffs per group of rows (`group.of(r)` of `n` groups: one for pooled cutoffs, the
     /// periods by the panel core's codes) by selection (type 7, as the engine's linear
     /// quantile), then each variable's new values (or trimming flags) in one typed pass: no
     /// group-by, no join, a few variables' values in memory at a time. `periods` names the
@@ -368,7 +368,7 @@ impl Treatment {
         &self,
         df: DataFrame,
         k: &Keys,
-        group: &(dyn Fn(usize) -> usize + Sync),
+        group: RowGroups,
         nt: usize,
         periods: Option<&[i64]>,
     ) -> Result<(DataFrame, Option<DataFrame>, Vec<TreatLine>)> {
@@ -382,7 +382,7 @@ impl Treatment {
         // Rows per group, so that each group's values are gathered without regrowing.
         let mut sizes = vec![0usize; nt];
         for r in 0..rows {
-            sizes[group(r)] += 1;
+            sizes[group.of(r)] += 1;
         }
         type Treated = (
             Option<Column>,
@@ -406,13 +406,13 @@ impl Treatment {
                 (q[0], q[1])
             };
             let (lo, hi): (Vec<Option<f64>>, Vec<Option<f64>>) =
-                match grouped_quantiles(&x, group, nt, &[self.lower, self.upper]) {
+                match grouped_quantiles(&x, |r| group.of(r), nt, &[self.lower, self.upper]) {
                     Some(q) => q.into_iter().map(|q| (q[0], q[1])).unzip(),
                     None => {
                         let mut groups: Vec<Vec<f64>> =
                             sizes.iter().map(|n| Vec::with_capacity(*n)).collect();
                         for (r, value) in x.iter() {
-                            groups[group(r)].push(value);
+                            groups[group.of(r)].push(value);
                         }
                         groups.iter().map(|g| cutoffs(g)).unzip()
                     }
