@@ -214,6 +214,18 @@ mod tests {
             format!("{x:?}"),
             "the other holder keeps its values"
         );
+        // One group of every row (pooled cutoffs), against the definition again.
+        let pooled = Cutoffs {
+            group: RowGroups::One,
+            lo: &[Some(-20.0)],
+            hi: &[Some(20.0)],
+        };
+        let (got, counts) = winsorize(Column::new("x".into(), x.clone()), &pooled).unwrap();
+        let want: Vec<Option<f64>> = x.iter().map(|v| v.map(|v| v.clamp(-20.0, 20.0))).collect();
+        let got: Vec<Option<f64>> = got.f64().unwrap().iter().collect();
+        assert_eq!(format!("{got:?}"), format!("{want:?}"));
+        let beyond = |f: fn(f64) -> bool| x.iter().flatten().filter(|v| f(**v)).count() as u64;
+        assert_eq!(counts, (beyond(|v| v < -20.0), beyond(|v| v > 20.0)));
         // Integers: copied into floats.
         let ints = Column::new("k".into(), (0..n as i64).collect::<Vec<_>>());
         let (got, _) = winsorize(ints, &cut).unwrap();
