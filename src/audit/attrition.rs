@@ -60,7 +60,7 @@ pub(super) fn compare(ctx: &Context) -> Result<(AttritionGroups, Vec<AttritionTe
         .map(|i| core.starts[i] as IdxSize)
         .collect();
     let left: Vec<bool> = (0..core.entities())
-        .map(|i| core.periods[core.period[core.starts[i + 1] - 1] as usize] < last)
+        .map(|i| core.period_of(core.starts[i + 1] - 1) < last)
         .collect();
     let mut first_rows = ctx
         .df

@@ -214,7 +214,7 @@ fn grid(ctx: &Context) -> Result<CoverageGrid> {
             let id = ids.get(e)?;
             let mut present = vec![false; width];
             for r in core.starts[e]..core.starts[e + 1] {
-                present[(core.periods[core.period[r] as usize] - first) as usize] = true;
+                present[(core.period_of(r) - first) as usize] = true;
             }
             Some(GridRow {
                 entity: id.to_string(),

@@ -247,7 +247,7 @@ fn key_frames(
     for (i, rows) in core.starts.windows(2).enumerate() {
         let mut previous: Option<i64> = None;
         for r in rows[0]..rows[1] {
-            let t = core.periods[core.period[r] as usize];
+            let t = core.period_of(r);
             if previous == Some(t) {
                 first_rows.get_or_insert_with(|| (0..r as IdxSize).collect());
                 continue;

@@ -129,6 +129,12 @@ impl PanelCore {
         self.starts.len().saturating_sub(1)
     }
 
+    /// The period of row `r` (its value, not its code).
+    #[inline]
+    pub fn period_of(&self, r: usize) -> i64 {
+        self.periods[self.period[r] as usize]
+    }
+
     /// Variation figures of one variable given as f64 values in row order (nulls skipped).
     /// The two-way residual is left for [`PanelCore::two_way`].
     pub fn moments(&self, x: &Values) -> Moments {
