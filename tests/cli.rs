@@ -827,3 +827,60 @@ fn a_memory_budget_too_small_stops_before_reading() {
     assert_eq!(r.code, 2);
     assert!(r.stderr.contains("--memory-budget"), "{}", r.stderr);
 }
+
+/// The binary turns transparent huge pages off for its own process (see `small_pages_only` in
+/// `src/main.rs`). Read from the kernel's own account of the process, `THP_enabled` in
+/// `/proc/PID/status` (Linux 5.0 and later; proc(5)), while the run waits on a rules file that
+/// is a named pipe, so that it is alive and past its start when looked at.
+#[cfg(target_os = "linux")]
+#[test]
+fn transparent_huge_pages_are_off_for_the_run() {
+    use std::io::Write;
+    use std::os::unix::fs::OpenOptionsExt;
+    use std::time::{Duration, Instant};
+
+    let w = Workdir::new();
+    w.write("panel.csv", DATA);
+    let pipe = w.path("rules.toml");
+    let made = std::process::Command::new("mkfifo").arg(&pipe).status();
+    assert!(made.expect("mkfifo").success());
+    let mut child = std::process::Command::new(env!("CARGO_BIN_EXE_panelready"))
+        .args(["audit", "panel.csv", "--rules", "rules.toml", "--quiet"])
+        .current_dir(w.dir.path())
+        .stdout(std::process::Stdio::null())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .expect("run panelready");
+    // Opening the pipe for writing without blocking succeeds once the run has opened it for
+    // reading, and the run then waits there for the rules.
+    let start = Instant::now();
+    let mut writer = loop {
+        match std::fs::OpenOptions::new()
+            .write(true)
+            .custom_flags(libc::O_NONBLOCK)
+            .open(&pipe)
+        {
+            Ok(f) => break f,
+            Err(_) if start.elapsed() < Duration::from_secs(60) => {
+                assert!(child.try_wait().unwrap().is_none(), "the run ended early");
+                std::thread::sleep(Duration::from_millis(20));
+            }
+            Err(e) => panic!("the run never opened its rules file: {e}"),
+        }
+    };
+    let status = std::fs::read_to_string(format!("/proc/{}/status", child.id())).unwrap();
+    writer.write_all(RULES.as_bytes()).unwrap();
+    drop(writer);
+    let ended = child.wait_with_output().unwrap();
+    assert_eq!(
+        ended.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&ended.stderr)
+    );
+    let line = status
+        .lines()
+        .find(|l| l.starts_with("THP_enabled:"))
+        .expect("the kernel reports THP_enabled (Linux 5.0 or later)");
+    assert_eq!(line.split_whitespace().nth(1), Some("0"), "{line}");
+}
