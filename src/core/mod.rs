@@ -169,21 +169,26 @@ impl PanelCore {
             let (mut s, mut c) = (0.0, 0u32);
             // Flat: every value equal to the entity's first (NaN equals nothing, so an entity
             // holding one is not counted as flat; 0.0 and -0.0 are equal).
-            let (mut first, mut same) = (None, true);
-            // The entity's rows as slices: no bounds check per row.
+            let first = (rows[0]..rows[1])
+                .find(|&r| present(r))
+                .map_or(f64::NAN, |r| values[r]);
+            let mut same = true;
+            // The entity's rows as slices: no bounds check per row. A row without a value
+            // adds +0.0 and 0 (selects, not a branch that missing values make unpredictable):
+            // the sums start at +0.0 and so never become -0.0, and adding +0.0 to anything
+            // else leaves it as it was, bit for bit.
             let (v_rows, t_rows) = (&values[rows[0]..rows[1]], &self.period[rows[0]..rows[1]]);
             for (i, (&v, &t)) in v_rows.iter().zip(t_rows).enumerate() {
-                if !present(rows[0] + i) {
-                    continue;
-                }
-                s += v;
-                c += 1;
-                same &= v == *first.get_or_insert(v);
+                let k = present(rows[0] + i);
+                let x = if k { v } else { 0.0 };
+                s += x;
+                c += u32::from(k);
+                same &= !k | (v == first);
                 let t = t as usize;
-                p_sum[t] += v;
-                p_n[t] += 1;
-                sum += v;
-                n += 1;
+                p_sum[t] += x;
+                p_n[t] += u64::from(k);
+                sum += x;
+                n += u64::from(k);
             }
             e_sum[e] = s;
             e_n[e] = c;
@@ -206,14 +211,17 @@ impl PanelCore {
         for (m, rows) in e_mean.iter().zip(self.starts.windows(2)) {
             let (v_rows, t_rows) = (&values[rows[0]..rows[1]], &self.period[rows[0]..rows[1]]);
             for (i, (&v, &t)) in v_rows.iter().zip(t_rows).enumerate() {
-                if !present(rows[0] + i) {
-                    continue;
-                }
+                let k = present(rows[0] + i);
                 let t = t as usize;
-                tss += (v - mean).powi(2);
-                wss += (v - m).powi(2);
-                pss += (v - p_mean[t]).powi(2);
-                b[t] += v - m;
+                let (d, w, p) = if k {
+                    (v - mean, v - m, v - p_mean[t])
+                } else {
+                    (0.0, 0.0, 0.0)
+                };
+                tss += d * d;
+                wss += w * w;
+                pss += p * p;
+                b[t] += w;
             }
         }
         // Between: SD of the entity means, each entity with a value once, n - 1.
@@ -354,25 +362,25 @@ impl PanelCore {
             if e_n[i] == 0 {
                 continue;
             }
-            // The entity's rows as slices (no bounds check per row), with their row numbers.
+            // The entity's rows as slices (no bounds check per row), with their row numbers;
+            // a row without a value adds +0.0 (see `moments_with`).
             let (start, end) = (rows[0], rows[1]);
             let rows = || {
                 values[start..end]
                     .iter()
                     .zip(&self.period[start..end])
                     .enumerate()
-                    .filter(|(j, _)| present(start + j))
-                    .map(|(_, (&v, &t))| (v, t as usize))
+                    .map(|(j, (&v, &t))| (present(start + j), v, t as usize))
             };
             let m = e_sum[i] / e_n[i] as f64;
             let mut mb = 0.0;
-            for (_, t) in rows() {
-                mb += beta[t];
+            for (k, _, t) in rows() {
+                mb += if k { beta[t] } else { 0.0 };
             }
             mb /= e_n[i] as f64;
-            for (v, t) in rows() {
-                let fitted = beta[t] - mb;
-                rss += (v - m - fitted).powi(2);
+            for (k, v, t) in rows() {
+                let left = if k { v - m - (beta[t] - mb) } else { 0.0 };
+                rss += left * left;
             }
         }
         rss
@@ -458,129 +466,4 @@ pub(crate) fn coded(f: &[&str], y: &[i64]) -> PanelCore {
 }
 
 #[cfg(test)]
-mod tests {
-    use super::coded as core;
-    use super::*;
-
-    #[test]
-    fn codes_follow_the_sort_order() {
-        let c = core(&["a", "a", "b", "c", "c"], &[2001, 2003, 2002, 2001, 2002]);
-        assert_eq!(c.entity, [0, 0, 1, 2, 2]);
-        assert_eq!(c.periods, [2001, 2002, 2003]);
-        assert_eq!(c.period, [0, 2, 1, 0, 1]);
-        assert_eq!(c.starts, [0, 2, 3, 5]);
-        // Codes worked by hand, the same by every path: long names (equal ones in different
-        // places of the buffer), a missing name, several chunks, a period range too wide for
-        // a table, a missing period (code 0, as the binary search gives).
-        let long = [
-            "a firm with a long name",
-            "a firm with a long name",
-            "another firm's long name",
-        ];
-        let by_path = |f: Vec<Option<&str>>, y: Vec<Option<i64>>, chunked: bool| {
-            let whole = df!("f" => f, "y" => y).unwrap();
-            let df = if chunked {
-                let mut df = whole.slice(0, 1);
-                df.vstack_mut(&whole.slice(1, whole.height())).unwrap();
-                df
-            } else {
-                whole
-            };
-            let c = PanelCore::new(&df, "f", "y").unwrap();
-            (c.entity, c.period, c.periods, c.starts)
-        };
-        for chunked in [false, true] {
-            let (e, p, periods, starts) = by_path(
-                long.map(Some).to_vec(),
-                vec![Some(1), Some(1 << 40), Some(5)],
-                chunked,
-            );
-            assert_eq!(
-                (e, p, periods, starts),
-                (
-                    vec![0, 0, 1],
-                    vec![0, 2, 1],
-                    vec![1, 5, 1 << 40],
-                    vec![0, 2, 3]
-                )
-            );
-            let (e, p, periods, starts) = by_path(
-                vec![Some("a"), Some("a"), None],
-                vec![Some(2001), None, Some(2003)],
-                chunked,
-            );
-            assert_eq!(
-                (e, p, periods, starts),
-                (
-                    vec![0, 0, 1],
-                    vec![0, 0, 1],
-                    vec![2001, 2003],
-                    vec![0, 2, 3]
-                )
-            );
-        }
-    }
-
-    #[test]
-    fn age_is_absorbed_and_a_two_by_two_interaction_is_not() {
-        // age = year - founded is entity part + period part: no residual (worked by hand).
-        let f = ["a", "a", "a", "b", "b", "c", "c", "c"];
-        let y = [1i64, 2, 3, 2, 3, 1, 2, 3];
-        let c = core(&f, &y);
-        let founded = [0.0, 0.0, 0.0, -5.0, -5.0, 3.0, 3.0, 3.0];
-        let age: Float64Chunked = y
-            .iter()
-            .zip(founded)
-            .map(|(y, f)| Some(*y as f64 - f))
-            .collect();
-        assert!(c.two_way(&Values::new(&age)) < 1e-20);
-        // Balanced 2 x 2 with x = 1 only in (b, 2): the residual of the interaction is
-        // +-1/4 in every cell, so the RSS is 4 / 16 = 0.25 (worked by hand).
-        let c = core(&["a", "a", "b", "b"], &[1, 2, 1, 2]);
-        let x: Float64Chunked = [0.0, 0.0, 0.0, 1.0].into_iter().map(Some).collect();
-        assert!((c.two_way(&Values::new(&x)) - 0.25).abs() < 1e-12);
-        // A null leaves its row out: with (a, 1) missing, three rows fit three effects exactly.
-        let x: Float64Chunked = [None, Some(0.0), Some(0.0), Some(1.0)]
-            .into_iter()
-            .collect();
-        assert!(c.two_way(&Values::new(&x)).abs() < 1e-20);
-    }
-
-    #[test]
-    fn iterated_singletons_peel_to_the_two_core() {
-        // (A,1) (A,2) (B,2) (B,3) (C,3): C goes, then period 3 has one key, and so on until
-        // nothing is left (worked by hand, as in audit/tests.rs).
-        let c = core(&["A", "A", "B", "B", "C"], &[1, 2, 2, 3, 3]);
-        assert_eq!(c.two_way_singletons(), 5);
-        // A 2 x 2 block survives; the extra singleton D and a copied key do not change that.
-        let c = core(&["A", "A", "A", "B", "B", "D"], &[1, 2, 2, 1, 2, 1]);
-        assert_eq!(c.two_way_singletons(), 1);
-        assert_eq!(c.two_way_kept(), [true, true, true, true, true, false]);
-        // Every row its own key: the 2 x 2 block of A and B stays, C goes.
-        let c = core(&["A", "A", "B", "B", "C"], &[1, 2, 1, 2, 1]);
-        assert_eq!(c.two_way_singletons(), 1);
-        assert_eq!(c.two_way_kept(), [true, true, true, true, false]);
-    }
-
-    #[test]
-    fn moments_match_a_hand_computation() {
-        // a: 1, 3; b: 5, 5 (flat). Mean 3.5; TSS 6.25+0.25+2.25+2.25 = 11; WSS 1+1 = 2;
-        // between SD of (2, 5) = sqrt(4.5).
-        let c = core(&["a", "a", "b", "b"], &[1, 2, 1, 2]);
-        let x: Float64Chunked = [1.0, 3.0, 5.0, 5.0].into_iter().map(Some).collect();
-        let m = c.moments(&Values::new(&x));
-        assert_eq!(m.n, 4);
-        assert!((m.mean - 3.5).abs() < 1e-12);
-        assert!((m.tss - 11.0).abs() < 1e-12);
-        assert!((m.wss - 2.0).abs() < 1e-12);
-        assert!((m.sd_between - 4.5f64.sqrt()).abs() < 1e-12);
-        assert_eq!(m.flat, 1);
-        // Flat, worked by hand: c (0.0, -0.0) is; d (NaN, NaN), e (2, NaN), f (one row) not.
-        let c = core(&["c", "c", "d", "d", "e", "e", "f"], &[1, 2, 1, 2, 1, 2, 1]);
-        let x: Float64Chunked = [0.0, -0.0, f64::NAN, f64::NAN, 2.0, f64::NAN, 7.0]
-            .into_iter()
-            .map(Some)
-            .collect();
-        assert_eq!(c.moments(&Values::new(&x)).flat, 1);
-    }
-}
+mod tests;
