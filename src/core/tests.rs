@@ -196,6 +196,17 @@ fn dummy_rss(f: &[&str], y: &[i64], x: &[f64]) -> f64 {
     (b - d * beta).norm_squared()
 }
 
+/// The exact two-way residual of `x` within 1e-9 relative of [`dummy_rss`].
+fn meets_dummies(f: &[&str], y: &[i64], x: &[f64]) {
+    let xs: Float64Chunked = x.iter().map(|v| Some(*v)).collect();
+    let ours = core(f, y).two_way(&Values::new(&xs));
+    let theirs = dummy_rss(f, y, x);
+    assert!(
+        (ours - theirs).abs() <= 1e-9 * theirs,
+        "{ours} against {theirs}"
+    );
+}
+
 #[test]
 fn two_way_meets_least_squares_on_dummies_with_repeats_and_many_periods() {
     // A period twice for one entity (the path that subtracts entity by entity), gaps, and
@@ -203,13 +214,7 @@ fn two_way_meets_least_squares_on_dummies_with_repeats_and_many_periods() {
     let f = ["a", "a", "a", "a", "b", "b", "b", "c", "c", "c", "d", "d"];
     let y = [1, 2, 2, 4, 1, 2, 3, 2, 3, 4, 1, 4];
     let x = [1.0, 4.0, 2.5, 3.0, 2.0, 7.0, 1.5, 0.5, 6.0, 2.0, 3.5, 9.0];
-    let xs: Float64Chunked = x.iter().map(|v| Some(*v)).collect();
-    let ours = core(&f, &y).two_way(&Values::new(&xs));
-    let theirs = dummy_rss(&f, &y, &x);
-    assert!(
-        (ours - theirs).abs() <= 1e-9 * theirs,
-        "{ours} against {theirs}"
-    );
+    meets_dummies(&f, &y, &x);
 
     let (mut f, mut y, mut x) = (Vec::new(), Vec::new(), Vec::new());
     for (e, name) in ["p", "q", "r"].iter().enumerate() {
@@ -221,11 +226,5 @@ fn two_way_meets_least_squares_on_dummies_with_repeats_and_many_periods() {
             }
         }
     }
-    let xs: Float64Chunked = x.iter().map(|v| Some(*v)).collect();
-    let ours = core(&f, &y).two_way(&Values::new(&xs));
-    let theirs = dummy_rss(&f, &y, &x);
-    assert!(
-        (ours - theirs).abs() <= 1e-9 * theirs,
-        "{ours} against {theirs}"
-    );
+    meets_dummies(&f, &y, &x);
 }
