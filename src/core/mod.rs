@@ -58,11 +58,12 @@ pub struct PanelCore {
 }
 
 /// What the moments' passes leave for the two-way residual: each entity's sum and count of
-/// values, and the period sums of the entity-demeaned values.
+/// values, each period's count of values, and the period sums of the entity-demeaned values.
 #[derive(Debug, Clone)]
 pub struct TwoWaySums {
     e_sum: Vec<f64>,
     e_n: Vec<u32>,
+    p_n: Vec<u64>,
     b: Vec<f64>,
 }
 
@@ -247,7 +248,7 @@ impl PanelCore {
             sd_between,
             flat,
         };
-        (moments, TwoWaySums { e_sum, e_n, b })
+        (moments, TwoWaySums { e_sum, e_n, p_n, b })
     }
 
     /// Residual sum of squares of `x` on entity and period effects together, exactly: remove
@@ -259,12 +260,13 @@ impl PanelCore {
     }
 
     /// The period system's matrix A = D' M D = diag(n_t) - sum_i c_i c_i' / T_i, c_i the
-    /// entity's counts per period over the rows where `x` has a value (`e_n` of them).
-    fn period_system(&self, x: &View, e_n: &[u32]) -> Vec<f64> {
+    /// entity's counts per period over the rows where `x` has a value (`sums.e_n` of them;
+    /// n_t is `sums.p_n`).
+    fn period_system(&self, x: &View, sums: &TwoWaySums) -> Vec<f64> {
+        let e_n = &sums.e_n;
         let (ne, nt) = (self.entities(), self.periods.len());
         let ok = x.parts().1;
         let mut a = vec![0.0; nt * nt];
-        let mut diag = vec![0u64; nt];
         let mut seen: Vec<(usize, f64)> = Vec::new();
         // Entities with one row per period share their part of A by the set of periods they
         // have (a bit mask when there are at most 128 periods): sum_i c_i c_i' / T_i is, per
@@ -284,7 +286,6 @@ impl PanelCore {
             for r in rows[0]..rows[1] {
                 if ok.is_none_or(|ok| ok[r]) {
                     let t = self.period[r] as usize;
-                    diag[t] += 1;
                     match seen.last_mut() {
                         Some((s, c)) if *s == t => {
                             *c += 1.0;
@@ -309,11 +310,11 @@ impl PanelCore {
                 }
             }
         }
-        // diag(n_t), counted as integers row by row and added once (each entity's counts
-        // added to A's diagonal in turn took 40 % of this function's time in the profile);
-        // exact, so the order against the subtractions above moves nothing but, where an
-        // entity has a period twice, the last bits.
-        for (t, n) in diag.iter().enumerate() {
+        // diag(n_t), the moments' period counts, added once (each entity's counts added to
+        // A's diagonal in turn took 40 % of this function's time in the profile); exact, so
+        // the order against the subtractions above moves nothing but, where an entity has a
+        // period twice, the last bits.
+        for (t, n) in sums.p_n.iter().enumerate() {
             a[t * nt + t] += *n as f64;
         }
         // In a fixed order (by mask), so the sums do not depend on the hash map's order.
@@ -338,13 +339,13 @@ impl PanelCore {
     /// solution, and one pass for the residual.
     pub fn two_way_from(&self, x: &Values, sums: &TwoWaySums) -> f64 {
         let x = x.view();
-        let (nt, e_n) = (self.periods.len(), &sums.e_n);
+        let nt = self.periods.len();
         let a = if x.parts().1.is_none() {
             self.complete_system
-                .get_or_init(|| self.period_system(&x, e_n))
+                .get_or_init(|| self.period_system(&x, sums))
                 .clone()
         } else {
-            self.period_system(&x, e_n)
+            self.period_system(&x, sums)
         };
         let b = sums.b.clone();
         let beta = solve_psd(DMatrix::from_row_slice(nt, nt, &a), &DVector::from_vec(b));
