@@ -131,31 +131,67 @@ impl Plan {
         layout: Layout,
     ) -> (LazyFrame, Vec<String>) {
         let mut hidden: Vec<String> = Vec::new();
-        for var in &self.vars {
-            let shifts: BTreeSet<&Shift> = std::iter::once(&var.value)
-                .chain(var.conditions.iter().map(|(_, c)| c))
-                .flat_map(|c| c.shifts.iter())
-                .collect();
-            for shift in shifts {
-                let name = shift.hidden_name();
-                if hidden.contains(&name) {
-                    continue;
-                }
-                lf = match layout {
-                    Layout::SortedUnique => {
-                        lf.with_column(nearby(shift, entity, period).alias(name.as_str()))
+        // The variables level by level (a variable's level is one above the highest of the
+        // derived variables it reads): the columns of one level go into one step, which the
+        // engine evaluates in parallel; their shifted inputs into one step before it.
+        for level in self.levels() {
+            let mut shifted = Vec::new();
+            for var in &level {
+                let shifts: BTreeSet<&Shift> = std::iter::once(&var.value)
+                    .chain(var.conditions.iter().map(|(_, c)| c))
+                    .flat_map(|c| c.shifts.iter())
+                    .collect();
+                for shift in shifts {
+                    let name = shift.hidden_name();
+                    if hidden.contains(&name) {
+                        continue;
                     }
-                    Layout::Any => add_shift(lf, shift, &name, entity, period),
-                };
-                hidden.push(name);
+                    match layout {
+                        Layout::SortedUnique => {
+                            shifted.push(nearby(shift, entity, period).alias(name.as_str()))
+                        }
+                        Layout::Any => lf = add_shift(lf, shift, &name, entity, period),
+                    }
+                    hidden.push(name);
+                }
             }
-            let value = match var.any_condition() {
-                Some(cond) => when(cond).then(lit(NULL)).otherwise(var.value.expr.clone()),
-                None => var.value.expr.clone(),
-            };
-            lf = lf.with_column(value.alias(var.name.as_str()));
+            if !shifted.is_empty() {
+                lf = lf.with_columns(shifted);
+            }
+            let values: Vec<Expr> = level
+                .iter()
+                .map(|var| {
+                    let value = match var.any_condition() {
+                        Some(cond) => when(cond).then(lit(NULL)).otherwise(var.value.expr.clone()),
+                        None => var.value.expr.clone(),
+                    };
+                    value.alias(var.name.as_str())
+                })
+                .collect();
+            lf = lf.with_columns(values);
         }
         (lf, hidden)
+    }
+
+    /// The variables grouped by level, in evaluation order within each: level 0 reads no
+    /// derived variable, level k + 1 reads one of level k at most.
+    fn levels(&self) -> Vec<Vec<&Planned>> {
+        let mut level_of: BTreeMap<&str, usize> = BTreeMap::new();
+        let mut levels: Vec<Vec<&Planned>> = Vec::new();
+        for var in &self.vars {
+            let level = std::iter::once(&var.value)
+                .chain(var.conditions.iter().map(|(_, c)| c))
+                .flat_map(|c| c.derived_deps.iter())
+                .filter_map(|d| level_of.get(d.as_str()).map(|l| l + 1))
+                .max()
+                .unwrap_or(0);
+            level_of.insert(var.name.as_str(), level);
+            if levels.len() <= level {
+                levels.resize_with(level + 1, Vec::new);
+            }
+            levels[level].push(var);
+        }
+        levels
     }
 
     /// Per variable: non-null values and nulls by reason (first matching condition wins).
