@@ -390,6 +390,26 @@ fn bad_expressions_name_the_rule() {
             "[[rule]]\nname = \"r2\"\nexpr = \"assets > nosuch\"\n".into(),
             &["`r2`", "`nosuch`"],
         ),
+        // AND, OR and NOT take conditions, as in SQL (ISO/IEC 9075: their operands are
+        // boolean; common practice): numbers were combined bit by bit (3 AND 4 gave 0), and a
+        // number with text inside coalesce stopped the engine with an internal error.
+        (rule("assets AND year"), &["`x`", "combine conditions", "number"]),
+        (rule("(assets > 5) OR 1"), &["`x`", "combine conditions"]),
+        (
+            rule("CAST(coalesce(NULL, (assets AND 'text')) AS DOUBLE)"),
+            &["`x`", "combine conditions"],
+        ),
+        (rule("NOT assets"), &["`x`", "combine conditions"]),
+        (rule("NOT 'text'"), &["`x`", "combine conditions", "text"]),
+        (
+            "[derive.x]\nexpr = \"assets\"\nnull_when = [{ when = \"assets OR year\", reason = \"r\" }]\n"
+                .into(),
+            &["`x`", "combine conditions"],
+        ),
+        (
+            "[[rule]]\nname = \"r3\"\nexpr = \"assets AND year\"\n".into(),
+            &["`r3`", "combine conditions"],
+        ),
     ];
     for (rules, want) in cases {
         let case = Bad {
@@ -401,6 +421,32 @@ fn bad_expressions_name_the_rule() {
         };
         check_bad(&case);
     }
+}
+
+/// Conditions combined with AND, OR and NOT, NULL among them, keep SQL's three-valued logic
+/// (ISO/IEC 9075; common practice): worked by hand on the four rows of `GOOD`.
+#[test]
+fn conditions_combine_as_in_sql() {
+    let w = Workdir::new();
+    w.write("raw.csv", GOOD);
+    w.write(
+        "rules.toml",
+        &format!(
+            "{KEYS}[derive.both]\nexpr = \"CASE WHEN (assets > 5) AND NOT (year = 2001) THEN 1 ELSE 0 END\"\n\
+             [derive.either]\nexpr = \"CASE WHEN (assets > 11) OR (year = 2001) THEN 1 ELSE 0 END\"\n\
+             [derive.unknown]\nexpr = \"CASE WHEN (assets > 100) OR NULL THEN 1 WHEN (assets > 100) AND NULL THEN 2 ELSE 3 END\"\n"
+        ),
+    );
+    w.ok(&["build", "raw.csv", "--rules", "rules.toml", "--out", "out"]);
+    let text = std::fs::read_to_string(w.path("out/panel.csv")).unwrap();
+    let rows: Vec<Vec<&str>> = text.lines().map(|l| l.split(',').collect()).collect();
+    let at = |name: &str| rows[0].iter().position(|c| *c == name).unwrap();
+    let column = |name: &str| -> Vec<&str> { rows[1..].iter().map(|r| r[at(name)]).collect() };
+    // Rows A 2001 (10), A 2002 (12), B 2001 (5), B 2002 (6).
+    assert_eq!(column("both"), ["0", "1", "0", "1"]);
+    assert_eq!(column("either"), ["1", "1", "1", "0"]);
+    // FALSE OR NULL and FALSE AND NULL are NULL and FALSE: neither branch is taken.
+    assert_eq!(column("unknown"), ["3", "3", "3", "3"]);
 }
 
 #[test]

@@ -5,7 +5,7 @@
 use std::collections::{BTreeMap, BTreeSet};
 use std::ops::ControlFlow;
 
-use polars::prelude::Expr;
+use polars::prelude::{DataType, Expr, PolarsError};
 use sqlparser::ast::{
     visit_expressions_mut, Expr as SqlExpr, FunctionArg, FunctionArgExpr, FunctionArguments, Ident,
     UnaryOperator, Value,
@@ -173,12 +173,92 @@ pub(crate) fn compile(rule: &str, text: &str, scope: &Scope) -> Result<Compiled>
         rule: rule.to_string(),
         message: e.to_string().replace('\n', " "),
     })?;
+    let expr = conditions_only(expr, rule);
     Ok(Compiled {
         expr,
         derived_deps,
         shifts,
         raw_columns,
     })
+}
+
+/// AND, OR and NOT combine conditions: each operand must be true or false (or NULL), as SQL
+/// has it. The engine would otherwise take two numbers bit by bit (`3 AND 4` is 0), and a
+/// number with text can make it fail outright; so each operand passes through a check of its
+/// type, made when the engine plans the expression (before any row is read), which stops the
+/// run with the rule's name.
+fn conditions_only(expr: Expr, rule: &str) -> Expr {
+    use polars::prelude::{BooleanFunction, DataTypeExpr, FunctionExpr, Operator};
+    use std::sync::Arc;
+    let guard = |operand: Expr| -> Expr {
+        let rule = rule.to_string();
+        operand.map(Ok, move |_, field| match field.dtype() {
+            DataType::Boolean | DataType::Null => Ok(field.clone()),
+            other => Err(PolarsError::InvalidOperation(
+                format!(
+                    "{rule}: AND, OR and NOT combine conditions (true or false), not {} values; \
+                     compare first (such as `x > 0` or `x = 1`)",
+                    kind(other)
+                )
+                .into(),
+            )),
+        })
+    };
+    expr.map_expr(|e| match e {
+        Expr::BinaryExpr { left, op, right }
+            if matches!(
+                op,
+                Operator::And
+                    | Operator::Or
+                    | Operator::Xor
+                    | Operator::LogicalAnd
+                    | Operator::LogicalOr
+            ) =>
+        {
+            Expr::BinaryExpr {
+                left: Arc::new(guard(Arc::unwrap_or_clone(left))),
+                op,
+                right: Arc::new(guard(Arc::unwrap_or_clone(right))),
+            }
+        }
+        // The SQL translator writes NOT x as x cast to true/false, then negated: a number
+        // would pass as "not zero", so the check goes on what is cast.
+        Expr::Function {
+            input,
+            function: FunctionExpr::Boolean(BooleanFunction::Not),
+        } => Expr::Function {
+            input: input
+                .into_iter()
+                .map(|operand| match operand {
+                    Expr::Cast {
+                        expr,
+                        dtype: DataTypeExpr::Literal(DataType::Boolean),
+                        options,
+                    } => Expr::Cast {
+                        expr: Arc::new(guard(Arc::unwrap_or_clone(expr))),
+                        dtype: DataTypeExpr::Literal(DataType::Boolean),
+                        options,
+                    },
+                    other => guard(other),
+                })
+                .collect(),
+            function: FunctionExpr::Boolean(BooleanFunction::Not),
+        },
+        other => other,
+    })
+}
+
+/// A data type in words, for the messages about rules.
+fn kind(dtype: &DataType) -> &'static str {
+    if dtype.is_primitive_numeric() {
+        "number"
+    } else if dtype.is_string() {
+        "text"
+    } else if dtype.is_temporal() {
+        "date or time"
+    } else {
+        "other"
+    }
 }
 
 fn parse(rule: &str, text: &str) -> Result<SqlExpr> {
