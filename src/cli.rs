@@ -120,8 +120,10 @@ pub(crate) struct InputArgs {
     #[arg(long)]
     pub(crate) quiet: bool,
 
-    /// Print the wall time of each stage (reading, key steps, each check, cleaning, writing)
-    /// on stderr when the run ends.
+    /// Print a table of the stages (reading, key steps, each check, cleaning, writing) on
+    /// stderr when the run ends: each one's wall time and, on Linux, the processor time of
+    /// every thread in it, the kernel's part of that (page faults, I/O), and the peak resident
+    /// memory reached by its end.
     #[arg(long)]
     pub(crate) timings: bool,
 

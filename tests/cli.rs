@@ -884,3 +884,43 @@ fn transparent_huge_pages_are_off_for_the_run() {
         .expect("the kernel reports THP_enabled (Linux 5.0 or later)");
     assert_eq!(line.split_whitespace().nth(1), Some("0"), "{line}");
 }
+
+/// `--timings` against the kernel's own account of the finished run (getrusage(2), through
+/// Python's `os.wait4` in `tests/reference/usage.py`): the table's peak is the process's
+/// largest resident set, its processor and kernel seconds are no more than the kernel counted,
+/// every stage's kernel part is within its processor time, and the stages add up to the total.
+#[cfg(target_os = "linux")]
+#[test]
+fn timings_agree_with_the_kernels_account_of_the_run() {
+    use std::path::Path;
+    let w = Workdir::new();
+    // 400,000 firm-years, so that the run takes memory and processor time of its own (the
+    // table leaves out the start and the exit).
+    let mut data = String::from("company,yr,ta_thousands\n");
+    for firm in 0..40_000 {
+        for yr in 2001..2011 {
+            data.push_str(&format!(
+                "F{firm},{yr},{}\n",
+                10 + (firm * 7 + yr * 13) % 991
+            ));
+        }
+    }
+    w.write("raw.csv", &data);
+    w.write("rules.toml", RULES);
+    let out = crate::util::run_reference(
+        "usage.py",
+        &[
+            w.dir.path(),
+            Path::new(env!("CARGO_BIN_EXE_panelready")),
+            Path::new("build"),
+            Path::new("raw.csv"),
+            Path::new("--rules"),
+            Path::new("rules.toml"),
+            Path::new("--out"),
+            Path::new("out"),
+            Path::new("--quiet"),
+            Path::new("--timings"),
+        ],
+    );
+    assert!(out.contains("stages; peak"), "{out}");
+}

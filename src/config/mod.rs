@@ -116,7 +116,7 @@ pub struct InputConfig {
     pub period: String,
     /// Hide progress.
     pub quiet: bool,
-    /// Print the wall time of each stage on stderr at the end.
+    /// Print the table of stages (wall, processor and kernel time, memory peak) on stderr at the end.
     pub timings: bool,
     /// How to read a CSV input.
     pub csv: CsvOptions,
