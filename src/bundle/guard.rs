@@ -6,25 +6,49 @@ use polars::prelude::*;
 use crate::Result;
 
 /// Text cells that a spreadsheet would read as a formula (starting with `=`, `+`, `-`, `@`,
-/// a tab or a carriage return) get a leading `'`. Numeric columns are untouched.
+/// a tab or a carriage return) get a leading `'`. Numeric columns are untouched, and so is a
+/// text column without such a cell: it is not copied (a pass of the engine finds the columns
+/// that have one first).
 pub fn guard_text(df: &DataFrame) -> Result<DataFrame> {
-    let schema = df.schema();
-    let guards: Vec<Expr> = schema
+    let risky = |name: &PlSmallStr| {
+        let c = col(name.clone());
+        ["=", "+", "-", "@", "\t", "\r"]
+            .iter()
+            .map(|p| c.clone().str().starts_with(lit(*p)))
+            .reduce(|a, b| a.or(b))
+            .expect("prefixes are listed")
+            .fill_null(lit(false))
+    };
+    let text: Vec<PlSmallStr> = df
+        .schema()
         .iter()
         .filter(|(_, dtype)| **dtype == DataType::String)
-        .map(|(name, _)| {
-            let c = col(name.clone());
-            let risky = ["=", "+", "-", "@", "\t", "\r"]
-                .iter()
-                .map(|p| c.clone().str().starts_with(lit(*p)))
-                .reduce(|a, b| a.or(b))
-                .expect("prefixes are listed");
-            when(risky.fill_null(lit(false)))
-                .then(lit("'") + c.clone())
-                .otherwise(c)
-                .alias(name.clone())
-        })
+        .map(|(name, _)| name.clone())
         .collect();
+    if text.is_empty() {
+        return Ok(df.clone());
+    }
+    let any = df
+        .clone()
+        .lazy()
+        .select(
+            text.iter()
+                .map(|name| risky(name).any(true).alias(name.clone()))
+                .collect::<Vec<_>>(),
+        )
+        .collect()?;
+    let mut guards = Vec::new();
+    for name in &text {
+        if any.column(name)?.bool()?.get(0) == Some(true) {
+            let c = col(name.clone());
+            guards.push(
+                when(risky(name))
+                    .then(lit("'") + c.clone())
+                    .otherwise(c)
+                    .alias(name.clone()),
+            );
+        }
+    }
     if guards.is_empty() {
         return Ok(df.clone());
     }

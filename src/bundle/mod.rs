@@ -234,4 +234,30 @@ mod tests {
             .unwrap()
             .equals(df.column("value").unwrap()));
     }
+
+    /// A text column without a risky cell comes back as it was, its buffer shared, not
+    /// copied; a column with one is guarded beside it.
+    #[test]
+    fn text_without_a_risky_cell_is_not_copied() {
+        let df = df!(
+            "firm" => ["Alder", "Birch", "Cedar"],
+            "note" => ["fine", "=1+1", "ok"],
+        )
+        .unwrap();
+        let g = guard_text(&df).unwrap();
+        let views = |d: &DataFrame, c: &str| {
+            d.column(c)
+                .unwrap()
+                .str()
+                .unwrap()
+                .downcast_iter()
+                .next()
+                .unwrap()
+                .views()
+                .as_ptr()
+        };
+        assert_eq!(views(&g, "firm"), views(&df, "firm"));
+        let notes: Vec<Option<&str>> = g.column("note").unwrap().str().unwrap().iter().collect();
+        assert_eq!(notes, [Some("fine"), Some("'=1+1"), Some("ok")]);
+    }
 }
