@@ -174,7 +174,7 @@ impl Plan {
     }
 
     /// The variables grouped by level, in evaluation order within each: level 0 reads no
-    /// derived variable, level k + 1 reads one of level k at most.
+    /// derived variable; level k + 1 reads one of level k and none of a higher level.
     fn levels(&self) -> Vec<Vec<&Planned>> {
         let mut level_of: BTreeMap<&str, usize> = BTreeMap::new();
         let mut levels: Vec<Vec<&Planned>> = Vec::new();
@@ -505,5 +505,24 @@ mod tests {
             err,
             "derived variables `a` -> `b` -> `a` depend on each other in a cycle"
         );
+    }
+
+    /// Levels: a variable sits one above the highest derived variable it reads, directly, in
+    /// a null condition or through a panel function; the others share level 0.
+    #[test]
+    fn variables_are_grouped_by_what_they_read() {
+        let raw: Vec<String> = ["firm", "year", "x"].map(String::from).into();
+        let r = rules(
+            "[derive.c]\nexpr = \"lag(b, 1)\"\n[derive.b]\nexpr = \"a * 2\"\n\
+             [derive.a]\nexpr = \"x + 1\"\n[derive.d]\nexpr = \"x\"\n\
+             [derive.e]\nexpr = \"x\"\nnull_when = [{ when = \"b > 0\", reason = \"r\" }]\n",
+        );
+        let plan = Plan::new(&r, &raw).unwrap();
+        let levels: Vec<Vec<&str>> = plan
+            .levels()
+            .iter()
+            .map(|l| l.iter().map(|v| v.name.as_str()).collect())
+            .collect();
+        assert_eq!(levels, [vec!["a", "d"], vec!["b"], vec!["c", "e"]]);
     }
 }

@@ -185,8 +185,8 @@ pub(crate) fn compile(rule: &str, text: &str, scope: &Scope) -> Result<Compiled>
 /// AND, OR and NOT combine conditions: each operand must be true or false (or NULL), as SQL
 /// has it. The engine would otherwise take two numbers bit by bit (`3 AND 4` is 0), and a
 /// number with text can make it fail outright; so each operand passes through a check of its
-/// type, made when the engine plans the expression (before any row is read), which stops the
-/// run with the rule's name.
+/// type, made when the engine plans the expression (before any value is computed), which stops
+/// the run with the rule's name.
 fn conditions_only(expr: Expr, rule: &str) -> Expr {
     use polars::prelude::{BooleanFunction, DataTypeExpr, FunctionExpr, Operator};
     use std::sync::Arc;
