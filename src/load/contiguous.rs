@@ -6,7 +6,8 @@
 //! its full length, and each slice of rows the engine reads is copied into it and let go
 //! before the next is read, so that the memory of one slice serves the next. Text is gathered
 //! the same way, view by view (the strings' buffers are shared); other columns keep the
-//! engine's chunks and are joined at the end.
+//! engine's chunks and are joined at the end. A file that fits in one slice and comes with
+//! every column in one chunk (one row group) is taken as the engine read it.
 
 use polars::prelude::*;
 use polars_arrow::array::MutableBinaryViewArray;
@@ -46,6 +47,12 @@ fn collect_in_slices(lf: LazyFrame, index: &str, slice: usize) -> PolarsResult<D
             .with_row_index(index.into(), Some((read + 1) as IdxSize))?;
         if part.height() == 0 {
             break;
+        }
+        // The whole file in one slice, each column already in one chunk: nothing to gather
+        // (a copy would take the panel's size in fresh memory again).
+        if read == 0 && part.height() == height && part.columns().iter().all(|c| c.n_chunks() == 1)
+        {
+            return Ok(part);
         }
         if sinks.is_empty() {
             sinks = part.columns().iter().map(|c| sink(c, height)).collect();
@@ -216,23 +223,27 @@ mod tests {
         let dir =
             std::env::temp_dir().join(format!("panelready-contiguous-{}", std::process::id()));
         std::fs::create_dir_all(&dir).unwrap();
-        let path = dir.join("slices.parquet");
-        ParquetWriter::new(std::fs::File::create(&path).unwrap())
-            .with_row_group_size(Some(1_000))
-            .finish(&mut df)
-            .unwrap();
-        let scan = || {
-            let path = PlRefPath::try_from_path(&path).unwrap();
-            LazyFrame::scan_parquet(path, ScanArgsParquet::default()).unwrap()
-        };
-        let expected = scan().with_row_index("row", Some(1)).collect().unwrap();
-        for slice in [1_000, 700, 3_499, 5_000] {
-            let got = collect_in_slices(scan(), "row", slice).unwrap();
-            assert!(got.equals_missing(&expected), "slices of {slice}");
-            for c in got.columns() {
-                let s = c.as_materialized_series();
-                if s.dtype().is_primitive_numeric() || s.dtype() == &DataType::String {
-                    assert_eq!(s.n_chunks(), 1, "{} in slices of {slice}", s.name());
+        // Row groups of 1,000 rows, and one row group for the whole file (read in one slice,
+        // its columns come in one chunk each and are taken as they are).
+        for group in [1_000, n] {
+            let path = dir.join(format!("slices-{group}.parquet"));
+            ParquetWriter::new(std::fs::File::create(&path).unwrap())
+                .with_row_group_size(Some(group))
+                .finish(&mut df)
+                .unwrap();
+            let scan = || {
+                let path = PlRefPath::try_from_path(&path).unwrap();
+                LazyFrame::scan_parquet(path, ScanArgsParquet::default()).unwrap()
+            };
+            let expected = scan().with_row_index("row", Some(1)).collect().unwrap();
+            for slice in [1_000, 700, 3_499, 5_000] {
+                let got = collect_in_slices(scan(), "row", slice).unwrap();
+                assert!(got.equals_missing(&expected), "slices of {slice}");
+                for c in got.columns() {
+                    let s = c.as_materialized_series();
+                    if s.dtype().is_primitive_numeric() || s.dtype() == &DataType::String {
+                        assert_eq!(s.n_chunks(), 1, "{} in slices of {slice}", s.name());
+                    }
                 }
             }
         }
