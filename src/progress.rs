@@ -76,9 +76,9 @@ impl Usage {
     }
 }
 
-/// Clock ticks per second of /proc's times: the kernel's USER_HZ, 100 on every architecture
-/// Linux runs on (common practice; asking `sysconf` would need `unsafe`, which the crate
-/// forbids).
+/// Clock ticks per second of /proc's times: the kernel's USER_HZ, 100 on x86, ARM and the
+/// other architectures in common use (common practice; asking `sysconf` would need `unsafe`,
+/// which the crate forbids; `tests/reference/usage.py` holds the result to getrusage(2)).
 const CLOCK_TICKS: f64 = 100.0;
 
 /// One stage's figures in `--timings`.
