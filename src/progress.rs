@@ -142,7 +142,7 @@ impl Progress {
             bar.reset_eta();
             bar.set_style(
                 ProgressStyle::with_template(&format!(
-                    "{{spinner}} {{msg}} [{{bar:24}}] {{pos}}/{{len}} {unit}, {{eta}} left ({{elapsed}})"
+                    "{{spinner}} {{msg}} [{{bar:24}}] {{human_pos}}/{{human_len}} {unit}, {{eta}} left ({{elapsed}})"
                 ))
                 .map(|s| s.progress_chars("=> "))
                 .unwrap_or_else(|_| spinner()),

@@ -14,6 +14,8 @@ use polars_arrow::array::MutableBinaryViewArray;
 use polars_arrow::bitmap::{Bitmap, MutableBitmap};
 use rayon::prelude::*;
 
+use crate::progress::Progress;
+
 /// Rows read at a time: a row group of pyarrow's default size, four of the engine's.
 const SLICE: usize = 1 << 20;
 
@@ -21,12 +23,22 @@ const SLICE: usize = 1 << 20;
 /// a time, and the row number (from 1) in a first column `index`. The slice goes straight to
 /// the file's reader; the row number is added to each slice after it is read (asked for
 /// before the slice, it made the reader count from the top for every slice).
-pub(super) fn collect(lf: LazyFrame, index: &str) -> PolarsResult<DataFrame> {
-    collect_in_slices(lf, index, SLICE)
+/// The rows read so far show on `progress`, when given.
+pub(super) fn collect(
+    lf: LazyFrame,
+    index: &str,
+    progress: Option<&Progress>,
+) -> PolarsResult<DataFrame> {
+    collect_in_slices(lf, index, SLICE, progress)
 }
 
 /// [`collect`] with `slice` rows at a time.
-fn collect_in_slices(lf: LazyFrame, index: &str, slice: usize) -> PolarsResult<DataFrame> {
+fn collect_in_slices(
+    lf: LazyFrame,
+    index: &str,
+    slice: usize,
+    progress: Option<&Progress>,
+) -> PolarsResult<DataFrame> {
     let counted = lf.clone().select([len().alias("rows")]).collect()?;
     let height = counted
         .column("rows")?
@@ -36,6 +48,9 @@ fn collect_in_slices(lf: LazyFrame, index: &str, slice: usize) -> PolarsResult<D
         .unwrap_or(0) as usize;
     if height == 0 {
         return lf.with_row_index(index, Some(1)).collect();
+    }
+    if let Some(progress) = progress {
+        progress.items_of(height, "rows");
     }
     let mut sinks: Vec<Box<dyn Sink>> = Vec::new();
     let mut read = 0;
@@ -47,6 +62,9 @@ fn collect_in_slices(lf: LazyFrame, index: &str, slice: usize) -> PolarsResult<D
             .with_row_index(index.into(), Some((read + 1) as IdxSize))?;
         if part.height() == 0 {
             break;
+        }
+        if let Some(progress) = progress {
+            progress.done(part.height());
         }
         // The whole file in one slice, each column already in one chunk: nothing to gather
         // (a copy would take the panel's size in fresh memory again).
@@ -237,7 +255,7 @@ mod tests {
             };
             let expected = scan().with_row_index("row", Some(1)).collect().unwrap();
             for slice in [1_000, 700, 3_499, 5_000] {
-                let got = collect_in_slices(scan(), "row", slice).unwrap();
+                let got = collect_in_slices(scan(), "row", slice, None).unwrap();
                 assert!(got.equals_missing(&expected), "slices of {slice}");
                 for c in got.columns() {
                     let s = c.as_materialized_series();

@@ -66,6 +66,15 @@ pub fn read_raw(
 /// Read the input named in `cfg` and check its keys. `joined` names the columns that joined
 /// tables will bring (a `[columns]` mapping may point to them).
 pub fn load(cfg: &InputConfig, joined: &[String]) -> Result<Loaded> {
+    load_showing(cfg, joined, None)
+}
+
+/// [`load`], showing the rows of a Parquet input read so far on `progress`.
+pub fn load_showing(
+    cfg: &InputConfig,
+    joined: &[String],
+    progress: Option<&crate::progress::Progress>,
+) -> Result<Loaded> {
     // A Windows-1252 (Latin-1) file is read through a UTF-8 copy in the temporary folder.
     let utf8 = match (cfg.format, cfg.csv.encoding) {
         (InputFormat::Csv, Encoding::Windows1252) => Some(Transcoded::new(&cfg.path)?),
@@ -144,7 +153,7 @@ pub fn load(cfg: &InputConfig, joined: &[String]) -> Result<Loaded> {
     // Read once. Column types are guessed from the first rows; if a later row does not fit
     // (a decimal in a column of whole numbers, say), read again guessing from every row.
     let read = match cfg.format {
-        InputFormat::Parquet => contiguous::collect(lf, ROW),
+        InputFormat::Parquet => contiguous::collect(lf, ROW, progress),
         _ => lf.with_row_index(ROW, Some(1)).collect(),
     };
     let df = match read {

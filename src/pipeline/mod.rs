@@ -111,7 +111,7 @@ pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<P
     progress.stage("reading the input");
     // Every value of the rules file is checked before any file is read, by both commands.
     let typed = typed(input, mode)?;
-    let mut read = read::read(input, &typed)?;
+    let mut read = read::read(input, &typed, progress)?;
     let rules = &input.rules;
     let columns = read.columns.clone();
 

@@ -16,8 +16,8 @@ pub(super) struct Read {
     pub columns: Vec<String>,
 }
 
-/// Read every file the run needs.
-pub(super) fn read(input: &InputConfig, typed: &Typed) -> Result<Read> {
+/// Read every file the run needs, showing the main file's rows read (Parquet) on `progress`.
+pub(super) fn read(input: &InputConfig, typed: &Typed, progress: &Progress) -> Result<Read> {
     let rules = &input.rules;
     let corrections = match &rules.file.repair.corrections {
         Some(name) => {
@@ -29,7 +29,7 @@ pub(super) fn read(input: &InputConfig, typed: &Typed) -> Result<Read> {
     // Joined tables are read and checked before the main file.
     let tables = assemble::read_tables(rules, &input.csv, &input.entity, &input.period)?;
     let joined_columns: Vec<String> = tables.iter().flat_map(|t| t.brought.clone()).collect();
-    let loaded = load::load(input, &joined_columns)?;
+    let loaded = load::load_showing(input, &joined_columns, Some(progress))?;
     let columns: Vec<String> = loaded
         .columns
         .iter()
