@@ -37,19 +37,19 @@ impl Mark {
 
 /// The process's processor time so far and its resident-memory peak, as Linux reports them.
 #[derive(Debug, Clone, Copy, PartialEq)]
-pub struct Usage {
+struct Usage {
     /// Seconds on a processor in user mode, every thread.
-    pub user: f64,
+    user: f64,
     /// Seconds on a processor in the kernel on the process's behalf (page faults, I/O).
-    pub system: f64,
+    system: f64,
     /// The largest resident set so far, bytes.
-    pub peak: u64,
+    peak: u64,
 }
 
 impl Usage {
     /// Read from /proc/self (proc(5): `stat` fields 14 and 15, `utime` and `stime`, in clock
     /// ticks; `status`'s `VmHWM` in kB). None where there is no such file.
-    pub fn now() -> Option<Usage> {
+    fn now() -> Option<Usage> {
         let stat = std::fs::read_to_string("/proc/self/stat").ok()?;
         let status = std::fs::read_to_string("/proc/self/status").ok()?;
         Usage::parse(&stat, &status)

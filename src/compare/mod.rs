@@ -167,7 +167,7 @@ fn bundle_vintage(dir: &Path) -> Result<Vintage> {
 }
 
 fn raw_vintage(cfg: &InputConfig) -> Result<Vintage> {
-    let loaded = crate::load::load(cfg, &[])?;
+    let loaded = crate::load::load(cfg, &[], None)?;
     let (e, p) = (cfg.entity.as_str(), cfg.period.as_str());
     let df = loaded.df.drop(crate::load::ROW)?;
     let keyed = df

@@ -64,13 +64,9 @@ pub fn read_raw(
 }
 
 /// Read the input named in `cfg` and check its keys. `joined` names the columns that joined
-/// tables will bring (a `[columns]` mapping may point to them).
-pub fn load(cfg: &InputConfig, joined: &[String]) -> Result<Loaded> {
-    load_showing(cfg, joined, None)
-}
-
-/// [`load`], showing the rows of a Parquet input read so far on `progress`.
-pub fn load_showing(
+/// tables will bring (a `[columns]` mapping may point to them). A Parquet input's rows read so
+/// far show on `progress`, when given.
+pub fn load(
     cfg: &InputConfig,
     joined: &[String],
     progress: Option<&crate::progress::Progress>,

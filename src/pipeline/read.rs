@@ -29,7 +29,7 @@ pub(super) fn read(input: &InputConfig, typed: &Typed, progress: &Progress) -> R
     // Joined tables are read and checked before the main file.
     let tables = assemble::read_tables(rules, &input.csv, &input.entity, &input.period)?;
     let joined_columns: Vec<String> = tables.iter().flat_map(|t| t.brought.clone()).collect();
-    let loaded = load::load_showing(input, &joined_columns, Some(progress))?;
+    let loaded = load::load(input, &joined_columns, Some(progress))?;
     let columns: Vec<String> = loaded
         .columns
         .iter()
