@@ -43,13 +43,21 @@ pub fn run(cfg: &BuildConfig) -> Result<i32> {
 /// Run the whole pipeline and write the bundle; the library entry point behind `build`.
 pub fn build(cfg: &BuildConfig) -> Result<bundle::Manifest> {
     let progress = progress::Progress::new(cfg.input.quiet, cfg.input.timings);
-    // The input's hash for the manifest, read beside the pipeline (both only read the file).
+    // The input's hash for the manifest, read beside the pipeline once the reading is done:
+    // the engine decodes the file on every core, and a hash beside it took one of them.
     let path = cfg.input.path.clone();
-    let hashing = std::thread::spawn(move || bundle::sha256_file(&path));
-    let mut prepared = pipeline::prepare(&cfg.input, pipeline::Mode::Build, &progress)?;
+    let mut hashing = None;
+    let mut prepared =
+        pipeline::prepare_with(&cfg.input, pipeline::Mode::Build, &progress, || {
+            hashing = Some(std::thread::spawn(move || bundle::sha256_file(&path)));
+        })?;
     progress.stage("writing the bundle");
-    let input_sha256 = hashing
-        .join()
-        .unwrap_or_else(|panic| std::panic::resume_unwind(panic))?;
+    let input_sha256 = match hashing {
+        Some(hashing) => hashing
+            .join()
+            .unwrap_or_else(|panic| std::panic::resume_unwind(panic))?,
+        // Not reached: `prepare_with` returns only after the reading.
+        None => bundle::sha256_file(&cfg.input.path)?,
+    };
     bundle::write(cfg, &mut prepared, &input_sha256, &progress)
 }

@@ -108,10 +108,22 @@ pub struct DictionaryEntry {
 
 /// Run the pipeline on one input: the stages in order, each in its own module.
 pub fn prepare(input: &InputConfig, mode: Mode, progress: &Progress) -> Result<Prepared> {
+    prepare_with(input, mode, progress, || {})
+}
+
+/// [`prepare`], calling `after_reading` once the input is read (`build` starts hashing the
+/// input file then).
+pub fn prepare_with(
+    input: &InputConfig,
+    mode: Mode,
+    progress: &Progress,
+    after_reading: impl FnOnce(),
+) -> Result<Prepared> {
     progress.stage("reading the input");
     // Every value of the rules file is checked before any file is read, by both commands.
     let typed = typed(input, mode)?;
     let mut read = read::read(input, &typed, progress)?;
+    after_reading();
     let rules = &input.rules;
     let columns = read.columns.clone();
 

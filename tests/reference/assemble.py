@@ -178,6 +178,10 @@ def main():
     main_rows = int((ledger["source_file"] == os.path.basename(raw_path)).sum())
     same("rows read = kept + main-file ledger rows", len(raw), len(panel) + main_rows)
     same("manifest rows.rejected", main_rows, manifest["rows"]["rejected"])
+    # The main input's hash (taken beside the pipeline once the file is read) against
+    # hashlib's SHA-256 of the same bytes.
+    digest = hashlib.sha256(open(raw_path, "rb").read()).hexdigest()
+    same("manifest input.sha256", digest, manifest["input"]["sha256"])
 
     # The joined columns of the cleaned panel, after the corrections file.
     both = df.merge(panel, on=[entity, period], suffixes=("_ref", ""))
