@@ -71,46 +71,10 @@ impl PanelCore {
     /// Codes for `df`, which must be sorted by `entity` then `period`; rows missing a key are
     /// not expected (the key steps remove them) and count as one more entity or period.
     pub fn new(df: &DataFrame, entity: &str, period: &str) -> Result<PanelCore> {
-        let ids = df.column(entity)?.cast(&DataType::String)?;
-        let ids = ids.str()?;
-        let mut codes = Vec::with_capacity(df.height());
-        let mut starts = Vec::new();
-        if let Some(same) = keys::same_as_previous(ids) {
-            if !ids.is_empty() {
-                starts.push(0);
-                codes.push(0);
-            }
-            for (r, same) in same.enumerate() {
-                if !same {
-                    starts.push(r + 1);
-                }
-                codes.push((starts.len() - 1) as u32);
-            }
-        } else {
-            let mut last: Option<Option<&str>> = None;
-            for (r, id) in ids.iter().enumerate() {
-                if last != Some(id) {
-                    starts.push(r);
-                    last = Some(id);
-                }
-                codes.push((starts.len() - 1) as u32);
-            }
-        }
-        starts.push(df.height());
-        let p = df.column(period)?.cast(&DataType::Int64)?;
-        let p = p.i64()?;
-        // Few distinct periods: a sorted list grown by binary search, skipping repeats.
-        let mut periods: Vec<i64> = Vec::new();
-        let mut previous = None;
-        for v in p.iter().flatten() {
-            if previous != Some(v) {
-                if let Err(at) = periods.binary_search(&v) {
-                    periods.insert(at, v);
-                }
-                previous = Some(v);
-            }
-        }
-        let period = keys::period_codes(p, &periods);
+        // The two keys' codes are independent passes over the rows: one on each core.
+        let (entities, periods) =
+            rayon::join(|| entity_codes(df, entity), || period_codes(df, period));
+        let ((codes, starts), (period, periods)) = (entities?, periods?);
         Ok(PanelCore {
             entity: codes,
             period,
@@ -395,6 +359,56 @@ impl PanelCore {
         }
         rss
     }
+}
+
+/// Each row's entity code in a panel sorted by `entity`, and where each entity's rows start
+/// (with the row count last).
+fn entity_codes(df: &DataFrame, entity: &str) -> Result<(Vec<u32>, Vec<usize>)> {
+    let ids = df.column(entity)?.cast(&DataType::String)?;
+    let ids = ids.str()?;
+    let mut codes = Vec::with_capacity(df.height());
+    let mut starts = Vec::new();
+    if let Some(same) = keys::same_as_previous(ids) {
+        if !ids.is_empty() {
+            starts.push(0);
+            codes.push(0);
+        }
+        for (r, same) in same.enumerate() {
+            if !same {
+                starts.push(r + 1);
+            }
+            codes.push((starts.len() - 1) as u32);
+        }
+    } else {
+        let mut last: Option<Option<&str>> = None;
+        for (r, id) in ids.iter().enumerate() {
+            if last != Some(id) {
+                starts.push(r);
+                last = Some(id);
+            }
+            codes.push((starts.len() - 1) as u32);
+        }
+    }
+    starts.push(df.height());
+    Ok((codes, starts))
+}
+
+/// Each row's period code and the distinct periods, ascending.
+fn period_codes(df: &DataFrame, period: &str) -> Result<(Vec<u32>, Vec<i64>)> {
+    let p = df.column(period)?.cast(&DataType::Int64)?;
+    let p = p.i64()?;
+    // Few distinct periods: a sorted list grown by binary search, skipping repeats.
+    let mut periods: Vec<i64> = Vec::new();
+    let mut previous = None;
+    for v in p.iter().flatten() {
+        if previous != Some(v) {
+            if let Err(at) = periods.binary_search(&v) {
+                periods.insert(at, v);
+            }
+            previous = Some(v);
+        }
+    }
+    Ok((keys::period_codes(p, &periods), periods))
 }
 
 /// Hashing of the period-set masks in `two_way`: the mask folded to 64 bits and mixed by the
