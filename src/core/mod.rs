@@ -160,11 +160,16 @@ impl PanelCore {
             flat += u64::from(c > 1 && same);
         }
         let mean = sum / n as f64;
-        let e_mean: Vec<f64> = e_sum
-            .iter()
-            .zip(&e_n)
-            .map(|(s, c)| if *c > 0 { s / *c as f64 } else { 0.0 })
-            .collect();
+        // Each entity's mean, computed where it is read rather than kept in a list of its
+        // own: two entity-length buffers of fresh memory per variable fewer.
+        let e_mean = |e: usize| {
+            let c = e_n[e];
+            if c > 0 {
+                e_sum[e] / c as f64
+            } else {
+                0.0
+            }
+        };
         let p_mean: Vec<f64> = p_sum
             .iter()
             .zip(&p_n)
@@ -173,7 +178,8 @@ impl PanelCore {
         let (mut tss, mut wss, mut pss) = (0.0, 0.0, 0.0);
         // b of the two-way system: period sums of the entity-demeaned values.
         let mut b = vec![0.0; nt];
-        for (m, rows) in e_mean.iter().zip(self.starts.windows(2)) {
+        for (e, rows) in self.starts.windows(2).enumerate() {
+            let m = e_mean(e);
             let (v_rows, t_rows) = (&values[rows[0]..rows[1]], &self.period[rows[0]..rows[1]]);
             for (i, (&v, &t)) in v_rows.iter().zip(t_rows).enumerate() {
                 let k = present(rows[0] + i);
@@ -190,16 +196,12 @@ impl PanelCore {
             }
         }
         // Between: SD of the entity means, each entity with a value once, n - 1.
-        let observed: Vec<f64> = e_mean
-            .iter()
-            .zip(&e_n)
-            .filter(|(_, c)| **c > 0)
-            .map(|(m, _)| *m)
-            .collect();
-        let sd_between = if observed.len() > 1 {
-            let k = observed.len() as f64;
-            let mm = observed.iter().sum::<f64>() / k;
-            (observed.iter().map(|m| (m - mm).powi(2)).sum::<f64>() / (k - 1.0)).sqrt()
+        let observed = || (0..e_n.len()).filter(|e| e_n[*e] > 0).map(e_mean);
+        let k = e_n.iter().filter(|c| **c > 0).count();
+        let sd_between = if k > 1 {
+            let k = k as f64;
+            let mm = observed().sum::<f64>() / k;
+            (observed().map(|m| (m - mm).powi(2)).sum::<f64>() / (k - 1.0)).sqrt()
         } else {
             f64::NAN
         };
