@@ -81,13 +81,19 @@ impl PanelCore {
             at
         };
         let (e_start, t_start) = (offsets(&e_keys), offsets(&t_keys));
-        let mut by_period = vec![0u32; keys];
-        let mut next = t_start.clone();
-        for k in 0..keys {
-            let t = key(k).1;
-            by_period[next[t]] = k as u32;
-            next[t] += 1;
-        }
+        // Only a period left with one key needs the period's list, which a panel of many
+        // entities seldom has: the list (four bytes a key) is made on first need.
+        let list_by_period = || {
+            let mut by_period = vec![0u32; keys];
+            let mut next = t_start.clone();
+            for k in 0..keys {
+                let t = key(k).1;
+                by_period[next[t]] = k as u32;
+                next[t] += 1;
+            }
+            by_period
+        };
+        let mut by_period: Option<Vec<u32>> = None;
         let mut alive = vec![true; keys];
         let mut stack: Vec<(bool, u32)> = (0..ne)
             .filter(|e| e_keys[*e] == 1)
@@ -109,7 +115,7 @@ impl PanelCore {
                 if t_keys[i] != 1 {
                     continue;
                 }
-                by_period[t_start[i]..t_start[i + 1]]
+                by_period.get_or_insert_with(list_by_period)[t_start[i]..t_start[i + 1]]
                     .iter()
                     .map(|k| *k as usize)
                     .find(|k| alive[*k])
