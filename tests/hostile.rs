@@ -722,3 +722,47 @@ fn files_researchers_really_get_are_read() {
         want
     );
 }
+
+/// The engine's Parquet decode setting, which the binary sets unless the user has: a value
+/// that is not a whole number stops the run with one line naming the variable, exit 2 and no
+/// bundle (the engine itself would stop with an internal error, exit 3); a whole number is
+/// kept and the run reads Parquet as usual.
+#[test]
+fn decode_setting_from_the_environment_must_be_a_whole_number() {
+    const VAR: &str = "POLARS_PARQUET_DECODE_TARGET_VALUES_PER_THREAD";
+    let w = Workdir::new();
+    w.write("raw.csv", GOOD);
+    w.write("rules.toml", KEYS);
+    w.ok(&[
+        "build",
+        "raw.csv",
+        "--rules",
+        "rules.toml",
+        "--out",
+        "first",
+    ]);
+    let parquet = [
+        "build",
+        "first/panel.parquet",
+        "--rules",
+        "rules.toml",
+        "--out",
+        "out",
+    ];
+    for value in ["abc", "-5", ""] {
+        let r = w.run_with(&parquet, &[(VAR, value)]);
+        assert_eq!(r.code, 2, "{value:?}: {}", r.stderr);
+        let line = r.stderr.trim_end();
+        assert_eq!(line.lines().count(), 1, "{line}");
+        assert!(
+            line.starts_with("panelready: error: ") && line.contains(VAR),
+            "{line}"
+        );
+        assert!(!w.path("out").exists(), "{value:?}: a bundle was left");
+    }
+    let r = w.run_with(&parquet, &[(VAR, "1")]);
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    let manifest = std::fs::read_to_string(w.path("out/manifest.json")).unwrap();
+    let manifest: serde_json::Value = serde_json::from_str(&manifest).unwrap();
+    assert_eq!(manifest["rows"]["kept"], 4);
+}

@@ -37,10 +37,16 @@ impl Workdir {
     }
 
     pub fn run(&self, args: &[&str]) -> Run {
+        self.run_with(args, &[])
+    }
+
+    /// [`Workdir::run`] with the environment variables `env` set.
+    pub fn run_with(&self, args: &[&str], env: &[(&str, &str)]) -> Run {
         let out: Output = Command::new(env!("CARGO_BIN_EXE_panelready"))
             .args(args)
             .current_dir(self.dir.path())
             .env_remove("SOURCE_DATE_EPOCH")
+            .envs(env.iter().copied())
             .output()
             .expect("run panelready");
         Run {
