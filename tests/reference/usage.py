@@ -6,8 +6,11 @@ Usage:
       os.wait4, which returns the resource usage the kernel kept for the finished process
       (getrusage(2): ru_maxrss, its largest resident set in KiB on Linux; ru_utime and
       ru_stime, its processor time in user mode and in the kernel), and compare:
-        - the table's last peak (whole MiB, rounded down) with ru_maxrss: no more than it, and
-          no less than it less 1.5 MiB and 0.5 % (what the run holds after its last stage);
+        - the table's last peak (whole MiB, rounded down) with ru_maxrss: no more than it plus
+          1 MiB (the kernel keeps its count of resident pages per processor and reads it
+          approximately, at different moments for the two figures: runs here printed 133–144
+          MiB against a ru_maxrss 0.1–0.2 MiB lower, about one in three), and no less
+          than it less 1.5 MiB and 0.5 % (what the run holds after its last stage);
         - the table's total user-mode and kernel seconds (processor minus kernel, and kernel)
           are no more than ru_utime and ru_stime plus a clock tick (the table leaves out the
           start and the exit), and no less than 80 % of them less 0.1 s;
@@ -52,8 +55,8 @@ def main():
     stages, total = rows[:-1], rows[-1]
     bad = []
     maxrss_mib = usage.ru_maxrss / 1024
-    if not maxrss_mib - 1.5 - 0.005 * maxrss_mib <= total[3] <= maxrss_mib:
-        bad.append(f"peak {total[3]} MiB, kernel's ru_maxrss {maxrss_mib:.1f} MiB")
+    if not maxrss_mib - 1.5 - 0.005 * maxrss_mib <= total[3] <= maxrss_mib + 1.0:
+        bad.append(f"peak {total[3]} MiB, kernel's ru_maxrss {maxrss_mib:.3f} MiB")
     for label, ours, theirs in [
         ("user-mode", total[1] - total[2], usage.ru_utime),
         ("kernel", total[2], usage.ru_stime),
