@@ -101,7 +101,7 @@ impl Plan {
         let mut reach: BTreeMap<String, (i64, i64)> = BTreeMap::new();
         for var in &self.vars {
             let mut r = (0i64, 0i64);
-            for c in std::iter::once(&var.value).chain(var.conditions.iter().map(|(_, c)| c)) {
+            for c in var.compiled() {
                 for s in &c.shifts {
                     let (b, a) = reach.get(&s.column).copied().unwrap_or((0, 0));
                     r.0 = r.0.max(b + s.k.max(0));
@@ -137,10 +137,8 @@ impl Plan {
         for level in self.levels() {
             let mut shifted = Vec::new();
             for var in &level {
-                let shifts: BTreeSet<&Shift> = std::iter::once(&var.value)
-                    .chain(var.conditions.iter().map(|(_, c)| c))
-                    .flat_map(|c| c.shifts.iter())
-                    .collect();
+                let shifts: BTreeSet<&Shift> =
+                    var.compiled().flat_map(|c| c.shifts.iter()).collect();
                 for shift in shifts {
                     let name = shift.hidden_name();
                     if hidden.contains(&name) {
@@ -179,8 +177,8 @@ impl Plan {
         let mut level_of: BTreeMap<&str, usize> = BTreeMap::new();
         let mut levels: Vec<Vec<&Planned>> = Vec::new();
         for var in &self.vars {
-            let level = std::iter::once(&var.value)
-                .chain(var.conditions.iter().map(|(_, c)| c))
+            let level = var
+                .compiled()
                 .flat_map(|c| c.derived_deps.iter())
                 .filter_map(|d| level_of.get(d.as_str()).map(|l| l + 1))
                 .max()
@@ -254,6 +252,11 @@ impl Plan {
 }
 
 impl Planned {
+    /// Its value's expression and its null conditions', compiled.
+    fn compiled(&self) -> impl Iterator<Item = &Compiled> {
+        std::iter::once(&self.value).chain(self.conditions.iter().map(|(_, c)| c))
+    }
+
     fn any_condition(&self) -> Option<Expr> {
         self.conditions
             .iter()
