@@ -70,6 +70,13 @@ pub enum Error {
     /// The expression parsed, but polars could not translate it.
     #[error("{rule}: {message}")]
     RuleExpr { rule: String, message: String },
+    /// An environment variable the run reads holds a value it cannot use.
+    #[error("the environment variable {variable} is {value:?}, {message}")]
+    Environment {
+        variable: &'static str,
+        value: std::ffi::OsString,
+        message: &'static str,
+    },
     /// A setting in the rules file is out of range.
     #[error("rules file: `{setting}` {message}")]
     Setting {

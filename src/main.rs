@@ -33,31 +33,30 @@ const DECODE_TARGET: &str = "POLARS_PARQUET_DECODE_TARGET_VALUES_PER_THREAD";
 /// alternating pairs, the 1 M one (a single row group) 0.12–0.135 s against 0.18–0.20 s in
 /// four. Set before any thread starts (the engine reads it when it plans a read); a value the
 /// user set is kept, if it is a whole number (the engine would stop on any other with an
-/// internal error): else the one line of why, for exit code 2.
-fn decode_columns_in_parallel() -> Result<(), String> {
+/// internal error): else the error to report.
+fn decode_columns_in_parallel() -> Result<(), panelready::Error> {
     match std::env::var_os(DECODE_TARGET) {
         None => {
             std::env::set_var(DECODE_TARGET, (1usize << 20).to_string());
             Ok(())
         }
         Some(v) if v.to_str().is_some_and(|v| v.parse::<usize>().is_ok()) => Ok(()),
-        Some(v) => Err(format!(
-            "the environment variable {DECODE_TARGET} is {v:?}, not a whole number of values"
-        )),
+        Some(value) => Err(panelready::Error::Environment {
+            variable: DECODE_TARGET,
+            value,
+            message: "not a whole number of values",
+        }),
     }
 }
-
-/// The exit code of bad input (the library's own, for the environment's).
-const BAD_INPUT_EXIT: i32 = 2;
 
 /// The exit code of a run that ended in a panic (an internal error).
 const PANIC_EXIT: i32 = 3;
 
 fn main() {
     small_pages_only();
-    if let Err(why) = decode_columns_in_parallel() {
-        eprintln!("panelready: error: {why}");
-        std::process::exit(BAD_INPUT_EXIT);
+    if let Err(err) = decode_columns_in_parallel() {
+        eprintln!("panelready: error: {err}");
+        std::process::exit(err.code());
     }
     panic::set_hook(Box::new(|info| {
         let what = info

@@ -750,14 +750,7 @@ fn decode_setting_from_the_environment_must_be_a_whole_number() {
         "out",
     ];
     for value in ["abc", "-5", ""] {
-        let r = w.run_with(&parquet, &[(VAR, value)]);
-        assert_eq!(r.code, 2, "{value:?}: {}", r.stderr);
-        let line = r.stderr.trim_end();
-        assert_eq!(line.lines().count(), 1, "{line}");
-        assert!(
-            line.starts_with("panelready: error: ") && line.contains(VAR),
-            "{line}"
-        );
+        w.fails_with(&parquet, &[(VAR, value)], VAR);
         assert!(!w.path("out").exists(), "{value:?}: a bundle was left");
     }
     let r = w.run_with(&parquet, &[(VAR, "1")]);

@@ -69,7 +69,12 @@ impl Workdir {
 
     /// Run, insist on exit 2 with a one-line error containing `want`, and return it.
     pub fn fails(&self, args: &[&str], want: &str) -> String {
-        let r = self.run(args);
+        self.fails_with(args, &[], want)
+    }
+
+    /// [`Workdir::fails`] with the environment variables `env` set.
+    pub fn fails_with(&self, args: &[&str], env: &[(&str, &str)], want: &str) -> String {
+        let r = self.run_with(args, env);
         assert_eq!(
             r.code, 2,
             "expected exit 2 for {args:?}\nstdout:\n{}\nstderr:\n{}",
