@@ -145,10 +145,10 @@ impl Plan {
                         continue;
                     }
                     match layout {
-                        Layout::SortedUnique => {
+                        Layout::SortedUnique if shift.k.unsigned_abs() <= NEARBY_REACH => {
                             shifted.push(nearby(shift, entity, period).alias(name.as_str()))
                         }
-                        Layout::Any => lf = add_shift(lf, shift, &name, entity, period),
+                        _ => lf = add_shift(lf, shift, &name, entity, period),
                     }
                     hidden.push(name);
                 }
@@ -362,6 +362,11 @@ pub enum Layout {
     /// Anything else (duplicate keys, any order).
     Any,
 }
+
+/// The longest lag or lead read from the rows nearby ([`nearby`] looks at each of the |k| rows
+/// before or after, one step of the expression each); a longer one is joined on (entity,
+/// period ± k), whose cost does not grow with k.
+const NEARBY_REACH: u64 = 8;
 
 /// On a frame sorted by (entity, period) with unique keys, the row for period t − k of the
 /// same entity, if present, lies at most |k| rows away: look at each of those rows.

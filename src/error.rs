@@ -35,6 +35,24 @@ pub enum Error {
         row: u64,
         value: String,
     },
+    /// The period column's window holds more periods than a panel may
+    /// (`rules::MAX_WINDOW_PERIODS`).
+    #[error(
+        "`{file}`: period column `{column}` runs from {first} (row {first_row}) to {last} (row \
+         {last_row}), a window of {periods} periods; periods are consecutive whole numbers such \
+         as fiscal years, at most {most} of them: turn a date or a code (YYYYMMDD, a timestamp) \
+         into a period first"
+    )]
+    PeriodWindow {
+        file: PathBuf,
+        column: String,
+        first: i64,
+        first_row: u64,
+        last: i64,
+        last_row: u64,
+        periods: i128,
+        most: i64,
+    },
     /// The input's extension does not say whether it is CSV or Parquet.
     #[error(
         "`{file}`: cannot tell the format from the extension; pass `--input-format csv|parquet`"

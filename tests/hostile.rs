@@ -121,6 +121,34 @@ fn malformed_csv_stops_with_one_located_line() {
             "",
             &["raw.csv", "row 1"],
         ),
+        // Periods are consecutive whole numbers, at most 1000 of them in the window: these are
+        // a date code, a timestamp-like value and the extremes of 64-bit integers (each made
+        // the run panic or exhaust memory before the check).
+        bad(
+            "date code as period",
+            b"firm,year,assets\nA,20010131,1\nA,20020131,2\nB,20010131,3\n",
+            "",
+            &[
+                "raw.csv",
+                "`year`",
+                "row 1",
+                "row 2",
+                "10001 periods",
+                "at most 1000",
+            ],
+        ),
+        bad(
+            "period far apart",
+            b"firm,year,assets\nA,1,1\nA,1000000000,2\nB,1,3\nB,2,4\n",
+            "",
+            &["raw.csv", "`year`", "1000000000 (row 2)"],
+        ),
+        bad(
+            "periods at the integer extremes",
+            b"firm,year,assets\nA,-9223372036854775808,1\nA,9223372036854775807,2\nB,0,3\n",
+            "",
+            &["raw.csv", "`year`", "18446744073709551616 periods"],
+        ),
         bad(
             "no entity column",
             b"company,year,assets\nA,2001,1\n",
@@ -293,6 +321,10 @@ fn values_of_the_rules_file_are_checked_before_any_file_is_read() {
         ("[clean]\ndrop_singletons = \"often\"\n", "drop_singletons"),
         ("[clean]\nbalance = \"tidy\"\n", "[clean] balance"),
         (
+            "[clean]\nbalance = { window = [1, 5000000000] }\n",
+            "more than 1000 periods",
+        ),
+        (
             "[clean]\nwinsorize = { variables = [\"assets\"], lower = 0.9, upper = 0.1 }\n",
             "[clean] winsorize",
         ),
@@ -368,6 +400,15 @@ fn bad_expressions_name_the_rule() {
         (rule("row_number() OVER ()"), &["`x`", "whole column"]),
         (rule("lag(assets + 1, 1)"), &["`x`", "column name"]),
         (rule("lag(assets, 0)"), &["`x`", "at least 1"]),
+        // A lag this long took minutes and all memory before it was bounded.
+        (
+            rule("lag(assets, 9223372036854775807)"),
+            &["`x`", "at most 1000"],
+        ),
+        (
+            rule("lag(lag(assets, 1), 1)"),
+            &["`x`", "`lag(lag(assets, 1), 1)`", "another panel function"],
+        ),
         (rule("lag(assets, -1)"), &["`x`"]),
         (rule("lag(assets, 1, 2)"), &["`x`"]),
         (rule("assets assets"), &["`x`", "unexpected"]),
@@ -565,6 +606,11 @@ fn valid_edge_data_builds_a_correct_bundle() {
             "[derive.s]\nexpr = '\"select\" + \"from\"'\n".into(),
         ),
         (
+            "a window of exactly 1000 periods",
+            "firm,year,x,y\nA,1001,1,2\nA,2000,2,3\nB,1500,3,1\nB,1501,4,5\n".into(),
+            String::new(),
+        ),
+        (
             "formula-looking text",
             "firm,year,note,y\nA,2001,=cmd(),2\nA,2002,+1,3\n".into(),
             String::new(),
@@ -758,4 +804,59 @@ fn decode_setting_from_the_environment_must_be_a_whole_number() {
     let manifest = std::fs::read_to_string(w.path("out/manifest.json")).unwrap();
     let manifest: serde_json::Value = serde_json::from_str(&manifest).unwrap();
     assert_eq!(manifest["rows"]["kept"], 4);
+}
+
+#[test]
+fn long_lags_read_exactly_k_periods_back() {
+    // Two firms over 2001–2030, firm B without 2015, x = 10 × year + the firm's number: the
+    // value k periods back is x − 10k where that period is present, else missing (worked by
+    // hand). Lags of up to 8 periods read the rows nearby, longer ones a join: both are held
+    // to the same rule.
+    let mut data = String::from("firm,year,x\n");
+    for (firm, number) in [("A", 1), ("B", 2)] {
+        for year in 2001..=2030 {
+            if firm == "B" && year == 2015 {
+                continue;
+            }
+            data += &format!("{firm},{year},{}\n", 10 * year + number);
+        }
+    }
+    let w = Workdir::new();
+    w.write("raw.csv", &data);
+    let ks = [1i64, 8, 9, 12, 29, 30, -3, -10];
+    let mut rules = KEYS.to_string();
+    for k in ks {
+        let call = if k > 0 {
+            format!("lag(x, {k})")
+        } else {
+            format!("lead(x, {})", -k)
+        };
+        rules += &format!("[derive.s{}]\nexpr = \"{call}\"\n", k + 100);
+    }
+    w.write("rules.toml", &rules);
+    w.ok(&["build", "raw.csv", "--rules", "rules.toml", "--out", "out"]);
+    let panel = std::fs::read_to_string(w.path("out/panel.csv")).unwrap();
+    let mut lines = panel.lines();
+    let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let at = |name: &str| header.iter().position(|h| *h == name).unwrap();
+    let mut checked = 0;
+    for line in lines {
+        let cells: Vec<&str> = line.split(',').collect();
+        let firm = cells[at("firm")];
+        let year: i64 = cells[at("year")].parse().unwrap();
+        let x: i64 = cells[at("x")].parse().unwrap();
+        for k in ks {
+            let back = year - k;
+            let present = (2001..=2030).contains(&back) && !(firm == "B" && back == 2015);
+            let want = if present {
+                (x - 10 * k).to_string()
+            } else {
+                String::new()
+            };
+            let got = cells[at(&format!("s{}", k + 100))].trim_end_matches(".0");
+            assert_eq!(got, want, "{firm} {year}, k = {k}");
+            checked += 1;
+        }
+    }
+    assert_eq!(checked, 59 * ks.len());
 }

@@ -192,6 +192,7 @@ pub fn load(
         }
     }
     let df = df.lazy().with_columns(casts).collect()?;
+    check_window(&df, cfg)?;
     let (sheet, notes) = sheet.map_or((None, Vec::new()), |s| (Some(s.name), s.notes));
     Ok(Loaded {
         rows: df.height() as u64,
@@ -503,6 +504,40 @@ fn period_as_int(period: &str, dtype: &DataType) -> Expr {
         DataType::String => c.str().strip_chars(lit(NULL)).cast(DataType::Int64),
         _ => c.cast(DataType::Int64),
     }
+}
+
+/// Fail when the periods (whole numbers by now) span more than a panel's window may hold,
+/// naming the rows of the first and the last period.
+fn check_window(df: &DataFrame, cfg: &InputConfig) -> Result<()> {
+    let periods = df.column(&cfg.period)?.i64()?;
+    let (Some(first), Some(last)) = (periods.min(), periods.max()) else {
+        return Ok(());
+    };
+    let window = i128::from(last) - i128::from(first) + 1;
+    let most = crate::rules::MAX_WINDOW_PERIODS;
+    if window <= i128::from(most) {
+        return Ok(());
+    }
+    let row_of = |value: i64| -> Result<u64> {
+        let hit = df
+            .clone()
+            .lazy()
+            .filter(col(cfg.period.as_str()).eq(lit(value)))
+            .select([col(ROW).cast(DataType::UInt64)])
+            .limit(1)
+            .collect()?;
+        Ok(hit.columns()[0].u64()?.get(0).unwrap_or(0))
+    };
+    Err(Error::PeriodWindow {
+        file: cfg.path.clone(),
+        column: cfg.period.clone(),
+        first,
+        first_row: row_of(first)?,
+        last,
+        last_row: row_of(last)?,
+        periods: window,
+        most,
+    })
 }
 
 /// Fail with the first row whose period is present but not a whole number.

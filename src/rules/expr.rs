@@ -82,10 +82,21 @@ pub(crate) struct Shift {
     pub(crate) k: i64,
 }
 
+/// How a hidden shifted column's name starts (no input column may start with `__`).
+const SHIFT_PREFIX: &str = "__shift";
+
 impl Shift {
+    /// The call as a rules file writes it: `lag(x, 2)`, `lead(x, 1)`.
+    fn as_typed(&self) -> String {
+        match self.k {
+            k if k < 0 => format!("lead({}, {})", self.column, -k),
+            k => format!("lag({}, {k})", self.column),
+        }
+    }
+
     /// The hidden column that holds the shifted values.
     pub(crate) fn hidden_name(&self) -> String {
-        format!("__shift{}__{}", self.k, self.column)
+        format!("{SHIFT_PREFIX}{}__{}", self.k, self.column)
     }
 }
 
@@ -147,7 +158,12 @@ pub(crate) fn compile(rule: &str, text: &str, scope: &Scope) -> Result<Compiled>
                     });
                 }
                 if PANEL_FUNCTIONS.contains(&name.as_str()) {
-                    let call = f.to_string().replace('"', "");
+                    // Inner panel functions, already rewritten, are written back as typed.
+                    let call = shifts
+                        .iter()
+                        .fold(f.to_string().replace('"', ""), |call: String, s: &Shift| {
+                            call.replace(&s.hidden_name(), &s.as_typed())
+                        });
                     match panel_call(rule, &name, &call, &f.args) {
                         Ok((replacement, shift)) => {
                             shifts.insert(shift);
@@ -321,6 +337,14 @@ fn panel_call(
         _ => return Err(bad("expected a column and a whole number in parentheses")),
     };
     let column = match args.first() {
+        // An inner panel function has already become its hidden shifted column.
+        Some(SqlExpr::Identifier(id)) if id.value.starts_with(SHIFT_PREFIX) => {
+            return Err(bad(
+                "the first argument must be a column, not another panel function: write \
+                 lag(x, 2) for lag(lag(x, 1), 1), or derive the inner one as a variable of its \
+                 own",
+            ))
+        }
         Some(SqlExpr::Identifier(id)) => id.value.clone(),
         _ => return Err(bad("the first argument must be a column name")),
     };
@@ -330,7 +354,15 @@ fn panel_call(
             Value::Number(s, _) => s.parse::<i64>().ok().filter(|k| *k >= 1),
             _ => None,
         }
-        .ok_or_else(|| bad("the number of periods must be a whole number of at least 1"))?,
+        .ok_or_else(|| bad("the number of periods must be a whole number of at least 1"))
+        .and_then(|k| match k {
+            k if k > super::MAX_WINDOW_PERIODS => Err(bad(&format!(
+                "the number of periods must be at most {} (the most periods a panel's window \
+                 holds)",
+                super::MAX_WINDOW_PERIODS
+            ))),
+            k => Ok(k),
+        })?,
         Some(SqlExpr::UnaryOp {
             op: UnaryOperator::Minus,
             ..
@@ -400,6 +432,10 @@ mod tests {
             ("ni / (assets", "r: syntax error"),
             ("lag(ni + 1, 1)", "the first argument must be a column name"),
             ("lag(ni, 0)", "at least 1"),
+            ("lag(ni, 1001)", "at most 1000"),
+            ("lag(ni, 9223372036854775807)", "at most 1000"),
+            ("diff(lag(ni, 1), 1)", "`diff(lag(ni, 1), 1)`: the first argument must be a column, not another panel function"),
+            ("lag(lead(ni))", "not another panel function"),
             ("ni assets", "unexpected `assets`"),
             ("ni / sum(ni)", "`sum` reads the whole column"),
             ("ni - avg(ni)", "`avg` reads the whole column"),

@@ -130,6 +130,15 @@ impl<'de> Deserialize<'de> for Balance {
             BalanceSpec::Mode(m) => Err(format!(
                 "`[clean] balance` \"{m}\" is not \"keep\", \"largest\" or {{ window = [FIRST, LAST] }}"
             )),
+            BalanceSpec::Window { window: [a, b] }
+                if a <= b && i128::from(b) - i128::from(a) >= i128::from(super::MAX_WINDOW_PERIODS) =>
+            {
+                Err(format!(
+                    "`[clean] balance` window [{a}, {b}] holds more than {} periods, the most a \
+                     panel's window may",
+                    super::MAX_WINDOW_PERIODS
+                ))
+            }
             BalanceSpec::Window { window: [a, b] } if a <= b => Ok(Balance::Window(a, b)),
             BalanceSpec::Window { .. } => {
                 Err("`[clean] balance` window must be [FIRST, LAST] with FIRST <= LAST".into())
