@@ -195,6 +195,51 @@ fn malformed_csv_stops_with_one_located_line() {
 }
 
 #[test]
+fn settings_the_data_shows_wrong_stop_before_anything_is_written() {
+    // Only the data's columns can show these wrong, so they are judged after reading, before
+    // any check runs or any file is written.
+    let cases = [
+        // Each of these was accepted: a winsorized period key changed the keys themselves, a
+        // text column was treated or regressed as all missing, the outcome regressed on itself.
+        bad(
+            "winsorize the period key",
+            GOOD.as_bytes(),
+            "[clean]\nwinsorize = { variables = [\"year\"], lower = 0.01, upper = 0.99 }\n",
+            &["[clean] winsorize", "`year`", "key"],
+        ),
+        bad(
+            "trim text",
+            GOOD.as_bytes(),
+            "[derive.label]\nexpr = \"CASE WHEN assets > 6 THEN 'big' ELSE 'small' END\"\n\
+             [clean]\ntrim = { variables = [\"label\"], lower = 0.01, upper = 0.99 }\n",
+            &["[clean] winsorize / trim", "`label`", "not a column of numbers"],
+        ),
+        bad(
+            "model on the outcome itself",
+            GOOD.as_bytes(),
+            "[model]\noutcome = \"assets\"\nregressors = [\"assets\"]\n",
+            &["[model]", "`assets` twice"],
+        ),
+        bad(
+            "model on the entity key",
+            GOOD.as_bytes(),
+            "[derive.y]\nexpr = \"assets * 2\"\n[model]\noutcome = \"y\"\nregressors = [\"firm\"]\n",
+            &["[model]", "`firm`", "entity key"],
+        ),
+        bad(
+            "model on text",
+            GOOD.as_bytes(),
+            "[derive.label]\nexpr = \"CASE WHEN assets > 6 THEN 'big' ELSE 'small' END\"\n\
+             [model]\noutcome = \"assets\"\nregressors = [\"label\"]\n",
+            &["[model]", "`label`", "not a column of numbers"],
+        ),
+    ];
+    for case in &cases {
+        check_bad(case);
+    }
+}
+
+#[test]
 fn bad_rules_stop_before_any_data_is_read_identically_for_audit_and_build() {
     let cases = [
         bad("toml syntax", GOOD.as_bytes(), "[clean\n", &["rules file"]),

@@ -185,7 +185,8 @@ pub fn prepare_with(
         typed.effects,
         input,
     )?;
-    let treatments = options::treatments(typed.treatments, &panel, &options.categorical, rules)?;
+    let treatments =
+        options::treatments(typed.treatments, &panel, &options.categorical, rules, input)?;
 
     // The checks describe the panel as read (after the key steps, repairs, rules and
     // derivation).

@@ -44,6 +44,7 @@ pub(super) fn options(
             {
                 return Err(missing(c, "named in `[model]`"));
             }
+            model_columns(panel, &names, input)?;
             Some(ModelSpec {
                 outcome: names[0].clone(),
                 regressors: names[1..].to_vec(),
@@ -82,13 +83,45 @@ pub(super) fn options(
     })
 }
 
+/// The model's outcome and regressors (`names`, the outcome first) must be numbers (or
+/// true/false), the outcome not among the regressors, no regressor named twice: anything else
+/// would be estimated on missing values or a regressor equal to another, and said so only by
+/// diagnostics that cannot be computed.
+fn model_columns(panel: &DataFrame, names: &[String], input: &InputConfig) -> Result<()> {
+    let bad = |message: String| Error::Setting {
+        setting: "[model]",
+        message,
+    };
+    for (i, name) in names.iter().enumerate() {
+        let role = if i == 0 { "the outcome" } else { "a regressor" };
+        if *name == input.entity {
+            return Err(bad(format!(
+                "names `{name}` as {role}, but it is the entity key (its effects are the model's)"
+            )));
+        }
+        let dtype = panel.schema().get(name.as_str()).cloned();
+        if !dtype.is_some_and(|d| d.is_primitive_numeric() || d.is_bool()) {
+            return Err(bad(format!(
+                "names `{name}` as {role}, but it is not a column of numbers (or true / false)"
+            )));
+        }
+        if names[..i].contains(name) {
+            return Err(bad(format!(
+                "names `{name}` twice among the outcome and the regressors"
+            )));
+        }
+    }
+    Ok(())
+}
+
 /// The treatments' variables and groups resolved to the panel's columns; a categorical
-/// column is never treated.
+/// column, a key or a column that is not numbers is never treated.
 pub(super) fn treatments(
     treatments: Vec<Treatment>,
     panel: &DataFrame,
     categorical: &[String],
     rules: &Rules,
+    input: &InputConfig,
 ) -> Result<Vec<Treatment>> {
     let columns: Vec<String> = panel
         .get_column_names()
@@ -110,6 +143,28 @@ pub(super) fn treatments(
                 "`{c}` is declared categorical in `[panel] categorical`: codes are never \
                  winsorized or trimmed"
             ),
+        });
+    }
+    for v in treatments.iter().flat_map(|t| &t.variables) {
+        let message = if *v == input.entity || *v == input.period {
+            format!("names `{v}`, a key of the panel: keys are never winsorized or trimmed")
+        } else if *v == ROW {
+            format!("names `{v}`, the row number")
+        } else if !panel
+            .schema()
+            .get(v.as_str())
+            .is_some_and(|d| d.is_primitive_numeric())
+        {
+            format!(
+                "names `{v}`, which is not a column of numbers: only numbers are winsorized or \
+                 trimmed"
+            )
+        } else {
+            continue;
+        };
+        return Err(Error::Setting {
+            setting: "[clean] winsorize / trim",
+            message,
         });
     }
     Ok(treatments)
