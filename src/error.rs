@@ -27,6 +27,16 @@ pub enum Error {
         column: String,
         context: String,
     },
+    /// A column of the input holds values a panel's columns cannot (lists, records, bytes).
+    #[error(
+        "`{file}`: column `{column}` holds {kind}; a panel's columns hold numbers, text, true / \
+         false or dates: convert or drop it first"
+    )]
+    ColumnKind {
+        file: PathBuf,
+        column: String,
+        kind: &'static str,
+    },
     /// The period column holds something that is not a whole number.
     #[error("`{file}`: period column `{column}` must hold integers; row {row} has `{value}`")]
     NonIntegerPeriod {

@@ -905,3 +905,121 @@ fn long_lags_read_exactly_k_periods_back() {
     }
     assert_eq!(checked, 59 * ks.len());
 }
+
+#[test]
+fn parquet_columns_of_every_kind_are_read_or_named() {
+    use polars::prelude::*;
+    let w = Workdir::new();
+    let write = |name: &str, extra: Column| {
+        let mut df = df!(
+            "firm" => ["A", "A", "B", "B"],
+            "year" => [2001i64, 2002, 2001, 2002],
+            "x" => [1.0, 2.0, 3.0, 4.0],
+        )
+        .unwrap();
+        df.with_column(extra).unwrap();
+        let f = std::fs::File::create(w.path(name)).unwrap();
+        ParquetWriter::new(f).finish(&mut df).unwrap();
+    };
+    // Dates (days since 1970-01-01), times of day as a date-time, and decimals: read, kept as
+    // they are in panel.parquet, written in panel.csv as ISO 8601 text and the decimal's
+    // digits (worked by hand: 2002-01-01 is day 32 × 365 + 8 leap days = 11688, so day 11687
+    // is 2001-12-31). Before, panel.csv could not be written and `build` stopped with the
+    // engine's message.
+    let days = Column::new("closed".into(), [11322i32, 11687, 11322, 0])
+        .cast(&DataType::Date)
+        .unwrap();
+    let stamp = Column::new("filed".into(), [0i64, 86_400_000_000, 0, 0])
+        .cast(&DataType::Datetime(TimeUnit::Microseconds, None))
+        .unwrap();
+    let price = Column::new("price".into(), [1.25f64, -2.5, 0.0, 10.0])
+        .cast(&DataType::Decimal(10, 2))
+        .unwrap();
+    for (name, c) in [
+        ("dates.parquet", days),
+        ("stamps.parquet", stamp),
+        ("decimals.parquet", price),
+    ] {
+        write(name, c);
+        let out = format!("out_{name}");
+        w.ok(&[
+            "build", name, "--entity", "firm", "--period", "year", "--out", &out,
+        ]);
+        let csv = std::fs::read_to_string(w.path(&format!("{out}/panel.csv"))).unwrap();
+        let second: Vec<&str> = csv.lines().nth(2).unwrap().split(',').collect();
+        let want = match name {
+            "dates.parquet" => "2001-12-31",
+            "stamps.parquet" => "1970-01-02 00:00:00.000000",
+            _ => "-2.50",
+        };
+        assert_eq!(second[4], want, "{name}: {csv}");
+        let back = ParquetReader::new(
+            std::fs::File::open(w.path(&format!("{out}/panel.parquet"))).unwrap(),
+        )
+        .finish()
+        .unwrap();
+        let original = ParquetReader::new(std::fs::File::open(w.path(name)).unwrap())
+            .finish()
+            .unwrap();
+        assert_eq!(back.dtypes()[4], original.dtypes()[3], "{name}");
+    }
+    // Lists, records and raw bytes are no panel's columns: one line naming the file and column.
+    let kinds = [
+        (
+            "lists.parquet",
+            Column::new(
+                "tags".into(),
+                [
+                    Series::new("".into(), [1i64]),
+                    Series::new("".into(), [2i64]),
+                    Series::new("".into(), [3i64]),
+                    Series::new("".into(), [4i64]),
+                ],
+            ),
+            "lists",
+        ),
+        (
+            "bytes.parquet",
+            Column::new("blob".into(), [b"a".as_ref(), b"b", b"c", b"d"]),
+            "raw bytes",
+        ),
+    ];
+    for (name, c, kind) in kinds {
+        let column = c.name().to_string();
+        write(name, c);
+        for cmd in ["audit", "build"] {
+            let mut args = vec![cmd, name, "--entity", "firm", "--period", "year"];
+            if cmd == "build" {
+                args.extend(["--out", "never"]);
+            }
+            let line = w.fails(&args, kind);
+            assert!(
+                line.contains(name) && line.contains(&format!("`{column}`")),
+                "{line}"
+            );
+        }
+        assert!(!w.path("never").exists());
+    }
+    // An unsigned period beyond the largest signed 64-bit integer was read as missing and its
+    // row put in the ledger as "period missing"; now it is named.
+    let mut df = df!(
+        "firm" => ["A", "A"],
+        "year" => [u64::MAX, 2002],
+        "x" => [1.0, 2.0],
+    )
+    .unwrap();
+    let f = std::fs::File::create(w.path("wide.parquet")).unwrap();
+    ParquetWriter::new(f).finish(&mut df).unwrap();
+    let line = w.fails(
+        &[
+            "audit",
+            "wide.parquet",
+            "--entity",
+            "firm",
+            "--period",
+            "year",
+        ],
+        "row 1",
+    );
+    assert!(line.contains("18446744073709551615"), "{line}");
+}

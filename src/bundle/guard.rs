@@ -54,3 +54,24 @@ pub fn guard_text(df: &DataFrame) -> Result<DataFrame> {
     }
     Ok(df.clone().lazy().with_columns(guards).collect()?)
 }
+
+/// `df` with its dates, times and decimals as text, which the CSV writer the engine is built
+/// with does not write: ISO 8601 (`2001-12-31`, `2001-12-31 00:00:00.000000`) and the decimal's
+/// own digits. Run after [`guard_text`]: a negative decimal is a number, not a formula.
+pub fn dates_as_text(df: DataFrame) -> Result<DataFrame> {
+    let spelled: Vec<Expr> = df
+        .schema()
+        .iter()
+        .filter(|(_, dtype)| {
+            matches!(
+                dtype,
+                DataType::Date | DataType::Datetime(..) | DataType::Time | DataType::Decimal(..)
+            )
+        })
+        .map(|(name, _)| col(name.clone()).cast(DataType::String))
+        .collect();
+    if spelled.is_empty() {
+        return Ok(df);
+    }
+    Ok(df.lazy().with_columns(spelled).collect()?)
+}

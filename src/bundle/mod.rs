@@ -24,7 +24,7 @@ mod parquet;
 
 pub use crate::config::Relocated;
 use dictionary::{dictionary_md, parquet_labels, DictionaryFile};
-pub use guard::guard_text;
+pub use guard::{dates_as_text, guard_text};
 use hashing::HashingFile;
 pub use manifest::{
     CorrectionsRecord, InputRecord, JoinedRecord, Manifest, OutputRecord, RowCounts, RulesRecord,
@@ -148,7 +148,7 @@ fn write_csv_sliced<W: Write>(
     progress: Option<&Progress>,
     slice: usize,
 ) -> Result<()> {
-    let guarded = guard_text(df)?;
+    let guarded = dates_as_text(guard_text(df)?)?;
     let mut writer = CsvWriter::new(f)
         .include_header(true)
         .batched(guarded.schema())?;

@@ -10,7 +10,7 @@ pub fn run(cfg: &CompareConfig) -> Result<i32> {
     use polars::prelude::{CsvWriter, SerWriter};
     let (comparison, mut ledger) = compare::compare(&cfg.old, &cfg.new, &cfg.tolerance)?;
     if let Some(path) = &cfg.changes {
-        let mut guarded = bundle::guard_text(&ledger)?;
+        let mut guarded = bundle::dates_as_text(bundle::guard_text(&ledger)?)?;
         let mut bytes = Vec::new();
         CsvWriter::new(&mut bytes)
             .include_header(true)

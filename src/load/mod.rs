@@ -108,6 +108,22 @@ pub fn load(
                 .into(),
         });
     }
+    if let Some((name, kind)) = schema.iter().find_map(|(name, dtype)| {
+        let kind = match dtype {
+            DataType::List(_) | DataType::Array(..) => "lists",
+            DataType::Struct(_) => "records of several fields",
+            DataType::Duration(_) => "durations",
+            DataType::Binary | DataType::BinaryOffset => "raw bytes",
+            _ => return None,
+        };
+        Some((name, kind))
+    }) {
+        return Err(Error::ColumnKind {
+            file: cfg.path.clone(),
+            column: name.to_string(),
+            kind,
+        });
+    }
     let missing = |column: &str, context: String| Error::MissingColumn {
         file: cfg.path.clone(),
         column: column.to_string(),
@@ -544,6 +560,8 @@ fn check_window(df: &DataFrame, cfg: &InputConfig) -> Result<()> {
 fn check_period(df: &DataFrame, cfg: &InputConfig, dtype: &DataType) -> Result<()> {
     let c = col(cfg.period.as_str());
     let bad = match dtype {
+        // Beyond the largest signed 64-bit integer the cast would make the period missing.
+        DataType::UInt64 => c.clone().gt(lit(i64::MAX as u64)).fill_null(lit(false)),
         d if d.is_integer() => return Ok(()),
         DataType::Null => return Ok(()),
         d if d.is_float() => c.clone().is_not_null().and(
