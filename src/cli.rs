@@ -244,7 +244,7 @@ pub(crate) struct DemoArgs {
     #[arg(long, value_name = "DIR", default_value = "panelready-demo")]
     pub(crate) out: PathBuf,
 
-    /// How many fictional firms to generate.
+    /// How many fictional firms to generate (firms × periods at most 100,000,000).
     #[arg(long, value_name = "N", default_value_t = 600)]
     pub(crate) firms: u32,
 

@@ -174,6 +174,31 @@ fn malformed_csv_stops_with_one_located_line() {
             &["raw.csv", "entity `A`", "2001"],
         ),
     ];
+    // Year-end dates that no calendar has (Gregorian, common practice; Python's
+    // `datetime.date` refuses the same three) were given a fiscal year; 2000-02-29 is a date.
+    for (date, good) in [
+        ("2002-02-30", false),
+        ("1900-02-29", false),
+        ("2001-04-31", false),
+        ("2000-02-29", true),
+    ] {
+        let w = Workdir::new();
+        w.write(
+            "raw.csv",
+            &format!("firm,fye,x\nA,2001-12-31,1\nA,2002-12-31,2\nB,{date},3\n"),
+        );
+        w.write(
+            "rules.toml",
+            "[panel]\nentity = \"firm\"\nperiod = \"fy\"\nyear_end = \"fye\"\n",
+        );
+        let args = ["audit", "raw.csv", "--rules", "rules.toml"];
+        if good {
+            w.ok(&args);
+        } else {
+            let line = w.fails(&args, "row 3");
+            assert!(line.contains(date) && line.contains("not a date"), "{line}");
+        }
+    }
     for case in &cases {
         if case.name == "conflicting keys under fail" {
             // `audit` reports conflicts instead of stopping; only `build` stops.
@@ -574,6 +599,12 @@ fn bad_paths_and_arguments_are_one_line_errors() {
         "fake.parquet",
     );
     w.fails(&["verify", "nosuch-dir"], "nosuch-dir");
+    // A demo of billions of firm-years ran until memory ran out.
+    w.fails(
+        &["demo", "--out", "d", "--firms", "4000000000", "--data-only"],
+        "more than 100000000 firm-years",
+    );
+    assert!(!w.path("d").exists());
 }
 
 #[test]

@@ -14,6 +14,10 @@ use crate::{Error, Result};
 mod input;
 
 pub(crate) use input::{format_from_extension, parse_size};
+
+/// The most firm-years the demo makes (firms × periods, before attrition): a typo of a few
+/// zeros in `--firms` would otherwise run until memory ran out.
+const DEMO_FIRM_YEARS: u64 = 100_000_000;
 pub use input::{holds_parquet, parquet_files};
 
 /// What to run, fully resolved.
@@ -368,6 +372,15 @@ impl Command {
                     return Err(Error::BadOption {
                         option: "firms",
                         message: "must be at least 1".into(),
+                    });
+                }
+                if u64::from(d.firms) * u64::from(d.periods) > DEMO_FIRM_YEARS {
+                    return Err(Error::BadOption {
+                        option: "firms",
+                        message: format!(
+                            "{} firms × {} periods is more than {DEMO_FIRM_YEARS} firm-years",
+                            d.firms, d.periods
+                        ),
                     });
                 }
                 if !(2..=200).contains(&d.periods) {

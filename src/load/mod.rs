@@ -224,6 +224,24 @@ pub fn load(
 /// `YYYY-MM-DD`: the date's year, less one when its month is `cutoff` or earlier (common
 /// practice: a year ending January–May belongs to the previous fiscal year). A date that is not
 /// of that form is an error naming its row. Also counts entities whose year-end month changed.
+/// The days of `month` in `year` of the Gregorian calendar: February has 29 in a year
+/// divisible by 4, except centuries not divisible by 400 (common practice).
+fn days_in_month(year: Expr, month: Expr) -> Expr {
+    let divisible = |n: i64| (year.clone() % lit(n)).eq(lit(0i64));
+    let leap = divisible(4).and(divisible(100).not()).or(divisible(400));
+    when(month.clone().eq(lit(2i64)))
+        .then(when(leap).then(lit(29i64)).otherwise(lit(28i64)))
+        .when(
+            [4i64, 6, 9, 11]
+                .map(|m| month.clone().eq(lit(m)))
+                .into_iter()
+                .reduce(Expr::or)
+                .expect("four months"),
+        )
+        .then(lit(30i64))
+        .otherwise(lit(31i64))
+}
+
 fn fiscal_year(
     df: DataFrame,
     mut columns: Vec<String>,
@@ -257,7 +275,11 @@ fn fiscal_year(
                 .gt_eq(lit(1))
                 .and(month.clone().lt_eq(lit(12))),
         )
-        .and(day.clone().gt_eq(lit(1)).and(day.lt_eq(lit(31))))
+        .and(
+            day.clone()
+                .gt_eq(lit(1))
+                .and(day.lt_eq(days_in_month(year.clone(), month.clone()))),
+        )
         .fill_null(lit(false));
     let marked = df
         .lazy()
