@@ -111,6 +111,14 @@ fn read_table(
             spec.file
         )));
     }
+    if let Some((_, c)) = spec
+        .on
+        .iter()
+        .enumerate()
+        .find(|(i, c)| spec.on[..*i].contains(c))
+    {
+        return Err(setting(format!("`{}`: `on` names `{c}` twice", spec.file)));
+    }
     let format = crate::config::format_from_extension(path)?;
     let bytes = std::fs::read(path).map_err(Error::io(path))?;
     let sha256 = crate::load::sha256_hex(&bytes);

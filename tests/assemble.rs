@@ -167,6 +167,18 @@ fn joined_files_with_bad_settings_or_values_are_named() {
     };
     run("unmatched = \"skip\"", "[[join]]");
     run("duplicates = \"last\"", "keep-first");
+    // A key named twice stopped the engine with a message that named no file.
+    w.write(
+        "twice.toml",
+        &rules("").replace(
+            "on = [\"currency\", \"year\"]",
+            "on = [\"currency\", \"year\", \"year\"]",
+        ),
+    );
+    w.fails(
+        &["audit", "p.csv", "--rules", "twice.toml"],
+        "`rates.csv`: `on` names `year` twice",
+    );
     run(
         "columns = [\"fx\"]",
         "`rates.csv`: no column `fx` (named in `columns`",
