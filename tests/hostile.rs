@@ -252,6 +252,19 @@ fn settings_the_data_shows_wrong_stop_before_anything_is_written() {
             &["[model]", "`firm`", "entity key"],
         ),
         bad(
+            "levels of text",
+            b"firm,year,assets,label\nA,2001,10,a\nA,2002,12,b\nB,2001,5,c\nB,2002,6,d\n",
+            "[audit]\nlevels = [\"label\"]\n",
+            &["[audit] levels", "`label`", "not a column of numbers"],
+        ),
+        bad(
+            "compare text",
+            GOOD.as_bytes(),
+            "[derive.label]\nexpr = \"CASE WHEN assets > 6 THEN 'big' ELSE 'small' END\"\n\
+             [audit]\ncompare = [\"label\"]\n",
+            &["[audit] compare", "`label`", "not a column of numbers"],
+        ),
+        bad(
             "model on text",
             GOOD.as_bytes(),
             "[derive.label]\nexpr = \"CASE WHEN assets > 6 THEN 'big' ELSE 'small' END\"\n\
@@ -262,6 +275,19 @@ fn settings_the_data_shows_wrong_stop_before_anything_is_written() {
     for case in &cases {
         check_bad(case);
     }
+    // An amount read as text (a word among its numbers) was searched for unit slips and
+    // passed; now it is not searched, and the check says so.
+    let w = Workdir::new();
+    w.write(
+        "raw.csv",
+        "firm,year,total_assets\nA,2001,n.a.\nA,2002,5\nB,2001,7\nB,2002,8\n",
+    );
+    let r = w.ok(&[
+        "audit", "raw.csv", "--entity", "firm", "--period", "year", "--format", "json",
+    ]);
+    let report: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+    assert_eq!(report["unit_slips_searched"], 0, "{}", r.stdout);
+    assert!(r.stdout.contains("not checked"), "{}", r.stdout);
 }
 
 #[test]

@@ -140,7 +140,7 @@ pub fn prepare_with(
     let df = std::mem::take(&mut read.loaded.df);
     let (mut sample, found) = key_steps(df, &keys, &typed.policy, &read.tables, progress)?;
 
-    let levels = level_columns(rules, &columns, input)?;
+    let levels = level_columns(rules, &columns, sample.panel.schema(), input)?;
     let repaired = repairs::repair(
         &mut sample,
         read.corrections.as_ref(),

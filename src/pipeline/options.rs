@@ -24,13 +24,31 @@ pub(super) fn options(
     };
     let compare: Vec<String> = match &rules.file.audit.compare {
         Some(list) => list.iter().map(resolve).collect(),
-        None => plan.vars.iter().map(|v| v.name.clone()).collect(),
+        // The derived variables that are numbers.
+        None => plan
+            .vars
+            .iter()
+            .map(|v| v.name.clone())
+            .filter(|v| settings::is_numbers(panel.schema(), v))
+            .collect(),
     };
     if let Some(c) = compare
         .iter()
         .find(|c| panel.schema().get(c.as_str()).is_none())
     {
         return Err(missing(c, "named in `[audit] compare`"));
+    }
+    if let Some(c) = compare
+        .iter()
+        .find(|c| !settings::is_numbers(panel.schema(), c))
+    {
+        return Err(Error::Setting {
+            setting: "[audit] compare",
+            message: format!(
+                "names `{c}`, which is not a column of numbers: leavers and stayers are compared \
+                 by their means"
+            ),
+        });
     }
     let model = match (&rules.file.model, effects) {
         (Some(m), Some(effects)) => {
@@ -150,11 +168,7 @@ pub(super) fn treatments(
             format!("names `{v}`, a key of the panel: keys are never winsorized or trimmed")
         } else if *v == ROW {
             format!("names `{v}`, the row number")
-        } else if !panel
-            .schema()
-            .get(v.as_str())
-            .is_some_and(|d| d.is_primitive_numeric())
-        {
+        } else if !settings::is_numbers(panel.schema(), v) {
             format!(
                 "names `{v}`, which is not a column of numbers: only numbers are winsorized or \
                  trimmed"

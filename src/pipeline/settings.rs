@@ -8,6 +8,7 @@ use super::*;
 pub(super) fn level_columns(
     rules: &Rules,
     raw: &[String],
+    schema: &Schema,
     input: &InputConfig,
 ) -> Result<Vec<String>> {
     let resolve = |c: &String| rules.resolve(c);
@@ -19,6 +20,7 @@ pub(super) fn level_columns(
             .filter(|c| raw.contains(c))
             .collect(),
     };
+    let named = rules.file.audit.levels.is_some();
     for c in &levels {
         if !raw.contains(c) {
             return Err(Error::MissingColumn {
@@ -27,8 +29,22 @@ pub(super) fn level_columns(
                 context: "named in `[audit] levels`".into(),
             });
         }
+        if named && !is_numbers(schema, c) {
+            return Err(Error::Setting {
+                setting: "[audit] levels",
+                message: format!(
+                    "names `{c}`, which is not a column of numbers: unit slips are searched in \
+                     amounts"
+                ),
+            });
+        }
     }
-    Ok(levels)
+    // A canonical amount read as text (a CSV column with words among its numbers) is not
+    // searched: the check then says how many were, never that text passed.
+    Ok(levels
+        .into_iter()
+        .filter(|c| is_numbers(schema, c))
+        .collect())
 }
 
 /// The checks' thresholds from `[thresholds]` and `[audit] outliers`, checked for range.
@@ -174,4 +190,9 @@ pub(super) fn typed(input: &InputConfig, mode: Mode) -> Result<Typed> {
         effects,
         treatments,
     })
+}
+
+/// Whether column `name` of `schema` holds numbers.
+pub(super) fn is_numbers(schema: &Schema, name: &str) -> bool {
+    schema.get(name).is_some_and(|d| d.is_primitive_numeric())
 }
