@@ -14,11 +14,11 @@ use crate::{Error, Result};
 mod input;
 
 pub(crate) use input::{format_from_extension, parse_size};
+pub use input::{holds_parquet, parquet_files};
 
 /// The most firm-years the demo makes (firms × periods, before attrition): a typo of a few
 /// zeros in `--firms` would otherwise run until memory ran out.
 const DEMO_FIRM_YEARS: u64 = 100_000_000;
-pub use input::{holds_parquet, parquet_files};
 
 /// What to run, fully resolved.
 #[derive(Debug)]

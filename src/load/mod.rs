@@ -220,10 +220,6 @@ pub fn load(
     })
 }
 
-/// Derive the period column (`cfg.period`) from a fiscal-year-end date column of text
-/// `YYYY-MM-DD`: the date's year, less one when its month is `cutoff` or earlier (common
-/// practice: a year ending January–May belongs to the previous fiscal year). A date that is not
-/// of that form is an error naming its row. Also counts entities whose year-end month changed.
 /// The days of `month` in `year` of the Gregorian calendar: February has 29 in a year
 /// divisible by 4, except centuries not divisible by 400 (common practice).
 fn days_in_month(year: Expr, month: Expr) -> Expr {
@@ -242,6 +238,10 @@ fn days_in_month(year: Expr, month: Expr) -> Expr {
         .otherwise(lit(31i64))
 }
 
+/// Derive the period column (`cfg.period`) from a fiscal-year-end date column of text
+/// `YYYY-MM-DD`: the date's year, less one when its month is `cutoff` or earlier (common
+/// practice: a year ending January–May belongs to the previous fiscal year). A date that is not
+/// of that form is an error naming its row. Also counts entities whose year-end month changed.
 fn fiscal_year(
     df: DataFrame,
     mut columns: Vec<String>,

@@ -25,9 +25,9 @@ pub const STANDARD_LIBRARY: &str = include_str!("../../rules/standard.toml");
 
 /// The most periods a panel's window (its first to its last period) may hold. Periods are
 /// consecutive whole numbers — fiscal years, or quarters or months numbered one after another —
-/// and a window of more than a thousand of them is a date or a code read as a period (a
-/// YYYYMMDD date spans millions): every count of gaps, every coverage chart and every lag
-/// would be wrong, and the chart as large as the window. Also the longest lag or lead.
+/// and a window of more than a thousand of them is a date or a code read as a period (dates
+/// as YYYYMMDD span ten thousand a year): every count of gaps, every coverage chart and every
+/// lag would be wrong, and the chart as large as the window. Also the longest lag or lead.
 pub const MAX_WINDOW_PERIODS: i64 = 1_000;
 
 /// Canonical columns that hold levels (amounts), searched for unit slips by default.
