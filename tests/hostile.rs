@@ -1080,3 +1080,52 @@ fn parquet_columns_of_every_kind_are_read_or_named() {
     );
     assert!(line.contains("18446744073709551615"), "{line}");
 }
+
+#[test]
+fn a_hand_over_with_no_row_left_fails_the_verdict() {
+    // A balancing window outside the data and an accounting rule every row breaks each leave
+    // nothing: the verdict passed such a bundle, every other line judging the panel as read.
+    for (name, rules) in [
+        ("window", "[clean]\nbalance = { window = [1990, 1995] }\n"),
+        (
+            "rule",
+            "[[rule]]\nname = \"huge\"\nexpr = \"assets > 100\"\naction = \"drop\"\n",
+        ),
+    ] {
+        let w = Workdir::new();
+        w.write("raw.csv", GOOD);
+        w.write("rules.toml", &format!("{KEYS}{rules}"));
+        w.ok(&["build", "raw.csv", "--rules", "rules.toml", "--out", "out"]);
+        let report: serde_json::Value =
+            serde_json::from_str(&std::fs::read_to_string(w.path("out/report.json")).unwrap())
+                .unwrap();
+        let verdict = &report["verdict"];
+        assert_eq!(verdict["overall"], "fail", "{name}: {verdict}");
+        let line = verdict["checks"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|c| c["check"] == "Cleaned panel")
+            .unwrap_or_else(|| panic!("{name}: {verdict}"));
+        assert!(
+            line["reason"]
+                .as_str()
+                .unwrap()
+                .contains("no row is left of the 4 read"),
+            "{name}: {line}"
+        );
+    }
+    // A panel with rows left has no such line.
+    let w = Workdir::new();
+    w.write("raw.csv", GOOD);
+    w.write("rules.toml", KEYS);
+    let r = w.ok(&[
+        "audit",
+        "raw.csv",
+        "--rules",
+        "rules.toml",
+        "--format",
+        "json",
+    ]);
+    assert!(!r.stdout.contains("Cleaned panel"), "{}", r.stdout);
+}

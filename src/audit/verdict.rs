@@ -119,6 +119,7 @@ pub fn judge(r: &Report, lv: &Levels) -> Verdict {
     checks.extend(super::registry().iter().filter_map(|c| c.verdict(r, lv)));
     checks.extend(super::accounting::verdict(r, lv));
     checks.extend(super::model::verdict(r, lv));
+    checks.extend(emptied(r));
     let overall = checks
         .iter()
         .map(|c| c.status)
@@ -156,6 +157,24 @@ pub(super) fn keys(r: &Report, lv: &Levels) -> Option<CheckVerdict> {
             "Keys",
             Pass,
             "every entity-period key is present and unique".into(),
+        )
+    })
+}
+
+/// A line only when cleaning left no row of a panel that had some (a balancing window outside
+/// the data, a rule every row breaks): every other line judges the panel as read, so without
+/// it an empty hand-over could pass.
+fn emptied(r: &Report) -> Option<CheckVerdict> {
+    let cleaned = r.cleaned.as_ref()?;
+    (cleaned.panel.rows == 0 && r.input.rows > 0).then(|| {
+        line(
+            "Cleaned panel",
+            Status::Fail,
+            format!(
+                "no row is left of the {} read: see the sample construction for the step that \
+                 removed them",
+                r.input.rows
+            ),
         )
     })
 }
