@@ -14,6 +14,10 @@ use crate::{Error, Result};
 /// The reason counted when a value is null and no declared condition explains it.
 pub const INPUT_MISSING: &str = "an input is missing (or the earlier period is absent)";
 
+/// Why a derived number that is not finite is missing instead.
+pub const NOT_FINITE: &str =
+    "not a finite number (a division by zero, a logarithm of zero or less, an infinite input)";
+
 /// One derived variable, compiled.
 #[derive(Debug, Clone)]
 pub struct Planned {
@@ -156,12 +160,38 @@ impl Plan {
             if !shifted.is_empty() {
                 lf = lf.with_columns(shifted);
             }
+            // A number that is not finite (a division by zero, the logarithm of zero) is
+            // missing, with its own reason: which variables are numbers, the engine says.
+            let plain: Vec<Expr> = level
+                .iter()
+                .map(|var| var.value.expr.clone().alias(var.name.as_str()))
+                .collect();
+            let floats = lf
+                .clone()
+                .with_columns(plain)
+                .collect_schema()
+                .map(|schema| {
+                    level
+                        .iter()
+                        .map(|var| schema.get(var.name.as_str()).is_some_and(|d| d.is_float()))
+                        .collect::<Vec<_>>()
+                })
+                .unwrap_or_else(|_| vec![false; level.len()]);
             let values: Vec<Expr> = level
                 .iter()
-                .map(|var| {
+                .zip(floats)
+                .map(|(var, float)| {
+                    let expr = var.value.expr.clone();
+                    let value = if float {
+                        when(expr.clone().is_finite().not())
+                            .then(lit(NULL))
+                            .otherwise(expr)
+                    } else {
+                        expr
+                    };
                     let value = match var.any_condition() {
-                        Some(cond) => when(cond).then(lit(NULL)).otherwise(var.value.expr.clone()),
-                        None => var.value.expr.clone(),
+                        Some(cond) => when(cond).then(lit(NULL)).otherwise(value),
+                        None => value,
                     };
                     value.alias(var.name.as_str())
                 })
@@ -209,6 +239,23 @@ impl Plan {
                 );
                 earlier = earlier.or(c);
             }
+            let float = df.schema().get(name).is_some_and(|d| d.is_float());
+            if float {
+                let c = var
+                    .value
+                    .expr
+                    .clone()
+                    .is_finite()
+                    .not()
+                    .fill_null(lit(false));
+                aggs.push(
+                    c.clone()
+                        .and(earlier.clone().not())
+                        .sum()
+                        .alias(format!("{i}_finite")),
+                );
+                earlier = earlier.or(c);
+            }
             aggs.push(
                 col(name)
                     .is_null()
@@ -230,6 +277,21 @@ impl Plan {
                     reason: reason.clone(),
                     rows: get(format!("{i}_{j}"))?,
                 });
+            }
+            // Listed only when it happened, so that a report without such values reads as
+            // before.
+            if df
+                .schema()
+                .get(var.name.as_str())
+                .is_some_and(|d| d.is_float())
+            {
+                let rows = get(format!("{i}_finite"))?;
+                if rows > 0 {
+                    nulls.push(NullCount {
+                        reason: NOT_FINITE.to_string(),
+                        rows,
+                    });
+                }
             }
             nulls.push(NullCount {
                 reason: INPUT_MISSING.to_string(),

@@ -1129,3 +1129,57 @@ fn a_hand_over_with_no_row_left_fails_the_verdict() {
     ]);
     assert!(!r.stdout.contains("Cleaned panel"), "{}", r.stdout);
 }
+
+#[test]
+fn derived_numbers_that_are_not_finite_are_missing_with_their_reason() {
+    // IEEE 754 (common practice): ln(0) is −∞, ln of a negative number is NaN, 1 / 0 is +∞.
+    // Such a derived value was written into the panel and counted "with a value"; now it is
+    // missing, with its own reason, and a lag of it is missing too.
+    let w = Workdir::new();
+    w.write(
+        "raw.csv",
+        "firm,year,x,y\nA,2001,1,2\nA,2002,2,3\nB,2001,3,5\nB,2002,4,1\n",
+    );
+    w.write(
+        "rules.toml",
+        &format!(
+            "{KEYS}[derive.z]\nexpr = \"ln(x - 2)\"\n[derive.w]\nexpr = \"x / (y - 5)\"\n\
+             [derive.zl]\nexpr = \"lag(z, 1)\"\n"
+        ),
+    );
+    w.ok(&["build", "raw.csv", "--rules", "rules.toml", "--out", "out"]);
+    let panel = std::fs::read_to_string(w.path("out/panel.csv")).unwrap();
+    let rows: Vec<Vec<&str>> = panel
+        .lines()
+        .skip(1)
+        .map(|l| l.split(',').collect())
+        .collect();
+    // Columns: source_row, firm, year, x, y, z, w, zl.
+    let z: Vec<&str> = rows.iter().map(|r| r[5]).collect();
+    let wv: Vec<&str> = rows.iter().map(|r| r[6]).collect();
+    let zl: Vec<&str> = rows.iter().map(|r| r[7]).collect();
+    assert_eq!(z, ["", "", "0.0", "0.6931471805599453"], "{panel}");
+    assert_eq!(wv, ["-0.3333333333333333", "-1.0", "", "-1.0"], "{panel}");
+    assert_eq!(zl, ["", "", "", "0.0"], "{panel}");
+    let report: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(w.path("out/report.json")).unwrap()).unwrap();
+    let reasons = |i: usize| -> Vec<(String, u64)> {
+        report["derived"][i]["null_reasons"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|r| {
+                (
+                    r["reason"].as_str().unwrap().to_string(),
+                    r["rows"].as_u64().unwrap(),
+                )
+            })
+            .collect()
+    };
+    let finite = |r: &(String, u64)| r.0.starts_with("not a finite number");
+    assert_eq!(reasons(0).iter().find(|r| finite(r)).map(|r| r.1), Some(2));
+    assert_eq!(reasons(1).iter().find(|r| finite(r)).map(|r| r.1), Some(1));
+    // The lag's nulls are its missing input, not a reason of its own.
+    assert!(!reasons(2).iter().any(finite), "{:?}", reasons(2));
+    assert_eq!(report["derived"][0]["non_null"], 2);
+}
