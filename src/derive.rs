@@ -177,25 +177,32 @@ impl Plan {
                         .collect::<Vec<_>>()
                 })
                 .unwrap_or_else(|_| vec![false; level.len()]);
-            let values: Vec<Expr> = level
-                .iter()
-                .zip(floats)
-                .map(|(var, float)| {
-                    let expr = var.value.expr.clone();
-                    let value = if float {
-                        when(expr.clone().is_finite().not())
-                            .then(lit(NULL))
-                            .otherwise(expr)
-                    } else {
-                        expr
-                    };
-                    let value = match var.any_condition() {
-                        Some(cond) => when(cond).then(lit(NULL)).otherwise(value),
-                        None => value,
-                    };
-                    value.alias(var.name.as_str())
-                })
-                .collect();
+            let mut values: Vec<Expr> = Vec::new();
+            for (var, float) in level.iter().zip(floats) {
+                let expr = var.value.expr.clone();
+                // One selection for every reason to be missing (a second would copy the
+                // column again); the rows that were not finite kept as flags for the counts.
+                // A lag or lead is its column's value as it stands (a derived one already
+                // finite): no second look, which would evaluate the shift again.
+                let copied = matches!(expr, Expr::Column(_));
+                let not_finite =
+                    (float && !copied).then(|| expr.clone().is_finite().not().fill_null(false));
+                if let Some(flag) = &not_finite {
+                    let name = not_finite_name(&var.name);
+                    values.push(flag.clone().alias(name.as_str()));
+                    hidden.push(name);
+                }
+                let value = match var
+                    .any_condition()
+                    .into_iter()
+                    .chain(not_finite)
+                    .reduce(Expr::or)
+                {
+                    Some(cond) => when(cond).then(lit(NULL)).otherwise(expr),
+                    None => expr,
+                };
+                values.push(value.alias(var.name.as_str()));
+            }
             lf = lf.with_columns(values);
         }
         (lf, hidden)
@@ -239,15 +246,9 @@ impl Plan {
                 );
                 earlier = earlier.or(c);
             }
-            let float = df.schema().get(name).is_some_and(|d| d.is_float());
-            if float {
-                let c = var
-                    .value
-                    .expr
-                    .clone()
-                    .is_finite()
-                    .not()
-                    .fill_null(lit(false));
+            let flags = not_finite_name(name);
+            if df.schema().contains(&flags) {
+                let c = col(flags.as_str());
                 aggs.push(
                     c.clone()
                         .and(earlier.clone().not())
@@ -280,11 +281,7 @@ impl Plan {
             }
             // Listed only when it happened, so that a report without such values reads as
             // before.
-            if df
-                .schema()
-                .get(var.name.as_str())
-                .is_some_and(|d| d.is_float())
-            {
+            if df.schema().contains(&not_finite_name(&var.name)) {
                 let rows = get(format!("{i}_finite"))?;
                 if rows > 0 {
                     nulls.push(NullCount {
@@ -311,6 +308,11 @@ impl Plan {
         }
         Ok(out)
     }
+}
+
+/// The hidden column flagging the rows where derived variable `name` was not finite.
+fn not_finite_name(name: &str) -> String {
+    format!("__not_finite__{name}")
 }
 
 impl Planned {
