@@ -10,8 +10,10 @@ use crate::{Error, Result};
 
 mod budget;
 mod contiguous;
+mod period;
 
 use budget::check_budget;
+use period::{check_period, check_window, fiscal_year, period_as_int};
 
 /// The internal column holding each row's original position (1 = first data row); named
 /// `source_row` in the outputs (see `pipeline::output_names`).
@@ -220,138 +222,6 @@ pub fn load(
     })
 }
 
-/// The days of `month` in `year` of the Gregorian calendar: February has 29 in a year
-/// divisible by 4, except centuries not divisible by 400 (common practice).
-fn days_in_month(year: Expr, month: Expr) -> Expr {
-    let divisible = |n: i64| (year.clone() % lit(n)).eq(lit(0i64));
-    let leap = divisible(4).and(divisible(100).not()).or(divisible(400));
-    when(month.clone().eq(lit(2i64)))
-        .then(when(leap).then(lit(29i64)).otherwise(lit(28i64)))
-        .when(
-            [4i64, 6, 9, 11]
-                .map(|m| month.clone().eq(lit(m)))
-                .into_iter()
-                .reduce(Expr::or)
-                .expect("four months"),
-        )
-        .then(lit(30i64))
-        .otherwise(lit(31i64))
-}
-
-/// Derive the period column (`cfg.period`) from a fiscal-year-end date column of text
-/// `YYYY-MM-DD`: the date's year, less one when its month is `cutoff` or earlier (common
-/// practice: a year ending January–May belongs to the previous fiscal year). A date that is not
-/// of that form is an error naming its row. Also counts entities whose year-end month changed.
-fn fiscal_year(
-    df: DataFrame,
-    mut columns: Vec<String>,
-    cfg: &InputConfig,
-    date: &str,
-    cutoff: u32,
-) -> Result<(
-    DataFrame,
-    Vec<String>,
-    Option<crate::report::YearEndChanges>,
-)> {
-    let text = col(date)
-        .cast(DataType::String)
-        .str()
-        .strip_chars(lit(NULL));
-    // `len` characters from `start` of a YYYY-MM-DD date.
-    let part = |start: i32, len: i32| text.clone().str().slice(lit(start), lit(len));
-    let [year, month, day] =
-        [(0, 4), (5, 2), (8, 2)].map(|(s, l)| part(s, l).cast(DataType::Int64));
-    let well_formed = text
-        .clone()
-        .str()
-        .len_chars()
-        .eq(lit(10u32))
-        .and(part(4, 1).eq(lit("-")))
-        .and(part(7, 1).eq(lit("-")))
-        .and(year.clone().is_not_null())
-        .and(
-            month
-                .clone()
-                .gt_eq(lit(1))
-                .and(month.clone().lt_eq(lit(12))),
-        )
-        .and(
-            day.clone()
-                .gt_eq(lit(1))
-                .and(day.lt_eq(days_in_month(year.clone(), month.clone()))),
-        )
-        .fill_null(lit(false));
-    let marked = df
-        .lazy()
-        .with_columns([
-            text.clone().alias("__ye_text"),
-            well_formed.alias("__ye_ok"),
-            month.clone().alias("__ye_month"),
-        ])
-        .collect()?;
-    let bad = marked
-        .clone()
-        .lazy()
-        .filter(col("__ye_text").is_not_null().and(col("__ye_ok").not()))
-        .select([col(ROW), col("__ye_text")])
-        .limit(1)
-        .collect()?;
-    if bad.height() > 0 {
-        return Err(Error::Unreadable {
-            file: cfg.path.clone(),
-            at: first_row(&bad)?,
-            message: format!(
-                "`{date}` (named in `[panel] year_end`) holds `{}`, not a date YYYY-MM-DD",
-                bad.column("__ye_text")?.str()?.get(0).unwrap_or("")
-            ),
-        });
-    }
-    let fiscal = when(col("__ye_ok"))
-        .then(
-            year - when(col("__ye_month").lt_eq(lit(cutoff as i64)))
-                .then(lit(1i64))
-                .otherwise(lit(0i64)),
-        )
-        .otherwise(lit(NULL).cast(DataType::Int64));
-    let out = marked
-        .lazy()
-        .with_column(fiscal.alias(cfg.period.as_str()))
-        .collect()?;
-    let changed = out
-        .clone()
-        .lazy()
-        .filter(
-            col("__ye_month")
-                .is_not_null()
-                .and(col(cfg.entity.as_str()).is_not_null()),
-        )
-        .group_by([col(cfg.entity.as_str()).cast(DataType::String).alias("__e")])
-        .agg([col("__ye_month").n_unique().alias("__months")])
-        .filter(col("__months").gt(lit(1)))
-        .sort(["__e"], Default::default())
-        .collect()?;
-    let examples: Vec<String> = changed
-        .column("__e")?
-        .str()?
-        .iter()
-        .flatten()
-        .take(5)
-        .map(str::to_string)
-        .collect();
-    let out = out.drop_many(["__ye_text", "__ye_ok", "__ye_month"]);
-    columns.push(cfg.period.clone());
-    Ok((
-        out,
-        columns,
-        Some(crate::report::YearEndChanges {
-            column: date.to_string(),
-            cutoff_month: cutoff,
-            entities: changed.height() as u64,
-            examples,
-        }),
-    ))
-}
-
 /// ", row N" for the first row of `bad` (a frame with the row-number column), for messages.
 pub(crate) fn first_row(bad: &DataFrame) -> Result<String> {
     let row = bad.column(ROW)?.cast(&DataType::Int64)?;
@@ -535,91 +405,6 @@ fn scan(
     Ok(lf)
 }
 
-/// Strings are parsed strictly; floats must be whole numbers.
-fn period_as_int(period: &str, dtype: &DataType) -> Expr {
-    let c = col(period);
-    match dtype {
-        DataType::String => c.str().strip_chars(lit(NULL)).cast(DataType::Int64),
-        _ => c.cast(DataType::Int64),
-    }
-}
-
-/// Fail when the periods (whole numbers by now) span more than a panel's window may hold,
-/// naming the rows of the first and the last period.
-fn check_window(df: &DataFrame, cfg: &InputConfig) -> Result<()> {
-    let periods = df.column(&cfg.period)?.i64()?;
-    let (Some(first), Some(last)) = (periods.min(), periods.max()) else {
-        return Ok(());
-    };
-    let window = i128::from(last) - i128::from(first) + 1;
-    let most = crate::rules::MAX_WINDOW_PERIODS;
-    if window <= i128::from(most) {
-        return Ok(());
-    }
-    let row_of = |value: i64| -> Result<u64> {
-        let hit = df
-            .clone()
-            .lazy()
-            .filter(col(cfg.period.as_str()).eq(lit(value)))
-            .select([col(ROW).cast(DataType::UInt64)])
-            .limit(1)
-            .collect()?;
-        Ok(hit.columns()[0].u64()?.get(0).unwrap_or(0))
-    };
-    Err(Error::PeriodWindow {
-        file: cfg.path.clone(),
-        column: cfg.period.clone(),
-        first,
-        first_row: row_of(first)?,
-        last,
-        last_row: row_of(last)?,
-        periods: window,
-        most,
-    })
-}
-
-/// Fail with the first row whose period is present but not a whole number.
-fn check_period(df: &DataFrame, cfg: &InputConfig, dtype: &DataType) -> Result<()> {
-    let c = col(cfg.period.as_str());
-    let bad = match dtype {
-        // Beyond the largest signed 64-bit integer the cast would make the period missing.
-        DataType::UInt64 => c.clone().gt(lit(i64::MAX as u64)).fill_null(lit(false)),
-        d if d.is_integer() => return Ok(()),
-        DataType::Null => return Ok(()),
-        d if d.is_float() => c.clone().is_not_null().and(
-            c.clone()
-                .neq(c.clone().floor())
-                .or(c.clone().is_nan())
-                .or(c.clone().abs().gt(lit(9.0e15))),
-        ),
-        DataType::String => c.clone().is_not_null().and(
-            c.clone()
-                .str()
-                .strip_chars(lit(NULL))
-                .cast(DataType::Int64)
-                .is_null(),
-        ),
-        _ => lit(true),
-    };
-    let first = df
-        .clone()
-        .lazy()
-        .filter(bad)
-        .select([col(ROW), c.cast(DataType::String).alias("value")])
-        .limit(1)
-        .collect()?;
-    if first.height() == 0 {
-        return Ok(());
-    }
-    let row = first.column(ROW)?.cast(&DataType::UInt64)?.u64()?.get(0);
-    let value = first.column("value")?.str()?.get(0).map(str::to_string);
-    Err(Error::NonIntegerPeriod {
-        file: cfg.path.clone(),
-        column: cfg.period.clone(),
-        row: row.unwrap_or(0),
-        value: value.unwrap_or_else(|| dtype.to_string()),
-    })
-}
 /// Lowercase hex SHA-256.
 pub fn sha256_hex(bytes: &[u8]) -> String {
     use sha2::Digest;
