@@ -3,10 +3,6 @@
 
 use crate::util::{run_reference, Workdir};
 
-fn json(w: &Workdir, path: &str) -> serde_json::Value {
-    serde_json::from_str(&std::fs::read_to_string(w.path(path)).unwrap()).unwrap()
-}
-
 #[test]
 fn joined_files_match_a_pandas_recount_on_the_demo() {
     // assemble.py joins the demo's headcount, firm and price-index files with pandas merges
@@ -27,7 +23,7 @@ fn joined_files_match_a_pandas_recount_on_the_demo() {
         "json",
     ]);
     let audit: serde_json::Value = serde_json::from_str(&audit.stdout).unwrap();
-    assert_eq!(audit["joins"], json(&w, "d/bundle/report.json")["joins"]);
+    assert_eq!(audit["joins"], w.json("d/bundle/report.json")["joins"]);
     let md = std::fs::read_to_string(w.path("d/bundle/report.md")).unwrap();
     assert!(md.contains("## Joined files"), "{md}");
     assert!(md.contains("velmora_prices.csv (period table, on fiscal_year)"));
@@ -85,14 +81,14 @@ fn a_group_period_table_converts_currencies_and_drops_unmatched_rows() {
         "5,rates.csv,join: no match,no panel row has this key,,,2020,GBP,"
     );
     assert_eq!(lines.len(), 4);
-    let m = json(&w, "b/manifest.json");
+    let m = w.json("b/manifest.json");
     assert_eq!(m["rows"]["input"], 6);
     assert_eq!(m["rows"]["kept"], 4);
     assert_eq!(m["rows"]["rejected"], 2);
     assert_eq!(m["joins"][0]["name"], "rates.csv");
     assert_eq!(m["joins"][0]["rows"], 5);
     assert_eq!(m["joins"][0]["rejected"], 1);
-    let r = json(&w, "b/report.json");
+    let r = w.json("b/report.json");
     let j = &r["joins"][0];
     assert_eq!(j["kind"], "group-period table");
     assert_eq!(j["rows_used"], 4);
@@ -149,7 +145,7 @@ fn a_repeated_key_in_a_joined_table_is_refused_unless_the_first_is_kept() {
         rejected.contains("7,rates.csv,join: exact copies,an exact copy of an earlier row,3,"),
         "{rejected}"
     );
-    let r = json(&w, "b/report.json");
+    let r = w.json("b/report.json");
     assert_eq!(r["joins"][0]["repeated_keys"], 1);
     assert_eq!(r["joins"][0]["exact_copies"], 1);
     assert_eq!(r["joins"][0]["rows"], 7);
@@ -257,7 +253,7 @@ fn fiscal_years_from_the_demo_year_end_dates_match_pandas() {
         ],
     );
     assert!(out.contains(" 0 failed"), "{out}");
-    let planted = json(&w, "d/data/planted.json");
+    let planted = w.json("d/data/planted.json");
     assert!(
         !planted["tables"]["year_end_changes"]
             .as_array()

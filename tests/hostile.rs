@@ -1096,9 +1096,7 @@ fn a_hand_over_with_no_row_left_fails_the_verdict() {
         w.write("raw.csv", GOOD);
         w.write("rules.toml", &format!("{KEYS}{rules}"));
         w.ok(&["build", "raw.csv", "--rules", "rules.toml", "--out", "out"]);
-        let report: serde_json::Value =
-            serde_json::from_str(&std::fs::read_to_string(w.path("out/report.json")).unwrap())
-                .unwrap();
+        let report = w.json("out/report.json");
         let verdict = &report["verdict"];
         assert_eq!(verdict["overall"], "fail", "{name}: {verdict}");
         let line = verdict["checks"]
@@ -1161,8 +1159,7 @@ fn derived_numbers_that_are_not_finite_are_missing_with_their_reason() {
     assert_eq!(z, ["", "", "0.0", "0.6931471805599453"], "{panel}");
     assert_eq!(wv, ["-0.3333333333333333", "-1.0", "", "-1.0"], "{panel}");
     assert_eq!(zl, ["", "", "", "0.0"], "{panel}");
-    let report: serde_json::Value =
-        serde_json::from_str(&std::fs::read_to_string(w.path("out/report.json")).unwrap()).unwrap();
+    let report = w.json("out/report.json");
     let reasons = |i: usize| -> Vec<(String, u64)> {
         report["derived"][i]["null_reasons"]
             .as_array()

@@ -36,6 +36,11 @@ impl Workdir {
         p
     }
 
+    /// A JSON file the run wrote (a bundle's report.json, say), parsed.
+    pub fn json(&self, name: &str) -> serde_json::Value {
+        serde_json::from_str(&std::fs::read_to_string(self.path(name)).unwrap()).unwrap()
+    }
+
     pub fn run(&self, args: &[&str]) -> Run {
         self.run_with(args, &[])
     }
