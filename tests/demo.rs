@@ -244,6 +244,56 @@ fn verify_checks_a_bundle_against_relocated_files_recognised_by_hash() {
     w.fails(&RELOCATED, "velmora_prices.csv");
 }
 
+/// Text whose values repeat is held as codes during a run; every file holds it as read. Worked
+/// by hand: firm A has one year (a singleton, which cleaning drops into the ledger) and ten
+/// firms four years each; the sector repeats, one of its two values formula-like.
+#[test]
+fn repeating_text_reaches_every_file_as_read() {
+    use polars::prelude::*;
+    let w = Workdir::new();
+    let sector = |firm: i32| if firm % 2 == 0 { "=Docks" } else { "Mills" };
+    let mut rows = vec!["A,2001,=Docks,0.5".to_string()];
+    for firm in 1..=10 {
+        for y in 2001..=2004 {
+            rows.push(format!(
+                "F{firm:02},{y},{},{}.5",
+                sector(firm),
+                firm * 10 + y - 2000
+            ));
+        }
+    }
+    w.write("p.csv", &format!("f,y,sector,x\n{}\n", rows.join("\n")));
+    w.write(
+        "rules.toml",
+        "[panel]\nentity = \"f\"\nperiod = \"y\"\n[clean]\ndrop_singletons = true\n",
+    );
+    w.ok(&["build", "p.csv", "--rules", "rules.toml", "--out", "o"]);
+    // The guard's leading quote on every formula-like cell, in the panel and in the ledger.
+    let guarded = |row: &str| row.replace(",=", ",'=");
+    let panel = std::fs::read_to_string(w.path("o/panel.csv")).unwrap();
+    let want: Vec<String> = rows[1..]
+        .iter()
+        .enumerate()
+        .map(|(i, row)| format!("{},{}", i + 2, guarded(row)))
+        .collect();
+    assert_eq!(
+        panel,
+        format!("source_row,f,y,sector,x\n{}\n", want.join("\n"))
+    );
+    let rejected = std::fs::read_to_string(w.path("o/rejected.csv")).unwrap();
+    assert!(rejected.contains(",A,2001,'=Docks,0.5"), "{rejected}");
+    // panel.parquet: the sector as text, row by row as read.
+    let file = std::fs::File::open(w.path("o/panel.parquet")).unwrap();
+    let read = ParquetReader::new(file).finish().unwrap();
+    let column = read.column("sector").unwrap();
+    assert_eq!(column.dtype(), &DataType::String);
+    let values: Vec<Option<&str>> = column.str().unwrap().iter().collect();
+    let want: Vec<Option<&str>> = (1..=10)
+        .flat_map(|firm| std::iter::repeat_n(Some(sector(firm)), 4))
+        .collect();
+    assert_eq!(values, want);
+}
+
 #[test]
 fn csv_outputs_guard_formula_like_text() {
     let w = Workdir::new();

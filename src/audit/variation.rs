@@ -335,30 +335,27 @@ pub(super) fn categorical(ctx: &Context) -> Result<Vec<VariationLine>> {
         .iter()
         .filter(|v| !ctx.numeric.contains(v))
         .collect();
-    // One column at a time on each core: each compares its whole text column.
+    // One column at a time on each core: each compares its whole column, text held as codes
+    // by its codes (equal codes, equal text).
     let one = |v: &&String| -> Result<VariationLine> {
-        let text = ctx.df.column(v)?.cast(&DataType::String)?;
-        let text = text.str()?;
-        let n = text.len() - text.null_count();
+        let column = ctx.df.column(v)?;
+        let n = column.len() - column.null_count();
+        let compared = match crate::core::codes(column)? {
+            Some(codes) => Compared::Codes(codes),
+            None => Compared::Text(column.cast(&DataType::String)?),
+        };
         let core = &ctx.core;
-        // One value per group: the first value seen in each group, compared with the rest.
-        let one_value = |group: &[u32], groups: usize| -> bool {
-            let mut first: Vec<Option<&str>> = vec![None; groups];
-            for (g, value) in group.iter().zip(text.iter()) {
-                let Some(value) = value else { continue };
-                match first[*g as usize] {
-                    None => first[*g as usize] = Some(value),
-                    Some(f) if f != value => return false,
-                    Some(_) => {}
-                }
-            }
-            true
+        let one_value = |group: &[u32], groups: usize| -> Result<bool> {
+            Ok(match &compared {
+                Compared::Codes(codes) => holds_one_value(group, groups, codes.iter()),
+                Compared::Text(text) => holds_one_value(group, groups, text.str()?.iter()),
+            })
         };
         let absorbed_by = if n < 2 {
             None
-        } else if one_value(&core.entity, core.entities()) {
+        } else if one_value(&core.entity, core.entities())? {
             Some(Absorbed::Entity)
-        } else if one_value(&core.period, core.periods.len()) {
+        } else if one_value(&core.period, core.periods.len())? {
             Some(Absorbed::Period)
         } else {
             None
@@ -383,6 +380,32 @@ pub(super) fn categorical(ctx: &Context) -> Result<Vec<VariationLine>> {
         Ok(())
     })?;
     Ok(lines)
+}
+
+/// A non-numeric variable as [`categorical`] compares it: text held as codes by its codes,
+/// anything else as text.
+enum Compared {
+    Codes(UInt32Chunked),
+    Text(Column),
+}
+
+/// Whether each group holds a single value: the first value seen in each group, compared
+/// with the rest (missing values skipped).
+fn holds_one_value<T: PartialEq + Copy>(
+    group: &[u32],
+    groups: usize,
+    values: impl Iterator<Item = Option<T>>,
+) -> bool {
+    let mut first: Vec<Option<T>> = vec![None; groups];
+    for (g, value) in group.iter().zip(values) {
+        let Some(value) = value else { continue };
+        match first[*g as usize] {
+            None => first[*g as usize] = Some(value),
+            Some(f) if f != value => return false,
+            Some(_) => {}
+        }
+    }
+    true
 }
 
 fn finite(x: f64) -> Option<f64> {

@@ -29,8 +29,8 @@ pub(super) fn parquet_labels(
     panel: &DataFrame,
     entries: &[crate::pipeline::DictionaryEntry],
 ) -> KeyValueMetadata {
-    let schema: ArrowSchema = panel
-        .schema()
+    // The schema of the file: text held as codes is written as text.
+    let schema: ArrowSchema = crate::core::spelled_out_schema(panel.schema())
         .to_arrow(CompatLevel::newest())
         .into_iter()
         .map(|(name, field)| {

@@ -38,7 +38,9 @@ pub(super) fn write_parquet<W: Write + Send>(
 ) -> PolarsResult<()> {
     let compression = ParquetCompression::Snappy;
     let chunked = chunk_df_for_writing(df, ROW_GROUP)?;
-    let arrow = chunked.schema().to_arrow(CompatLevel::newest());
+    // Text held as codes is written as text, spelled out a row group at a time.
+    let schema = crate::core::spelled_out_schema(chunked.schema());
+    let arrow = schema.to_arrow(CompatLevel::newest());
     let encodings: Vec<Vec<Encoding>> = get_encodings(&arrow)
         .iter()
         .zip(arrow.iter_values())
@@ -57,16 +59,19 @@ pub(super) fn write_parquet<W: Write + Send>(
         .with_compression(compression)
         .with_statistics(options.statistics)
         .with_key_value_metadata(Some(metadata))
-        .batched(chunked.schema())?;
+        .batched(&schema)?;
     let fields = writer.parquet_schema().fields().to_vec();
-    let batches: Vec<_> = chunked
-        .iter_chunks(CompatLevel::newest(), false)
-        .filter(|b| !b.is_empty())
-        .collect();
-    progress.items_of(batches.len(), "row groups");
+    let groups = row_groups(&chunked);
+    progress.items_of(groups.len(), "row groups");
     // Each row group's columns made into compressed pages in parallel.
-    let encode = |columns: &[ArrayRef]| -> PolarsResult<Vec<Vec<CompressedPage>>> {
-        Ok(columns
+    let encode = |&(offset, rows): &(usize, usize)| -> PolarsResult<Vec<Vec<CompressedPage>>> {
+        let group = crate::core::spelled_out(&chunked.slice(offset as i64, rows))?;
+        let batch = group
+            .iter_chunks(CompatLevel::newest(), false)
+            .next()
+            .expect("a row group holds rows");
+        Ok(batch
+            .columns()
             .par_iter()
             .zip(&fields)
             .zip(&encodings)
@@ -88,9 +93,9 @@ pub(super) fn write_parquet<W: Write + Send>(
     // The file writer lays out one row group while the next is encoded: the cores are not
     // left idle while pages are copied out.
     let mut ready: Option<(u64, Vec<Vec<CompressedPage>>)> = None;
-    for batch in &batches {
+    for group in &groups {
         let (pages, written) = rayon::join(
-            || encode(batch.columns()),
+            || encode(group),
             || match ready.take() {
                 Some((rows, pages)) => writer.write_row_group(rows, &pages).map(|_| true),
                 None => Ok(false),
@@ -99,7 +104,7 @@ pub(super) fn write_parquet<W: Write + Send>(
         if written? {
             progress.done(1);
         }
-        ready = Some((batch.len() as u64, pages?));
+        ready = Some((group.1 as u64, pages?));
     }
     if let Some((rows, pages)) = ready {
         writer.write_row_group(rows, &pages)?;
@@ -107,6 +112,24 @@ pub(super) fn write_parquet<W: Write + Send>(
     }
     writer.finish()?;
     Ok(())
+}
+
+/// The row groups of a frame made by `chunk_df_for_writing` (whose columns' chunks line up),
+/// as (first row, rows): one a chunk, empty chunks left out.
+fn row_groups(df: &DataFrame) -> Vec<(usize, usize)> {
+    let Some(first) = df.columns().first() else {
+        return Vec::new();
+    };
+    let mut offset = 0;
+    first
+        .as_materialized_series()
+        .chunk_lengths()
+        .filter(|rows| *rows > 0)
+        .map(|rows| {
+            offset += rows;
+            (offset - rows, rows)
+        })
+        .collect()
 }
 
 #[cfg(test)]

@@ -15,11 +15,13 @@ mod keys;
 mod quantile;
 mod singletons;
 mod slip;
+mod text;
 mod values;
 
 pub use keys::same_as_previous;
 pub use quantile::{grouped_quantiles, quantiles, quantiles_visiting, type7, type7_many};
 pub use slip::{log_ratios, magnitude};
+pub use text::{codes, hold_text_as_codes, is_coded, spelled_out, spelled_out_schema};
 pub use values::{Values, View};
 
 /// How many variables the kernels hold in memory at once (several per core, few enough that

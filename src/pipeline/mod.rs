@@ -154,18 +154,27 @@ pub fn prepare_with(
     let rule_lines = rules::accounting_rules(&mut sample, &accounting_rules, &keys)?;
 
     progress.stage("derived variables");
+    // Nothing after this point evaluates an expression on the panel but the derived
+    // variables: repeating text is held as codes from here on (what they read once they are
+    // made), and spelled out again where rows leave for the ledger or a file.
+    let keys_and_inputs: Vec<String> = [input.entity.clone(), input.period.clone()]
+        .into_iter()
+        .chain(plan.reads())
+        .collect();
+    crate::core::hold_text_as_codes(&mut sample.panel, &keys_and_inputs)?;
     let layout = if found.keys.conflicting_keys == 0 || typed.policy != DuplicatePolicy::Report {
         Layout::SortedUnique
     } else {
         Layout::Any
     };
-    let (panel, derived) = derived::derive(
+    let (mut panel, derived) = derived::derive(
         std::mem::take(&mut sample.panel),
         &plan,
         &columns,
         layout,
         input,
     )?;
+    crate::core::hold_text_as_codes(&mut panel, &keys_and_inputs[..2])?;
 
     let mut report = Report::new(input_summary(input, &read.loaded));
     report.keys = found.keys;

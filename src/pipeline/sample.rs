@@ -44,7 +44,8 @@ impl Sample<'_> {
 
     /// Record a step that moved `removed` (ledger-shaped) out of the panel.
     pub fn removed(&mut self, name: &str, removed: DataFrame) -> Result<()> {
-        self.ledger.push(removed);
+        // The ledger holds text as text, whatever the panel holds it as.
+        self.ledger.push(crate::core::spelled_out(&removed)?);
         self.step(name)
     }
 

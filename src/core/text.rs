@@ -1,0 +1,127 @@
+//! Text held as codes. A text column whose values repeat — a sector, a region, a firm's name
+//! over its years — is held, once the derived variables are made, as a categorical column: a
+//! 4-byte code a row and each distinct value once, instead of a 16-byte view a row. At 10
+//! million rows that is 114 MiB less a column. What reads such a column after that point
+//! reads the codes (which value equals which) or spells a slice of rows out again
+//! ([`spelled_out`]): the bundle's files hold the text as it was read.
+
+use polars::prelude::*;
+
+use crate::Result;
+
+/// Rows at the top of a column that decide whether its values repeat.
+const SAMPLE: usize = 1 << 16;
+
+/// A column is held as codes when its first [`SAMPLE`] rows hold at most one distinct value
+/// in this many rows: codes then cost less than views even for text longer than a view
+/// holds in place (each distinct value is kept once, with its entry in the mapping).
+const REPEATS: usize = 4;
+
+/// Hold as codes each text column of `df` not named in `keep` whose values repeat (see
+/// [`REPEATS`]); the others stay as they are. One column at a time, so that memory holds at
+/// most one column twice.
+pub fn hold_text_as_codes(df: &mut DataFrame, keep: &[String]) -> Result<()> {
+    let text: Vec<PlSmallStr> = df
+        .schema()
+        .iter()
+        .filter(|(name, dtype)| {
+            **dtype == DataType::String && !keep.iter().any(|k| k == name.as_str())
+        })
+        .map(|(name, _)| name.clone())
+        .collect();
+    for name in text {
+        let column = df.column(&name)?;
+        let head = column.head(Some(SAMPLE));
+        if head.is_empty() || head.n_unique()? * REPEATS > head.len() {
+            continue;
+        }
+        // Categories of the column's own (not the process-wide ones), let go with it.
+        let categories = Categories::random(
+            PlSmallStr::from_static("panelready"),
+            CategoricalPhysical::U32,
+        );
+        let coded = column.cast(&DataType::from_categories(categories))?;
+        df.with_column(coded)?;
+    }
+    Ok(())
+}
+
+/// Whether `dtype` is text held as codes.
+pub fn is_coded(dtype: &DataType) -> bool {
+    matches!(dtype, DataType::Categorical(_, _))
+}
+
+/// `df` with its coded text columns spelled out as text again (the same frame, shared, when
+/// it has none). The bundle's writers call it on a slice of rows at a time.
+pub fn spelled_out(df: &DataFrame) -> PolarsResult<DataFrame> {
+    if !df.schema().iter_values().any(is_coded) {
+        return Ok(df.clone());
+    }
+    let columns = df
+        .columns()
+        .iter()
+        .map(|c| {
+            if is_coded(c.dtype()) {
+                c.cast(&DataType::String)
+            } else {
+                Ok(c.clone())
+            }
+        })
+        .collect::<PolarsResult<Vec<Column>>>()?;
+    DataFrame::new(df.height(), columns)
+}
+
+/// `schema` with coded text columns as text: the schema of [`spelled_out`]'s frames.
+pub fn spelled_out_schema(schema: &Schema) -> Schema {
+    schema
+        .iter()
+        .map(|(name, dtype)| {
+            let dtype = if is_coded(dtype) {
+                DataType::String
+            } else {
+                dtype.clone()
+            };
+            (name.clone(), dtype)
+        })
+        .collect()
+}
+
+/// The codes of a coded text column (equal codes, equal text; null where the text is), or
+/// None for any other column.
+pub fn codes(column: &Column) -> Result<Option<UInt32Chunked>> {
+    if !is_coded(column.dtype()) {
+        return Ok(None);
+    }
+    let physical = column.as_materialized_series().to_physical_repr();
+    Ok(Some(physical.u32()?.clone()))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A repeating text column is held as codes and spelled out unchanged, nulls included; a
+    /// column whose values do not repeat, and a kept one, stay text (worked by hand).
+    #[test]
+    fn repeating_text_is_coded_and_spelled_out_the_same() {
+        // 32 rows: three distinct sectors (a null among them), 32 distinct names.
+        let sector: Vec<Option<&str>> = (0..32)
+            .map(|i| (i != 3).then_some(if i % 3 == 1 { "Docks" } else { "Mills" }))
+            .collect();
+        let names: Vec<String> = (0..32).map(|i| format!("name {i}")).collect();
+        let firm: Vec<&str> = (0..32).map(|i| if i < 16 { "F1" } else { "F2" }).collect();
+        let mut df = df!("firm" => firm, "sector" => sector, "name" => names).unwrap();
+        let before = df.clone();
+        hold_text_as_codes(&mut df, &["firm".to_string()]).unwrap();
+        assert!(is_coded(df.column("sector").unwrap().dtype()));
+        assert_eq!(df.column("name").unwrap().dtype(), &DataType::String);
+        assert_eq!(df.column("firm").unwrap().dtype(), &DataType::String);
+        let codes = codes(df.column("sector").unwrap()).unwrap().unwrap();
+        let codes: Vec<Option<u32>> = codes.iter().collect();
+        assert_eq!(codes[0], codes[2]);
+        assert_ne!(codes[0], codes[1]);
+        assert_eq!(codes[3], None);
+        assert_eq!(spelled_out(&df).unwrap(), before);
+        assert_eq!(spelled_out_schema(df.schema()), **before.schema());
+    }
+}

@@ -1,0 +1,94 @@
+//! The derived variables' figures: each one's values and its nulls by reason.
+
+use polars::prelude::*;
+
+use super::{Plan, INPUT_MISSING, NOT_FINITE};
+use crate::report::{DerivedSummary, NullCount};
+use crate::Result;
+
+impl Plan {
+    /// Per variable: non-null values and nulls by reason (first matching condition wins).
+    pub fn null_counts(&self, df: &DataFrame) -> Result<Vec<DerivedSummary>> {
+        let mut aggs = Vec::new();
+        for (i, var) in self.vars.iter().enumerate() {
+            let name = var.name.as_str();
+            aggs.push(col(name).is_not_null().sum().alias(format!("{i}_ok")));
+            let mut earlier = lit(false);
+            for (j, (_, cond)) in var.conditions.iter().enumerate() {
+                let c = cond.expr.clone().fill_null(lit(false));
+                aggs.push(
+                    c.clone()
+                        .and(earlier.clone().not())
+                        .sum()
+                        .alias(format!("{i}_{j}")),
+                );
+                earlier = earlier.or(c);
+            }
+            let flags = not_finite_name(name);
+            if df.schema().contains(&flags) {
+                let c = col(flags.as_str());
+                aggs.push(
+                    c.clone()
+                        .and(earlier.clone().not())
+                        .sum()
+                        .alias(format!("{i}_finite")),
+                );
+                earlier = earlier.or(c);
+            }
+            aggs.push(
+                col(name)
+                    .is_null()
+                    .and(earlier.not())
+                    .sum()
+                    .alias(format!("{i}_input")),
+            );
+        }
+        let counts = df.clone().lazy().select(aggs).collect()?;
+        let get = |name: String| -> Result<u64> {
+            let v = counts.column(&name)?.cast(&DataType::UInt64)?;
+            Ok(v.u64()?.get(0).unwrap_or(0))
+        };
+        let mut out = Vec::new();
+        for (i, var) in self.vars.iter().enumerate() {
+            let mut nulls = Vec::new();
+            for (j, (reason, _)) in var.conditions.iter().enumerate() {
+                nulls.push(NullCount {
+                    reason: reason.clone(),
+                    rows: get(format!("{i}_{j}"))?,
+                });
+            }
+            // Listed only when it happened, so that a report without such values reads as
+            // before.
+            if df.schema().contains(&not_finite_name(&var.name)) {
+                let rows = get(format!("{i}_finite"))?;
+                if rows > 0 {
+                    nulls.push(NullCount {
+                        reason: NOT_FINITE.to_string(),
+                        rows,
+                    });
+                }
+            }
+            nulls.push(NullCount {
+                reason: INPUT_MISSING.to_string(),
+                rows: get(format!("{i}_input"))?,
+            });
+            out.push(DerivedSummary {
+                name: var.name.clone(),
+                label: var.rule.label.clone().unwrap_or_default(),
+                expr: var.rule.expr.clone(),
+                unit: var.rule.unit.clone().unwrap_or_default(),
+                source: var.rule.source.clone().unwrap_or_default(),
+                origin: var.origin,
+                non_null: get(format!("{i}_ok"))?,
+                nulls: nulls.iter().map(|n| n.rows).sum(),
+                null_reasons: nulls,
+            });
+        }
+        Ok(out)
+    }
+}
+
+/// The hidden column flagging the rows where derived variable `name` was not finite.
+pub(super) fn not_finite_name(name: &str) -> String {
+    format!("__not_finite__{name}")
+}
