@@ -828,6 +828,48 @@ fn a_memory_budget_too_small_stops_before_reading() {
     assert!(r.stderr.contains("--memory-budget"), "{}", r.stderr);
 }
 
+/// The budget's estimate counts repeating text as the run holds it, as codes (4 bytes a row
+/// instead of a 24-byte view and string): two files of 100,000 rows alike but for one text
+/// column, repeating in one and distinct on every row in the other, are estimated at about
+/// 256 MiB + 1.15 × 100,000 × 48 bytes (261.3 MiB) and × 68 bytes (263.5 MiB) — the constants
+/// of `src/load/budget.rs`, worked by hand — so a budget of 262 MiB lets one through only.
+#[test]
+fn the_memory_budget_counts_repeating_text_as_codes() {
+    let w = Workdir::new();
+    for (file, text) in [("repeating.csv", false), ("distinct.csv", true)] {
+        let mut csv = String::from("firm,year,note,x\n");
+        for i in 0..100_000 {
+            let note = if text {
+                format!("N{i:05}")
+            } else {
+                "Mills0".to_string()
+            };
+            csv.push_str(&format!("F{:05},{},{note},1.5\n", i / 10, 2001 + i % 10));
+        }
+        w.write(file, &csv);
+    }
+    let run = |file: &str| {
+        w.run(&[
+            "audit",
+            file,
+            "--entity",
+            "firm",
+            "--period",
+            "year",
+            "--memory-budget",
+            "262MiB",
+        ])
+    };
+    assert_eq!(run("repeating.csv").code, 0);
+    let r = run("distinct.csv");
+    assert_eq!(r.code, 2, "{}", r.stderr);
+    assert!(
+        r.stderr.contains("memory budget of 262 MiB"),
+        "{}",
+        r.stderr
+    );
+}
+
 /// The binary turns transparent huge pages off for its own process (see `small_pages_only` in
 /// `src/main.rs`). Read from the kernel's own account of the process, `THP_enabled` in
 /// `/proc/PID/status` (Linux 5.0 and later; proc(5)), while the run waits on a rules file that

@@ -10,9 +10,9 @@ use polars::prelude::*;
 use crate::Result;
 
 /// Rows at the top of a column that decide whether its values repeat.
-const SAMPLE: usize = 1 << 16;
+pub const TEXT_SAMPLE: usize = 1 << 16;
 
-/// A column is held as codes when its first [`SAMPLE`] rows hold at most one distinct value
+/// A column is held as codes when its first [`TEXT_SAMPLE`] rows hold at most one distinct value
 /// in this many rows: codes then cost less than views even for text longer than a view
 /// holds in place (each distinct value is kept once, with its entry in the mapping).
 const REPEATS: usize = 4;
@@ -31,8 +31,7 @@ pub fn hold_text_as_codes(df: &mut DataFrame, keep: &[String]) -> Result<()> {
         .collect();
     for name in text {
         let column = df.column(&name)?;
-        let head = column.head(Some(SAMPLE));
-        if head.is_empty() || head.n_unique()? * REPEATS > head.len() {
+        if !repeats(column)? {
             continue;
         }
         // Categories of the column's own (not the process-wide ones), let go with it.
@@ -44,6 +43,13 @@ pub fn hold_text_as_codes(df: &mut DataFrame, keep: &[String]) -> Result<()> {
         df.with_column(coded)?;
     }
     Ok(())
+}
+
+/// Whether a text column's values repeat enough to be held as codes, judged on its first
+/// [`TEXT_SAMPLE`] rows (fewer is fine: a column's head is all that is read).
+pub fn repeats(column: &Column) -> Result<bool> {
+    let head = column.head(Some(TEXT_SAMPLE));
+    Ok(!head.is_empty() && head.n_unique()? * REPEATS <= head.len())
 }
 
 /// Whether `dtype` is text held as codes.

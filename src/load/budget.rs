@@ -14,14 +14,48 @@ use crate::{Error, Result};
 /// `PEAK_PER_PANEL_BYTE`.
 const PEAK_FIXED: f64 = 256.0 * 1024.0 * 1024.0;
 
-/// Peak memory per byte of the panel as held (raw and derived columns): the panel, the
-/// columns that cleaning replaces while it holds both, the kernels' buffers. Fitted on the
-/// bench panel (3 December 2026: peak RSS of `build` and `audit` 476–557 MiB at 1 M rows,
-/// 2.7–3.35 GiB at 10 M over many runs — the allocator returns freed memory late in some —
-/// for a panel as held of about 233 MiB and 2.3 GiB); set above the highest, so that the
-/// estimate errs on the safe side (3.5 GiB at 10 M: 5 % above the highest peak seen, about
-/// 30 % above the 2.6–2.7 GiB of the runs since the checks took less memory).
-const PEAK_PER_PANEL_BYTE: f64 = 1.45;
+/// Peak memory per byte of the panel as held (raw and derived columns, repeating text as
+/// codes): the panel, the columns that cleaning replaces while it holds both, the kernels'
+/// buffers. Fitted on the bench panel (4 December 2026, peak RSS of `build` beyond
+/// `PEAK_FIXED` over the panel as estimated here — 204 bytes a row: 1.05 at 10 M rows (2,303
+/// MiB), 1.08 at 20 M (4,456 MiB) and at 100 M (21,237 MiB); with text held as views the
+/// same code had 0.98 at 10 M, earlier code up to 1.38) and set above the highest, so that
+/// the estimate errs on the safe side (6 % above the peak at 100 M).
+const PEAK_PER_PANEL_BYTE: f64 = 1.15;
+
+/// Bytes a row of text held as codes takes (`core::hold_text_as_codes`).
+const CODE_BYTES: f64 = 4.0;
+
+/// The text columns other than the keys whose values repeat, which the run will hold as
+/// codes: judged as the run judges them, on their first rows (the only rows read here).
+fn coded_text(cfg: &InputConfig, lf: &LazyFrame, schema: &Schema) -> Result<Vec<PlSmallStr>> {
+    let text: Vec<PlSmallStr> = schema
+        .iter()
+        .filter(|(name, dtype)| {
+            **dtype == DataType::String && **name != cfg.entity && **name != cfg.period
+        })
+        .map(|(name, _)| name.clone())
+        .collect();
+    if text.is_empty() {
+        return Ok(text);
+    }
+    let head = lf
+        .clone()
+        .select(
+            text.iter()
+                .map(|name| col(name.clone()))
+                .collect::<Vec<_>>(),
+        )
+        .limit(crate::core::TEXT_SAMPLE as IdxSize)
+        .collect()?;
+    let mut coded = Vec::new();
+    for name in text {
+        if crate::core::repeats(head.column(&name)?)? {
+            coded.push(name);
+        }
+    }
+    Ok(coded)
+}
 
 /// Bytes one value of a column of type `dtype` takes in memory (text: the view and a short
 /// string).
@@ -74,7 +108,17 @@ pub(super) fn check_budget(
         InputFormat::Spreadsheet => return Ok(()),
     };
     let derived = cfg.rules.derive.len();
-    let width: f64 = schema.iter_values().map(value_bytes).sum::<f64>()
+    let coded = coded_text(cfg, lf, schema)?;
+    let width: f64 = schema
+        .iter()
+        .map(|(name, dtype)| {
+            if coded.contains(name) {
+                CODE_BYTES
+            } else {
+                value_bytes(dtype)
+            }
+        })
+        .sum::<f64>()
         + 8.0 * derived as f64
         + std::mem::size_of::<IdxSize>() as f64;
     let needed = PEAK_FIXED + PEAK_PER_PANEL_BYTE * rows as f64 * width;
