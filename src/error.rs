@@ -161,6 +161,9 @@ pub enum Error {
     /// The input holds a header but no data rows.
     #[error("`{file}`: no data rows (only a header)")]
     NoRows { file: PathBuf },
+    /// The spreadsheet's sheet holds no cell at all.
+    #[error("`{file}`: sheet `{sheet}` is empty (no header, no data rows)")]
+    EmptySheet { file: PathBuf, sheet: String },
     /// Two columns of the input share a name.
     #[error("`{file}`: column `{column}` appears more than once in the header")]
     DuplicateColumn { file: PathBuf, column: String },

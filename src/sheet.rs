@@ -137,8 +137,9 @@ pub fn read(path: &Path, sheet: Option<&str>) -> Result<Sheet> {
         .worksheet_range(&name)
         .map_err(|e| unreadable(path, format!(", sheet `{name}`"), e.to_string()))?;
     let Some((row0, col0)) = range.start() else {
-        return Err(Error::NoRows {
+        return Err(Error::EmptySheet {
             file: path.to_path_buf(),
+            sheet: name,
         });
     };
     let mut rows = range.rows();

@@ -218,7 +218,14 @@ fn awkward_spreadsheets_are_refused_or_reported() {
     assert_eq!(report["input"]["sheet"], "accounts");
     let mut args = vec!["audit", "mixed.xlsx", "--sheet", "nope"];
     args.extend(keys);
-    w.fails(&args, "no sheet `nope` (sheets: accounts, other)");
+    w.fails(&args, "no sheet `nope` (sheets: accounts, other, blank)");
+    // A sheet with only a header, and one with no cell at all, each said as it is.
+    let mut args = vec!["audit", "mixed.xlsx", "--sheet", "other"];
+    args.extend(keys);
+    w.fails(&args, "no data rows (only a header)");
+    let mut args = vec!["audit", "mixed.xlsx", "--sheet", "blank"];
+    args.extend(keys);
+    w.fails(&args, "sheet `blank` is empty (no header, no data rows)");
 }
 
 #[test]

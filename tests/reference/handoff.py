@@ -25,7 +25,8 @@
       and compares with an `audit` report made with the demo's rules_year_end.toml.
   handoff.py xlsx-hostile OUTDIR
       writes merged.xlsx (merged cells) and mixed.xlsx (a number typed as text in a number
-      column, a number in a text column, a second sheet) and dates.xlsx (year-end dates).
+      column, a number in a text column, a sheet with only a header, an empty sheet) and
+      dates.xlsx (year-end dates).
 
 Prints `N passed, M failed`; exits 1 on any mismatch.
 """
@@ -244,6 +245,7 @@ def xlsx_hostile(outdir):
     ws.append(["B", 2001, 7.25, 3])
     ws.append(["B", 2002, 8, "late"])
     wb.create_sheet("other").append(["x"])
+    wb.create_sheet("blank")
     wb.save(f"{outdir}/mixed.xlsx")
     # Fiscal-year-end dates as real date cells; firm A moves its year end from December to
     # March, which puts two of its rows into fiscal year 2020.
