@@ -150,7 +150,8 @@ fn write_csv_sliced<W: Write>(
 ) -> Result<()> {
     // Each slice of rows with its text held as codes spelled out, guarded and its dates as
     // text: the bytes of the whole frame done at once, without a second copy of its columns.
-    let ready = |part: DataFrame| dates_as_text(guard_text(&crate::core::spelled_out(&part)?)?);
+    let spelling = crate::core::Spelling::of(df)?;
+    let ready = |part: DataFrame| dates_as_text(guard_text(&spelling.spell(&part)?)?);
     let mut writer = CsvWriter::new(f)
         .include_header(true)
         .batched(ready(df.clear())?.schema())?;

@@ -62,10 +62,11 @@ pub(super) fn write_parquet<W: Write + Send>(
         .batched(&schema)?;
     let fields = writer.parquet_schema().fields().to_vec();
     let groups = row_groups(&chunked);
+    let spelling = crate::core::Spelling::of(&chunked)?;
     progress.items_of(groups.len(), "row groups");
     // Each row group's columns made into compressed pages in parallel.
     let encode = |&(offset, rows): &(usize, usize)| -> PolarsResult<Vec<Vec<CompressedPage>>> {
-        let group = crate::core::spelled_out(&chunked.slice(offset as i64, rows))?;
+        let group = spelling.spell(&chunked.slice(offset as i64, rows))?;
         let batch = group
             .iter_chunks(CompatLevel::newest(), false)
             .next()
