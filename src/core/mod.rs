@@ -22,8 +22,8 @@ pub use keys::same_as_previous;
 pub use quantile::{grouped_quantiles, quantiles, quantiles_visiting, type7, type7_many};
 pub use slip::{log_ratios, magnitude};
 pub use text::{
-    codes, hold_text_as_codes, is_coded, repeats, spelled_out, spelled_out_schema, Spelling,
-    TEXT_SAMPLE,
+    codes, hold_text_as_codes, is_coded, repeats_in, sample_starts, spelled_out,
+    spelled_out_schema, Spelling, TEXT_SAMPLE,
 };
 pub use values::{Values, View};
 

@@ -55,11 +55,34 @@ pub fn hold_text_as_codes(df: &mut DataFrame, keep: &[String]) -> Result<()> {
     Ok(())
 }
 
-/// Whether a text column's values repeat enough to be held as codes, judged on its first
-/// [`TEXT_SAMPLE`] rows (fewer is fine: a column's head is all that is read).
+/// Where the samples that judge a column of `rows` rows start: its first [`TEXT_SAMPLE`] rows,
+/// the middle ones and the last (one sample when it has no more rows than that).
+pub fn sample_starts(rows: usize) -> Vec<usize> {
+    let k = TEXT_SAMPLE.min(rows);
+    let mut starts = vec![0, (rows - k) / 2, rows - k];
+    starts.dedup();
+    starts
+}
+
+/// Whether a text column's values repeat enough to be held as codes: in each of its samples
+/// (see [`sample_starts`]) at most one distinct value in [`REPEATS`] rows. A column whose
+/// first rows repeat and whose later rows do not (a note filled in for later firms only)
+/// stays text: as codes, each of its distinct values would cost its entry in the mapping.
 pub fn repeats(column: &Column) -> Result<bool> {
-    let head = column.head(Some(TEXT_SAMPLE));
-    Ok(!head.is_empty() && head.n_unique()? * REPEATS <= head.len())
+    if column.is_empty() {
+        return Ok(false);
+    }
+    for start in sample_starts(column.len()) {
+        if !repeats_in(&column.slice(start as i64, TEXT_SAMPLE))? {
+            return Ok(false);
+        }
+    }
+    Ok(true)
+}
+
+/// Whether the rows of `sample` hold at most one distinct value in [`REPEATS`].
+pub fn repeats_in(sample: &Column) -> Result<bool> {
+    Ok(!sample.is_empty() && sample.n_unique()? * REPEATS <= sample.len())
 }
 
 /// Whether `dtype` is text held as codes.
@@ -172,6 +195,30 @@ mod tests {
         assert_eq!(codes[3], None);
         assert_eq!(spelled_out(&df).unwrap(), before);
         assert_eq!(spelled_out_schema(df.schema()), **before.schema());
+    }
+
+    /// A column is judged on its first, middle and last rows: one whose first 100,000 rows
+    /// hold one value and whose last 100,000 are all different stays text; one value
+    /// throughout is coded.
+    #[test]
+    fn text_that_stops_repeating_stays_text() {
+        let rows = 200_000;
+        let later: Vec<String> = (0..rows)
+            .map(|i| {
+                if i < rows / 2 {
+                    "-".to_string()
+                } else {
+                    format!("note {i}")
+                }
+            })
+            .collect();
+        let same: Vec<&str> = vec!["-"; rows];
+        let mut df = df!("later" => later, "same" => same).unwrap();
+        assert_eq!(sample_starts(rows), vec![0, 67_232, 134_464]);
+        assert_eq!(sample_starts(10), vec![0]);
+        hold_text_as_codes(&mut df, &[]).unwrap();
+        assert_eq!(df.column("later").unwrap().dtype(), &DataType::String);
+        assert!(is_coded(df.column("same").unwrap().dtype()));
     }
 
     /// A long value repeated on every row is spelled out as views of one copy of its bytes,

@@ -27,8 +27,15 @@ const PEAK_PER_PANEL_BYTE: f64 = 1.15;
 const CODE_BYTES: f64 = 4.0;
 
 /// The text columns other than the keys whose values repeat, which the run will hold as
-/// codes: judged as the run judges them, on their first rows (the only rows read here).
-fn coded_text(cfg: &InputConfig, lf: &LazyFrame, schema: &Schema) -> Result<Vec<PlSmallStr>> {
+/// codes: judged as the run judges them (`core::repeats`), on the first, middle and last rows
+/// of a Parquet input and on the first rows of a CSV file (the only ones read here).
+fn coded_text(
+    cfg: &InputConfig,
+    lf: &LazyFrame,
+    schema: &Schema,
+    rows: u64,
+) -> Result<Vec<PlSmallStr>> {
+    use crate::core::{repeats_in, sample_starts, TEXT_SAMPLE};
     let text: Vec<PlSmallStr> = schema
         .iter()
         .filter(|(name, dtype)| {
@@ -39,18 +46,30 @@ fn coded_text(cfg: &InputConfig, lf: &LazyFrame, schema: &Schema) -> Result<Vec<
     if text.is_empty() {
         return Ok(text);
     }
-    let head = lf
-        .clone()
-        .select(
-            text.iter()
-                .map(|name| col(name.clone()))
-                .collect::<Vec<_>>(),
-        )
-        .limit(crate::core::TEXT_SAMPLE as IdxSize)
-        .collect()?;
+    let starts = match cfg.format {
+        InputFormat::Parquet => sample_starts(rows as usize),
+        _ => vec![0],
+    };
+    let samples = starts
+        .iter()
+        .map(|start| {
+            lf.clone()
+                .select(
+                    text.iter()
+                        .map(|name| col(name.clone()))
+                        .collect::<Vec<_>>(),
+                )
+                .slice(*start as i64, TEXT_SAMPLE as IdxSize)
+                .collect()
+        })
+        .collect::<PolarsResult<Vec<DataFrame>>>()?;
     let mut coded = Vec::new();
     for name in text {
-        if crate::core::repeats(head.column(&name)?)? {
+        let mut repeats = true;
+        for sample in &samples {
+            repeats &= repeats_in(sample.column(&name)?)?;
+        }
+        if repeats {
             coded.push(name);
         }
     }
@@ -108,7 +127,7 @@ pub(super) fn check_budget(
         InputFormat::Spreadsheet => return Ok(()),
     };
     let derived = cfg.rules.derive.len();
-    let coded = coded_text(cfg, lf, schema)?;
+    let coded = coded_text(cfg, lf, schema, rows)?;
     let width: f64 = schema
         .iter()
         .map(|(name, dtype)| {
