@@ -370,6 +370,19 @@ fn sure_unit_slips_are_rescaled_and_corrections_applied_with_a_ledger() {
         &["build", "p.csv", "--rules", "rules.toml", "--out", "b2"],
         "line 2: `sales` holds numbers",
     );
+    // Text the number parser takes for NaN or an infinity is no value either (IEEE 754: not
+    // finite); an empty value is the way to ask for a missing one.
+    for value in ["nan", "NaN", "inf", "-inf"] {
+        w.write(
+            "fix.csv",
+            &format!("entity,period,column,value,reason\nC,2001,sales,{value},x\n"),
+        );
+        w.fails(
+            &["build", "p.csv", "--rules", "rules.toml", "--out", "b2"],
+            "line 2: `sales` takes finite numbers",
+        );
+    }
+    assert!(!w.path("b2").exists());
 }
 
 #[test]

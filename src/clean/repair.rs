@@ -240,6 +240,26 @@ pub fn apply_corrections(
                     format!("line {line}: `{t}` holds numbers; the value is not one"),
                 ));
             }
+            // `nan`, `inf`: numbers to the parser, but not values a regression can use.
+            let not_finite = mine
+                .clone()
+                .filter(
+                    value
+                        .clone()
+                        .is_not_null()
+                        .and(value.clone().is_finite().not()),
+                )
+                .select([col("__line").min()])
+                .collect()?;
+            if let Some(line) = not_finite.column("__line")?.u32()?.get(0) {
+                return Err(bad(
+                    &c.path,
+                    format!(
+                        "line {line}: `{t}` takes finite numbers; the value is not one (leave it \
+                         empty for a missing value)"
+                    ),
+                ));
+            }
         }
         let overrides = mine.select([
             col("entity").alias("__ce"),
