@@ -275,12 +275,12 @@ fn settings_the_data_shows_wrong_stop_before_anything_is_written() {
     for case in &cases {
         check_bad(case);
     }
-    // An amount read as text (a word among its numbers) was searched for unit slips and
-    // passed; now it is not searched, and the check says so.
+    // An amount read as text (a word among its numbers that marks no missing value) was
+    // searched for unit slips and passed; now it is not searched, and the check says so.
     let w = Workdir::new();
     w.write(
         "raw.csv",
-        "firm,year,total_assets\nA,2001,n.a.\nA,2002,5\nB,2001,7\nB,2002,8\n",
+        "firm,year,total_assets\nA,2001,restated\nA,2002,5\nB,2001,7\nB,2002,8\n",
     );
     let r = w.ok(&[
         "audit", "raw.csv", "--entity", "firm", "--period", "year", "--format", "json",
@@ -1179,4 +1179,52 @@ fn derived_numbers_that_are_not_finite_are_missing_with_their_reason() {
     // The lag's nulls are its missing input, not a reason of its own.
     assert!(!reasons(2).iter().any(finite), "{:?}", reasons(2));
     assert_eq!(report["derived"][0]["non_null"], 2);
+}
+
+/// A CSV file written by a program that marks a missing number with a word or a sign (`NA`
+/// from R, `.` from Stata, `#N/A` from a spreadsheet): the column is numbers with those cells
+/// missing, not text that every check passes by, and the input notes say so. Worked by hand:
+/// `sales` 1.5, 3, 4.5, 2, 3 and one `NA` — mean 14 / 5 = 2.8, one missing of six; `staff`
+/// whole numbers with a `.` and a `#N/A`; `code` text holding `NA` (a region code) stays text.
+#[test]
+fn numbers_marked_missing_by_other_programs_are_numbers() {
+    let w = Workdir::new();
+    w.write(
+        "raw.csv",
+        "firm,year,sales,staff,code\nA,1,1.5,10,NA\nA,2,NA,.,EU\nB,1,3,12,NA\nB,2,4.5,#N/A,EU\nC,1,2,7,AS\nC,2,3,8,AS\n",
+    );
+    let r = w.ok(&[
+        "audit", "raw.csv", "--entity", "firm", "--period", "year", "--format", "json",
+    ]);
+    let report: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+    let sales = &report["variation"][0];
+    assert_eq!(sales["variable"], "sales");
+    assert_eq!(sales["n"], 5);
+    assert!(
+        (sales["mean"].as_f64().unwrap() - 2.8).abs() < 1e-12,
+        "{sales}"
+    );
+    let missing = report["missing"].as_array().unwrap();
+    let of = |v: &str| missing.iter().find(|m| m["variable"] == v).unwrap()["missing"].clone();
+    assert_eq!(of("sales"), 1);
+    assert_eq!(of("staff"), 2);
+    assert_eq!(of("code"), 0);
+    let notes = report["input"]["notes"].as_array().unwrap();
+    assert_eq!(notes.len(), 2, "{notes:?}");
+    assert!(
+        notes[0].as_str().unwrap().contains("`sales`: 1 cells"),
+        "{notes:?}"
+    );
+    assert!(
+        notes[1].as_str().unwrap().contains("(`.` 1, `#N/A` 1)"),
+        "{notes:?}"
+    );
+    // `code` is text still: no variation figures for it.
+    let code = report["variation"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|l| l["variable"] == "code")
+        .unwrap();
+    assert!(code["mean"].is_null(), "{code}");
 }

@@ -10,6 +10,7 @@ use crate::{Error, Result};
 
 mod budget;
 mod contiguous;
+mod markers;
 mod period;
 
 use budget::check_budget;
@@ -183,6 +184,14 @@ pub fn load(
             file: cfg.path.clone(),
         });
     }
+    // A CSV column of numbers with `NA`, `.` or `#N/A` for missing ones: numbers, noted.
+    let (df, marked) = if cfg.format == InputFormat::Csv {
+        let mut keep = vec![cfg.entity.as_str(), cfg.period.as_str()];
+        keep.extend(cfg.rules.file.panel.year_end.as_deref());
+        markers::numbers_with_markers(df, &keep, cfg.csv.decimal_comma)?
+    } else {
+        (df, Vec::new())
+    };
     let (df, columns, year_end_changes) = match &cfg.rules.file.panel.year_end {
         Some(date) => {
             let cutoff = cfg.rules.file.panel.year_end_cutoff.unwrap_or(5);
@@ -211,7 +220,8 @@ pub fn load(
     }
     let df = df.lazy().with_columns(casts).collect()?;
     check_window(&df, cfg)?;
-    let (sheet, notes) = sheet.map_or((None, Vec::new()), |s| (Some(s.name), s.notes));
+    let (sheet, mut notes) = sheet.map_or((None, Vec::new()), |s| (Some(s.name), s.notes));
+    notes.extend(marked);
     Ok(Loaded {
         rows: df.height() as u64,
         df,
