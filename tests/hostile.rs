@@ -277,17 +277,10 @@ fn settings_the_data_shows_wrong_stop_before_anything_is_written() {
     }
     // An amount read as text (a word among its numbers that marks no missing value) was
     // searched for unit slips and passed; now it is not searched, and the check says so.
-    let w = Workdir::new();
-    w.write(
-        "raw.csv",
-        "firm,year,total_assets\nA,2001,restated\nA,2002,5\nB,2001,7\nB,2002,8\n",
-    );
-    let r = w.ok(&[
-        "audit", "raw.csv", "--entity", "firm", "--period", "year", "--format", "json",
-    ]);
-    let report: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
-    assert_eq!(report["unit_slips_searched"], 0, "{}", r.stdout);
-    assert!(r.stdout.contains("not checked"), "{}", r.stdout);
+    let (report, text) =
+        audit_csv("firm,year,total_assets\nA,2001,restated\nA,2002,5\nB,2001,7\nB,2002,8\n");
+    assert_eq!(report["unit_slips_searched"], 0, "{text}");
+    assert!(text.contains("not checked"), "{text}");
 }
 
 #[test]
@@ -1188,15 +1181,9 @@ fn derived_numbers_that_are_not_finite_are_missing_with_their_reason() {
 /// whole numbers with a `.` and a `#N/A`; `code` text holding `NA` (a region code) stays text.
 #[test]
 fn numbers_marked_missing_by_other_programs_are_numbers() {
-    let w = Workdir::new();
-    w.write(
-        "raw.csv",
+    let (report, _) = audit_csv(
         "firm,year,sales,staff,code\nA,1,1.5,10,NA\nA,2,NA,.,EU\nB,1,3,12,NA\nB,2,4.5,#N/A,EU\nC,1,2,7,AS\nC,2,3,8,AS\n",
     );
-    let r = w.ok(&[
-        "audit", "raw.csv", "--entity", "firm", "--period", "year", "--format", "json",
-    ]);
-    let report: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
     let sales = &report["variation"][0];
     assert_eq!(sales["variable"], "sales");
     assert_eq!(sales["n"], 5);
@@ -1227,4 +1214,15 @@ fn numbers_marked_missing_by_other_programs_are_numbers() {
         .find(|l| l["variable"] == "code")
         .unwrap();
     assert!(code["mean"].is_null(), "{code}");
+}
+
+/// `audit --format json` of the CSV text `csv` (keys `firm` and `year`) in a fresh folder: the
+/// report, and the text it was parsed from.
+fn audit_csv(csv: &str) -> (serde_json::Value, String) {
+    let w = Workdir::new();
+    w.write("raw.csv", csv);
+    let r = w.ok(&[
+        "audit", "raw.csv", "--entity", "firm", "--period", "year", "--format", "json",
+    ]);
+    (serde_json::from_str(&r.stdout).unwrap(), r.stdout)
 }
