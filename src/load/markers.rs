@@ -10,8 +10,10 @@ use polars::prelude::*;
 
 use crate::Result;
 
-/// The markers, compared without case or surrounding spaces. An infinity is one too: not a
-/// number a regression can use (a division by zero upstream).
+/// The markers, compared without case or surrounding spaces: common practice, close to the
+/// strings pandas' CSV reader takes for missing by default, with `.` and the spreadsheet
+/// errors. An infinity is one too: not a number a regression can use (a division by zero
+/// upstream).
 const MARKERS: [&str; 16] = [
     "na",
     "n/a",
@@ -85,20 +87,21 @@ pub(super) fn numbers_with_markers(
     let mut notes = Vec::new();
     for name in text {
         let values = df.column(&name)?.str()?.clone();
-        let numeric = |v: Option<&str>| cell(v, decimal_comma).is_some();
-        if !values.iter().flatten().take(LOOK).all(|v| numeric(Some(v))) {
+        let first = values.iter().flatten().take(LOOK);
+        if !first
+            .map(|v| cell(Some(v), decimal_comma))
+            .all(|c| c.is_some())
+        {
             continue;
         }
-        let mut cells = Vec::with_capacity(values.len());
-        for v in values.iter() {
-            match cell(v, decimal_comma) {
-                Some(c) => cells.push(c),
-                None => break,
-            }
-        }
-        if cells.len() < values.len() {
+        // Every cell, or none at the first that is neither a number nor a marker.
+        let Some(cells) = values
+            .iter()
+            .map(|v| cell(v, decimal_comma))
+            .collect::<Option<Vec<Cell>>>()
+        else {
             continue;
-        }
+        };
         let markers = cells.iter().filter(|c| matches!(c, Cell::Marker)).count();
         let numbers = cells
             .iter()
