@@ -829,14 +829,18 @@ fn a_memory_budget_too_small_stops_before_reading() {
 }
 
 /// The budget's estimate counts repeating text as the run holds it, as codes (4 bytes a row
-/// instead of a 24-byte view and string): two files of 100,000 rows alike but for one text
-/// column, repeating in one and distinct on every row in the other, are estimated at about
-/// 256 MiB + 1.15 × 100,000 × 48 bytes (261.3 MiB) and × 68 bytes (263.5 MiB) — the constants
-/// of `src/load/budget.rs`, worked by hand — so a budget of 262 MiB lets one through only.
+/// instead of a 24-byte view and string): two Parquet files of 100,000 rows alike but for one
+/// text column, repeating in one and distinct on every row in the other, are estimated at
+/// about 256 MiB + 1.15 × 100,000 × 48 bytes (261.3 MiB) and × 68 bytes (263.5 MiB) — the
+/// constants of `src/load/budget.rs`, worked by hand — so a budget of 262 MiB lets one through
+/// only. The same rows as CSV files are read with every column as read, text as views: both
+/// are estimated by the reading, 256 MiB + 1.7 × 100,000 × 68 bytes (267.0 MiB), so 266 MiB
+/// stops both and 268 MiB lets both through.
 #[test]
 fn the_memory_budget_counts_repeating_text_as_codes() {
+    use polars::prelude::*;
     let w = Workdir::new();
-    for (file, text) in [("repeating.csv", false), ("distinct.csv", true)] {
+    for (file, text) in [("repeating", false), ("distinct", true)] {
         let mut csv = String::from("firm,year,note,x\n");
         for i in 0..100_000 {
             let note = if text {
@@ -846,9 +850,16 @@ fn the_memory_budget_counts_repeating_text_as_codes() {
             };
             csv.push_str(&format!("F{:05},{},{note},1.5\n", i / 10, 2001 + i % 10));
         }
-        w.write(file, &csv);
+        w.write(&format!("{file}.csv"), &csv);
+        let mut df = CsvReadOptions::default()
+            .try_into_reader_with_file_path(Some(w.path(&format!("{file}.csv"))))
+            .unwrap()
+            .finish()
+            .unwrap();
+        let parquet = std::fs::File::create(w.path(&format!("{file}.parquet"))).unwrap();
+        ParquetWriter::new(parquet).finish(&mut df).unwrap();
     }
-    let run = |file: &str| {
+    let run = |file: &str, budget: &str| {
         w.run(&[
             "audit",
             file,
@@ -857,17 +868,23 @@ fn the_memory_budget_counts_repeating_text_as_codes() {
             "--period",
             "year",
             "--memory-budget",
-            "262MiB",
+            budget,
         ])
     };
-    assert_eq!(run("repeating.csv").code, 0);
-    let r = run("distinct.csv");
+    assert_eq!(run("repeating.parquet", "262MiB").code, 0);
+    let r = run("distinct.parquet", "262MiB");
     assert_eq!(r.code, 2, "{}", r.stderr);
     assert!(
         r.stderr.contains("memory budget of 262 MiB"),
         "{}",
         r.stderr
     );
+    for file in ["repeating.csv", "distinct.csv"] {
+        let r = run(file, "266MiB");
+        assert_eq!(r.code, 2, "{file}: {}", r.stderr);
+        assert!(r.stderr.contains("needs about 267 MiB"), "{}", r.stderr);
+        assert_eq!(run(file, "268MiB").code, 0, "{file}");
+    }
 }
 
 /// The binary turns transparent huge pages off for its own process (see `small_pages_only` in

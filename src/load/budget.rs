@@ -23,6 +23,14 @@ const PEAK_FIXED: f64 = 256.0 * 1024.0 * 1024.0;
 /// the estimate errs on the safe side (6 % above the peak at 100 M).
 const PEAK_PER_PANEL_BYTE: f64 = 1.15;
 
+/// Peak memory per byte of a CSV input's panel as it is read (every column as read, text as
+/// views, the row number; no derived variable yet): the file's pages while it is parsed, the
+/// parsed chunks, then one column more while each is joined into one chunk (`load::contiguous`).
+/// Fitted on the bench panel's CSV file (4 December 2026, peak RSS of `audit` beyond
+/// `PEAK_FIXED` over the panel as read here, 180 bytes a row: 1.58 at 10 M rows, 2,979 MiB;
+/// 0.87 at 1 M, where the fixed part is most of it) and set above it.
+const CSV_READ_PER_BYTE: f64 = 1.7;
+
 /// Bytes a row of text held as codes takes (`core::hold_text_as_codes`).
 const CODE_BYTES: f64 = 4.0;
 
@@ -104,8 +112,9 @@ fn human_bytes(bytes: f64) -> String {
 
 /// Stop before reading when holding the panel would take more than `budget` bytes: the rows
 /// from the Parquet metadata, or for a CSV file from its size and the length of its first
-/// lines; each column's width from its type, the derived variables as numbers. A compressed
-/// CSV file or a spreadsheet is not estimated.
+/// lines; each column's width from its type, the derived variables as numbers; for a CSV file
+/// the reading itself too, if it takes more. A compressed CSV file or a spreadsheet is not
+/// estimated.
 pub(super) fn check_budget(
     cfg: &InputConfig,
     lf: &LazyFrame,
@@ -140,7 +149,13 @@ pub(super) fn check_budget(
         .sum::<f64>()
         + 8.0 * derived as f64
         + std::mem::size_of::<IdxSize>() as f64;
-    let needed = PEAK_FIXED + PEAK_PER_PANEL_BYTE * rows as f64 * width;
+    let mut needed = PEAK_FIXED + PEAK_PER_PANEL_BYTE * rows as f64 * width;
+    if cfg.format == InputFormat::Csv {
+        // Reading a CSV file can take more than holding the panel afterwards.
+        let as_read: f64 = schema.iter_values().map(value_bytes).sum::<f64>()
+            + std::mem::size_of::<IdxSize>() as f64;
+        needed = needed.max(PEAK_FIXED + CSV_READ_PER_BYTE * rows as f64 * as_read);
+    }
     if needed > budget as f64 {
         return Err(Error::MemoryBudget {
             file: cfg.path.clone(),

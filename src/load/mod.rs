@@ -169,13 +169,14 @@ pub fn load(
     // (a decimal in a column of whole numbers, say), read again guessing from every row.
     let read = match cfg.format {
         InputFormat::Parquet => contiguous::collect(lf, ROW, progress),
-        _ => lf.with_row_index(ROW, Some(1)).collect(),
+        InputFormat::Csv => contiguous::read_csv(source, &schema, &cfg.csv, ROW),
+        InputFormat::Spreadsheet => lf.with_row_index(ROW, Some(1)).collect(),
     };
     let df = match read {
         Ok(df) => df,
         Err(_) if cfg.format == InputFormat::Csv => scan(None)?
-            .with_row_index(ROW, Some(1))
-            .collect()
+            .collect_schema()
+            .and_then(|every_row| contiguous::read_csv(source, &every_row, &cfg.csv, ROW))
             .map_err(|e| unreadable(&cfg.path, cfg.format, cfg.csv.delimiter, e))?,
         Err(e) => return Err(unreadable(&cfg.path, cfg.format, cfg.csv.delimiter, e)),
     };
