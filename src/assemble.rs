@@ -38,6 +38,8 @@ pub struct Table {
     exact_copies: u64,
     repeated_keys: u64,
     drop_unmatched: bool,
+    /// What reading it had to decide (numbers with missing-value markers), one sentence each.
+    pub notes: Vec<String>,
 }
 
 impl Table {
@@ -124,6 +126,20 @@ fn read_table(
     let sha256 = crate::load::sha256_hex(&bytes);
     drop(bytes);
     let raw = crate::load::read_raw(path, format, csv, spec.sheet.as_deref())?;
+    // Numbers with `NA`, `.` or `#N/A` for missing ones, as in the main file; the columns
+    // matched on stay as read.
+    let (raw, notes) = if format == crate::config::InputFormat::Csv {
+        let on: Vec<String> = raw
+            .get_column_names()
+            .into_iter()
+            .map(|c| c.to_string())
+            .filter(|c| spec.on.contains(spec.rename.get(c).unwrap_or(c)))
+            .collect();
+        let on: Vec<&str> = on.iter().map(String::as_str).collect();
+        crate::load::numbers_with_markers(raw, &on, csv.decimal_comma)?
+    } else {
+        (raw, Vec::new())
+    };
     let missing = |column: &str, context: &str| Error::MissingColumn {
         file: path.to_path_buf(),
         column: column.to_string(),
@@ -304,6 +320,7 @@ fn read_table(
         exact_copies,
         repeated_keys,
         drop_unmatched,
+        notes,
     })
 }
 

@@ -262,3 +262,38 @@ fn fiscal_years_from_the_demo_year_end_dates_match_pandas() {
         "the demo plants year-end changes"
     );
 }
+
+/// A joined CSV table's numbers with cells marking a missing number (`NA`, `#N/A`) are read as
+/// numbers, as the main file's are, and the report's input notes say so naming the table; a
+/// matched column stays as read (the currency code `NA` is a key, not a marker). Worked by
+/// hand: firm B's 2021 rate is `NA`, so its converted sales are missing and the others are
+/// sales × rate.
+#[test]
+fn a_joined_tables_numbers_with_missing_markers_are_numbers() {
+    let w = Workdir::new();
+    w.write("p.csv", &PANEL.replace("XYZ", "NA"));
+    w.write(
+        "rates.csv",
+        "currency,year,rate\nEUR,2020,1.5\nEUR,2021,2\nUSD,2020,1\nUSD,2021,NA\n\
+         GBP,2020,#N/A\nNA,2020,0.5\nNA,2021,0.25\n",
+    );
+    w.write("r.toml", &rules(""));
+    let r = w.ok(&["audit", "p.csv", "--rules", "r.toml", "--format", "json"]);
+    let report: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+    let notes = report["input"]["notes"].as_array().unwrap();
+    assert_eq!(notes.len(), 1, "{notes:?}");
+    assert!(
+        notes[0].as_str().unwrap().starts_with(
+            "joined `rates.csv`, column `rate`: 2 cells marking a missing number (`NA` 1, `#N/A` 1)"
+        ),
+        "{notes:?}"
+    );
+    let missing = report["missing"].as_array().unwrap();
+    let of = |v: &str| missing.iter().find(|m| m["variable"] == v).unwrap()["missing"].clone();
+    assert_eq!(of("rate"), 1);
+    assert_eq!(of("sales_usd"), 1);
+    w.ok(&["build", "p.csv", "--rules", "r.toml", "--out", "b"]);
+    let panel = std::fs::read_to_string(w.path("b/panel.csv")).unwrap();
+    assert!(panel.contains("\n4,B,2021,USD,60,,\n"), "{panel}");
+    assert!(panel.contains("\n5,C,2020,NA,70,0.5,35.0\n"), "{panel}");
+}

@@ -73,7 +73,7 @@ fn cell(text: Option<&str>, decimal_comma: bool) -> Option<Cell> {
 /// `df` with each text column not in `keep` that holds numbers and markers only, at least one
 /// of each, read as numbers (whole numbers as integers, as the reader would have read them),
 /// and a note for each column so read.
-pub(super) fn numbers_with_markers(
+pub(crate) fn numbers_with_markers(
     mut df: DataFrame,
     keep: &[&str],
     decimal_comma: bool,

@@ -11,6 +11,8 @@ use crate::{Error, Result};
 mod budget;
 mod contiguous;
 mod markers;
+
+pub(crate) use markers::numbers_with_markers;
 mod period;
 
 use budget::check_budget;

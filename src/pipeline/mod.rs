@@ -176,7 +176,7 @@ pub fn prepare_with(
     )?;
     crate::core::hold_text_as_codes(&mut panel, &keys_and_inputs[..2])?;
 
-    let mut report = Report::new(input_summary(input, &read.loaded));
+    let mut report = Report::new(input_summary(input, &read.loaded, &read.tables));
     report.keys = found.keys;
     report.keys.year_end_changes = read.loaded.year_end_changes.clone();
     report.joins = found.joins;
@@ -252,7 +252,16 @@ pub fn prepare_with(
 }
 
 /// The report's description of the input.
-fn input_summary(input: &InputConfig, loaded: &load::Loaded) -> InputSummary {
+fn input_summary(
+    input: &InputConfig,
+    loaded: &load::Loaded,
+    tables: &[crate::assemble::Table],
+) -> InputSummary {
+    // A joined table's notes name it.
+    let joined = tables.iter().flat_map(|t| {
+        let name = t.name();
+        t.notes.iter().map(move |n| format!("joined `{name}`, {n}"))
+    });
     InputSummary {
         // The file name only: the report must not depend on where the bundle was built from
         // (the manifest records the full path).
@@ -267,6 +276,6 @@ fn input_summary(input: &InputConfig, loaded: &load::Loaded) -> InputSummary {
         entity: input.entity.clone(),
         period: input.period.clone(),
         sheet: loaded.sheet.clone(),
-        notes: loaded.notes.clone(),
+        notes: loaded.notes.iter().cloned().chain(joined).collect(),
     }
 }
