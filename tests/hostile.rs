@@ -1226,3 +1226,44 @@ fn audit_csv(csv: &str) -> (serde_json::Value, String) {
     ]);
     (serde_json::from_str(&r.stdout).unwrap(), r.stdout)
 }
+
+/// A quoted CSV header name holding a doubled quote is that name with one quote (RFC 4180:
+/// `"net ""adj"" income"` is `net "adj" income`): a rule names it the same way SQL quotes an
+/// identifier, the report calls it by its name, and panel.csv writes it quoted again. The
+/// engine had kept the quote doubled, so no rule could name the column. Worked by hand: ratio
+/// = income / assets on four rows, mean (1/10 + 2/11 + 3/12 + 4/13) / 4. Two header names
+/// written alike are a repeated column, named with its one quote.
+#[test]
+fn a_header_name_with_a_quote_is_read_as_written() {
+    let w = Workdir::new();
+    w.write(
+        "p.csv",
+        "firm,year,\"net \"\"adj\"\" income\",assets\nA,2001,1,10\nA,2002,2,11\nB,2001,3,12\nB,2002,4,13\n",
+    );
+    w.write(
+        "r.toml",
+        "[panel]\nentity = \"firm\"\nperiod = \"year\"\n\n\
+         [derive.ratio]\nexpr = '\"net \"\"adj\"\" income\" / assets'\n",
+    );
+    let r = w.ok(&["audit", "p.csv", "--rules", "r.toml", "--format", "json"]);
+    let report: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+    let variation = report["variation"].as_array().unwrap();
+    assert_eq!(variation[0]["variable"], "net \"adj\" income");
+    let ratio = variation.iter().find(|v| v["variable"] == "ratio").unwrap();
+    let expected = (1.0 / 10.0 + 2.0 / 11.0 + 3.0 / 12.0 + 4.0 / 13.0) / 4.0;
+    assert!(
+        (ratio["mean"].as_f64().unwrap() - expected).abs() < 1e-12,
+        "{ratio}"
+    );
+    w.ok(&["build", "p.csv", "--rules", "r.toml", "--out", "b"]);
+    let panel = std::fs::read_to_string(w.path("b/panel.csv")).unwrap();
+    assert!(
+        panel.starts_with("source_row,firm,year,\"net \"\"adj\"\" income\",assets,ratio\n"),
+        "{panel}"
+    );
+    w.write("twice.csv", "firm,year,\"a\"\"b\",\"a\"\"b\"\nA,2001,1,2\n");
+    w.fails(
+        &["audit", "twice.csv", "--entity", "firm", "--period", "year"],
+        "a\"b",
+    );
+}

@@ -289,12 +289,18 @@ fn repeated_header_name(path: &Path, delimiter: char) -> Result<Option<String>> 
     let mut names = Vec::new();
     let (mut field, mut quoted) = (String::new(), false);
     let sep = delimiter;
-    for ch in text
+    let mut chars = text
         .trim_start_matches('\u{feff}')
         .trim_end_matches(['\r', '\n'])
         .chars()
-    {
+        .peekable();
+    while let Some(ch) = chars.next() {
         match ch {
+            // A doubled quote inside quotes is one quote of the name (RFC 4180).
+            '"' if quoted && chars.peek() == Some(&'"') => {
+                chars.next();
+                field.push('"');
+            }
             '"' => quoted = !quoted,
             c if c == sep && !quoted => names.push(std::mem::take(&mut field)),
             c => field.push(c),
@@ -404,18 +410,41 @@ fn scan(
     }
     let pl_path = PlRefPath::try_from_path(source)?;
     let lf = match format {
-        InputFormat::Csv => LazyCsvReader::new(pl_path)
-            .with_has_header(true)
-            .with_separator(csv.delimiter as u8)
-            .with_decimal_comma(csv.decimal_comma)
-            .with_infer_schema_length(infer)
-            .finish()
-            .map_err(|e| unreadable(input, format, csv.delimiter, e))?,
+        InputFormat::Csv => names_as_written(
+            LazyCsvReader::new(pl_path)
+                .with_has_header(true)
+                .with_separator(csv.delimiter as u8)
+                .with_decimal_comma(csv.decimal_comma)
+                .with_infer_schema_length(infer)
+                .finish()
+                .map_err(|e| unreadable(input, format, csv.delimiter, e))?,
+            input,
+            csv.delimiter,
+        )?,
         InputFormat::Parquet => LazyFrame::scan_parquet(pl_path, ScanArgsParquet::default())?,
         // load() reads spreadsheets itself, with the chosen sheet; the first sheet here.
         InputFormat::Spreadsheet => crate::sheet::read(input, None)?.df.lazy(),
     };
     Ok(lf)
+}
+
+/// `lf` (a CSV scan) with each column named as its header writes it. The engine keeps a
+/// doubled quote of a quoted header name (`"net ""adj"" income"` came out as
+/// `net ""adj"" income`), where RFC 4180 makes it one quote (`net "adj" income`): such a name
+/// could be matched by no rule, and the outputs carried it doubled.
+fn names_as_written(mut lf: LazyFrame, input: &Path, delimiter: char) -> Result<LazyFrame> {
+    let schema = lf
+        .collect_schema()
+        .map_err(|e| unreadable(input, InputFormat::Csv, delimiter, e))?;
+    let (doubled, single): (Vec<String>, Vec<String>) = schema
+        .iter_names()
+        .filter(|name| name.contains("\"\""))
+        .map(|name| (name.to_string(), name.replace("\"\"", "\"")))
+        .unzip();
+    if doubled.is_empty() {
+        return Ok(lf);
+    }
+    Ok(lf.rename(doubled, single, true))
 }
 
 /// Lowercase hex SHA-256.
