@@ -50,7 +50,7 @@ fn row() -> impl Strategy<Value = Row> {
 }
 
 proptest! {
-    #![proptest_config(ProptestConfig { cases: 40, ..ProptestConfig::default() })]
+    #![proptest_config(crate::util::proptest_config(40))]
 
     #[test]
     fn every_row_is_kept_or_rejected_exactly_once(

@@ -82,7 +82,7 @@ fn expression() -> impl Strategy<Value = String> {
 }
 
 proptest! {
-    #![proptest_config(ProptestConfig { cases: 200, ..ProptestConfig::default() })]
+    #![proptest_config(crate::util::proptest_config(200))]
 
     #[test]
     fn generated_expressions_compile_or_fail_with_one_line(expr in expression()) {
@@ -107,7 +107,7 @@ fn toml_string(s: &str) -> String {
 }
 
 proptest! {
-    #![proptest_config(ProptestConfig { cases: 120, ..ProptestConfig::default() })]
+    #![proptest_config(crate::util::proptest_config(120))]
 
     #[test]
     fn arbitrary_bytes_into_the_csv_loader_never_panic(
@@ -162,7 +162,7 @@ fn panel() -> impl Strategy<Value = String> {
 }
 
 proptest! {
-    #![proptest_config(ProptestConfig { cases: 60, ..ProptestConfig::default() })]
+    #![proptest_config(crate::util::proptest_config(60))]
 
     #[test]
     fn random_small_panels_pass_every_check_and_estimator(

@@ -150,3 +150,20 @@ pub fn run_reference(script: &str, args: &[&Path]) -> String {
     assert!(out.status.success(), "{script} found mismatches:\n{text}");
     text
 }
+
+/// The properties' runs: `cases` cases from a fixed seed, so that every run of the tests (CI's
+/// too) tries the same cases and a failure can be run again; `PROPTEST_RNG_SEED=N` tries
+/// others.
+pub fn proptest_config(cases: u32) -> proptest::test_runner::Config {
+    use proptest::test_runner::{Config, RngSeed};
+    let default = Config::default();
+    let rng_seed = match default.rng_seed {
+        RngSeed::Random => RngSeed::Fixed(20_261_204),
+        chosen => chosen,
+    };
+    Config {
+        cases,
+        rng_seed,
+        ..default
+    }
+}
