@@ -125,7 +125,20 @@ fn read_table(
     let bytes = std::fs::read(path).map_err(Error::io(path))?;
     let sha256 = crate::load::sha256_hex(&bytes);
     drop(bytes);
-    let raw = crate::load::read_raw(path, format, csv, spec.sheet.as_deref())?;
+    // The entity as text from the start, as in the main file (`00123` is not `123`).
+    let entity_raw = spec
+        .rename
+        .iter()
+        .find(|(_, to)| *to == entity)
+        .map_or(entity, |(from, _)| from.as_str());
+    let text: Vec<&str> = spec
+        .on
+        .iter()
+        .any(|o| o == entity)
+        .then_some(entity_raw)
+        .into_iter()
+        .collect();
+    let raw = crate::load::read_raw(path, format, csv, spec.sheet.as_deref(), &text)?;
     // Numbers with `NA`, `.` or `#N/A` for missing ones, as in the main file; the columns
     // matched on stay as read.
     let (raw, notes) = if format == crate::config::InputFormat::Csv {

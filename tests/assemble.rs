@@ -297,3 +297,38 @@ fn a_joined_tables_numbers_with_missing_markers_are_numbers() {
     assert!(panel.contains("\n4,B,2021,USD,60,,\n"), "{panel}");
     assert!(panel.contains("\n5,C,2020,NA,70,0.5,35.0\n"), "{panel}");
 }
+
+/// Firm ids with leading zeros are text, in the main file and in a joined table: `00123`,
+/// `123` and `0456` are three firms (read as numbers they were two, `00123` and `123` one firm
+/// with conflicting years), each matched to its own row of the joined file, and panel.csv
+/// writes the ids as they came. Worked by hand.
+#[test]
+fn firm_ids_with_leading_zeros_stay_distinct() {
+    let w = Workdir::new();
+    w.write(
+        "p.csv",
+        "firm,year,x\n00123,2001,1\n00123,2002,2\n123,2001,3\n123,2002,4\n0456,2001,5\n0456,2002,6\n",
+    );
+    w.write("f.csv", "id,size\n00123,10\n123,20\n0456,30\n");
+    w.write(
+        "r.toml",
+        "[panel]\nentity = \"firm\"\nperiod = \"year\"\n\n\
+         [[join]]\nfile = \"f.csv\"\non = [\"firm\"]\nrename = { id = \"firm\" }\n",
+    );
+    let r = w.ok(&["audit", "p.csv", "--rules", "r.toml", "--format", "json"]);
+    let report: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+    assert_eq!(report["panel"]["entities"], 3);
+    assert_eq!(report["panel"]["balanced"], true);
+    w.ok(&["build", "p.csv", "--rules", "r.toml", "--out", "b"]);
+    let panel = std::fs::read_to_string(w.path("b/panel.csv")).unwrap();
+    assert_eq!(
+        panel,
+        "source_row,firm,year,x,size\n\
+         1,00123,2001,1,10\n\
+         2,00123,2002,2,10\n\
+         5,0456,2001,5,30\n\
+         6,0456,2002,6,30\n\
+         3,123,2001,3,20\n\
+         4,123,2002,4,20\n"
+    );
+}

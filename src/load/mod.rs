@@ -2,6 +2,7 @@
 //! row number, after checking that the key columns exist and the period holds integers.
 
 use std::path::Path;
+use std::sync::Arc;
 
 use polars::prelude::*;
 
@@ -38,12 +39,14 @@ pub struct Loaded {
     pub year_end_changes: Option<crate::report::YearEndChanges>,
 }
 
-/// Read a raw file whole, without keys (for `rules draft`, which guesses them).
+/// Read a raw file whole, without checking keys (for a joined table, and for `rules draft`,
+/// which guesses them); the CSV columns named in `text` are read as text.
 pub fn read_raw(
     path: &Path,
     format: InputFormat,
     csv: &CsvOptions,
     sheet: Option<&str>,
+    text: &[&str],
 ) -> Result<DataFrame> {
     if format == InputFormat::Spreadsheet {
         return Ok(crate::sheet::read(path, sheet)?.df);
@@ -53,9 +56,9 @@ pub fn read_raw(
         _ => None,
     };
     let source = utf8.as_ref().map_or(path, |t| t.path.as_path());
-    let df = match scan(source, path, format, Some(INFER_ROWS), csv)?.collect() {
+    let df = match scan(source, path, format, Some(INFER_ROWS), csv, text)?.collect() {
         Ok(df) => df,
-        Err(_) if format == InputFormat::Csv => scan(source, path, format, None, csv)?
+        Err(_) if format == InputFormat::Csv => scan(source, path, format, None, csv, text)?
             .collect()
             .map_err(|e| unreadable(path, format, csv.delimiter, e))?,
         Err(e) => return Err(unreadable(path, format, csv.delimiter, e)),
@@ -84,7 +87,8 @@ pub fn load(
     let source = utf8
         .as_ref()
         .map_or(cfg.path.as_path(), |t| t.path.as_path());
-    let scan = |infer| scan(source, &cfg.path, cfg.format, infer, &cfg.csv);
+    let entity = [cfg.entity.as_str()];
+    let scan = |infer| scan(source, &cfg.path, cfg.format, infer, &cfg.csv, &entity);
     let sheet = match cfg.format {
         InputFormat::Spreadsheet => Some(crate::sheet::read(&cfg.path, cfg.sheet.as_deref())?),
         _ => None,
@@ -394,13 +398,16 @@ fn unclosed_quote(bytes: &[u8]) -> Option<u64> {
 /// Rows used to guess CSV column types before falling back to the whole file.
 const INFER_ROWS: usize = 10_000;
 
-/// A lazy scan of `source` (the input, or its UTF-8 copy); errors name `input`.
+/// A lazy scan of `source` (the input, or its UTF-8 copy); errors name `input`. The CSV
+/// columns named in `text` (those the file has) are read as text, whatever their values look
+/// like: a firm id `00123` guessed a number became 123, the same firm as `123`.
 fn scan(
     source: &Path,
     input: &Path,
     format: InputFormat,
     infer: Option<usize>,
     csv: &CsvOptions,
+    text: &[&str],
 ) -> Result<LazyFrame> {
     let dataset = format == InputFormat::Parquet && holds_parquet(input);
     if !input.is_file() && !dataset {
@@ -410,17 +417,31 @@ fn scan(
     }
     let pl_path = PlRefPath::try_from_path(source)?;
     let lf = match format {
-        InputFormat::Csv => names_as_written(
-            LazyCsvReader::new(pl_path)
-                .with_has_header(true)
-                .with_separator(csv.delimiter as u8)
-                .with_decimal_comma(csv.decimal_comma)
-                .with_infer_schema_length(infer)
-                .finish()
-                .map_err(|e| unreadable(input, format, csv.delimiter, e))?,
-            input,
-            csv.delimiter,
-        )?,
+        InputFormat::Csv => {
+            let reader = |overwrite: Option<SchemaRef>| {
+                LazyCsvReader::new(pl_path.clone())
+                    .with_has_header(true)
+                    .with_separator(csv.delimiter as u8)
+                    .with_decimal_comma(csv.decimal_comma)
+                    .with_infer_schema_length(infer)
+                    .with_dtype_overwrite(overwrite)
+                    .finish()
+                    .map_err(|e| unreadable(input, format, csv.delimiter, e))
+            };
+            let mut lf = reader(None)?;
+            let guessed = lf
+                .collect_schema()
+                .map_err(|e| unreadable(input, format, csv.delimiter, e))?;
+            let as_text: Schema = text
+                .iter()
+                .filter(|c| guessed.get(c).is_some_and(|d| d != &DataType::String))
+                .map(|c| Field::new((*c).into(), DataType::String))
+                .collect();
+            if !as_text.is_empty() {
+                lf = reader(Some(Arc::new(as_text)))?;
+            }
+            names_as_written(lf, input, csv.delimiter)?
+        }
         InputFormat::Parquet => LazyFrame::scan_parquet(pl_path, ScanArgsParquet::default())?,
         // load() reads spreadsheets itself, with the chosen sheet; the first sheet here.
         InputFormat::Spreadsheet => crate::sheet::read(input, None)?.df.lazy(),
