@@ -1216,6 +1216,39 @@ fn numbers_marked_missing_by_other_programs_are_numbers() {
     assert!(code["mean"].is_null(), "{code}");
 }
 
+/// Numbers as a spreadsheet exports them — thousands separators inside quotes, a negative
+/// amount in parentheses — are numbers, noted in the input notes; they were text, and the
+/// report said "No numeric variables". Worked by hand: sales mean (1,234.5 + 2,000 + 950 +
+/// 1,100.25) / 4 = 1,321.1875, cost mean (10 + 11 − 12 + 13) / 4 = 5.5.
+#[test]
+fn numbers_written_for_people_are_numbers() {
+    let (report, _) = audit_csv(
+        "firm,year,sales,cost\nA,2001,\"1,234.5\",10\nA,2002,\"2,000\",11\nB,2001,950,(12)\nB,2002,\"1,100.25\",13\n",
+    );
+    let mean = |v: &str| {
+        report["variation"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|l| l["variable"] == v)
+            .unwrap()["mean"]
+            .as_f64()
+            .unwrap()
+    };
+    assert!((mean("sales") - 1321.1875).abs() < 1e-12);
+    assert!((mean("cost") - 5.5).abs() < 1e-12);
+    let notes = report["input"]["notes"].as_array().unwrap();
+    assert_eq!(notes.len(), 2, "{notes:?}");
+    assert!(notes[0]
+        .as_str()
+        .unwrap()
+        .contains("3 cells with thousands separators"));
+    assert!(notes[1]
+        .as_str()
+        .unwrap()
+        .contains("1 cells in parentheses taken as negative"));
+}
+
 /// `audit --format json` of the CSV text `csv` (keys `firm` and `year`) in a fresh folder: the
 /// report, and the text it was parsed from.
 fn audit_csv(csv: &str) -> (serde_json::Value, String) {

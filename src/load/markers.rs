@@ -1,10 +1,12 @@
-//! Numbers with missing-value markers. Programs write a missing number into a CSV file as a
-//! word or a sign — `NA` (R), `.` (Stata, SAS), `nan` (Python), `#N/A` and `#DIV/0!`
-//! (spreadsheets), `NULL` (databases) — and the engine, meeting text, reads the whole column
-//! as text, which every check then passes by. A column whose cells are all numbers but for
-//! such markers is read as numbers with those cells missing, and the report's input notes say
-//! how many cells of which marker. A dash, which accounts often write for zero, is not a
-//! marker: a column holding one stays text.
+//! Numbers written for people. Programs write a missing number into a CSV file as a word or
+//! a sign — `NA` (R), `.` (Stata, SAS), `nan` (Python), `#N/A` and `#DIV/0!` (spreadsheets),
+//! `NULL` (databases) — and spreadsheets export numbers as they show them, with thousands
+//! separators (`1,234.5`) and negative amounts in parentheses (`(1,234)`, accounts' way). The
+//! engine, meeting any of these, reads the whole column as text, which every check then passes
+//! by. A column whose cells are all numbers but for such cells is read as numbers (markers as
+//! missing), and the report's input notes say how many cells of each kind. A dash, which
+//! accounts often write for zero, is not a marker: a column holding one stays text; so does a
+//! column with a percent sign or a currency symbol, whose unit a guess would decide.
 
 use polars::prelude::*;
 
@@ -37,16 +39,31 @@ const MARKERS: [&str; 16] = [
 /// nor a marker is left as text without a pass over the rest.
 const LOOK: usize = 1_000;
 
+/// A number as the reader would have read it.
+#[derive(Clone, Copy)]
+enum Number {
+    Whole(i64),
+    Decimal(f64),
+}
+
+/// How a number was written: as the reader reads numbers, with thousands separators
+/// (`1,234.5`), or in parentheses for a negative one (`(1,234)`, accounts' way).
+#[derive(Clone, Copy, PartialEq)]
+enum Written {
+    Plain,
+    Grouped,
+    Parenthesized,
+}
+
 /// One cell of a candidate column.
 enum Cell {
     Missing,
     Marker,
-    Whole(i64),
-    Number(f64),
+    Number(Number, Written),
 }
 
-/// What `text` is: a marker, a whole number, a number, or (None) neither. With
-/// `decimal_comma`, `1,5` is one and a half, as the reader takes it.
+/// What `text` is: a marker, a number and how it is written, or (None) neither. With
+/// `decimal_comma`, `1,5` is one and a half, as the reader takes it, and `1.234,5` is grouped.
 fn cell(text: Option<&str>, decimal_comma: bool) -> Option<Cell> {
     let Some(text) = text else {
         return Some(Cell::Missing);
@@ -55,24 +72,82 @@ fn cell(text: Option<&str>, decimal_comma: bool) -> Option<Cell> {
     if MARKERS.iter().any(|m| t.eq_ignore_ascii_case(m)) {
         return Some(Cell::Marker);
     }
+    if let Some(n) = plain(t, decimal_comma) {
+        return Some(Cell::Number(n, Written::Plain));
+    }
+    if let Some(n) = grouped(t, decimal_comma) {
+        return Some(Cell::Number(n, Written::Grouped));
+    }
+    let inner = t.strip_prefix('(')?.strip_suffix(')')?.trim();
+    if inner.starts_with(['-', '+']) {
+        return None;
+    }
+    let n = plain(inner, decimal_comma).or_else(|| grouped(inner, decimal_comma))?;
+    let negative = match n {
+        Number::Whole(v) => Number::Whole(v.checked_neg()?),
+        Number::Decimal(v) => Number::Decimal(-v),
+    };
+    Some(Cell::Number(negative, Written::Parenthesized))
+}
+
+/// `t` as the reader reads a number: a whole number, or a decimal (with a comma for the point
+/// under `decimal_comma`).
+fn plain(t: &str, decimal_comma: bool) -> Option<Number> {
     if let Ok(v) = t.parse::<i64>() {
-        return Some(Cell::Whole(v));
+        return Some(Number::Whole(v));
     }
     let t = if decimal_comma {
         std::borrow::Cow::Owned(t.replace(',', "."))
     } else {
         std::borrow::Cow::Borrowed(t)
     };
-    // Rust's parser takes words for infinities and NaN; those are markers above or text.
+    // Rust's parser takes words for infinities and NaN; those are markers or text.
     match t.parse::<f64>() {
-        Ok(v) if v.is_finite() && t.bytes().any(|b| b.is_ascii_digit()) => Some(Cell::Number(v)),
+        Ok(v) if v.is_finite() && t.bytes().any(|b| b.is_ascii_digit()) => Some(Number::Decimal(v)),
         _ => None,
     }
 }
 
-/// `df` with each text column not in `keep` that holds numbers and markers only, at least one
-/// of each, read as numbers (whole numbers as integers, as the reader would have read them),
-/// and a note for each column so read.
+/// `t` as a number with thousands separators: a sign, then one to three digits and groups of
+/// exactly three after a separator (a comma; a point under `decimal_comma`), then perhaps the
+/// decimal point and digits (`-1,234,567.5`; `1.234,5`).
+fn grouped(t: &str, decimal_comma: bool) -> Option<Number> {
+    let (separator, point) = if decimal_comma {
+        ('.', ',')
+    } else {
+        (',', '.')
+    };
+    let (sign, body) = match t.strip_prefix('-') {
+        Some(rest) => ("-", rest),
+        None => ("", t.strip_prefix('+').unwrap_or(t)),
+    };
+    let (whole, fraction) = match body.split_once(point) {
+        Some((whole, fraction)) => (whole, Some(fraction)),
+        None => (body, None),
+    };
+    let groups: Vec<&str> = whole.split(separator).collect();
+    let digits = |g: &str| !g.is_empty() && g.bytes().all(|b| b.is_ascii_digit());
+    let well_grouped = groups.len() >= 2
+        && groups[0].len() <= 3
+        && groups.iter().all(|g| digits(g))
+        && groups[1..].iter().all(|g| g.len() == 3);
+    if !well_grouped || fraction.is_some_and(|f| !digits(f)) {
+        return None;
+    }
+    let whole = format!("{sign}{}", groups.concat());
+    match fraction {
+        None => whole.parse::<i64>().ok().map(Number::Whole),
+        Some(f) => format!("{whole}.{f}")
+            .parse::<f64>()
+            .ok()
+            .map(Number::Decimal),
+    }
+}
+
+/// `df` with each text column not in `keep` that holds numbers (plain, with thousands
+/// separators or in parentheses) and markers only — at least one number, and at least one
+/// marker or number the reader does not read — read as numbers (whole numbers as integers, as
+/// the reader would have read them), and a note for each column so read.
 pub(crate) fn numbers_with_markers(
     mut df: DataFrame,
     keep: &[&str],
@@ -105,34 +180,63 @@ pub(crate) fn numbers_with_markers(
         let markers = cells.iter().filter(|c| matches!(c, Cell::Marker)).count();
         let numbers = cells
             .iter()
-            .filter(|c| matches!(c, Cell::Whole(_) | Cell::Number(_)))
+            .filter(|c| matches!(c, Cell::Number(..)))
             .count();
-        if markers == 0 || numbers == 0 {
+        // Cells written in `way`, and the first such as written.
+        let written = |way: Written| {
+            let mut found = values
+                .iter()
+                .zip(&cells)
+                .filter(|(_, c)| matches!(c, Cell::Number(_, w) if *w == way));
+            let first = found.next().and_then(|(v, _)| v).map(str::trim);
+            (usize::from(first.is_some()) + found.count(), first)
+        };
+        let (grouped, first_grouped) = written(Written::Grouped);
+        let (bracketed, first_bracketed) = written(Written::Parenthesized);
+        if numbers == 0 || markers + grouped + bracketed == 0 {
             continue;
         }
-        // Each marker as written, with how often, in order of first appearance.
-        let mut seen: Vec<(&str, usize)> = Vec::new();
-        for (v, c) in values.iter().zip(&cells) {
-            if let (Some(v), Cell::Marker) = (v, c) {
-                let v = v.trim();
-                match seen.iter_mut().find(|(s, _)| *s == v) {
-                    Some((_, n)) => *n += 1,
-                    None => seen.push((v, 1)),
+        let mut parts = Vec::new();
+        if markers > 0 {
+            // Each marker as written, with how often, in order of first appearance.
+            let mut seen: Vec<(&str, usize)> = Vec::new();
+            for (v, c) in values.iter().zip(&cells) {
+                if let (Some(v), Cell::Marker) = (v, c) {
+                    let v = v.trim();
+                    match seen.iter_mut().find(|(s, _)| *s == v) {
+                        Some((_, n)) => *n += 1,
+                        None => seen.push((v, 1)),
+                    }
                 }
             }
+            let listed: Vec<String> = seen.iter().map(|(s, n)| format!("`{s}` {n}")).collect();
+            parts.push(format!(
+                "{markers} cells marking a missing number ({}) read as missing",
+                listed.join(", ")
+            ));
         }
-        let listed: Vec<String> = seen.iter().map(|(s, n)| format!("`{s}` {n}")).collect();
+        if let Some(first) = first_grouped {
+            parts.push(format!(
+                "{grouped} cells with thousands separators (the first `{first}`)"
+            ));
+        }
+        if let Some(first) = first_bracketed {
+            parts.push(format!(
+                "{bracketed} cells in parentheses taken as negative (the first `{first}`)"
+            ));
+        }
         notes.push(format!(
-            "column `{name}`: {markers} cells marking a missing number ({}) read as missing, the \
-             column as numbers",
-            listed.join(", ")
+            "column `{name}`: {}, the column as numbers",
+            parts.join("; ")
         ));
-        let whole = !cells.iter().any(|c| matches!(c, Cell::Number(_)));
+        let whole = !cells
+            .iter()
+            .any(|c| matches!(c, Cell::Number(Number::Decimal(_), _)));
         let column = if whole {
             let v: Int64Chunked = cells
                 .iter()
                 .map(|c| match c {
-                    Cell::Whole(v) => Some(*v),
+                    Cell::Number(Number::Whole(v), _) => Some(*v),
                     _ => None,
                 })
                 .collect();
@@ -141,8 +245,8 @@ pub(crate) fn numbers_with_markers(
             let v: Float64Chunked = cells
                 .iter()
                 .map(|c| match c {
-                    Cell::Whole(v) => Some(*v as f64),
-                    Cell::Number(v) => Some(*v),
+                    Cell::Number(Number::Whole(v), _) => Some(*v as f64),
+                    Cell::Number(Number::Decimal(v), _) => Some(*v),
                     _ => None,
                 })
                 .collect();
@@ -196,5 +300,51 @@ mod tests {
         let (df, _) = numbers_with_markers(df, &[], true).unwrap();
         let x: Vec<Option<f64>> = df.column("x").unwrap().f64().unwrap().iter().collect();
         assert_eq!(x, [Some(1.5), None]);
+    }
+
+    /// Worked by hand: thousands separators and parentheses, common practice in spreadsheets
+    /// and accounts. `s` mixes plain and grouped numbers (a decimal among them: floats); `c`
+    /// whole numbers with one in parentheses and a marker (integers); `g` grouped wrongly
+    /// (`12,34`, `1,2345`) and `p` a signed number in parentheses stay text; `u` with a
+    /// currency sign and `q` with a percent sign stay text. Under a decimal comma, `1.234,5`
+    /// is grouped and `1,234` is the reader's one point two three four.
+    #[test]
+    fn numbers_with_separators_or_parentheses_are_numbers() {
+        let df = df!(
+            "s" => ["950", "1,234.5", "-2,000", "+1,000,000"],
+            "c" => ["(12)", "13", "NA", "(1,200)"],
+            "g" => ["12,34", "5", "1,2345", "6"],
+            "p" => ["(-5)", "1", "2", "3"],
+            "u" => ["$1,200", "5", "6", "7"],
+            "q" => ["12%", "5", "6", "7"],
+        )
+        .unwrap();
+        let (df, notes) = numbers_with_markers(df, &[], false).unwrap();
+        let s: Vec<Option<f64>> = df.column("s").unwrap().f64().unwrap().iter().collect();
+        assert_eq!(s, [Some(950.0), Some(1234.5), Some(-2000.0), Some(1e6)]);
+        let c: Vec<Option<i64>> = df.column("c").unwrap().i64().unwrap().iter().collect();
+        assert_eq!(c, [Some(-12), Some(13), None, Some(-1200)]);
+        for text in ["g", "p", "u", "q"] {
+            assert_eq!(
+                df.column(text).unwrap().dtype(),
+                &DataType::String,
+                "{text}"
+            );
+        }
+        assert_eq!(
+            notes,
+            [
+                "column `s`: 3 cells with thousands separators (the first `1,234.5`), the column \
+                 as numbers",
+                "column `c`: 1 cells marking a missing number (`NA` 1) read as missing; 2 cells \
+                 in parentheses taken as negative (the first `(12)`), the column as numbers",
+            ]
+        );
+        let df = df!("x" => ["1.234,5", "2"], "y" => ["1,234", "NA"]).unwrap();
+        let (df, _) = numbers_with_markers(df, &[], true).unwrap();
+        let x: Vec<Option<f64>> = df.column("x").unwrap().f64().unwrap().iter().collect();
+        assert_eq!(x, [Some(1234.5), Some(2.0)]);
+        let y: Vec<Option<f64>> = df.column("y").unwrap().f64().unwrap().iter().collect();
+        assert_eq!(y, [Some(1.234), None]);
     }
 }
