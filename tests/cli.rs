@@ -495,6 +495,8 @@ fn every_finding() -> String {
             }
         }
     }
+    // F02 keyed a second way: an entity name alike but for spaces and case.
+    out.push_str("f02 ,2003,1,1,1,1,1,1,1952\n");
     out.push_str(",2003,1,1,1,1,1,1,1\n");
     out
 }
@@ -506,6 +508,7 @@ fn every_verdict_level_sets_its_finding() {
     let keys = [
         ("conflicting_keys", "Keys", ""),
         ("key_repairs", "Keys", "duplicates = \"keep-first\"\n"),
+        ("alike_entities", "Keys", ""),
         ("gaps", "Coverage", ""),
         ("singletons", "Coverage", ""),
         ("attrition", "Entry and exit", ""),

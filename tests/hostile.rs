@@ -1300,3 +1300,47 @@ fn a_header_name_with_a_quote_is_read_as_written() {
         "a\"b",
     );
 }
+
+/// Entity names that are one name but for surrounding spaces or letter case are counted and
+/// shown in the keys section, and the verdict's Keys line warns (`[verdict] alike_entities`
+/// sets its level); the names are kept as they are. Worked by hand: `K1` / `k1 ` and ` Zed` /
+/// `ZED` / `zed` are two groups; `B` stands alone.
+#[test]
+fn entity_names_alike_but_for_spaces_or_case_are_shown() {
+    let csv = "firm,year,x\nK1,2001,1\nk1 ,2002,2\nB,2001,3\nB,2002,4\n Zed,2001,5\nzed,2002,6\nZED,2003,7\n";
+    let (report, _) = audit_csv(csv);
+    assert_eq!(report["panel"]["entities"], 6);
+    assert_eq!(report["keys"]["alike_entities"], 2);
+    assert_eq!(
+        report["keys"]["alike_examples"],
+        serde_json::json!([["K1", "k1 "], [" Zed", "ZED", "zed"]])
+    );
+    let keys = |report: &serde_json::Value| {
+        report["verdict"]["checks"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|c| c["check"] == "Keys")
+            .unwrap()
+            .clone()
+    };
+    let line = keys(&report);
+    assert_eq!(line["status"], "warn", "{line}");
+    assert!(line["reason"]
+        .as_str()
+        .unwrap()
+        .contains("2 groups of entity names alike"));
+    let w = Workdir::new();
+    w.write("raw.csv", csv);
+    w.write(
+        "r.toml",
+        "[panel]\nentity = \"firm\"\nperiod = \"year\"\n[verdict]\nalike_entities = \"pass\"\n",
+    );
+    let r = w.ok(&["audit", "raw.csv", "--rules", "r.toml", "--format", "json"]);
+    let report: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+    assert_eq!(keys(&report)["status"], "pass");
+    // Names that differ otherwise are not alike.
+    let (report, _) = audit_csv("firm,year,x\nK1,2001,1\nK1,2002,2\nK2,2001,3\nK2,2002,4\n");
+    assert_eq!(report["keys"]["alike_entities"], 0);
+    assert_eq!(keys(&report)["status"], "pass");
+}

@@ -1,5 +1,7 @@
 //! Panel at a glance: rows, entities, periods, window and whether the panel is balanced.
 
+use std::hash::BuildHasher;
+
 use polars::prelude::*;
 
 use super::names::N;
@@ -24,6 +26,75 @@ pub fn panel_summary(ctx: &Context) -> Result<PanelSummary> {
     (panel.evenness_harmonic, panel.evenness_squares) = evenness(&ctx.entities)?;
     Ok(panel)
 }
+
+/// Groups of entities whose names are one name but for surrounding spaces or letter case,
+/// and the first few groups' names: over the distinct names (one row per entity), not the
+/// panel's rows.
+pub fn alike_entities(ctx: &Context) -> Result<(u64, Vec<Vec<String>>)> {
+    const SHOWN: usize = 3;
+    let name = ctx.entity;
+    let names = ctx.entities.select([name])?;
+    // Mostly there are none: one pass over the names, each trimmed and lowered as the engine
+    // does below (Rust's `trim` and `to_lowercase`), stops at the first whose hash meets
+    // another's; none met, no two are alike.
+    let text = names.column(name)?.cast(&DataType::String)?;
+    let state = PlRandomState::default();
+    let mut seen: PlHashSet<u64> = PlHashSet::with_capacity(text.len());
+    let mut lowered = String::new();
+    let met = text.str()?.iter().flatten().any(|id| {
+        let id = id.trim();
+        let key = if id.is_ascii() && !id.bytes().any(|b| b.is_ascii_uppercase()) {
+            id
+        } else {
+            lowered.clear();
+            if id.is_ascii() {
+                lowered.push_str(id);
+                lowered.make_ascii_lowercase();
+            } else {
+                lowered.push_str(&id.to_lowercase());
+            }
+            lowered.as_str()
+        };
+        !seen.insert(state.hash_one(key))
+    });
+    if !met {
+        return Ok((0, Vec::new()));
+    }
+    let alike = names
+        .lazy()
+        .select([col(name).cast(DataType::String)])
+        .with_column(
+            col(name)
+                .str()
+                .strip_chars(lit(NULL))
+                .str()
+                .to_lowercase()
+                .alias(ALIKE),
+        )
+        .filter(len().over([col(ALIKE)])?.gt(lit(1)))
+        .sort([ALIKE, name], Default::default())
+        .collect()?;
+    let groups = alike.column(ALIKE)?.n_unique()? as u64;
+    let mut examples: Vec<Vec<String>> = Vec::new();
+    let (shared, names) = (alike.column(ALIKE)?.str()?, alike.column(name)?.str()?);
+    let mut previous = None;
+    for (shared, name) in shared.iter().zip(names.iter()) {
+        if previous != Some(shared) {
+            if examples.len() == SHOWN {
+                break;
+            }
+            examples.push(Vec::new());
+            previous = Some(shared);
+        }
+        if let Some(group) = examples.last_mut() {
+            group.push(name.unwrap_or_default().to_string());
+        }
+    }
+    Ok((groups, examples))
+}
+
+/// The name two entity names share once trimmed and in lower case.
+const ALIKE: &str = "__alike";
 
 /// How evenly the observations spread over the entities, from their counts `__n`; Ahrens &
 /// Pincus (1981): gamma = N / (T-bar · Σ 1/T_i), nu = n² / (N · Σ T_i²). None without entities.

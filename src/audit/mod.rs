@@ -25,7 +25,7 @@ use verdict::CheckVerdict;
 pub use attrition::welch;
 pub use coverage::Coverage;
 pub use entry_exit::EntryExit;
-pub use glance::panel_summary;
+pub use glance::{alike_entities, panel_summary};
 pub use missing::Missing;
 pub use outliers::{CutoffGroups, Outliers, MAD_SCALE};
 pub use variation::{Variation, ABSORBED_SHARE};

@@ -35,10 +35,13 @@ pub const CONFLICTING_KEYS: LevelKey = level_key!("conflicting_keys", Fail);
 /// Rows missing a key, exact copies, or conflicts resolved by a policy.
 pub const KEY_REPAIRS: LevelKey = level_key!("key_repairs", Warn);
 
+/// Entity names alike but for surrounding spaces or letter case.
+pub const ALIKE_ENTITIES: LevelKey = level_key!("alike_entities", Warn);
+
 /// Every finding `[verdict]` may set, in the order the reports judge them: the key steps',
 /// each check's (registry order), the accounting rules', model readiness's.
 pub fn level_keys() -> Vec<LevelKey> {
-    let mut keys = vec![CONFLICTING_KEYS, KEY_REPAIRS];
+    let mut keys = vec![CONFLICTING_KEYS, KEY_REPAIRS, ALIKE_ENTITIES];
     for check in super::registry() {
         keys.extend(check.levels());
     }
@@ -129,35 +132,49 @@ pub fn judge(r: &Report, lv: &Levels) -> Verdict {
     Verdict { overall, checks }
 }
 
-/// The key steps' verdict line: unresolved conflicting keys, or the repairs made.
+/// The key steps' verdict line: unresolved conflicting keys, or the repairs made; and entity
+/// names alike but for spaces or case, beside either.
 pub(super) fn keys(r: &Report, lv: &Levels) -> Option<CheckVerdict> {
     use Status::*;
     let k = &r.keys;
     let unresolved = k.policy == "report only" && k.conflicting_keys > 0;
-    Some(if unresolved {
-        line(
-            "Keys",
+    let mut found = Vec::new();
+    if unresolved {
+        found.push((
             lv.of(&CONFLICTING_KEYS),
             format!(
                 "{} entity-period keys appear on rows with different values",
                 k.conflicting_keys
             ),
-        )
+        ));
     } else if k.missing_key_rows + k.exact_duplicate_rows + k.conflicting_rows > 0 {
-        line(
-            "Keys",
+        found.push((
             lv.of(&KEY_REPAIRS),
             format!(
                 "{} rows missing a key, {} exact copies, {} conflicting keys resolved by {}",
                 k.missing_key_rows, k.exact_duplicate_rows, k.conflicting_keys, k.policy
             ),
-        )
-    } else {
-        line(
+        ));
+    }
+    if k.alike_entities > 0 {
+        found.push((
+            lv.of(&ALIKE_ENTITIES),
+            format!(
+                "{} groups of entity names alike but for spaces or letter case",
+                k.alike_entities
+            ),
+        ));
+    }
+    Some(match found.iter().map(|(status, _)| *status).max() {
+        None => line(
             "Keys",
             Pass,
             "every entity-period key is present and unique".into(),
-        )
+        ),
+        Some(status) => {
+            let reasons: Vec<String> = found.into_iter().map(|(_, reason)| reason).collect();
+            line("Keys", status, reasons.join("; "))
+        }
     })
 }
 

@@ -288,6 +288,9 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
             policy: policy.label(),
             examples,
             year_end_changes: None,
+            // Judged on the panel as read, once its core is built.
+            alike_entities: 0,
+            alike_examples: Vec::new(),
         },
         steps,
     })

@@ -204,6 +204,7 @@ pub fn prepare_with(
         .with_progress(progress);
     progress.stage("check: panel at a glance");
     report.panel = audit::panel_summary(&ctx)?;
+    (report.keys.alike_entities, report.keys.alike_examples) = audit::alike_entities(&ctx)?;
     for check in audit::registry() {
         progress.stage(&format!("check: {}", check.name()));
         report.findings.push(check.run(&ctx)?);

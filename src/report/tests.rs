@@ -38,6 +38,8 @@ fn sample() -> Report {
             rows: 2,
         }],
         year_end_changes: None,
+        alike_entities: 0,
+        alike_examples: Vec::new(),
     };
     let mut coverage = Coverage {
         singletons: 41,

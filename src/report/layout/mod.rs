@@ -265,6 +265,10 @@ fn keys(r: &Report) -> Section {
         ),
         ("rows carrying those keys", k.conflicting_rows.to_string()),
         ("policy for those keys", k.policy.clone()),
+        (
+            "entities alike but for spaces or case",
+            k.alike_entities.to_string(),
+        ),
     ])];
     if !k.examples.is_empty() {
         let list: Vec<String> = k
@@ -274,6 +278,22 @@ fn keys(r: &Report) -> Section {
             .collect();
         blocks.push(Block::Note(format!(
             "First keys on rows with different values: {}.",
+            list.join("; ")
+        )));
+    }
+    if !k.alike_examples.is_empty() {
+        let list: Vec<String> = k
+            .alike_examples
+            .iter()
+            .map(|names| {
+                let quoted: Vec<String> = names.iter().map(|n| format!("`{n}`")).collect();
+                quoted.join(" and ")
+            })
+            .collect();
+        blocks.push(Block::Note(format!(
+            "Entity names that are one name but for surrounding spaces or letter case, most \
+             likely one firm keyed two ways and counted as two entities (first: {}). Correct the \
+             names in the raw file; panelready keeps them as they are.",
             list.join("; ")
         )));
     }

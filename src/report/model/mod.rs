@@ -146,6 +146,11 @@ pub struct KeysSummary {
     pub policy: String,
     /// The first few conflicting keys.
     pub examples: Vec<KeyExample>,
+    /// Groups of entities whose names are one name but for surrounding spaces or letter case
+    /// (`K1` and `k1 `): most likely one firm keyed two ways, split into two entities.
+    pub alike_entities: u64,
+    /// The first few such groups, each as its names.
+    pub alike_examples: Vec<Vec<String>>,
     /// With the period derived from a fiscal-year-end date: entities whose year-end month
     /// changed (a change can put two rows into one fiscal year: conflicting keys).
     #[serde(default, skip_serializing_if = "Option::is_none")]
