@@ -153,6 +153,8 @@ fn read_table(
     } else {
         (raw, Vec::new())
     };
+    let (raw, decimals) = crate::load::decimals_as_floats(raw, &[])?;
+    let notes: Vec<String> = notes.into_iter().chain(decimals).collect();
     let missing = |column: &str, context: &str| Error::MissingColumn {
         file: path.to_path_buf(),
         column: column.to_string(),

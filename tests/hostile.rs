@@ -971,11 +971,13 @@ fn parquet_columns_of_every_kind_are_read_or_named() {
         let f = std::fs::File::create(w.path(name)).unwrap();
         ParquetWriter::new(f).finish(&mut df).unwrap();
     };
-    // Dates (days since 1970-01-01), times of day as a date-time, and decimals: read, kept as
-    // they are in panel.parquet, written in panel.csv as ISO 8601 text and the decimal's
-    // digits (worked by hand: 2002-01-01 is day 32 × 365 + 8 leap days = 11688, so day 11687
-    // is 2001-12-31). Before, panel.csv could not be written and `build` stopped with the
-    // engine's message.
+    // Dates (days since 1970-01-01) and times of day as a date-time: read, kept as they are in
+    // panel.parquet, written in panel.csv as ISO 8601 text (worked by hand: 2002-01-01 is day
+    // 32 × 365 + 8 leap days = 11688, so day 11687 is 2001-12-31). Before, panel.csv could
+    // not be written and `build` stopped with the engine's message. Decimals are read as
+    // floating-point numbers, noted, so that the checks examine them (they were passed by as
+    // text): -2.50 is -2.5, a double in panel.parquet, and the mean of 1.25, -2.5, 0 and 10 is
+    // 2.1875.
     let days = Column::new("closed".into(), [11322i32, 11687, 11322, 0])
         .cast(&DataType::Date)
         .unwrap();
@@ -1000,9 +1002,31 @@ fn parquet_columns_of_every_kind_are_read_or_named() {
         let want = match name {
             "dates.parquet" => "2001-12-31",
             "stamps.parquet" => "1970-01-02 00:00:00.000000",
-            _ => "-2.50",
+            _ => "-2.5",
         };
         assert_eq!(second[4], want, "{name}: {csv}");
+        if name == "decimals.parquet" {
+            let report = w.json(&format!("{out}/report.json"));
+            let price = report["variation"]
+                .as_array()
+                .unwrap()
+                .iter()
+                .find(|l| l["variable"] == "price")
+                .unwrap()
+                .clone();
+            assert!(
+                (price["mean"].as_f64().unwrap() - 2.1875).abs() < 1e-12,
+                "{price}"
+            );
+            let notes = report["input"]["notes"].as_array().unwrap();
+            assert!(
+                notes[0]
+                    .as_str()
+                    .unwrap()
+                    .contains("`price`: decimal numbers (precision 10"),
+                "{notes:?}"
+            );
+        }
         let back = ParquetReader::new(
             std::fs::File::open(w.path(&format!("{out}/panel.parquet"))).unwrap(),
         )
@@ -1011,7 +1035,11 @@ fn parquet_columns_of_every_kind_are_read_or_named() {
         let original = ParquetReader::new(std::fs::File::open(w.path(name)).unwrap())
             .finish()
             .unwrap();
-        assert_eq!(back.dtypes()[4], original.dtypes()[3], "{name}");
+        let kept = match name {
+            "decimals.parquet" => DataType::Float64,
+            _ => original.dtypes()[3].clone(),
+        };
+        assert_eq!(back.dtypes()[4], kept, "{name}");
     }
     // Lists, records and raw bytes are no panel's columns: one line naming the file and column.
     let kinds = [

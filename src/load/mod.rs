@@ -226,9 +226,11 @@ pub fn load(
         }
     }
     let df = df.lazy().with_columns(casts).collect()?;
+    let (df, decimals) = decimals_as_floats(df, &[&cfg.entity, &cfg.period])?;
     check_window(&df, cfg)?;
     let (sheet, mut notes) = sheet.map_or((None, Vec::new()), |s| (Some(s.name), s.notes));
     notes.extend(marked);
+    notes.extend(decimals);
     Ok(Loaded {
         rows: df.height() as u64,
         df,
@@ -237,6 +239,29 @@ pub fn load(
         notes,
         year_end_changes,
     })
+}
+
+/// `df` with each decimal column not in `keep` (a Parquet file written from a database or a
+/// money type) as floating-point numbers, and a note for each. The engine's decimals are
+/// neither floats nor integers, so every check passed such a column by as if it were text.
+pub(crate) fn decimals_as_floats(df: DataFrame, keep: &[&str]) -> Result<(DataFrame, Vec<String>)> {
+    let mut casts = Vec::new();
+    let mut notes = Vec::new();
+    for (name, dtype) in df.schema().iter() {
+        if let DataType::Decimal(precision, scale) = dtype {
+            if !keep.contains(&name.as_str()) {
+                casts.push(col(name.clone()).cast(DataType::Float64));
+                notes.push(format!(
+                    "column `{name}`: decimal numbers (precision {precision}, scale {scale}) read \
+                     as floating-point numbers, exact to about 15 significant digits"
+                ));
+            }
+        }
+    }
+    if casts.is_empty() {
+        return Ok((df, notes));
+    }
+    Ok((df.lazy().with_columns(casts).collect()?, notes))
 }
 
 /// ", row N" for the first row of `bad` (a frame with the row-number column), for messages.
