@@ -77,8 +77,13 @@ pub enum Error {
         message: String,
     },
     /// A derived variable refers to a column that neither the data nor the rules define.
-    #[error("{rule}: unknown column `{column}`")]
-    UnknownColumn { rule: String, column: String },
+    #[error("{rule}: unknown column `{column}`{hint}")]
+    UnknownColumn {
+        rule: String,
+        column: String,
+        /// ` (the file has …)` when a column is the name but for spaces or case, or empty.
+        hint: String,
+    },
     /// A derived variable calls a function we do not offer.
     #[error("{rule}: unknown function `{function}`")]
     UnknownFunction { rule: String, function: String },
@@ -196,6 +201,24 @@ impl Error {
 }
 
 /// The first line of an engine message, without the hints the engine appends.
+/// A column among `names` that is `wanted` but for surrounding spaces or letter case, said for
+/// a message: "the file has ` firm`, with spaces around it".
+pub(crate) fn near_name<'a>(
+    wanted: &str,
+    names: impl IntoIterator<Item = &'a str>,
+) -> Option<String> {
+    let fold = |name: &str| name.trim().to_lowercase();
+    let target = fold(wanted);
+    let near = names
+        .into_iter()
+        .find(|name| *name != wanted && fold(name) == target)?;
+    Some(if near.trim() == wanted.trim() {
+        format!("the file has `{near}`, with spaces around it")
+    } else {
+        format!("the file has `{near}`: names match exactly, letter case included")
+    })
+}
+
 pub(crate) fn one_line(message: &str) -> String {
     message
         .lines()

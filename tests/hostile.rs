@@ -1372,3 +1372,61 @@ fn entity_names_alike_but_for_spaces_or_case_are_shown() {
     assert_eq!(report["keys"]["alike_entities"], 0);
     assert_eq!(keys(&report)["status"], "pass");
 }
+
+/// A column named by the command line or a rule that the file has only with spaces around it
+/// or in other letter case is named in the error beside the one asked for (names still match
+/// exactly).
+#[test]
+fn a_name_the_file_has_but_for_spaces_or_case_is_pointed_to() {
+    let w = Workdir::new();
+    w.write("spaces.csv", " firm,year,sales \nA,2001,1\nA,2002,2\n");
+    w.fails(
+        &[
+            "audit",
+            "spaces.csv",
+            "--entity",
+            "firm",
+            "--period",
+            "year",
+        ],
+        "no column `firm` (the entity column; the file has ` firm`, with spaces around it)",
+    );
+    w.write("case.csv", "firm,year,Sales\nA,2001,1\nA,2002,2\n");
+    w.write(
+        "r.toml",
+        "[panel]\nentity = \"firm\"\nperiod = \"year\"\n[derive.double]\nexpr = \"sales * 2\"\n",
+    );
+    w.fails(
+        &["audit", "case.csv", "--rules", "r.toml"],
+        "unknown column `sales` (the file has `Sales`: names match exactly, letter case included)",
+    );
+    // Nothing near: the message as before.
+    w.write("other.csv", "firm,year,turnover\nA,2001,1\nA,2002,2\n");
+    let line = w.fails(
+        &["audit", "other.csv", "--rules", "r.toml"],
+        "unknown column `sales`",
+    );
+    assert!(!line.contains("the file has"), "{line}");
+    // A library ratio left out for an input the file has in other case says so.
+    w.write(
+        "lib.csv",
+        "firm,year,Net_Income,total_assets\nA,2001,1,10\nA,2002,2,11\n",
+    );
+    w.write(
+        "lib.toml",
+        "include = [\"standard\"]\n[panel]\nentity = \"firm\"\nperiod = \"year\"\n",
+    );
+    let r = w.ok(&[
+        "audit", "lib.csv", "--rules", "lib.toml", "--format", "json",
+    ]);
+    let report: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+    let skipped = report["skipped"].as_array().unwrap();
+    let roa = skipped.iter().find(|s| s["name"] == "roa").unwrap();
+    assert_eq!(roa["missing"], "net_income");
+    assert_eq!(
+        roa["near"],
+        "the file has `Net_Income`: names match exactly, letter case included"
+    );
+    let leverage = skipped.iter().find(|s| s["name"] == "leverage").unwrap();
+    assert!(leverage.get("near").is_none(), "{leverage}");
+}

@@ -52,6 +52,7 @@ pub fn compile(rules: &Rules, raw: &[String]) -> Result<(Vec<CompiledRule>, Vec<
             {
                 skipped.push(SkippedRule {
                     name: rule.name.clone(),
+                    near: crate::error::near_name(&column, raw.iter().map(String::as_str)),
                     missing: column,
                 });
                 continue;
@@ -69,6 +70,8 @@ pub fn compile(rules: &Rules, raw: &[String]) -> Result<(Vec<CompiledRule>, Vec<
                         Err(Error::UnknownColumn {
                             rule: label.clone(),
                             column: c.clone(),
+                            hint: crate::error::near_name(c, raw_set.iter().map(String::as_str))
+                                .map_or(String::new(), |near| format!(" ({near})")),
                         })
                     }
                 })

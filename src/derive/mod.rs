@@ -83,6 +83,7 @@ impl Plan {
                     {
                         newly_skipped = Some(SkippedRule {
                             name: name.clone(),
+                            near: crate::error::near_name(&column, raw.iter().map(String::as_str)),
                             missing: column,
                         });
                         break;

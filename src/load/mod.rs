@@ -136,7 +136,10 @@ pub fn load(
     let missing = |column: &str, context: String| Error::MissingColumn {
         file: cfg.path.clone(),
         column: column.to_string(),
-        context,
+        context: match crate::error::near_name(column, schema.iter_names().map(|n| n.as_str())) {
+            Some(near) => format!("{context}; {near}"),
+            None => context,
+        },
     };
     if !schema.contains(&cfg.entity) {
         return Err(missing(&cfg.entity, "the entity column".into()));

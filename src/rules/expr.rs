@@ -132,10 +132,13 @@ pub(crate) fn compile(rule: &str, text: &str, scope: &Scope) -> Result<Compiled>
                     *id = Ident::with_quote('"', name);
                 }
                 None => {
+                    let names = scope.raw.iter().map(String::as_str);
                     return ControlFlow::Break(Error::UnknownColumn {
                         rule: rule.to_string(),
                         column: id.value.clone(),
-                    })
+                        hint: crate::error::near_name(&id.value, names)
+                            .map_or(String::new(), |near| format!(" ({near})")),
+                    });
                 }
             },
             SqlExpr::CompoundIdentifier(parts) => {
@@ -143,6 +146,7 @@ pub(crate) fn compile(rule: &str, text: &str, scope: &Scope) -> Result<Compiled>
                 return ControlFlow::Break(Error::UnknownColumn {
                     rule: rule.to_string(),
                     column: column.join("."),
+                    hint: String::new(),
                 });
             }
             SqlExpr::Function(f) => {

@@ -83,8 +83,12 @@ pub(super) fn derived(r: &Report) -> Section {
         rows,
     )];
     for s in &r.skipped {
+        let near = s
+            .near
+            .as_ref()
+            .map_or(String::new(), |near| format!(" ({near})"));
         blocks.push(Block::Note(format!(
-            "Library ratio {} left out: no column `{}`.",
+            "Library ratio {} left out: no column `{}`{near}.",
             s.name, s.missing
         )));
     }

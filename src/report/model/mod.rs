@@ -220,6 +220,10 @@ pub struct SkippedRule {
     pub name: String,
     /// The input it lacks.
     pub missing: String,
+    /// A column of the file that is that input's name but for spaces or letter case, said for
+    /// people ("the file has `Sales`: …"), if any.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub near: Option<String>,
 }
 
 /// Repairs applied right after the key steps; every changed cell is in `corrections.csv`.
