@@ -12,11 +12,10 @@ use crate::{Error, Result};
 mod budget;
 mod contiguous;
 mod markers;
-
-pub(crate) use markers::numbers_with_markers;
 mod period;
 
 use budget::check_budget;
+pub(crate) use markers::numbers_with_markers;
 use period::{check_period, check_window, fiscal_year, period_as_int};
 
 /// The internal column holding each row's original position (1 = first data row); named
