@@ -261,6 +261,27 @@ pub(crate) fn numbers_with_markers(
 mod tests {
     use super::*;
 
+    /// Column `name` of `df` as floats.
+    fn floats(df: &DataFrame, name: &str) -> Vec<Option<f64>> {
+        df.column(name).unwrap().f64().unwrap().iter().collect()
+    }
+
+    /// Column `name` of `df` as whole numbers.
+    fn wholes(df: &DataFrame, name: &str) -> Vec<Option<i64>> {
+        df.column(name).unwrap().i64().unwrap().iter().collect()
+    }
+
+    /// Each of `names` is still text in `df`.
+    fn still_text(df: &DataFrame, names: &[&str]) {
+        for name in names {
+            assert_eq!(
+                df.column(name).unwrap().dtype(),
+                &DataType::String,
+                "{name}"
+            );
+        }
+    }
+
     /// Worked by hand: `x` holds numbers and three markers; `n` whole numbers and `.`; `t`
     /// text; `d` numbers and a dash (zero in accounts, not a marker); `m` markers only.
     #[test]
@@ -275,17 +296,9 @@ mod tests {
         )
         .unwrap();
         let (df, notes) = numbers_with_markers(df, &["id"], false).unwrap();
-        let x: Vec<Option<f64>> = df.column("x").unwrap().f64().unwrap().iter().collect();
-        assert_eq!(x, [Some(1.5), None, None, None]);
-        let n: Vec<Option<i64>> = df.column("n").unwrap().i64().unwrap().iter().collect();
-        assert_eq!(n, [Some(3), None, None, Some(-4)]);
-        for text in ["id", "t", "d", "m"] {
-            assert_eq!(
-                df.column(text).unwrap().dtype(),
-                &DataType::String,
-                "{text}"
-            );
-        }
+        assert_eq!(floats(&df, "x"), [Some(1.5), None, None, None]);
+        assert_eq!(wholes(&df, "n"), [Some(3), None, None, Some(-4)]);
+        still_text(&df, &["id", "t", "d", "m"]);
         assert_eq!(
             notes,
             [
@@ -298,8 +311,7 @@ mod tests {
         // A decimal comma, as the reader takes it.
         let df = df!("x" => ["1,5", "NA"]).unwrap();
         let (df, _) = numbers_with_markers(df, &[], true).unwrap();
-        let x: Vec<Option<f64>> = df.column("x").unwrap().f64().unwrap().iter().collect();
-        assert_eq!(x, [Some(1.5), None]);
+        assert_eq!(floats(&df, "x"), [Some(1.5), None]);
     }
 
     /// Worked by hand: thousands separators and parentheses, common practice in spreadsheets
@@ -320,17 +332,12 @@ mod tests {
         )
         .unwrap();
         let (df, notes) = numbers_with_markers(df, &[], false).unwrap();
-        let s: Vec<Option<f64>> = df.column("s").unwrap().f64().unwrap().iter().collect();
-        assert_eq!(s, [Some(950.0), Some(1234.5), Some(-2000.0), Some(1e6)]);
-        let c: Vec<Option<i64>> = df.column("c").unwrap().i64().unwrap().iter().collect();
-        assert_eq!(c, [Some(-12), Some(13), None, Some(-1200)]);
-        for text in ["g", "p", "u", "q"] {
-            assert_eq!(
-                df.column(text).unwrap().dtype(),
-                &DataType::String,
-                "{text}"
-            );
-        }
+        assert_eq!(
+            floats(&df, "s"),
+            [Some(950.0), Some(1234.5), Some(-2000.0), Some(1e6)]
+        );
+        assert_eq!(wholes(&df, "c"), [Some(-12), Some(13), None, Some(-1200)]);
+        still_text(&df, &["g", "p", "u", "q"]);
         assert_eq!(
             notes,
             [
@@ -342,9 +349,7 @@ mod tests {
         );
         let df = df!("x" => ["1.234,5", "2"], "y" => ["1,234", "NA"]).unwrap();
         let (df, _) = numbers_with_markers(df, &[], true).unwrap();
-        let x: Vec<Option<f64>> = df.column("x").unwrap().f64().unwrap().iter().collect();
-        assert_eq!(x, [Some(1234.5), Some(2.0)]);
-        let y: Vec<Option<f64>> = df.column("y").unwrap().f64().unwrap().iter().collect();
-        assert_eq!(y, [Some(1.234), None]);
+        assert_eq!(floats(&df, "x"), [Some(1234.5), Some(2.0)]);
+        assert_eq!(floats(&df, "y"), [Some(1.234), None]);
     }
 }
