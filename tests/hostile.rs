@@ -1275,6 +1275,13 @@ fn numbers_written_for_people_are_numbers() {
         .as_str()
         .unwrap()
         .contains("1 cells in parentheses taken as negative"));
+    // A percent sign keeps a column text, and the note names the cell that does.
+    let (report, _) = audit_csv("firm,year,margin\nA,2001,12\nA,2002,13%\nB,2001,14\nB,2002,15\n");
+    assert_eq!(
+        report["input"]["notes"][0],
+        "column `margin` stays text: most of its first values are numbers, but data row 2 \
+         holds `13%`, which is not one"
+    );
 }
 
 /// `audit --format json` of the CSV text `csv` (keys `firm` and `year`) in a fresh folder: the

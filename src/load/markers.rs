@@ -162,19 +162,38 @@ pub(crate) fn numbers_with_markers(
     let mut notes = Vec::new();
     for name in text {
         let values = df.column(&name)?.str()?.clone();
-        let first = values.iter().flatten().take(LOOK);
-        if !first
-            .map(|v| cell(Some(v), decimal_comma))
-            .all(|c| c.is_some())
-        {
-            continue;
-        }
-        // Every cell, or none at the first that is neither a number nor a marker.
-        let Some(cells) = values
+        let first: Vec<Option<Cell>> = values
             .iter()
-            .map(|v| cell(v, decimal_comma))
-            .collect::<Option<Vec<Cell>>>()
-        else {
+            .flatten()
+            .take(LOOK)
+            .map(|v| cell(Some(v), decimal_comma))
+            .collect();
+        // Every cell, or none at the first that is neither a number nor a marker.
+        let cells = match first.iter().all(Option::is_some) {
+            true => values
+                .iter()
+                .map(|v| cell(v, decimal_comma))
+                .collect::<Option<Vec<Cell>>>(),
+            false => None,
+        };
+        let Some(cells) = cells else {
+            // Mostly numbers among its first values, yet text: say which cell keeps it so.
+            let numbers = first
+                .iter()
+                .filter(|c| matches!(c, Some(Cell::Number(..))))
+                .count();
+            if numbers > 0 && 2 * numbers >= first.len() {
+                let stray = values.iter().enumerate().find_map(|(i, v)| {
+                    v.filter(|v| cell(Some(v), decimal_comma).is_none())
+                        .map(|v| (i + 1, v))
+                });
+                if let Some((row, value)) = stray {
+                    notes.push(format!(
+                        "column `{name}` stays text: most of its first values are numbers, but \
+                         data row {row} holds `{value}`, which is not one"
+                    ));
+                }
+            }
             continue;
         };
         let markers = cells.iter().filter(|c| matches!(c, Cell::Marker)).count();
@@ -283,7 +302,8 @@ mod tests {
     }
 
     /// Worked by hand: `x` holds numbers and three markers; `n` whole numbers and `.`; `t`
-    /// text; `d` numbers and a dash (zero in accounts, not a marker); `m` markers only.
+    /// text; `d` numbers and a dash (zero in accounts, not a marker), noted as text kept by
+    /// its second row; `m` markers only.
     #[test]
     fn numbers_with_markers_are_numbers_with_those_cells_missing() {
         let df = df!(
@@ -306,6 +326,8 @@ mod tests {
                  as missing, the column as numbers",
                 "column `n`: 1 cells marking a missing number (`.` 1) read as missing, the \
                  column as numbers",
+                "column `d` stays text: most of its first values are numbers, but data row 2 \
+                 holds `-`, which is not one",
             ]
         );
         // A decimal comma, as the reader takes it.
@@ -318,7 +340,8 @@ mod tests {
     /// and accounts. `s` mixes plain and grouped numbers (a decimal among them: floats); `c`
     /// whole numbers with one in parentheses and a marker (integers); `g` grouped wrongly
     /// (`12,34`, `1,2345`) and `p` a signed number in parentheses stay text; `u` with a
-    /// currency sign and `q` with a percent sign stay text. Under a decimal comma, `1.234,5`
+    /// currency sign and `q` with a percent sign stay text, each noted with the cell that
+    /// keeps it so (three numbers in four). Under a decimal comma, `1.234,5`
     /// is grouped and `1,234` is the reader's one point two three four.
     #[test]
     fn numbers_with_separators_or_parentheses_are_numbers() {
@@ -345,6 +368,14 @@ mod tests {
                  as numbers",
                 "column `c`: 1 cells marking a missing number (`NA` 1) read as missing; 2 cells \
                  in parentheses taken as negative (the first `(12)`), the column as numbers",
+                "column `g` stays text: most of its first values are numbers, but data row 1 \
+                 holds `12,34`, which is not one",
+                "column `p` stays text: most of its first values are numbers, but data row 1 \
+                 holds `(-5)`, which is not one",
+                "column `u` stays text: most of its first values are numbers, but data row 1 \
+                 holds `$1,200`, which is not one",
+                "column `q` stays text: most of its first values are numbers, but data row 1 \
+                 holds `12%`, which is not one",
             ]
         );
         let df = df!("x" => ["1.234,5", "2"], "y" => ["1,234", "NA"]).unwrap();
