@@ -1,6 +1,6 @@
 //! Command-line behaviour: keys, gap-aware panel functions, errors and exit codes.
 
-use crate::util::Workdir;
+use crate::util::{Run, Workdir};
 
 const RULES: &str = r#"
 [panel]
@@ -792,26 +792,30 @@ fn a_folder_of_parquet_files_reads_as_one_panel() {
     assert_ne!(r.code, 0, "verify passed on a changed folder: {}", r.stdout);
 }
 
+/// `cmd` (`audit`, or `build` into `b`) on `file` with keys `firm` and `year` and
+/// `--memory-budget budget`.
+fn with_budget(w: &Workdir, cmd: &str, file: &str, budget: &str) -> Run {
+    let mut args = vec![
+        cmd,
+        file,
+        "--entity",
+        "firm",
+        "--period",
+        "year",
+        "--memory-budget",
+        budget,
+    ];
+    if cmd == "build" {
+        args.extend(["--out", "b"]);
+    }
+    w.run(&args)
+}
+
 #[test]
 fn a_memory_budget_too_small_stops_before_reading() {
     let w = Workdir::new();
     parquet_layouts(&w);
-    let run = |cmd: &str, budget: &str| {
-        let mut args = vec![
-            cmd,
-            "one.parquet",
-            "--entity",
-            "firm",
-            "--period",
-            "year",
-            "--memory-budget",
-            budget,
-        ];
-        if cmd == "build" {
-            args.extend(["--out", "b"]);
-        }
-        w.run(&args)
-    };
+    let run = |cmd: &str, budget: &str| with_budget(&w, cmd, "one.parquet", budget);
     for cmd in ["audit", "build"] {
         let r = run(cmd, "1KiB");
         assert_eq!(r.code, 2, "{cmd}: {}", r.stderr);
@@ -862,18 +866,7 @@ fn the_memory_budget_counts_repeating_text_as_codes() {
         let parquet = std::fs::File::create(w.path(&format!("{file}.parquet"))).unwrap();
         ParquetWriter::new(parquet).finish(&mut df).unwrap();
     }
-    let run = |file: &str, budget: &str| {
-        w.run(&[
-            "audit",
-            file,
-            "--entity",
-            "firm",
-            "--period",
-            "year",
-            "--memory-budget",
-            budget,
-        ])
-    };
+    let run = |file: &str, budget: &str| with_budget(&w, "audit", file, budget);
     assert_eq!(run("repeating.parquet", "262MiB").code, 0);
     let r = run("distinct.parquet", "262MiB");
     assert_eq!(r.code, 2, "{}", r.stderr);

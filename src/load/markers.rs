@@ -169,14 +169,13 @@ pub(crate) fn numbers_with_markers(
             .map(|v| cell(Some(v), decimal_comma))
             .collect();
         // Every cell, or none at the first that is neither a number nor a marker.
-        let cells = match first.iter().all(Option::is_some) {
-            true => values
+        let cells = first.iter().all(Option::is_some).then(|| {
+            values
                 .iter()
                 .map(|v| cell(v, decimal_comma))
-                .collect::<Option<Vec<Cell>>>(),
-            false => None,
-        };
-        let Some(cells) = cells else {
+                .collect::<Option<Vec<Cell>>>()
+        });
+        let Some(cells) = cells.flatten() else {
             // Mostly numbers among its first values, yet text: say which cell keeps it so.
             let numbers = first
                 .iter()

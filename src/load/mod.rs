@@ -467,7 +467,8 @@ fn scan(
             if !as_text.is_empty() {
                 lf = reader(Some(Arc::new(as_text)))?;
             }
-            names_as_written(lf, input, csv.delimiter)?
+            // The override changes types only: the guessed schema's names are the file's.
+            names_as_written(lf, &guessed)
         }
         InputFormat::Parquet => LazyFrame::scan_parquet(pl_path, ScanArgsParquet::default())?,
         // load() reads spreadsheets itself, with the chosen sheet; the first sheet here.
@@ -476,23 +477,21 @@ fn scan(
     Ok(lf)
 }
 
-/// `lf` (a CSV scan) with each column named as its header writes it. The engine keeps a
+/// `lf` (a CSV scan whose columns `schema` names) with each column named as its header
+/// writes it. The engine keeps a
 /// doubled quote of a quoted header name (`"net ""adj"" income"` came out as
 /// `net ""adj"" income`), where RFC 4180 makes it one quote (`net "adj" income`): such a name
 /// could be matched by no rule, and the outputs carried it doubled.
-fn names_as_written(mut lf: LazyFrame, input: &Path, delimiter: char) -> Result<LazyFrame> {
-    let schema = lf
-        .collect_schema()
-        .map_err(|e| unreadable(input, InputFormat::Csv, delimiter, e))?;
+fn names_as_written(lf: LazyFrame, schema: &Schema) -> LazyFrame {
     let (doubled, single): (Vec<String>, Vec<String>) = schema
         .iter_names()
         .filter(|name| name.contains("\"\""))
         .map(|name| (name.to_string(), name.replace("\"\"", "\"")))
         .unzip();
     if doubled.is_empty() {
-        return Ok(lf);
+        return lf;
     }
-    Ok(lf.rename(doubled, single, true))
+    lf.rename(doubled, single, true)
 }
 
 /// Lowercase hex SHA-256.
