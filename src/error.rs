@@ -170,7 +170,7 @@ pub enum Error {
     #[error("`{file}`: sheet `{sheet}` is empty (no header, no data rows)")]
     EmptySheet { file: PathBuf, sheet: String },
     /// Two columns of the input share a name.
-    #[error("`{file}`: column `{column}` appears more than once in the header")]
+    #[error("`{file}`: the column name `{column}` appears more than once: rename all but one")]
     DuplicateColumn { file: PathBuf, column: String },
     /// The input cannot be parsed; `at` names the row (and column) where known.
     #[error("`{file}`{at}: {message}")]

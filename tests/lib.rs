@@ -12,3 +12,4 @@ mod hostile;
 mod html;
 mod properties;
 mod reference;
+mod written_elsewhere;

@@ -158,7 +158,12 @@ fn read_table(
         (raw, Vec::new())
     };
     let (raw, decimals) = crate::load::decimals_as_floats(raw, &[])?;
-    let notes: Vec<String> = notes.into_iter().chain(decimals).collect();
+    let (raw, non_finite) = crate::load::non_finite_as_missing(raw, &[])?;
+    let notes: Vec<String> = notes
+        .into_iter()
+        .chain(decimals)
+        .chain(non_finite)
+        .collect();
     let missing = |column: &str, context: &str| Error::MissingColumn {
         file: path.to_path_buf(),
         column: column.to_string(),

@@ -133,17 +133,35 @@ impl Check for Variation {
                 format!("nearly absorbed: {}", nearly.join(", ")),
             ));
         }
+        let unexamined: Vec<&str> = variation
+            .iter()
+            .filter(|v| v.not_computable.is_some())
+            .map(|v| v.variable.as_str())
+            .collect();
         Some(if variation.is_empty() {
             verdict::line(
                 "Absorbed by fixed effects",
                 NotChecked,
                 "no variable besides the keys".into(),
             )
+        } else if unexamined.len() == variation.len() {
+            verdict::line(
+                "Absorbed by fixed effects",
+                NotChecked,
+                format!(
+                    "no variable's variation is computable ({})",
+                    unexamined.join(", ")
+                ),
+            )
         } else if absorption.is_empty() {
+            let left_out = match unexamined.is_empty() {
+                true => String::new(),
+                false => format!("; not computable: {}", unexamined.join(", ")),
+            };
             verdict::line(
                 "Absorbed by fixed effects",
                 Pass,
-                format!("{absorbed} variables absorbed (time-invariant traits or macro series), none nearly"),
+                format!("{absorbed} variables absorbed (time-invariant traits or macro series), none nearly{left_out}"),
             )
         } else {
             worst("Absorbed by fixed effects", absorption)
@@ -194,7 +212,8 @@ fn variation(read: &Figures, r: &Report) -> Section {
 fn variation_blocks(lines: &[VariationLine]) -> Vec<Block> {
     let rows: Vec<Vec<String>> = lines
         .iter()
-        .filter(|v| v.sd_total.is_some())
+        // Numeric variables: those with figures and those without, said why below.
+        .filter(|v| v.sd_total.is_some() || v.not_computable.is_some())
         .map(|v| {
             vec![
                 v.variable.clone(),
@@ -209,6 +228,13 @@ fn variation_blocks(lines: &[VariationLine]) -> Vec<Block> {
         })
         .collect();
     let mut blocks = Vec::new();
+    let missing: Vec<String> = lines
+        .iter()
+        .filter_map(|v| {
+            let why = v.not_computable.as_ref()?;
+            Some(format!("`{}` ({why})", v.variable))
+        })
+        .collect();
     if rows.is_empty() {
         blocks.push(Block::Note("No numeric variables.".into()));
     } else {
@@ -231,6 +257,12 @@ fn variation_blocks(lines: &[VariationLine]) -> Vec<Block> {
              sum of squares / total sum of squares. Flat entities: two or more values, all equal."
                 .into(),
         ));
+    }
+    if !missing.is_empty() {
+        blocks.push(Block::Note(format!(
+            "Not computable (–): {}.",
+            missing.join("; ")
+        )));
     }
     blocks
 }
@@ -294,7 +326,16 @@ fn line(core: &PanelCore, variable: &str, x: &Values, nearly: f64) -> VariationL
     };
     let share = |ss: f64| if m.tss > 0.0 { ss / m.tss } else { 0.0 };
     let (within_share, period_share) = (share(m.wss), share(m.pss));
-    let mut absorbed_by = if n < 2.0 {
+    // Values near the largest floating-point number overflow their squares' sums: the
+    // shares are then not numbers, and would read as no variation at all.
+    let overflow = n >= 2.0 && ![m.tss, m.wss, m.pss].iter().all(|s| s.is_finite());
+    let not_computable = match m.n {
+        0 => Some("no values".to_string()),
+        1 => Some("a single value".to_string()),
+        _ if overflow => Some("values too large to square in floating-point numbers".to_string()),
+        _ => None,
+    };
+    let mut absorbed_by = if not_computable.is_some() {
         None
     } else if within_share < ABSORBED_SHARE {
         Some(Absorbed::Entity)
@@ -304,7 +345,7 @@ fn line(core: &PanelCore, variable: &str, x: &Values, nearly: f64) -> VariationL
         None
     };
     let mut two_way_share = None;
-    if n >= 2.0 && absorbed_by.is_none() {
+    if not_computable.is_none() && absorbed_by.is_none() {
         let s = share(core.two_way_from(x, &sums));
         two_way_share = finite(s);
         if s < ABSORBED_SHARE {
@@ -318,11 +359,16 @@ fn line(core: &PanelCore, variable: &str, x: &Values, nearly: f64) -> VariationL
         sd_total: finite(sd(m.tss)),
         sd_between: finite(m.sd_between),
         sd_within: finite(sd(m.wss)),
-        within_share: finite(if n > 0.0 { within_share } else { f64::NAN }),
+        within_share: finite(if n > 0.0 && !overflow {
+            within_share
+        } else {
+            f64::NAN
+        }),
         two_way_share,
         zero_within_entities: m.flat,
         absorbed_by,
-        nearly_absorbed: n >= 2.0 && absorbed_by.is_none() && within_share < nearly,
+        nearly_absorbed: not_computable.is_none() && absorbed_by.is_none() && within_share < nearly,
+        not_computable,
     }
 }
 
@@ -372,6 +418,7 @@ pub(super) fn categorical(ctx: &Context) -> Result<Vec<VariationLine>> {
             zero_within_entities: 0,
             absorbed_by,
             nearly_absorbed: false,
+            not_computable: None,
         })
     };
     let mut lines = Vec::with_capacity(others.len());

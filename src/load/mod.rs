@@ -11,10 +11,13 @@ use crate::{Error, Result};
 
 mod budget;
 mod contiguous;
+mod finite;
+mod footer;
 mod markers;
 mod period;
 
 use budget::check_budget;
+pub(crate) use finite::non_finite_as_missing;
 pub(crate) use markers::numbers_with_markers;
 use period::{check_period, check_window, fiscal_year, period_as_int};
 
@@ -229,10 +232,12 @@ pub fn load(
     }
     let df = df.lazy().with_columns(casts).collect()?;
     let (df, decimals) = decimals_as_floats(df, &[&cfg.entity, &cfg.period])?;
+    let (df, non_finite) = non_finite_as_missing(df, &[&cfg.entity, &cfg.period])?;
     check_window(&df, cfg)?;
     let (sheet, mut notes) = sheet.map_or((None, Vec::new()), |s| (Some(s.name), s.notes));
     notes.extend(marked);
     notes.extend(decimals);
+    notes.extend(non_finite);
     Ok(Loaded {
         rows: df.height() as u64,
         df,
@@ -441,6 +446,9 @@ fn scan(
         return Err(Error::NoInput {
             file: input.to_path_buf(),
         });
+    }
+    if format == InputFormat::Parquet {
+        footer::check(input)?;
     }
     let pl_path = PlRefPath::try_from_path(source)?;
     let lf = match format {

@@ -398,7 +398,11 @@ fn within_chart(r: &Report) -> Markup {
         .filter(|v| v.within_share.is_some())
         .collect();
     if vars.is_empty() {
-        return empty("chart-within", caption, "No numeric variables.");
+        return empty(
+            "chart-within",
+            caption,
+            "No numeric variable with a within share.",
+        );
     }
     let (left, top, w) = (170.0, 24.0, 300.0);
     let bh = (360.0 / vars.len() as f64).clamp(8.0, 14.0);

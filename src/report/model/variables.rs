@@ -59,6 +59,11 @@ pub struct VariationLine {
     /// Within share below the `nearly_absorbed` threshold: fixed-effects estimates will be
     /// imprecise.
     pub nearly_absorbed: bool,
+    /// Why a numeric variable's SDs and shares are missing (too few values, sums too large
+    /// for floating-point numbers); absent from the JSON when they are computed, and for
+    /// text variables.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub not_computable: Option<String>,
 }
 
 /// The missing-values check's figures.

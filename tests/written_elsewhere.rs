@@ -1,0 +1,203 @@
+//! Numbers and files as other programs write them: numpy's NaN and infinities in Parquet and
+//! CSV, values near the limits of floating-point numbers, and Parquet columns the engine
+//! cannot hold. Each was read silently wrong, or crashed the run, before.
+
+use std::path::Path;
+use std::process::Command;
+
+use crate::util::{reference_python, Workdir};
+
+/// Run `code` with the reference Python (pyarrow, numpy) in `dir`.
+fn python(dir: &Path, code: &str) {
+    let out = Command::new(reference_python())
+        .args(["-c", code])
+        .current_dir(dir)
+        .output()
+        .expect("run the reference Python");
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+}
+
+fn line<'a>(report: &'a serde_json::Value, variable: &str) -> &'a serde_json::Value {
+    report["variation"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|l| l["variable"] == variable)
+        .unwrap_or_else(|| panic!("no variation line for {variable}: {report}"))
+}
+
+fn verdict<'a>(report: &'a serde_json::Value, check: &str) -> &'a serde_json::Value {
+    report["verdict"]["checks"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|c| c["check"] == check)
+        .unwrap()
+}
+
+#[test]
+fn nan_and_infinities_are_missing_values() {
+    // numpy writes NaN into Parquet as a value, not as missing (pyarrow keeps it from a numpy
+    // array); a CSV reader reads `NaN` and `inf` as such numbers. Each turned every sum they
+    // entered into NaN, and the variable read as "no change within any entity". Worked by
+    // hand: the finite values 1, 3 | 5, 6 | 7, 8 of firms A, B, C have mean 30 / 6 = 5,
+    // entity means 2, 5.5, 7.5, within sum of squares 1 + 1 + 4 × 0.25 = 3 and total sum of
+    // squares 16 + 4 + 0 + 1 + 4 + 9 = 34: within share 3 / 34.
+    let w = Workdir::new();
+    python(
+        w.dir.path(),
+        "import numpy as np, pyarrow as pa, pyarrow.parquet as pq\n\
+         x = np.array([1, np.nan, 3, np.inf, 5, 6, 7, 8, -np.inf])\n\
+         pq.write_table(pa.table({'firm': list('AAABBBCCC'), 'year': [2001, 2002, 2003] * 3, \
+         'x': pa.array(x)}), 'numpy.parquet')",
+    );
+    w.write(
+        "nan.csv",
+        "firm,year,x\nA,2001,1\nA,2002,NaN\nA,2003,3\nB,2001,inf\nB,2002,5\nB,2003,6\n\
+         C,2001,7\nC,2002,8\nC,2003,-inf\n",
+    );
+    for file in ["numpy.parquet", "nan.csv"] {
+        let run = w.ok(&[
+            "audit", file, "--entity", "firm", "--period", "year", "--format", "json",
+        ]);
+        let report: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+        let x = line(&report, "x");
+        assert_eq!(x["n"], 6, "{file}: {x}");
+        assert!((x["mean"].as_f64().unwrap() - 5.0).abs() < 1e-12, "{x}");
+        assert!(
+            (x["within_share"].as_f64().unwrap() - 3.0 / 34.0).abs() < 1e-12,
+            "{file}: {x}"
+        );
+        assert_ne!(x["absorbed_by"], "entity", "{file}: {x}");
+        assert_eq!(
+            report["input"]["notes"][0],
+            "column `x`: 3 cells not a finite number (NaN 1, infinity 2) read as missing",
+            "{file}"
+        );
+        let missing = report["missing"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|l| l["variable"] == "x")
+            .unwrap();
+        assert_eq!(missing["missing"], 3, "{file}: {missing}");
+    }
+}
+
+#[test]
+fn variation_that_cannot_be_computed_says_why() {
+    // Values near 1e200 square beyond the largest floating-point number, and a column with no
+    // value has no variation to measure: the variation table left both out without a word
+    // (and said "No numeric variables" when they were all there was), and the overflowed
+    // shares read as absorbed. Now they are listed, not computable, with the reason, and the
+    // verdict's line names them; `y` (worked by hand below) is judged as before.
+    use polars::prelude::*;
+    let w = Workdir::new();
+    let mut df = df!(
+        "firm" => ["A", "A", "B", "B"],
+        "year" => [2001i64, 2002, 2001, 2002],
+        "huge" => [1e200, -1e200, 3e200, -2e200],
+        "empty" => [None::<f64>, None, None, None],
+        "y" => [1.0, 2.0, 4.0, 8.0],
+    )
+    .unwrap();
+    let f = std::fs::File::create(w.path("limits.parquet")).unwrap();
+    ParquetWriter::new(f).finish(&mut df).unwrap();
+    let run = w.ok(&[
+        "audit",
+        "limits.parquet",
+        "--entity",
+        "firm",
+        "--period",
+        "year",
+        "--format",
+        "json",
+    ]);
+    let report: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+    let huge = line(&report, "huge");
+    assert_eq!(
+        huge["not_computable"], "values too large to square in floating-point numbers",
+        "{huge}"
+    );
+    assert!(huge["sd_total"].is_null() && huge["within_share"].is_null());
+    assert!(huge["absorbed_by"].is_null(), "{huge}");
+    assert_eq!(line(&report, "empty")["not_computable"], "no values");
+    let y = line(&report, "y");
+    assert!(y.get("not_computable").is_none(), "{y}");
+    // Entity means 1.5 and 6: within SS 0.25 × 2 + 4 × 2 = 8.5; mean 3.75, total SS
+    // 7.5625 + 3.0625 + 0.0625 + 18.0625 = 28.75.
+    assert!((y["within_share"].as_f64().unwrap() - 8.5 / 28.75).abs() < 1e-12);
+    let absorbed = verdict(&report, "Absorbed by fixed effects");
+    assert_eq!(absorbed["status"], "pass", "{absorbed}");
+    assert!(
+        absorbed["reason"]
+            .as_str()
+            .unwrap()
+            .ends_with("not computable: huge, empty"),
+        "{absorbed}"
+    );
+    let md = w.ok(&[
+        "audit",
+        "limits.parquet",
+        "--entity",
+        "firm",
+        "--period",
+        "year",
+        "--format",
+        "md",
+    ]);
+    assert!(
+        md.stdout.contains(
+            "Not computable (–): `huge` (values too large to square in floating-point \
+             numbers); `empty` (no values)."
+        ),
+        "{}",
+        md.stdout
+    );
+    assert!(md.stdout.contains("| huge | 4 |"), "{}", md.stdout);
+}
+
+#[test]
+fn parquet_columns_the_engine_cannot_hold_are_named() {
+    // A half-precision column crashed the run inside the engine's type conversion (exit 3, "a
+    // bug"); two columns of one name stopped it with the engine's own words. Both now stop
+    // with one line naming the file and the column, before anything is written.
+    let w = Workdir::new();
+    python(
+        w.dir.path(),
+        "import numpy as np, pyarrow as pa, pyarrow.parquet as pq\n\
+         firm, year = pa.array(['A', 'A', 'B']), pa.array([2001, 2002, 2001])\n\
+         x = pa.array(np.array([1, 2, 3], dtype=np.float16))\n\
+         pq.write_table(pa.table({'firm': firm, 'year': year, 'x': x}), 'half.parquet')\n\
+         y = pa.array([1.0, 2.0, 3.0])\n\
+         pq.write_table(pa.Table.from_arrays([firm, year, y, y], names=['firm', 'year', 'y', \
+         'y']), 'twice.parquet')",
+    );
+    for (file, want) in [
+        (
+            "half.parquet",
+            "half-precision (16-bit) floating-point numbers",
+        ),
+        (
+            "twice.parquet",
+            "the column name `y` appears more than once",
+        ),
+    ] {
+        for cmd in ["audit", "build"] {
+            let mut args = vec![cmd, file, "--entity", "firm", "--period", "year"];
+            if cmd == "build" {
+                args.extend(["--out", "never"]);
+            }
+            let line = w.fails(&args, want);
+            assert!(line.contains(&format!("`{file}`")), "{line}");
+            if file == "half.parquet" {
+                assert!(line.contains("column `x`"), "{line}");
+            }
+        }
+        assert!(!w.path("never").exists());
+    }
+}
