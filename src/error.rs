@@ -219,6 +219,26 @@ pub(crate) fn near_name<'a>(
     })
 }
 
+/// A hint for a CSV file whose header reads as one column holding `wanted` between other
+/// separators (`firm;year;x` read with commas): the separator it seems to use.
+pub(crate) fn other_delimiter<'a>(
+    wanted: &str,
+    names: impl IntoIterator<Item = &'a str>,
+) -> Option<String> {
+    let mut names = names.into_iter();
+    let (only, None) = (names.next()?, names.next()) else {
+        return None;
+    };
+    let (_, written) = [(';', ";"), ('\t', "\\t"), ('|', "|")]
+        .into_iter()
+        .find(|(c, _)| only.split(*c).any(|part| part.trim() == wanted))?;
+    Some(format!(
+        "the header reads as one column, `{}`: its fields seem separated by `{written}` (give \
+         `--delimiter '{written}'`)",
+        only.escape_debug()
+    ))
+}
+
 pub(crate) fn one_line(message: &str) -> String {
     message
         .lines()

@@ -1227,7 +1227,7 @@ fn numbers_marked_missing_by_other_programs_are_numbers() {
     let notes = report["input"]["notes"].as_array().unwrap();
     assert_eq!(notes.len(), 2, "{notes:?}");
     assert!(
-        notes[0].as_str().unwrap().contains("`sales`: 1 cells"),
+        notes[0].as_str().unwrap().contains("`sales`: 1 cell "),
         "{notes:?}"
     );
     assert!(
@@ -1274,7 +1274,7 @@ fn numbers_written_for_people_are_numbers() {
     assert!(notes[1]
         .as_str()
         .unwrap()
-        .contains("1 cells in parentheses taken as negative"));
+        .contains("1 cell in parentheses taken as negative"));
     // A percent sign keeps a column text, and the note names the cell that does.
     let (report, _) = audit_csv("firm,year,margin\nA,2001,12\nA,2002,13%\nB,2001,14\nB,2002,15\n");
     assert_eq!(

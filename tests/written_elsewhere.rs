@@ -201,3 +201,108 @@ fn parquet_columns_the_engine_cannot_hold_are_named() {
         assert!(!w.path("never").exists());
     }
 }
+
+#[test]
+fn numbers_padded_or_too_wide_for_integers_are_numbers() {
+    // A fixed-width export pads numbers with spaces (` 5`), some programs write a plus sign,
+    // and a 20-digit whole number does not fit 64-bit integers. The first two kept the column
+    // as text, and the variation table showed it with no mean, unexplained; the third
+    // stopped the read with the engine's message, wherever in the file it stood. Worked by
+    // hand: `x` is 5, 2.5 and 3 (mean 3.5); `big` holds 12345678901234567890, 2 and 3, whose
+    // mean as floats is 12345678901234567895 / 3.
+    let w = Workdir::new();
+    for (name, big) in [("first.csv", 0), ("last.csv", 2)] {
+        let mut bigs = ["2", "3", "4"];
+        bigs[big] = "12345678901234567890";
+        w.write(
+            name,
+            &format!(
+                "firm,year,x,big\nA,2001,   5,{}\nA,2002,+2.5,{}\nB,2001,3,{}\n",
+                bigs[0], bigs[1], bigs[2]
+            ),
+        );
+        let run = w.ok(&[
+            "audit", name, "--entity", "firm", "--period", "year", "--format", "json",
+        ]);
+        let report: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+        let x = line(&report, "x");
+        assert_eq!(x["n"], 3, "{name}: {x}");
+        assert!((x["mean"].as_f64().unwrap() - 3.5).abs() < 1e-12, "{x}");
+        let others: f64 = bigs
+            .iter()
+            .filter(|b| b.len() == 1)
+            .map(|b| b.parse::<f64>().unwrap())
+            .sum();
+        let mean = (12_345_678_901_234_567_890.0 + others) / 3.0;
+        let got = line(&report, "big")["mean"].as_f64().unwrap();
+        assert!(
+            (got - mean).abs() <= 1e-15 * mean,
+            "{name}: {got} against {mean}"
+        );
+        let notes: Vec<&str> = report["input"]["notes"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|n| n.as_str().unwrap())
+            .collect();
+        assert_eq!(
+            notes,
+            [
+                "column `x`: 2 cells with spaces around the number or a plus sign (the first \
+                 `   5`), the column as numbers",
+                "column `big`: 1 cell with a whole number beyond the 64-bit integers (the first \
+                 `12345678901234567890`) read as floating-point numbers, exact to about 15 \
+                 significant digits, the column as numbers",
+            ],
+            "{name}"
+        );
+    }
+}
+
+#[test]
+fn csv_files_in_another_shape_say_what_they_seem_to_be() {
+    // A file separated by semicolons or tabs read with commas has one column named by its
+    // whole header, and a UTF-16 file ("Unicode text" from a spreadsheet) has a header of
+    // bytes the UTF-8 reader does not match: both stopped with "no column `firm`" alone.
+    let w = Workdir::new();
+    w.write("semi.csv", "firm;year;x\nA;2001;1\nB;2001;2\n");
+    w.write("tabs.csv", "firm\tyear\tx\nA\t2001\t1\nB\t2001\t2\n");
+    let line = w.fails(
+        &["audit", "semi.csv", "--entity", "firm", "--period", "year"],
+        "no column `firm` (the entity column; the header reads as one column, `firm;year;x`: \
+         its fields seem separated by `;` (give `--delimiter ';'`))",
+    );
+    assert!(line.contains("`semi.csv`"), "{line}");
+    w.fails(
+        &["audit", "tabs.csv", "--entity", "firm", "--period", "year"],
+        "its fields seem separated by `\\t` (give `--delimiter '\\t'`)",
+    );
+    // What the hint says works.
+    w.ok(&[
+        "audit",
+        "tabs.csv",
+        "--entity",
+        "firm",
+        "--period",
+        "year",
+        "--delimiter",
+        "\\t",
+    ]);
+    let utf16: Vec<u8> = [0xff, 0xfe]
+        .into_iter()
+        .chain(
+            "firm,year,x\r\nA,2001,1\r\n"
+                .encode_utf16()
+                .flat_map(u16::to_le_bytes),
+        )
+        .collect();
+    std::fs::write(w.path("unicode.csv"), utf16).unwrap();
+    for cmd in ["audit", "build"] {
+        let mut args = vec![cmd, "unicode.csv", "--entity", "firm", "--period", "year"];
+        if cmd == "build" {
+            args.extend(["--out", "never"]);
+        }
+        w.fails(&args, "`unicode.csv`: the file is UTF-16 text");
+    }
+    assert!(!w.path("never").exists());
+}

@@ -75,12 +75,9 @@ pub(crate) fn non_finite_as_missing(
             .filter(|(n, _)| *n > 0)
             .map(|(n, kind)| format!("{kind} {n}"))
             .collect();
-        let cells = match nan + inf {
-            1 => "1 cell".to_string(),
-            n => format!("{n} cells"),
-        };
         notes.push(format!(
-            "column `{name}`: {cells} not a finite number ({}) read as missing",
+            "column `{name}`: {} not a finite number ({}) read as missing",
+            super::markers::how_many_cells(nan + inf),
             kinds.join(", ")
         ));
         let c = col(name.as_str());

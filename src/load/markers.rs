@@ -46,11 +46,17 @@ enum Number {
     Decimal(f64),
 }
 
-/// How a number was written: as the reader reads numbers, with thousands separators
-/// (`1,234.5`), or in parentheses for a negative one (`(1,234)`, accounts' way).
+/// How a number was written: as the reader reads numbers, with spaces around it or a plus
+/// sign (` 5`, `+5`: fixed-width exports pad numbers, and the reader then keeps the whole
+/// column as text), with thousands separators (`1,234.5`), or in parentheses for a negative
+/// one (`(1,234)`, accounts' way).
 #[derive(Clone, Copy, PartialEq)]
 enum Written {
     Plain,
+    Padded,
+    /// A whole number beyond the 64-bit integers (a 20-digit code or amount), which stops the
+    /// reader: read as a float.
+    Wide,
     Grouped,
     Parenthesized,
 }
@@ -60,6 +66,22 @@ enum Cell {
     Missing,
     Marker,
     Number(Number, Written),
+}
+
+/// `value` as a note shows it: at most 40 characters.
+fn shortened(value: &str) -> String {
+    match value.char_indices().nth(40) {
+        Some((end, _)) => format!("{}…", &value[..end]),
+        None => value.to_string(),
+    }
+}
+
+/// "1 cell", "2 cells".
+pub(super) fn how_many_cells(n: usize) -> String {
+    match n {
+        1 => "1 cell".into(),
+        n => format!("{n} cells"),
+    }
 }
 
 /// What `text` is: a marker, a number and how it is written, or (None) neither. With
@@ -73,7 +95,16 @@ fn cell(text: Option<&str>, decimal_comma: bool) -> Option<Cell> {
         return Some(Cell::Marker);
     }
     if let Some(n) = plain(t, decimal_comma) {
-        return Some(Cell::Number(n, Written::Plain));
+        let digits = t.strip_prefix(['-', '+']).unwrap_or(t);
+        let written =
+            if matches!(n, Number::Decimal(_)) && digits.bytes().all(|b| b.is_ascii_digit()) {
+                Written::Wide
+            } else if t.len() == text.len() && !t.starts_with('+') {
+                Written::Plain
+            } else {
+                Written::Padded
+            };
+        return Some(Cell::Number(n, written));
     }
     if let Some(n) = grouped(t, decimal_comma) {
         return Some(Cell::Number(n, Written::Grouped));
@@ -187,6 +218,7 @@ pub(crate) fn numbers_with_markers(
                         .map(|v| (i + 1, v))
                 });
                 if let Some((row, value)) = stray {
+                    let value = shortened(value);
                     notes.push(format!(
                         "column `{name}` stays text: most of its first values are numbers, but \
                          data row {row} holds `{value}`, which is not one"
@@ -206,12 +238,16 @@ pub(crate) fn numbers_with_markers(
                 .iter()
                 .zip(&cells)
                 .filter(|(_, c)| matches!(c, Cell::Number(_, w) if *w == way));
-            let first = found.next().and_then(|(v, _)| v).map(str::trim);
+            let first = found.next().and_then(|(v, _)| v);
             (usize::from(first.is_some()) + found.count(), first)
         };
+        let (padded, first_padded) = written(Written::Padded);
+        let (wide, first_wide) = written(Written::Wide);
         let (grouped, first_grouped) = written(Written::Grouped);
         let (bracketed, first_bracketed) = written(Written::Parenthesized);
-        if numbers == 0 || markers + grouped + bracketed == 0 {
+        // A text column of plain numbers only comes of a read that took every column as
+        // text (after one that a wide number stopped): numbers, as the reader reads them.
+        if numbers == 0 {
             continue;
         }
         let mut parts = Vec::new();
@@ -229,24 +265,45 @@ pub(crate) fn numbers_with_markers(
             }
             let listed: Vec<String> = seen.iter().map(|(s, n)| format!("`{s}` {n}")).collect();
             parts.push(format!(
-                "{markers} cells marking a missing number ({}) read as missing",
+                "{} marking a missing number ({}) read as missing",
+                how_many_cells(markers),
                 listed.join(", ")
+            ));
+        }
+        if let Some(first) = first_padded {
+            parts.push(format!(
+                "{} with spaces around the number or a plus sign (the first `{first}`)",
+                how_many_cells(padded)
+            ));
+        }
+        if let Some(first) = first_wide {
+            parts.push(format!(
+                "{} with a whole number beyond the 64-bit integers (the first `{}`) read as \
+                 floating-point numbers, exact to about 15 significant digits",
+                how_many_cells(wide),
+                first.trim()
             ));
         }
         if let Some(first) = first_grouped {
             parts.push(format!(
-                "{grouped} cells with thousands separators (the first `{first}`)"
+                "{} with thousands separators (the first `{}`)",
+                how_many_cells(grouped),
+                first.trim()
             ));
         }
         if let Some(first) = first_bracketed {
             parts.push(format!(
-                "{bracketed} cells in parentheses taken as negative (the first `{first}`)"
+                "{} in parentheses taken as negative (the first `{}`)",
+                how_many_cells(bracketed),
+                first.trim()
             ));
         }
-        notes.push(format!(
-            "column `{name}`: {}, the column as numbers",
-            parts.join("; ")
-        ));
+        if !parts.is_empty() {
+            notes.push(format!(
+                "column `{name}`: {}, the column as numbers",
+                parts.join("; ")
+            ));
+        }
         let whole = !cells
             .iter()
             .any(|c| matches!(c, Cell::Number(Number::Decimal(_), _)));
@@ -323,7 +380,7 @@ mod tests {
             [
                 "column `x`: 3 cells marking a missing number (`NA` 1, `#N/A` 1, `nan` 1) read \
                  as missing, the column as numbers",
-                "column `n`: 1 cells marking a missing number (`.` 1) read as missing, the \
+                "column `n`: 1 cell marking a missing number (`.` 1) read as missing, the \
                  column as numbers",
                 "column `d` stays text: most of its first values are numbers, but data row 2 \
                  holds `-`, which is not one",
@@ -365,7 +422,7 @@ mod tests {
             [
                 "column `s`: 3 cells with thousands separators (the first `1,234.5`), the column \
                  as numbers",
-                "column `c`: 1 cells marking a missing number (`NA` 1) read as missing; 2 cells \
+                "column `c`: 1 cell marking a missing number (`NA` 1) read as missing; 2 cells \
                  in parentheses taken as negative (the first `(12)`), the column as numbers",
                 "column `g` stays text: most of its first values are numbers, but data row 1 \
                  holds `12,34`, which is not one",
@@ -381,5 +438,33 @@ mod tests {
         let (df, _) = numbers_with_markers(df, &[], true).unwrap();
         assert_eq!(floats(&df, "x"), [Some(1234.5), Some(2.0)]);
         assert_eq!(floats(&df, "y"), [Some(1.234), None]);
+    }
+
+    /// Worked by hand: numbers padded with spaces, as fixed-width exports write them, or with
+    /// a plus sign keep a column text in the reader; every other cell is plain. `w` (whole
+    /// numbers, one padded) stays integers, `f` (a padded decimal) floats; `t`, whose text
+    /// is padded too, stays text.
+    #[test]
+    fn numbers_with_spaces_or_a_plus_sign_are_numbers() {
+        let df = df!(
+            "w" => ["1", " 2", "3"],
+            "f" => ["+5", "2.5 ", "NA"],
+            "t" => [" Mills", "Docks", "1"],
+        )
+        .unwrap();
+        let (df, notes) = numbers_with_markers(df, &[], false).unwrap();
+        assert_eq!(wholes(&df, "w"), [Some(1), Some(2), Some(3)]);
+        assert_eq!(floats(&df, "f"), [Some(5.0), Some(2.5), None]);
+        still_text(&df, &["t"]);
+        assert_eq!(
+            notes,
+            [
+                "column `w`: 1 cell with spaces around the number or a plus sign (the first \
+                 ` 2`), the column as numbers",
+                "column `f`: 1 cell marking a missing number (`NA` 1) read as missing; 2 cells \
+                 with spaces around the number or a plus sign (the first `+5`), the column as \
+                 numbers",
+            ]
+        );
     }
 }

@@ -138,7 +138,10 @@ pub fn load(
     let missing = |column: &str, context: String| Error::MissingColumn {
         file: cfg.path.clone(),
         column: column.to_string(),
-        context: match crate::error::near_name(column, schema.iter_names().map(|n| n.as_str())) {
+        context: match crate::error::near_name(column, schema.iter_names().map(|n| n.as_str()))
+            .or_else(|| {
+                crate::error::other_delimiter(column, schema.iter_names().map(|n| n.as_str()))
+            }) {
             Some(near) => format!("{context}; {near}"),
             None => context,
         },
@@ -185,9 +188,18 @@ pub fn load(
     };
     let df = match read {
         Ok(df) => df,
+        // And if that fails too (a whole number too wide for 64 bits stops the reader
+        // however the types are guessed), every column as text: the marker pass below reads
+        // the numbers back and names what was unusual.
         Err(_) if cfg.format == InputFormat::Csv => scan(None)?
             .collect_schema()
             .and_then(|every_row| contiguous::read_csv(source, &every_row, &cfg.csv, ROW))
+            .or_else(|e| {
+                scan(Some(0))
+                    .map_err(|_| e)?
+                    .collect_schema()
+                    .and_then(|text| contiguous::read_csv(source, &text, &cfg.csv, ROW))
+            })
             .map_err(|e| unreadable(&cfg.path, cfg.format, cfg.csv.delimiter, e))?,
         Err(e) => return Err(unreadable(&cfg.path, cfg.format, cfg.csv.delimiter, e)),
     };
@@ -447,8 +459,10 @@ fn scan(
             file: input.to_path_buf(),
         });
     }
-    if format == InputFormat::Parquet {
-        footer::check(input)?;
+    match format {
+        InputFormat::Parquet => footer::check(input)?,
+        InputFormat::Csv => not_utf16(source, input)?,
+        InputFormat::Spreadsheet => {}
     }
     let pl_path = PlRefPath::try_from_path(source)?;
     let lf = match format {
@@ -483,6 +497,25 @@ fn scan(
         InputFormat::Spreadsheet => crate::sheet::read(input, None)?.df.lazy(),
     };
     Ok(lf)
+}
+
+/// A CSV file (at `source`, named `input`) in UTF-16, as spreadsheets save "Unicode text",
+/// is refused by its byte-order mark: read as UTF-8 its header matched no column name.
+fn not_utf16(source: &Path, input: &Path) -> Result<()> {
+    use std::io::Read;
+    let mut start = [0u8; 2];
+    let mut file = std::fs::File::open(source).map_err(Error::io(input))?;
+    let read = file.read(&mut start).map_err(Error::io(input))?;
+    if read == 2 && matches!(start, [0xff, 0xfe] | [0xfe, 0xff]) {
+        return Err(Error::Unreadable {
+            file: input.to_path_buf(),
+            at: String::new(),
+            message: "the file is UTF-16 text (what spreadsheets save as \"Unicode text\"): \
+                      save it as CSV in UTF-8"
+                .into(),
+        });
+    }
+    Ok(())
 }
 
 /// `lf` (a CSV scan whose columns `schema` names) with each column named as its header
