@@ -26,7 +26,6 @@ pub mod pipeline;
 pub mod progress;
 pub mod report;
 pub mod rules;
-pub mod sheet;
 
 use std::ffi::OsString;
 

@@ -207,7 +207,7 @@ fn awkward_spreadsheets_are_refused_or_reported() {
     let text: Vec<&str> = notes.iter().map(|n| n.as_str().unwrap()).collect();
     assert!(
         text.iter()
-            .any(|n| n.contains("`assets`: 1 text cells that look like numbers")),
+            .any(|n| n.contains("`assets`: 1 cell of text that reads as a number")),
         "{text:?}"
     );
     assert!(

@@ -306,3 +306,42 @@ fn csv_files_in_another_shape_say_what_they_seem_to_be() {
     }
     assert!(!w.path("never").exists());
 }
+
+#[test]
+fn spreadsheet_ids_stay_as_typed_and_missing_markers_are_missing() {
+    // A firm id typed as a number (1001) and one typed as text with a leading zero (`01001`)
+    // were both read as the number 1001: two firms became one, its first years conflicting
+    // keys. And a column of numbers with `n/a` typed for a missing one was read as text,
+    // which every check passed by (a CSV file's column of the same cells is numbers). Worked
+    // by hand: entities 1001 and 01001, no conflicting key; `x` is 1 and 4, mean 2.5.
+    let w = Workdir::new();
+    python(
+        w.dir.path(),
+        "import openpyxl\n\
+         wb = openpyxl.Workbook()\n\
+         for row in [['firm', 'year', 'x'], [1001, 2001, 1], [1001, 2002, 'n/a'], \
+         ['01001', 2001, 4]]:\n    wb.active.append(row)\n\
+         wb.save('ids.xlsx')",
+    );
+    let run = w.ok(&[
+        "audit", "ids.xlsx", "--entity", "firm", "--period", "year", "--format", "json",
+    ]);
+    let report: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+    assert_eq!(report["panel"]["entities"], 2, "{}", report["panel"]);
+    assert_eq!(report["keys"]["conflicting_keys"], 0, "{}", report["keys"]);
+    let x = line(&report, "x");
+    assert_eq!(x["n"], 2, "{x}");
+    assert!((x["mean"].as_f64().unwrap() - 2.5).abs() < 1e-12, "{x}");
+    assert_eq!(
+        report["input"]["notes"][0],
+        "column `x`: 1 cell marking a missing number (`n/a` 1) read as missing"
+    );
+    w.ok(&[
+        "build", "ids.xlsx", "--entity", "firm", "--period", "year", "--out", "b",
+    ]);
+    let csv = std::fs::read_to_string(w.path("b/panel.csv")).unwrap();
+    assert!(
+        csv.contains(",01001,2001,") && csv.contains(",1001,2001,"),
+        "{csv}"
+    );
+}

@@ -68,6 +68,12 @@ enum Cell {
     Number(Number, Written),
 }
 
+/// Whether `text` is a marker for a missing number (`NA`, `#N/A`, `.`, ...).
+pub(super) fn is_marker(text: &str) -> bool {
+    let t = text.trim();
+    MARKERS.iter().any(|m| t.eq_ignore_ascii_case(m))
+}
+
 /// `value` as a note shows it: at most 40 characters.
 fn shortened(value: &str) -> String {
     match value.char_indices().nth(40) {

@@ -15,6 +15,7 @@ mod finite;
 mod footer;
 mod markers;
 mod period;
+mod sheet;
 
 use budget::check_budget;
 pub(crate) use finite::non_finite_as_missing;
@@ -51,7 +52,7 @@ pub fn read_raw(
     text: &[&str],
 ) -> Result<DataFrame> {
     if format == InputFormat::Spreadsheet {
-        return Ok(crate::sheet::read(path, sheet)?.df);
+        return Ok(sheet::read(path, sheet, text)?.df);
     }
     let utf8 = match (format, csv.encoding) {
         (InputFormat::Csv, Encoding::Windows1252) => Some(Transcoded::new(path)?),
@@ -92,7 +93,7 @@ pub fn load(
     let entity = [cfg.entity.as_str()];
     let scan = |infer| scan(source, &cfg.path, cfg.format, infer, &cfg.csv, &entity);
     let sheet = match cfg.format {
-        InputFormat::Spreadsheet => Some(crate::sheet::read(&cfg.path, cfg.sheet.as_deref())?),
+        InputFormat::Spreadsheet => Some(sheet::read(&cfg.path, cfg.sheet.as_deref(), &entity)?),
         _ => None,
     };
     let mut lf = match &sheet {
@@ -494,7 +495,7 @@ fn scan(
         }
         InputFormat::Parquet => LazyFrame::scan_parquet(pl_path, ScanArgsParquet::default())?,
         // load() reads spreadsheets itself, with the chosen sheet; the first sheet here.
-        InputFormat::Spreadsheet => crate::sheet::read(input, None)?.df.lazy(),
+        InputFormat::Spreadsheet => sheet::read(input, None, text)?.df.lazy(),
     };
     Ok(lf)
 }

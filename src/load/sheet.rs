@@ -3,7 +3,10 @@
 //! (whatever their display format: thousands separators, percentages and decimals are only
 //! formatting), a date cell becomes its date as text `YYYY-MM-DD`, a column with any text
 //! becomes text; text cells that look like numbers in a
-//! column of numbers are read as numbers and reported. Merged cells are refused.
+//! column of numbers are read as numbers and reported, and so are text cells holding a marker
+//! for a missing number (`n/a`, `NA`, `.`: read as missing, as in a CSV file). The columns
+//! named as text (the entity) are text whatever their cells: a firm id `01001` typed as text
+//! and `1001` typed as a number stay two ids. Merged cells are refused.
 
 use std::path::Path;
 
@@ -63,6 +66,8 @@ enum Cell {
     Missing,
     Number(f64),
     NumberLike(f64),
+    /// Text marking a missing number (`n/a`).
+    Marker,
     Text(String),
 }
 
@@ -78,6 +83,8 @@ fn cell(d: &Data) -> Cell {
             let t = s.trim();
             if t.is_empty() {
                 Cell::Missing
+            } else if super::markers::is_marker(t) {
+                Cell::Marker
             } else {
                 match t.parse::<f64>() {
                     Ok(x) if x.is_finite() => Cell::NumberLike(x),
@@ -88,8 +95,20 @@ fn cell(d: &Data) -> Cell {
     }
 }
 
-/// Read `sheet` (or the first sheet) of the workbook at `path`.
-pub fn read(path: &Path, sheet: Option<&str>) -> Result<Sheet> {
+/// The cell `d` as text, as the sheet shows it (a whole number without a decimal point).
+fn as_text(d: &Data) -> Option<String> {
+    match d {
+        Data::Empty | Data::Error(_) => None,
+        Data::Float(f) if f.fract() == 0.0 && f.abs() < 9.0e15 => Some(format!("{}", *f as i64)),
+        Data::String(s) if s.trim().is_empty() => None,
+        Data::DateTime(d) if d.is_datetime() => Some(iso_date(d.as_f64())),
+        other => Some(other.to_string()),
+    }
+}
+
+/// Read `sheet` (or the first sheet) of the workbook at `path`; the columns named in `text`
+/// as text.
+pub fn read(path: &Path, sheet: Option<&str>, text: &[&str]) -> Result<Sheet> {
     if !path.is_file() {
         return Err(Error::NoInput {
             file: path.to_path_buf(),
@@ -173,6 +192,12 @@ pub fn read(path: &Path, sheet: Option<&str>) -> Result<Sheet> {
     let mut notes = Vec::new();
     let mut columns = Vec::with_capacity(header.len());
     for (j, name_j) in header.iter().enumerate() {
+        if text.contains(&name_j.as_str()) {
+            let values: Vec<Option<String>> =
+                body.iter().map(|r| r.get(j).and_then(as_text)).collect();
+            columns.push(Column::new(name_j.as_str().into(), values));
+            continue;
+        }
         let cells: Vec<Cell> = body
             .iter()
             .map(|r| r.get(j).map_or(Cell::Missing, cell))
@@ -183,7 +208,8 @@ pub fn read(path: &Path, sheet: Option<&str>) -> Result<Sheet> {
             .count();
         if errors > 0 {
             notes.push(format!(
-                "column `{name_j}`: {errors} cells hold a spreadsheet error (such as #DIV/0!) and were read as missing"
+                "column `{name_j}`: {} with a spreadsheet error (such as #DIV/0!) read as missing",
+                super::markers::how_many_cells(errors)
             ));
         }
         let first_text = cells.iter().position(|c| matches!(c, Cell::Text(_)));
@@ -196,7 +222,32 @@ pub fn read(path: &Path, sheet: Option<&str>) -> Result<Sheet> {
             .filter(|c| matches!(c, Cell::Number(_)))
             .count();
         let sheet_row = |i: usize| row0 as usize + 2 + i;
+        let markers = cells.iter().filter(|c| matches!(c, Cell::Marker)).count();
+        if first_text.is_none() && markers > 0 && numbers + number_like > 0 {
+            let mut seen: Vec<(String, usize)> = Vec::new();
+            for r in &body {
+                if let Some(Data::String(v)) = r.get(j) {
+                    let v = v.trim();
+                    if super::markers::is_marker(v) {
+                        match seen.iter_mut().find(|(s, _)| s == v) {
+                            Some((_, n)) => *n += 1,
+                            None => seen.push((v.to_string(), 1)),
+                        }
+                    }
+                }
+            }
+            let listed: Vec<String> = seen.iter().map(|(s, n)| format!("`{s}` {n}")).collect();
+            notes.push(format!(
+                "column `{name_j}`: {} marking a missing number ({}) read as missing",
+                super::markers::how_many_cells(markers),
+                listed.join(", ")
+            ));
+        }
         let column = match first_text {
+            // Markers alone, with no number, are text (a column of `NA`s says nothing).
+            None if markers > 0 && numbers + number_like == 0 => {
+                text_column(name_j, &cells, &body, j)
+            }
             None => {
                 if number_like > 0 && numbers > 0 {
                     let first = cells
@@ -204,7 +255,8 @@ pub fn read(path: &Path, sheet: Option<&str>) -> Result<Sheet> {
                         .position(|c| matches!(c, Cell::NumberLike(_)))
                         .unwrap_or(0);
                     notes.push(format!(
-                        "column `{name_j}`: {number_like} text cells that look like numbers (the first in sheet row {}) were read as numbers",
+                        "column `{name_j}`: {} of text that reads as a number (the first in sheet row {}) read as numbers",
+                        super::markers::how_many_cells(number_like),
                         sheet_row(first)
                     ));
                 }
@@ -238,22 +290,27 @@ pub fn read(path: &Path, sheet: Option<&str>) -> Result<Sheet> {
                         sheet_row(t)
                     ));
                 }
-                let values: Vec<Option<String>> = cells
-                    .iter()
-                    .zip(&body)
-                    .map(|(c, r)| match c {
-                        Cell::Missing => None,
-                        Cell::Text(s) => Some(s.clone()),
-                        _ => r.get(j).map(|d| d.to_string()),
-                    })
-                    .collect();
-                Column::new(name_j.as_str().into(), values)
+                text_column(name_j, &cells, &body, j)
             }
         };
         columns.push(column);
     }
     let df = DataFrame::new(body.len(), columns)?;
     Ok(Sheet { df, name, notes })
+}
+
+/// Column `j` of `body` as text, its cells as the sheet holds them.
+fn text_column(name: &str, cells: &[Cell], body: &[&[Data]], j: usize) -> Column {
+    let values: Vec<Option<String>> = cells
+        .iter()
+        .zip(body)
+        .map(|(c, r)| match c {
+            Cell::Missing => None,
+            Cell::Text(s) => Some(s.clone()),
+            _ => r.get(j).map(|d| d.to_string()),
+        })
+        .collect();
+    Column::new(name.into(), values)
 }
 
 #[cfg(test)]
