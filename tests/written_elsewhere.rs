@@ -345,3 +345,69 @@ fn spreadsheet_ids_stay_as_typed_and_missing_markers_are_missing() {
         "{csv}"
     );
 }
+
+#[test]
+fn blank_rows_go_to_the_ledger_as_blank_not_as_missing_keys() {
+    // A spreadsheet's empty row or a CSV export's trailing `,,` has no cell at all: it counted
+    // as a row missing its key, and the Keys line warned of key repairs for it. It now has
+    // its own step and reason in the ledger and the sample construction, and only a row
+    // with values but no key is a key problem. Worked by hand: 7 rows read, 2 blank, 1
+    // without its firm, 4 kept.
+    let w = Workdir::new();
+    w.write(
+        "blank.csv",
+        "firm,year,x\nA,2001,1\n,,\nA,2002,2\n,2001,5\nB,2001,3\nB,2002,4\n,,\n",
+    );
+    w.ok(&[
+        "build",
+        "blank.csv",
+        "--entity",
+        "firm",
+        "--period",
+        "year",
+        "--out",
+        "b",
+    ]);
+    let report = w.json("b/report.json");
+    assert_eq!(report["keys"]["blank_rows"], 2, "{}", report["keys"]);
+    assert_eq!(report["keys"]["missing_key_rows"], 1, "{}", report["keys"]);
+    let steps: Vec<(String, u64)> = report["sample_construction"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|s| {
+            (
+                s["step"].as_str().unwrap().to_string(),
+                s["removed"].as_u64().unwrap(),
+            )
+        })
+        .collect();
+    assert_eq!(steps[1], ("blank rows".to_string(), 2), "{steps:?}");
+    assert_eq!(steps[2], ("missing keys".to_string(), 1), "{steps:?}");
+    let keys = verdict(&report, "Keys");
+    assert!(
+        keys["reason"]
+            .as_str()
+            .unwrap()
+            .starts_with("1 rows missing a key, 0 exact copies"),
+        "{keys}"
+    );
+    let ledger = std::fs::read_to_string(w.path("b/rejected.csv")).unwrap();
+    let reasons: Vec<&str> = ledger
+        .lines()
+        .skip(1)
+        .map(|l| l.split(',').nth(2).unwrap())
+        .collect();
+    assert_eq!(
+        reasons,
+        [
+            "blank row: every cell empty",
+            "entity missing",
+            "blank row: every cell empty"
+        ]
+    );
+    let manifest = w.json("b/manifest.json");
+    assert_eq!(manifest["rows"]["input"], 7);
+    assert_eq!(manifest["rows"]["kept"], 4);
+    assert_eq!(manifest["rows"]["rejected"], 3);
+}

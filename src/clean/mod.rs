@@ -26,6 +26,9 @@ pub const REASON: &str = "__reason";
 /// Ledger column: the row that was kept instead, where there is one (`related_row`).
 pub const RELATED: &str = "__related";
 
+/// The step, in the ledger and the sample construction, of rows with every cell empty.
+const BLANK_STEP: &str = "blank rows";
+
 /// The panel after the key steps, with what they removed.
 pub struct KeyResult {
     /// The rows in key order, those dropped still among them: the rows kept are those
@@ -61,16 +64,32 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
     let (entity, period) = (k.entity, k.period);
     let mut rejected = Vec::new();
 
-    // 1. Missing entity or period.
+    // 1. Missing entity or period; among those rows, the blank ones (every cell empty: a
+    // spreadsheet's empty row, a CSV file's trailing `,,,`), which carry nothing to lose and
+    // have their own step and reason.
     let e_null = col(entity).is_null();
     let p_null = col(period).is_null();
+    let every: Vec<Expr> = k
+        .columns
+        .iter()
+        .map(|c| col(c.as_str()).is_null())
+        .collect();
+    let blank = match every.is_empty() {
+        true => lit(false),
+        false => all_horizontal(every)?,
+    };
     let missing = raw
         .clone()
         .lazy()
         .filter(e_null.clone().or(p_null.clone()))
         .with_columns([
-            lit("missing keys").alias(STEP),
-            when(e_null.clone().and(p_null.clone()))
+            when(blank.clone())
+                .then(lit(BLANK_STEP))
+                .otherwise(lit("missing keys"))
+                .alias(STEP),
+            when(blank)
+                .then(lit("blank row: every cell empty"))
+                .when(e_null.clone().and(p_null.clone()))
                 .then(lit("entity and period missing"))
                 .when(e_null.clone())
                 .then(lit("entity missing"))
@@ -120,13 +139,27 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
         rows_after: rows_read,
         entities_after: entities_kept + only_missing,
     }];
+    let blank_rows = missing
+        .column(STEP)?
+        .str()?
+        .iter()
+        .filter(|s| *s == Some(BLANK_STEP))
+        .count() as u64;
+    if blank_rows > 0 {
+        steps.push(SampleStep::counted(
+            &steps,
+            BLANK_STEP,
+            rows_read - blank_rows,
+            entities_kept + only_missing,
+        ));
+    }
     steps.push(SampleStep::counted(
         &steps,
         "missing keys",
         df.height() as u64,
         entities_kept,
     ));
-    let missing_key_rows = missing.height() as u64;
+    let missing_key_rows = missing.height() as u64 - blank_rows;
     rejected.push(ledger(missing, k.columns)?);
 
     // 2. Exact copies: same key and the same value in every column. Only rows whose key
@@ -281,6 +314,7 @@ pub fn resolve_keys(raw: DataFrame, k: &Keys, policy: &DuplicatePolicy) -> Resul
         rejected,
         keys: KeysSummary {
             missing_key_rows,
+            blank_rows,
             exact_duplicate_rows,
             exact_duplicate_keys,
             conflicting_keys,

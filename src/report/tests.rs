@@ -27,6 +27,7 @@ fn sample() -> Report {
     };
     r.keys = KeysSummary {
         missing_key_rows: 3,
+        blank_rows: 0,
         exact_duplicate_rows: 7,
         exact_duplicate_keys: 6,
         conflicting_keys: 5,

@@ -249,11 +249,17 @@ fn glance_figures(r: &Report) -> Section {
 
 fn keys(r: &Report) -> Section {
     let k = &r.keys;
-    let mut blocks = vec![pairs(&[
-        (
-            "rows missing entity or period",
-            k.missing_key_rows.to_string(),
-        ),
+    let mut rows = vec![(
+        "rows missing entity or period",
+        k.missing_key_rows.to_string(),
+    )];
+    if k.blank_rows > 0 {
+        rows.push((
+            "blank rows (every cell empty), in the ledger",
+            k.blank_rows.to_string(),
+        ));
+    }
+    rows.extend([
         (
             "exact copies of an earlier row",
             k.exact_duplicate_rows.to_string(),
@@ -269,7 +275,8 @@ fn keys(r: &Report) -> Section {
             "entities alike but for spaces or case",
             k.alike_entities.to_string(),
         ),
-    ])];
+    ]);
+    let mut blocks = vec![pairs(&rows)];
     if !k.examples.is_empty() {
         let list: Vec<String> = k
             .examples

@@ -132,8 +132,11 @@ pub struct PanelSummary {
 /// Missing and duplicate keys.
 #[derive(Debug, Clone, Default, Serialize)]
 pub struct KeysSummary {
-    /// Rows whose entity or period is missing.
+    /// Rows whose entity or period is missing (blank rows aside).
     pub missing_key_rows: u64,
+    /// Rows with every cell empty (a spreadsheet's empty row, a CSV file's trailing `,,,`):
+    /// in the ledger, but no key problem.
+    pub blank_rows: u64,
     /// Rows identical in every column to an earlier row (removed; the first is kept).
     pub exact_duplicate_rows: u64,
     /// Keys that had such copies.
