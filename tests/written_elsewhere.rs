@@ -411,3 +411,47 @@ fn blank_rows_go_to_the_ledger_as_blank_not_as_missing_keys() {
     assert_eq!(manifest["rows"]["kept"], 4);
     assert_eq!(manifest["rows"]["rejected"], 3);
 }
+
+#[test]
+fn codes_written_with_leading_zeros_keep_them() {
+    // An industry code `0100` or a postal code `02139` in a CSV file was read as the whole
+    // number 100 or 2139: `0100` and `100` became one code, and the codes were averaged as
+    // amounts. A column of digits with a leading zero among its first values is text now,
+    // noted; in a spreadsheet a code typed as text with its zeros stays text too.
+    let w = Workdir::new();
+    w.write(
+        "codes.csv",
+        "firm,year,sic,x\nA,2001,0100,1\nA,2002,100,2\nB,2001,7370,3\nB,2002,7370,4\n",
+    );
+    python(
+        w.dir.path(),
+        "import openpyxl\n\
+         wb = openpyxl.Workbook()\n\
+         for row in [['firm', 'year', 'sic', 'x'], ['A', 2001, '0100', 1], \
+         ['A', 2002, '0100', 2], ['B', 2001, '7370', 3], ['B', 2002, '7370', 4]]:\n    \
+         wb.active.append(row)\n\
+         wb.save('codes.xlsx')",
+    );
+    for file in ["codes.csv", "codes.xlsx"] {
+        let out = format!("out_{file}");
+        w.ok(&[
+            "build", file, "--entity", "firm", "--period", "year", "--out", &out,
+        ]);
+        let report = w.json(&format!("{out}/report.json"));
+        let sic = line(&report, "sic");
+        assert!(
+            sic["mean"].is_null() && sic["sd_total"].is_null(),
+            "{file}: {sic}"
+        );
+        let csv = std::fs::read_to_string(w.path(&format!("{out}/panel.csv"))).unwrap();
+        assert!(csv.contains(",A,2001,0100,1"), "{file}: {csv}");
+        if file == "codes.csv" {
+            assert!(csv.contains(",A,2002,100,2"), "{csv}");
+            assert_eq!(
+                report["input"]["notes"][0],
+                "column `sic` read as text: its values are codes written with leading zeros \
+                 (data row 1 holds `0100`)"
+            );
+        }
+    }
+}

@@ -68,6 +68,46 @@ enum Cell {
     Number(Number, Written),
 }
 
+/// Whether `text` is a code written with leading zeros (`0100`, `007`): digits only, more
+/// than one, the first a zero.
+pub(super) fn leading_zero(text: &str) -> bool {
+    let t = text.trim();
+    t.len() > 1 && t.starts_with('0') && t.bytes().all(|b| b.is_ascii_digit())
+}
+
+/// The columns of `sample` (a file's first rows, every column as text) but those in `keep`
+/// that hold codes written with leading zeros — every value digits only, at least one with a
+/// leading zero — each with its first such value and its data row. The reader would read them
+/// as whole numbers and drop the zeros (`0100` and `100` one code).
+pub(super) fn leading_zero_codes(
+    sample: &DataFrame,
+    keep: &[&str],
+) -> Result<Vec<(String, usize, String)>> {
+    let mut found = Vec::new();
+    for c in sample.columns() {
+        let name = c.name().as_str();
+        if keep.contains(&name) || c.dtype() != &DataType::String {
+            continue;
+        }
+        let values = c.str()?;
+        let digits = values
+            .iter()
+            .flatten()
+            .all(|v| !v.trim().is_empty() && v.trim().bytes().all(|b| b.is_ascii_digit()));
+        if !digits {
+            continue;
+        }
+        let first = values
+            .iter()
+            .enumerate()
+            .find_map(|(i, v)| v.filter(|v| leading_zero(v)).map(|v| (i + 1, v.trim())));
+        if let Some((row, value)) = first {
+            found.push((name.to_string(), row, value.to_string()));
+        }
+    }
+    Ok(found)
+}
+
 /// Whether `text` is a marker for a missing number (`NA`, `#N/A`, `.`, ...).
 pub(super) fn is_marker(text: &str) -> bool {
     let t = text.trim();
@@ -472,5 +512,29 @@ mod tests {
                  numbers",
             ]
         );
+    }
+
+    /// Worked by hand: `sic` and `zip` hold digits only with a leading zero somewhere (the
+    /// first at data rows 2 and 1); `n` digits only but no leading zero; `x` a leading zero
+    /// beside a decimal (not a code column); `firm` is kept as it is.
+    #[test]
+    fn codes_with_leading_zeros_are_found() {
+        let sample = df!(
+            "firm" => ["0A", "01", "02"],
+            "sic" => [Some("7370"), Some("0100"), None],
+            "zip" => ["02139", "10001", " 00501 "],
+            "n" => ["100", "0", "7"],
+            "x" => ["0100", "2.5", "3"],
+        )
+        .unwrap();
+        let found = leading_zero_codes(&sample, &["firm"]).unwrap();
+        assert_eq!(
+            found,
+            [
+                ("sic".to_string(), 2, "0100".to_string()),
+                ("zip".to_string(), 1, "02139".to_string()),
+            ]
+        );
+        assert!(leading_zero("007") && !leading_zero("0") && !leading_zero("0.5"));
     }
 }

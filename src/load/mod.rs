@@ -91,7 +91,25 @@ pub fn load(
         .as_ref()
         .map_or(cfg.path.as_path(), |t| t.path.as_path());
     let entity = [cfg.entity.as_str()];
-    let scan = |infer| scan(source, &cfg.path, cfg.format, infer, &cfg.csv, &entity);
+    // Codes written with leading zeros (an industry code `0100`, a postal code) are text, as
+    // the entity is; judged on the first rows, as the column types are.
+    let coded = match cfg.format {
+        InputFormat::Csv => {
+            let sample = scan(source, &cfg.path, cfg.format, Some(0), &cfg.csv, &[])?
+                .slice(0, INFER_ROWS as IdxSize)
+                .collect()
+                .map_err(|e| unreadable(&cfg.path, cfg.format, cfg.csv.delimiter, e))?;
+            let mut keys = vec![cfg.entity.as_str(), cfg.period.as_str()];
+            keys.extend(cfg.rules.file.panel.year_end.as_deref());
+            markers::leading_zero_codes(&sample, &keys)?
+        }
+        _ => Vec::new(),
+    };
+    let text: Vec<&str> = entity
+        .into_iter()
+        .chain(coded.iter().map(|(name, _, _)| name.as_str()))
+        .collect();
+    let scan = |infer| scan(source, &cfg.path, cfg.format, infer, &cfg.csv, &text);
     let sheet = match cfg.format {
         InputFormat::Spreadsheet => Some(sheet::read(&cfg.path, cfg.sheet.as_deref(), &entity)?),
         _ => None,
@@ -213,6 +231,7 @@ pub fn load(
     let (df, marked) = if cfg.format == InputFormat::Csv {
         let mut keep = vec![cfg.entity.as_str(), cfg.period.as_str()];
         keep.extend(cfg.rules.file.panel.year_end.as_deref());
+        keep.extend(coded.iter().map(|(name, _, _)| name.as_str()));
         markers::numbers_with_markers(df, &keep, cfg.csv.decimal_comma)?
     } else {
         (df, Vec::new())
@@ -248,6 +267,12 @@ pub fn load(
     let (df, non_finite) = non_finite_as_missing(df, &[&cfg.entity, &cfg.period])?;
     check_window(&df, cfg)?;
     let (sheet, mut notes) = sheet.map_or((None, Vec::new()), |s| (Some(s.name), s.notes));
+    notes.extend(coded.iter().map(|(name, row, value)| {
+        format!(
+            "column `{name}` read as text: its values are codes written with leading zeros \
+             (data row {row} holds `{value}`)"
+        )
+    }));
     notes.extend(marked);
     notes.extend(decimals);
     notes.extend(non_finite);

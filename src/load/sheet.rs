@@ -85,6 +85,9 @@ fn cell(d: &Data) -> Cell {
                 Cell::Missing
             } else if super::markers::is_marker(t) {
                 Cell::Marker
+            } else if super::markers::leading_zero(t) {
+                // A code typed with its leading zeros (`0100`) is text, not the number 100.
+                Cell::Text(s.clone())
             } else {
                 match t.parse::<f64>() {
                     Ok(x) if x.is_finite() => Cell::NumberLike(x),
