@@ -540,6 +540,33 @@ fn bad_expressions_name_the_rule() {
             "[[rule]]\nname = \"r3\"\nexpr = \"assets AND year\"\n".into(),
             &["`r3`", "combine conditions"],
         ),
+        // What only the column types or the values show stopped with the engine's words
+        // alone ("data engine: division with 'String' datatypes is not allowed"), no rule
+        // named; a condition giving numbers named an internal column.
+        (
+            rule("assets / firm"),
+            &["derived variable `x`: `assets / firm`", "String"],
+        ),
+        (
+            rule("CAST(firm AS DOUBLE)"),
+            &["derived variable `x`: `CAST(firm AS DOUBLE)`", "conversion"],
+        ),
+        (
+            "[derive.y]\nexpr = \"firm\"\n[derive.x]\nexpr = \"y * 2\"\n".into(),
+            &["derived variable `x`: `y * 2`"],
+        ),
+        (
+            "[[rule]]\nname = \"r4\"\nexpr = \"firm > 1\"\n".into(),
+            &["accounting rule `r4`: `firm > 1`", "compare"],
+        ),
+        (
+            "[[rule]]\nname = \"r5\"\nexpr = \"assets\"\n".into(),
+            &["accounting rule `r5`: `assets` gives values of type i64, not true / false"],
+        ),
+        (
+            "[[rule]]\nname = \"r6\"\nexpr = \"CAST(firm AS DOUBLE) > 0\"\n".into(),
+            &["accounting rule `r6`", "conversion"],
+        ),
     ];
     for (rules, want) in cases {
         let case = Bad {

@@ -123,6 +123,7 @@ pub fn count(
         return Ok(Vec::new());
     }
     const WITHIN: &str = "__within";
+    check(df, rules)?;
     let mut df = df.clone();
     let among = |e: Expr| match within {
         Some(_) => e.and(col(WITHIN)),
@@ -146,7 +147,12 @@ pub fn count(
                 .alias(format!("u{i}")),
         );
     }
-    let c = df.lazy().select(aggs).collect()?;
+    let c = match df.clone().lazy().select(aggs).collect() {
+        Ok(c) => c,
+        // A failure only the values show (a text that will not convert): the rule that
+        // fails on its own is named.
+        Err(e) => return Err(culprit(&df, rules).unwrap_or(Error::Polars(e))),
+    };
     rules
         .iter()
         .enumerate()
@@ -165,6 +171,58 @@ pub fn count(
             })
         })
         .collect()
+}
+
+/// Each rule's condition against the panel's column types, before anything is evaluated:
+/// a condition that cannot be evaluated (text divided, text compared with a number) or
+/// that gives something other than true / false stops the run naming the rule, not with the
+/// engine's words alone.
+fn check(df: &DataFrame, rules: &[CompiledRule]) -> Result<()> {
+    for r in rules {
+        let named = |message: String| Error::RuleExpr {
+            rule: format!("accounting rule `{}`", r.name),
+            message,
+        };
+        let schema = df
+            .clone()
+            .lazy()
+            .select([r.holds.clone().alias("holds")])
+            .collect_schema()
+            .map_err(|e| {
+                named(format!(
+                    "`{}`: {}",
+                    r.text,
+                    crate::error::one_line(&e.to_string())
+                ))
+            })?;
+        match schema.get("holds") {
+            Some(DataType::Boolean | DataType::Null) | None => {}
+            Some(other) => {
+                return Err(named(format!(
+                    "`{}` gives values of type {other}, not true / false: a rule is a condition \
+                     each row must meet",
+                    r.text
+                )))
+            }
+        }
+    }
+    Ok(())
+}
+
+/// The first rule whose condition fails when evaluated on its own, as the error naming it.
+fn culprit(df: &DataFrame, rules: &[CompiledRule]) -> Option<Error> {
+    rules.iter().find_map(|r| {
+        let e = df
+            .clone()
+            .lazy()
+            .select([r.holds.clone()])
+            .collect()
+            .err()?;
+        Some(Error::RuleExpr {
+            rule: format!("accounting rule `{}`", r.name),
+            message: format!("`{}`: {}", r.text, crate::error::one_line(&e.to_string())),
+        })
+    })
 }
 
 /// Where a `null` rule does not hold, set its columns to null; returns the new frame.

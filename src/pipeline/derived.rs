@@ -15,8 +15,11 @@ pub(super) fn derive(
 ) -> Result<(DataFrame, Vec<crate::report::DerivedSummary>)> {
     // Sorted by entity, period and row since the key steps: joins keep the panel's order,
     // repairs and rules only filter or change cells.
-    let (lf, hidden) = plan.apply(panel.lazy(), &input.entity, &input.period, layout);
-    let with_hidden = lf.collect()?;
+    let (lf, hidden) = plan.apply(panel.clone().lazy(), &input.entity, &input.period, layout);
+    let with_hidden = match lf.collect() {
+        Ok(df) => df,
+        Err(e) => return Err(culprit(&panel, plan, layout, input).unwrap_or(Error::Polars(e))),
+    };
     let derived = plan.null_counts(&with_hidden)?;
     let mut order = vec![col(ROW)];
     order.extend(columns.iter().map(|c| col(c.as_str())));
@@ -34,4 +37,31 @@ pub(super) fn derive(
     let mut panel = panel.collect()?;
     panel.rechunk_mut_par();
     Ok((panel, derived))
+}
+
+/// The derived variable whose evaluation fails (text divided, a text that will not convert),
+/// as the error naming it: the variables one more at a time in dependency order, each set
+/// checked by its types, then by its values; the first set that fails ends in the culprit.
+fn culprit(panel: &DataFrame, plan: &Plan, layout: Layout, input: &InputConfig) -> Option<Error> {
+    let upto = |k: usize| {
+        let mut part = plan.clone();
+        part.vars.truncate(k + 1);
+        part.apply(panel.clone().lazy(), &input.entity, &input.period, layout)
+            .0
+    };
+    let named = |k: usize, e: PolarsError| Error::RuleExpr {
+        rule: format!("derived variable `{}`", plan.vars[k].name),
+        message: format!(
+            "`{}`: {}",
+            plan.vars[k].rule.expr,
+            crate::error::one_line(&e.to_string())
+        ),
+    };
+    let vars = 0..plan.vars.len();
+    vars.clone()
+        .find_map(|k| upto(k).collect_schema().err().map(|e| named(k, e)))
+        .or_else(|| {
+            vars.clone()
+                .find_map(|k| upto(k).collect().err().map(|e| named(k, e)))
+        })
 }
