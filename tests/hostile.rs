@@ -645,6 +645,17 @@ fn bad_paths_and_arguments_are_one_line_errors() {
         "fake.parquet",
     );
     w.fails(&["verify", "nosuch-dir"], "nosuch-dir");
+    // A folder without a Parquet file in it was "no such file"; one column named both the
+    // entity and the period went on to complain that the firm names are not whole numbers.
+    std::fs::create_dir(w.path("empty")).unwrap();
+    w.fails(
+        &["audit", "empty", "--rules", "rules.toml"],
+        "`empty`: a folder with no Parquet file",
+    );
+    w.fails(
+        &["audit", "raw.csv", "--entity", "firm", "--period", "firm"],
+        "`--period`: `firm` is the entity column too",
+    );
     // A demo of billions of firm-years ran until memory ran out.
     w.fails(
         &["demo", "--out", "d", "--firms", "4000000000", "--data-only"],

@@ -518,6 +518,14 @@ impl InputConfig {
             .period
             .or_else(|| rules.file.panel.period.clone())
             .ok_or(Error::MissingKey { key: "period" })?;
+        if entity == period {
+            return Err(Error::BadOption {
+                option: "period",
+                message: format!(
+                    "`{period}` is the entity column too: the period is a column of its own"
+                ),
+            });
+        }
         let csv = CsvOptions::resolve(
             &rules,
             a.read.delimiter.as_deref(),

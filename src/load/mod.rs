@@ -480,6 +480,15 @@ fn scan(
     text: &[&str],
 ) -> Result<LazyFrame> {
     let dataset = format == InputFormat::Parquet && holds_parquet(input);
+    if input.is_dir() && !dataset {
+        return Err(Error::Unreadable {
+            file: input.to_path_buf(),
+            at: String::new(),
+            message: "a folder with no Parquet file (`.parquet`, `.pq`) in it: give a file, or \
+                      a folder of Parquet files"
+                .into(),
+        });
+    }
     if !input.is_file() && !dataset {
         return Err(Error::NoInput {
             file: input.to_path_buf(),
