@@ -455,3 +455,47 @@ fn codes_written_with_leading_zeros_keep_them() {
         }
     }
 }
+
+#[test]
+fn a_joined_table_keeps_its_codes_leading_zeros_too() {
+    // The panel's codes with leading zeros are text; a joined table's were read as whole
+    // numbers, so that `0100` in the table could only meet `100` in the panel. Both are
+    // judged alike now, and the table's note names it. Worked by hand: rows of code `0100`
+    // take weight 1.5, the row of code `100` 2.5.
+    let w = Workdir::new();
+    w.write(
+        "codes.csv",
+        "firm,year,sic,x\nA,2001,0100,1\nA,2002,100,2\nB,2001,7370,3\nB,2002,0100,4\n",
+    );
+    w.write(
+        "weights.csv",
+        "sic,year,weight\n0100,2001,1.5\n0100,2002,1.5\n100,2002,2.5\n7370,2001,3.5\n",
+    );
+    w.write(
+        "rules.toml",
+        "[panel]\nentity = \"firm\"\nperiod = \"year\"\n\n[[join]]\nfile = \"weights.csv\"\n\
+         on = [\"sic\", \"year\"]\n",
+    );
+    w.ok(&["build", "codes.csv", "--rules", "rules.toml", "--out", "b"]);
+    let csv = std::fs::read_to_string(w.path("b/panel.csv")).unwrap();
+    let weights: Vec<&str> = csv
+        .lines()
+        .skip(1)
+        .map(|l| l.rsplit(',').next().unwrap())
+        .collect();
+    assert_eq!(weights, ["1.5", "2.5", "3.5", "1.5"], "{csv}");
+    let report = w.json("b/report.json");
+    let notes: Vec<&str> = report["input"]["notes"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|n| n.as_str().unwrap())
+        .collect();
+    assert!(
+        notes.contains(
+            &"joined `weights.csv`, column `sic` read as text: its values are codes written \
+              with leading zeros (data row 1 holds `0100`)"
+        ),
+        "{notes:?}"
+    );
+}

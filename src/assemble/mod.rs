@@ -142,7 +142,7 @@ fn read_table(
         .then_some(entity_raw)
         .into_iter()
         .collect();
-    let raw = crate::load::read_raw(path, format, csv, spec.sheet.as_deref(), &text)?;
+    let (raw, read_notes) = crate::load::read_raw(path, format, csv, spec.sheet.as_deref(), &text)?;
     // Numbers with `NA`, `.` or `#N/A` for missing ones, as in the main file; the columns
     // matched on stay as read.
     let (raw, notes) = if format == crate::config::InputFormat::Csv {
@@ -159,8 +159,9 @@ fn read_table(
     };
     let (raw, decimals) = crate::load::decimals_as_floats(raw, &[])?;
     let (raw, non_finite) = crate::load::non_finite_as_missing(raw, &[])?;
-    let notes: Vec<String> = notes
+    let notes: Vec<String> = read_notes
         .into_iter()
+        .chain(notes)
         .chain(decimals)
         .chain(non_finite)
         .collect();

@@ -7,7 +7,7 @@ use super::stdout_write;
 
 /// Run `rules draft`.
 pub fn run(cfg: &DraftConfig) -> Result<i32> {
-    let df = load::read_raw(&cfg.data, cfg.format, &cfg.csv, cfg.sheet.as_deref(), &[])?;
+    let (df, _) = load::read_raw(&cfg.data, cfg.format, &cfg.csv, cfg.sheet.as_deref(), &[])?;
     let name = cfg
         .data
         .file_name()

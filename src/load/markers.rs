@@ -239,6 +239,11 @@ pub(crate) fn numbers_with_markers(
     let mut notes = Vec::new();
     for name in text {
         let values = df.column(&name)?.str()?.clone();
+        // Codes written with leading zeros (`0100`) are text, not numbers.
+        let digits = |v: &str| v.trim().bytes().all(|b| b.is_ascii_digit());
+        if values.iter().flatten().any(leading_zero) && values.iter().flatten().all(digits) {
+            continue;
+        }
         let first: Vec<Option<Cell>> = values
             .iter()
             .flatten()

@@ -43,25 +43,37 @@ pub struct Loaded {
 }
 
 /// Read a raw file whole, without checking keys (for a joined table, and for `rules draft`,
-/// which guesses them); the CSV columns named in `text` are read as text.
+/// which guesses them); the CSV columns named in `text` are read as text, and so are a CSV
+/// file's codes written with leading zeros. Returns what reading had to decide, one sentence
+/// each.
 pub fn read_raw(
     path: &Path,
     format: InputFormat,
     csv: &CsvOptions,
     sheet: Option<&str>,
     text: &[&str],
-) -> Result<DataFrame> {
+) -> Result<(DataFrame, Vec<String>)> {
     if format == InputFormat::Spreadsheet {
-        return Ok(sheet::read(path, sheet, text)?.df);
+        let sheet = sheet::read(path, sheet, text)?;
+        return Ok((sheet.df, sheet.notes));
     }
     let utf8 = match (format, csv.encoding) {
         (InputFormat::Csv, Encoding::Windows1252) => Some(Transcoded::new(path)?),
         _ => None,
     };
     let source = utf8.as_ref().map_or(path, |t| t.path.as_path());
-    let df = match scan(source, path, format, Some(INFER_ROWS), csv, text)?.collect() {
+    let coded = match format {
+        InputFormat::Csv => leading_zero_columns(source, path, csv, text)?,
+        _ => Vec::new(),
+    };
+    let text: Vec<&str> = text
+        .iter()
+        .copied()
+        .chain(coded.iter().map(|(name, _, _)| name.as_str()))
+        .collect();
+    let df = match scan(source, path, format, Some(INFER_ROWS), csv, &text)?.collect() {
         Ok(df) => df,
-        Err(_) if format == InputFormat::Csv => scan(source, path, format, None, csv, text)?
+        Err(_) if format == InputFormat::Csv => scan(source, path, format, None, csv, &text)?
             .collect()
             .map_err(|e| unreadable(path, format, csv.delimiter, e))?,
         Err(e) => return Err(unreadable(path, format, csv.delimiter, e)),
@@ -71,7 +83,37 @@ pub fn read_raw(
             file: path.to_path_buf(),
         });
     }
-    Ok(df)
+    Ok((df, coded_notes(&coded)))
+}
+
+/// The columns of a CSV file (at `source`, named `input`) but those in `keep` that hold codes
+/// written with leading zeros among their first rows (judged as the column types are), each
+/// with the data row and value of the first such code.
+fn leading_zero_columns(
+    source: &Path,
+    input: &Path,
+    csv: &CsvOptions,
+    keep: &[&str],
+) -> Result<Vec<(String, usize, String)>> {
+    let format = InputFormat::Csv;
+    let sample = scan(source, input, format, Some(0), csv, &[])?
+        .slice(0, INFER_ROWS as IdxSize)
+        .collect()
+        .map_err(|e| unreadable(input, format, csv.delimiter, e))?;
+    markers::leading_zero_codes(&sample, keep)
+}
+
+/// The input notes of the columns [`leading_zero_columns`] found.
+fn coded_notes(coded: &[(String, usize, String)]) -> Vec<String> {
+    coded
+        .iter()
+        .map(|(name, row, value)| {
+            format!(
+                "column `{name}` read as text: its values are codes written with leading zeros \
+                 (data row {row} holds `{value}`)"
+            )
+        })
+        .collect()
 }
 
 /// Read the input named in `cfg` and check its keys. `joined` names the columns that joined
@@ -95,13 +137,9 @@ pub fn load(
     // the entity is; judged on the first rows, as the column types are.
     let coded = match cfg.format {
         InputFormat::Csv => {
-            let sample = scan(source, &cfg.path, cfg.format, Some(0), &cfg.csv, &[])?
-                .slice(0, INFER_ROWS as IdxSize)
-                .collect()
-                .map_err(|e| unreadable(&cfg.path, cfg.format, cfg.csv.delimiter, e))?;
             let mut keys = vec![cfg.entity.as_str(), cfg.period.as_str()];
             keys.extend(cfg.rules.file.panel.year_end.as_deref());
-            markers::leading_zero_codes(&sample, &keys)?
+            leading_zero_columns(source, &cfg.path, &cfg.csv, &keys)?
         }
         _ => Vec::new(),
     };
@@ -231,7 +269,6 @@ pub fn load(
     let (df, marked) = if cfg.format == InputFormat::Csv {
         let mut keep = vec![cfg.entity.as_str(), cfg.period.as_str()];
         keep.extend(cfg.rules.file.panel.year_end.as_deref());
-        keep.extend(coded.iter().map(|(name, _, _)| name.as_str()));
         markers::numbers_with_markers(df, &keep, cfg.csv.decimal_comma)?
     } else {
         (df, Vec::new())
@@ -267,12 +304,7 @@ pub fn load(
     let (df, non_finite) = non_finite_as_missing(df, &[&cfg.entity, &cfg.period])?;
     check_window(&df, cfg)?;
     let (sheet, mut notes) = sheet.map_or((None, Vec::new()), |s| (Some(s.name), s.notes));
-    notes.extend(coded.iter().map(|(name, row, value)| {
-        format!(
-            "column `{name}` read as text: its values are codes written with leading zeros \
-             (data row {row} holds `{value}`)"
-        )
-    }));
+    notes.extend(coded_notes(&coded));
     notes.extend(marked);
     notes.extend(decimals);
     notes.extend(non_finite);
