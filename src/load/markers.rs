@@ -75,9 +75,15 @@ pub(super) fn leading_zero(text: &str) -> bool {
     t.len() > 1 && t.starts_with('0') && t.bytes().all(|b| b.is_ascii_digit())
 }
 
+/// Whether `text` could be a code (digits only) or marks a missing one (`NA`).
+fn code_or_marker(text: &str) -> bool {
+    let t = text.trim();
+    (!t.is_empty() && t.bytes().all(|b| b.is_ascii_digit())) || is_marker(t)
+}
+
 /// The columns of `sample` (a file's first rows, every column as text) but those in `keep`
-/// that hold codes written with leading zeros — every value digits only, at least one with a
-/// leading zero — each with its first such value and its data row. The reader would read them
+/// that hold codes written with leading zeros — every value digits only (or a marker for a
+/// missing one), at least one with a leading zero — each with its first such value and its data row. The reader would read them
 /// as whole numbers and drop the zeros (`0100` and `100` one code).
 pub(super) fn leading_zero_codes(
     sample: &DataFrame,
@@ -90,11 +96,7 @@ pub(super) fn leading_zero_codes(
             continue;
         }
         let values = c.str()?;
-        let digits = values
-            .iter()
-            .flatten()
-            .all(|v| !v.trim().is_empty() && v.trim().bytes().all(|b| b.is_ascii_digit()));
-        if !digits {
+        if !values.iter().flatten().all(code_or_marker) {
             continue;
         }
         let first = values
@@ -240,8 +242,8 @@ pub(crate) fn numbers_with_markers(
     for name in text {
         let values = df.column(&name)?.str()?.clone();
         // Codes written with leading zeros (`0100`) are text, not numbers.
-        let digits = |v: &str| v.trim().bytes().all(|b| b.is_ascii_digit());
-        if values.iter().flatten().any(leading_zero) && values.iter().flatten().all(digits) {
+        if values.iter().flatten().any(leading_zero) && values.iter().flatten().all(code_or_marker)
+        {
             continue;
         }
         let first: Vec<Option<Cell>> = values
@@ -526,7 +528,7 @@ mod tests {
     fn codes_with_leading_zeros_are_found() {
         let sample = df!(
             "firm" => ["0A", "01", "02"],
-            "sic" => [Some("7370"), Some("0100"), None],
+            "sic" => [Some("7370"), Some("0100"), Some("NA")],
             "zip" => ["02139", "10001", " 00501 "],
             "n" => ["100", "0", "7"],
             "x" => ["0100", "2.5", "3"],
