@@ -21,6 +21,14 @@ fn python(dir: &Path, code: &str) {
     );
 }
 
+/// `audit` of `file` (keys `firm`, `year`) in `w`, its JSON report.
+fn audit_json(w: &Workdir, file: &str) -> serde_json::Value {
+    let run = w.ok(&[
+        "audit", file, "--entity", "firm", "--period", "year", "--format", "json",
+    ]);
+    serde_json::from_str(&run.stdout).unwrap()
+}
+
 fn line<'a>(report: &'a serde_json::Value, variable: &str) -> &'a serde_json::Value {
     report["variation"]
         .as_array()
@@ -61,10 +69,7 @@ fn nan_and_infinities_are_missing_values() {
          C,2001,7\nC,2002,8\nC,2003,-inf\n",
     );
     for file in ["numpy.parquet", "nan.csv"] {
-        let run = w.ok(&[
-            "audit", file, "--entity", "firm", "--period", "year", "--format", "json",
-        ]);
-        let report: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+        let report = audit_json(&w, file);
         let x = line(&report, "x");
         assert_eq!(x["n"], 6, "{file}: {x}");
         assert!((x["mean"].as_f64().unwrap() - 5.0).abs() < 1e-12, "{x}");
@@ -107,17 +112,7 @@ fn variation_that_cannot_be_computed_says_why() {
     .unwrap();
     let f = std::fs::File::create(w.path("limits.parquet")).unwrap();
     ParquetWriter::new(f).finish(&mut df).unwrap();
-    let run = w.ok(&[
-        "audit",
-        "limits.parquet",
-        "--entity",
-        "firm",
-        "--period",
-        "year",
-        "--format",
-        "json",
-    ]);
-    let report: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+    let report = audit_json(&w, "limits.parquet");
     let huge = line(&report, "huge");
     assert_eq!(
         huge["not_computable"], "values too large to square in floating-point numbers",
@@ -221,10 +216,7 @@ fn numbers_padded_or_too_wide_for_integers_are_numbers() {
                 bigs[0], bigs[1], bigs[2]
             ),
         );
-        let run = w.ok(&[
-            "audit", name, "--entity", "firm", "--period", "year", "--format", "json",
-        ]);
-        let report: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+        let report = audit_json(&w, name);
         let x = line(&report, "x");
         assert_eq!(x["n"], 3, "{name}: {x}");
         assert!((x["mean"].as_f64().unwrap() - 3.5).abs() < 1e-12, "{x}");
@@ -323,10 +315,7 @@ fn spreadsheet_ids_stay_as_typed_and_missing_markers_are_missing() {
          ['01001', 2001, 4]]:\n    wb.active.append(row)\n\
          wb.save('ids.xlsx')",
     );
-    let run = w.ok(&[
-        "audit", "ids.xlsx", "--entity", "firm", "--period", "year", "--format", "json",
-    ]);
-    let report: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+    let report = audit_json(&w, "ids.xlsx");
     assert_eq!(report["panel"]["entities"], 2, "{}", report["panel"]);
     assert_eq!(report["keys"]["conflicting_keys"], 0, "{}", report["keys"]);
     let x = line(&report, "x");
