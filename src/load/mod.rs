@@ -11,6 +11,7 @@ use crate::{Error, Result};
 
 mod budget;
 mod contiguous;
+mod csv_file;
 mod finite;
 mod footer;
 mod markers;
@@ -18,6 +19,9 @@ mod period;
 mod sheet;
 
 use budget::check_budget;
+use csv_file::{
+    csv_position, names_as_written, not_utf16, repeated_header_name, unclosed_quote, Transcoded,
+};
 pub(crate) use finite::non_finite_as_missing;
 pub(crate) use markers::numbers_with_markers;
 use period::{check_period, check_window, fiscal_year, period_as_int};
@@ -347,76 +351,6 @@ pub(crate) fn first_row(bad: &DataFrame) -> Result<String> {
     Ok(format!(", row {}", row.i64()?.get(0).unwrap_or(0)))
 }
 
-/// A UTF-8 copy of a Windows-1252 file, removed when dropped.
-struct Transcoded {
-    path: std::path::PathBuf,
-}
-
-impl Transcoded {
-    fn new(input: &Path) -> Result<Transcoded> {
-        let bytes = std::fs::read(input).map_err(Error::io(input))?;
-        if bytes.starts_with(&[0x1f, 0x8b]) || bytes.starts_with(&[0x28, 0xb5, 0x2f, 0xfd]) {
-            return Err(Error::Unreadable {
-                file: input.to_path_buf(),
-                at: String::new(),
-                message: "a compressed file in another encoding than UTF-8: decompress it first"
-                    .into(),
-            });
-        }
-        let (text, _, _) = encoding_rs::WINDOWS_1252.decode(&bytes);
-        static COUNTER: std::sync::atomic::AtomicU64 = std::sync::atomic::AtomicU64::new(0);
-        let n = COUNTER.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
-        let path =
-            std::env::temp_dir().join(format!("panelready-{}-{n}-utf8.csv", std::process::id()));
-        std::fs::write(&path, text.as_bytes()).map_err(Error::io(&path))?;
-        Ok(Transcoded { path })
-    }
-}
-
-impl Drop for Transcoded {
-    fn drop(&mut self) {
-        let _ = std::fs::remove_file(&self.path);
-    }
-}
-
-/// The first name that appears twice in a CSV header (the engine would rename the copy).
-/// Compressed files are left to the engine.
-fn repeated_header_name(path: &Path, delimiter: char) -> Result<Option<String>> {
-    use std::io::BufRead;
-    let file = std::fs::File::open(path).map_err(Error::io(path))?;
-    let mut line = Vec::new();
-    std::io::BufReader::new(file)
-        .read_until(b'\n', &mut line)
-        .map_err(Error::io(path))?;
-    if line.starts_with(&[0x1f, 0x8b]) || line.starts_with(&[0x28, 0xb5, 0x2f, 0xfd]) {
-        return Ok(None);
-    }
-    let text = String::from_utf8_lossy(&line);
-    let mut names = Vec::new();
-    let (mut field, mut quoted) = (String::new(), false);
-    let sep = delimiter;
-    let mut chars = text
-        .trim_start_matches('\u{feff}')
-        .trim_end_matches(['\r', '\n'])
-        .chars()
-        .peekable();
-    while let Some(ch) = chars.next() {
-        match ch {
-            // A doubled quote inside quotes is one quote of the name (RFC 4180).
-            '"' if quoted && chars.peek() == Some(&'"') => {
-                chars.next();
-                field.push('"');
-            }
-            '"' => quoted = !quoted,
-            c if c == sep && !quoted => names.push(std::mem::take(&mut field)),
-            c => field.push(c),
-        }
-    }
-    names.push(field);
-    let mut seen = std::collections::HashSet::new();
-    Ok(names.into_iter().find(|n| !seen.insert(n.clone())))
-}
-
 /// A read error as one line naming the file and, for CSV, the row where it can be found: the
 /// first byte that is not UTF-8, or a quote that is never closed.
 fn unreadable(path: &Path, format: InputFormat, delimiter: char, e: PolarsError) -> Error {
@@ -459,42 +393,6 @@ fn unreadable(path: &Path, format: InputFormat, delimiter: char, e: PolarsError)
         at: String::new(),
         message,
     }
-}
-
-/// The data row (1 = first row after the header) and the 1-based field at the end of
-/// `before`, counting quoted line breaks and commas as part of their field.
-fn csv_position(before: &[u8], delimiter: u8) -> (u64, u64) {
-    let (mut line, mut field, mut quoted) = (0u64, 1u64, false);
-    for b in before {
-        match b {
-            b'"' => quoted = !quoted,
-            b'\n' if !quoted => {
-                line += 1;
-                field = 1;
-            }
-            b if *b == delimiter && !quoted => field += 1,
-            _ => {}
-        }
-    }
-    (line, field)
-}
-
-/// The data row where a quote opens and is never closed, if any.
-fn unclosed_quote(bytes: &[u8]) -> Option<u64> {
-    let (mut line, mut quoted, mut opened) = (0u64, false, 0u64);
-    for b in bytes {
-        match b {
-            b'"' => {
-                quoted = !quoted;
-                if quoted {
-                    opened = line;
-                }
-            }
-            b'\n' => line += 1,
-            _ => {}
-        }
-    }
-    quoted.then_some(opened)
 }
 
 /// Rows used to guess CSV column types before falling back to the whole file.
@@ -564,42 +462,6 @@ fn scan(
         InputFormat::Spreadsheet => sheet::read(input, None, text)?.df.lazy(),
     };
     Ok(lf)
-}
-
-/// A CSV file (at `source`, named `input`) in UTF-16, as spreadsheets save "Unicode text",
-/// is refused by its byte-order mark: read as UTF-8 its header matched no column name.
-fn not_utf16(source: &Path, input: &Path) -> Result<()> {
-    use std::io::Read;
-    let mut start = [0u8; 2];
-    let mut file = std::fs::File::open(source).map_err(Error::io(input))?;
-    let read = file.read(&mut start).map_err(Error::io(input))?;
-    if read == 2 && matches!(start, [0xff, 0xfe] | [0xfe, 0xff]) {
-        return Err(Error::Unreadable {
-            file: input.to_path_buf(),
-            at: String::new(),
-            message: "the file is UTF-16 text (what spreadsheets save as \"Unicode text\"): \
-                      save it as CSV in UTF-8"
-                .into(),
-        });
-    }
-    Ok(())
-}
-
-/// `lf` (a CSV scan whose columns `schema` names) with each column named as its header
-/// writes it. The engine keeps a
-/// doubled quote of a quoted header name (`"net ""adj"" income"` came out as
-/// `net ""adj"" income`), where RFC 4180 makes it one quote (`net "adj" income`): such a name
-/// could be matched by no rule, and the outputs carried it doubled.
-fn names_as_written(lf: LazyFrame, schema: &Schema) -> LazyFrame {
-    let (doubled, single): (Vec<String>, Vec<String>) = schema
-        .iter_names()
-        .filter(|name| name.contains("\"\""))
-        .map(|name| (name.to_string(), name.replace("\"\"", "\"")))
-        .unzip();
-    if doubled.is_empty() {
-        return lf;
-    }
-    lf.rename(doubled, single, true)
 }
 
 /// Lowercase hex SHA-256.
