@@ -488,3 +488,51 @@ fn a_joined_table_keeps_its_codes_leading_zeros_too() {
         "{notes:?}"
     );
 }
+
+#[test]
+fn a_model_on_values_too_large_to_square_is_not_computable() {
+    // An outcome and a regressor near 1e300 make every cross product infinite: the regressor
+    // read as "not identified by every estimator", a wrong diagnosis. Now no diagnostic is
+    // computed and the model section says why; `x2` (ordinary values) is not blamed.
+    let w = Workdir::new();
+    let mut csv = String::from("firm,year,y,x1,x2\n");
+    for f in 0..12 {
+        for t in 0..4 {
+            let (a, b) = (f as f64 + 1.0, t as f64 + 1.0);
+            csv.push_str(&format!(
+                "F{f},{},{:e},{:e},{}\n",
+                2001 + t,
+                (a * b + a) * 1e300,
+                (a + b * b) * 1e300,
+                (a * 7.0 + b * 3.0) % 5.0
+            ));
+        }
+    }
+    w.write("huge.csv", &csv);
+    w.write(
+        "rules.toml",
+        "[panel]\nentity = \"firm\"\nperiod = \"year\"\n[model]\noutcome = \"y\"\n\
+         regressors = [\"x1\", \"x2\"]\n",
+    );
+    let run = w.ok(&[
+        "audit",
+        "huge.csv",
+        "--rules",
+        "rules.toml",
+        "--format",
+        "json",
+    ]);
+    let report: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+    let model = &report["model"];
+    assert_eq!(
+        model["warnings"][0],
+        "not computable: the values of y, x1 are too large to square and sum in floating-point \
+         numbers, so no diagnostic was computed (rescale them, e.g. to millions)",
+        "{model}"
+    );
+    assert_eq!(
+        model["not_identified"].as_array().unwrap().len(),
+        0,
+        "{model}"
+    );
+}

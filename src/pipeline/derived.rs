@@ -20,6 +20,8 @@ pub(super) fn derive(
         Ok(df) => df,
         Err(e) => return Err(culprit(&panel, plan, layout, input).unwrap_or(Error::Polars(e))),
     };
+    // Kept only to trace a failure: its columns not held past this point.
+    drop(panel);
     let derived = plan.null_counts(&with_hidden)?;
     let mut order = vec![col(ROW)];
     order.extend(columns.iter().map(|c| col(c.as_str())));
