@@ -536,3 +536,35 @@ fn a_model_on_values_too_large_to_square_is_not_computable() {
         "{model}"
     );
 }
+
+#[test]
+fn a_folder_whose_files_differ_names_the_file_and_column() {
+    // Files of one folder written at different times: a column typed otherwise in one file,
+    // or a column only one file has, stopped the run with the engine's words ("data type
+    // mismatch for column x: incoming: String != target: Float64"), naming neither file.
+    // String types the engine reads alike (a large string beside a string) still read.
+    let w = Workdir::new();
+    python(
+        w.dir.path(),
+        "import os, pyarrow as pa, pyarrow.parquet as pq\n\
+         def put(folder, name, **cols):\n    os.makedirs(folder, exist_ok=True)\n    \
+         pq.write_table(pa.table(dict(firm=['A'], year=[2001], **cols)), f'{folder}/{name}')\n\
+         put('typed', 'a.parquet', x=[1.0])\n\
+         put('typed', 'b.parquet', x=['n/a'])\n\
+         put('extra', 'a.parquet', x=[1.0])\n\
+         put('extra', 'b.parquet', x=[2.0], y=[3.0])\n\
+         put('alike', 'a.parquet', x=[1.0], s=pa.array(['u']))\n\
+         put('alike', 'b.parquet', x=[2.0], s=pa.array(['v'], pa.large_string()))",
+    );
+    let keys = ["--entity", "firm", "--period", "year"];
+    let line = w.fails(
+        &[&["audit", "typed"][..], &keys].concat(),
+        "column `x`: holds str values where `typed/a.parquet` holds f64",
+    );
+    assert!(line.contains("`typed/b.parquet`"), "{line}");
+    w.fails(
+        &[&["audit", "extra"][..], &keys].concat(),
+        "`extra/b.parquet`, column `y`: not in `extra/a.parquet`, the folder's first file",
+    );
+    w.ok(&[&["audit", "alike"][..], &keys].concat());
+}
