@@ -568,3 +568,40 @@ fn a_folder_whose_files_differ_names_the_file_and_column() {
     );
     w.ok(&[&["audit", "alike"][..], &keys].concat());
 }
+
+#[test]
+fn a_title_above_a_sheets_header_is_passed_over() {
+    // Workbooks from agencies and colleagues often carry a title and a blank row above the
+    // header: the title's row was taken as the header and the run stopped at its first empty
+    // cell. Rows with fewer than two cells filled above the header are passed over now,
+    // noted; sheet rows in later notes count from the sheet's top. Worked by hand: the header
+    // is sheet row 3, the data rows 4 to 6, `t`'s first text in sheet row 5; `x` has mean 2.
+    let w = Workdir::new();
+    python(
+        w.dir.path(),
+        "import openpyxl\n\
+         wb = openpyxl.Workbook()\n\
+         for row in [['Accounts of the Velmora firms, 2001-2002'], [], \
+         ['firm', 'year', 'x', 't'], ['A', 2001, 1, 5], ['A', 2002, 2, 'high'], \
+         ['B', 2001, 3, 6]]:\n    wb.active.append(row)\n\
+         wb.save('titled.xlsx')",
+    );
+    let report = audit_json(&w, "titled.xlsx");
+    assert_eq!(report["input"]["rows"], 3);
+    let x = line(&report, "x");
+    assert!((x["mean"].as_f64().unwrap() - 2.0).abs() < 1e-12, "{x}");
+    let notes: Vec<&str> = report["input"]["notes"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|n| n.as_str().unwrap())
+        .collect();
+    assert_eq!(
+        notes,
+        [
+            "sheet rows 1 to 2, above the header, passed over: fewer than two cells filled \
+             (the first: `Accounts of the Velmora firms, 2001-2002`)",
+            "column `t` mixes numbers and text (the first text in sheet row 5): read as text",
+        ]
+    );
+}

@@ -1,5 +1,6 @@
 //! Spreadsheet input (.xlsx, .xlsm, .ods) through calamine: one sheet, the header in its
-//! first non-empty row, one firm-year per row below. A column of numbers becomes numbers
+//! first row with two cells or more filled (a title and blank rows above it passed over,
+//! noted), one firm-year per row below. A column of numbers becomes numbers
 //! (whatever their display format: thousands separators, percentages and decimals are only
 //! formatting), a date cell becomes its date as text `YYYY-MM-DD`, a column with any text
 //! becomes text; text cells that look like numbers in a
@@ -164,14 +165,19 @@ pub fn read(path: &Path, sheet: Option<&str>, text: &[&str]) -> Result<Sheet> {
             sheet: name,
         });
     };
-    let mut rows = range.rows();
-    let header_cells = rows.next().unwrap_or(&[]);
+    let all: Vec<&[Data]> = range.rows().collect();
+    // Rows above the header with fewer than two cells filled — a title, a note, a blank row —
+    // are passed over: a panel's header names at least the entity and the period.
+    let filled = |r: &[Data]| r.iter().filter(|c| as_text(c).is_some()).count();
+    let skip = all.iter().position(|r| filled(r) >= 2).unwrap_or(0);
+    let header_row = row0 + skip as u32;
+    let header_cells = all.get(skip).copied().unwrap_or(&[]);
     let mut header = Vec::with_capacity(header_cells.len());
     for (j, h) in header_cells.iter().enumerate() {
         let at = format!(
             ", sheet `{name}`, cell {}{}",
             letters(col0 + j as u32),
-            row0 + 1
+            header_row + 1
         );
         let text = match h {
             Data::String(s) if !s.trim().is_empty() => s.trim().to_string(),
@@ -186,13 +192,24 @@ pub fn read(path: &Path, sheet: Option<&str>, text: &[&str]) -> Result<Sheet> {
         }
         header.push(text);
     }
-    let body: Vec<&[Data]> = rows.collect();
+    let body: Vec<&[Data]> = all.get(skip + 1..).unwrap_or_default().to_vec();
     if body.is_empty() {
         return Err(Error::NoRows {
             file: path.to_path_buf(),
         });
     }
     let mut notes = Vec::new();
+    if skip > 0 {
+        let title = all[..skip].iter().flat_map(|r| r.iter()).find_map(as_text);
+        let rows = match skip {
+            1 => format!("sheet row {header_row}"),
+            _ => format!("sheet rows {} to {header_row}", row0 + 1),
+        };
+        notes.push(format!(
+            "{rows}, above the header, passed over: fewer than two cells filled{}",
+            title.map_or(String::new(), |t| format!(" (the first: `{t}`)"))
+        ));
+    }
     let mut columns = Vec::with_capacity(header.len());
     for (j, name_j) in header.iter().enumerate() {
         if text.contains(&name_j.as_str()) {
@@ -224,7 +241,7 @@ pub fn read(path: &Path, sheet: Option<&str>, text: &[&str]) -> Result<Sheet> {
             .iter()
             .filter(|c| matches!(c, Cell::Number(_)))
             .count();
-        let sheet_row = |i: usize| row0 as usize + 2 + i;
+        let sheet_row = |i: usize| header_row as usize + 2 + i;
         let markers = cells.iter().filter(|c| matches!(c, Cell::Marker)).count();
         if first_text.is_none() && markers > 0 && numbers + number_like > 0 {
             let mut seen: Vec<(String, usize)> = Vec::new();
