@@ -29,6 +29,16 @@ fn audit_json(w: &Workdir, file: &str) -> serde_json::Value {
     serde_json::from_str(&run.stdout).unwrap()
 }
 
+/// The report's input notes.
+fn notes(report: &serde_json::Value) -> Vec<&str> {
+    report["input"]["notes"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|n| n.as_str().unwrap())
+        .collect()
+}
+
 fn line<'a>(report: &'a serde_json::Value, variable: &str) -> &'a serde_json::Value {
     report["variation"]
         .as_array()
@@ -231,12 +241,7 @@ fn numbers_padded_or_too_wide_for_integers_are_numbers() {
             (got - mean).abs() <= 1e-15 * mean,
             "{name}: {got} against {mean}"
         );
-        let notes: Vec<&str> = report["input"]["notes"]
-            .as_array()
-            .unwrap()
-            .iter()
-            .map(|n| n.as_str().unwrap())
-            .collect();
+        let notes = notes(&report);
         assert_eq!(
             notes,
             [
@@ -474,12 +479,7 @@ fn a_joined_table_keeps_its_codes_leading_zeros_too() {
         .collect();
     assert_eq!(weights, ["1.5", "2.5", "3.5", "1.5"], "{csv}");
     let report = w.json("b/report.json");
-    let notes: Vec<&str> = report["input"]["notes"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .map(|n| n.as_str().unwrap())
-        .collect();
+    let notes = notes(&report);
     assert!(
         notes.contains(
             &"joined `weights.csv`, column `sic` read as text: its values are codes written \
@@ -590,12 +590,7 @@ fn a_title_above_a_sheets_header_is_passed_over() {
     assert_eq!(report["input"]["rows"], 3);
     let x = line(&report, "x");
     assert!((x["mean"].as_f64().unwrap() - 2.0).abs() < 1e-12, "{x}");
-    let notes: Vec<&str> = report["input"]["notes"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .map(|n| n.as_str().unwrap())
-        .collect();
+    let notes = notes(&report);
     assert_eq!(
         notes,
         [
