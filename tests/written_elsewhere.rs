@@ -600,3 +600,62 @@ fn a_title_above_a_sheets_header_is_passed_over() {
         ]
     );
 }
+
+#[test]
+fn a_joined_files_names_alike_a_panel_entity_are_pointed_to() {
+    // A joined file keying a firm `k1 ` where the panel has `K1` matched nothing for it, and
+    // the report showed only counts of unmatched rows. The unmatched names alike a panel
+    // entity but for spaces or case are counted, the first pair shown, and the Keys line
+    // warns. Worked by hand: `k1 ` is alike `K1`; `L2` matches; `M3` is in no panel row.
+    let w = Workdir::new();
+    w.write(
+        "panel.csv",
+        "firm,year,x\nK1,2001,1\nK1,2002,2\nL2,2001,3\nL2,2002,4\n",
+    );
+    w.write("ratings.csv", "firm,rating\nk1 ,1.5\nL2,2.5\nM3,3.5\n");
+    w.write(
+        "rules.toml",
+        "[panel]\nentity = \"firm\"\nperiod = \"year\"\n\n[[join]]\nfile = \"ratings.csv\"\n\
+         on = [\"firm\"]\n",
+    );
+    let run = w.ok(&[
+        "audit",
+        "panel.csv",
+        "--rules",
+        "rules.toml",
+        "--format",
+        "json",
+    ]);
+    let report: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+    let join = &report["joins"][0];
+    assert_eq!(join["rows_unmatched"], 2, "{join}");
+    assert_eq!(join["alike_unmatched"], 1, "{join}");
+    assert_eq!(
+        join["alike_example"],
+        serde_json::json!(["k1 ", "K1"]),
+        "{join}"
+    );
+    let keys = verdict(&report, "Keys");
+    assert_eq!(keys["status"], "warn", "{keys}");
+    assert!(
+        keys["reason"]
+            .as_str()
+            .unwrap()
+            .contains("1 unmatched entity names of joined files alike a panel entity"),
+        "{keys}"
+    );
+    let md = w.ok(&[
+        "audit",
+        "panel.csv",
+        "--rules",
+        "rules.toml",
+        "--format",
+        "md",
+    ]);
+    assert!(
+        md.stdout
+            .contains("(first: `k1 ` in the file, `K1` in the panel)"),
+        "{}",
+        md.stdout
+    );
+}

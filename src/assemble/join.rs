@@ -98,6 +98,10 @@ pub fn join(panel: DataFrame, t: &Table, k: &Keys) -> Result<Joined> {
         })
         .collect()?;
     let rows_unmatched = lonely.height() as u64;
+    let (alike_unmatched, alike_example) = match t.on.iter().any(|o| o == k.entity) {
+        true => alike_names(&lonely, &unmatched_keys, k.entity)?,
+        false => (0, Vec::new()),
+    };
     let mut aside = t.set_aside.clone();
     aside.vstack_mut(&lonely)?;
     let ledger = ledger_rows(aside, &schema, k.columns, &name)?;
@@ -133,6 +137,8 @@ pub fn join(panel: DataFrame, t: &Table, k: &Keys) -> Result<Joined> {
         panel_keys_unmatched: unmatched_keys.height() as u64,
         examples,
         unmatched: if t.drop_unmatched { "drop" } else { "keep" }.into(),
+        alike_unmatched,
+        alike_example,
     };
     Ok(Joined {
         panel,
@@ -151,6 +157,39 @@ fn panel_keys_distinct(df: &DataFrame, on: &[String]) -> Result<u64> {
         .unique(None, UniqueKeepStrategy::Any)
         .collect()?
         .height() as u64)
+}
+
+/// The file's unmatched entity names (in `lonely`) that are a panel entity left unmatched (in
+/// `unmatched`) but for surrounding spaces or letter case (`k1 ` in the file, `K1` in the
+/// panel): how many, and the first pair, the file's name then the panel's.
+fn alike_names(
+    lonely: &DataFrame,
+    unmatched: &DataFrame,
+    entity: &str,
+) -> Result<(u64, Vec<String>)> {
+    let fold = |name: &str| name.trim().to_lowercase();
+    let panel: std::collections::HashMap<String, &str> = unmatched
+        .column(entity)?
+        .str()?
+        .iter()
+        .flatten()
+        .map(|name| (fold(name), name))
+        .collect();
+    let mut names: Vec<&str> = lonely.column(entity)?.str()?.iter().flatten().collect();
+    names.sort_unstable();
+    names.dedup();
+    let mut count = 0;
+    let mut first = Vec::new();
+    for name in names {
+        // The same name can be unmatched on both sides in other periods: not alike, one.
+        if let Some(other) = panel.get(&fold(name)).filter(|other| **other != name) {
+            count += 1;
+            if first.is_empty() {
+                first = vec![name.to_string(), other.to_string()];
+            }
+        }
+    }
+    Ok((count, first))
 }
 
 /// Keys as text, `a / b` for two columns.

@@ -165,6 +165,16 @@ pub(super) fn keys(r: &Report, lv: &Levels) -> Option<CheckVerdict> {
             ),
         ));
     }
+    let joined_alike: u64 = r.joins.iter().map(|j| j.alike_unmatched).sum();
+    if joined_alike > 0 {
+        found.push((
+            lv.of(&ALIKE_ENTITIES),
+            format!(
+                "{joined_alike} unmatched entity names of joined files alike a panel entity but \
+                 for spaces or letter case"
+            ),
+        ));
+    }
     Some(match found.iter().map(|(status, _)| *status).max() {
         None => line(
             "Keys",

@@ -171,6 +171,15 @@ fn joins(r: &Report) -> Section {
             "panel keys without a match",
             format!("{} of {}", j.panel_keys_unmatched, j.panel_keys),
         ));
+        if let [file, panel] = &j.alike_example[..] {
+            rows.push((
+                "unmatched names alike a panel entity but for spaces or case",
+                format!(
+                    "{} (first: `{file}` in the file, `{panel}` in the panel)",
+                    j.alike_unmatched
+                ),
+            ));
+        }
         blocks.push(pairs(&rows));
         let mut note = format!(
             "Every row of `{}` that did not match the panel is in the rejects ledger under its \

@@ -279,6 +279,11 @@ pub struct JoinLine {
     pub examples: Vec<String>,
     /// What happened to unmatched panel rows: "keep" (empty columns) or "drop" (ledger).
     pub unmatched: String,
+    /// The file's unmatched entity names that are an unmatched panel entity but for spaces or
+    /// letter case (`k1 ` against `K1`): most likely one firm keyed two ways.
+    pub alike_unmatched: u64,
+    /// The first such pair: the file's name, then the panel's.
+    pub alike_example: Vec<String>,
 }
 
 /// One line of the sample-construction table.
