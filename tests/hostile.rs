@@ -1474,4 +1474,23 @@ fn a_name_the_file_has_but_for_spaces_or_case_is_pointed_to() {
     );
     let leverage = skipped.iter().find(|s| s["name"] == "leverage").unwrap();
     assert!(leverage.get("near").is_none(), "{leverage}");
+    // A joined file's columns too: `on` and `columns` name what it has in other case.
+    w.write("rates.csv", "Year,CPI\n2001,1.5\n2002,1.6\n");
+    for (join, want) in [
+        (
+            "on = [\"year\"]",
+            "no column `year` (named in `on` of its [[join]] (after `rename`); the file has \
+             `Year`: names match exactly, letter case included)",
+        ),
+        (
+            "on = [\"Year\"]\ncolumns = [\"cpi\"]",
+            "no column `cpi` (named in `columns` of its [[join]]; the file has `CPI`",
+        ),
+    ] {
+        w.write(
+            "join.toml",
+            &format!("{KEYS}\n[[join]]\nfile = \"rates.csv\"\n{join}\n"),
+        );
+        w.fails(&["audit", "raw.csv", "--rules", "join.toml"], want);
+    }
 }

@@ -170,6 +170,14 @@ fn read_table(
         column: column.to_string(),
         context: context.to_string(),
     };
+    // A name the file has only with other spaces or letter case is pointed to.
+    let near = |column: &str, context: &str, among: &[String]| {
+        let context = match crate::error::near_name(column, among.iter().map(String::as_str)) {
+            Some(hint) => format!("{context}; {hint}"),
+            None => context.to_string(),
+        };
+        missing(column, &context)
+    };
     let names: Vec<String> = raw
         .get_column_names()
         .iter()
@@ -183,7 +191,7 @@ fn read_table(
     }
     for from in spec.rename.keys() {
         if !names.contains(from) {
-            return Err(missing(from, "named in `rename` of its [[join]]"));
+            return Err(near(from, "named in `rename` of its [[join]]", &names));
         }
     }
     // Every column under its panel name.
@@ -198,14 +206,18 @@ fn read_table(
     }
     for o in &spec.on {
         if !renamed.contains(o) {
-            return Err(missing(o, "named in `on` of its [[join]] (after `rename`)"));
+            return Err(near(
+                o,
+                "named in `on` of its [[join]] (after `rename`)",
+                &renamed,
+            ));
         }
     }
     let brought: Vec<String> = match &spec.columns {
         Some(list) => {
             for c in list {
                 if !renamed.contains(c) {
-                    return Err(missing(c, "named in `columns` of its [[join]]"));
+                    return Err(near(c, "named in `columns` of its [[join]]", &renamed));
                 }
                 if spec.on.contains(c) {
                     return Err(setting(format!(
