@@ -188,6 +188,15 @@ pub enum Error {
 }
 
 impl Error {
+    /// The expression `expr` of `rule` ("derived variable `x`", "accounting rule `r`"), which
+    /// the engine could not evaluate on the panel's columns: named, with the engine's reason.
+    pub(crate) fn evaluation(rule: String, expr: &str, e: &polars::prelude::PolarsError) -> Error {
+        Error::RuleExpr {
+            rule,
+            message: format!("`{expr}`: {}", one_line(&e.to_string())),
+        }
+    }
+
     /// The exit code this error maps to: usage, input and rules errors are all 2.
     pub fn code(&self) -> i32 {
         2

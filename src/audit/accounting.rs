@@ -179,30 +179,23 @@ pub fn count(
 /// engine's words alone.
 fn check(df: &DataFrame, rules: &[CompiledRule]) -> Result<()> {
     for r in rules {
-        let named = |message: String| Error::RuleExpr {
-            rule: format!("accounting rule `{}`", r.name),
-            message,
-        };
         let schema = df
             .clone()
             .lazy()
             .select([r.holds.clone().alias("holds")])
             .collect_schema()
-            .map_err(|e| {
-                named(format!(
-                    "`{}`: {}",
-                    r.text,
-                    crate::error::one_line(&e.to_string())
-                ))
-            })?;
+            .map_err(|e| Error::evaluation(rule_label(r), &r.text, &e))?;
         match schema.get("holds") {
             Some(DataType::Boolean | DataType::Null) | None => {}
             Some(other) => {
-                return Err(named(format!(
-                    "`{}` gives values of type {other}, not true / false: a rule is a condition \
-                     each row must meet",
-                    r.text
-                )))
+                return Err(Error::RuleExpr {
+                    rule: rule_label(r),
+                    message: format!(
+                        "`{}` gives values of type {other}, not true / false: a rule is a \
+                         condition each row must meet",
+                        r.text
+                    ),
+                })
             }
         }
     }
@@ -218,11 +211,13 @@ fn culprit(df: &DataFrame, rules: &[CompiledRule]) -> Option<Error> {
             .select([r.holds.clone()])
             .collect()
             .err()?;
-        Some(Error::RuleExpr {
-            rule: format!("accounting rule `{}`", r.name),
-            message: format!("`{}`: {}", r.text, crate::error::one_line(&e.to_string())),
-        })
+        Some(Error::evaluation(rule_label(r), &r.text, &e))
     })
+}
+
+/// How errors name rule `r`.
+fn rule_label(r: &CompiledRule) -> String {
+    format!("accounting rule `{}`", r.name)
 }
 
 /// Where a `null` rule does not hold, set its columns to null; returns the new frame.

@@ -116,6 +116,26 @@ pub(super) fn is_marker(text: &str) -> bool {
     MARKERS.iter().any(|m| t.eq_ignore_ascii_case(m))
 }
 
+/// The note's words for the marker cells `marked` (as written): how many, each marker with
+/// how often in order of first appearance — "2 cells marking a missing number (`NA` 1, `.` 1)
+/// read as missing".
+pub(super) fn markers_read_as_missing<'a>(marked: impl Iterator<Item = &'a str>) -> String {
+    let mut seen: Vec<(&str, usize)> = Vec::new();
+    for v in marked.map(str::trim) {
+        match seen.iter_mut().find(|(s, _)| *s == v) {
+            Some((_, n)) => *n += 1,
+            None => seen.push((v, 1)),
+        }
+    }
+    let listed: Vec<String> = seen.iter().map(|(s, n)| format!("`{s}` {n}")).collect();
+    let cells = seen.iter().map(|(_, n)| n).sum();
+    format!(
+        "{} marking a missing number ({}) read as missing",
+        how_many_cells(cells),
+        listed.join(", ")
+    )
+}
+
 /// `value` as a note shows it: at most 40 characters.
 fn shortened(value: &str) -> String {
     match value.char_indices().nth(40) {
@@ -139,7 +159,7 @@ fn cell(text: Option<&str>, decimal_comma: bool) -> Option<Cell> {
         return Some(Cell::Missing);
     };
     let t = text.trim();
-    if MARKERS.iter().any(|m| t.eq_ignore_ascii_case(m)) {
+    if is_marker(t) {
         return Some(Cell::Marker);
     }
     if let Some(n) = plain(t, decimal_comma) {
@@ -305,23 +325,11 @@ pub(crate) fn numbers_with_markers(
         }
         let mut parts = Vec::new();
         if markers > 0 {
-            // Each marker as written, with how often, in order of first appearance.
-            let mut seen: Vec<(&str, usize)> = Vec::new();
-            for (v, c) in values.iter().zip(&cells) {
-                if let (Some(v), Cell::Marker) = (v, c) {
-                    let v = v.trim();
-                    match seen.iter_mut().find(|(s, _)| *s == v) {
-                        Some((_, n)) => *n += 1,
-                        None => seen.push((v, 1)),
-                    }
-                }
-            }
-            let listed: Vec<String> = seen.iter().map(|(s, n)| format!("`{s}` {n}")).collect();
-            parts.push(format!(
-                "{} marking a missing number ({}) read as missing",
-                how_many_cells(markers),
-                listed.join(", ")
-            ));
+            let marked = values
+                .iter()
+                .zip(&cells)
+                .filter_map(|(v, c)| v.filter(|_| matches!(c, Cell::Marker)));
+            parts.push(markers_read_as_missing(marked));
         }
         if let Some(first) = first_padded {
             parts.push(format!(

@@ -244,23 +244,13 @@ pub fn read(path: &Path, sheet: Option<&str>, text: &[&str]) -> Result<Sheet> {
         let sheet_row = |i: usize| header_row as usize + 2 + i;
         let markers = cells.iter().filter(|c| matches!(c, Cell::Marker)).count();
         if first_text.is_none() && markers > 0 && numbers + number_like > 0 {
-            let mut seen: Vec<(String, usize)> = Vec::new();
-            for r in &body {
-                if let Some(Data::String(v)) = r.get(j) {
-                    let v = v.trim();
-                    if super::markers::is_marker(v) {
-                        match seen.iter_mut().find(|(s, _)| s == v) {
-                            Some((_, n)) => *n += 1,
-                            None => seen.push((v.to_string(), 1)),
-                        }
-                    }
-                }
-            }
-            let listed: Vec<String> = seen.iter().map(|(s, n)| format!("`{s}` {n}")).collect();
+            let marked = body.iter().filter_map(|r| match r.get(j) {
+                Some(Data::String(v)) if super::markers::is_marker(v) => Some(v.as_str()),
+                _ => None,
+            });
             notes.push(format!(
-                "column `{name_j}`: {} marking a missing number ({}) read as missing",
-                super::markers::how_many_cells(markers),
-                listed.join(", ")
+                "column `{name_j}`: {}",
+                super::markers::markers_read_as_missing(marked)
             ));
         }
         let column = match first_text {

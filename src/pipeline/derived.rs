@@ -51,13 +51,13 @@ fn culprit(panel: &DataFrame, plan: &Plan, layout: Layout, input: &InputConfig) 
         part.apply(panel.clone().lazy(), &input.entity, &input.period, layout)
             .0
     };
-    let named = |k: usize, e: PolarsError| Error::RuleExpr {
-        rule: format!("derived variable `{}`", plan.vars[k].name),
-        message: format!(
-            "`{}`: {}",
-            plan.vars[k].rule.expr,
-            crate::error::one_line(&e.to_string())
-        ),
+    let named = |k: usize, e: PolarsError| {
+        let var = &plan.vars[k];
+        Error::evaluation(
+            format!("derived variable `{}`", var.name),
+            &var.rule.expr,
+            &e,
+        )
     };
     let vars = 0..plan.vars.len();
     vars.clone()
