@@ -170,7 +170,9 @@ fn variation_that_cannot_be_computed_says_why() {
 fn parquet_columns_the_engine_cannot_hold_are_named() {
     // A half-precision column crashed the run inside the engine's type conversion (exit 3, "a
     // bug"); two columns of one name stopped it with the engine's own words. Both now stop
-    // with one line naming the file and the column, before anything is written.
+    // with one line naming the file and the column, before anything is written. Source:
+    // the files are pyarrow's own (its `halffloat` type, a table built with a repeated name);
+    // the expected lines are our messages.
     let w = Workdir::new();
     python(
         w.dir.path(),
@@ -261,6 +263,8 @@ fn csv_files_in_another_shape_say_what_they_seem_to_be() {
     // A file separated by semicolons or tabs read with commas has one column named by its
     // whole header, and a UTF-16 file ("Unicode text" from a spreadsheet) has a header of
     // bytes the UTF-8 reader does not match: both stopped with "no column `firm`" alone.
+    // Source: common practice (spreadsheets save "Unicode text" as UTF-16 little-endian with
+    // the byte-order mark FF FE, from memory; the test writes exactly those bytes).
     let w = Workdir::new();
     w.write("semi.csv", "firm;year;x\nA;2001;1\nB;2001;2\n");
     w.write("tabs.csv", "firm\tyear\tx\nA\t2001\t1\nB\t2001\t2\n");
@@ -411,7 +415,9 @@ fn codes_written_with_leading_zeros_keep_them() {
     // An industry code `0100` or a postal code `02139` in a CSV file was read as the whole
     // number 100 or 2139: `0100` and `100` became one code, and the codes were averaged as
     // amounts. A column of digits with a leading zero among its first values is text now,
-    // noted; in a spreadsheet a code typed as text with its zeros stays text too.
+    // noted; in a spreadsheet a code typed as text with its zeros stays text too. Source:
+    // common practice (industry and postal codes are identifiers written with their leading
+    // zeros); the panel.csv lines expected are worked by hand.
     let w = Workdir::new();
     w.write(
         "codes.csv",
@@ -493,7 +499,9 @@ fn a_joined_table_keeps_its_codes_leading_zeros_too() {
 fn a_model_on_values_too_large_to_square_is_not_computable() {
     // An outcome and a regressor near 1e300 make every cross product infinite: the regressor
     // read as "not identified by every estimator", a wrong diagnosis. Now no diagnostic is
-    // computed and the model section says why; `x2` (ordinary values) is not blamed.
+    // computed and the model section says why; `x2` (ordinary values) is not blamed. Worked
+    // by hand: every value of `y` and `x1` is at least 2e300, whose square (4e600) passes the
+    // largest double, about 1.8e308 (IEEE 754); `x2` stays below 5.
     let w = Workdir::new();
     let mut csv = String::from("firm,year,y,x1,x2\n");
     for f in 0..12 {
@@ -543,6 +551,8 @@ fn a_folder_whose_files_differ_names_the_file_and_column() {
     // or a column only one file has, stopped the run with the engine's words ("data type
     // mismatch for column x: incoming: String != target: Float64"), naming neither file.
     // String types the engine reads alike (a large string beside a string) still read.
+    // Source: the files are pyarrow's; the engine's reading a large and a plain string alike
+    // is its behaviour in polars 0.55, from a run (the third folder).
     let w = Workdir::new();
     python(
         w.dir.path(),
