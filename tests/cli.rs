@@ -452,10 +452,11 @@ fn a_regressor_absorbed_by_entity_effects_is_named_and_kept_where_identified() {
 /// A panel that triggers every finding the verdict knows, hand-planted: a gap (F01), a
 /// singleton (F02), an exact copy (F03 2002), a conflicting key (F04 2002), a missing key,
 /// leavers far above stayers in `z`, a time-invariant regressor (`founded`), a nearly
-/// absorbed `w`, a coverage break in `m` (missing before 2004), a ×1000 slip in F05's assets
-/// in 2003, a broken accounting rule, and 30 entities (few clusters).
+/// absorbed `w`, a coverage break in `m` (missing before 2004), a column `e` with no value, a
+/// ×1000 slip in F05's assets in 2003, a broken accounting rule, and 30 entities (few
+/// clusters).
 fn every_finding() -> String {
-    let mut out = String::from("firm,year,assets,x,y,z,w,m,founded\n");
+    let mut out = String::from("firm,year,assets,x,y,z,w,m,founded,e\n");
     for i in 1..=30u32 {
         let leaves = i > 20;
         let years: Vec<u32> = match i {
@@ -482,22 +483,22 @@ fn every_finding() -> String {
             };
             let x = noise * (t as f64 - 2000.0);
             let y = 2.0 * x + noise;
-            let line = format!("F{i:02},{t},{assets},{x},{y},{z},{w},{m},{}\n", 1950 + i);
+            let line = format!("F{i:02},{t},{assets},{x},{y},{z},{w},{m},{},\n", 1950 + i);
             out.push_str(&line);
             if (i, t) == (3, 2002) {
                 out.push_str(&line);
             }
             if (i, t) == (4, 2002) {
                 out.push_str(&format!(
-                    "F04,2002,{assets},{x},{},{z},{w},{m},1954\n",
+                    "F04,2002,{assets},{x},{},{z},{w},{m},1954,\n",
                     y + 1.0
                 ));
             }
         }
     }
     // F02 keyed a second way: an entity name alike but for spaces and case.
-    out.push_str("f02 ,2003,1,1,1,1,1,1,1952\n");
-    out.push_str(",2003,1,1,1,1,1,1,1\n");
+    out.push_str("f02 ,2003,1,1,1,1,1,1,1952,\n");
+    out.push_str(",2003,1,1,1,1,1,1,1,\n");
     out
 }
 
@@ -514,6 +515,7 @@ fn every_verdict_level_sets_its_finding() {
         ("attrition", "Entry and exit", ""),
         ("absorbed_regressor", "Absorbed by fixed effects", ""),
         ("nearly_absorbed", "Absorbed by fixed effects", ""),
+        ("empty_variables", "Missing values", ""),
         ("missing_breaks", "Missing values", ""),
         ("unit_slips", "Outliers and unit slips", ""),
         ("rule_violations", "Accounting rules", ""),
@@ -708,6 +710,141 @@ fn a_check_that_examined_nothing_says_not_checked_and_lags_raise_no_break() {
     assert!(
         !breaks.iter().any(|(v, p)| v != "x" && *p <= 2003),
         "{breaks:?}"
+    );
+}
+
+/// Each check's verdict line, by check name, from an `audit --format json` report.
+fn statuses(report: &serde_json::Value) -> Vec<(String, String)> {
+    report["verdict"]["checks"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|c| {
+            let name = c["check"].as_str().unwrap().to_string();
+            (name, c["status"].as_str().unwrap().to_string())
+        })
+        .collect()
+}
+
+#[test]
+fn checks_that_no_row_reached_say_not_checked() {
+    // A drop rule every row breaks: the key steps and the rule examined the 6 rows read, every
+    // check after them examined none. Before, an empty panel passed Coverage ("no gaps and no
+    // singletons"), the absorption and the unit-slip search.
+    let w = Workdir::new();
+    w.write(
+        "p.csv",
+        "firm,year,assets,x
+A,2001,1,5
+A,2002,2,6
+B,2001,3,7
+B,2002,4,8
+C,2001,5,9
+C,2002,6,1
+",
+    );
+    w.write(
+        "r.toml",
+        "[panel]\nentity = \"firm\"\nperiod = \"year\"\n[audit]\nlevels = [\"assets\"]\n\
+         [[rule]]\nname = \"never\"\nexpr = \"assets < 0\"\naction = \"drop\"\n",
+    );
+    let r = w.ok(&["audit", "p.csv", "--rules", "r.toml", "--format", "json"]);
+    let report: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+    let want = [
+        ("Keys", "pass"),
+        ("Coverage", "not checked"),
+        ("Entry and exit", "not checked"),
+        ("Absorbed by fixed effects", "not checked"),
+        ("Missing values", "not checked"),
+        ("Outliers and unit slips", "not checked"),
+        ("Accounting rules", "warn"),
+        ("Cleaned panel", "fail"),
+    ];
+    let want: Vec<(String, String)> = want
+        .iter()
+        .map(|(c, s)| (c.to_string(), s.to_string()))
+        .collect();
+    assert_eq!(statuses(&report), want);
+    let reason = &report["verdict"]["checks"][1]["reason"];
+    assert!(
+        reason.as_str().unwrap().contains("the 6 rows read were all removed"),
+        "{reason}"
+    );
+}
+
+#[test]
+fn unit_slips_are_not_searched_without_consecutive_periods() {
+    // Every firm observed every other year: no row has its entity's period before, so no
+    // change exists to search (counted by hand: 0 pairs). With the years made consecutive,
+    // each of the 3 firms has 2 changes, 6 in all, and a slip planted in B is found.
+    let w = Workdir::new();
+    let rows = |step: i64, slip: f64| {
+        let mut csv = String::from("firm,year,assets\n");
+        for (i, f) in ["A", "B", "C"].iter().enumerate() {
+            for k in 0..3i64 {
+                let planted = if *f == "B" && k == 1 { slip } else { 1.0 };
+                let assets = (100 + i as i64 * 10 + k) as f64 * planted;
+                csv.push_str(&format!("{f},{},{assets}\n", 2001 + k * step));
+            }
+        }
+        csv
+    };
+    w.write(
+        "r.toml",
+        "[panel]\nentity = \"firm\"\nperiod = \"year\"\n[audit]\nlevels = [\"assets\"]\n",
+    );
+    for (step, slip, pairs, status) in [(2, 1000.0, 0, "not checked"), (1, 1000.0, 6, "warn")] {
+        w.write("p.csv", &rows(step, slip));
+        let r = w.ok(&["audit", "p.csv", "--rules", "r.toml", "--format", "json"]);
+        let report: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+        assert_eq!(report["unit_slips_pairs"], pairs, "step {step}");
+        let line = statuses(&report)
+            .into_iter()
+            .find(|(c, _)| c == "Outliers and unit slips")
+            .unwrap();
+        assert_eq!(line.1, status, "step {step}");
+        let text = w.ok(&["audit", "p.csv", "--rules", "r.toml"]).stdout;
+        assert_eq!(
+            text.contains("Unit slips not searched: no entity is observed in two consecutive"),
+            pairs == 0,
+            "{text}"
+        );
+    }
+}
+
+#[test]
+fn a_robust_z_without_spread_is_not_computable() {
+    // An indicator with 7 zeros in 10 values: its median is 0 and so is its MAD (7 of the 10
+    // absolute deviations are 0; worked by hand), so every 1 would have an infinite robust z:
+    // not computable, shown as a dash and null, where before it counted 0. `x` has spread
+    // (values 1 to 10: median 5.5, MAD 2.5 × 1.4826 = 3.7065, no |value − 5.5| above 5 ×
+    // that) and keeps its count, 0.
+    let w = Workdir::new();
+    let mut csv = String::from("firm,year,flag,x\n");
+    for i in 0..10 {
+        let f = ["A", "B"][i / 5];
+        csv.push_str(&format!("{f},{},{},{}\n", 2001 + i % 5, u8::from(i >= 7), i + 1));
+    }
+    w.write("p.csv", &csv);
+    let args = ["audit", "p.csv", "--entity", "firm", "--period", "year"];
+    let r = w.ok(&[&args[..], &["--format", "json"]].concat());
+    let report: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+    let line = |v: &str| {
+        report["outliers"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|o| o["variable"] == v)
+            .unwrap()
+            .clone()
+    };
+    assert_eq!(line("flag")["mad"], 0.0);
+    assert!(line("flag")["robust_z_beyond"].is_null());
+    assert_eq!(line("x")["robust_z_beyond"], 0);
+    let text = w.ok(&args).stdout;
+    assert!(
+        text.contains("Robust z not computable (–): `flag` (a MAD of zero"),
+        "{text}"
     );
 }
 

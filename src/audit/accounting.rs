@@ -6,7 +6,7 @@ use std::collections::BTreeSet;
 
 use polars::prelude::*;
 
-use super::verdict::{level_key, line, CheckVerdict, LevelKey, Levels, Status};
+use super::verdict::{counted, level_key, line, CheckVerdict, LevelKey, Levels, Status};
 use crate::report::{Report, RuleLine, SkippedRule};
 use crate::rules::expr::{self, Scope};
 use crate::rules::{Origin, Rules, CANONICAL_COLUMNS};
@@ -321,13 +321,17 @@ pub fn verdict(r: &Report, lv: &Levels) -> Option<CheckVerdict> {
         line(
             "Accounting rules",
             lv.of(&RULE_VIOLATIONS),
-            format!("{broken} rule violations"),
+            counted(broken, "rule violation", "rule violations"),
         )
     } else {
         line(
             "Accounting rules",
             Pass,
-            format!("{} rules hold on every row", r.rules.len()),
+            counted(
+                r.rules.len() as u64,
+                "rule holds on every row",
+                "rules hold on every row",
+            ),
         )
     })
 }

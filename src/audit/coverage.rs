@@ -5,7 +5,7 @@
 use polars::prelude::*;
 
 use super::names::*;
-use super::verdict::{level_key, line, worst, CheckVerdict, LevelKey, Levels, Status};
+use super::verdict::{counted, level_key, line, worst, CheckVerdict, LevelKey, Levels, Status};
 use super::{scalar_f64, scalar_u64, unchanged, Check, Context};
 use crate::report::layout::{num, pairs, strings, Block, Section};
 use crate::report::{
@@ -104,13 +104,17 @@ impl Check for Coverage {
         if c.entities_with_gaps > 0 {
             coverage.push((
                 lv.of(&GAPS_LEVEL),
-                format!("{} entities with gaps", c.entities_with_gaps),
+                counted(
+                    c.entities_with_gaps,
+                    "entity with gaps",
+                    "entities with gaps",
+                ),
             ));
         }
         if c.singletons > 0 {
             coverage.push((
                 lv.of(&SINGLETONS_LEVEL),
-                format!("{} singletons", c.singletons),
+                counted(c.singletons, "singleton", "singletons"),
             ));
         }
         Some(if coverage.is_empty() {

@@ -3,7 +3,7 @@
 
 use polars::prelude::*;
 
-use super::verdict::{level_key, line, CheckVerdict, LevelKey, Levels, Status};
+use super::verdict::{counted, level_key, line, worst, CheckVerdict, LevelKey, Levels, Status};
 use super::{unchanged, Check, Context};
 use crate::report::layout::{num, strings, Block, Section};
 use crate::report::{
@@ -13,6 +13,8 @@ use crate::Result;
 
 /// Sharp changes in a variable's missing share between periods.
 pub const MISSING_BREAKS: LevelKey = level_key!("missing_breaks", Warn);
+/// A variable with no value in any row (often a column mapped by mistake, or not delivered).
+pub const EMPTY_VARIABLES: LevelKey = level_key!("empty_variables", Warn);
 
 /// Missing values.
 pub struct Missing;
@@ -111,7 +113,7 @@ impl Check for Missing {
     }
 
     fn levels(&self) -> Vec<LevelKey> {
-        vec![MISSING_BREAKS]
+        vec![EMPTY_VARIABLES, MISSING_BREAKS]
     }
 
     /// Treatment changes values, never whether one is missing: the figures as read stand.
@@ -127,24 +129,43 @@ impl Check for Missing {
     fn verdict(&self, r: &Report, lv: &Levels) -> Option<CheckVerdict> {
         use Status::*;
         let f = r.findings.get::<Figures>()?;
+        let empty: Vec<&str> = f
+            .lines
+            .iter()
+            .filter(|m| m.missing > 0 && m.share >= 1.0)
+            .map(|m| m.variable.as_str())
+            .collect();
+        let mut found = Vec::new();
+        if !empty.is_empty() {
+            found.push((
+                lv.of(&EMPTY_VARIABLES),
+                format!("no value in any row: {}", empty.join(", ")),
+            ));
+        }
+        if !f.breaks.is_empty() {
+            found.push((
+                lv.of(&MISSING_BREAKS),
+                counted(
+                    f.breaks.len() as u64,
+                    "coverage break between periods",
+                    "coverage breaks between periods",
+                ),
+            ));
+        }
         Some(if f.lines.is_empty() {
             line(
                 "Missing values",
                 NotChecked,
                 "no variable besides the keys".into(),
             )
-        } else if f.breaks.is_empty() {
+        } else if found.is_empty() {
             line(
                 "Missing values",
                 Pass,
                 "no sharp change in coverage between periods".into(),
             )
         } else {
-            line(
-                "Missing values",
-                lv.of(&MISSING_BREAKS),
-                format!("{} coverage breaks between periods", f.breaks.len()),
-            )
+            worst("Missing values", found)
         })
     }
 }

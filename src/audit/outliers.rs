@@ -4,7 +4,7 @@
 //! Missing values never enter a cutoff.
 
 use super::verdict::{
-    level_key, line as verdict_line, worst, CheckVerdict, LevelKey, Levels, Status,
+    counted, level_key, line as verdict_line, worst, CheckVerdict, LevelKey, Levels, Status,
 };
 use super::{unit_slips, Check, Context, Settings};
 use crate::core::{in_batches, quantiles, quantiles_visiting, PanelCore, Values, View};
@@ -33,6 +33,8 @@ pub struct Figures {
     pub total: u64,
     /// How many level variables were searched for unit slips.
     pub searched: u64,
+    /// Rows whose entity was observed in the period before: the changes searched.
+    pub pairs: u64,
 }
 
 impl Check for Outliers {
@@ -68,6 +70,7 @@ impl Check for Outliers {
         }
         f.total = found.total;
         f.searched = found.searched;
+        f.pairs = found.pairs;
         f.slips = found.slips;
         Ok(Box::new(f))
     }
@@ -83,7 +86,7 @@ impl Check for Outliers {
         if r.total > 0 {
             outliers.push((
                 lv.of(&UNIT_SLIPS),
-                format!("{} suspected unit slips", r.total),
+                counted(r.total, "suspected unit slip", "suspected unit slips"),
             ));
         }
         if r.lines.iter().any(|o| o.small_groups) {
@@ -97,11 +100,22 @@ impl Check for Outliers {
                 NotChecked,
                 "no level variable to search for unit slips".into(),
             )
+        } else if r.pairs == 0 {
+            verdict_line(
+                "Outliers and unit slips",
+                NotChecked,
+                "no entity is observed in two consecutive periods, so no change was searched \
+                 for unit slips"
+                    .into(),
+            )
         } else {
             verdict_line(
                 "Outliers and unit slips",
                 Pass,
-                format!("no unit slips in {} level variables", r.searched),
+                format!(
+                    "no unit slips in {}",
+                    counted(r.searched, "level variable", "level variables")
+                ),
             )
         })
     }
@@ -114,6 +128,7 @@ impl Finding for Figures {
             ("unit_slips", &self.slips),
             ("unit_slips_total", &self.total),
             ("unit_slips_searched", &self.searched),
+            ("unit_slips_pairs", &self.pairs),
         ]
     }
 
@@ -133,7 +148,7 @@ fn section(f: &Figures, r: &Report) -> Section {
                 opt_level(o.upper),
                 o.below.to_string(),
                 o.above.to_string(),
-                o.robust_z_beyond.to_string(),
+                o.robust_z_beyond.map_or("–".into(), |n| n.to_string()),
                 o.log_jumps.map_or("–".into(), |j| j.to_string()),
             ]
         })
@@ -170,6 +185,19 @@ fn section(f: &Figures, r: &Report) -> Section {
                 _ => " over all rows".to_string(),
             }
         )));
+        let undefined: Vec<String> = f
+            .lines
+            .iter()
+            .filter(|o| o.robust_z_beyond.is_none())
+            .map(|o| format!("`{}`", o.variable))
+            .collect();
+        if !undefined.is_empty() {
+            blocks.push(Block::Note(format!(
+                "Robust z not computable (–): {} (a MAD of zero, half the values or more equal \
+                 to the median, as in an indicator or a mostly-zero amount; or no value).",
+                undefined.join(", ")
+            )));
+        }
         if by == Some(CutoffGroups::Groups) {
             let fell: Vec<String> = f
                 .lines
@@ -195,7 +223,14 @@ fn section(f: &Figures, r: &Report) -> Section {
     }
     if f.slips.is_empty() {
         blocks.push(Block::Note(
-            "No unit slips found in the level variables.".into(),
+            match (f.searched, f.pairs) {
+                (0, _) => "No level variable to search for unit slips.",
+                (_, 0) => {
+                    "Unit slips not searched: no entity is observed in two consecutive periods."
+                }
+                _ => "No unit slips found in the level variables.",
+            }
+            .into(),
         ));
     } else {
         let rows = f
@@ -342,12 +377,12 @@ fn line(
             (None, None, if groups.is_empty() { 0 } else { smallest })
         }
     };
-    // Robust z from the pooled median and MAD; with a MAD of zero nothing is counted.
+    // Robust z from the pooled median and MAD; with a MAD of zero it is not defined.
     let median = match median {
         Some(m) => m,
         None => quantiles(&x, n, |v| v, &[0.5])[0],
     };
-    let (mut robust_z_beyond, mut mad) = (0u64, None);
+    let (mut robust_z_beyond, mut mad) = (None, None);
     if let Some(m) = median {
         let pass = mad_pass(&x, n, m, (lower, upper), s.robust_z);
         below += pass.below;
@@ -382,8 +417,8 @@ struct MadPass {
     above: u64,
     /// 1.4826 × the median absolute deviation from `m`.
     mad: Option<f64>,
-    /// Values whose robust z is beyond the threshold (none with a MAD of zero).
-    robust_z_beyond: u64,
+    /// Values whose robust z is beyond the threshold (None with a MAD of zero: not defined).
+    robust_z_beyond: Option<u64>,
     /// Whether the robust z was counted in the same pass (else in a pass of its own; the
     /// tests hold that the first is the usual case).
     #[cfg_attr(not(test), allow(dead_code))]
@@ -408,9 +443,9 @@ fn mad_pass(x: &View, n: usize, m: f64, cutoffs: (Option<f64>, Option<f64>), z: 
     );
     let beyond = counts.expect("the visitor is always made");
     let mad = q[0].map(|d| d * MAD_SCALE);
-    let (mut robust_z_beyond, mut fused) = (0, false);
+    let (mut robust_z_beyond, mut fused) = (None, false);
     if let Some(d) = mad.filter(|d| *d > 0.0) {
-        (robust_z_beyond, fused) = match beyond.z_count(d) {
+        let (count, in_pass) = match beyond.z_count(d) {
             Some(count) => (count, true),
             // The MAD fell outside its bracket (or there was none): one more pass.
             None => (
@@ -418,6 +453,7 @@ fn mad_pass(x: &View, n: usize, m: f64, cutoffs: (Option<f64>, Option<f64>), z: 
                 false,
             ),
         };
+        (robust_z_beyond, fused) = (Some(count), in_pass);
     }
     MadPass {
         below: beyond.below,
@@ -532,7 +568,7 @@ mod tests {
     /// against numpy in tests/reference), then |v - m| / (1.4826 MAD) > z. Columns larger than
     /// the quantiles' sampling threshold, so that the bracket and its band are used: spread
     /// values with far tails, small whole numbers whose deviations land exactly on the
-    /// threshold, missing values and NaN, and a constant (a MAD of zero: nothing counted).
+    /// threshold, missing values and NaN, and a constant (a MAD of zero: the robust z undefined, no count).
     #[test]
     fn robust_z_counted_in_the_mads_pass_equals_its_definition() {
         let mut seed = 0x9e37_79b9_7f4a_7c15u64;
@@ -578,11 +614,9 @@ mod tests {
             let d = type7(&mut dev, 0.5).unwrap() * MAD_SCALE;
             for z in [0.5, 1.0, 2.0 / MAD_SCALE, 3.5] {
                 let pass = mad_pass(&x, present.len(), m, (Some(-100.0), Some(100.0)), z);
-                let expected = if d > 0.0 {
-                    present.iter().filter(|v| (*v - m).abs() / d > z).count() as u64
-                } else {
-                    0
-                };
+                // A MAD of zero leaves the robust z undefined: no count.
+                let expected = (d > 0.0)
+                    .then(|| present.iter().filter(|v| (*v - m).abs() / d > z).count() as u64);
                 assert_eq!(pass.robust_z_beyond, expected, "{name}, z {z}");
                 assert_eq!(pass.mad.map(f64::to_bits), Some(d.to_bits()), "{name}");
                 let below = present.iter().filter(|v| **v < -100.0).count() as u64;

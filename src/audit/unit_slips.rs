@@ -18,11 +18,13 @@ type Found = (Vec<(usize, i32, bool)>, u64);
 const LISTED: usize = 10_000;
 
 /// What the unit-slip search found: the slips (the first `LISTED`), their total, the level
-/// variables searched, and each one's count of large jumps in the log level.
+/// variables searched, the rows whose entity has the period before (each a change searched),
+/// and each variable's count of large jumps in the log level.
 pub(super) struct Search {
     pub slips: Vec<UnitSlip>,
     pub total: u64,
     pub searched: u64,
+    pub pairs: u64,
     pub jumps: Vec<(String, u64)>,
 }
 
@@ -34,6 +36,7 @@ pub(super) fn search(ctx: &Context) -> Result<Search> {
             slips: Vec::new(),
             total: 0,
             searched: 0,
+            pairs: 0,
             jumps: Vec::new(),
         });
     }
@@ -41,6 +44,7 @@ pub(super) fn search(ctx: &Context) -> Result<Search> {
     // period of the same entity comes from the panel core's codes, once; then one typed
     // pass per level variable (in parallel) with the detector the repair uses.
     let back = ctx.core.previous_period();
+    let pairs = back.iter().filter(|b| **b).count() as u64;
     let log_jump = ctx.settings.log_jump;
     // Below this |log10 ratio| a change is neither a slip nor a jump (with a margin far above
     // rounding): most rows, whose logarithm is then not taken.
@@ -118,6 +122,7 @@ pub(super) fn search(ctx: &Context) -> Result<Search> {
         slips,
         total,
         searched: levels.len() as u64,
+        pairs,
         jumps: jump_counts,
     })
 }

@@ -5,7 +5,7 @@
 
 use polars::prelude::*;
 
-use super::verdict::{self, level_key, worst, CheckVerdict, LevelKey, Levels, Status};
+use super::verdict::{self, counted, level_key, worst, CheckVerdict, LevelKey, Levels, Status};
 use super::{own, Check, Context};
 use crate::core::{in_batches, PanelCore, Values};
 use crate::report::layout::{opt, opt_level, strings, Block, Section};
@@ -161,7 +161,10 @@ impl Check for Variation {
             verdict::line(
                 "Absorbed by fixed effects",
                 Pass,
-                format!("{absorbed} variables absorbed (time-invariant traits or macro series), none nearly{left_out}"),
+                format!(
+                    "{} absorbed (time-invariant traits or macro series), none nearly{left_out}",
+                    counted(absorbed as u64, "variable", "variables")
+                ),
             )
         } else {
             worst("Absorbed by fixed effects", absorption)

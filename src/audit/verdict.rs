@@ -119,7 +119,12 @@ pub(crate) fn line(check: &str, status: Status, reason: String) -> CheckVerdict 
 pub fn judge(r: &Report, lv: &Levels) -> Verdict {
     let mut checks: Vec<CheckVerdict> = Vec::new();
     checks.extend(keys(r, lv));
-    checks.extend(super::registry().iter().filter_map(|c| c.verdict(r, lv)));
+    for check in super::registry() {
+        checks.extend(check.verdict(r, lv).map(|v| match r.panel.rows {
+            0 => unexamined(v, r),
+            _ => v,
+        }));
+    }
     checks.extend(super::accounting::verdict(r, lv));
     checks.extend(super::model::verdict(r, lv));
     checks.extend(emptied(r));
@@ -188,6 +193,20 @@ pub(super) fn keys(r: &Report, lv: &Levels) -> Option<CheckVerdict> {
     })
 }
 
+/// A check's line when no row reached the checks (the key steps or the accounting rules
+/// removed every row read): whatever its figures, it examined nothing.
+fn unexamined(v: CheckVerdict, r: &Report) -> CheckVerdict {
+    line(
+        &v.check,
+        Status::NotChecked,
+        format!(
+            "no row to check: the {} rows read were all removed before the checks (see the \
+             sample construction)",
+            r.input.rows
+        ),
+    )
+}
+
 /// A line only when cleaning left no row of a panel that had some (a balancing window outside
 /// the data, a rule every row breaks): every other line judges the panel as read, so without
 /// it an empty hand-over could pass.
@@ -204,6 +223,11 @@ fn emptied(r: &Report) -> Option<CheckVerdict> {
             ),
         )
     })
+}
+
+/// `n` and the noun after it, singular for one: "1 singleton", "3 singletons".
+pub(crate) fn counted(n: u64, one: &str, many: &str) -> String {
+    format!("{n} {}", if n == 1 { one } else { many })
 }
 
 /// One line at the worst level among several findings, their reasons joined.

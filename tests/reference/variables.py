@@ -118,7 +118,8 @@ def check_outliers(df, report):
         # scipy.stats.median_abs_deviation(scale="normal") = MAD * 1.4826
         mad = float(stats.median_abs_deviation(x, scale="normal"))
         same(f"outliers.{v}.mad", mad, o["mad"])
-        z = int((np.abs(x - np.median(x)) / mad > 5).sum()) if mad > 0 else 0
+        # A MAD of zero leaves the robust z undefined (a division by zero): reported as null.
+        z = int((np.abs(x - np.median(x)) / mad > 5).sum()) if mad > 0 else None
         same(f"outliers.{v}.robust_z_beyond", z, o["robust_z_beyond"])
 
 

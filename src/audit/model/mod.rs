@@ -11,7 +11,7 @@ use nalgebra::{DMatrix, DVector};
 use polars::prelude::*;
 use statrs::distribution::{ChiSquared, ContinuousCDF, FisherSnedecor, Normal};
 
-use super::verdict::{level_key, line, worst, CheckVerdict, LevelKey, Levels, Status};
+use super::verdict::{counted, level_key, line, worst, CheckVerdict, LevelKey, Levels, Status};
 use super::Context;
 use crate::report::{ErrorSplit, ModelReport, Report, Slope, VariationLine};
 use crate::Result;
@@ -86,7 +86,11 @@ pub fn verdict(r: &Report, lv: &Levels) -> Option<CheckVerdict> {
     if thumbs > 0 {
         findings.push((
             lv.of(&MODEL_WARNINGS),
-            format!("{thumbs} rules of thumb apply"),
+            counted(
+                thumbs as u64,
+                "rule of thumb applies",
+                "rules of thumb apply",
+            ),
         ));
     }
     Some(if m.questions.iter().all(|q| q.tests.is_empty()) {

@@ -129,8 +129,10 @@ pub struct OutlierLine {
     pub above: u64,
     /// Median absolute deviation times 1.4826.
     pub mad: Option<f64>,
-    /// Values whose robust z (from the median and scaled MAD) is beyond the threshold.
-    pub robust_z_beyond: u64,
+    /// Values whose robust z (from the median and scaled MAD) is beyond the threshold; None
+    /// when the MAD is zero (half the values or more equal the median) or there is no value:
+    /// the robust z is then not defined.
+    pub robust_z_beyond: Option<u64>,
     /// Within-entity jumps in the log level beyond the threshold (level variables only).
     pub log_jumps: Option<u64>,
     /// Some period has fewer values than 1 / p: its cutoffs are unreliable (by groups: some
