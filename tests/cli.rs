@@ -767,7 +767,10 @@ C,2002,6,1
     assert_eq!(statuses(&report), want);
     let reason = &report["verdict"]["checks"][1]["reason"];
     assert!(
-        reason.as_str().unwrap().contains("the 6 rows read were all removed"),
+        reason
+            .as_str()
+            .unwrap()
+            .contains("the 6 rows read were all removed"),
         "{reason}"
     );
 }
@@ -823,7 +826,12 @@ fn a_robust_z_without_spread_is_not_computable() {
     let mut csv = String::from("firm,year,flag,x\n");
     for i in 0..10 {
         let f = ["A", "B"][i / 5];
-        csv.push_str(&format!("{f},{},{},{}\n", 2001 + i % 5, u8::from(i >= 7), i + 1));
+        csv.push_str(&format!(
+            "{f},{},{},{}\n",
+            2001 + i % 5,
+            u8::from(i >= 7),
+            i + 1
+        ));
     }
     w.write("p.csv", &csv);
     let args = ["audit", "p.csv", "--entity", "firm", "--period", "year"];

@@ -496,53 +496,77 @@ fn a_joined_table_keeps_its_codes_leading_zeros_too() {
 }
 
 #[test]
-fn a_model_on_values_too_large_to_square_is_not_computable() {
-    // An outcome and a regressor near 1e300 make every cross product infinite: the regressor
-    // read as "not identified by every estimator", a wrong diagnosis. Now no diagnostic is
-    // computed and the model section says why; `x2` (ordinary values) is not blamed. Worked
-    // by hand: every value of `y` and `x1` is at least 2e300, whose square (4e600) passes the
-    // largest double, about 1.8e308 (IEEE 754); `x2` stays below 5.
+fn a_model_on_values_too_large_or_too_small_to_square_is_not_computable() {
+    // An outcome and a regressor near 1e300 make every cross product infinite; near 1e-170,
+    // every cross product vanishes. Either way the regressor read as "not identified by every
+    // estimator", a wrong diagnosis. Now no diagnostic is computed and the model section says
+    // why; `x2` (ordinary values) is not blamed. Worked by hand: every value of `y` and `x1`
+    // is at least 2e300, whose square (4e600) passes the largest double, about 1.8e308; or at
+    // most 6e-169, whose square (3.6e-337) is below the smallest normal double, about
+    // 2.2e-308 (IEEE 754); `x2` stays below 5. With tiny values the variation table could
+    // not compute `x1`'s sums of squares either: it said "absorbed", now "not computable".
     let w = Workdir::new();
-    let mut csv = String::from("firm,year,y,x1,x2\n");
-    for f in 0..12 {
-        for t in 0..4 {
-            let (a, b) = (f as f64 + 1.0, t as f64 + 1.0);
-            csv.push_str(&format!(
-                "F{f},{},{:e},{:e},{}\n",
-                2001 + t,
-                (a * b + a) * 1e300,
-                (a + b * b) * 1e300,
-                (a * 7.0 + b * 3.0) % 5.0
-            ));
+    for (scale, what) in [
+        (1e300, "too large to square and sum"),
+        (1e-170, "too small to square"),
+    ] {
+        let mut csv = String::from("firm,year,y,x1,x2\n");
+        for f in 0..12 {
+            for t in 0..4 {
+                let (a, b) = (f as f64 + 1.0, t as f64 + 1.0);
+                csv.push_str(&format!(
+                    "F{f},{},{:e},{:e},{}\n",
+                    2001 + t,
+                    (a * b + a) * scale,
+                    (a + b * b) * scale,
+                    (a * 7.0 + b * 3.0) % 5.0
+                ));
+            }
         }
+        w.write("scaled.csv", &csv);
+        w.write(
+            "rules.toml",
+            "[panel]\nentity = \"firm\"\nperiod = \"year\"\n[model]\noutcome = \"y\"\n\
+             regressors = [\"x1\", \"x2\"]\n",
+        );
+        let run = w.ok(&[
+            "audit",
+            "scaled.csv",
+            "--rules",
+            "rules.toml",
+            "--format",
+            "json",
+        ]);
+        let report: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+        let model = &report["model"];
+        assert_eq!(
+            model["warnings"][0],
+            format!(
+                "not computable: the values of y, x1 are {what} in floating-point numbers, so \
+                 no diagnostic was computed (rescale them, e.g. to millions or millionths)"
+            ),
+            "{model}"
+        );
+        assert_eq!(
+            model["not_identified"].as_array().unwrap().len(),
+            0,
+            "{model}"
+        );
+        let x1 = report["variation"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|v| v["variable"] == "x1")
+            .unwrap()
+            .clone();
+        assert!(x1["absorbed_by"].is_null(), "{x1}");
+        assert!(
+            x1["not_computable"]
+                .as_str()
+                .is_some_and(|why| why.starts_with("values too")),
+            "{x1}"
+        );
     }
-    w.write("huge.csv", &csv);
-    w.write(
-        "rules.toml",
-        "[panel]\nentity = \"firm\"\nperiod = \"year\"\n[model]\noutcome = \"y\"\n\
-         regressors = [\"x1\", \"x2\"]\n",
-    );
-    let run = w.ok(&[
-        "audit",
-        "huge.csv",
-        "--rules",
-        "rules.toml",
-        "--format",
-        "json",
-    ]);
-    let report: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
-    let model = &report["model"];
-    assert_eq!(
-        model["warnings"][0],
-        "not computable: the values of y, x1 are too large to square and sum in floating-point \
-         numbers, so no diagnostic was computed (rescale them, e.g. to millions)",
-        "{model}"
-    );
-    assert_eq!(
-        model["not_identified"].as_array().unwrap().len(),
-        0,
-        "{model}"
-    );
 }
 
 #[test]

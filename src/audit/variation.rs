@@ -332,10 +332,22 @@ fn line(core: &PanelCore, variable: &str, x: &Values, nearly: f64) -> VariationL
     // Values near the largest floating-point number overflow their squares' sums: the
     // shares are then not numbers, and would read as no variation at all.
     let overflow = n >= 2.0 && ![m.tss, m.wss, m.pss].iter().all(|s| s.is_finite());
+    // Values that differ by less than about 1e-154 have squares below the smallest normal
+    // floating-point number: the sum of squares underflows to (nearly) zero, which would read
+    // as a constant. Told apart from a constant by one pass, only in that case.
+    let underflow = n >= 2.0 && m.tss < f64::MIN_POSITIVE && {
+        let mut values = x.view().iter().map(|(_, v)| v);
+        let first = values.next().unwrap_or_default();
+        values.any(|v| v != first)
+    };
     let not_computable = match m.n {
         0 => Some("no values".to_string()),
         1 => Some("a single value".to_string()),
         _ if overflow => Some("values too large to square in floating-point numbers".to_string()),
+        _ if underflow => Some(
+            "values too close together to square in floating-point numbers (rescale them)"
+                .to_string(),
+        ),
         _ => None,
     };
     let mut absorbed_by = if not_computable.is_some() {
@@ -362,7 +374,7 @@ fn line(core: &PanelCore, variable: &str, x: &Values, nearly: f64) -> VariationL
         sd_total: finite(sd(m.tss)),
         sd_between: finite(m.sd_between),
         sd_within: finite(sd(m.wss)),
-        within_share: finite(if n > 0.0 && !overflow {
+        within_share: finite(if n > 0.0 && !overflow && !underflow {
             within_share
         } else {
             f64::NAN

@@ -228,21 +228,29 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
         return Ok(out);
     }
     // Values whose squares summed over the sample pass the largest floating-point number
-    // make every cross product infinite: the regressor would read as not identified.
+    // make every cross product infinite; values all below about 1e-154 (not all zero) have
+    // squares below the smallest normal one, and their cross products vanish. Either way the
+    // regressor would read as not identified.
     let too_large = |v: f64| !(v * v * n_rows as f64).is_finite();
-    let huge: Vec<&str> = std::iter::once((s.y.amax(), spec.outcome.as_str()))
-        .chain((0..d).map(|j| (s.x.column(j).amax(), s.names[j].as_str())))
-        .filter(|(m, _)| too_large(*m))
-        .map(|(_, name)| name)
-        .collect();
-    if !huge.is_empty() {
-        out.warnings.push(format!(
-            "not computable: the values of {} are too large to square and sum in \
-             floating-point numbers, so no diagnostic was computed (rescale them, e.g. to \
-             millions)",
-            huge.join(", ")
-        ));
-        return Ok(out);
+    let too_small = |v: f64| v > 0.0 && v * v < f64::MIN_POSITIVE;
+    let scales: [(&dyn Fn(f64) -> bool, &str); 2] = [
+        (&too_large, "too large to square and sum"),
+        (&too_small, "too small to square"),
+    ];
+    for (beyond, what) in scales {
+        let named: Vec<&str> = std::iter::once((s.y.amax(), spec.outcome.as_str()))
+            .chain((0..d).map(|j| (s.x.column(j).amax(), s.names[j].as_str())))
+            .filter(|(m, _)| beyond(*m))
+            .map(|(_, name)| name)
+            .collect();
+        if !named.is_empty() {
+            out.warnings.push(format!(
+                "not computable: the values of {} are {what} in floating-point numbers, so no \
+                 diagnostic was computed (rescale them, e.g. to millions or millionths)",
+                named.join(", ")
+            ));
+            return Ok(out);
+        }
     }
     let dummies: Vec<usize> = (d..k_all).collect();
 
