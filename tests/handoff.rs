@@ -592,3 +592,55 @@ fn compare_says_cells_not_checked_when_there_is_nothing_to_compare() {
     ]);
     assert!(r.stdout.contains("Cells not checked"), "{}", r.stdout);
 }
+
+#[test]
+fn compare_reads_numbers_beside_text_in_the_other_vintage_as_numbers() {
+    // A vintage with one text cell in a numeric column (`one`, as an export writes a note)
+    // reads that column as text; comparing it as text counted every cell whose spelling
+    // differs (`2.0` against `2`) as changed. Worked by hand: of the four cells, `one` against
+    // 1 counts (text), 2 against `2` and 0 against `0` do not (numbers), 5 against `5.5`
+    // counts with a change of 0.5. Old and new swapped, the same counts.
+    let w = Workdir::new();
+    w.write("old.csv", "f,y,a\nA,1,1.0\nA,2,2.0\nB,1,0.0\nB,2,5.0\n");
+    w.write("new.csv", "f,y,a\nA,1,one\nA,2,2\nB,1,0\nB,2,5.5\n");
+    for (old, new) in [("old.csv", "new.csv"), ("new.csv", "old.csv")] {
+        let r = w.run(&[
+            "compare",
+            old,
+            new,
+            "--entity",
+            "f",
+            "--period",
+            "y",
+            "--format",
+            "json",
+            "--changes",
+            "ch.csv",
+        ]);
+        assert_eq!(r.code, 1, "{}", r.stderr);
+        let summary: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+        let a = &summary["columns"][0];
+        assert_eq!(a["compared_as"], "number and text", "{a}");
+        assert_eq!(a["cells_changed"], 2, "{a}");
+        assert_eq!(a["largest_change"], 0.5, "{a}");
+        let ledger = std::fs::read_to_string(w.path("ch.csv")).unwrap();
+        let lines: Vec<&str> = ledger.lines().skip(1).collect();
+        assert_eq!(lines.len(), 2, "{ledger}");
+        assert!(lines[0].starts_with("A,1,value changed,a,"), "{ledger}");
+        assert!(lines[0].ends_with(','), "no difference for text: {ledger}");
+        assert!(lines[1].starts_with("B,2,value changed,a,"), "{ledger}");
+        assert!(
+            lines[1].ends_with(if old == "old.csv" { ",0.5" } else { ",-0.5" }),
+            "{ledger}"
+        );
+    }
+    let text = w.run(&[
+        "compare", "old.csv", "new.csv", "--entity", "f", "--period", "y",
+    ]);
+    assert!(
+        text.stdout
+            .contains("Numbers in one vintage and text in the other: a."),
+        "{}",
+        text.stdout
+    );
+}

@@ -44,7 +44,8 @@ pub struct ColumnChanges {
     pub column: String,
     /// A derived variable (known when the side is a bundle).
     pub derived: bool,
-    /// `number` or `text` (a column that is numeric on one side only is compared as text).
+    /// `number`, `text`, or `number and text` (numbers on one side, text on the other: cells
+    /// that read as numbers on both sides compared as numbers, the others as text).
     pub compared_as: &'static str,
     /// Cells changed beyond the tolerance, counting values that appeared or vanished.
     pub cells_changed: u64,
@@ -222,6 +223,29 @@ fn numeric(dtype: &DataType) -> bool {
     dtype.is_primitive_numeric() || dtype.is_bool()
 }
 
+/// How a shared column's cells are compared.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Kind {
+    /// Numbers on both sides: within the tolerance.
+    Number,
+    /// Text on both sides (or another type): exactly.
+    Text,
+    /// Numbers on one side and text on the other (a text cell in one vintage's column turns
+    /// the whole column to text when it is read): cells that read as numbers on both sides
+    /// are compared as numbers, the others as text.
+    Mixed,
+}
+
+impl Kind {
+    fn label(self) -> &'static str {
+        match self {
+            Kind::Number => "number",
+            Kind::Text => "text",
+            Kind::Mixed => "number and text",
+        }
+    }
+}
+
 /// Compare two vintages; returns the summary and the change ledger.
 pub fn compare(old: &Side, new: &Side, tolerance: &Tolerance) -> Result<(Comparison, DataFrame)> {
     let old = vintage(old)?;
@@ -246,11 +270,18 @@ pub fn compare(old: &Side, new: &Side, tolerance: &Tolerance) -> Result<(Compari
         .map(|n| n.to_string())
         .filter(|n| !is_key_new(n) && !old_schema.contains(n))
         .collect();
-    let as_number: Vec<bool> = shared
+    let kinds: Vec<Kind> = shared
         .iter()
         .map(|c| {
-            numeric(old_schema.get(c.as_str()).unwrap_or(&DataType::Null))
-                && numeric(new_schema.get(c.as_str()).unwrap_or(&DataType::Null))
+            let old = numeric(old_schema.get(c.as_str()).unwrap_or(&DataType::Null));
+            let new = numeric(new_schema.get(c.as_str()).unwrap_or(&DataType::Null));
+            let text = |side: &Schema| side.get(c.as_str()) == Some(&DataType::String);
+            match (old, new) {
+                (true, true) => Kind::Number,
+                (true, false) if text(&new_schema) => Kind::Mixed,
+                (false, true) if text(&old_schema) => Kind::Mixed,
+                _ => Kind::Text,
+            }
         })
         .collect();
     let side = |df: &DataFrame, entity: &str, period: &str, tag: &str| -> LazyFrame {
@@ -260,10 +291,21 @@ pub fn compare(old: &Side, new: &Side, tolerance: &Tolerance) -> Result<(Compari
             lit(true).alias(format!("__in_{tag}")),
         ];
         for (i, c) in shared.iter().enumerate() {
-            let x = if as_number[i] {
-                col(c.as_str()).cast(DataType::Float64)
-            } else {
-                col(c.as_str()).cast(DataType::String)
+            let x = match kinds[i] {
+                Kind::Number => col(c.as_str()).cast(DataType::Float64),
+                Kind::Text => col(c.as_str()).cast(DataType::String),
+                Kind::Mixed => {
+                    // The text as read, and the number it reads as (none for other text).
+                    let number = match df.schema().get(c.as_str()) {
+                        Some(DataType::String) => col(c.as_str())
+                            .str()
+                            .strip_chars(lit(NULL))
+                            .cast(DataType::Float64),
+                        _ => col(c.as_str()).cast(DataType::Float64),
+                    };
+                    cols.push(number.alias(format!("__{tag}#{i}")));
+                    col(c.as_str()).cast(DataType::String)
+                }
             };
             cols.push(x.alias(format!("__{tag}{i}")));
         }
@@ -280,13 +322,19 @@ pub fn compare(old: &Side, new: &Side, tolerance: &Tolerance) -> Result<(Compari
     for (i, c) in shared.iter().enumerate() {
         let (o, n) = (col(format!("__o{i}")), col(format!("__n{i}")));
         let presence = o.clone().is_null().neq(n.clone().is_null());
-        let values = if as_number[i] {
+        let beyond = |o: Expr, n: Expr| {
             let (abs, rel) = tolerance.of(c);
-            (n.clone() - o.clone())
-                .abs()
-                .gt(lit(abs) + lit(rel) * o.clone().abs())
-        } else {
-            o.clone().neq(n.clone())
+            (n - o.clone()).abs().gt(lit(abs) + lit(rel) * o.abs())
+        };
+        let values = match kinds[i] {
+            Kind::Number => beyond(o.clone(), n.clone()),
+            Kind::Text => o.clone().neq(n.clone()),
+            Kind::Mixed => {
+                let (on, nn) = (col(format!("__o#{i}")), col(format!("__n#{i}")));
+                when(on.clone().is_not_null().and(nn.clone().is_not_null()))
+                    .then(beyond(on, nn))
+                    .otherwise(o.clone().neq(n.clone()))
+            }
         };
         let changed = both.clone().and(
             presence.or(o
@@ -339,7 +387,12 @@ pub fn compare(old: &Side, new: &Side, tolerance: &Tolerance) -> Result<(Compari
                 .cast(DataType::UInt64)
                 .alias(format!("p{i}")),
         );
-        if as_number[i] {
+        let numbers = match kinds[i] {
+            Kind::Number => Some((o, n)),
+            Kind::Mixed => Some((col(format!("__o#{i}")), col(format!("__n#{i}")))),
+            Kind::Text => None,
+        };
+        if let Some((o, n)) = numbers {
             aggs.push(
                 (n - o)
                     .abs()
@@ -359,14 +412,13 @@ pub fn compare(old: &Side, new: &Side, tolerance: &Tolerance) -> Result<(Compari
             Ok(ColumnChanges {
                 column: c.clone(),
                 derived: old.derived.contains(c) || new.derived.contains(c),
-                compared_as: if as_number[i] { "number" } else { "text" },
+                compared_as: kinds[i].label(),
                 cells_changed: count(&format!("k{i}"))?,
                 became_missing: count(&format!("m{i}"))?,
                 became_present: count(&format!("p{i}"))?,
-                largest_change: if as_number[i] {
-                    counts.column(&format!("x{i}"))?.f64()?.get(0)
-                } else {
-                    None
+                largest_change: match kinds[i] {
+                    Kind::Text => None,
+                    _ => counts.column(&format!("x{i}"))?.f64()?.get(0),
                 },
             })
         })
@@ -404,7 +456,7 @@ pub fn compare(old: &Side, new: &Side, tolerance: &Tolerance) -> Result<(Compari
     let entities_added = only(&new.df, &new.entity, &old.df, &old.entity)?;
     let entities_removed = only(&old.df, &old.entity, &new.df, &new.entity)?;
 
-    let ledger = ledger(&joined, &e, &p, &shared, &as_number)?;
+    let ledger = ledger(&joined, &e, &p, &shared, &kinds)?;
     let firm_years_added = count("added")?;
     let firm_years_removed = count("removed")?;
     let changed = firm_years_added + firm_years_removed > 0
@@ -442,7 +494,7 @@ fn ledger(
     e: &str,
     p: &str,
     shared: &[String],
-    as_number: &[bool],
+    kinds: &[Kind],
 ) -> Result<DataFrame> {
     let text_null = || lit(NULL).cast(DataType::String);
     let row_event = |filter: Expr, what: &str| {
@@ -463,10 +515,10 @@ fn ledger(
     ];
     for (i, c) in shared.iter().enumerate() {
         let (o, n) = (col(format!("__o{i}")), col(format!("__n{i}")));
-        let difference = if as_number[i] {
-            n.clone() - o.clone()
-        } else {
-            lit(NULL).cast(DataType::Float64)
+        let difference = match kinds[i] {
+            Kind::Number => n.clone() - o.clone(),
+            Kind::Mixed => col(format!("__n#{i}")) - col(format!("__o#{i}")),
+            Kind::Text => lit(NULL).cast(DataType::Float64),
         };
         parts.push(
             joined

@@ -92,6 +92,20 @@ pub(crate) fn page(c: &Comparison) -> Page {
                 .into(),
         )]
     };
+    let mixed: Vec<String> = c
+        .columns
+        .iter()
+        .filter(|k| k.compared_as == "number and text")
+        .map(|k| k.column.clone())
+        .collect();
+    if c.cells_checked && !mixed.is_empty() {
+        cells.push(Block::Note(format!(
+            "Numbers in one vintage and text in the other: {}. Cells that read as numbers in \
+             both are compared as numbers; a cell that does not (text such as `n/a`) is compared \
+             as text, so it counts as changed.",
+            list(&mixed)
+        )));
+    }
     if !c.columns_added.is_empty() {
         cells.push(Block::Note(format!(
             "Columns only in the new vintage: {}.",
