@@ -677,6 +677,15 @@ fn tampered_bundles_are_caught_by_verify() {
     let r = w.run(&["verify", "b"]);
     assert_eq!(r.code, 1, "{}", r.stderr);
     assert!(r.stdout.contains("panel.csv"), "{}", r.stdout);
+    // A deleted output: exit 1, named as missing (it read "changed since it was written").
+    std::fs::remove_file(w.path("b/report.md")).unwrap();
+    let r = w.run(&["verify", "b"]);
+    assert_eq!(r.code, 1, "{}", r.stderr);
+    assert!(
+        r.stdout.contains("missing from the bundle: report.md"),
+        "{}",
+        r.stdout
+    );
     // A broken manifest, and an edited input: exit 2, one line.
     w.ok(&["build", "raw.csv", "--rules", "rules.toml", "--out", "c"]);
     w.write("c/manifest.json", "{ not json");

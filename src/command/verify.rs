@@ -4,7 +4,7 @@
 use std::fs;
 use std::path::{Path, PathBuf};
 
-use crate::bundle::{file_name, sha256_file, sha256_hex, Manifest};
+use crate::bundle::{file_name, sha256_file, Manifest};
 use crate::config::{BuildConfig, InputConfig, Relocated};
 use crate::rules::Rules;
 use crate::{Error, Result};
@@ -21,13 +21,16 @@ pub fn run(dir: &Path, moved: &Relocated) -> Result<i32> {
             env!("CARGO_PKG_VERSION")
         ));
     }
+    for f in &v.missing {
+        msg.push_str(&format!("missing from the bundle: {f}\n"));
+    }
     for f in &v.changed {
         msg.push_str(&format!("changed since it was written: {f}\n"));
     }
     for f in &v.not_reproduced {
         msg.push_str(&format!("not reproduced by a fresh build: {f}\n"));
     }
-    let ok = v.changed.is_empty() && v.not_reproduced.is_empty();
+    let ok = v.missing.is_empty() && v.changed.is_empty() && v.not_reproduced.is_empty();
     if ok {
         msg.push_str(&format!(
             "{}: every output matches its manifest hash and was rebuilt bit for bit\n",
@@ -41,6 +44,8 @@ pub fn run(dir: &Path, moved: &Relocated) -> Result<i32> {
 /// What `verify` found.
 #[derive(Debug, Clone, Default)]
 pub struct Verification {
+    /// Files the manifest lists that are not in the bundle.
+    pub missing: Vec<String>,
     /// Files in the bundle whose bytes no longer match the manifest.
     pub changed: Vec<String>,
     /// Files a fresh build produced differently.
@@ -153,9 +158,11 @@ pub fn verify(dir: &Path, moved: &Relocated) -> Result<Verification> {
         ..Verification::default()
     };
     for out in &manifest.outputs {
+        // Hashed as it is read, a buffer at a time (panel.parquet may be gigabytes).
         let p = dir.join(&out.path);
-        let now = fs::read(&p).map(|b| sha256_hex(&b)).unwrap_or_default();
-        if now != out.sha256 {
+        if !p.exists() {
+            found.missing.push(out.path.clone());
+        } else if sha256_file(&p).ok().as_deref() != Some(out.sha256.as_str()) {
             found.changed.push(out.path.clone());
         }
     }
