@@ -1503,3 +1503,49 @@ fn a_name_the_file_has_but_for_spaces_or_case_is_pointed_to() {
         w.fails(&["audit", "raw.csv", "--rules", "join.toml"], want);
     }
 }
+
+#[test]
+fn names_with_pipes_and_markup_keep_the_tables_whole() {
+    // Column and entity names as exports can make them: a `|`, which splits a cell of a
+    // Markdown table even inside backticks (GitHub's table syntax, common practice), and
+    // HTML, which the page must show as text. Every row of every Markdown table keeps its
+    // header's number of cell separators (escaped pipes `\|` not counted); the page holds no
+    // unescaped tag from the data.
+    let w = Workdir::new();
+    let mut csv = String::from("firm,year,<script>x</script>,a|b\n");
+    for f in 0..6 {
+        for y in 2001..2005 {
+            csv.push_str(&format!(
+                "<b>F{f}</b>|q,{y},{},{}\n",
+                f * y % 7,
+                (f + y) % 5
+            ));
+        }
+    }
+    w.write("p.csv", &csv);
+    w.write(
+        "r.toml",
+        "[panel]\nentity = \"firm\"\nperiod = \"year\"\n[derive.xy]\nexpr = \"\\\"a|b\\\" * 2\"\n\
+         label = \"a | label\"\n",
+    );
+    w.ok(&["build", "p.csv", "--rules", "r.toml", "--out", "b"]);
+    let separators = |line: &str| line.replace("\\|", "").matches('|').count();
+    for file in ["report.md", "dictionary.md"] {
+        let text = std::fs::read_to_string(w.path("b").join(file)).unwrap();
+        let mut header = None;
+        for line in text.lines() {
+            if !line.starts_with('|') {
+                header = None;
+                continue;
+            }
+            let n = separators(line);
+            let h = *header.get_or_insert(n);
+            assert_eq!(n, h, "{file}: a row split by a pipe: {line}");
+        }
+        assert!(text.contains("a\\|b"), "{file}");
+    }
+    let page = std::fs::read_to_string(w.path("b/report.html")).unwrap();
+    assert!(!page.contains("<script>x"), "unescaped column name");
+    assert!(!page.contains("<b>F"), "unescaped entity name");
+    assert!(page.contains("&lt;script&gt;x"), "the name shown as text");
+}

@@ -81,7 +81,8 @@ pub(super) fn dictionary_md(entries: &[crate::pipeline::DictionaryEntry]) -> Str
     for e in entries {
         out.push_str(&format!(
             "| `{}` | {} | {} | {} | {} | {} | {} |\n",
-            e.name,
+            // A pipe splits a table's cell even inside backticks (GitHub's table syntax).
+            cell(&e.name),
             cell(&e.label),
             cell(&e.definition),
             cell(&e.unit),
