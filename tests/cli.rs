@@ -1124,3 +1124,34 @@ fn timings_agree_with_the_kernels_account_of_the_run() {
     );
     assert!(out.contains("stages; peak"), "{out}");
 }
+
+#[test]
+fn the_largest_balanced_window_is_a_panel_not_a_single_period() {
+    // Five firms seen in 2001 only, two in 2001 and 2002. Counted by hand: 2001 alone keeps 7
+    // firms (7 rows), 2001..2002 keeps 2 (4 rows), 2002 alone 2 (2 rows). The most rows were a
+    // single period, a cross-section with nothing left for a within estimate; a window of two
+    // periods or more comes first now. With every firm seen once, a single period is all
+    // there is.
+    let w = Workdir::new();
+    let mut csv = String::from("firm,year,x\n");
+    for f in ["A", "B", "C", "D", "E"] {
+        csv.push_str(&format!("{f},2001,1\n"));
+    }
+    for f in ["F", "G"] {
+        csv.push_str(&format!("{f},2001,2\n{f},2002,3\n"));
+    }
+    w.write("p.csv", &csv);
+    w.write(
+        "r.toml",
+        "[panel]\nentity = \"firm\"\nperiod = \"year\"\n[clean]\nbalance = \"largest\"\n",
+    );
+    let balance = |w: &Workdir| {
+        let r = w.ok(&["audit", "p.csv", "--rules", "r.toml", "--format", "json"]);
+        let report: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+        let b = &report["balance"];
+        (b["first"].clone(), b["last"].clone(), b["rows"].clone())
+    };
+    assert_eq!(balance(&w), (2001.into(), 2002.into(), 4.into()));
+    w.write("p.csv", "firm,year,x\nA,2001,1\nB,2001,2\nC,2002,3\n");
+    assert_eq!(balance(&w), (2001.into(), 2001.into(), 2.into()));
+}

@@ -14,8 +14,8 @@ pub use crate::rules::Balance;
 const RUNNERS_UP: usize = 5;
 
 /// Every window's score from the distinct keys: for each (first, last), the entities
-/// observed in every period of it. Sorted best first (entities × periods, then longer, then
-/// earlier).
+/// observed in every period of it. Sorted best first: windows of two periods or more keeping
+/// an entity before single periods, then entities × periods, then longer, then earlier.
 pub fn window_scores(df: &DataFrame, entity: &str, period: &str) -> Result<Vec<WindowScore>> {
     // Spells: maximal runs of consecutive periods per entity, counted by (start, end).
     let spells = df
@@ -73,9 +73,13 @@ pub fn window_scores(df: &DataFrame, entity: &str, period: &str) -> Result<Vec<W
             });
         }
     }
+    // A window of one period is a cross-section, with no change within an entity left to
+    // estimate from: any window of two periods or more that keeps an entity comes first.
+    let panel = |w: &WindowScore| w.last > w.first && w.entities > 0;
     scores.sort_by(|x, y| {
-        y.rows
-            .cmp(&x.rows)
+        panel(y)
+            .cmp(&panel(x))
+            .then(y.rows.cmp(&x.rows))
             .then((y.last - y.first).cmp(&(x.last - x.first)))
             .then(x.first.cmp(&y.first))
     });

@@ -67,18 +67,20 @@ def main():
                 continue
             need = set(range(a, b + 1))
             n = int(sum(need <= s for s in have))
-            scores.append((n * (b - a + 1), b - a, -a, a, b, n))
+            # Windows of two periods or more keeping an entity first (a single period is a
+            # cross-section), then entity-periods, longer, earlier.
+            scores.append((b > a and n > 0, n * (b - a + 1), b - a, -a, a, b, n))
     scores.sort(reverse=True)
     best = scores[0]
     bal = report["balance"]
-    same("balance.window", [best[3], best[4]], [bal["first"], bal["last"]])
-    same("balance.entities", best[5], bal["entities"])
-    same("balance.rows", best[0], bal["rows"])
+    same("balance.window", [best[4], best[5]], [bal["first"], bal["last"]])
+    same("balance.entities", best[6], bal["entities"])
+    same("balance.rows", best[1], bal["rows"])
     for i, r in enumerate(bal["runner_up"]):
-        same(f"balance.runner_up[{i}]", [scores[i + 1][3], scores[i + 1][4], scores[i + 1][5]], [r["first"], r["last"], r["entities"]])
+        same(f"balance.runner_up[{i}]", [scores[i + 1][4], scores[i + 1][5], scores[i + 1][6]], [r["first"], r["last"], r["entities"]])
 
     # The cleaned panel: firms complete over the window, cut to it, with clipped values.
-    a, b = best[3], best[4]
+    a, b = best[4], best[5]
     keep = [f for f, s in have.items() if set(range(a, b + 1)) <= s]
     want = df[df["firm"].isin(keep) & df["year"].between(a, b)].sort_values(["firm", "year"])
     got = panel.assign(firm=panel["firm"].astype(str)).sort_values(["firm", "year"])
