@@ -1,7 +1,9 @@
 //! `compare`: two vintages of one panel (two raw downloads, or two bundles) side by side.
 //! Firm-years and entities added and removed, columns added and removed, and every cell of
 //! the firm-years in both that changed beyond a tolerance, with a change ledger (CSV) and a
-//! summary in the report formats. One full join on the keys, computed by polars.
+//! summary in the report formats. The keys are joined once (a full join, by polars); then
+//! each shared column is gathered from both vintages in the matched order and compared, one
+//! column at a time.
 
 use std::path::Path;
 
@@ -284,145 +286,166 @@ pub fn compare(old: &Side, new: &Side, tolerance: &Tolerance) -> Result<(Compari
             }
         })
         .collect();
-    let side = |df: &DataFrame, entity: &str, period: &str, tag: &str| -> LazyFrame {
-        let mut cols = vec![
-            col(entity).alias(e.as_str()),
-            col(period).alias(p.as_str()),
-            lit(true).alias(format!("__in_{tag}")),
-        ];
-        for (i, c) in shared.iter().enumerate() {
-            let x = match kinds[i] {
-                Kind::Number => col(c.as_str()).cast(DataType::Float64),
-                Kind::Text => col(c.as_str()).cast(DataType::String),
-                Kind::Mixed => {
-                    // The text as read, and the number it reads as (none for other text).
-                    let number = match df.schema().get(c.as_str()) {
-                        Some(DataType::String) => col(c.as_str())
-                            .str()
-                            .strip_chars(lit(NULL))
-                            .cast(DataType::Float64),
-                        _ => col(c.as_str()).cast(DataType::Float64),
-                    };
-                    cols.push(number.alias(format!("__{tag}#{i}")));
-                    col(c.as_str()).cast(DataType::String)
-                }
-            };
-            cols.push(x.alias(format!("__{tag}{i}")));
-        }
-        df.clone().lazy().select(cols)
+    // Each firm-year of either vintage with its row in each (null where it is absent): the
+    // keys alone are joined, once.
+    let rows_of = |v: &Vintage, index: &str| {
+        v.df.clone()
+            .lazy()
+            .select([
+                col(v.entity.as_str()).alias(e.as_str()),
+                col(v.period.as_str()).alias(p.as_str()),
+            ])
+            .with_row_index(index, None)
     };
-    let joined = side(&old.df, &old.entity, &old.period, "o").join(
-        side(&new.df, &new.entity, &new.period, "n"),
-        [col(e.as_str()), col(p.as_str())],
-        [col(e.as_str()), col(p.as_str())],
-        JoinArgs::new(JoinType::Full).with_coalesce(JoinCoalesce::CoalesceColumns),
-    );
-    let both = col("__in_o").is_not_null().and(col("__in_n").is_not_null());
-    let mut flags = Vec::new();
+    let pairs = rows_of(&old, "__io")
+        .join(
+            rows_of(&new, "__in"),
+            [col(e.as_str()), col(p.as_str())],
+            [col(e.as_str()), col(p.as_str())],
+            JoinArgs::new(JoinType::Full).with_coalesce(JoinCoalesce::CoalesceColumns),
+        )
+        .collect()?;
+    let both = col("__io").is_not_null().and(col("__in").is_not_null());
+    let tally = pairs
+        .clone()
+        .lazy()
+        .select([
+            both.clone().sum().cast(DataType::UInt64).alias("both"),
+            col("__io")
+                .is_null()
+                .sum()
+                .cast(DataType::UInt64)
+                .alias("added"),
+            col("__in")
+                .is_null()
+                .sum()
+                .cast(DataType::UInt64)
+                .alias("removed"),
+        ])
+        .collect()?;
+    let count = |name: &str| -> Result<u64> { Ok(tally.column(name)?.u64()?.get(0).unwrap_or(0)) };
+    let matched = pairs.clone().lazy().filter(both).collect()?;
+    let at = |index: &str| -> Result<IdxCa> {
+        Ok(matched
+            .column(index)?
+            .as_materialized_series()
+            .idx()?
+            .clone())
+    };
+    let (at_old, at_new) = (at("__io")?, at("__in")?);
+    let mut ledger = vec![
+        row_event(&pairs, &e, &p, col("__io").is_null(), "firm-year added")?,
+        row_event(&pairs, &e, &p, col("__in").is_null(), "firm-year removed")?,
+    ];
+    // One shared column at a time, gathered from both vintages in the matched order: memory
+    // holds the two vintages and two columns beside them, not a joined copy of every column.
+    let mut columns = Vec::with_capacity(shared.len());
     for (i, c) in shared.iter().enumerate() {
-        let (o, n) = (col(format!("__o{i}")), col(format!("__n{i}")));
-        let presence = o.clone().is_null().neq(n.clone().is_null());
+        let gathered = |v: &Vintage, at: &IdxCa, tag: &str| -> Result<Column> {
+            let column = v.df.column(c)?.take(at)?;
+            Ok(column.with_name(tag.into()))
+        };
+        let frame = DataFrame::new_infer_height(vec![
+            matched.column(&e)?.clone(),
+            matched.column(&p)?.clone(),
+            gathered(&old, &at_old, "__o")?,
+            gathered(&new, &at_new, "__n")?,
+        ])?;
+        let kind = kinds[i];
+        let mut typed = typed("__o", kind, old_schema.get(c.as_str()));
+        typed.extend(self::typed("__n", kind, new_schema.get(c.as_str())));
+        let (o, n) = (col("__o"), col("__n"));
+        let (on, nn) = (col("__o#"), col("__n#"));
         let beyond = |o: Expr, n: Expr| {
             let (abs, rel) = tolerance.of(c);
             (n - o.clone()).abs().gt(lit(abs) + lit(rel) * o.abs())
         };
-        let values = match kinds[i] {
+        let values = match kind {
             Kind::Number => beyond(o.clone(), n.clone()),
             Kind::Text => o.clone().neq(n.clone()),
-            Kind::Mixed => {
-                let (on, nn) = (col(format!("__o#{i}")), col(format!("__n#{i}")));
-                when(on.clone().is_not_null().and(nn.clone().is_not_null()))
-                    .then(beyond(on, nn))
-                    .otherwise(o.clone().neq(n.clone()))
-            }
+            Kind::Mixed => when(on.clone().is_not_null().and(nn.clone().is_not_null()))
+                .then(beyond(on.clone(), nn.clone()))
+                .otherwise(o.clone().neq(n.clone())),
         };
-        let changed = both.clone().and(
-            presence.or(o
-                .clone()
-                .is_not_null()
-                .and(n.clone().is_not_null())
-                .and(values)
-                .fill_null(false)),
-        );
-        flags.push(changed.alias(format!("__c{i}")));
-    }
-    let joined = joined.with_columns(flags).collect()?;
-
-    // Counts in one pass.
-    let mut aggs = vec![
-        both.clone().sum().cast(DataType::UInt64).alias("both"),
-        col("__in_o")
-            .is_null()
-            .sum()
-            .cast(DataType::UInt64)
-            .alias("added"),
-        col("__in_n")
-            .is_null()
-            .sum()
-            .cast(DataType::UInt64)
-            .alias("removed"),
-    ];
-    for (i, _) in shared.iter().enumerate() {
-        let c = col(format!("__c{i}"));
-        let (o, n) = (col(format!("__o{i}")), col(format!("__n{i}")));
-        aggs.push(
-            c.clone()
-                .sum()
-                .cast(DataType::UInt64)
-                .alias(format!("k{i}")),
-        );
-        aggs.push(
-            c.clone()
+        let presence = o.clone().is_null().neq(n.clone().is_null());
+        let changed = presence.or(o
+            .clone()
+            .is_not_null()
+            .and(n.clone().is_not_null())
+            .and(values)
+            .fill_null(false));
+        let cells = frame
+            .lazy()
+            .with_columns(typed)
+            .with_column(changed.alias("__c"))
+            .collect()?;
+        let numbers = match kind {
+            Kind::Number => Some((o.clone(), n.clone())),
+            Kind::Mixed => Some((on, nn)),
+            Kind::Text => None,
+        };
+        let c_ = col("__c");
+        let mut aggs = vec![
+            c_.clone().sum().cast(DataType::UInt64).alias("k"),
+            c_.clone()
                 .and(o.clone().is_not_null())
                 .and(n.clone().is_null())
                 .sum()
                 .cast(DataType::UInt64)
-                .alias(format!("m{i}")),
-        );
-        aggs.push(
-            c.clone()
+                .alias("m"),
+            c_.clone()
                 .and(o.clone().is_null())
                 .and(n.clone().is_not_null())
                 .sum()
                 .cast(DataType::UInt64)
-                .alias(format!("p{i}")),
-        );
-        let numbers = match kinds[i] {
-            Kind::Number => Some((o, n)),
-            Kind::Mixed => Some((col(format!("__o#{i}")), col(format!("__n#{i}")))),
-            Kind::Text => None,
-        };
-        if let Some((o, n)) = numbers {
+                .alias("p"),
+        ];
+        if let Some((o, n)) = numbers.clone() {
             aggs.push(
                 (n - o)
                     .abs()
-                    .filter(c)
+                    .filter(c_.clone())
                     .max()
                     .cast(DataType::Float64)
-                    .alias(format!("x{i}")),
+                    .alias("x"),
             );
         }
+        let counts = cells.clone().lazy().select(aggs).collect()?;
+        let get =
+            |name: &str| -> Result<u64> { Ok(counts.column(name)?.u64()?.get(0).unwrap_or(0)) };
+        columns.push(ColumnChanges {
+            column: c.clone(),
+            derived: old.derived.contains(c) || new.derived.contains(c),
+            compared_as: kind.label(),
+            cells_changed: get("k")?,
+            became_missing: get("m")?,
+            became_present: get("p")?,
+            largest_change: match numbers {
+                None => None,
+                Some(_) => counts.column("x")?.f64()?.get(0),
+            },
+        });
+        let difference = match numbers {
+            Some((o, n)) => n - o,
+            None => lit(NULL).cast(DataType::Float64),
+        };
+        ledger.push(
+            cells
+                .lazy()
+                .filter(c_)
+                .select([
+                    col(e.as_str()),
+                    col(p.as_str()),
+                    lit("value changed").alias("change"),
+                    lit(c.as_str()).alias("column"),
+                    o.cast(DataType::String).alias("old"),
+                    n.cast(DataType::String).alias("new"),
+                    difference.alias("difference"),
+                    lit(i as u32 + 1).alias("__order"),
+                ])
+                .collect()?,
+        );
     }
-    let counts = joined.clone().lazy().select(aggs).collect()?;
-    let count = |name: &str| -> Result<u64> { Ok(counts.column(name)?.u64()?.get(0).unwrap_or(0)) };
-    let columns = shared
-        .iter()
-        .enumerate()
-        .map(|(i, c)| {
-            Ok(ColumnChanges {
-                column: c.clone(),
-                derived: old.derived.contains(c) || new.derived.contains(c),
-                compared_as: kinds[i].label(),
-                cells_changed: count(&format!("k{i}"))?,
-                became_missing: count(&format!("m{i}"))?,
-                became_present: count(&format!("p{i}"))?,
-                largest_change: match kinds[i] {
-                    Kind::Text => None,
-                    _ => counts.column(&format!("x{i}"))?.f64()?.get(0),
-                },
-            })
-        })
-        .collect::<Result<Vec<_>>>()?;
 
     let only = |a: &DataFrame, ae: &str, b: &DataFrame, be: &str| -> Result<Vec<String>> {
         let left = a
@@ -456,7 +479,13 @@ pub fn compare(old: &Side, new: &Side, tolerance: &Tolerance) -> Result<(Compari
     let entities_added = only(&new.df, &new.entity, &old.df, &old.entity)?;
     let entities_removed = only(&old.df, &old.entity, &new.df, &new.entity)?;
 
-    let ledger = ledger(&joined, &e, &p, &shared, &kinds)?;
+    let ledger = concat(
+        ledger.into_iter().map(IntoLazy::lazy).collect::<Vec<_>>(),
+        UnionArgs::default(),
+    )?
+    .sort([e.as_str(), p.as_str(), "__order"], Default::default())
+    .drop(by_name(["__order"], true, false))
+    .collect()?;
     let firm_years_added = count("added")?;
     let firm_years_removed = count("removed")?;
     let changed = firm_years_added + firm_years_removed > 0
@@ -488,17 +517,37 @@ pub fn compare(old: &Side, new: &Side, tolerance: &Tolerance) -> Result<(Compari
     ))
 }
 
-/// The change ledger: one row per firm-year added or removed, one per changed cell.
-fn ledger(
-    joined: &DataFrame,
-    e: &str,
-    p: &str,
-    shared: &[String],
-    kinds: &[Kind],
-) -> Result<DataFrame> {
+/// A side's cells of one column as compared, under the name `tag` (and `tag#`, the number a
+/// text cell reads as, for a column of numbers on one side and text on the other).
+fn typed(tag: &str, kind: Kind, dtype: Option<&DataType>) -> Vec<Expr> {
+    let x = col(tag);
+    match kind {
+        Kind::Number => vec![x.cast(DataType::Float64)],
+        Kind::Text => vec![x.cast(DataType::String)],
+        Kind::Mixed => {
+            // The text as read, and the number it reads as (none for other text).
+            let number = match dtype {
+                Some(DataType::String) => x
+                    .clone()
+                    .str()
+                    .strip_chars(lit(NULL))
+                    .cast(DataType::Float64),
+                _ => x.clone().cast(DataType::Float64),
+            };
+            vec![x.cast(DataType::String), number.alias(format!("{tag}#"))]
+        }
+    }
+}
+
+/// The change ledger's rows for the firm-years of `pairs` where `filter` holds: added or
+/// removed, as `what` says.
+fn row_event(pairs: &DataFrame, e: &str, p: &str, filter: Expr, what: &str) -> Result<DataFrame> {
     let text_null = || lit(NULL).cast(DataType::String);
-    let row_event = |filter: Expr, what: &str| {
-        joined.clone().lazy().filter(filter).select([
+    Ok(pairs
+        .clone()
+        .lazy()
+        .filter(filter)
+        .select([
             col(e),
             col(p),
             lit(what).alias("change"),
@@ -508,37 +557,5 @@ fn ledger(
             lit(NULL).cast(DataType::Float64).alias("difference"),
             lit(0u32).alias("__order"),
         ])
-    };
-    let mut parts = vec![
-        row_event(col("__in_o").is_null(), "firm-year added"),
-        row_event(col("__in_n").is_null(), "firm-year removed"),
-    ];
-    for (i, c) in shared.iter().enumerate() {
-        let (o, n) = (col(format!("__o{i}")), col(format!("__n{i}")));
-        let difference = match kinds[i] {
-            Kind::Number => n.clone() - o.clone(),
-            Kind::Mixed => col(format!("__n#{i}")) - col(format!("__o#{i}")),
-            Kind::Text => lit(NULL).cast(DataType::Float64),
-        };
-        parts.push(
-            joined
-                .clone()
-                .lazy()
-                .filter(col(format!("__c{i}")))
-                .select([
-                    col(e),
-                    col(p),
-                    lit("value changed").alias("change"),
-                    lit(c.as_str()).alias("column"),
-                    o.cast(DataType::String).alias("old"),
-                    n.cast(DataType::String).alias("new"),
-                    difference.alias("difference"),
-                    lit(i as u32 + 1).alias("__order"),
-                ]),
-        );
-    }
-    Ok(concat(parts, UnionArgs::default())?
-        .sort([e, p, "__order"], Default::default())
-        .drop(by_name(["__order"], true, false))
         .collect()?)
 }
