@@ -693,3 +693,39 @@ fn a_joined_files_names_alike_a_panel_entity_are_pointed_to() {
         md.stdout
     );
 }
+
+#[test]
+fn dates_of_a_workbook_in_the_1904_date_system_read_as_written() {
+    // A workbook may count its dates from 1904-01-01 (the date system older Mac workbooks
+    // keep; openpyxl writes one with `epoch = CALENDAR_MAC_1904`). Its serials were read from
+    // 1899-12-30: every date 1462 days (four years and a day) early, 2021-12-31 read as
+    // 2017-12-30, and the fiscal years derived from them four years off. Worked by hand: A's
+    // year end 2021-12-31 gives fiscal year 2021; B's 2022-03-31 gives 2022 - 1 = 2021 under
+    // the default cutoff (a year ending in May or earlier belongs to the year before) and its
+    // 2023-06-30 gives 2023: periods 2021 to 2023.
+    let w = Workdir::new();
+    python(
+        w.dir.path(),
+        "import datetime, openpyxl\n\
+         from openpyxl.utils.datetime import CALENDAR_MAC_1904\n\
+         wb = openpyxl.Workbook()\n\
+         wb.epoch = CALENDAR_MAC_1904\n\
+         for row in [['firm', 'fye', 'x'], ['A', datetime.date(2021, 12, 31), 1], \
+         ['B', datetime.date(2022, 3, 31), 2], ['B', datetime.date(2023, 6, 30), 3]]:\n    \
+         wb.active.append(row)\n\
+         wb.save('mac.xlsx')",
+    );
+    w.write(
+        "rules.toml",
+        "[panel]\nentity = \"firm\"\nperiod = \"fiscal_year\"\nyear_end = \"fye\"\n",
+    );
+    w.ok(&["build", "mac.xlsx", "--rules", "rules.toml", "--out", "b"]);
+    let csv = std::fs::read_to_string(w.path("b/panel.csv")).unwrap();
+    for row in ["A,2021-12-31,", "B,2022-03-31,", "B,2023-06-30,"] {
+        assert!(csv.contains(row), "{row} in {csv}");
+    }
+    let report: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(w.path("b/report.json")).unwrap()).unwrap();
+    assert_eq!(report["panel"]["first_period"], 2021, "{}", report["panel"]);
+    assert_eq!(report["panel"]["last_period"], 2023, "{}", report["panel"]);
+}

@@ -11,7 +11,7 @@
 
 use std::path::Path;
 
-use calamine::{open_workbook_auto, Data, Reader};
+use calamine::{open_workbook_auto, Data, ExcelDateTime, Reader};
 use polars::prelude::*;
 
 use crate::{Error, Result};
@@ -48,18 +48,11 @@ fn unreadable(path: &Path, at: String, message: impl Into<String>) -> Error {
     }
 }
 
-/// A spreadsheet date serial (days since 1899-12-30, the 1900 date system) as `YYYY-MM-DD`;
-/// a time of day is dropped. Civil-from-days after Howard Hinnant's public-domain algorithm.
-fn iso_date(serial: f64) -> String {
-    let z = serial.floor() as i64 - 25_569 + 719_468;
-    let era = z.div_euclid(146_097);
-    let doe = z - era * 146_097;
-    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
-    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
-    let mp = (5 * doy + 2) / 153;
-    let day = doy - (153 * mp + 2) / 5 + 1;
-    let month = if mp < 10 { mp + 3 } else { mp - 9 };
-    let year = yoe + era * 400 + i64::from(month <= 2);
+/// A spreadsheet date as `YYYY-MM-DD`, in the workbook's date system: days since 1899-12-30,
+/// or since 1904-01-01 in a workbook that says so (as older Mac workbooks do); a time of day
+/// is dropped.
+fn iso_date(d: &ExcelDateTime) -> String {
+    let (year, month, day, ..) = d.to_ymd_hms_milli();
     format!("{year:04}-{month:02}-{day:02}")
 }
 
@@ -78,7 +71,7 @@ fn cell(d: &Data) -> Cell {
         Data::Int(i) => Cell::Number(*i as f64),
         Data::Float(f) => Cell::Number(*f),
         Data::Bool(b) => Cell::Number(if *b { 1.0 } else { 0.0 }),
-        Data::DateTime(d) if d.is_datetime() => Cell::Text(iso_date(d.as_f64())),
+        Data::DateTime(d) if d.is_datetime() => Cell::Text(iso_date(d)),
         Data::DateTime(d) => Cell::Number(d.as_f64()),
         Data::String(s) | Data::DateTimeIso(s) | Data::DurationIso(s) => {
             let t = s.trim();
@@ -105,7 +98,7 @@ fn as_text(d: &Data) -> Option<String> {
         Data::Empty | Data::Error(_) => None,
         Data::Float(f) if f.fract() == 0.0 && f.abs() < 9.0e15 => Some(format!("{}", *f as i64)),
         Data::String(s) if s.trim().is_empty() => None,
-        Data::DateTime(d) if d.is_datetime() => Some(iso_date(d.as_f64())),
+        Data::DateTime(d) if d.is_datetime() => Some(iso_date(d)),
         other => Some(other.to_string()),
     }
 }
@@ -329,11 +322,17 @@ mod tests {
 
     #[test]
     fn date_serials_read_as_iso_dates() {
-        // Spreadsheet serials (1900 system) against Python's datetime: 1899-12-30 plus 61,
-        // 44561 and 45351 days is 1900-03-01, 2021-12-31 and 2024-02-29.
-        assert_eq!(super::iso_date(61.0), "1900-03-01");
-        assert_eq!(super::iso_date(44561.0), "2021-12-31");
-        assert_eq!(super::iso_date(45351.75), "2024-02-29");
+        // Spreadsheet serials against Python's datetime: in the 1900 system 1899-12-30 plus
+        // 61, 44561 and 45351 days is 1900-03-01, 2021-12-31 and 2024-02-29; in the 1904
+        // system 1904-01-01 plus 0 and 43099 days is 1904-01-01 and 2021-12-31.
+        use calamine::{ExcelDateTime, ExcelDateTimeType::DateTime};
+        let date =
+            |serial, is_1904| super::iso_date(&ExcelDateTime::new(serial, DateTime, is_1904));
+        assert_eq!(date(61.0, false), "1900-03-01");
+        assert_eq!(date(44561.0, false), "2021-12-31");
+        assert_eq!(date(45351.75, false), "2024-02-29");
+        assert_eq!(date(0.0, true), "1904-01-01");
+        assert_eq!(date(43099.0, true), "2021-12-31");
     }
 
     #[test]
