@@ -675,6 +675,18 @@ fn a_check_that_examined_nothing_says_not_checked_and_lags_raise_no_break() {
     assert_eq!(status("Entry and exit"), "not checked");
     assert_eq!(status("Outliers and unit slips"), "not checked");
     assert_eq!(status("Accounting rules"), "not checked");
+    // The lag and the growth rate have no value at any entity's first period: said beside
+    // their dashes when they are compared.
+    w.write(
+        "s.toml",
+        "[panel]\nentity = \"firm\"\nperiod = \"year\"\n[audit]\ncompare = [\"x_lag\", \"x\"]\n\
+         [derive.x_lag]\nexpr = \"lag(x, 1)\"\n",
+    );
+    let text = w.ok(&["audit", "p.csv", "--rules", "s.toml"]).stdout;
+    assert!(
+        text.contains("No value at any entity's first period (–): `x_lag`."),
+        "{text}"
+    );
     assert_eq!(report["verdict"]["overall"], "pass");
     assert_eq!(report["missing_breaks"], serde_json::json!([]));
     // The same panel with a real break: x missing from 2003 on is still flagged.

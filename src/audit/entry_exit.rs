@@ -167,6 +167,20 @@ fn section(r: &Figures) -> Section {
             ]),
             rows,
         ));
+        let unvalued: Vec<String> = r
+            .attrition
+            .iter()
+            .filter(|v| v.n_leavers + v.n_stayers == 0)
+            .map(|v| format!("`{}`", v.variable))
+            .collect();
+        if !unvalued.is_empty() {
+            blocks.push(Block::Note(format!(
+                "No value at any entity's first period (–): {}. A lag, difference or growth \
+                 rate has none there by construction; `[audit] compare` names the variables to \
+                 compare.",
+                unvalued.join(", ")
+            )));
+        }
     }
     blocks.push(Block::Note(format!(
         "{} entities left before the window's last period, {} stayed. A difference between \
