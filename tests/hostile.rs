@@ -427,6 +427,8 @@ fn values_of_the_rules_file_are_checked_before_any_file_is_read() {
         ("[verdict]\ngapz = \"fail\"\n", "`gapz`"),
         ("[thresholds]\nattrition_p = 2\n", "attrition_p"),
         ("[thresholds]\nrobust_z = -1\n", "robust_z"),
+        // A change of a share cannot pass 1: the check would be off without a word.
+        ("[thresholds]\nmissing_jump = 1.5\n", "missing_jump"),
         (
             "[audit]\noutliers = { lower = 0.5, upper = 0.2 }\n",
             "[audit] outliers",

@@ -64,12 +64,17 @@ pub(super) fn settings(rules: &crate::rules::Rules) -> Result<Settings> {
         }
         s.nearly_absorbed = x;
     }
+    if let Some(x) = t.missing_jump {
+        // A change of a share between 0 and 1: above 1 no break could ever be found.
+        if !(x > 0.0 && x <= 1.0) {
+            return Err(bad(
+                "[thresholds] missing_jump",
+                "must be above 0 and at most 1 (a change in the share of values missing)",
+            ));
+        }
+        s.missing_jump = x;
+    }
     for (value, slot, name) in [
-        (
-            t.missing_jump,
-            &mut s.missing_jump,
-            "[thresholds] missing_jump",
-        ),
         (t.robust_z, &mut s.robust_z, "[thresholds] robust_z"),
         (t.log_jump, &mut s.log_jump, "[thresholds] log_jump"),
     ] {
