@@ -644,3 +644,38 @@ fn compare_reads_numbers_beside_text_in_the_other_vintage_as_numbers() {
         text.stdout
     );
 }
+
+#[test]
+fn a_corrections_file_is_read_with_the_input_settings_of_the_data() {
+    // Where the data is a semicolon-separated file with decimal commas in Windows-1252 (as a
+    // spreadsheet in much of Europe saves it), the corrections file written beside it the same
+    // way was refused for its header; now it is read as the data is. Worked by hand: firm
+    // `Bräu`'s 2001 value 1,5 becomes 5,5 (5.5), recorded in corrections.csv.
+    let w = Workdir::new();
+    let latin = |text: &str| -> Vec<u8> {
+        text.chars()
+            .map(|c| u8::try_from(u32::from(c)).unwrap())
+            .collect()
+    };
+    std::fs::write(
+        w.path("p.csv"),
+        latin("firm;year;x\nBräu;2001;1,5\nBräu;2002;2\nZeta;2001;3\n"),
+    )
+    .unwrap();
+    std::fs::write(
+        w.path("corr.csv"),
+        latin("entity;period;column;value;reason\nBräu;2001;x;5,5;typed from the annual report\n"),
+    )
+    .unwrap();
+    w.write(
+        "rules.toml",
+        "[input]\ndelimiter = \";\"\ndecimal_comma = true\nencoding = \"windows-1252\"\n\
+         [panel]\nentity = \"firm\"\nperiod = \"year\"\n[repair]\ncorrections = \"corr.csv\"\n",
+    );
+    w.ok(&["build", "p.csv", "--rules", "rules.toml", "--out", "b"]);
+    let ledger = std::fs::read_to_string(w.path("b/corrections.csv")).unwrap();
+    assert!(
+        ledger.contains("Bräu,2001,x,1.5,5.5,corrections file: typed from the annual report"),
+        "{ledger}"
+    );
+}

@@ -22,6 +22,8 @@ pub struct Corrections {
     /// entity, period, column, value (text, empty = null), reason, and `__line` (the line
     /// of the file, the header being line 1).
     pub rows: DataFrame,
+    /// Numbers written with a decimal comma (`5,5`), as `[input]` says of the CSV files.
+    pub decimal_comma: bool,
 }
 
 /// The columns of a corrections file, in order.
@@ -34,10 +36,19 @@ fn bad(path: &Path, message: String) -> Error {
     }
 }
 
-/// Read and check a corrections file (before any data is read).
-pub fn read_corrections(path: &Path) -> Result<Corrections> {
-    let bytes = std::fs::read(path).map_err(Error::io(path))?;
-    let sha256 = crate::load::sha256_hex(&bytes);
+/// Read and check a corrections file (before any data is read), with the CSV settings of
+/// `[input]` (delimiter, decimal comma, encoding), as the data's CSV files are read.
+pub fn read_corrections(path: &Path, csv: &crate::config::CsvOptions) -> Result<Corrections> {
+    let raw = std::fs::read(path).map_err(Error::io(path))?;
+    let sha256 = crate::load::sha256_hex(&raw);
+    let bytes = match csv.encoding {
+        crate::config::Encoding::Windows1252 => {
+            let (text, _, _) = encoding_rs::WINDOWS_1252.decode(&raw);
+            text.into_owned().into_bytes()
+        }
+        crate::config::Encoding::Utf8 => raw,
+    };
+    let delimiter = csv.delimiter;
     let schema: Schema = CORRECTION_COLUMNS
         .iter()
         .map(|c| Field::new((*c).into(), DataType::String))
@@ -45,6 +56,7 @@ pub fn read_corrections(path: &Path) -> Result<Corrections> {
     let df = CsvReadOptions::default()
         .with_has_header(true)
         .with_schema(Some(Arc::new(schema)))
+        .map_parse_options(|o| o.with_separator(delimiter as u8))
         .into_reader_with_file_handle(std::io::Cursor::new(bytes.clone()))
         .finish()
         .map_err(|e| bad(path, crate::error::one_line(&e.to_string())))?;
@@ -54,13 +66,13 @@ pub fn read_corrections(path: &Path) -> Result<Corrections> {
         .unwrap_or_default()
         .trim_start_matches('\u{feff}')
         .to_string();
-    let names: Vec<&str> = header.split(',').map(str::trim).collect();
+    let names: Vec<&str> = header.split(delimiter).map(str::trim).collect();
     if names != CORRECTION_COLUMNS {
         return Err(bad(
             path,
             format!(
                 "the header must be `{}` (found `{header}`)",
-                CORRECTION_COLUMNS.join(",")
+                CORRECTION_COLUMNS.join(&delimiter.to_string())
             ),
         ));
     }
@@ -119,6 +131,7 @@ pub fn read_corrections(path: &Path) -> Result<Corrections> {
         path: path.to_path_buf(),
         sha256,
         rows,
+        decimal_comma: csv.decimal_comma,
     })
 }
 
@@ -221,10 +234,12 @@ pub fn apply_corrections(
             .lazy()
             .filter(col("column").eq(lit(t.as_str())));
         let value = if numeric {
-            col("value")
-                .str()
-                .strip_chars(lit(NULL))
-                .cast(DataType::Float64)
+            let text = col("value").str().strip_chars(lit(NULL));
+            let text = match c.decimal_comma {
+                true => text.str().replace_all(lit(","), lit("."), true),
+                false => text,
+            };
+            text.cast(DataType::Float64)
         } else {
             col("value")
         };

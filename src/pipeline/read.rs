@@ -22,7 +22,7 @@ pub(super) fn read(input: &InputConfig, typed: &Typed, progress: &Progress) -> R
     let corrections = match &rules.file.repair.corrections {
         Some(name) => {
             let base = assemble::rules_dir(rules);
-            Some(repair::read_corrections(&base.join(name))?)
+            Some(repair::read_corrections(&base.join(name), &input.csv)?)
         }
         None => None,
     };
