@@ -1551,3 +1551,56 @@ fn names_with_pipes_and_markup_keep_the_tables_whole() {
     assert!(!page.contains("<b>F"), "unescaped entity name");
     assert!(page.contains("&lt;script&gt;x"), "the name shown as text");
 }
+
+#[test]
+fn a_model_with_nothing_to_explain_is_not_computable() {
+    // An outcome with one value, and an outcome the regressors fit exactly (y = 2 x + 3),
+    // left residuals of rounding noise (about 1e-16), which the tests read as findings: the
+    // period-effects test said "add period effects" and a slope of 1e-15 "moved materially".
+    // Worked by hand: in both, every residual is zero in exact arithmetic.
+    let w = Workdir::new();
+    let rules = "[panel]\nentity = \"firm\"\nperiod = \"year\"\n[model]\noutcome = \"y\"\n\
+                 regressors = [\"x\", \"z\"]\n";
+    w.write("rules.toml", rules);
+    // y = a + b x: (name, a, b, what the warning says).
+    for (name, a, b, why) in [
+        ("constant", 5.0, 0.0, "takes a single value"),
+        ("exact", 3.0, 2.0, "fit the outcome `y` exactly"),
+    ] {
+        let mut csv = String::from("firm,year,x,z,y\n");
+        for f in 0..30 {
+            for t in 0..5 {
+                let x = ((f * 7 + t * 3) % 11) as f64 / 10.0;
+                let z = ((f * 5 + t * t) % 13) as f64;
+                csv.push_str(&format!("F{f},{},{x},{z},{}\n", 2001 + t, a + b * x));
+            }
+        }
+        w.write("p.csv", &csv);
+        let r = w.ok(&[
+            "audit",
+            "p.csv",
+            "--rules",
+            "rules.toml",
+            "--format",
+            "json",
+        ]);
+        let report: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+        let model = &report["model"];
+        let first = model["warnings"][0].as_str().unwrap_or_default();
+        assert!(
+            first.starts_with("not computable") && first.contains(why),
+            "{name}: {model}"
+        );
+        assert!(
+            model["slopes"].as_array().unwrap().is_empty(),
+            "{name}: {model}"
+        );
+        let tests: usize = model["questions"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|q| q["tests"].as_array().unwrap().len())
+            .sum();
+        assert_eq!(tests, 0, "{name}: {model}");
+    }
+}

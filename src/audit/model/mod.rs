@@ -8,7 +8,6 @@
 use std::collections::BTreeMap;
 
 use nalgebra::{DMatrix, DVector};
-use polars::prelude::*;
 use statrs::distribution::{ChiSquared, ContinuousCDF, FisherSnedecor, Normal};
 
 use super::verdict::{counted, level_key, line, worst, CheckVerdict, LevelKey, Levels, Status};
@@ -16,6 +15,7 @@ use super::Context;
 use crate::report::{ErrorSplit, ModelReport, Report, Slope, VariationLine};
 use crate::Result;
 
+mod gram;
 mod linalg;
 mod questions;
 mod residual_tests;
@@ -24,7 +24,8 @@ use questions::Test;
 mod sample;
 mod thumbs;
 
-use linalg::{demean, identified, identified_gram, means, ols, with_intercept};
+use gram::{solve, Design, Means};
+use linalg::{identified_gram, weighted_gram};
 pub use residual_tests::cd_statistic;
 use residual_tests::{pesaran_cd, wooldridge};
 use sample::{extract, Sample};
@@ -130,60 +131,11 @@ pub fn readiness(ctx: &Context, variation: &[VariationLine]) -> Result<Option<Mo
 }
 
 fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Result<ModelReport> {
-    let (e, p) = (ctx.entity, ctx.period);
     let mut names: Vec<String> = spec.regressors.clone();
-    // Unique keys, sorted; the lag (if asked) reads the previous period of the same entity.
-    let mut cols = vec![
-        col(e),
-        col(p),
-        col(spec.outcome.as_str())
-            .cast(DataType::Float64)
-            .alias("__y"),
-    ];
-    for (i, r) in spec.regressors.iter().enumerate() {
-        cols.push(
-            col(r.as_str())
-                .cast(DataType::Float64)
-                .alias(format!("__x{i}")),
-        );
-    }
-    let mut lf = ctx
-        .df
-        .clone()
-        .lazy()
-        .select(cols)
-        .unique_stable_generic(Some(vec![col(e), col(p)]), UniqueKeepStrategy::First);
     if spec.lagged_outcome {
-        let back = col(e)
-            .eq(col(e).shift(lit(1)))
-            .and(col(p).eq(col(p).shift(lit(1)) + lit(1)));
-        let i = names.len();
-        lf = lf.with_column(
-            when(back)
-                .then(col("__y").shift(lit(1)))
-                .otherwise(lit(NULL))
-                .alias(format!("__x{i}")),
-        );
         names.push(format!("lag({}, 1)", spec.outcome));
     }
-    let frame = lf.collect()?;
-    let mut costs = vec![(
-        spec.outcome.clone(),
-        frame.column("__y")?.null_count() as u64,
-    )];
-    for (i, n) in names.iter().enumerate() {
-        costs.push((
-            n.clone(),
-            frame.column(&format!("__x{i}"))?.null_count() as u64,
-        ));
-    }
-    let mut ok = col("__y").is_not_null().and(col("__y").is_finite());
-    for i in 0..names.len() {
-        let c = col(format!("__x{i}").as_str());
-        ok = ok.and(c.clone().is_not_null()).and(c.is_finite());
-    }
-    let sample = frame.lazy().filter(ok).collect()?;
-    let s = extract(&sample, e, p, &names, spec.effects)?;
+    let (s, costs) = extract(ctx, spec, &names)?;
     let n_rows = s.y.len();
     let n = s.sizes.len();
     let mut out = ModelReport {
@@ -219,7 +171,7 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
         warnings: Vec::new(),
     };
     let d = s.declared;
-    let k_all = s.x.ncols();
+    let k_all = s.columns();
     if n < 2 || n_rows <= n + k_all + 1 {
         out.warnings.push(format!(
             "not computable: too few rows ({n_rows}) for {n} entities and {k_all} regressors \
@@ -252,27 +204,52 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
             return Ok(out);
         }
     }
+    // An outcome that takes one value leaves nothing to explain: every residual would be
+    // rounding noise, and the tests would read it as findings.
+    if s.y.iter().all(|v| *v == s.y[0]) {
+        out.warnings.push(format!(
+            "not computable: the outcome `{}` takes a single value in the estimation sample, \
+             so there is nothing to explain and no diagnostic was computed",
+            spec.outcome
+        ));
+        return Ok(out);
+    }
     let dummies: Vec<usize> = (d..k_all).collect();
 
     // What each estimator identifies. Pooled OLS and random effects: the intercept, the period
     // dummies, then the declared regressors, each kept if it adds to the rank (time-invariant
     // regressors are kept). Within: the same after removing entity means, period dummies first,
     // so that a regressor spanned by entity + period effects (experience rising by one a year
-    // for everyone) is the one found not identified.
-    let xp_full = with_intercept(&s.x);
+    // for everyone) is the one found not identified. From cross products (`gram.rs`): the
+    // designs themselves, dummies included, are never formed.
+    let means = Means::of(&s);
+    let (zero, one) = (vec![0.0; n], vec![1.0; n]);
+    let pooled_design = Design {
+        s: &s,
+        means: &means,
+        theta: &zero,
+        intercept: true,
+    };
+    let within_design = Design {
+        s: &s,
+        means: &means,
+        theta: &one,
+        intercept: false,
+    };
+    let pooled_gram = pooled_design.gram();
     let order_p: Vec<usize> = std::iter::once(0)
         .chain(dummies.iter().map(|j| j + 1))
         .chain((0..d).map(|j| j + 1))
         .collect();
-    let pooled_cols = identified(&xp_full, &order_p);
+    let pooled_cols = identified_gram(&pooled_gram.g, &order_p);
     let pooled_keep: Vec<usize> = pooled_cols
         .iter()
         .filter(|c| **c > 0)
         .map(|c| c - 1)
         .collect();
-    let xw_full = demean(&s.x, &s.entity, &s.sizes);
+    let within_gram = within_design.gram();
     let order_w: Vec<usize> = dummies.iter().copied().chain(0..d).collect();
-    let within_keep: Vec<usize> = identified(&xw_full, &order_w)
+    let within_keep: Vec<usize> = identified_gram(&within_gram.g, &order_w)
         .into_iter()
         .filter(|j| pooled_keep.contains(j))
         .collect();
@@ -285,35 +262,40 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
     }
 
     // Pooled OLS with an intercept (and the period dummies).
-    let xp = xp_full.select_columns(&pooled_cols);
-    let k_p = xp.ncols();
-    let Some(b_p) = ols(&xp, &s.y) else {
+    let (gp, cp) = pooled_gram.select(&pooled_cols);
+    let k_p = pooled_cols.len();
+    let Some(b_p) = solve(&gp, &cp) else {
         out.warnings
             .push("not computable: the pooled regression is singular".into());
         return Ok(out);
     };
-    let e_p = &s.y - &xp * &b_p;
+    let e_p = pooled_design.residuals(&pooled_cols, &b_p);
     let rss_p = e_p.norm_squared();
-    let se_p: Vec<f64> = match (xp.transpose() * &xp).try_inverse() {
+    // The regressors fitting the outcome exactly leave residuals of rounding noise alone.
+    let mean_y = s.y.mean();
+    let tss = s.y.iter().map(|v| (v - mean_y).powi(2)).sum::<f64>();
+    if rss_p <= EXACT_FIT * tss {
+        out.warnings.push(format!(
+            "not computable: the regressors (with the intercept and any period dummies) fit \
+             the outcome `{}` exactly, so the residuals are rounding noise and no diagnostic \
+             was computed",
+            spec.outcome
+        ));
+        return Ok(out);
+    }
+    let se_p: Vec<f64> = match gp.try_inverse() {
         Some(inv) => (0..k_p)
             .map(|c| (rss_p / (n_rows - k_p) as f64 * inv[(c, c)]).sqrt())
             .collect(),
         None => vec![f64::NAN; k_p],
     };
     // Within: entity dummies, by demeaning.
-    let xw = xw_full.select_columns(&within_keep);
-    let k_w = xw.ncols();
-    let yw = demean(
-        &DMatrix::from_column_slice(n_rows, 1, s.y.as_slice()),
-        &s.entity,
-        &s.sizes,
-    )
-    .column(0)
-    .into_owned();
+    let (gw, cw) = within_gram.select(&within_keep);
+    let k_w = within_keep.len();
     let b_w = if k_w == 0 {
         DVector::zeros(0)
     } else {
-        match ols(&xw, &yw) {
+        match solve(&gw, &cw) {
             Some(b) => b,
             None => {
                 out.warnings
@@ -322,7 +304,7 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
             }
         }
     };
-    let e_w = &yw - &xw * &b_w;
+    let e_w = within_design.residuals(&within_keep, &b_w);
     let rss_w = e_w.norm_squared();
     let df_w = (n_rows - n - k_w) as f64;
     let s2_nu = rss_w / df_w;
@@ -416,28 +398,39 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
     // Swamy–Arora variance components, Baltagi–Chang (1994) for unbalanced panels, from the
     // between regression on the pooled columns that vary between entities (with period
     // dummies in a balanced panel, their entity means are all alike and drop out).
-    let (xbar, ybar) = means(&xp, &s.y, &s.entity, &s.sizes);
-    let weighted = |f: &dyn Fn(f64) -> f64| {
-        let mut m = DMatrix::<f64>::zeros(k_p, k_p);
-        for (i, t) in s.sizes.iter().enumerate() {
-            let xi = xbar.row(i).transpose();
-            m += f(*t as f64) * &xi * xi.transpose();
+    // Entity means of the pooled columns: 1 for the intercept, 1 / T_i in each of the
+    // entity's periods for a dummy.
+    let mut xbar = DMatrix::<f64>::zeros(n, k_p);
+    for (p, c) in pooled_cols.iter().enumerate() {
+        match *c {
+            0 => xbar.column_mut(p).fill(1.0),
+            c if c <= d => xbar.set_column(p, &means.x.column(c - 1)),
+            _ => {}
         }
-        m
-    };
-    let between_cols = identified_gram(&weighted(&|t| t), &(0..k_p).collect::<Vec<_>>());
+    }
+    let place: BTreeMap<usize, usize> = pooled_cols
+        .iter()
+        .enumerate()
+        .filter(|(_, c)| **c > d)
+        .map(|(p, c)| (c - d, p))
+        .collect();
+    for (i, start, t) in s.spans() {
+        for r in start..start + t {
+            if let Some(p) = place.get(&s.slot[r]) {
+                xbar[(i, *p)] += 1.0 / t as f64;
+            }
+        }
+    }
+    let ybar = &means.y;
+    let size = |i: usize| s.sizes[i] as f64;
+    let between_cols = identified_gram(&weighted_gram(&xbar, size), &(0..k_p).collect::<Vec<_>>());
     let xb = xbar.select_columns(&between_cols);
     let k_b = xb.ncols();
-    let mut xpx = DMatrix::<f64>::zeros(k_b, k_b);
-    let mut xzzx = DMatrix::<f64>::zeros(k_b, k_b);
-    let mut xpy = DVector::<f64>::zeros(k_b);
-    for (i, t) in s.sizes.iter().enumerate() {
-        let t = *t as f64;
-        let xi = xb.row(i).transpose();
-        xpx += t * &xi * xi.transpose();
-        xzzx += t * t * &xi * xi.transpose();
-        xpy += t * ybar[i] * &xi;
-    }
+    let xpx = weighted_gram(&xb, size);
+    let xzzx = weighted_gram(&xb, |i| size(i) * size(i));
+    let xpy = DVector::<f64>::from_fn(k_b, |c, _| {
+        (0..n).map(|i| size(i) * ybar[i] * xb[(i, c)]).sum()
+    });
     let mut entity_var = None;
     if n > k_b {
         if let Some(inv) = xpx.clone().try_inverse() {
@@ -476,18 +469,16 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
             .iter()
             .map(|t| 1.0 - (s2_nu / (*t as f64 * s2_mu + s2_nu)).sqrt())
             .collect();
-        let mut xs = xp.clone();
-        let mut ys = s.y.clone();
-        for r in 0..n_rows {
-            let i = s.entity[r];
-            ys[r] -= theta[i] * ybar[i];
-            for c in 0..k_p {
-                xs[(r, c)] -= theta[i] * xbar[(i, c)];
-            }
-        }
-        if let (Some(b), Some(inv_re)) = (ols(&xs, &ys), (xs.transpose() * &xs).try_inverse()) {
+        let random = Design {
+            s: &s,
+            means: &means,
+            theta: &theta,
+            intercept: true,
+        };
+        let (gre, cre) = random.gram().select(&pooled_cols);
+        if let (Some(b), Some(inv_re)) = (solve(&gre, &cre), gre.clone().try_inverse()) {
             let both: Vec<usize> = (0..d).filter(|j| within_keep.contains(j)).collect();
-            let inv_w = (xw.transpose() * &xw).try_inverse();
+            let inv_w = gw.clone().try_inverse();
             if both.is_empty() {
                 out.warnings.push(
                     "not computable: the Hausman test, since no declared regressor is \
@@ -502,7 +493,7 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
                 let vw =
                     DMatrix::from_fn(m, m, |r, c| s2_nu * inv_w[(wpos(both[r]), wpos(both[c]))]);
                 // V_RE from the random-effects regression's own residual variance.
-                let e_re = &ys - &xs * &b;
+                let e_re = random.residuals(&pooled_cols, &b);
                 let s2_re = e_re.norm_squared() / (n_rows - k_p) as f64;
                 let vre =
                     DMatrix::from_fn(m, m, |r, c| s2_re * inv_re[(ppos(both[r]), ppos(both[c]))]);
@@ -535,7 +526,6 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
             b_re = Some(b);
         }
     }
-
     // Wooldridge's test for serial correlation in the idiosyncratic errors.
     if let Some(t) = wooldridge(&s, &within_keep) {
         tests.push(t);
@@ -579,6 +569,11 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
     warnings(variation, spec, &s, &b_w, &within_keep, &mut out);
     Ok(out)
 }
+
+/// A pooled residual sum of squares at or below this share of the outcome's total sum of
+/// squares is an exact fit: far below any real residual variation, far above rounding (about
+/// N · 1e-32 of it).
+const EXACT_FIT: f64 = 1e-20;
 
 /// A within slope more than this many pooled standard errors from the pooled slope "moves
 /// materially" (common practice: about two standard errors).

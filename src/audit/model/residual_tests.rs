@@ -5,7 +5,6 @@ use std::collections::BTreeMap;
 use nalgebra::{DMatrix, DVector};
 use statrs::distribution::{ContinuousCDF, FisherSnedecor, Normal};
 
-use super::linalg::ols;
 use super::questions::Test;
 use super::{reading, Sample};
 use crate::report::ModelTest;
@@ -16,51 +15,78 @@ use crate::report::ModelTest;
 /// coefficient is -0.5, F(1, G - 1).
 pub(super) fn wooldridge(s: &Sample, keep: &[usize]) -> Option<ModelTest> {
     let declared: Vec<usize> = keep.iter().copied().filter(|j| *j < s.declared).collect();
-    let mut dy = Vec::new();
-    let mut dx: Vec<Vec<f64>> = Vec::new();
-    let mut who: Vec<(usize, i64)> = Vec::new();
-    for r in 1..s.y.len() {
-        if s.entity[r] == s.entity[r - 1] && s.period[r] == s.period[r - 1] + 1 {
-            dy.push(s.y[r] - s.y[r - 1]);
-            dx.push(
-                declared
-                    .iter()
-                    .map(|j| s.x[(r, *j)] - s.x[(r - 1, *j)])
-                    .collect(),
-            );
-            who.push((s.entity[r], s.period[r]));
+    let k = declared.len();
+    // Rows whose entity has the period before: one first difference each. A pair of
+    // residuals is two such rows in a row (the same entity's consecutive differences).
+    let differenced =
+        |r: usize| r > 0 && s.entity[r] == s.entity[r - 1] && s.period[r] == s.period[r - 1] + 1;
+    let paired = |r: usize| differenced(r) && differenced(r - 1);
+    let diff = |r: usize, dx: &mut [f64]| {
+        for (c, j) in declared.iter().enumerate() {
+            dx[c] = s.x[(r, *j)] - s.x[(r - 1, *j)];
+        }
+        s.y[r] - s.y[r - 1]
+    };
+    // Pooled OLS of the differences, without intercept, from their cross products: read a
+    // row at a time, as are the residuals below (nothing of the sample's length is made).
+    let mut dx = vec![0.0; k];
+    let (mut g, mut c, mut m) = (DMatrix::<f64>::zeros(k, k), DVector::<f64>::zeros(k), 0);
+    // Summed a block of rows at a time, as the estimators' cross products are.
+    let (mut g_part, mut c_part) = (g.clone(), c.clone());
+    for r in (1..s.y.len()).filter(|r| differenced(*r)) {
+        let dy = diff(r, &mut dx);
+        m += 1;
+        for a in 0..k {
+            c_part[a] += dx[a] * dy;
+            for b in 0..=a {
+                g_part[(a, b)] += dx[a] * dx[b];
+            }
+        }
+        if m % super::gram::BLOCK == 0 {
+            g += &g_part;
+            c += &c_part;
+            g_part.fill(0.0);
+            c_part.fill(0.0);
         }
     }
-    let m = dy.len();
-    if m < declared.len() + 3 || declared.is_empty() {
+    g += &g_part;
+    c += &c_part;
+    if m < k + 3 || k == 0 {
         return None;
     }
-    let x = DMatrix::from_fn(m, declared.len(), |r, c| dx[r][c]);
-    let y = DVector::from_vec(dy);
-    let b = ols(&x, &y)?;
-    let u = &y - &x * b;
-    // Residual on its lag, consecutive periods of the same entity only.
-    let mut pairs: Vec<(usize, f64, f64)> = Vec::new();
-    for r in 1..m {
-        if who[r].0 == who[r - 1].0 && who[r].1 == who[r - 1].1 + 1 {
-            pairs.push((who[r].0, u[r - 1], u[r]));
+    for a in 0..k {
+        for b in 0..a {
+            g[(b, a)] = g[(a, b)];
         }
     }
+    let b = super::gram::solve(&g, &c)?;
+    let mut residual = |r: usize| {
+        let dy = diff(r, &mut dx);
+        dy - dx.iter().zip(b.iter()).map(|(x, b)| x * b).sum::<f64>()
+    };
+    // Residual on its lag, consecutive periods of the same entity only.
+    let pairs: Vec<usize> = (2..s.y.len()).filter(|r| paired(*r)).collect();
     if pairs.len() < 3 {
         return None;
     }
-    let sxx: f64 = pairs.iter().map(|(_, x, _)| x * x).sum();
-    let rho = pairs.iter().map(|(_, x, y)| x * y).sum::<f64>() / sxx;
-    let mut score: BTreeMap<usize, f64> = BTreeMap::new();
-    for (g, x, y) in &pairs {
-        *score.entry(*g).or_insert(0.0) += x * (y - rho * x);
+    let lagged: Vec<(usize, f64, f64)> = pairs
+        .iter()
+        .map(|r| (s.entity[*r], residual(r - 1), residual(*r)))
+        .collect();
+    let sxx: f64 = lagged.iter().map(|(_, x, _)| x * x).sum();
+    let rho = lagged.iter().map(|(_, x, y)| x * y).sum::<f64>() / sxx;
+    // Each entity's score, in entity order; entities without a pair are no cluster.
+    let mut score: Vec<Option<f64>> = vec![None; s.sizes.len()];
+    for (g, x, y) in &lagged {
+        *score[*g].get_or_insert(0.0) += x * (y - rho * x);
     }
+    let score: Vec<f64> = score.into_iter().flatten().collect();
     let g = score.len() as f64;
     if g < 2.0 {
         return None;
     }
     // Cluster-robust variance with the usual small-sample factor G / (G - 1) (one regressor).
-    let v = g / (g - 1.0) * score.values().map(|s| s * s).sum::<f64>() / (sxx * sxx);
+    let v = g / (g - 1.0) * score.iter().map(|s| s * s).sum::<f64>() / (sxx * sxx);
     let f = (rho + 0.5).powi(2) / v;
     let p = super::upper_tail(f, |x| {
         FisherSnedecor::new(1.0, g - 1.0).ok().map(|d| d.sf(x))
@@ -159,9 +185,11 @@ pub fn cd_statistic(series: &[Vec<Option<f64>>]) -> f64 {
         x: DMatrix::zeros(values.len(), 0),
         names: Vec::new(),
         declared: 0,
+        slot: vec![0; values.len()],
         entity,
         period,
         sizes,
+        dummies: 0,
     };
     pesaran_cd(&DVector::from_vec(values), &sample).map_or(f64::NAN, |(t, _)| t.statistic)
 }
