@@ -1038,6 +1038,31 @@ fn the_memory_budget_counts_repeating_text_as_codes() {
         assert!(r.stderr.contains("needs about 267 MiB"), "{}", r.stderr);
         assert_eq!(run(file, "268MiB").code, 0, "{file}");
     }
+    // A declared model adds its sample beside the panel: with a derived `y` (8 bytes a row
+    // more) the panel is 256 MiB + 1.15 × 100,000 × 56 bytes (262.1 MiB); the model of `y` on
+    // `x` adds 100,000 × (112 + 16 × 1) bytes (12.2 MiB): 274.3 MiB, worked by hand from the
+    // constants of `src/load/budget.rs`.
+    let derive = "[panel]\nentity = \"firm\"\nperiod = \"year\"\n[derive.y]\nexpr = \"x * 2\"\n";
+    w.write("plain.toml", derive);
+    w.write(
+        "model.toml",
+        &format!("{derive}[model]\noutcome = \"y\"\nregressors = [\"x\"]\n"),
+    );
+    let budgeted = |rules: &str, budget: &str| {
+        w.run(&[
+            "audit",
+            "repeating.parquet",
+            "--rules",
+            rules,
+            "--memory-budget",
+            budget,
+        ])
+    };
+    assert_eq!(budgeted("plain.toml", "263MiB").code, 0);
+    let r = budgeted("model.toml", "263MiB");
+    assert_eq!(r.code, 2, "{}", r.stderr);
+    assert!(r.stderr.contains("needs about 274 MiB"), "{}", r.stderr);
+    assert_eq!(budgeted("model.toml", "275MiB").code, 0);
 }
 
 /// The binary turns transparent huge pages off for its own process (see `small_pages_only` in
