@@ -4,54 +4,43 @@
 
 use polars::prelude::*;
 
-use super::{drop_where, Keys};
+use super::{drop_marked, Keys};
+use crate::core::PanelCore;
 use crate::report::{BalanceLine, WindowScore};
 use crate::Result;
+
+/// The helper column holding why each row is balanced away.
+const WHY: &str = "__balance_why";
 
 pub use crate::rules::Balance;
 
 /// How many runner-up windows the report lists.
 const RUNNERS_UP: usize = 5;
 
-/// Every window's score from the distinct keys: for each (first, last), the entities
-/// observed in every period of it. Sorted best first: windows of two periods or more keeping
-/// an entity before single periods, then entities × periods, then longer, then earlier.
-pub fn window_scores(df: &DataFrame, entity: &str, period: &str) -> Result<Vec<WindowScore>> {
-    // Spells: maximal runs of consecutive periods per entity, counted by (start, end).
-    let spells = df
-        .clone()
-        .lazy()
-        .select([col(entity), col(period)])
-        .unique(None, UniqueKeepStrategy::First)
-        .sort([entity, period], Default::default())
-        .with_column(
-            (col(period) - col(period).shift(lit(1)))
-                .neq(lit(1))
-                .or(col(entity).neq(col(entity).shift(lit(1))))
-                .fill_null(lit(true))
-                .cast(DataType::UInt32)
-                .cum_sum(false)
-                .alias("__spell"),
-        )
-        .group_by([col("__spell")])
-        .agg([col(period).min().alias("s"), col(period).max().alias("e")])
-        .group_by([col("s"), col("e")])
-        .agg([len().cast(DataType::UInt64).alias("n")])
-        .collect()?;
-    let (s, e, n) = (
-        spells.column("s")?.i64()?,
-        spells.column("e")?.i64()?,
-        spells.column("n")?.u64()?,
-    );
-    let (Some(lo), Some(hi)) = (s.min(), e.max()) else {
-        return Ok(Vec::new());
+/// Every window's score from the panel core of a panel sorted by entity and period: for each
+/// (first, last), the entities observed in every period of it. Sorted best first: windows of
+/// two periods or more keeping an entity before single periods, then entities × periods, then
+/// longer, then earlier.
+pub fn window_scores(core: &PanelCore) -> Vec<WindowScore> {
+    let (Some(&lo), Some(&hi)) = (core.periods.first(), core.periods.last()) else {
+        return Vec::new();
     };
     let t = (hi - lo + 1) as usize;
-    // m[a][b]: spells starting at a and ending at b; c[a][b]: spells with start <= a, end >= b.
+    // m[a][b]: spells (maximal runs of consecutive periods of an entity; a key's copies stay in
+    // its run) starting at a and ending at b, read off the sorted rows in one pass.
     let mut m = vec![vec![0u64; t]; t];
-    for i in 0..spells.height() {
-        if let (Some(a), Some(b), Some(k)) = (s.get(i), e.get(i), n.get(i)) {
-            m[(a - lo) as usize][(b - lo) as usize] += k;
+    for rows in core.starts.windows(2) {
+        let mut start = core.period_of(rows[0]);
+        for r in rows[0] + 1..rows[1] {
+            let (before, now) = (core.period_of(r - 1), core.period_of(r));
+            if now - before > 1 {
+                m[(start - lo) as usize][(before - lo) as usize] += 1;
+                start = now;
+            }
+        }
+        if rows[1] > rows[0] {
+            let end = core.period_of(rows[1] - 1);
+            m[(start - lo) as usize][(end - lo) as usize] += 1;
         }
     }
     let mut c = vec![vec![0u64; t]; t];
@@ -83,7 +72,7 @@ pub fn window_scores(df: &DataFrame, entity: &str, period: &str) -> Result<Vec<W
             .then((y.last - y.first).cmp(&(x.last - x.first)))
             .then(x.first.cmp(&y.first))
     });
-    Ok(scores)
+    scores
 }
 
 /// Apply the balancing choice; returns the kept rows, the ledger part and the report line.
@@ -92,11 +81,14 @@ pub fn apply(
     balance: Balance,
     k: &Keys,
 ) -> Result<(DataFrame, Option<DataFrame>, Option<BalanceLine>)> {
+    // The panel arrives sorted by entity and period: its core's codes give each entity's
+    // periods in one typed pass, with no group-by over the entity names.
+    let core = PanelCore::new(&df, k.entity, k.period)?;
     let (first, last, runner_up, mode) = match balance {
         Balance::Keep => return Ok((df, None, None)),
         Balance::Window(a, b) => (a, b, Vec::new(), "window"),
         Balance::Largest => {
-            let scores = window_scores(&df, k.entity, k.period)?;
+            let scores = window_scores(&core);
             let Some(best) = scores.first() else {
                 return Ok((df, None, None));
             };
@@ -104,25 +96,40 @@ pub fn apply(
             (best.first, best.last, runner_up, "largest")
         }
     };
-    let (e, p) = (k.entity, k.period);
+    let e = k.entity;
     let span = last - first + 1;
-    let inside = col(p).gt_eq(lit(first)).and(col(p).lt_eq(lit(last)));
-    let complete = col(p)
-        .filter(inside.clone())
-        .n_unique()
-        .over([col(e)])?
-        .eq(lit(span as u32).cast(IDX_DTYPE));
-    // `complete` is a window over the entity: evaluate it before `drop_where` splits rows.
-    let reason = when(complete.not())
+    let inside = |r: usize| (first..=last).contains(&core.period_of(r));
+    // Each entity's distinct periods inside the window (a key's copies counted once).
+    let complete: Vec<bool> = core
+        .starts
+        .windows(2)
+        .map(|rows| {
+            let distinct = (rows[0]..rows[1])
+                .filter(|r| inside(*r) && (*r == rows[0] || core.period[*r] != core.period[r - 1]))
+                .count();
+            distinct as i64 == span
+        })
+        .collect();
+    // Why each row goes: 1, its entity is not observed in every period of the window; 2, its
+    // period is outside it; 0, it stays.
+    let why: Vec<u8> = (0..core.rows())
+        .map(|r| match (complete[core.entity[r] as usize], inside(r)) {
+            (false, _) => 1,
+            (true, false) => 2,
+            (true, true) => 0,
+        })
+        .collect();
+    let hit: BooleanChunked = why.iter().map(|w| *w > 0).collect();
+    let mut df = df;
+    df.with_column(Column::new(WHY.into(), why))?;
+    let reason = when(col(WHY).eq(lit(1u8)))
         .then(lit(format!(
             "entity not observed in every period of {first}..{last}"
         )))
-        .when(inside.not())
-        .then(lit(format!(
+        .otherwise(lit(format!(
             "period outside the balancing window {first}..{last}"
-        )))
-        .otherwise(lit(NULL).cast(DataType::String));
-    let (kept, removed) = drop_where(df, reason, "balance", k)?;
+        )));
+    let (kept, removed) = drop_marked(df, &hit, reason, &[WHY], "balance", k, None)?;
     let entities = crate::report::distinct(&kept, e)?;
     let line = BalanceLine {
         mode: mode.to_string(),
