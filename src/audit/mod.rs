@@ -203,7 +203,7 @@ fn variable_lists(
 /// The group code of a row whose grouping value is missing.
 pub const NO_GROUP: u32 = u32::MAX;
 
-/// Each row's group of `columns`: the position of the group's first row.
+/// Each row's group of `columns`, numbered 0, 1, ... in the order of the groups' first rows.
 fn group_codes(df: &DataFrame, columns: &[String]) -> Result<Vec<u32>> {
     let by: Vec<Expr> = columns.iter().map(|c| col(c.as_str())).collect();
     let missing = by
@@ -221,11 +221,25 @@ fn group_codes(df: &DataFrame, columns: &[String]) -> Result<Vec<u32>> {
             .otherwise(col("__i").first().over(by)?.cast(DataType::UInt32))
             .alias("__g")])
         .collect()?;
+    // The first row's position names a group; renumbered densely (a group's first row is the
+    // first to carry its name), so that a check can hold its groups in a vector.
+    let mut dense = vec![NO_GROUP; df.height()];
+    let mut next = 0u32;
     Ok(codes
         .column("__g")?
         .u32()?
         .iter()
-        .map(|g| g.unwrap_or(NO_GROUP))
+        .map(|g| match g {
+            Some(first) if first != NO_GROUP => {
+                let d = &mut dense[first as usize];
+                if *d == NO_GROUP {
+                    *d = next;
+                    next += 1;
+                }
+                *d
+            }
+            _ => NO_GROUP,
+        })
         .collect())
 }
 

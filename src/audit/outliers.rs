@@ -6,7 +6,7 @@
 use super::verdict::{
     counted, level_key, line as verdict_line, worst, CheckVerdict, LevelKey, Levels, Status,
 };
-use super::{unit_slips, Check, Context, Settings};
+use super::{unit_slips, Check, Context, Settings, NO_GROUP};
 use crate::core::{in_batches, quantiles, quantiles_visiting, PanelCore, Values, View};
 use crate::report::layout::{opt_level, strings, Block, Section};
 pub use crate::report::CutoffGroups;
@@ -330,15 +330,26 @@ fn line(
             // (as winsorizing by groups does).
             let q = quantiles(&x, n, |v| v, &[lo, hi]);
             let pooled = (q[0], q[1]);
-            let mut by: std::collections::BTreeMap<u32, Vec<f64>> = Default::default();
+            // The values of each group (codes 0, 1, ...), and those of rows without one last.
+            let loose = codes.iter().filter(|c| **c != NO_GROUP).max();
+            let loose = loose.map_or(0, |c| *c as usize + 1);
+            let slot = |r: usize| match codes[r] {
+                NO_GROUP => loose,
+                c => c as usize,
+            };
+            let mut sizes = vec![0usize; loose + 1];
+            for (r, _) in x.iter() {
+                sizes[slot(r)] += 1;
+            }
+            let mut by: Vec<Vec<f64>> = sizes.iter().map(|n| Vec::with_capacity(*n)).collect();
             for (r, v) in x.iter() {
-                by.entry(codes[r]).or_default().push(v);
+                by[slot(r)].push(v);
             }
             let mut fell_back = 0u64;
-            for (code, g) in &mut by {
-                let small = *code == crate::audit::NO_GROUP || (g.len() as u64) < smallest;
+            for (code, g) in by.iter_mut().enumerate().filter(|(_, g)| !g.is_empty()) {
+                let small = code == loose || (g.len() as u64) < smallest;
                 let (l, u) = if small {
-                    fell_back += u64::from(*code != crate::audit::NO_GROUP);
+                    fell_back += u64::from(code != loose);
                     pooled
                 } else {
                     let q = quantiles(&View::all(g), g.len(), |v| v, &[lo, hi]);
