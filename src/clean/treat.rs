@@ -132,7 +132,8 @@ impl Treatment {
         match (self.by, core) {
             (CutoffGroups::Period, Some(core)) if core.rows() == df.height() => {
                 let group = RowGroups::Codes(&core.period);
-                return self.by_codes(df, k, group, core.periods.len(), Some(&core.periods));
+                let periods = Some(&core.periods[..]);
+                return self.by_codes(df, k, group, core.periods.len(), periods, None);
             }
             _ => {}
         }
@@ -149,7 +150,7 @@ impl Treatment {
         }
         let (cutoffs, bounds) = match self.by {
             // One group of every row, on the typed path.
-            CutoffGroups::Pooled => return self.by_codes(df, k, RowGroups::One, 1, None),
+            CutoffGroups::Pooled => return self.by_codes(df, k, RowGroups::One, 1, None, None),
             CutoffGroups::Groups => {
                 // Per group; a group with fewer values than 1 / (the smaller tail) gets the
                 // pooled cutoffs instead (the stated fallback), as do rows whose group is missing.
@@ -199,15 +200,44 @@ impl Treatment {
                     };
                     fill.push((whole("lo")?, whole("hi")?));
                 }
-                let table = c.clone();
-                (
-                    c,
-                    Bounds {
-                        keys,
-                        table,
-                        fill: Some(fill),
-                    },
-                )
+                // Each row's group: its place in the table (one join of the keys, once), rows
+                // without a group in a last one on the pooled cutoffs; then every variable on
+                // the typed path, as by period.
+                let loose = c.height();
+                let place = c
+                    .clone()
+                    .lazy()
+                    .select(keys.clone())
+                    .with_row_index("__place", None);
+                let rows = beside(
+                    &df.select(self.groups.iter().map(String::as_str))?,
+                    keys,
+                    place,
+                )?
+                .select([col("__place")])
+                .collect()?;
+                let codes: Vec<u32> = rows
+                    .column("__place")?
+                    .cast(&DataType::UInt32)?
+                    .u32()?
+                    .iter()
+                    .map(|p| p.unwrap_or(loose as u32))
+                    .collect();
+                let cutoffs = (0..self.variables.len())
+                    .map(|i| -> Result<_> {
+                        let side = |name: String, pooled: f64| -> Result<Vec<Option<f64>>> {
+                            let column = c.column(&name)?.f64()?;
+                            Ok(column.iter().chain([Some(pooled)]).collect())
+                        };
+                        Ok((
+                            side(format!("__lo{i}"), fill[i].0)?,
+                            side(format!("__hi{i}"), fill[i].1)?,
+                        ))
+                    })
+                    .collect::<Result<Vec<_>>>()?;
+                let given = Given { table: c, cutoffs };
+                let group = RowGroups::Codes(&codes);
+                return self.by_codes(df, k, group, loose + 1, None, Some(&given));
             }
             CutoffGroups::Period => {
                 let c = df
@@ -371,6 +401,7 @@ impl Treatment {
         group: RowGroups,
         nt: usize,
         periods: Option<&[i64]>,
+        given: Option<&Given>,
     ) -> Result<(DataFrame, Option<DataFrame>, Vec<TreatLine>)> {
         let rows = df.height();
         let mut table: Vec<Column> = periods
@@ -405,8 +436,11 @@ impl Treatment {
                 let q = quantiles(&View::all(g), g.len(), |v| v, &[self.lower, self.upper]);
                 (q[0], q[1])
             };
-            let (lo, hi): (Vec<Option<f64>>, Vec<Option<f64>>) =
-                match grouped_quantiles(&x, |r| group.of(r), nt, &[self.lower, self.upper]) {
+            let found = given.map(|g| g.cutoffs[i].clone());
+            let (lo, hi): (Vec<Option<f64>>, Vec<Option<f64>>) = match found {
+                Some(cutoffs) => cutoffs,
+                None => match grouped_quantiles(&x, |r| group.of(r), nt, &[self.lower, self.upper])
+                {
                     Some(q) => q.into_iter().map(|q| (q[0], q[1])).unzip(),
                     None => {
                         let mut groups: Vec<Vec<f64>> =
@@ -416,7 +450,8 @@ impl Treatment {
                         }
                         groups.iter().map(|g| cutoffs(g)).unzip()
                     }
-                };
+                },
+            };
             let (mut below, mut above) = (0u64, 0u64);
             let flags = match self.method {
                 Method::Winsorize => None,
@@ -491,12 +526,25 @@ impl Treatment {
         if self.method == Method::Winsorize {
             current = current.select(order)?;
         }
-        let cutoffs = DataFrame::new(nt, table)?;
+        let cutoffs = match given {
+            Some(g) => g.table.clone(),
+            None => DataFrame::new(nt, table)?,
+        };
         let (out, removed) = self.finish(current, k)?;
         let lines = self.lines(&cutoffs, &counts, k, histograms)?;
         Ok((out, removed, lines))
     }
 }
+
+/// Cutoffs found beforehand, per group: the report's table of them, and each variable's lower
+/// and upper cutoff of each group (a group `n` past the table's rows: rows without a group).
+struct Given {
+    table: DataFrame,
+    cutoffs: Vec<(Bound, Bound)>,
+}
+
+/// One cutoff of each group (None: no cutoff on that side).
+type Bound = Vec<Option<f64>>;
 
 /// Cutoffs per group (or per period, when the panel core does not code the rows) on the
 /// engine's path: a table of pairs per key, joined onto the rows, with the pooled pair where a
