@@ -760,8 +760,7 @@ C,2002,6,1
         "[panel]\nentity = \"firm\"\nperiod = \"year\"\n[audit]\nlevels = [\"assets\"]\n\
          [[rule]]\nname = \"never\"\nexpr = \"assets < 0\"\naction = \"drop\"\n",
     );
-    let r = w.ok(&["audit", "p.csv", "--rules", "r.toml", "--format", "json"]);
-    let report: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+    let report = w.audit_json("p.csv", "r.toml");
     let want = [
         ("Keys", "pass"),
         ("Coverage", "not checked"),
@@ -810,8 +809,7 @@ fn unit_slips_are_not_searched_without_consecutive_periods() {
     );
     for (step, slip, pairs, status) in [(2, 1000.0, 0, "not checked"), (1, 1000.0, 6, "warn")] {
         w.write("p.csv", &rows(step, slip));
-        let r = w.ok(&["audit", "p.csv", "--rules", "r.toml", "--format", "json"]);
-        let report: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+        let report = w.audit_json("p.csv", "r.toml");
         assert_eq!(report["unit_slips_pairs"], pairs, "step {step}");
         let line = statuses(&report)
             .into_iter()
@@ -1183,8 +1181,7 @@ fn the_largest_balanced_window_is_a_panel_not_a_single_period() {
         "[panel]\nentity = \"firm\"\nperiod = \"year\"\n[clean]\nbalance = \"largest\"\n",
     );
     let balance = |w: &Workdir| {
-        let r = w.ok(&["audit", "p.csv", "--rules", "r.toml", "--format", "json"]);
-        let report: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+        let report = w.audit_json("p.csv", "r.toml");
         let b = &report["balance"];
         (b["first"].clone(), b["last"].clone(), b["rows"].clone())
     };

@@ -1576,15 +1576,7 @@ fn a_model_with_nothing_to_explain_is_not_computable() {
             }
         }
         w.write("p.csv", &csv);
-        let r = w.ok(&[
-            "audit",
-            "p.csv",
-            "--rules",
-            "rules.toml",
-            "--format",
-            "json",
-        ]);
-        let report: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+        let report = w.audit_json("p.csv", "rules.toml");
         let model = &report["model"];
         let first = model["warnings"][0].as_str().unwrap_or_default();
         assert!(

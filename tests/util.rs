@@ -41,6 +41,12 @@ impl Workdir {
         serde_json::from_str(&std::fs::read_to_string(self.path(name)).unwrap()).unwrap()
     }
 
+    /// `audit DATA --rules RULES --format json`, which must succeed, its report parsed.
+    pub fn audit_json(&self, data: &str, rules: &str) -> serde_json::Value {
+        let r = self.ok(&["audit", data, "--rules", rules, "--format", "json"]);
+        serde_json::from_str(&r.stdout).unwrap()
+    }
+
     pub fn run(&self, args: &[&str]) -> Run {
         self.run_with(args, &[])
     }
