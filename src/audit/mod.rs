@@ -11,6 +11,7 @@ mod glance;
 mod missing;
 pub mod model;
 mod outliers;
+mod robust_z;
 mod unit_slips;
 mod variation;
 pub mod verdict;

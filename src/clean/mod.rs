@@ -3,6 +3,7 @@
 //! its effect for the sample-construction table.
 
 pub mod balance;
+mod group_cutoffs;
 mod histogram;
 mod keep;
 mod keyscan;
