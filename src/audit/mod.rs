@@ -18,7 +18,7 @@ pub mod verdict;
 
 use polars::prelude::*;
 
-use crate::core::PanelCore;
+use crate::core::{GroupCodes, PanelCore};
 use crate::report::{Finding, Findings, Report};
 use crate::Result;
 use verdict::CheckVerdict;
@@ -131,9 +131,9 @@ pub struct Context<'a> {
     pub entities: DataFrame,
     /// Entity and period codes of the panel's rows.
     pub core: PanelCore,
-    /// With outlier cutoffs by groups: each row's group (`NO_GROUP` where a grouping value is
-    /// missing).
-    pub outlier_groups: Option<Vec<u32>>,
+    /// With outlier cutoffs by groups: the groups and each row's (the loose group where a
+    /// grouping value is missing).
+    pub outlier_groups: Option<GroupCodes>,
     /// Where a check that goes through the variables a few at a time reports how far it is.
     progress: Option<&'a crate::progress::Progress>,
 }
@@ -199,49 +199,6 @@ fn variable_lists(
         .cloned()
         .collect();
     (variables, numeric)
-}
-
-/// The group code of a row whose grouping value is missing.
-pub const NO_GROUP: u32 = u32::MAX;
-
-/// Each row's group of `columns`, numbered 0, 1, ... in the order of the groups' first rows.
-fn group_codes(df: &DataFrame, columns: &[String]) -> Result<Vec<u32>> {
-    let by: Vec<Expr> = columns.iter().map(|c| col(c.as_str())).collect();
-    let missing = by
-        .iter()
-        .map(|c| c.clone().is_null())
-        .reduce(|a, b| a.or(b))
-        .unwrap_or(lit(false));
-    let codes = df
-        .clone()
-        .lazy()
-        .select(by.clone())
-        .with_row_index("__i", None)
-        .select([when(missing)
-            .then(lit(NO_GROUP))
-            .otherwise(col("__i").first().over(by)?.cast(DataType::UInt32))
-            .alias("__g")])
-        .collect()?;
-    // The first row's position names a group; renumbered densely (a group's first row is the
-    // first to carry its name), so that a check can hold its groups in a vector.
-    let mut dense = vec![NO_GROUP; df.height()];
-    let mut next = 0u32;
-    Ok(codes
-        .column("__g")?
-        .u32()?
-        .iter()
-        .map(|g| match g {
-            Some(first) if first != NO_GROUP => {
-                let d = &mut dense[first as usize];
-                if *d == NO_GROUP {
-                    *d = next;
-                    next += 1;
-                }
-                *d
-            }
-            _ => NO_GROUP,
-        })
-        .collect())
 }
 
 /// The distinct (entity, period) keys, and one row per entity with `__n`,
@@ -333,7 +290,7 @@ impl<'a> Context<'a> {
     ) -> Result<Context<'a>> {
         let (variables, numeric) = variable_lists(df, entity, period, &options);
         let outlier_groups = match options.settings.by {
-            CutoffGroups::Groups => Some(group_codes(df, &options.settings.group_columns)?),
+            CutoffGroups::Groups => Some(GroupCodes::of(df, &options.settings.group_columns)?),
             _ => None,
         };
         Ok(Context {

@@ -8,8 +8,8 @@ pub use super::robust_z::MAD_SCALE;
 use super::verdict::{
     counted, level_key, line as verdict_line, worst, CheckVerdict, LevelKey, Levels, Status,
 };
-use super::{unit_slips, Check, Context, Settings, NO_GROUP};
-use crate::core::{in_batches, quantiles, PanelCore, Values, View};
+use super::{unit_slips, Check, Context, Settings};
+use crate::core::{in_batches, quantiles, GroupCodes, PanelCore, Values, View};
 use crate::report::layout::{opt_level, strings, Block, Section};
 pub use crate::report::CutoffGroups;
 use crate::report::{Finding, OutlierLine, Report, ToJson, UnitSlip};
@@ -53,7 +53,7 @@ impl Check for Outliers {
             vars,
             |v| {
                 let x = Values::of(ctx.df, v)?;
-                Ok(line(&ctx.core, ctx.outlier_groups.as_deref(), v, &x, s))
+                Ok(line(&ctx.core, ctx.outlier_groups.as_ref(), v, &x, s))
             },
             |batch, lines| {
                 f.lines.extend(lines);
@@ -309,7 +309,7 @@ fn factor(f: f64) -> String {
 /// The outlier line of one variable.
 fn line(
     core: &PanelCore,
-    groups: Option<&[u32]>,
+    groups: Option<&GroupCodes>,
     variable: &str,
     x: &Values,
     s: &Settings,
@@ -330,13 +330,9 @@ fn line(
             let q = quantiles(&x, n, |v| v, &[lo, hi]);
             let pooled = (q[0], q[1]);
             // The values of each group (codes 0, 1, ...), and those of rows without one last.
-            let loose = codes.iter().filter(|c| **c != NO_GROUP).max();
-            let loose = loose.map_or(0, |c| *c as usize + 1);
-            let slot = |r: usize| match codes[r] {
-                NO_GROUP => loose,
-                c => c as usize,
-            };
-            let mut sizes = vec![0usize; loose + 1];
+            let loose = codes.loose();
+            let slot = |r: usize| codes.codes[r] as usize;
+            let mut sizes = vec![0usize; codes.count()];
             for (r, _) in x.iter() {
                 sizes[slot(r)] += 1;
             }

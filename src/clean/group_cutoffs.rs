@@ -4,26 +4,88 @@
 
 use polars::prelude::*;
 
+use crate::core::{GroupCodes, View};
 use crate::report::GroupCutoff;
 use crate::Result;
 
-/// Cutoffs found beforehand, per group: the report's table of them, and each variable's lower
-/// and upper cutoff of each group (a group `n` past the table's rows: rows without a group).
-pub(super) struct Given {
-    pub(super) table: DataFrame,
-    pub(super) cutoffs: Vec<(Bound, Bound)>,
+/// The groups of columns (industry x year, say) that cutoffs are found for: their values, one
+/// row a group in the columns' order, and each row's group, its place in that table (rows
+/// with a missing grouping value in a last group, `loose`, on the pooled cutoffs).
+pub(super) struct Groups {
+    pub(super) codes: GroupCodes,
+    /// The fewest values a group needs for cutoffs of its own: 1 / (the smaller tail).
+    smallest: usize,
 }
 
-/// One cutoff of each group (None: no cutoff on that side).
-pub(super) type Bound = Vec<Option<f64>>;
+/// A variable's lower and upper cutoffs of each group, and where groups of columns set the
+/// pooled ones in.
+pub(super) type Found = (Vec<Option<f64>>, Vec<Option<f64>>, Option<Fallback>);
 
-/// Cutoffs per group (or per period, when the panel core does not code the rows) on the
-/// engine's path: a table of pairs per key, joined onto the rows, with the pooled pair where a
-/// group has none.
+/// A variable's cutoffs of each group with the pooled ones standing in where a group is too
+/// small: its values counted per group, and which groups fell back.
+pub(super) struct Fallback {
+    pub(super) values: Vec<u64>,
+    pub(super) small: Vec<bool>,
+}
+
+impl Groups {
+    /// The groups of `columns` in `df` ([`GroupCodes`]), for cutoffs at `lower` and `upper`.
+    pub(super) fn of(df: &DataFrame, columns: &[String], lower: f64, upper: f64) -> Result<Groups> {
+        Ok(Groups {
+            codes: GroupCodes::of(df, columns)?,
+            smallest: (1.0 / lower.min(1.0 - upper)).ceil() as usize,
+        })
+    }
+
+    /// The cutoffs `lo` and `hi` of each group (the loose one last) with `pooled` set in for
+    /// the loose group and every group with fewer than `smallest` values of `x`.
+    pub(super) fn fall_back(
+        &self,
+        x: &View,
+        lo: &mut [Option<f64>],
+        hi: &mut [Option<f64>],
+        pooled: (Option<f64>, Option<f64>),
+    ) -> Fallback {
+        let mut values = vec![0u64; self.codes.count()];
+        for (r, _) in x.iter() {
+            values[self.codes.codes[r] as usize] += 1;
+        }
+        let loose = self.codes.loose();
+        let small: Vec<bool> = values
+            .iter()
+            .enumerate()
+            .map(|(g, n)| g == loose || (*n as usize) < self.smallest)
+            .collect();
+        for (g, _) in small.iter().enumerate().filter(|(_, s)| **s) {
+            (lo[g], hi[g]) = pooled;
+        }
+        Fallback { values, small }
+    }
+
+    /// The report's table of cutoffs: the groups' values, then each variable's lower and upper
+    /// cutoffs, values counted and fallback (`__lo{i}`, `__hi{i}`, `__n{i}`, `__small{i}`).
+    pub(super) fn cutoff_table(&self, found: &[Found]) -> Result<DataFrame> {
+        let n = self.codes.loose();
+        let mut table = self.codes.table.clone();
+        for (i, (lo, hi, fallback)) in found.iter().enumerate() {
+            table.with_column(Column::new(format!("__lo{i}").into(), &lo[..n]))?;
+            table.with_column(Column::new(format!("__hi{i}").into(), &hi[..n]))?;
+            if let Some(fallback) = fallback {
+                let values = &fallback.values[..n];
+                table.with_column(Column::new(format!("__n{i}").into(), values))?;
+                let small = &fallback.small[..n];
+                table.with_column(Column::new(format!("__small{i}").into(), small))?;
+            }
+        }
+        Ok(table)
+    }
+}
+
+/// Cutoffs per period, when the panel core does not code the rows, on the engine's path: a
+/// table of pairs per key, joined onto the rows.
 pub(super) struct Bounds {
     pub(super) keys: Vec<Expr>,
     pub(super) table: DataFrame,
-    pub(super) fill: Option<Vec<(f64, f64)>>,
 }
 
 impl Bounds {
@@ -32,24 +94,17 @@ impl Bounds {
         let (lo, hi) = (format!("__lo{i}"), format!("__hi{i}"));
         let mut right = self.keys.clone();
         right.extend([col(lo.as_str()), col(hi.as_str())]);
-        let lf = beside(
+        beside(
             df,
             self.keys.clone(),
             self.table.clone().lazy().select(right),
-        )?;
-        Ok(match &self.fill {
-            Some(pooled) => lf.with_columns([
-                col(lo.as_str()).fill_null(lit(pooled[i].0)),
-                col(hi.as_str()).fill_null(lit(pooled[i].1)),
-            ]),
-            None => lf,
-        })
+        )
     }
 }
 
 /// `df` with the columns of `right` (one row per key of `on`) set beside each row: the join
 /// reads only the key columns, so the panel's other columns are shared, never copied.
-pub(super) fn beside(df: &DataFrame, on: Vec<Expr>, right: LazyFrame) -> Result<LazyFrame> {
+fn beside(df: &DataFrame, on: Vec<Expr>, right: LazyFrame) -> Result<LazyFrame> {
     let names: Vec<String> = on
         .iter()
         .map(|e| e.clone().meta().output_name().map(|n| n.to_string()))

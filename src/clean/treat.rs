@@ -6,7 +6,7 @@
 use polars::prelude::*;
 use rayon::prelude::*;
 
-use super::group_cutoffs::{beside, group_cutoffs, Bounds, Given};
+use super::group_cutoffs::{group_cutoffs, Bounds, Found, Groups};
 use super::histogram::histogram;
 use super::winsorize::{winsorize, Cutoffs, RowGroups};
 use super::{drop_where, Keys};
@@ -153,92 +153,13 @@ impl Treatment {
             // One group of every row, on the typed path.
             CutoffGroups::Pooled => return self.by_codes(df, k, RowGroups::One, 1, None, None),
             CutoffGroups::Groups => {
-                // Per group; a group with fewer values than 1 / (the smaller tail) gets the
-                // pooled cutoffs instead (the stated fallback), as do rows whose group is missing.
-                let smallest = (1.0 / self.lower.min(1.0 - self.upper)).ceil() as u32;
-                let pooled = df.clone().lazy().select(aggs.clone()).collect()?;
-                let mut group_aggs = aggs.clone();
-                for (i, v) in self.variables.iter().enumerate() {
-                    group_aggs.push(x(v).count().alias(format!("__n{i}")));
-                }
-                let keys: Vec<Expr> = self.groups.iter().map(|g| col(g.as_str())).collect();
-                let mut fallback = Vec::new();
-                for (i, _) in self.variables.iter().enumerate() {
-                    let small = col(format!("__n{i}").as_str()).lt(lit(smallest));
-                    for side in ["lo", "hi"] {
-                        let name = format!("__{side}{i}");
-                        let whole = pooled.column(&name)?.f64()?.get(0).unwrap_or(f64::NAN);
-                        fallback.push(
-                            when(small.clone())
-                                .then(lit(whole))
-                                .otherwise(col(name.as_str()))
-                                .alias(name.as_str()),
-                        );
-                    }
-                    fallback.push(small.alias(format!("__small{i}")));
-                }
-                let c = df
-                    .clone()
-                    .lazy()
-                    .filter(
-                        self.groups
-                            .iter()
-                            .fold(lit(true), |acc, g| acc.and(col(g.as_str()).is_not_null())),
-                    )
-                    .group_by(keys.clone())
-                    .agg(group_aggs)
-                    .with_columns(fallback)
-                    .sort(
-                        self.groups.iter().map(String::as_str).collect::<Vec<_>>(),
-                        Default::default(),
-                    )
-                    .collect()?;
-                let mut fill = Vec::new();
-                for (i, _) in self.variables.iter().enumerate() {
-                    let whole = |side: &str| -> Result<f64> {
-                        let name = format!("__{side}{i}");
-                        Ok(pooled.column(&name)?.f64()?.get(0).unwrap_or(f64::NAN))
-                    };
-                    fill.push((whole("lo")?, whole("hi")?));
-                }
-                // Each row's group: its place in the table (one join of the keys, once), rows
-                // without a group in a last one on the pooled cutoffs; then every variable on
-                // the typed path, as by period.
-                let loose = c.height();
-                let place = c
-                    .clone()
-                    .lazy()
-                    .select(keys.clone())
-                    .with_row_index("__place", None);
-                let rows = beside(
-                    &df.select(self.groups.iter().map(String::as_str))?,
-                    keys,
-                    place,
-                )?
-                .select([col("__place")])
-                .collect()?;
-                let codes: Vec<u32> = rows
-                    .column("__place")?
-                    .cast(&DataType::UInt32)?
-                    .u32()?
-                    .iter()
-                    .map(|p| p.unwrap_or(loose as u32))
-                    .collect();
-                let cutoffs = (0..self.variables.len())
-                    .map(|i| -> Result<_> {
-                        let side = |name: String, pooled: f64| -> Result<Vec<Option<f64>>> {
-                            let column = c.column(&name)?.f64()?;
-                            Ok(column.iter().chain([Some(pooled)]).collect())
-                        };
-                        Ok((
-                            side(format!("__lo{i}"), fill[i].0)?,
-                            side(format!("__hi{i}"), fill[i].1)?,
-                        ))
-                    })
-                    .collect::<Result<Vec<_>>>()?;
-                let given = Given { table: c, cutoffs };
-                let group = RowGroups::Codes(&codes);
-                return self.by_codes(df, k, group, loose + 1, None, Some(&given));
+                // Per group, on the typed path as by period; a group with fewer values than
+                // 1 / (the smaller tail) gets the pooled cutoffs instead (the stated fallback),
+                // as do rows whose group is missing.
+                let groups = Groups::of(&df, &self.groups, self.lower, self.upper)?;
+                let group = RowGroups::Codes(&groups.codes.codes);
+                let count = groups.codes.count();
+                return self.by_codes(df, k, group, count, None, Some(&groups));
             }
             CutoffGroups::Period => {
                 let c = df
@@ -254,7 +175,6 @@ impl Treatment {
                     Bounds {
                         keys: vec![col(k.period)],
                         table,
-                        fill: None,
                     },
                 )
             }
@@ -402,13 +322,10 @@ impl Treatment {
         group: RowGroups,
         nt: usize,
         periods: Option<&[i64]>,
-        given: Option<&Given>,
+        groups: Option<&Groups>,
     ) -> Result<(DataFrame, Option<DataFrame>, Vec<TreatLine>)> {
         let rows = df.height();
-        let mut table: Vec<Column> = periods
-            .map(|p| Column::new(k.period.into(), p.to_vec()))
-            .into_iter()
-            .collect();
+        let mut found = Vec::new();
         let mut counts = Vec::new();
         let mut current = df;
         // Rows per group, so that each group's values are gathered without regrowing.
@@ -416,13 +333,7 @@ impl Treatment {
         for r in 0..rows {
             sizes[group.of(r)] += 1;
         }
-        type Treated = (
-            Option<Column>,
-            (u64, u64),
-            Vec<Option<f64>>,
-            Vec<Option<f64>>,
-            Histogram,
-        );
+        type Treated = (Option<Column>, (u64, u64), Found, Histogram);
         // A variable's cutoffs, its chart and, when trimming, its flags and counts (reading
         // the panel; winsorizing changes the column afterwards, below).
         let one = |i: usize, v: &String, current: &DataFrame| -> Result<Treated> {
@@ -437,11 +348,8 @@ impl Treatment {
                 let q = quantiles(&View::all(g), g.len(), |v| v, &[self.lower, self.upper]);
                 (q[0], q[1])
             };
-            let found = given.map(|g| g.cutoffs[i].clone());
-            let (lo, hi): (Vec<Option<f64>>, Vec<Option<f64>>) = match found {
-                Some(cutoffs) => cutoffs,
-                None => match grouped_quantiles(&x, |r| group.of(r), nt, &[self.lower, self.upper])
-                {
+            let (mut lo, mut hi): (Vec<Option<f64>>, Vec<Option<f64>>) =
+                match grouped_quantiles(&x, |r| group.of(r), nt, &[self.lower, self.upper]) {
                     Some(q) => q.into_iter().map(|q| (q[0], q[1])).unzip(),
                     None => {
                         let mut groups: Vec<Vec<f64>> =
@@ -451,8 +359,12 @@ impl Treatment {
                         }
                         groups.iter().map(|g| cutoffs(g)).unzip()
                     }
-                },
-            };
+                };
+            // Groups of columns: the pooled cutoffs where a group is too small.
+            let fallback = groups.map(|groups| {
+                let q = quantiles(&x, x.count(), |v| v, &[self.lower, self.upper]);
+                groups.fall_back(&x, &mut lo, &mut hi, (q[0], q[1]))
+            });
             let (mut below, mut above) = (0u64, 0u64);
             let flags = match self.method {
                 Method::Winsorize => None,
@@ -475,7 +387,7 @@ impl Treatment {
                     Some(flags.into_column().with_name(format!("__beyond{i}").into()))
                 }
             };
-            Ok((flags, (below, above), lo, hi, chart))
+            Ok((flags, (below, above), (lo, hi, fallback), chart))
         };
         // A few variables at a time in parallel. Winsorizing takes each column out of the
         // panel once its cutoffs are known and sets its values within its own buffer
@@ -498,38 +410,44 @@ impl Treatment {
             let done = done
                 .into_par_iter()
                 .zip(taken)
-                .map(|((flags, count, lo, hi, chart), column)| {
+                .map(|((flags, count, cut, chart), column)| {
                     let (column, count) = match column {
                         Some(column) => {
-                            let cut = Cutoffs {
-                                group,
-                                lo: &lo,
-                                hi: &hi,
-                            };
+                            let (lo, hi, _) = &cut;
+                            let cut = Cutoffs { group, lo, hi };
                             let (column, count) = winsorize(column, &cut)?;
                             (Some(column), count)
                         }
                         None => (flags, count),
                     };
-                    Ok((column, count, lo, hi, chart))
+                    Ok((column, count, cut, chart))
                 })
                 .collect::<Result<Vec<Treated>>>()?;
-            for ((i, _), (column, count, lo, hi, chart)) in batch.iter().zip(done) {
+            for (column, count, cut, chart) in done {
                 if let Some(column) = column {
                     current.with_column(column)?;
                 }
                 counts.push(count);
-                table.push(Column::new(format!("__lo{i}").into(), lo));
-                table.push(Column::new(format!("__hi{i}").into(), hi));
+                found.push(cut);
                 histograms.push(chart);
             }
         }
         if self.method == Method::Winsorize {
             current = current.select(order)?;
         }
-        let cutoffs = match given {
-            Some(g) => g.table.clone(),
-            None => DataFrame::new(nt, table)?,
+        let cutoffs = match groups {
+            Some(groups) => groups.cutoff_table(&found)?,
+            None => {
+                let mut table: Vec<Column> = periods
+                    .map(|p| Column::new(k.period.into(), p.to_vec()))
+                    .into_iter()
+                    .collect();
+                for (i, (lo, hi, _)) in found.into_iter().enumerate() {
+                    table.push(Column::new(format!("__lo{i}").into(), lo));
+                    table.push(Column::new(format!("__hi{i}").into(), hi));
+                }
+                DataFrame::new(nt, table)?
+            }
         };
         let (out, removed) = self.finish(current, k)?;
         let lines = self.lines(&cutoffs, &counts, k, histograms)?;
