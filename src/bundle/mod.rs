@@ -92,11 +92,16 @@ fn write_files(
     })?;
     progress.stage("writing panel.csv and rejected.csv");
     if cfg.panel_csv {
-        write("panel.csv", &mut |f| write_csv(f, &p.panel, Some(progress)))?;
+        let panel = Rows::of(&p.panel);
+        write("panel.csv", &mut |f| write_csv(f, panel, Some(progress)))?;
     }
-    write("rejected.csv", &mut |f| write_csv(f, &p.rejected, None))?;
+    let rejected = Rows {
+        df: &p.rejected,
+        order: p.rejected_order.as_ref(),
+    };
+    write("rejected.csv", &mut |f| write_csv(f, rejected, None))?;
     write("corrections.csv", &mut |f| {
-        write_csv(f, &p.corrections, None)
+        write_csv(f, Rows::of(&p.corrections), None)
     })?;
 
     progress.stage("writing the reports and the dictionary");
@@ -135,19 +140,42 @@ fn write_files(
 /// Rows of a CSV written at a time, so that a bar can show the rows written.
 const CSV_SLICE: usize = 1 << 20;
 
+/// The rows a CSV file is written from: a frame's, in the order of the row numbers given
+/// (None: as they stand).
+#[derive(Clone, Copy)]
+struct Rows<'a> {
+    df: &'a DataFrame,
+    order: Option<&'a IdxCa>,
+}
+
+impl<'a> Rows<'a> {
+    fn of(df: &'a DataFrame) -> Rows<'a> {
+        Rows { df, order: None }
+    }
+
+    /// The rows `offset..offset + len` in their order, copied only when an order is given.
+    fn slice(self, offset: usize, len: usize) -> Result<DataFrame> {
+        Ok(match self.order {
+            Some(order) => self.df.take(&order.slice(offset as i64, len))?,
+            None => self.df.slice(offset as i64, len),
+        })
+    }
+}
+
 /// Write a CSV with text cells guarded against spreadsheet formula injection, a slice of rows
 /// at a time (the same bytes as in one go), showing the rows written on `progress`.
-fn write_csv<W: Write>(f: W, df: &DataFrame, progress: Option<&Progress>) -> Result<()> {
-    write_csv_sliced(f, df, progress, CSV_SLICE)
+fn write_csv<W: Write>(f: W, rows: Rows, progress: Option<&Progress>) -> Result<()> {
+    write_csv_sliced(f, rows, progress, CSV_SLICE)
 }
 
 /// [`write_csv`], `slice` rows at a time.
 fn write_csv_sliced<W: Write>(
     f: W,
-    df: &DataFrame,
+    rows: Rows,
     progress: Option<&Progress>,
     slice: usize,
 ) -> Result<()> {
+    let df = rows.df;
     // Each slice of rows with its text held as codes spelled out, guarded and its dates as
     // text: the bytes of the whole frame done at once, without a second copy of its columns.
     let spelling = crate::core::Spelling::of(df)?;
@@ -159,7 +187,7 @@ fn write_csv_sliced<W: Write>(
         progress.items_of(df.height(), "rows");
     }
     for offset in (0..df.height()).step_by(slice) {
-        let part = ready(df.slice(offset as i64, slice))?;
+        let part = ready(rows.slice(offset, slice)?)?;
         writer.write_batch(&part)?;
         if let Some(progress) = progress {
             progress.done(part.height());
@@ -268,7 +296,8 @@ mod tests {
 
     /// A CSV written a slice of rows at a time is the engine writer's file in one go, byte for
     /// byte: slices that do and do not divide the rows, text needing quotes and the guard,
-    /// missing values, and a frame without rows (the header alone).
+    /// missing values, and a frame without rows (the header alone); so is one written from the
+    /// rows in another order, gathered back into theirs slice by slice.
     #[test]
     fn csv_in_slices_is_the_same_file() {
         let n = 10;
@@ -285,15 +314,28 @@ mod tests {
                 .include_header(true)
                 .finish(&mut guard_text(&frame).unwrap())
                 .unwrap();
+            // The frame's rows in reverse, written in the order that restores them.
+            let n = frame.height() as IdxSize;
+            let reversed = frame.reverse();
+            let order = IdxCa::from_vec("order".into(), (0..n).rev().collect());
             for slice in [1, 3, 10, 64] {
-                let mut sliced = Vec::new();
-                write_csv_sliced(&mut sliced, &frame, None, slice).unwrap();
-                assert_eq!(
-                    String::from_utf8(sliced).unwrap(),
-                    String::from_utf8(whole.clone()).unwrap(),
-                    "slices of {slice}, {} rows",
-                    frame.height()
-                );
+                for rows in [
+                    Rows::of(&frame),
+                    Rows {
+                        df: &reversed,
+                        order: Some(&order),
+                    },
+                ] {
+                    let mut sliced = Vec::new();
+                    write_csv_sliced(&mut sliced, rows, None, slice).unwrap();
+                    assert_eq!(
+                        String::from_utf8(sliced).unwrap(),
+                        String::from_utf8(whole.clone()).unwrap(),
+                        "slices of {slice}, {} rows, order {}",
+                        frame.height(),
+                        rows.order.is_some()
+                    );
+                }
             }
         }
     }

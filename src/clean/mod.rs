@@ -400,7 +400,17 @@ pub fn drop_marked(
         Some(within) => hit & within,
         None => hit.clone(),
     };
+    // Of the rows removed, only the columns the ledger holds and the reason reads are copied
+    // (not the derived variables: a balancing step may move most of the panel).
+    let mut needed = vec![ROW.to_string()];
+    needed.extend(k.columns.iter().cloned());
+    for root in reason.clone().meta().root_names() {
+        if !needed.iter().any(|n| n == root.as_str()) {
+            needed.push(root.to_string());
+        }
+    }
     let removed = df
+        .select(needed)?
         .filter(&hit)?
         .lazy()
         .with_columns([
@@ -431,45 +441,31 @@ pub fn drop_singletons(
     k: &Keys,
 ) -> Result<(DataFrame, Option<DataFrame>)> {
     let (entity, period) = (k.entity, k.period);
-    let (marked, reason) = match policy {
+    let (drop, reason) = match policy {
         SingletonPolicy::Keep => return Ok((df, None)),
         SingletonPolicy::Entity => (
-            df.lazy()
-                .with_column(len().over([col(entity)])?.gt(lit(1)).alias("__keep"))
-                .collect()?,
+            df.clone()
+                .lazy()
+                .select([len().over([col(entity)])?.eq(lit(1)).alias("__drop")])
+                .collect()?
+                .column("__drop")?
+                .bool()?
+                .clone(),
             "entity observed in one period only",
         ),
-        SingletonPolicy::EntityPeriod => {
-            // The panel arrives sorted by entity and period: the panel core peels it.
-            let keep = crate::core::PanelCore::new(&df, entity, period)?.two_way_kept();
-            let mut df = df;
-            df.with_column(Column::new("__keep".into(), keep))?;
-            (
-                df,
-                "its entity or period had a single row under entity and period effects (dropped iteratively)",
-            )
-        }
+        // The panel arrives sorted by entity and period: the panel core peels it.
+        SingletonPolicy::EntityPeriod => (
+            !&BooleanChunked::from_slice(
+                "__drop".into(),
+                &crate::core::PanelCore::new(&df, entity, period)?.two_way_kept(),
+            ),
+            "its entity or period had a single row under entity and period effects (dropped iteratively)",
+        ),
     };
-    let removed = marked
-        .clone()
-        .lazy()
-        .filter(col("__keep").not())
-        .with_columns(ledger_marks("singletons", reason))
-        .collect()?;
-    let kept = marked
-        .lazy()
-        .filter(col("__keep"))
-        .drop(cols(["__keep"]))
-        .collect()?;
-    Ok((kept, Some(ledger(removed, k.columns)?)))
-}
-
-fn ledger_marks(step: &str, reason: &str) -> [Expr; 3] {
-    [
-        lit(step.to_string()).alias(STEP),
-        lit(reason.to_string()).alias(REASON),
-        lit(NULL).cast(IDX_DTYPE).alias(RELATED),
-    ]
+    // The rows kept within the columns' own buffers, and no copy when none is dropped.
+    let reason = lit(reason.to_string());
+    let (kept, removed) = drop_marked(df, &drop, reason, &[], "singletons", k, None)?;
+    Ok((kept, Some(removed)))
 }
 
 /// Put rejected rows in ledger column order.

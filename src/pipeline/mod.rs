@@ -58,8 +58,11 @@ pub struct Prepared {
     pub report: Report,
     /// The panel: `source_row`, raw columns, derived columns; sorted by entity, period.
     pub panel: DataFrame,
-    /// The rejects ledger, sorted by `source_row`.
+    /// The rejects ledger, in the order of `rejected_order`.
     pub rejected: DataFrame,
+    /// The ledger's rows by `source_row` (the order `rejected.csv` is written in, gathered a
+    /// slice at a time as it is written); None when `rejected` is in that order already.
+    pub rejected_order: Option<IdxCa>,
     /// The corrections ledger: every cell a repair changed (entity, period, column, old, new,
     /// reason).
     pub corrections: DataFrame,

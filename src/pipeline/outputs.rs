@@ -25,10 +25,16 @@ pub(super) fn outputs(
         rejected.vstack_mut(&part)?;
     }
     let rejected_main = rejected.height() as u64;
-    let mut rejected = if read.tables.is_empty() {
-        rejected.lazy().sort([ROW], Default::default()).collect()?
+    // In row order: the order found here, the rows gathered in it as the file is written (a
+    // step such as balancing may move most of the panel, and a sorted copy of every column
+    // would hold it twice); with joined tables, their rows after the main file's, sorted.
+    let (mut rejected, rejected_order) = if read.tables.is_empty() {
+        let rows = rejected.column(ROW)?.as_materialized_series();
+        let order = rows.arg_sort(SortOptions::default());
+        (rejected, Some(order))
     } else {
-        assemble::ledger(rejected, &report.input.path, join_ledgers)?
+        let rejected = assemble::ledger(rejected, &report.input.path, join_ledgers)?;
+        (rejected, None)
     };
     let mut taken: Vec<String> = read.columns.clone();
     taken.extend(plan.vars.iter().map(|v| v.name.clone()));
@@ -63,6 +69,7 @@ pub(super) fn outputs(
         report,
         panel,
         rejected,
+        rejected_order,
         corrections,
         corrections_file: read.corrections.map(|c| (c.path, c.sha256)),
         dictionary,
