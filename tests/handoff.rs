@@ -63,6 +63,34 @@ fn compare_matches_a_pandas_recount_on_a_perturbed_demo() {
         &w.path("v/summary.json"),
         &w.path("v/changes.csv"),
     ]);
+    // Both vintages in key order (the rows paired by a merge of the sorted keys, not a join):
+    // the same pandas recount, and the same summary and changes but for the paths.
+    let sorted: Vec<&str> = args
+        .iter()
+        .map(|a| match *a {
+            "v/old.csv" => "v/sorted/old.csv",
+            "v/new.csv" => "v/sorted/new.csv",
+            "v/summary.json" => "v/sorted/summary.json",
+            "v/changes.csv" => "v/sorted/changes.csv",
+            a => a,
+        })
+        .collect();
+    assert_eq!(w.run(&sorted).code, 1);
+    check(&[
+        Path::new("compare"),
+        &w.path("v/sorted"),
+        &w.path("v/sorted/summary.json"),
+        &w.path("v/sorted/changes.csv"),
+    ]);
+    let read = |p: &str| std::fs::read_to_string(w.path(p)).unwrap();
+    assert_eq!(read("v/sorted/changes.csv"), read("v/changes.csv"));
+    let summary = |p: &str| {
+        let mut s: serde_json::Value = serde_json::from_str(&read(p)).unwrap();
+        s["old"]["path"] = serde_json::Value::Null;
+        s["new"]["path"] = serde_json::Value::Null;
+        s
+    };
+    assert_eq!(summary("v/sorted/summary.json"), summary("v/summary.json"));
     // The same file twice: nothing changed, exit 0.
     let mut same = vec!["compare", "v/old.csv", "v/old.csv"];
     same.extend(keys);

@@ -1,8 +1,9 @@
 //! `compare`: two vintages of one panel (two raw downloads, or two bundles) side by side.
 //! Firm-years and entities added and removed, columns added and removed, and every cell of
 //! the firm-years in both that changed beyond a tolerance, with a change ledger (CSV) and a
-//! summary in the report formats. The keys are joined once (a full join, by polars); then
-//! each shared column is gathered from both vintages in the matched order and compared, one
+//! summary in the report formats. The firm-years are paired once (`pairs.rs`: a merge of
+//! sorted keys, or a full join of the keys); then each shared column is gathered from both
+//! vintages in the matched order (read as it is where that is its own) and compared, one
 //! column at a time.
 
 use std::path::Path;
@@ -17,6 +18,7 @@ use crate::report::{level, strings, Block, Page, Section};
 use crate::{Error, Result};
 
 mod page;
+mod pairs;
 
 pub(crate) use page::page;
 
@@ -99,6 +101,16 @@ struct Vintage {
     entity: String,
     period: String,
     derived: Vec<String>,
+}
+
+impl Vintage {
+    fn keyed(&self) -> pairs::Keyed<'_> {
+        pairs::Keyed {
+            df: &self.df,
+            entity: &self.entity,
+            period: &self.period,
+        }
+    }
 }
 
 fn bundle_vintage(dir: &Path) -> Result<Vintage> {
@@ -286,25 +298,7 @@ pub fn compare(old: &Side, new: &Side, tolerance: &Tolerance) -> Result<(Compari
             }
         })
         .collect();
-    // Each firm-year of either vintage with its row in each (null where it is absent): the
-    // keys alone are joined, once.
-    let rows_of = |v: &Vintage, index: &str| {
-        v.df.clone()
-            .lazy()
-            .select([
-                col(v.entity.as_str()).alias(e.as_str()),
-                col(v.period.as_str()).alias(p.as_str()),
-            ])
-            .with_row_index(index, None)
-    };
-    let pairs = rows_of(&old, "__io")
-        .join(
-            rows_of(&new, "__in"),
-            [col(e.as_str()), col(p.as_str())],
-            [col(e.as_str()), col(p.as_str())],
-            JoinArgs::new(JoinType::Full).with_coalesce(JoinCoalesce::CoalesceColumns),
-        )
-        .collect()?;
+    let pairs = pairs::pairs(&old.keyed(), &new.keyed(), &e, &p)?;
     let both = col("__io").is_not_null().and(col("__in").is_not_null());
     let tally = pairs
         .clone()
@@ -333,6 +327,18 @@ pub fn compare(old: &Side, new: &Side, tolerance: &Tolerance) -> Result<(Compari
             .clone())
     };
     let (at_old, at_new) = (at("__io")?, at("__in")?);
+    // Where a vintage's every row is matched, in its own order (two bundles, both sorted by
+    // their keys, with no firm-year added or removed on that side), its columns are read as
+    // they are, not gathered.
+    let whole = |at: &IdxCa, v: &Vintage| {
+        at.len() == v.df.height()
+            && at.null_count() == 0
+            && at
+                .into_no_null_iter()
+                .enumerate()
+                .all(|(i, r)| r as usize == i)
+    };
+    let (whole_old, whole_new) = (whole(&at_old, &old), whole(&at_new, &new));
     let mut ledger = vec![
         row_event(&pairs, &e, &p, col("__io").is_null(), "firm-year added")?,
         row_event(&pairs, &e, &p, col("__in").is_null(), "firm-year removed")?,
@@ -341,15 +347,19 @@ pub fn compare(old: &Side, new: &Side, tolerance: &Tolerance) -> Result<(Compari
     // holds the two vintages and two columns beside them, not a joined copy of every column.
     let mut columns = Vec::with_capacity(shared.len());
     for (i, c) in shared.iter().enumerate() {
-        let gathered = |v: &Vintage, at: &IdxCa, tag: &str| -> Result<Column> {
-            let column = v.df.column(c)?.take(at)?;
+        let gathered = |v: &Vintage, at: &IdxCa, whole: bool, tag: &str| -> Result<Column> {
+            let column = v.df.column(c)?;
+            let column = match whole {
+                true => column.clone(),
+                false => column.take(at)?,
+            };
             Ok(column.with_name(tag.into()))
         };
         let frame = DataFrame::new_infer_height(vec![
             matched.column(&e)?.clone(),
             matched.column(&p)?.clone(),
-            gathered(&old, &at_old, "__o")?,
-            gathered(&new, &at_new, "__n")?,
+            gathered(&old, &at_old, whole_old, "__o")?,
+            gathered(&new, &at_new, whole_new, "__n")?,
         ])?;
         let kind = kinds[i];
         let mut typed = typed("__o", kind, old_schema.get(c.as_str()));

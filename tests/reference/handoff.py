@@ -32,6 +32,7 @@ Prints `N passed, M failed`; exits 1 on any mismatch.
 """
 
 import json
+import os
 import sys
 
 import numpy as np
@@ -81,7 +82,12 @@ def perturb(panel_csv, outdir):
     new.loc[blank, "rnd_spend"] = 12.5
     old.to_csv(f"{outdir}/old.csv", index=False)
     new.to_csv(f"{outdir}/new.csv", index=False)
-    print("wrote old.csv and new.csv")
+    # The same two vintages with the new one's rows in key order, as bundles and many exports
+    # are (new.csv has its arrivals at the end): compared by another path, to the same counts.
+    os.makedirs(f"{outdir}/sorted", exist_ok=True)
+    old.to_csv(f"{outdir}/sorted/old.csv", index=False)
+    new.sort_values(["firm_id", "fiscal_year"]).to_csv(f"{outdir}/sorted/new.csv", index=False)
+    print("wrote old.csv and new.csv, and sorted/")
 
 
 def compare(outdir, summary_json, changes_csv):
