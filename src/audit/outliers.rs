@@ -327,8 +327,10 @@ fn line(
         (CutoffGroups::Groups, Some(codes)) => {
             // Per group; a group too small, or a row without a group, takes the pooled cutoffs
             // (as winsorizing by groups does).
-            let q = quantiles(&x, n, |v| v, &[lo, hi]);
+            // The pooled cutoffs and the median (for the robust z below) from one pass.
+            let q = quantiles(&x, n, |v| v, &[lo, hi, 0.5]);
             let pooled = (q[0], q[1]);
+            median = Some(q[2]);
             // The values of each group (codes 0, 1, ...), and those of rows without one last.
             let loose = codes.loose();
             let slot = |r: usize| codes.codes[r] as usize;
