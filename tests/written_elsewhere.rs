@@ -729,3 +729,30 @@ fn dates_of_a_workbook_in_the_1904_date_system_read_as_written() {
     assert_eq!(report["panel"]["first_period"], 2021, "{}", report["panel"]);
     assert_eq!(report["panel"]["last_period"], 2023, "{}", report["panel"]);
 }
+
+#[test]
+fn formulas_without_saved_values_are_named_not_silently_missing() {
+    // A workbook written by a program that does not compute formulas (openpyxl, as many
+    // export scripts) holds each formula without its value: the cell read as empty, a
+    // missing value no note explained. Worked by hand: `y` holds a number in sheet row 2 and
+    // formulas in rows 3 and 4 (no saved value), so it has one value and two cells noted;
+    // `x`, plain numbers with one cell left empty, has no note.
+    let w = Workdir::new();
+    python(
+        w.dir.path(),
+        "import openpyxl\n\
+         wb = openpyxl.Workbook()\n\
+         for row in [['firm', 'year', 'x', 'y'], ['A', 2001, 1, 5], ['A', 2002, 2, '=C3*2'], \
+         ['B', 2001, None, '=C2+C3']]:\n    wb.active.append(row)\n\
+         wb.save('formulas.xlsx')",
+    );
+    let report = audit_json(&w, "formulas.xlsx");
+    assert_eq!(line(&report, "y")["n"], 1, "{}", line(&report, "y"));
+    assert_eq!(line(&report, "x")["n"], 2, "{}", line(&report, "x"));
+    assert_eq!(
+        report["input"]["notes"],
+        serde_json::json!([
+            "column `y`: 2 cells with a formula and no value (the first in sheet row 3) read as missing: the formula's result is empty, or the workbook was written by a program that does not compute formulas (open and save it in a spreadsheet program to store their values)"
+        ])
+    );
+}

@@ -7,7 +7,8 @@
 //! column of numbers are read as numbers and reported, and so are text cells holding a marker
 //! for a missing number (`n/a`, `NA`, `.`: read as missing, as in a CSV file). The columns
 //! named as text (the entity) are text whatever their cells: a firm id `01001` typed as text
-//! and `1001` typed as a number stay two ids. Merged cells are refused.
+//! and `1001` typed as a number stay two ids. Merged cells are refused. A formula cell with no
+//! value is read as missing and noted.
 
 use std::path::Path;
 
@@ -192,6 +193,30 @@ pub fn read(path: &Path, sheet: Option<&str>, text: &[&str]) -> Result<Sheet> {
         });
     }
     let mut notes = Vec::new();
+    // A formula whose value the file does not hold (as programs that write workbooks without
+    // computing them leave it) reads as an empty cell, as does one whose result is empty text
+    // (the file does not tell them apart): counted from the sheet's formulas, read only when
+    // the body has an empty cell.
+    let blank = |c: &Data| as_text(c).is_none() && !matches!(c, Data::Error(_));
+    let empty = body.iter().any(|r| r.iter().any(blank));
+    let formulas = match empty {
+        true => book.worksheet_formula(&name).ok(),
+        false => None,
+    };
+    let body_row0 = header_row + 1;
+    let unsaved = |j: usize| -> (usize, Option<usize>) {
+        let Some(formulas) = &formulas else {
+            return (0, None);
+        };
+        let mut rows = body.iter().enumerate().filter(|(i, r)| {
+            r.get(j).is_none_or(blank)
+                && formulas
+                    .get_value((body_row0 + *i as u32, col0 + j as u32))
+                    .is_some_and(|f| !f.trim().is_empty())
+        });
+        let first = rows.next().map(|(i, _)| i);
+        (first.map_or(0, |_| 1 + rows.count()), first)
+    };
     if skip > 0 {
         let title = all[..skip].iter().flat_map(|r| r.iter()).find_map(as_text);
         let rows = match skip {
@@ -225,6 +250,14 @@ pub fn read(path: &Path, sheet: Option<&str>, text: &[&str]) -> Result<Sheet> {
                 super::markers::how_many_cells(errors)
             ));
         }
+        let sheet_row = |i: usize| header_row as usize + 2 + i;
+        if let (n, Some(first)) = unsaved(j) {
+            notes.push(format!(
+                "column `{name_j}`: {} with a formula and no value (the first in sheet row {}) read as missing: the formula's result is empty, or the workbook was written by a program that does not compute formulas (open and save it in a spreadsheet program to store their values)",
+                super::markers::how_many_cells(n),
+                sheet_row(first)
+            ));
+        }
         let first_text = cells.iter().position(|c| matches!(c, Cell::Text(_)));
         let number_like = cells
             .iter()
@@ -234,7 +267,6 @@ pub fn read(path: &Path, sheet: Option<&str>, text: &[&str]) -> Result<Sheet> {
             .iter()
             .filter(|c| matches!(c, Cell::Number(_)))
             .count();
-        let sheet_row = |i: usize| header_row as usize + 2 + i;
         let markers = cells.iter().filter(|c| matches!(c, Cell::Marker)).count();
         if first_text.is_none() && markers > 0 && numbers + number_like > 0 {
             let marked = body.iter().filter_map(|r| match r.get(j) {
