@@ -622,6 +622,48 @@ fn compare_says_cells_not_checked_when_there_is_nothing_to_compare() {
 }
 
 #[test]
+fn compare_counts_exact_copies_once_and_refuses_a_key_with_two_rows_of_values() {
+    // Worked by hand. `old.csv`: A-1 twice with the same values (an exact copy, counted once),
+    // a row without its period (left out), B-2 after B-1 out of order; `new.csv`: the same
+    // firm-years, B-2's x changed. 6 rows read, 1 without a key, 1 copy, 4 firm-years; 1 cell
+    // changed. A key on rows with different values cannot be matched: refused, naming it.
+    let w = Workdir::new();
+    w.write(
+        "old.csv",
+        "f,y,x\nA,1,1.5\nB,2,4\nA,1,1.5\nA,,9\nA,2,2\nB,1,3\n",
+    );
+    w.write("new.csv", "f,y,x\nA,1,1.5\nA,2,2\nB,1,3\nB,2,5\n");
+    let keys = ["--entity", "f", "--period", "y", "--format", "json"];
+    let mut args = vec!["compare", "old.csv", "new.csv"];
+    args.extend(keys);
+    let r = w.run(&args);
+    assert_eq!(r.code, 1, "{}", r.stderr);
+    let summary: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+    let old = &summary["old"];
+    assert_eq!(
+        (
+            &old["rows_read"],
+            &old["rows_without_key"],
+            &old["exact_copies"],
+            &old["firm_years"]
+        ),
+        (&6.into(), &1.into(), &1.into(), &4.into()),
+        "{old}"
+    );
+    assert_eq!(summary["firm_years_in_both"], 4, "{summary}");
+    let x = &summary["columns"][0];
+    assert_eq!(
+        (&x["column"], &x["cells_changed"]),
+        (&"x".into(), &1.into()),
+        "{x}"
+    );
+    w.write("clash.csv", "f,y,x\nA,1,1.5\nB,1,3\nA,1,1.6\n");
+    let mut args = vec!["compare", "clash.csv", "new.csv"];
+    args.extend(keys);
+    w.fails(&args, "key A in 1 is on rows with different values");
+}
+
+#[test]
 fn compare_reads_numbers_beside_text_in_the_other_vintage_as_numbers() {
     // A vintage with one text cell in a numeric column (`one`, as an export writes a note)
     // reads that column as text; comparing it as text counted every cell whose spelling

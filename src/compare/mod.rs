@@ -190,22 +190,36 @@ fn raw_vintage(cfg: &InputConfig) -> Result<Vintage> {
         .filter(col(e).is_not_null().and(col(p).is_not_null()))
         .collect()?;
     let rows_without_key = loaded.rows - keyed.height() as u64;
-    let unique = keyed.unique_stable(None, UniqueKeepStrategy::First, None)?;
-    let exact_copies = (keyed.height() - unique.height()) as u64;
+    // Exact copies are looked for among the rows whose key repeats only (whole rows hashed
+    // there, the keys alone elsewhere), the first of each kept in place.
+    let repeated = keyed.select([e, p])?.is_duplicated()?;
+    let unique = match repeated.any() {
+        false => keyed,
+        true => {
+            let rows = keyed.with_row_index("__row".into(), None)?;
+            let copies = rows.filter(&repeated)?;
+            let values: Vec<String> = keyed
+                .get_column_names()
+                .iter()
+                .map(|c| c.to_string())
+                .collect();
+            let first = copies.unique_stable(Some(&values), UniqueKeepStrategy::First, None)?;
+            let first = first.column("__row")?.idx()?;
+            let mut keep: Vec<bool> = repeated.iter().map(|r| r != Some(true)).collect();
+            for r in first.into_no_null_iter() {
+                keep[r as usize] = true;
+            }
+            keyed.filter(&BooleanChunked::from_slice("keep".into(), &keep))?
+        }
+    };
+    let exact_copies = loaded.rows - rows_without_key - unique.height() as u64;
     // A key on rows with different values cannot be matched to one row of the other vintage.
-    let conflicts = unique
-        .clone()
-        .lazy()
-        .group_by_stable([col(e), col(p)])
-        .agg([len().alias("__n")])
-        .filter(col("__n").gt(lit(1)))
-        .limit(1)
-        .collect()?;
-    if conflicts.height() > 0 {
+    let conflicting = unique.select([e, p])?.is_duplicated()?;
+    if let Some(r) = conflicting.iter().position(|c| c == Some(true)) {
         return Err(Error::CompareKey {
             file: cfg.path.clone(),
-            entity: conflicts.column(e)?.str()?.get(0).unwrap_or("").to_string(),
-            period: conflicts.column(p)?.i64()?.get(0).unwrap_or(0),
+            entity: unique.column(e)?.str()?.get(r).unwrap_or("").to_string(),
+            period: unique.column(p)?.i64()?.get(r).unwrap_or(0),
         });
     }
     let entities = crate::report::distinct(&unique, e)?;
