@@ -9,7 +9,7 @@ use super::verdict::{
     counted, level_key, line as verdict_line, worst, CheckVerdict, LevelKey, Levels, Status,
 };
 use super::{unit_slips, Check, Context, Settings};
-use crate::core::{in_batches, quantiles, GroupCodes, PanelCore, Values, View};
+use crate::core::{fewest_for_cutoffs, in_batches, quantiles, GroupCodes, PanelCore, Values, View};
 use crate::report::layout::{opt_level, strings, Block, Section};
 pub use crate::report::CutoffGroups;
 use crate::report::{Finding, OutlierLine, Report, ToJson, UnitSlip};
@@ -319,8 +319,7 @@ fn line(
     // The column is read in place: quantiles by bracketing (core::quantiles), no copy.
     let n = x.count();
     let (mut below, mut above) = (0u64, 0u64);
-    // A group needs 1 / (the smaller tail) values for its own cutoffs (100 at 1%).
-    let smallest = (1.0 / lo.min(1.0 - hi)).ceil() as u64;
+    let smallest = fewest_for_cutoffs(lo, hi) as u64;
     let mut fallback = None;
     let mut median: Option<Option<f64>> = None;
     let (lower, upper, min_group) = match (s.by, groups) {

@@ -4,7 +4,7 @@
 
 use polars::prelude::*;
 
-use crate::core::{GroupCodes, View};
+use crate::core::{fewest_for_cutoffs, GroupCodes, View};
 use crate::report::GroupCutoff;
 use crate::Result;
 
@@ -33,7 +33,7 @@ impl Groups {
     pub(super) fn of(df: &DataFrame, columns: &[String], lower: f64, upper: f64) -> Result<Groups> {
         Ok(Groups {
             codes: GroupCodes::of(df, columns)?,
-            smallest: (1.0 / lower.min(1.0 - upper)).ceil() as usize,
+            smallest: fewest_for_cutoffs(lower, upper),
         })
     }
 

@@ -136,8 +136,23 @@ impl Treatment {
                 let periods = Some(&core.periods[..]);
                 return self.by_codes(df, k, group, core.periods.len(), periods, None);
             }
-            _ => {}
+            // One group of every row, on the typed path.
+            (CutoffGroups::Pooled, _) => {
+                return self.by_codes(df, k, RowGroups::One, 1, None, None);
+            }
+            (CutoffGroups::Groups, _) => {
+                // Per group, on the typed path as by period; a group with fewer values than
+                // 1 / (the smaller tail) gets the pooled cutoffs instead (the stated fallback),
+                // as do rows whose group is missing.
+                let groups = Groups::of(&df, &self.groups, self.lower, self.upper)?;
+                let group = RowGroups::Codes(&groups.codes.codes);
+                let count = groups.codes.count();
+                return self.by_codes(df, k, group, count, None, Some(&groups));
+            }
+            (CutoffGroups::Period, _) => {}
         }
+        // Per period when no panel core codes the rows: the engine's cutoffs per period,
+        // joined beside the rows.
         let mut aggs = Vec::new();
         for (i, v) in self.variables.iter().enumerate() {
             aggs.push(
@@ -149,35 +164,16 @@ impl Treatment {
                     .alias(format!("__hi{i}")),
             );
         }
-        let (cutoffs, bounds) = match self.by {
-            // One group of every row, on the typed path.
-            CutoffGroups::Pooled => return self.by_codes(df, k, RowGroups::One, 1, None, None),
-            CutoffGroups::Groups => {
-                // Per group, on the typed path as by period; a group with fewer values than
-                // 1 / (the smaller tail) gets the pooled cutoffs instead (the stated fallback),
-                // as do rows whose group is missing.
-                let groups = Groups::of(&df, &self.groups, self.lower, self.upper)?;
-                let group = RowGroups::Codes(&groups.codes.codes);
-                let count = groups.codes.count();
-                return self.by_codes(df, k, group, count, None, Some(&groups));
-            }
-            CutoffGroups::Period => {
-                let c = df
-                    .clone()
-                    .lazy()
-                    .group_by([col(k.period)])
-                    .agg(aggs)
-                    .sort([k.period], Default::default())
-                    .collect()?;
-                let table = c.clone();
-                (
-                    c,
-                    Bounds {
-                        keys: vec![col(k.period)],
-                        table,
-                    },
-                )
-            }
+        let cutoffs = df
+            .clone()
+            .lazy()
+            .group_by([col(k.period)])
+            .agg(aggs)
+            .sort([k.period], Default::default())
+            .collect()?;
+        let bounds = Bounds {
+            keys: vec![col(k.period)],
+            table: cutoffs.clone(),
         };
         // The charts of the values before treatment, so that each old column can go once
         // replaced.

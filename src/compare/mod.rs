@@ -197,31 +197,34 @@ fn raw_vintage(cfg: &InputConfig) -> Result<Vintage> {
         false => keyed,
         true => {
             let rows = keyed.with_row_index("__row".into(), None)?;
-            let copies = rows.filter(&repeated)?;
             let values: Vec<String> = keyed
                 .get_column_names()
                 .iter()
                 .map(|c| c.to_string())
                 .collect();
-            let first = copies.unique_stable(Some(&values), UniqueKeepStrategy::First, None)?;
-            let first = first.column("__row")?.idx()?;
+            let first = rows.filter(&repeated)?.unique_stable(
+                Some(&values),
+                UniqueKeepStrategy::First,
+                None,
+            )?;
+            // A key still on two rows has rows with different values: it cannot be matched to
+            // one row of the other vintage (the first such key named).
+            let conflicting = first.select([e, p])?.is_duplicated()?;
+            if let Some(r) = conflicting.iter().position(|c| c == Some(true)) {
+                return Err(Error::CompareKey {
+                    file: cfg.path.clone(),
+                    entity: first.column(e)?.str()?.get(r).unwrap_or("").to_string(),
+                    period: first.column(p)?.i64()?.get(r).unwrap_or(0),
+                });
+            }
             let mut keep: Vec<bool> = repeated.iter().map(|r| r != Some(true)).collect();
-            for r in first.into_no_null_iter() {
+            for r in first.column("__row")?.idx()?.into_no_null_iter() {
                 keep[r as usize] = true;
             }
             keyed.filter(&BooleanChunked::from_slice("keep".into(), &keep))?
         }
     };
     let exact_copies = loaded.rows - rows_without_key - unique.height() as u64;
-    // A key on rows with different values cannot be matched to one row of the other vintage.
-    let conflicting = unique.select([e, p])?.is_duplicated()?;
-    if let Some(r) = conflicting.iter().position(|c| c == Some(true)) {
-        return Err(Error::CompareKey {
-            file: cfg.path.clone(),
-            entity: unique.column(e)?.str()?.get(r).unwrap_or("").to_string(),
-            period: unique.column(p)?.i64()?.get(r).unwrap_or(0),
-        });
-    }
     let entities = crate::report::distinct(&unique, e)?;
     Ok(Vintage {
         summary: VintageSummary {

@@ -6,6 +6,12 @@ use polars::prelude::*;
 
 use crate::Result;
 
+/// The fewest values a group needs for percentile cutoffs of its own at `lower` and `upper`:
+/// 1 / (the smaller tail), 100 at 1 %. A smaller group takes the pooled cutoffs.
+pub fn fewest_for_cutoffs(lower: f64, upper: f64) -> usize {
+    (1.0 / lower.min(1.0 - upper)).ceil() as usize
+}
+
 /// The groups of some columns: their values, one row a group sorted by the columns, and each
 /// row's group, its place in that table; rows with a missing value in any of the columns are
 /// in a last group of their own (`loose`, numbered `table.height()`).

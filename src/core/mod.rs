@@ -19,7 +19,7 @@ mod slip;
 mod text;
 mod values;
 
-pub use groups::GroupCodes;
+pub use groups::{fewest_for_cutoffs, GroupCodes};
 pub use keys::same_as_previous;
 pub use quantile::{grouped_quantiles, quantiles, quantiles_visiting, type7, type7_many};
 pub use slip::{log_ratios, magnitude};
