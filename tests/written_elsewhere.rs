@@ -457,6 +457,79 @@ fn codes_written_with_leading_zeros_keep_them() {
 }
 
 #[test]
+fn a_code_with_leading_zeros_far_down_the_file_keeps_them() {
+    // The reader guesses a column's type from its first 10,000 rows: a column of codes whose
+    // first code written with a leading zero came later was read as whole numbers, and
+    // `0100` on row 10,500 became 100, the code of another industry, without a word. Every
+    // row of such a column is looked at now. Source: common practice (industry codes are
+    // identifiers written with their zeros); the rows and values expected are worked by hand
+    // from the file written here: 1,000 firms of 11 years, `sic` 1000 + firm mod 50 but
+    // `0100` on data row 10,500; `staff` 10 + row mod 7 but `2.5` on data row 10,900 (read as
+    // decimals, as before); `founded` whole numbers throughout (still whole numbers); the
+    // joined table's `code` `0042` on its data row 10,200 only.
+    let w = Workdir::new();
+    let mut panel = String::from("firm,year,sic,staff,founded\n");
+    let mut table = String::from("firm,year,code\n");
+    for i in 0..11_000 {
+        let (firm, year) = (i / 11, 2000 + i % 11);
+        let row = i + 1;
+        let sic = if row == 10_500 {
+            "0100".to_string()
+        } else {
+            (1000 + firm % 50).to_string()
+        };
+        let staff = if row == 10_900 {
+            "2.5".to_string()
+        } else {
+            (10 + row % 7).to_string()
+        };
+        panel.push_str(&format!(
+            "F{firm:04},{year},{sic},{staff},{}\n",
+            1950 + firm % 40
+        ));
+        let code = if row == 10_200 { "0042" } else { "42" };
+        table.push_str(&format!("F{firm:04},{year},{code}\n"));
+    }
+    w.write("panel.csv", &panel);
+    w.write("codes.csv", &table);
+    w.write(
+        "rules.toml",
+        "[panel]\nentity = \"firm\"\nperiod = \"year\"\n\n[[join]]\nfile = \"codes.csv\"\n\
+         on = [\"firm\", \"year\"]\n",
+    );
+    w.ok(&["build", "panel.csv", "--rules", "rules.toml", "--out", "b"]);
+    let report = w.json("b/report.json");
+    let notes = notes(&report);
+    for note in [
+        "column `sic` read as text: its values are codes written with leading zeros (data row \
+         10500 holds `0100`)",
+        "joined `codes.csv`, column `code` read as text: its values are codes written with \
+         leading zeros (data row 10200 holds `0042`)",
+    ] {
+        assert!(notes.contains(&note), "{notes:?}");
+    }
+    let csv = std::fs::read_to_string(w.path("b/panel.csv")).unwrap();
+    let rows: Vec<Vec<&str>> = csv.lines().map(|l| l.split(',').collect()).collect();
+    let at = |name: &str| rows[0].iter().position(|c| *c == name).unwrap();
+    let (sic, staff, founded, code) = (at("sic"), at("staff"), at("founded"), at("code"));
+    assert_eq!(rows[10_500][sic], "0100");
+    assert_eq!(rows[10_499][sic], "1004", "firm 954 is 1000 + 954 mod 50");
+    assert_eq!(rows[10_900][staff], "2.5");
+    assert_eq!(
+        rows[10_901][staff], "12.0",
+        "10 + 10,901 mod 7 (7 × 1,557 = 10,899)"
+    );
+    assert_eq!(rows[10_200][code], "0042");
+    assert_eq!(rows[1][code], "42");
+    assert_eq!(rows[1][founded], "1950");
+    // Averaged as a number: the mean of 1950 + firm mod 40 over 1,000 firms of 11 rows.
+    let mean = line(&report, "founded")["mean"].as_f64().unwrap();
+    let worked = (0..1000).map(|f| 1950.0 + (f % 40) as f64).sum::<f64>() / 1000.0;
+    assert!((mean - worked).abs() < 1e-9, "{mean} against {worked}");
+    assert!(line(&report, "sic")["mean"].is_null());
+}
+
+#[test]
 fn a_joined_table_keeps_its_codes_leading_zeros_too() {
     // The panel's codes with leading zeros are text; a joined table's were read as whole
     // numbers, so that `0100` in the table could only meet `100` in the panel. Both are

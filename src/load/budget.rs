@@ -28,7 +28,9 @@ const PEAK_PER_PANEL_BYTE: f64 = 1.15;
 /// parsed chunks, then one column more while each is joined into one chunk (`load::contiguous`).
 /// Fitted on the bench panel's CSV file (4 December 2026, peak RSS of `audit` beyond
 /// `PEAK_FIXED` over the panel as read here, 180 bytes a row: 1.58 at 10 M rows, 2,979 MiB;
-/// 0.87 at 1 M, where the fixed part is most of it) and set above it.
+/// 0.87 at 1 M, where the fixed part is most of it) and set above it. Since its whole numbers
+/// are read as text (5 December 2026, 196 bytes a row, `founded` as text): 1.52 at 10 M,
+/// 3,089 MiB.
 const CSV_READ_PER_BYTE: f64 = 1.7;
 
 /// Memory model readiness takes beside the panel, per row and per regressor (the lag of the
@@ -163,8 +165,12 @@ pub(super) fn check_budget(
         needed += rows as f64 * (MODEL_ROW_BYTES + MODEL_REGRESSOR_BYTES * k as f64);
     }
     if cfg.format == InputFormat::Csv {
-        // Reading a CSV file can take more than holding the panel afterwards.
-        let as_read: f64 = schema.iter_values().map(value_bytes).sum::<f64>()
+        // Reading a CSV file can take more than holding the panel afterwards; its whole
+        // numbers but the keys are read as text (`load::whole`).
+        let mut keys = vec![cfg.entity.as_str(), cfg.period.as_str()];
+        keys.extend(cfg.rules.file.panel.year_end.as_deref());
+        let (text_first, _) = super::whole::as_text_first(schema, &keys);
+        let as_read: f64 = text_first.iter_values().map(value_bytes).sum::<f64>()
             + std::mem::size_of::<IdxSize>() as f64;
         needed = needed.max(PEAK_FIXED + CSV_READ_PER_BYTE * rows as f64 * as_read);
     }

@@ -88,7 +88,7 @@ fn code_or_marker(text: &str) -> bool {
 pub(super) fn leading_zero_codes(
     sample: &DataFrame,
     keep: &[&str],
-) -> Result<Vec<(String, usize, String)>> {
+) -> Result<Vec<super::CodeColumn>> {
     let mut found = Vec::new();
     for c in sample.columns() {
         let name = c.name().as_str();

@@ -17,6 +17,7 @@ mod footer;
 mod markers;
 mod period;
 mod sheet;
+mod whole;
 
 use budget::check_budget;
 use csv_file::{
@@ -25,6 +26,10 @@ use csv_file::{
 pub(crate) use finite::non_finite_as_missing;
 pub(crate) use markers::numbers_with_markers;
 use period::{check_period, check_window, fiscal_year, period_as_int};
+
+/// A column read as text for its codes written with leading zeros: its name, and the data row
+/// and value of its first such code.
+pub(super) type CodeColumn = (String, usize, String);
 
 /// The internal column holding each row's original position (1 = first data row); named
 /// `source_row` in the outputs (see `pipeline::output_names`).
@@ -75,11 +80,32 @@ pub fn read_raw(
         .copied()
         .chain(coded.iter().map(|(name, _, _)| name.as_str()))
         .collect();
-    let df = match scan(source, path, format, Some(INFER_ROWS), csv, &text)?.collect() {
-        Ok(df) => df,
-        Err(_) if format == InputFormat::Csv => scan(source, path, format, None, csv, &text)?
+    // Whole numbers read as text and made numbers after, as `load` reads them.
+    let read = |infer| -> Result<PolarsResult<_>> {
+        let lf = scan(source, path, format, infer, csv, &text)?;
+        if format != InputFormat::Csv {
+            return Ok(lf.collect().map(|df| (df, Vec::new())));
+        }
+        let schema = lf
+            .clone()
+            .collect_schema()
+            .map_err(|e| unreadable(path, format, csv.delimiter, e))?;
+        let (_, guessed) = whole::as_text_first(&schema, &[]);
+        let as_text: Vec<&str> = text
+            .iter()
+            .copied()
+            .chain(guessed.iter().map(|(name, _)| name.as_str()))
+            .collect();
+        let lf = scan(source, path, format, infer, csv, &as_text)?;
+        Ok(lf
             .collect()
-            .map_err(|e| unreadable(path, format, csv.delimiter, e))?,
+            .and_then(|df| whole::whole_numbers(df, &guessed)))
+    };
+    let (df, coded_further) = match read(Some(INFER_ROWS))? {
+        Ok(read) => read,
+        Err(_) if format == InputFormat::Csv => {
+            read(None)?.map_err(|e| unreadable(path, format, csv.delimiter, e))?
+        }
         Err(e) => return Err(unreadable(path, format, csv.delimiter, e)),
     };
     if df.height() == 0 {
@@ -87,7 +113,9 @@ pub fn read_raw(
             file: path.to_path_buf(),
         });
     }
-    Ok((df, coded_notes(&coded)))
+    let mut notes = coded_notes(&coded);
+    notes.extend(coded_notes(&coded_further));
+    Ok((df, notes))
 }
 
 /// The columns of a CSV file (at `source`, named `input`) but those in `keep` that hold codes
@@ -98,7 +126,7 @@ fn leading_zero_columns(
     input: &Path,
     csv: &CsvOptions,
     keep: &[&str],
-) -> Result<Vec<(String, usize, String)>> {
+) -> Result<Vec<CodeColumn>> {
     let format = InputFormat::Csv;
     let sample = scan(source, input, format, Some(0), csv, &[])?
         .slice(0, INFER_ROWS as IdxSize)
@@ -108,7 +136,7 @@ fn leading_zero_columns(
 }
 
 /// The input notes of the columns [`leading_zero_columns`] found.
-fn coded_notes(coded: &[(String, usize, String)]) -> Vec<String> {
+fn coded_notes(coded: &[CodeColumn]) -> Vec<String> {
     coded
         .iter()
         .map(|(name, row, value)| {
@@ -240,26 +268,40 @@ pub fn load(
     if let Some(budget) = cfg.memory_budget {
         check_budget(cfg, &lf, &schema, budget)?;
     }
-    // Read once. Column types are guessed from the first rows; if a later row does not fit
-    // (a decimal in a column of whole numbers, say), read again guessing from every row.
-    let read = match cfg.format {
-        InputFormat::Parquet => contiguous::collect(lf, ROW, progress),
-        InputFormat::Csv => contiguous::read_csv(source, &schema, &cfg.csv, ROW),
-        InputFormat::Spreadsheet => lf.with_row_index(ROW, Some(1)).collect(),
+    // Read once. Column types are guessed from the first rows; the columns guessed to be
+    // whole numbers are read as text and made numbers after, unless a code written with
+    // leading zeros turns up further down (`whole`). If a later row does not fit another
+    // column (a word in a column of decimals, say), read again guessing from every row.
+    let mut keys = vec![cfg.entity.as_str(), cfg.period.as_str()];
+    keys.extend(cfg.rules.file.panel.year_end.as_deref());
+    let read_csv = |schema: &Schema| {
+        let (as_read, guessed) = whole::as_text_first(schema, &keys);
+        let mut coded = Vec::new();
+        let df = contiguous::read_csv(source, &as_read, &cfg.csv, ROW, |c| {
+            whole::settle(c, &guessed, &mut coded)
+        })?;
+        Ok((df, coded))
     };
-    let df = match read {
-        Ok(df) => df,
-        // And if that fails too (a whole number too wide for 64 bits stops the reader
-        // however the types are guessed), every column as text: the marker pass below reads
-        // the numbers back and names what was unusual.
+    let read = match cfg.format {
+        InputFormat::Parquet => contiguous::collect(lf, ROW, progress).map(|df| (df, Vec::new())),
+        InputFormat::Csv => read_csv(&schema),
+        InputFormat::Spreadsheet => lf
+            .with_row_index(ROW, Some(1))
+            .collect()
+            .map(|df| (df, Vec::new())),
+    };
+    let (df, coded_further) = match read {
+        Ok(read) => read,
+        // And if that fails too, every column as text: the marker pass below reads the
+        // numbers back and names what was unusual.
         Err(_) if cfg.format == InputFormat::Csv => scan(None)?
             .collect_schema()
-            .and_then(|every_row| contiguous::read_csv(source, &every_row, &cfg.csv, ROW))
+            .and_then(|every_row| read_csv(&every_row))
             .or_else(|e| {
                 scan(Some(0))
                     .map_err(|_| e)?
                     .collect_schema()
-                    .and_then(|text| contiguous::read_csv(source, &text, &cfg.csv, ROW))
+                    .and_then(|text| read_csv(&text))
             })
             .map_err(|e| unreadable(&cfg.path, cfg.format, cfg.csv.delimiter, e))?,
         Err(e) => return Err(unreadable(&cfg.path, cfg.format, cfg.csv.delimiter, e)),
@@ -271,9 +313,7 @@ pub fn load(
     }
     // A CSV column of numbers with `NA`, `.` or `#N/A` for missing ones: numbers, noted.
     let (df, marked) = if cfg.format == InputFormat::Csv {
-        let mut keep = vec![cfg.entity.as_str(), cfg.period.as_str()];
-        keep.extend(cfg.rules.file.panel.year_end.as_deref());
-        markers::numbers_with_markers(df, &keep, cfg.csv.decimal_comma)?
+        markers::numbers_with_markers(df, &keys, cfg.csv.decimal_comma)?
     } else {
         (df, Vec::new())
     };
@@ -309,6 +349,7 @@ pub fn load(
     check_window(&df, cfg)?;
     let (sheet, mut notes) = sheet.map_or((None, Vec::new()), |s| (Some(s.name), s.notes));
     notes.extend(coded_notes(&coded));
+    notes.extend(coded_notes(&coded_further));
     notes.extend(marked);
     notes.extend(decimals);
     notes.extend(non_finite);

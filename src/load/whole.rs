@@ -1,0 +1,210 @@
+//! Columns of a CSV file whose first rows hold whole numbers, read whole as text and made
+//! numbers here, so that a code written with leading zeros (`0100`) anywhere in the file keeps
+//! the column text — the reader, which guesses each column's type from the first rows, would
+//! read `0100` further down as 100, silently one code with `100`.
+
+use polars::prelude::*;
+use polars_arrow::array::{PrimitiveArray, Utf8ViewArray};
+use polars_arrow::bitmap::Bitmap;
+use rayon::prelude::*;
+
+use super::CodeColumn;
+
+/// The columns of `schema` the reader guessed to be whole numbers, but those in `keep`, with
+/// the type it guessed; and `schema` with each of them as text, to read the file with.
+pub(super) fn as_text_first(
+    schema: &Schema,
+    keep: &[&str],
+) -> (Schema, Vec<(PlSmallStr, DataType)>) {
+    let mut guessed = Vec::new();
+    let as_read = schema
+        .iter()
+        .map(|(name, dtype)| {
+            if dtype.is_integer() && !keep.contains(&name.as_str()) {
+                guessed.push((name.clone(), dtype.clone()));
+                (name.clone(), DataType::String)
+            } else {
+                (name.clone(), dtype.clone())
+            }
+        })
+        .collect();
+    (as_read, guessed)
+}
+
+/// What one column read as text holds.
+#[derive(Debug)]
+enum Held {
+    /// Whole numbers (or nothing) in every cell: the numbers.
+    Numbers(Int64Chunked),
+    /// Whole numbers, at least one written with leading zeros: codes, with the data row and
+    /// value of the first such.
+    Codes(usize, String),
+    /// Something else in some cell (a decimal, a marker such as `NA`, a number too wide for
+    /// 64 bits): left as text for the marker pass, which reads it as the reader would.
+    Other,
+}
+
+/// A whole number as the reader writes one: an optional minus sign, then digits, within 64
+/// bits (surrounding spaces and a plus sign are left to the marker pass, which notes them).
+fn whole(t: &str) -> Option<i64> {
+    let digits = t.strip_prefix('-').unwrap_or(t);
+    if digits.is_empty() || !digits.bytes().all(|b| b.is_ascii_digit()) {
+        return None;
+    }
+    t.parse().ok()
+}
+
+/// One chunk's cells as whole numbers into `out` and `present` (its rows' slots), with the
+/// index in the chunk and value of its first code written with leading zeros; None at the
+/// first cell that is not a whole number.
+fn chunk_numbers(
+    chunk: &Utf8ViewArray,
+    out: &mut [i64],
+    present: &mut [bool],
+) -> Option<Option<(usize, String)>> {
+    let mut first_code = None;
+    for (i, v) in chunk.iter().enumerate() {
+        if let Some(t) = v.filter(|t| !t.is_empty()) {
+            out[i] = whole(t)?;
+            present[i] = true;
+            if first_code.is_none() && super::markers::leading_zero(t) {
+                first_code = Some((i, t.to_string()));
+            }
+        }
+    }
+    Some(first_code)
+}
+
+/// What the text column `values` holds: its chunks read in parallel into one array of numbers,
+/// each chunk stopping at its first cell that is not a whole number.
+fn held(values: &StringChunked) -> Held {
+    let n = values.len();
+    let (mut out, mut present) = (vec![0i64; n], vec![false; n]);
+    // Each chunk with its first row and its own part of the output.
+    let mut parts = Vec::new();
+    let (mut rest_out, mut rest_present, mut start) = (&mut out[..], &mut present[..], 0);
+    for chunk in values.downcast_iter() {
+        let (o, ro) = rest_out.split_at_mut(chunk.len());
+        let (p, rp) = rest_present.split_at_mut(chunk.len());
+        parts.push((chunk, start, o, p));
+        (rest_out, rest_present, start) = (ro, rp, start + chunk.len());
+    }
+    let found: Option<Vec<Option<(usize, String)>>> = parts
+        .into_par_iter()
+        .map(|(chunk, start, o, p)| {
+            chunk_numbers(chunk, o, p).map(|code| code.map(|(i, v)| (start + i + 1, v)))
+        })
+        .collect();
+    let Some(found) = found else {
+        return Held::Other;
+    };
+    if let Some((row, value)) = found.into_iter().flatten().next() {
+        return Held::Codes(row, value);
+    }
+    let validity = (values.null_count() > 0 || present.contains(&false))
+        .then(|| Bitmap::from_iter(present.iter().copied()));
+    let array = PrimitiveArray::new(ArrowDataType::Int64, out.into(), validity);
+    Held::Numbers(Int64Chunked::with_chunk(values.name().clone(), array))
+}
+
+/// `c`, a column of a CSV file read with [`as_text_first`]'s schema (one row a data row, in
+/// file order): if it is one of the `guessed`, the whole numbers the reader guessed it to hold
+/// — unless one of its cells is a code written with leading zeros, when it stays text and is
+/// added to `coded` with the data row and value of the first such, or unless a cell holds
+/// anything else, when it stays text for the marker pass (as a read that took every column as
+/// text leaves it).
+pub(super) fn settle(
+    c: Column,
+    guessed: &[(PlSmallStr, DataType)],
+    coded: &mut Vec<CodeColumn>,
+) -> PolarsResult<Column> {
+    let Some((_, dtype)) = guessed.iter().find(|(name, _)| name == c.name()) else {
+        return Ok(c);
+    };
+    Ok(match held(c.str()?) {
+        Held::Numbers(numbers) => numbers.into_column().cast(dtype)?,
+        Held::Codes(row, value) => {
+            coded.push((c.name().to_string(), row, value));
+            c
+        }
+        Held::Other => c,
+    })
+}
+
+/// [`settle`] on each column of `df`.
+pub(super) fn whole_numbers(
+    df: DataFrame,
+    guessed: &[(PlSmallStr, DataType)],
+) -> PolarsResult<(DataFrame, Vec<CodeColumn>)> {
+    let mut coded = Vec::new();
+    let height = df.height();
+    let columns = df
+        .into_columns()
+        .into_iter()
+        .map(|c| settle(c, guessed, &mut coded))
+        .collect::<PolarsResult<Vec<_>>>()?;
+    Ok((DataFrame::new(height, columns)?, coded))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn text(values: &[Option<&str>]) -> StringChunked {
+        StringChunked::from_iter_options("c".into(), values.iter().copied())
+    }
+
+    /// Worked by hand: the three outcomes, a code's first row counted from 1, empty cells
+    /// missing, and what the reader's whole numbers do not include (a plus sign, a space, a
+    /// number beyond 64 bits, a decimal) left to the marker pass.
+    #[test]
+    fn numbers_codes_and_the_rest() {
+        let numbers = held(&text(&[Some("12"), None, Some("-7"), Some(""), Some("0")]));
+        let Held::Numbers(n) = numbers else {
+            panic!("{numbers:?}")
+        };
+        assert_eq!(
+            n.iter().collect::<Vec<_>>(),
+            [Some(12), None, Some(-7), None, Some(0)]
+        );
+        let codes = held(&text(&[Some("100"), Some("7"), Some("0100"), Some("007")]));
+        assert!(
+            matches!(&codes, Held::Codes(3, v) if v == "0100"),
+            "{codes:?}"
+        );
+        for other in [
+            "+5",
+            " 5",
+            "1.5",
+            "NA",
+            "99999999999999999999",
+            "-",
+            "0100a",
+        ] {
+            let held = held(&text(&[Some("1"), Some(other)]));
+            assert!(matches!(held, Held::Other), "{other}: {held:?}");
+        }
+        // A negative number with a zero after its sign is a number, as the reader reads it.
+        assert!(matches!(held(&text(&[Some("-012")])), Held::Numbers(_)));
+    }
+
+    /// Worked by hand: a column in three chunks, as the reader makes them, is read in order;
+    /// a code's row counts the chunks before it, and a null in a later chunk stays missing.
+    #[test]
+    fn chunks_in_order() {
+        let mut c = text(&[Some("1"), Some("2")]);
+        c.append(&text(&[None, Some("4")])).unwrap();
+        c.append(&text(&[Some("5")])).unwrap();
+        assert_eq!(c.chunks().len(), 3);
+        let Held::Numbers(n) = held(&c) else {
+            panic!("numbers")
+        };
+        assert_eq!(
+            n.iter().collect::<Vec<_>>(),
+            [Some(1), Some(2), None, Some(4), Some(5)]
+        );
+        c.append(&text(&[Some("6"), Some("007"), Some("08")]))
+            .unwrap();
+        assert!(matches!(held(&c), Held::Codes(7, v) if v == "007"));
+    }
+}
