@@ -4,7 +4,8 @@
 //! summary in the report formats. The firm-years are paired once (`pairs.rs`: a merge of
 //! sorted keys, or a full join of the keys); then each shared column is gathered from both
 //! vintages in the matched order (read as it is where that is its own) and compared, one
-//! column at a time.
+//! column at a time — a bundle's read from its panel.parquet then, its keys alone held
+//! throughout.
 
 use std::path::Path;
 
@@ -97,7 +98,13 @@ pub struct Comparison {
 
 struct Vintage {
     summary: VintageSummary,
+    /// Every column of a raw file; the two keys of a bundle, whose other columns are read
+    /// from `panel` one at a time as they are compared.
     df: DataFrame,
+    /// A bundle's panel.parquet, as scanned.
+    panel: Option<LazyFrame>,
+    /// Every column's type.
+    schema: SchemaRef,
     entity: String,
     period: String,
     derived: Vec<String>,
@@ -110,6 +117,14 @@ impl Vintage {
             entity: &self.entity,
             period: &self.period,
         }
+    }
+
+    /// The column `c`, in the vintage's own row order.
+    fn column(&self, c: &str) -> Result<Column> {
+        Ok(match &self.panel {
+            None => self.df.column(c)?.clone(),
+            Some(lf) => lf.clone().select([col(c)]).collect()?.column(c)?.clone(),
+        })
     }
 }
 
@@ -148,7 +163,11 @@ fn bundle_vintage(dir: &Path) -> Result<Vintage> {
     if !panel.is_file() {
         return Err(Error::NoInput { file: panel });
     }
-    let df = LazyFrame::scan_parquet(
+    let (entity, period) = (
+        manifest.input.entity.as_str(),
+        manifest.input.period.as_str(),
+    );
+    let mut lf = LazyFrame::scan_parquet(
         PlRefPath::try_from_path(&panel)?,
         ScanArgsParquet::default(),
     )?
@@ -158,10 +177,13 @@ fn bundle_vintage(dir: &Path) -> Result<Vintage> {
         false,
     ))
     .with_columns([
-        col(manifest.input.entity.as_str()).cast(DataType::String),
-        col(manifest.input.period.as_str()).cast(DataType::Int64),
-    ])
-    .collect()?;
+        col(entity).cast(DataType::String),
+        col(period).cast(DataType::Int64),
+    ]);
+    let schema = lf.collect_schema()?;
+    // The keys now; every other column when it is compared, so that memory holds two columns
+    // of each vintage, not every one.
+    let df = lf.clone().select([col(entity), col(period)]).collect()?;
     let rows = df.height() as u64;
     let entities = crate::report::distinct(&df, &manifest.input.entity)?;
     Ok(Vintage {
@@ -175,6 +197,8 @@ fn bundle_vintage(dir: &Path) -> Result<Vintage> {
             entities,
         },
         df,
+        panel: Some(lf),
+        schema,
         entity: manifest.input.entity,
         period: manifest.input.period,
         derived,
@@ -236,7 +260,9 @@ fn raw_vintage(cfg: &InputConfig) -> Result<Vintage> {
             firm_years: unique.height() as u64,
             entities,
         },
+        schema: unique.schema().clone(),
         df: unique,
+        panel: None,
         entity: cfg.entity.clone(),
         period: cfg.period.clone(),
         derived: Vec::new(),
@@ -282,8 +308,8 @@ pub fn compare(old: &Side, new: &Side, tolerance: &Tolerance) -> Result<(Compari
     let old = vintage(old)?;
     let new = vintage(new)?;
     let (e, p) = (old.entity.clone(), old.period.clone());
-    let old_schema = old.df.schema().clone();
-    let new_schema = new.df.schema().clone();
+    let old_schema = old.schema.clone();
+    let new_schema = new.schema.clone();
     let is_key_old = |c: &str| c == old.entity || c == old.period;
     let is_key_new = |c: &str| c == new.entity || c == new.period;
     let shared: Vec<String> = old_schema
@@ -361,13 +387,14 @@ pub fn compare(old: &Side, new: &Side, tolerance: &Tolerance) -> Result<(Compari
         row_event(&pairs, &e, &p, col("__in").is_null(), "firm-year removed")?,
     ];
     // One shared column at a time, gathered from both vintages in the matched order: memory
-    // holds the two vintages and two columns beside them, not a joined copy of every column.
+    // holds the keys (and a raw file whole) and two columns beside them, not a joined copy of
+    // every column.
     let mut columns = Vec::with_capacity(shared.len());
     for (i, c) in shared.iter().enumerate() {
         let gathered = |v: &Vintage, at: &IdxCa, whole: bool, tag: &str| -> Result<Column> {
-            let column = v.df.column(c)?;
+            let column = v.column(c)?;
             let column = match whole {
-                true => column.clone(),
+                true => column,
                 false => column.take(at)?,
             };
             Ok(column.with_name(tag.into()))
