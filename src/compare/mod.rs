@@ -105,20 +105,14 @@ struct Vintage {
     panel: Option<LazyFrame>,
     /// Every column's type.
     schema: SchemaRef,
+    /// The keys in key order.
+    keys: pairs::Keys,
     entity: String,
     period: String,
     derived: Vec<String>,
 }
 
 impl Vintage {
-    fn keyed(&self) -> pairs::Keyed<'_> {
-        pairs::Keyed {
-            df: &self.df,
-            entity: &self.entity,
-            period: &self.period,
-        }
-    }
-
     /// The column `c`, in the vintage's own row order.
     fn column(&self, c: &str) -> Result<Column> {
         Ok(match &self.panel {
@@ -183,9 +177,12 @@ fn bundle_vintage(dir: &Path) -> Result<Vintage> {
     let schema = lf.collect_schema()?;
     // The keys now; every other column when it is compared, so that memory holds two columns
     // of each vintage, not every one.
-    let df = lf.clone().select([col(entity), col(period)]).collect()?;
+    // In one chunk each, which the keys below then share rather than copy.
+    let mut df = lf.clone().select([col(entity), col(period)]).collect()?;
+    df.rechunk_mut_par();
     let rows = df.height() as u64;
-    let entities = crate::report::distinct(&df, &manifest.input.entity)?;
+    let keys = pairs::Keys::of(df.column(entity)?, df.column(period)?)?;
+    let entities = keys.entities();
     Ok(Vintage {
         summary: VintageSummary {
             path: dir.display().to_string(),
@@ -199,6 +196,7 @@ fn bundle_vintage(dir: &Path) -> Result<Vintage> {
         df,
         panel: Some(lf),
         schema,
+        keys,
         entity: manifest.input.entity,
         period: manifest.input.period,
         derived,
@@ -215,11 +213,11 @@ fn raw_vintage(cfg: &InputConfig) -> Result<Vintage> {
         .collect()?;
     let rows_without_key = loaded.rows - keyed.height() as u64;
     // Exact copies are looked for among the rows whose key repeats only (whole rows hashed
-    // there, the keys alone elsewhere), the first of each kept in place.
-    let repeated = keyed.select([e, p])?.is_duplicated()?;
-    let unique = match repeated.any() {
-        false => keyed,
-        true => {
+    // there, the keys alone sorted elsewhere), the first of each kept in place.
+    let keys = pairs::Keys::of(keyed.column(e)?, keyed.column(p)?)?;
+    let (unique, keys) = match keys.repeated() {
+        None => (keyed, keys),
+        Some(repeated) => {
             let rows = keyed.with_row_index("__row".into(), None)?;
             let values: Vec<String> = keyed
                 .get_column_names()
@@ -245,11 +243,13 @@ fn raw_vintage(cfg: &InputConfig) -> Result<Vintage> {
             for r in first.column("__row")?.idx()?.into_no_null_iter() {
                 keep[r as usize] = true;
             }
-            keyed.filter(&BooleanChunked::from_slice("keep".into(), &keep))?
+            let unique = keyed.filter(&BooleanChunked::from_slice("keep".into(), &keep))?;
+            let keys = pairs::Keys::of(unique.column(e)?, unique.column(p)?)?;
+            (unique, keys)
         }
     };
     let exact_copies = loaded.rows - rows_without_key - unique.height() as u64;
-    let entities = crate::report::distinct(&unique, e)?;
+    let entities = keys.entities();
     Ok(Vintage {
         summary: VintageSummary {
             path: cfg.path.display().to_string(),
@@ -263,6 +263,7 @@ fn raw_vintage(cfg: &InputConfig) -> Result<Vintage> {
         schema: unique.schema().clone(),
         df: unique,
         panel: None,
+        keys,
         entity: cfg.entity.clone(),
         period: cfg.period.clone(),
         derived: Vec::new(),
@@ -341,7 +342,11 @@ pub fn compare(old: &Side, new: &Side, tolerance: &Tolerance) -> Result<(Compari
             }
         })
         .collect();
-    let pairs = pairs::pairs(&old.keyed(), &new.keyed(), &e, &p)?;
+    let pairs::Merged {
+        pairs,
+        entities_added,
+        entities_removed,
+    } = pairs::merged(&old.keys, &new.keys, &e, &p)?;
     let both = col("__io").is_not_null().and(col("__in").is_not_null());
     let tally = pairs
         .clone()
@@ -500,38 +505,6 @@ pub fn compare(old: &Side, new: &Side, tolerance: &Tolerance) -> Result<(Compari
                 .collect()?,
         );
     }
-
-    let only = |a: &DataFrame, ae: &str, b: &DataFrame, be: &str| -> Result<Vec<String>> {
-        let left = a
-            .clone()
-            .lazy()
-            .select([col(ae).alias("__e")])
-            .unique_stable(None, UniqueKeepStrategy::First);
-        let right = b
-            .clone()
-            .lazy()
-            .select([col(be).alias("__e")])
-            .unique_stable(None, UniqueKeepStrategy::First);
-        let out = left
-            .join(
-                right,
-                [col("__e")],
-                [col("__e")],
-                JoinArgs::new(JoinType::Anti),
-            )
-            .drop_nulls(None)
-            .sort(["__e"], Default::default())
-            .collect()?;
-        Ok(out
-            .column("__e")?
-            .str()?
-            .iter()
-            .flatten()
-            .map(str::to_string)
-            .collect())
-    };
-    let entities_added = only(&new.df, &new.entity, &old.df, &old.entity)?;
-    let entities_removed = only(&old.df, &old.entity, &new.df, &new.entity)?;
 
     let ledger = concat(
         ledger.into_iter().map(IntoLazy::lazy).collect::<Vec<_>>(),
