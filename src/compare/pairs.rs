@@ -1,5 +1,5 @@
 //! A vintage's keys in key order (bundles are sorted by them, and many raw files; others' keys
-//! are sorted first, by an integer prefix of each name), from which its repeated keys and its
+//! are sorted first, by an integer head of each name), from which its repeated keys and its
 //! entities are counted; and each firm-year of either vintage with its row in each (null
 //! where it is absent) by one merge of the two vintages' keys in that order, with the entities
 //! found on one side only.
@@ -17,19 +17,29 @@ use crate::Result;
 pub(super) struct Keys {
     entity: StringChunked,
     period: Int64Chunked,
-    /// The rows in key order; None when they stand in it.
-    order: Option<Vec<IdxSize>>,
+    /// The keys in key order, each with its row; None when the rows stand in it.
+    sorted: Option<Vec<Sorted>>,
+}
+
+/// A key as sorted: the head of its name (see [`head`]), its period and its row. Read in
+/// order, the merge compares these integers and touches a name only where two heads tie.
+#[derive(Clone, Copy)]
+struct Sorted {
+    head: u64,
+    len: u8,
+    period: i64,
+    row: IdxSize,
 }
 
 /// The first eight bytes of `name`, as a number that orders as the bytes do (zeros after a
 /// shorter name), and its length up to nine: two names of at most eight bytes order as these
 /// two do, a longer one by its bytes.
-fn prefix(name: &str) -> (u64, u8) {
+fn head(name: &str) -> (u64, u8) {
     let bytes = name.as_bytes();
-    let mut head = [0u8; 8];
+    let mut first = [0u8; 8];
     let n = bytes.len().min(8);
-    head[..n].copy_from_slice(&bytes[..n]);
-    (u64::from_be_bytes(head), bytes.len().min(9) as u8)
+    first[..n].copy_from_slice(&bytes[..n]);
+    (u64::from_be_bytes(first), bytes.len().min(9) as u8)
 }
 
 impl Keys {
@@ -42,27 +52,31 @@ impl Keys {
         let mut keys = Keys {
             entity,
             period,
-            order: None,
+            sorted: None,
         };
         let n = keys.len();
         let rising = (1..n).all(|i| keys.key_at(i - 1) < keys.key_at(i));
         if !rising {
             let (names, periods) = (keys.names(), keys.periods());
-            let mut rows: Vec<((u64, u8), i64, IdxSize)> = (0..n)
+            let mut sorted: Vec<Sorted> = (0..n)
                 .into_par_iter()
-                .map(|r| (prefix(names.value(r)), periods[r], r as IdxSize))
-                .collect();
-            rows.par_sort_unstable_by(|a, b| {
-                a.0 .0.cmp(&b.0 .0).then_with(|| {
-                    let by_name = if a.0 .1 <= 8 && b.0 .1 <= 8 {
-                        a.0 .1.cmp(&b.0 .1)
-                    } else {
-                        names.value(a.2 as usize).cmp(names.value(b.2 as usize))
-                    };
-                    by_name.then(a.1.cmp(&b.1))
+                .map(|r| {
+                    let (head, len) = head(names.value(r));
+                    Sorted {
+                        head,
+                        len,
+                        period: periods[r],
+                        row: r as IdxSize,
+                    }
                 })
+                .collect();
+            sorted.par_sort_unstable_by(|a, b| {
+                by_heads((a.head, a.len), (b.head, b.len), || {
+                    names.value(a.row as usize).cmp(names.value(b.row as usize))
+                })
+                .then(a.period.cmp(&b.period))
             });
-            keys.order = Some(rows.into_iter().map(|(_, _, r)| r).collect());
+            keys.sorted = Some(sorted);
         }
         Ok(keys)
     }
@@ -83,10 +97,15 @@ impl Keys {
 
     /// The row `i`-th in key order.
     fn row(&self, i: usize) -> usize {
-        match &self.order {
+        match &self.sorted {
             None => i,
-            Some(rows) => rows[i] as usize,
+            Some(sorted) => sorted[i].row as usize,
         }
+    }
+
+    /// The name `i`-th in key order.
+    fn name_at(&self, i: usize) -> &str {
+        self.names().value(self.row(i))
     }
 
     /// The key `i`-th in key order.
@@ -95,13 +114,27 @@ impl Keys {
         (self.names().value(r), self.periods()[r])
     }
 
+    /// The head of the name and the period `i`-th in key order.
+    fn head_at(&self, i: usize) -> ((u64, u8), i64) {
+        match &self.sorted {
+            None => (head(self.names().value(i)), self.periods()[i]),
+            Some(sorted) => ((sorted[i].head, sorted[i].len), sorted[i].period),
+        }
+    }
+
+    /// How the key `i`-th in key order here compares with the key `j`-th in `other`.
+    fn cmp_at(&self, i: usize, other: &Keys, j: usize) -> Ordering {
+        let ((a, p), (b, q)) = (self.head_at(i), other.head_at(j));
+        by_heads(a, b, || self.name_at(i).cmp(other.name_at(j))).then(p.cmp(&q))
+    }
+
     /// Whether each row's key is on another row too (in row order); None when no key is.
     pub(super) fn repeated(&self) -> Option<BooleanChunked> {
         let n = self.len();
         let mut repeated = vec![false; n];
         let mut any = false;
         for i in 1..n {
-            if self.key_at(i - 1) == self.key_at(i) {
+            if self.cmp_at(i - 1, self, i) == Ordering::Equal {
                 repeated[self.row(i - 1)] = true;
                 repeated[self.row(i)] = true;
                 any = true;
@@ -113,9 +146,24 @@ impl Keys {
     /// How many entities.
     pub(super) fn entities(&self) -> u64 {
         let n = self.len();
-        let name = |i| self.names().value(self.row(i));
-        (0..n).filter(|&i| i == 0 || name(i - 1) != name(i)).count() as u64
+        let same = |i: usize| {
+            let (a, b) = (self.head_at(i - 1).0, self.head_at(i).0);
+            by_heads(a, b, || self.name_at(i - 1).cmp(self.name_at(i))) == Ordering::Equal
+        };
+        (0..n).filter(|&i| i == 0 || !same(i)).count() as u64
     }
+}
+
+/// How two names compare by their heads, their bytes (`names`) only where the heads cannot
+/// tell: equal first eight bytes and one name longer than eight.
+fn by_heads(a: (u64, u8), b: (u64, u8), names: impl FnOnce() -> Ordering) -> Ordering {
+    a.0.cmp(&b.0).then_with(|| {
+        if a.1 <= 8 && b.1 <= 8 {
+            a.1.cmp(&b.1)
+        } else {
+            names()
+        }
+    })
 }
 
 /// Each firm-year of either vintage (keys unique on each side), by one merge in key order.
@@ -149,10 +197,11 @@ pub(super) fn merged(old: &Keys, new: &Keys, e: &str, p: &str) -> Result<Merged>
     let (mut i, mut j) = (0, 0);
     while i < a || j < b {
         let order = match (i < a, j < b) {
-            (true, true) => old.key_at(i).cmp(&new.key_at(j)),
+            (true, true) => old.cmp_at(i, new, j),
             (true, false) => Ordering::Less,
             _ => Ordering::Greater,
         };
+        // A key in both is read from the old vintage's side.
         let (key, row_old, row_new) = match order {
             Ordering::Less => (old.key_at(i), Some(old.row(i)), None),
             Ordering::Greater => (new.key_at(j), None, Some(new.row(j))),
@@ -257,7 +306,7 @@ mod tests {
         Ok(())
     }
 
-    /// Names longer than the eight bytes of the prefix, names that are prefixes of others,
+    /// Names longer than the eight bytes of the head, names that are prefixes of others,
     /// and a byte of zero, shuffled: sorted as the engine sorts the keys, repeated keys found
     /// by row, entities counted. Worked by hand, and against the engine's sort.
     #[test]
