@@ -17,7 +17,9 @@ use crate::config::InputConfig;
 pub use crate::config::{CompareConfig, Side, Tolerance};
 use crate::report::{level, strings, Block, Page, Section};
 use crate::{Error, Result};
+use cells::{gather, Kind};
 
+mod cells;
 mod page;
 mod pairs;
 
@@ -281,29 +283,6 @@ fn numeric(dtype: &DataType) -> bool {
     dtype.is_primitive_numeric() || dtype.is_bool()
 }
 
-/// How a shared column's cells are compared.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-enum Kind {
-    /// Numbers on both sides: within the tolerance.
-    Number,
-    /// Text on both sides (or another type): exactly.
-    Text,
-    /// Numbers on one side and text on the other (a text cell in one vintage's column turns
-    /// the whole column to text when it is read): cells that read as numbers on both sides
-    /// are compared as numbers, the others as text.
-    Mixed,
-}
-
-impl Kind {
-    fn label(self) -> &'static str {
-        match self {
-            Kind::Number => "number",
-            Kind::Text => "text",
-            Kind::Mixed => "number and text",
-        }
-    }
-}
-
 /// Compare two vintages; returns the summary and the change ledger.
 pub fn compare(old: &Side, new: &Side, tolerance: &Tolerance) -> Result<(Comparison, DataFrame)> {
     let old = vintage(old)?;
@@ -411,99 +390,19 @@ pub fn compare(old: &Side, new: &Side, tolerance: &Tolerance) -> Result<(Compari
             gathered(&new, &at_new, whole_new, "__n")?,
         ])?;
         let kind = kinds[i];
-        let mut typed = typed("__o", kind, old_schema.get(c.as_str()));
-        typed.extend(self::typed("__n", kind, new_schema.get(c.as_str())));
-        let (o, n) = (col("__o"), col("__n"));
-        let (on, nn) = (col("__o#"), col("__n#"));
-        let beyond = |o: Expr, n: Expr| {
-            let (abs, rel) = tolerance.of(c);
-            (n - o.clone()).abs().gt(lit(abs) + lit(rel) * o.abs())
-        };
-        let values = match kind {
-            Kind::Number => beyond(o.clone(), n.clone()),
-            Kind::Text => o.clone().neq(n.clone()),
-            Kind::Mixed => when(on.clone().is_not_null().and(nn.clone().is_not_null()))
-                .then(beyond(on.clone(), nn.clone()))
-                .otherwise(o.clone().neq(n.clone())),
-        };
-        let presence = o.clone().is_null().neq(n.clone().is_null());
-        let changed = presence.or(o
-            .clone()
-            .is_not_null()
-            .and(n.clone().is_not_null())
-            .and(values)
-            .fill_null(false));
-        let cells = frame
-            .lazy()
-            .with_columns(typed)
-            .with_column(changed.alias("__c"))
-            .collect()?;
-        let numbers = match kind {
-            Kind::Number => Some((o.clone(), n.clone())),
-            Kind::Mixed => Some((on, nn)),
-            Kind::Text => None,
-        };
-        let c_ = col("__c");
-        let mut aggs = vec![
-            c_.clone().sum().cast(DataType::UInt64).alias("k"),
-            c_.clone()
-                .and(o.clone().is_not_null())
-                .and(n.clone().is_null())
-                .sum()
-                .cast(DataType::UInt64)
-                .alias("m"),
-            c_.clone()
-                .and(o.clone().is_null())
-                .and(n.clone().is_not_null())
-                .sum()
-                .cast(DataType::UInt64)
-                .alias("p"),
-        ];
-        if let Some((o, n)) = numbers.clone() {
-            aggs.push(
-                (n - o)
-                    .abs()
-                    .filter(c_.clone())
-                    .max()
-                    .cast(DataType::Float64)
-                    .alias("x"),
-            );
-        }
-        let counts = cells.clone().lazy().select(aggs).collect()?;
-        let get =
-            |name: &str| -> Result<u64> { Ok(counts.column(name)?.u64()?.get(0).unwrap_or(0)) };
+        let dtypes = (old_schema.get(c.as_str()), new_schema.get(c.as_str()));
+        let (counted, changed) =
+            cells::changes(frame, c, kind, dtypes, tolerance, (&e, &p), i as u32 + 1)?;
         columns.push(ColumnChanges {
             column: c.clone(),
             derived: old.derived.contains(c) || new.derived.contains(c),
             compared_as: kind.label(),
-            cells_changed: get("k")?,
-            became_missing: get("m")?,
-            became_present: get("p")?,
-            largest_change: match numbers {
-                None => None,
-                Some(_) => counts.column("x")?.f64()?.get(0),
-            },
+            cells_changed: counted.cells_changed,
+            became_missing: counted.became_missing,
+            became_present: counted.became_present,
+            largest_change: counted.largest_change,
         });
-        let difference = match numbers {
-            Some((o, n)) => n - o,
-            None => lit(NULL).cast(DataType::Float64),
-        };
-        ledger.push(
-            cells
-                .lazy()
-                .filter(c_)
-                .select([
-                    col(e.as_str()),
-                    col(p.as_str()),
-                    lit("value changed").alias("change"),
-                    lit(c.as_str()).alias("column"),
-                    o.cast(DataType::String).alias("old"),
-                    n.cast(DataType::String).alias("new"),
-                    difference.alias("difference"),
-                    lit(i as u32 + 1).alias("__order"),
-                ])
-                .collect()?,
-        );
+        ledger.push(changed);
     }
 
     let ledger = concat(
@@ -542,39 +441,6 @@ pub fn compare(old: &Side, new: &Side, tolerance: &Tolerance) -> Result<(Compari
         },
         ledger,
     ))
-}
-
-/// `column`'s rows at `at`, gathered in two halves at once (a gather in another order than
-/// the column's reads memory at random, one thread's work), the halves one chunk each.
-fn gather(column: &Column, at: &IdxCa) -> Result<Column> {
-    let half = at.len() / 2;
-    let (first, second) = (at.slice(0, half), at.slice(half as i64, at.len() - half));
-    let (a, b) = rayon::join(|| column.take(&first), || column.take(&second));
-    let mut gathered = a?;
-    gathered.append(&b?)?;
-    Ok(gathered)
-}
-
-/// A side's cells of one column as compared, under the name `tag` (and `tag#`, the number a
-/// text cell reads as, for a column of numbers on one side and text on the other).
-fn typed(tag: &str, kind: Kind, dtype: Option<&DataType>) -> Vec<Expr> {
-    let x = col(tag);
-    match kind {
-        Kind::Number => vec![x.cast(DataType::Float64)],
-        Kind::Text => vec![x.cast(DataType::String)],
-        Kind::Mixed => {
-            // The text as read, and the number it reads as (none for other text).
-            let number = match dtype {
-                Some(DataType::String) => x
-                    .clone()
-                    .str()
-                    .strip_chars(lit(NULL))
-                    .cast(DataType::Float64),
-                _ => x.clone().cast(DataType::Float64),
-            };
-            vec![x.cast(DataType::String), number.alias(format!("{tag}#"))]
-        }
-    }
 }
 
 /// The change ledger's rows for the firm-years of `pairs` where `filter` holds: added or

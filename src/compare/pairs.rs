@@ -122,8 +122,12 @@ impl Keys {
         }
     }
 
-    /// How the key `i`-th in key order here compares with the key `j`-th in `other`.
+    /// How the key `i`-th in key order here compares with the key `j`-th in `other`: by the
+    /// names' heads where a side is sorted (its heads at hand), else by the names themselves.
     fn cmp_at(&self, i: usize, other: &Keys, j: usize) -> Ordering {
+        if self.sorted.is_none() && other.sorted.is_none() {
+            return self.key_at(i).cmp(&other.key_at(j));
+        }
         let ((a, p), (b, q)) = (self.head_at(i), other.head_at(j));
         by_heads(a, b, || self.name_at(i).cmp(other.name_at(j))).then(p.cmp(&q))
     }
@@ -146,9 +150,12 @@ impl Keys {
     /// How many entities.
     pub(super) fn entities(&self) -> u64 {
         let n = self.len();
-        let same = |i: usize| {
-            let (a, b) = (self.head_at(i - 1).0, self.head_at(i).0);
-            by_heads(a, b, || self.name_at(i - 1).cmp(self.name_at(i))) == Ordering::Equal
+        let same = |i: usize| match &self.sorted {
+            None => self.name_at(i - 1) == self.name_at(i),
+            Some(_) => {
+                let (a, b) = (self.head_at(i - 1).0, self.head_at(i).0);
+                by_heads(a, b, || self.name_at(i - 1).cmp(self.name_at(i))) == Ordering::Equal
+            }
         };
         (0..n).filter(|&i| i == 0 || !same(i)).count() as u64
     }
