@@ -3,6 +3,7 @@
 use std::hash::BuildHasher;
 
 use polars::prelude::*;
+use rayon::prelude::*;
 
 use super::names::N;
 use super::{scalar_f64, Context};
@@ -34,29 +35,38 @@ pub fn alike_entities(ctx: &Context) -> Result<(u64, Vec<Vec<String>>)> {
     const SHOWN: usize = 3;
     let name = ctx.entity;
     let names = ctx.entities.select([name])?;
-    // Mostly there are none: one pass over the names, each trimmed and lowered as the engine
-    // does below (Rust's `trim` and `to_lowercase`), stops at the first whose hash meets
-    // another's; none met, no two are alike.
+    // Mostly there are none: each name, trimmed and lowered as the engine does below (Rust's
+    // `trim` and `to_lowercase`), hashed, on both cores; the hashes sorted, and none equal to
+    // its neighbour, no two are alike. (A hash set of the names, filled one at a time, took
+    // 3.3 s for the 8.85 M names of a 100 M panel: a miss in memory for each.)
     let text = names.column(name)?.cast(&DataType::String)?;
     let state = PlRandomState::default();
-    let mut seen: PlHashSet<u64> = PlHashSet::with_capacity(text.len());
-    let mut lowered = String::new();
-    let met = text.str()?.iter().flatten().any(|id| {
-        let id = id.trim();
-        let key = if id.is_ascii() && !id.bytes().any(|b| b.is_ascii_uppercase()) {
-            id
-        } else {
-            lowered.clear();
-            if id.is_ascii() {
-                lowered.push_str(id);
-                lowered.make_ascii_lowercase();
-            } else {
-                lowered.push_str(&id.to_lowercase());
-            }
-            lowered.as_str()
-        };
-        !seen.insert(state.hash_one(key))
-    });
+    let mut hashes: Vec<u64> = Vec::with_capacity(text.len());
+    for chunk in text.str()?.downcast_iter() {
+        let hashed: Vec<u64> = (0..chunk.len())
+            .into_par_iter()
+            .filter_map(|i| chunk.get(i))
+            .map_init(String::new, |lowered, id| {
+                let id = id.trim();
+                let key = if id.is_ascii() && !id.bytes().any(|b| b.is_ascii_uppercase()) {
+                    id
+                } else {
+                    lowered.clear();
+                    if id.is_ascii() {
+                        lowered.push_str(id);
+                        lowered.make_ascii_lowercase();
+                    } else {
+                        lowered.push_str(&id.to_lowercase());
+                    }
+                    lowered.as_str()
+                };
+                state.hash_one(key)
+            })
+            .collect();
+        hashes.extend(hashed);
+    }
+    hashes.par_sort_unstable();
+    let met = hashes.windows(2).any(|w| w[0] == w[1]);
     if !met {
         return Ok((0, Vec::new()));
     }
