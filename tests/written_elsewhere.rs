@@ -829,3 +829,43 @@ fn formulas_without_saved_values_are_named_not_silently_missing() {
         ])
     );
 }
+
+#[test]
+fn compare_refuses_a_bundle_whose_panel_has_a_firm_year_twice_or_a_row_without_a_key() {
+    // `build` writes one row per firm-year, none without its keys. A bundle whose panel.parquet
+    // another program rewrote with a firm-year on two rows was paired first row with first
+    // row, in no stated way; one with a row without its period, by a join that left it out
+    // unsaid. Both stop now, naming the file. Worked by hand: the three firm-years of `a.csv`;
+    // the panels rewritten by pyarrow.
+    let w = Workdir::new();
+    w.write("a.csv", "f,y,x\nA,1,1\nA,2,2\nB,1,3\n");
+    w.ok(&[
+        "build", "a.csv", "--entity", "f", "--period", "y", "--out", "b",
+    ]);
+    python(
+        w.dir.path(),
+        "import shutil\n\
+         import pyarrow as pa, pyarrow.parquet as pq\n\
+         t = pq.read_table('b/panel.parquet')\n\
+         shutil.copytree('b', 'twice')\n\
+         pq.write_table(pa.concat_tables([t, t.slice(0, 1)]), 'twice/panel.parquet')\n\
+         shutil.copytree('b', 'keyless')\n\
+         i = t.schema.get_field_index('y')\n\
+         y = t.column('y').to_pylist()\n\
+         y[2] = None\n\
+         t = t.set_column(i, 'y', pa.array(y, type=t.schema.field('y').type))\n\
+         pq.write_table(t, 'keyless/panel.parquet')",
+    );
+    for bundle in ["twice", "keyless"] {
+        let error = w.fails(
+            &["compare", "b", bundle],
+            "a row without `f` or `y`, or a firm-year on two rows: not a panel `build` wrote",
+        );
+        assert!(
+            error.contains(&format!("{bundle}/panel.parquet")),
+            "{error}"
+        );
+    }
+    // The bundle as written compares with itself: nothing changed.
+    assert_eq!(w.run(&["compare", "b", "b"]).code, 0);
+}

@@ -1,8 +1,8 @@
 //! `compare`: two vintages of one panel (two raw downloads, or two bundles) side by side.
 //! Firm-years and entities added and removed, columns added and removed, and every cell of
 //! the firm-years in both that changed beyond a tolerance, with a change ledger (CSV) and a
-//! summary in the report formats. The firm-years are paired once (`pairs.rs`: a merge of
-//! sorted keys, or a full join of the keys); then each shared column is gathered from both
+//! summary in the report formats. The firm-years are paired once (`pairs.rs`: a merge of the
+//! two vintages' keys in key order); then each shared column is gathered from both
 //! vintages in the matched order (read as it is where that is its own) and compared, one
 //! column at a time — a bundle's read from its panel.parquet then, its keys alone held
 //! throughout.
@@ -177,13 +177,28 @@ fn bundle_vintage(dir: &Path) -> Result<Vintage> {
         col(period).cast(DataType::Int64),
     ]);
     let schema = lf.collect_schema()?;
-    // The keys now; every other column when it is compared, so that memory holds two columns
-    // of each vintage, not every one.
-    // In one chunk each, which the keys below then share rather than copy.
+    // The keys now (in one chunk each, which `Keys` then shares rather than copies); every
+    // other column when it is compared, so that memory holds two columns of each vintage.
     let mut df = lf.clone().select([col(entity), col(period)]).collect()?;
     df.rechunk_mut_par();
     let rows = df.height() as u64;
-    let keys = pairs::Keys::of(df.column(entity)?, df.column(period)?)?;
+    // `build` writes one row per firm-year, none without a key: a panel that has such rows
+    // was written by something else, and its firm-years cannot be paired.
+    let (e, p) = (df.column(entity)?, df.column(period)?);
+    let keys = match e.null_count() + p.null_count() {
+        0 => Some(pairs::Keys::of(e, p)?).filter(|k| k.repeated().is_none()),
+        _ => None,
+    };
+    let Some(keys) = keys else {
+        return Err(Error::Unreadable {
+            file: panel,
+            at: String::new(),
+            message: format!(
+                "a row without `{entity}` or `{period}`, or a firm-year on two rows: not a \
+                 panel `build` wrote"
+            ),
+        });
+    };
     let entities = keys.entities();
     Ok(Vintage {
         summary: VintageSummary {
