@@ -80,7 +80,8 @@ pub fn read_raw(
         .copied()
         .chain(coded.iter().map(|(name, _, _)| name.as_str()))
         .collect();
-    // Whole numbers read as text and made numbers after, as `load` reads them.
+    // Whole numbers read as text and made numbers after, and a column of decimals with a cell
+    // the reader cannot parse read again as text, as `load` reads them.
     let read = |infer| -> Result<PolarsResult<_>> {
         let lf = scan(source, path, format, infer, csv, &text)?;
         if format != InputFormat::Csv {
@@ -91,15 +92,25 @@ pub fn read_raw(
             .collect_schema()
             .map_err(|e| unreadable(path, format, csv.delimiter, e))?;
         let (_, guessed) = whole::as_text_first(&schema, &[]);
-        let as_text: Vec<&str> = text
+        let mut as_text: Vec<&str> = text
             .iter()
             .copied()
             .chain(guessed.iter().map(|(name, _)| name.as_str()))
             .collect();
-        let lf = scan(source, path, format, infer, csv, &as_text)?;
-        Ok(lf
-            .collect()
-            .and_then(|df| whole::whole_numbers(df, &guessed)))
+        let mut retries = 0;
+        loop {
+            let lf = scan(source, path, format, infer, csv, &as_text)?;
+            match lf.collect() {
+                Ok(df) => return Ok(whole::whole_numbers(df, &guessed)),
+                Err(e) => match whole::unparsable_decimals(&e, &schema) {
+                    Some(i) if retries < whole::RETRIES => {
+                        as_text.extend(schema.get_at_index(i).map(|(name, _)| name.as_str()));
+                        retries += 1;
+                    }
+                    _ => return Ok(Err(e)),
+                },
+            }
+        }
     };
     let (df, coded_further) = match read(Some(INFER_ROWS))? {
         Ok(read) => read,
@@ -270,17 +281,30 @@ pub fn load(
     }
     // Read once. Column types are guessed from the first rows; the columns guessed to be
     // whole numbers are read as text and made numbers after, unless a code written with
-    // leading zeros turns up further down (`whole`). If a later row does not fit another
-    // column (a word in a column of decimals, say), read again guessing from every row.
+    // leading zeros turns up further down (`whole`). A column of decimals with a cell the
+    // reader cannot parse further down (`NA`) is read again as text, for the marker pass; if
+    // a later row does not fit otherwise, read again guessing the types from every row.
     let mut keys = vec![cfg.entity.as_str(), cfg.period.as_str()];
     keys.extend(cfg.rules.file.panel.year_end.as_deref());
     let read_csv = |schema: &Schema| {
-        let (as_read, guessed) = whole::as_text_first(schema, &keys);
-        let mut coded = Vec::new();
-        let df = contiguous::read_csv(source, &as_read, &cfg.csv, ROW, |c| {
-            whole::settle(c, &guessed, &mut coded)
-        })?;
-        Ok((df, coded))
+        let (mut schema, mut retries) = (schema.clone(), 0);
+        loop {
+            let (as_read, guessed) = whole::as_text_first(&schema, &keys);
+            let mut coded = Vec::new();
+            let read = contiguous::read_csv(source, &as_read, &cfg.csv, ROW, |c| {
+                whole::settle(c, &guessed, &mut coded)
+            });
+            match read {
+                Ok(df) => return Ok((df, coded)),
+                Err(e) => match whole::unparsable_decimals(&e, &schema) {
+                    Some(i) if retries < whole::RETRIES => {
+                        schema.set_dtype_at_index(i, DataType::String);
+                        retries += 1;
+                    }
+                    _ => return Err(e),
+                },
+            }
+        }
     };
     let read = match cfg.format {
         InputFormat::Parquet => contiguous::collect(lf, ROW, progress).map(|df| (df, Vec::new())),

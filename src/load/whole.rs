@@ -31,6 +31,28 @@ pub(super) fn as_text_first(
     (as_read, guessed)
 }
 
+/// How many columns of decimals a CSV read takes again as text, one at a time, before the
+/// types are guessed from every row instead.
+pub(super) const RETRIES: usize = 8;
+
+/// The column of `schema` (its index) that the engine's CSV reader named in `e` as holding a
+/// cell it could not parse, when the reader guessed that column to be decimals: a marker such
+/// as `NA` further down than the rows the type was guessed from. Read as text, the column
+/// goes to the marker pass, which reads its numbers and notes its markers — as a read that
+/// guessed the types from every row (a pass over the whole file, then another read of it)
+/// leaves it. None for any other error, or when the reader's words do not name a column by
+/// its number as they do now (`(column number N)`).
+pub(super) fn unparsable_decimals(e: &PolarsError, schema: &Schema) -> Option<usize> {
+    let message = e.to_string();
+    let (_, after) = message.split_once("(column number ")?;
+    let number: usize = after.split_once(')')?.0.parse().ok()?;
+    let index = number.checked_sub(1)?;
+    schema
+        .get_at_index(index)
+        .is_some_and(|(_, dtype)| dtype.is_float())
+        .then_some(index)
+}
+
 /// What one column read as text holds.
 #[derive(Debug)]
 enum Held {
@@ -206,5 +228,30 @@ mod tests {
         c.append(&text(&[Some("6"), Some("007"), Some("08")]))
             .unwrap();
         assert!(matches!(held(&c), Held::Codes(7, v) if v == "007"));
+    }
+
+    /// The engine's reader names the column of a cell it cannot parse by its number: a file
+    /// whose `x` (the third column) is read as decimals and holds `NA` on its last row. Should
+    /// a new version of the engine word its error otherwise, this fails, and the slower read
+    /// that guesses the types from every row would be taken instead.
+    #[test]
+    fn the_reader_names_the_column_it_could_not_parse() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("late.csv");
+        std::fs::write(&path, "f,y,x,note\nA,1,1.5,a\nA,2,NA,b\n").unwrap();
+        let schema = Schema::from_iter([
+            Field::new("f".into(), DataType::String),
+            Field::new("y".into(), DataType::Int64),
+            Field::new("x".into(), DataType::Float64),
+            Field::new("note".into(), DataType::String),
+        ]);
+        let csv = crate::config::CsvOptions::default();
+        let e = super::super::contiguous::read_csv(&path, &schema, &csv, "row", Ok).unwrap_err();
+        assert_eq!(unparsable_decimals(&e, &schema), Some(2), "{e}");
+        // A column not of decimals is not taken again as text.
+        let mut ints = schema.clone();
+        ints.set_dtype_at_index(2, DataType::Int64);
+        let e = super::super::contiguous::read_csv(&path, &ints, &csv, "row", Ok).unwrap_err();
+        assert_eq!(unparsable_decimals(&e, &ints), None, "{e}");
     }
 }
