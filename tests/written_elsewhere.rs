@@ -456,6 +456,66 @@ fn codes_written_with_leading_zeros_keep_them() {
     }
 }
 
+/// A panel [`build_late`] built: its report, the report's input notes, panel.csv's rows.
+struct Built {
+    report: serde_json::Value,
+    notes: Vec<String>,
+    rows: Vec<Vec<String>>,
+}
+
+impl Built {
+    fn cell(&self, row: usize, name: &str) -> &str {
+        let at = self.rows[0].iter().position(|c| c == name).unwrap();
+        &self.rows[row][at]
+    }
+
+    fn noted(&self, note: &str) {
+        assert!(self.notes.iter().any(|n| n == note), "{:?}", self.notes);
+    }
+}
+
+/// `build` of a panel of 1,000 firms of 11 years — past the 10,000 rows the reader guesses
+/// column types from — with a table joined on its keys: `cells(row)` gives a panel row's cells
+/// after the keys (their names in `header`; data rows counted from 1), `joined(row)` the cell
+/// of the joined table `file`'s one other column, `column`.
+fn build_late(
+    header: &str,
+    cells: impl Fn(usize) -> String,
+    (file, column): (&str, &str),
+    joined: impl Fn(usize) -> &'static str,
+) -> Built {
+    let w = Workdir::new();
+    let mut panel = format!("firm,year,{header}\n");
+    let mut table = format!("firm,year,{column}\n");
+    for i in 0..11_000 {
+        let (firm, year, row) = (i / 11, 2000 + i % 11, i + 1);
+        panel.push_str(&format!("F{firm:04},{year},{}\n", cells(row)));
+        table.push_str(&format!("F{firm:04},{year},{}\n", joined(row)));
+    }
+    w.write("panel.csv", &panel);
+    w.write(file, &table);
+    w.write(
+        "rules.toml",
+        &format!(
+            "[panel]\nentity = \"firm\"\nperiod = \"year\"\n\n[[join]]\nfile = \"{file}\"\n\
+             on = [\"firm\", \"year\"]\n"
+        ),
+    );
+    w.ok(&["build", "panel.csv", "--rules", "rules.toml", "--out", "b"]);
+    let report = w.json("b/report.json");
+    let notes = notes(&report).iter().map(|n| n.to_string()).collect();
+    let csv = std::fs::read_to_string(w.path("b/panel.csv")).unwrap();
+    let rows = csv
+        .lines()
+        .map(|l| l.split(',').map(str::to_string).collect())
+        .collect();
+    Built {
+        report,
+        notes,
+        rows,
+    }
+}
+
 #[test]
 fn a_code_with_leading_zeros_far_down_the_file_keeps_them() {
     // The reader guesses a column's type from its first 10,000 rows: a column of codes whose
@@ -467,66 +527,51 @@ fn a_code_with_leading_zeros_far_down_the_file_keeps_them() {
     // `0100` on data row 10,500; `staff` 10 + row mod 7 but `2.5` on data row 10,900 (read as
     // decimals, as before); `founded` whole numbers throughout (still whole numbers); the
     // joined table's `code` `0042` on its data row 10,200 only.
-    let w = Workdir::new();
-    let mut panel = String::from("firm,year,sic,staff,founded\n");
-    let mut table = String::from("firm,year,code\n");
-    for i in 0..11_000 {
-        let (firm, year) = (i / 11, 2000 + i % 11);
-        let row = i + 1;
-        let sic = if row == 10_500 {
-            "0100".to_string()
-        } else {
-            (1000 + firm % 50).to_string()
-        };
-        let staff = if row == 10_900 {
-            "2.5".to_string()
-        } else {
-            (10 + row % 7).to_string()
-        };
-        panel.push_str(&format!(
-            "F{firm:04},{year},{sic},{staff},{}\n",
-            1950 + firm % 40
-        ));
-        let code = if row == 10_200 { "0042" } else { "42" };
-        table.push_str(&format!("F{firm:04},{year},{code}\n"));
-    }
-    w.write("panel.csv", &panel);
-    w.write("codes.csv", &table);
-    w.write(
-        "rules.toml",
-        "[panel]\nentity = \"firm\"\nperiod = \"year\"\n\n[[join]]\nfile = \"codes.csv\"\n\
-         on = [\"firm\", \"year\"]\n",
+    let b = build_late(
+        "sic,staff,founded",
+        |row| {
+            let firm = (row - 1) / 11;
+            let sic = match row {
+                10_500 => "0100".to_string(),
+                _ => (1000 + firm % 50).to_string(),
+            };
+            let staff = match row {
+                10_900 => "2.5".to_string(),
+                _ => (10 + row % 7).to_string(),
+            };
+            format!("{sic},{staff},{}", 1950 + firm % 40)
+        },
+        ("codes.csv", "code"),
+        |row| if row == 10_200 { "0042" } else { "42" },
     );
-    w.ok(&["build", "panel.csv", "--rules", "rules.toml", "--out", "b"]);
-    let report = w.json("b/report.json");
-    let notes = notes(&report);
-    for note in [
+    b.noted(
         "column `sic` read as text: its values are codes written with leading zeros (data row \
          10500 holds `0100`)",
+    );
+    b.noted(
         "joined `codes.csv`, column `code` read as text: its values are codes written with \
          leading zeros (data row 10200 holds `0042`)",
-    ] {
-        assert!(notes.contains(&note), "{notes:?}");
-    }
-    let csv = std::fs::read_to_string(w.path("b/panel.csv")).unwrap();
-    let rows: Vec<Vec<&str>> = csv.lines().map(|l| l.split(',').collect()).collect();
-    let at = |name: &str| rows[0].iter().position(|c| *c == name).unwrap();
-    let (sic, staff, founded, code) = (at("sic"), at("staff"), at("founded"), at("code"));
-    assert_eq!(rows[10_500][sic], "0100");
-    assert_eq!(rows[10_499][sic], "1004", "firm 954 is 1000 + 954 mod 50");
-    assert_eq!(rows[10_900][staff], "2.5");
+    );
+    assert_eq!(b.cell(10_500, "sic"), "0100");
     assert_eq!(
-        rows[10_901][staff], "12.0",
+        b.cell(10_499, "sic"),
+        "1004",
+        "firm 954 is 1000 + 954 mod 50"
+    );
+    assert_eq!(b.cell(10_900, "staff"), "2.5");
+    assert_eq!(
+        b.cell(10_901, "staff"),
+        "12.0",
         "10 + 10,901 mod 7 (7 × 1,557 = 10,899)"
     );
-    assert_eq!(rows[10_200][code], "0042");
-    assert_eq!(rows[1][code], "42");
-    assert_eq!(rows[1][founded], "1950");
+    assert_eq!(b.cell(10_200, "code"), "0042");
+    assert_eq!(b.cell(1, "code"), "42");
+    assert_eq!(b.cell(1, "founded"), "1950");
     // Averaged as a number: the mean of 1950 + firm mod 40 over 1,000 firms of 11 rows.
-    let mean = line(&report, "founded")["mean"].as_f64().unwrap();
+    let mean = line(&b.report, "founded")["mean"].as_f64().unwrap();
     let worked = (0..1000).map(|f| 1950.0 + (f % 40) as f64).sum::<f64>() / 1000.0;
     assert!((mean - worked).abs() < 1e-9, "{mean} against {worked}");
-    assert!(line(&report, "sic")["mean"].is_null());
+    assert!(line(&b.report, "sic")["mean"].is_null());
 }
 
 #[test]
@@ -538,33 +583,22 @@ fn a_missing_value_marker_far_down_a_column_of_decimals_is_read_and_noted() {
     // years, `x` = row / 4 but `NA` on data row 10,500, `z` = row mod 5 + 0.5 but `n/a` on
     // data row 10,800 (two columns: two reads again); the joined table's `w` = 0.25 but `NA`
     // on its data row 10,200.
-    let w = Workdir::new();
-    let mut panel = String::from("firm,year,x,z\n");
-    let mut table = String::from("firm,year,w\n");
-    for i in 0..11_000 {
-        let (firm, year, row) = (i / 11, 2000 + i % 11, i + 1);
-        let x = match row {
-            10_500 => "NA".to_string(),
-            _ => format!("{}", row as f64 / 4.0),
-        };
-        let z = match row {
-            10_800 => "n/a".to_string(),
-            _ => format!("{}.5", row % 5),
-        };
-        panel.push_str(&format!("F{firm:04},{year},{x},{z}\n"));
-        let weight = if row == 10_200 { "NA" } else { "0.25" };
-        table.push_str(&format!("F{firm:04},{year},{weight}\n"));
-    }
-    w.write("panel.csv", &panel);
-    w.write("table.csv", &table);
-    w.write(
-        "rules.toml",
-        "[panel]\nentity = \"firm\"\nperiod = \"year\"\n\n[[join]]\nfile = \"table.csv\"\n\
-         on = [\"firm\", \"year\"]\n",
+    let b = build_late(
+        "x,z",
+        |row| {
+            let x = match row {
+                10_500 => "NA".to_string(),
+                _ => format!("{}", row as f64 / 4.0),
+            };
+            let z = match row {
+                10_800 => "n/a".to_string(),
+                _ => format!("{}.5", row % 5),
+            };
+            format!("{x},{z}")
+        },
+        ("table.csv", "w"),
+        |row| if row == 10_200 { "NA" } else { "0.25" },
     );
-    w.ok(&["build", "panel.csv", "--rules", "rules.toml", "--out", "b"]);
-    let report = w.json("b/report.json");
-    let notes = notes(&report);
     for note in [
         "column `x`: 1 cell marking a missing number (`NA` 1) read as missing, the column as \
          numbers",
@@ -573,24 +607,20 @@ fn a_missing_value_marker_far_down_a_column_of_decimals_is_read_and_noted() {
         "joined `table.csv`, column `w`: 1 cell marking a missing number (`NA` 1) read as \
          missing, the column as numbers",
     ] {
-        assert!(notes.contains(&note), "{notes:?}");
+        b.noted(note);
     }
     // The mean of row / 4 over the 10,999 rows but 10,500: (60,505,500 - 10,500) / 4 / 10,999.
-    let x = line(&report, "x");
     let worked = (60_505_500.0 - 10_500.0) / 4.0 / 10_999.0;
-    let mean = x["mean"].as_f64().unwrap();
+    let mean = line(&b.report, "x")["mean"].as_f64().unwrap();
     assert!(
         (mean - worked).abs() < 1e-9 * worked,
         "{mean} against {worked}"
     );
-    let csv = std::fs::read_to_string(w.path("b/panel.csv")).unwrap();
-    let rows: Vec<Vec<&str>> = csv.lines().map(|l| l.split(',').collect()).collect();
-    let at = |name: &str| rows[0].iter().position(|c| *c == name).unwrap();
-    assert_eq!(rows[10_500][at("x")], "");
-    assert_eq!(rows[10_499][at("x")], "2624.75");
-    assert_eq!(rows[10_800][at("z")], "");
-    assert_eq!(rows[10_200][at("w")], "");
-    assert_eq!(rows[10_201][at("w")], "0.25");
+    assert_eq!(b.cell(10_500, "x"), "");
+    assert_eq!(b.cell(10_499, "x"), "2624.75");
+    assert_eq!(b.cell(10_800, "z"), "");
+    assert_eq!(b.cell(10_200, "w"), "");
+    assert_eq!(b.cell(10_201, "w"), "0.25");
 }
 
 #[test]
