@@ -223,12 +223,19 @@ fn bundle_vintage(dir: &Path) -> Result<Vintage> {
 fn raw_vintage(cfg: &InputConfig) -> Result<Vintage> {
     let loaded = crate::load::load(cfg, &[], None)?;
     let (e, p) = (cfg.entity.as_str(), cfg.period.as_str());
-    let df = loaded.df.drop(crate::load::ROW)?;
-    let keyed = df
-        .lazy()
-        .filter(col(e).is_not_null().and(col(p).is_not_null()))
-        .collect()?;
-    let rows_without_key = loaded.rows - keyed.height() as u64;
+    let rows_read = loaded.rows;
+    let mut df = loaded.df;
+    df.drop_in_place(crate::load::ROW)?;
+    // Rows without a key left out: a copy of the file only when there are some.
+    let keyless = df.column(e)?.null_count() + df.column(p)?.null_count() > 0;
+    let keyed = match keyless {
+        false => df,
+        true => df
+            .lazy()
+            .filter(col(e).is_not_null().and(col(p).is_not_null()))
+            .collect()?,
+    };
+    let rows_without_key = rows_read - keyed.height() as u64;
     // Exact copies are looked for among the rows whose key repeats only (whole rows hashed
     // there, the keys alone sorted elsewhere), the first of each kept in place.
     let keys = pairs::Keys::of(keyed.column(e)?, keyed.column(p)?)?;
@@ -265,13 +272,13 @@ fn raw_vintage(cfg: &InputConfig) -> Result<Vintage> {
             (unique, keys)
         }
     };
-    let exact_copies = loaded.rows - rows_without_key - unique.height() as u64;
+    let exact_copies = rows_read - rows_without_key - unique.height() as u64;
     let entities = keys.entities();
     Ok(Vintage {
         summary: VintageSummary {
             path: cfg.path.display().to_string(),
             kind: "raw file",
-            rows_read: loaded.rows,
+            rows_read,
             rows_without_key,
             exact_copies,
             firm_years: unique.height() as u64,
