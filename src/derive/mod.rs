@@ -3,6 +3,8 @@
 //! how many nulls each reason produced.
 
 use std::collections::{BTreeMap, BTreeSet};
+use std::sync::atomic::AtomicU64;
+use std::sync::Arc;
 
 use polars::prelude::*;
 
@@ -12,8 +14,15 @@ use crate::rules::{DeriveRule, Origin, Rules, CANONICAL_COLUMNS};
 use crate::{Error, Result};
 
 mod nulls;
+mod settle;
 
 use nulls::not_finite_name;
+use settle::settled;
+
+/// Rows of each derived float64 variable made missing for not being finite while the plan's
+/// frame was collected: a value, no null condition true (the counts [`Plan::null_counts`]
+/// reads; a variable of another type has a hidden column of flags instead).
+pub type NotFinite = BTreeMap<String, Arc<AtomicU64>>;
 
 /// The reason counted when a value is null and no declared condition explains it.
 pub const INPUT_MISSING: &str = "an input is missing (or the earlier period is absent)";
@@ -137,7 +146,8 @@ impl Plan {
     }
 
     /// Add every derived column (and the hidden shifted columns they read) to `lf`.
-    /// Returns the frame and the hidden column names, to drop after counting.
+    /// Returns the frame, the hidden column names, to drop after counting, and the counts of
+    /// rows made missing for not being finite (filled in as the frame is collected).
     ///
     /// `layout` says whether `lf` is sorted by entity and period with unique keys; then a
     /// shifted column is read from the few rows just before (or after) each row, otherwise by
@@ -148,8 +158,9 @@ impl Plan {
         entity: &str,
         period: &str,
         layout: Layout,
-    ) -> (LazyFrame, Vec<String>) {
+    ) -> (LazyFrame, Vec<String>, NotFinite) {
         let mut hidden: Vec<String> = Vec::new();
+        let mut not_finite = NotFinite::new();
         // The variables level by level (a variable's level is one above the highest of the
         // derived variables it reads): the columns of one level go into one step, which the
         // engine evaluates in parallel; their shifted inputs into one step before it.
@@ -181,38 +192,41 @@ impl Plan {
                 .iter()
                 .map(|var| var.value.expr.clone().alias(var.name.as_str()))
                 .collect();
-            let floats = lf
+            let types = lf
                 .clone()
                 .with_columns(plain)
                 .collect_schema()
                 .map(|schema| {
                     level
                         .iter()
-                        .map(|var| schema.get(var.name.as_str()).is_some_and(|d| d.is_float()))
+                        .map(|var| schema.get(var.name.as_str()).cloned())
                         .collect::<Vec<_>>()
                 })
-                .unwrap_or_else(|_| vec![false; level.len()]);
+                .unwrap_or_else(|_| vec![None; level.len()]);
             let mut values: Vec<Expr> = Vec::new();
-            for (var, float) in level.iter().zip(floats) {
+            for (var, dtype) in level.iter().zip(types) {
                 let expr = var.value.expr.clone();
-                // One selection for every reason to be missing (a second would copy the
-                // column again); the rows that were not finite kept as flags for the counts.
+                let float = dtype.as_ref().is_some_and(DataType::is_float);
                 // A lag or lead is its column's value as it stands (a derived one already
                 // finite): no second look, which would evaluate the shift again.
                 let copied = matches!(expr, Expr::Column(_));
-                let not_finite =
+                if dtype == Some(DataType::Float64) && !copied {
+                    // Its rows made missing in place, the not-finite ones counted on the way.
+                    let count = Arc::new(AtomicU64::new(0));
+                    not_finite.insert(var.name.clone(), count.clone());
+                    values.push(settled(expr, var.any_condition(), count).alias(var.name.as_str()));
+                    continue;
+                }
+                // One selection for every reason to be missing (a second would copy the
+                // column again); the rows that were not finite kept as flags for the counts.
+                let flag =
                     (float && !copied).then(|| expr.clone().is_finite().not().fill_null(false));
-                if let Some(flag) = &not_finite {
+                if let Some(flag) = &flag {
                     let name = not_finite_name(&var.name);
                     values.push(flag.clone().alias(name.as_str()));
                     hidden.push(name);
                 }
-                let value = match var
-                    .any_condition()
-                    .into_iter()
-                    .chain(not_finite)
-                    .reduce(Expr::or)
-                {
+                let value = match var.any_condition().into_iter().chain(flag).reduce(Expr::or) {
                     Some(cond) => when(cond).then(lit(NULL)).otherwise(expr),
                     None => expr,
                 };
@@ -220,7 +234,7 @@ impl Plan {
             }
             lf = lf.with_columns(values);
         }
-        (lf, hidden)
+        (lf, hidden, not_finite)
     }
 
     /// The variables grouped by level, in evaluation order within each: level 0 reads no
@@ -426,7 +440,7 @@ mod tests {
             .map(|c| c.to_string())
             .collect();
         let plan = Plan::new(rules, &raw).unwrap();
-        let (lf, _) = plan.apply(df.lazy(), "firm", "year", Layout::Any);
+        let (lf, _, _) = plan.apply(df.lazy(), "firm", "year", Layout::Any);
         lf.collect().unwrap()
     }
 
@@ -484,11 +498,11 @@ mod tests {
         let names: Vec<&str> = plan.vars.iter().map(|v| v.name.as_str()).collect();
         assert_eq!(names, ["size"], "only size has all its inputs");
         assert!(plan.skipped.iter().any(|s| s.name == "leverage"));
-        let (lf, _) = plan.apply(df.lazy(), "firm", "year", Layout::Any);
+        let (lf, _, not_finite) = plan.apply(df.lazy(), "firm", "year", Layout::Any);
         let out = lf.collect().unwrap();
         let size: Vec<Option<f64>> = out.column("size").unwrap().f64().unwrap().iter().collect();
         assert_eq!(size, [Some(100f64.ln()), None, None, Some(50f64.ln())]);
-        let s = &plan.null_counts(&out).unwrap()[0];
+        let s = &plan.null_counts(&out, &not_finite).unwrap()[0];
         assert_eq!((s.non_null, s.nulls), (2, 2));
         assert_eq!(s.null_reasons[0].rows, 1, "total assets not positive");
         assert_eq!(s.null_reasons[1].rows, 1, "input missing");

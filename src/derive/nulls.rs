@@ -2,13 +2,20 @@
 
 use polars::prelude::*;
 
-use super::{Plan, INPUT_MISSING, NOT_FINITE};
+use std::sync::atomic::Ordering;
+
+use super::{NotFinite, Plan, INPUT_MISSING, NOT_FINITE};
 use crate::report::{DerivedSummary, NullCount};
 use crate::Result;
 
 impl Plan {
-    /// Per variable: non-null values and nulls by reason (first matching condition wins).
-    pub fn null_counts(&self, df: &DataFrame) -> Result<Vec<DerivedSummary>> {
+    /// Per variable: non-null values and nulls by reason (first matching condition wins), from
+    /// `df` as [`Plan::apply`] made it and the counts of values not finite it gave beside.
+    pub fn null_counts(
+        &self,
+        df: &DataFrame,
+        not_finite: &NotFinite,
+    ) -> Result<Vec<DerivedSummary>> {
         let mut aggs = Vec::new();
         for (i, var) in self.vars.iter().enumerate() {
             let name = var.name.as_str();
@@ -57,20 +64,30 @@ impl Plan {
                     rows: get(format!("{i}_{j}"))?,
                 });
             }
+            // The rows made missing for not being finite, from the flags or counted as the
+            // values were made; the nulls no condition explains hold them too in the second
+            // case (rows not finite had a value, so the two are apart).
+            let (finite, input) = match not_finite.get(&var.name) {
+                Some(count) => {
+                    let rows = count.load(Ordering::Relaxed);
+                    (rows, get(format!("{i}_input"))?.saturating_sub(rows))
+                }
+                None if df.schema().contains(&not_finite_name(&var.name)) => {
+                    (get(format!("{i}_finite"))?, get(format!("{i}_input"))?)
+                }
+                None => (0, get(format!("{i}_input"))?),
+            };
             // Listed only when it happened, so that a report without such values reads as
             // before.
-            if df.schema().contains(&not_finite_name(&var.name)) {
-                let rows = get(format!("{i}_finite"))?;
-                if rows > 0 {
-                    nulls.push(NullCount {
-                        reason: NOT_FINITE.to_string(),
-                        rows,
-                    });
-                }
+            if finite > 0 {
+                nulls.push(NullCount {
+                    reason: NOT_FINITE.to_string(),
+                    rows: finite,
+                });
             }
             nulls.push(NullCount {
                 reason: INPUT_MISSING.to_string(),
-                rows: get(format!("{i}_input"))?,
+                rows: input,
             });
             out.push(DerivedSummary {
                 name: var.name.clone(),

@@ -15,14 +15,15 @@ pub(super) fn derive(
 ) -> Result<(DataFrame, Vec<crate::report::DerivedSummary>)> {
     // Sorted by entity, period and row since the key steps: joins keep the panel's order,
     // repairs and rules only filter or change cells.
-    let (lf, hidden) = plan.apply(panel.clone().lazy(), &input.entity, &input.period, layout);
+    let (lf, hidden, not_finite) =
+        plan.apply(panel.clone().lazy(), &input.entity, &input.period, layout);
     let with_hidden = match lf.collect() {
         Ok(df) => df,
         Err(e) => return Err(culprit(&panel, plan, layout, input).unwrap_or(Error::Polars(e))),
     };
     // Kept only to trace a failure: its columns not held past this point.
     drop(panel);
-    let derived = plan.null_counts(&with_hidden)?;
+    let derived = plan.null_counts(&with_hidden, &not_finite)?;
     let mut order = vec![col(ROW)];
     order.extend(columns.iter().map(|c| col(c.as_str())));
     order.extend(plan.vars.iter().map(|v| col(v.name.as_str())));

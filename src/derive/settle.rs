@@ -1,0 +1,170 @@
+//! A derived number made missing where one of its null conditions holds or where it is not
+//! finite, in place: the values the expression computed are kept as they are and only which
+//! rows have one changes (a bit a row), instead of a second column of values chosen row by row
+//! and a column of flags built a value at a time. The rows made missing for not being finite
+//! are counted on the way, for the derived variable's nulls by reason.
+
+use std::sync::atomic::{AtomicU64, Ordering};
+use std::sync::Arc;
+
+use polars::prelude::*;
+use polars_arrow::bitmap::Bitmap;
+
+/// `value` (a float64 expression) missing where `condition` (its null conditions joined by
+/// OR, a null counting as false) is true or where it is not a finite number. `not_finite`
+/// counts the rows made missing only for not being finite: a value, no condition true.
+pub(super) fn settled(value: Expr, condition: Option<Expr>, not_finite: Arc<AtomicU64>) -> Expr {
+    let arguments: Vec<Expr> = condition.into_iter().collect();
+    value.map_many(
+        move |columns: &mut [Column]| {
+            let (column, count) = settle(columns)?;
+            not_finite.fetch_add(count, Ordering::Relaxed);
+            Ok(column)
+        },
+        &arguments,
+        |_, fields| Ok(Field::new(fields[0].name().clone(), DataType::Float64)),
+    )
+}
+
+/// The first column (float64) with its rows missing where the second (a condition, if given)
+/// is true or where its value is not finite; and how many rows only the second reason made
+/// missing.
+fn settle(columns: &[Column]) -> PolarsResult<(Column, u64)> {
+    let mut x = columns[0].cast(&DataType::Float64)?;
+    let mut condition = match columns.get(1) {
+        Some(c) => Some(c.cast(&DataType::Boolean)?),
+        None => None,
+    };
+    // A constant on either side is as long as the other.
+    let rows = x.len().max(condition.as_ref().map_or(0, Column::len));
+    if x.len() == 1 && rows > 1 {
+        x = x.new_from_index(0, rows);
+    }
+    if let Some(c) = condition.as_mut().filter(|c| c.len() == 1 && rows > 1) {
+        *c = c.new_from_index(0, rows);
+    }
+    let x = x.f64()?.rechunk();
+    let name = x.name().clone();
+    let Some(values) = x.downcast_iter().next() else {
+        return Ok((x.into_owned().into_column(), 0));
+    };
+    // The rows that have a value and no condition true.
+    let mut keep = values
+        .validity()
+        .cloned()
+        .unwrap_or_else(|| Bitmap::new_with_value(true, rows));
+    if let Some(condition) = &condition {
+        let condition = condition.bool()?.rechunk();
+        let first = condition.downcast_iter().next();
+        if let Some(c) = first {
+            let holds = match c.validity() {
+                Some(known) => c.values() & known,
+                None => c.values().clone(),
+            };
+            keep = &keep & &!&holds;
+        }
+    }
+    let kept = &keep & &finite(values.values());
+    let count = (keep.set_bits() - kept.set_bits()) as u64;
+    let validity = (kept.unset_bits() > 0).then_some(kept);
+    let out = values.clone().with_validity(validity);
+    Ok((Float64Chunked::with_chunk(name, out).into_column(), count))
+}
+
+/// A bit a value: set where it is a finite number, eight values to a byte.
+fn finite(values: &[f64]) -> Bitmap {
+    let bytes: Vec<u8> = values
+        .chunks(8)
+        .map(|eight| {
+            eight
+                .iter()
+                .enumerate()
+                .fold(0u8, |byte, (i, v)| byte | (u8::from(v.is_finite()) << i))
+        })
+        .collect();
+    Bitmap::from_u8_vec(bytes, values.len())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Each row's outcome written out by hand: a finite value with no condition kept, a
+    /// condition true (or a value missing) makes it missing, a condition missing counts as
+    /// false, NaN and either infinity are made missing and counted only when no condition
+    /// holds; the values kept are the same bits. Nine rows, so the bits span two bytes.
+    #[test]
+    fn rows_made_missing_by_a_condition_or_for_not_being_finite() {
+        let x = Float64Chunked::from_iter_options(
+            "x".into(),
+            [
+                Some(1.5),
+                Some(f64::NAN),
+                Some(f64::INFINITY),
+                Some(f64::NEG_INFINITY),
+                None,
+                Some(-0.0),
+                Some(2.0),
+                Some(f64::INFINITY),
+                Some(7.25),
+            ]
+            .into_iter(),
+        );
+        let condition = BooleanChunked::from_iter_options(
+            "c".into(),
+            [
+                Some(false),
+                Some(false),
+                Some(true),
+                None,
+                Some(false),
+                None,
+                Some(true),
+                Some(false),
+                Some(false),
+            ]
+            .into_iter(),
+        );
+        let (out, count) = settle(&[x.into_column(), condition.into_column()]).unwrap();
+        let got: Vec<Option<u64>> = out
+            .f64()
+            .unwrap()
+            .iter()
+            .map(|v| v.map(f64::to_bits))
+            .collect();
+        let want: Vec<Option<u64>> = [
+            Some(1.5),
+            None,
+            None,
+            None,
+            None,
+            Some(-0.0),
+            None,
+            None,
+            Some(7.25),
+        ]
+        .iter()
+        .map(|v: &Option<f64>| v.map(f64::to_bits))
+        .collect();
+        assert_eq!(got, want);
+        // NaN (row 2), -inf with its condition missing (row 4), +inf (row 8); not row 3,
+        // whose condition holds.
+        assert_eq!(count, 3);
+    }
+
+    /// Without a condition, and with a constant on one side.
+    #[test]
+    fn without_a_condition_and_with_a_constant() {
+        let x = Float64Chunked::from_slice("x".into(), &[1.0, f64::NAN, 3.0]);
+        let (out, count) = settle(&[x.into_column()]).unwrap();
+        let got: Vec<Option<f64>> = out.f64().unwrap().iter().collect();
+        assert_eq!(got, [Some(1.0), None, Some(3.0)]);
+        assert_eq!(count, 1);
+        let x = Float64Chunked::from_slice("x".into(), &[f64::INFINITY]);
+        let condition = BooleanChunked::from_slice("c".into(), &[true, false, false]);
+        let (out, count) = settle(&[x.into_column(), condition.into_column()]).unwrap();
+        assert_eq!(out.len(), 3);
+        assert_eq!(out.null_count(), 3);
+        assert_eq!(count, 2);
+    }
+}
