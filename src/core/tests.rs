@@ -59,6 +59,19 @@ fn codes_follow_the_sort_order() {
                 vec![0, 2, 3]
             )
         );
+        // The widest range a table covers (65,535 apart, from a negative period) and the
+        // narrowest it does not: the same codes either way.
+        for (lo, hi) in [(-3, 65_532), (0, 65_536)] {
+            let (e, p, periods, starts) = by_path(
+                vec![Some("a"), Some("a"), Some("b")],
+                vec![Some(hi), Some(lo), Some(lo)],
+                chunked,
+            );
+            assert_eq!(
+                (e, p, periods, starts),
+                (vec![0, 0, 1], vec![1, 0, 0], vec![lo, hi], vec![0, 2, 3])
+            );
+        }
     }
 }
 
