@@ -1,8 +1,8 @@
 //! The derived variables' figures: each one's values and its nulls by reason.
 
-use polars::prelude::*;
-
 use std::sync::atomic::Ordering;
+
+use polars::prelude::*;
 
 use super::{NotFinite, Plan, INPUT_MISSING, NOT_FINITE};
 use crate::report::{DerivedSummary, NullCount};
