@@ -217,27 +217,32 @@ fn key_frames(
     let (mut n, mut first, mut last) = (vec![0i64; ne], vec![0i64; ne], vec![0i64; ne]);
     let (mut spells, mut longest) = (vec![1i64; ne], vec![0i64; ne]);
     for (i, rows) in core.starts.windows(2).enumerate() {
-        let mut previous: Option<i64> = None;
-        for r in rows[0]..rows[1] {
+        // The entity's figures in locals, each written once: the first row starts them, every
+        // later one is a step from the one before (none for a repeated key).
+        let r0 = rows[0];
+        let t0 = core.period_of(r0);
+        if let Some(first_rows) = &mut first_rows {
+            first_rows.push(r0 as IdxSize);
+        }
+        let (mut count, mut runs, mut widest) = (1i64, 1i64, 0i64);
+        let mut previous = t0;
+        for r in r0 + 1..rows[1] {
             let t = core.period_of(r);
-            if previous == Some(t) {
+            if t == previous {
                 first_rows.get_or_insert_with(|| (0..r as IdxSize).collect());
                 continue;
             }
-            let gap = previous.map(|p| t - p);
             if let Some(first_rows) = &mut first_rows {
                 first_rows.push(r as IdxSize);
             }
-            if let Some(g) = gap {
-                spells[i] += i64::from(g > 1);
-                longest[i] = longest[i].max(g - 1);
-            } else {
-                first[i] = t;
-            }
-            n[i] += 1;
-            last[i] = t;
-            previous = Some(t);
+            let g = t - previous;
+            runs += i64::from(g > 1);
+            widest = widest.max(g - 1);
+            count += 1;
+            previous = t;
         }
+        (n[i], first[i], last[i]) = (count, t0, previous);
+        (spells[i], longest[i]) = (runs, widest);
     }
     let key_columns = df.select([entity, period])?;
     let keys = match first_rows {
