@@ -16,12 +16,11 @@ use crate::{Error, Result};
 mod nulls;
 mod settle;
 
-use nulls::not_finite_name;
 use settle::settled;
 
-/// Rows of each derived float64 variable made missing for not being finite while the plan's
+/// Rows of each derived float variable made missing for not being finite while the plan's
 /// frame was collected: a value, no null condition true (the counts [`Plan::null_counts`]
-/// reads; a variable of another type has a hidden column of flags instead).
+/// reads).
 pub type NotFinite = BTreeMap<String, Arc<AtomicU64>>;
 
 /// The reason counted when a value is null and no declared condition explains it.
@@ -206,29 +205,19 @@ impl Plan {
             let mut values: Vec<Expr> = Vec::new();
             for (var, dtype) in level.iter().zip(types) {
                 let expr = var.value.expr.clone();
-                let float = dtype.as_ref().is_some_and(DataType::is_float);
                 // A lag or lead is its column's value as it stands (a derived one already
                 // finite): no second look, which would evaluate the shift again.
                 let copied = matches!(expr, Expr::Column(_));
-                if dtype == Some(DataType::Float64) && !copied {
+                let value = if dtype.as_ref().is_some_and(DataType::is_float) && !copied {
                     // Its rows made missing in place, the not-finite ones counted on the way.
                     let count = Arc::new(AtomicU64::new(0));
                     not_finite.insert(var.name.clone(), count.clone());
-                    values.push(settled(expr, var.any_condition(), count).alias(var.name.as_str()));
-                    continue;
-                }
-                // One selection for every reason to be missing (a second would copy the
-                // column again); the rows that were not finite kept as flags for the counts.
-                let flag =
-                    (float && !copied).then(|| expr.clone().is_finite().not().fill_null(false));
-                if let Some(flag) = &flag {
-                    let name = not_finite_name(&var.name);
-                    values.push(flag.clone().alias(name.as_str()));
-                    hidden.push(name);
-                }
-                let value = match var.any_condition().into_iter().chain(flag).reduce(Expr::or) {
-                    Some(cond) => when(cond).then(lit(NULL)).otherwise(expr),
-                    None => expr,
+                    settled(expr, var.any_condition(), count)
+                } else {
+                    match var.any_condition() {
+                        Some(cond) => when(cond).then(lit(NULL)).otherwise(expr),
+                        None => expr,
+                    }
                 };
                 values.push(value.alias(var.name.as_str()));
             }

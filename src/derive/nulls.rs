@@ -31,17 +31,6 @@ impl Plan {
                 );
                 earlier = earlier.or(c);
             }
-            let flags = not_finite_name(name);
-            if df.schema().contains(&flags) {
-                let c = col(flags.as_str());
-                aggs.push(
-                    c.clone()
-                        .and(earlier.clone().not())
-                        .sum()
-                        .alias(format!("{i}_finite")),
-                );
-                earlier = earlier.or(c);
-            }
             aggs.push(
                 col(name)
                     .is_null()
@@ -64,19 +53,13 @@ impl Plan {
                     rows: get(format!("{i}_{j}"))?,
                 });
             }
-            // The rows made missing for not being finite, from the flags or counted as the
-            // values were made; the nulls no condition explains hold them too in the second
-            // case (rows not finite had a value, so the two are apart).
-            let (finite, input) = match not_finite.get(&var.name) {
-                Some(count) => {
-                    let rows = count.load(Ordering::Relaxed);
-                    (rows, get(format!("{i}_input"))?.saturating_sub(rows))
-                }
-                None if df.schema().contains(&not_finite_name(&var.name)) => {
-                    (get(format!("{i}_finite"))?, get(format!("{i}_input"))?)
-                }
-                None => (0, get(format!("{i}_input"))?),
-            };
+            // The rows made missing for not being finite, counted as the values were made; the
+            // nulls no condition explains hold them too (they had a value, so the two are
+            // apart).
+            let finite = not_finite
+                .get(&var.name)
+                .map_or(0, |count| count.load(Ordering::Relaxed));
+            let input = get(format!("{i}_input"))?.saturating_sub(finite);
             // Listed only when it happened, so that a report without such values reads as
             // before.
             if finite > 0 {
@@ -103,9 +86,4 @@ impl Plan {
         }
         Ok(out)
     }
-}
-
-/// The hidden column flagging the rows where derived variable `name` was not finite.
-pub(super) fn not_finite_name(name: &str) -> String {
-    format!("__not_finite__{name}")
 }

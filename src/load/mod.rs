@@ -92,25 +92,32 @@ pub fn read_raw(
             .collect_schema()
             .map_err(|e| unreadable(path, format, csv.delimiter, e))?;
         let (_, guessed) = whole::as_text_first(&schema, &[]);
-        let mut as_text: Vec<&str> = text
+        let as_text: Vec<&str> = text
             .iter()
             .copied()
             .chain(guessed.iter().map(|(name, _)| name.as_str()))
             .collect();
-        let mut retries = 0;
-        loop {
-            let lf = scan(source, path, format, infer, csv, &as_text)?;
-            match lf.collect() {
-                Ok(df) => return Ok(whole::whole_numbers(df, &guessed)),
-                Err(e) => match whole::unparsable_decimals(&e, &schema) {
-                    Some(i) if retries < whole::RETRIES => {
-                        as_text.extend(schema.get_at_index(i).map(|(name, _)| name.as_str()));
-                        retries += 1;
-                    }
-                    _ => return Ok(Err(e)),
-                },
+        let mut failed = None;
+        let read = whole::with_decimals_as_text(&schema, |decimals| {
+            let mut as_text = as_text.clone();
+            as_text.extend(
+                decimals
+                    .iter()
+                    .filter_map(|i| schema.get_at_index(*i).map(|(name, _)| name.as_str())),
+            );
+            match scan(source, path, format, infer, csv, &as_text) {
+                Ok(lf) => lf.collect(),
+                Err(e) => {
+                    failed = Some(e);
+                    // Not the reader's words, so no retry: the scan's own error is returned below.
+                    Err(PolarsError::NoData("not scanned".into()))
+                }
             }
+        });
+        if let Some(e) = failed {
+            return Err(e);
         }
+        Ok(read.and_then(|df| whole::whole_numbers(df, &guessed)))
     };
     let (df, coded_further) = match read(Some(INFER_ROWS))? {
         Ok(read) => read,
@@ -287,24 +294,18 @@ pub fn load(
     let mut keys = vec![cfg.entity.as_str(), cfg.period.as_str()];
     keys.extend(cfg.rules.file.panel.year_end.as_deref());
     let read_csv = |schema: &Schema| {
-        let (mut schema, mut retries) = (schema.clone(), 0);
-        loop {
+        whole::with_decimals_as_text(schema, |decimals| {
+            let mut schema = schema.clone();
+            for i in decimals {
+                schema.set_dtype_at_index(*i, DataType::String);
+            }
             let (as_read, guessed) = whole::as_text_first(&schema, &keys);
             let mut coded = Vec::new();
-            let read = contiguous::read_csv(source, &as_read, &cfg.csv, ROW, |c| {
+            contiguous::read_csv(source, &as_read, &cfg.csv, ROW, |c| {
                 whole::settle(c, &guessed, &mut coded)
-            });
-            match read {
-                Ok(df) => return Ok((df, coded)),
-                Err(e) => match whole::unparsable_decimals(&e, &schema) {
-                    Some(i) if retries < whole::RETRIES => {
-                        schema.set_dtype_at_index(i, DataType::String);
-                        retries += 1;
-                    }
-                    _ => return Err(e),
-                },
-            }
-        }
+            })
+            .map(|df| (df, coded))
+        })
     };
     let read = match cfg.format {
         InputFormat::Parquet => contiguous::collect(lf, ROW, progress).map(|df| (df, Vec::new())),

@@ -56,6 +56,27 @@ pub(super) fn unparsable_decimals(e: &PolarsError, schema: &Schema) -> Option<us
         .then_some(index)
 }
 
+/// `read` called with the columns of `schema` (by index) to read as text beside what it reads
+/// as text anyway, none at first; each time it fails on a cell the reader could not parse in
+/// a column it guessed to be decimals ([`unparsable_decimals`]), that column is added and it
+/// is called again, up to [`RETRIES`] times. Any other error, or one more such column, is
+/// returned (the caller then guesses the types from every row).
+pub(super) fn with_decimals_as_text<T>(
+    schema: &Schema,
+    mut read: impl FnMut(&[usize]) -> PolarsResult<T>,
+) -> PolarsResult<T> {
+    let mut as_text: Vec<usize> = Vec::new();
+    loop {
+        match read(&as_text) {
+            Err(e) => match unparsable_decimals(&e, schema) {
+                Some(i) if as_text.len() < RETRIES && !as_text.contains(&i) => as_text.push(i),
+                _ => return Err(e),
+            },
+            done => return done,
+        }
+    }
+}
+
 /// What one column read as text holds.
 #[derive(Debug)]
 enum Held {
@@ -256,5 +277,57 @@ mod tests {
         ints.set_dtype_at_index(2, DataType::Int64);
         let e = super::super::contiguous::read_csv(&path, &ints, &csv, "row", Ok).unwrap_err();
         assert_eq!(unparsable_decimals(&e, &ints), None, "{e}");
+    }
+
+    /// The columns read as text grow by the one each failed read names, until the read
+    /// succeeds or [`RETRIES`] columns have been tried: with markers in two columns of
+    /// decimals, two failed reads and a third that succeeds; with markers in more columns than
+    /// that, the last failure is returned (the real reader on files worked by hand).
+    #[test]
+    fn decimals_are_read_as_text_one_named_column_at_a_time() {
+        let dir = tempfile::tempdir().unwrap();
+        let csv = crate::config::CsvOptions::default();
+        let columns = RETRIES + 1;
+        let names: Vec<String> = (0..columns).map(|i| format!("x{i}")).collect();
+        let schema = Schema::from_iter(
+            names
+                .iter()
+                .map(|n| Field::new(n.as_str().into(), DataType::Float64)),
+        );
+        for marked in [2, columns] {
+            let path = dir.path().join(format!("marked_{marked}.csv"));
+            let second: Vec<&str> = (0..columns)
+                .map(|i| if i < marked { "NA" } else { "2.5" })
+                .collect();
+            let text = format!(
+                "{}\n{}\n{}\n",
+                names.join(","),
+                vec!["1.5"; columns].join(","),
+                second.join(",")
+            );
+            std::fs::write(&path, text).unwrap();
+            let mut tried: Vec<Vec<usize>> = Vec::new();
+            let read = with_decimals_as_text(&schema, |decimals| {
+                tried.push(decimals.to_vec());
+                let mut as_read = schema.clone();
+                for i in decimals {
+                    as_read.set_dtype_at_index(*i, DataType::String);
+                }
+                super::super::contiguous::read_csv(&path, &as_read, &csv, "row", Ok)
+            });
+            if marked == 2 {
+                let df = read.unwrap();
+                assert_eq!(df.column("x0").unwrap().dtype(), &DataType::String);
+                assert_eq!(df.column("x2").unwrap().dtype(), &DataType::Float64);
+                assert_eq!(tried.len(), 3);
+                let mut last = tried[2].clone();
+                last.sort_unstable();
+                assert_eq!(last, [0, 1]);
+            } else {
+                assert!(read.is_err());
+                assert_eq!(tried.len(), RETRIES + 1);
+                assert_eq!(tried.last().unwrap().len(), RETRIES);
+            }
+        }
     }
 }
