@@ -90,8 +90,9 @@ pub fn compile(rules: &Rules, raw: &[String]) -> Result<(Vec<CompiledRule>, Vec<
     Ok((out, skipped))
 }
 
-/// Add the hidden columns of other periods' values the rules read (gap-aware, by a join on
-/// the keys, as for derived variables); returns the frame and the hidden columns' names.
+/// Add the hidden columns of other periods' values the rules read (gap-aware, by a walk over
+/// the sorted panel's entities, as for derived variables); returns the frame and the hidden
+/// columns' names.
 pub fn with_shifts(
     df: DataFrame,
     rules: &[CompiledRule],
@@ -102,14 +103,15 @@ pub fn with_shifts(
     if shifts.is_empty() {
         return Ok((df, Vec::new()));
     }
-    let mut lf = df.lazy();
-    let mut hidden = Vec::new();
-    for s in shifts {
-        let name = s.hidden_name();
-        lf = crate::derive::add_shift(lf, s, &name, entity, period);
-        hidden.push(name);
-    }
-    Ok((lf.collect()?, hidden))
+    let hidden: Vec<String> = shifts.iter().map(|s| s.hidden_name()).collect();
+    let columns: Vec<Expr> = shifts
+        .iter()
+        .zip(&hidden)
+        .map(|(s, name)| {
+            crate::derive::nearby(col(s.column.as_str()), entity, period, s.k).alias(name.as_str())
+        })
+        .collect();
+    Ok((df.lazy().with_columns(columns).collect()?, hidden))
 }
 
 /// Violations (condition false) and unknowns (condition null) per rule, over the rows

@@ -1,5 +1,5 @@
 //! Derived variables: order the rules by their dependencies, add gap-aware shifted columns
-//! by joining on (entity, period - k), evaluate each rule with its null conditions, and count
+//! (the row of period t - k of the same entity, found by a walk over the sorted panel), evaluate each rule with its null conditions, and count
 //! how many nulls each reason produced.
 
 use std::collections::{BTreeMap, BTreeSet};
@@ -13,9 +13,11 @@ use crate::rules::expr::{self, Compiled, Scope, Shift};
 use crate::rules::{DeriveRule, Origin, Rules, CANONICAL_COLUMNS};
 use crate::{Error, Result};
 
+mod nearby;
 mod nulls;
 mod settle;
 
+pub(crate) use nearby::nearby;
 use settle::settled;
 
 /// Rows of each derived float variable made missing for not being finite while the plan's
@@ -148,15 +150,14 @@ impl Plan {
     /// Returns the frame, the hidden column names, to drop after counting, and the counts of
     /// rows made missing for not being finite (filled in as the frame is collected).
     ///
-    /// `layout` says whether `lf` is sorted by entity and period with unique keys; then a
-    /// shifted column is read from the few rows just before (or after) each row, otherwise by
-    /// a join on (entity, period ± k). Both give the value at exactly period t − k.
+    /// `lf` is sorted by entity, period and row (as the key steps leave the panel); a shifted
+    /// column is found by one walk over each entity's rows ([`nearby`]): the value at exactly
+    /// period t − k, from the first of its rows where a key repeats.
     pub fn apply(
         &self,
         mut lf: LazyFrame,
         entity: &str,
         period: &str,
-        layout: Layout,
     ) -> (LazyFrame, Vec<String>, NotFinite) {
         let mut hidden: Vec<String> = Vec::new();
         let mut not_finite = NotFinite::new();
@@ -173,12 +174,10 @@ impl Plan {
                     if hidden.contains(&name) {
                         continue;
                     }
-                    match layout {
-                        Layout::SortedUnique if shift.k.unsigned_abs() <= NEARBY_REACH => {
-                            shifted.push(nearby(shift, entity, period).alias(name.as_str()))
-                        }
-                        _ => lf = add_shift(lf, shift, &name, entity, period),
-                    }
+                    shifted.push(
+                        nearby(col(shift.column.as_str()), entity, period, shift.k)
+                            .alias(name.as_str()),
+                    );
                     hidden.push(name);
                 }
             }
@@ -351,69 +350,6 @@ fn find_cycle(remaining: &BTreeMap<String, (BTreeSet<String>, Planned)>) -> Vec<
     }
 }
 
-/// How the frame given to `Plan::apply` is laid out.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum Layout {
-    /// Sorted by entity then period, each key once.
-    SortedUnique,
-    /// Anything else (duplicate keys, any order).
-    Any,
-}
-
-/// The longest lag or lead read from the rows nearby ([`nearby`] looks at each of the |k| rows
-/// before or after, one step of the expression each); a longer one is joined on (entity,
-/// period ± k), whose cost does not grow with k.
-const NEARBY_REACH: u64 = 8;
-
-/// On a frame sorted by (entity, period) with unique keys, the row for period t − k of the
-/// same entity, if present, lies at most |k| rows away: look at each of those rows.
-fn nearby(shift: &Shift, entity: &str, period: &str) -> Expr {
-    let k = shift.k;
-    let reach = k.unsigned_abs() as i64;
-    let sign = if k > 0 { 1 } else { -1 };
-    let hit = |j: i64| {
-        col(entity)
-            .shift(lit(sign * j))
-            .eq(col(entity))
-            .and(col(period).shift(lit(sign * j)).eq(col(period) - lit(k)))
-            .fill_null(lit(false))
-    };
-    let value = |j: i64| col(shift.column.as_str()).shift(lit(sign * j));
-    (1..=reach).rev().fold(lit(NULL), |rest, j| {
-        when(hit(j)).then(value(j)).otherwise(rest)
-    })
-}
-
-/// Join the value of `shift.column` at period t - k of the same entity onto period t.
-pub(crate) fn add_shift(
-    lf: LazyFrame,
-    shift: &Shift,
-    hidden: &str,
-    entity: &str,
-    period: &str,
-) -> LazyFrame {
-    let right = lf
-        .clone()
-        .select([
-            col(entity),
-            (col(period) + lit(shift.k)).alias(period),
-            col(shift.column.as_str()).alias(hidden),
-        ])
-        .unique_stable_generic(
-            Some(vec![col(entity), col(period)]),
-            UniqueKeepStrategy::First,
-        );
-    lf.join(
-        right,
-        [col(entity), col(period)],
-        [col(entity), col(period)],
-        JoinArgs {
-            maintain_order: MaintainOrderJoin::Left,
-            ..JoinArgs::new(JoinType::Left)
-        },
-    )
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -429,7 +365,7 @@ mod tests {
             .map(|c| c.to_string())
             .collect();
         let plan = Plan::new(rules, &raw).unwrap();
-        let (lf, _, _) = plan.apply(df.lazy(), "firm", "year", Layout::Any);
+        let (lf, _, _) = plan.apply(df.lazy(), "firm", "year");
         lf.collect().unwrap()
     }
 
@@ -487,7 +423,7 @@ mod tests {
         let names: Vec<&str> = plan.vars.iter().map(|v| v.name.as_str()).collect();
         assert_eq!(names, ["size"], "only size has all its inputs");
         assert!(plan.skipped.iter().any(|s| s.name == "leverage"));
-        let (lf, _, not_finite) = plan.apply(df.lazy(), "firm", "year", Layout::Any);
+        let (lf, _, not_finite) = plan.apply(df.lazy(), "firm", "year");
         let out = lf.collect().unwrap();
         let size: Vec<Option<f64>> = out.column("size").unwrap().f64().unwrap().iter().collect();
         assert_eq!(size, [Some(100f64.ln()), None, None, Some(50f64.ln())]);
@@ -495,6 +431,45 @@ mod tests {
         assert_eq!((s.non_null, s.nulls), (2, 2));
         assert_eq!(s.null_reasons[0].rows, 1, "total assets not positive");
         assert_eq!(s.null_reasons[1].rows, 1, "input missing");
+    }
+
+    /// Where a key repeats (an `audit` that reports conflicting keys) a lag and a lead take
+    /// the first of its rows, and a variable they read is evaluated once: its rows not finite
+    /// counted once (the join this replaced evaluated it again for each lag, and counted 3 of
+    /// 1 here). Worked by hand: r = 1 / x over a (years 1, 1, 2, 3) and b (year 1).
+    #[test]
+    fn repeated_keys_shift_the_first_row_and_count_once() {
+        let df = df!(
+            "firm" => ["a", "a", "a", "a", "b"],
+            "year" => [1i64, 1, 2, 3, 1],
+            "x" => [Some(2.0), Some(4.0), Some(0.0), Some(5.0), None],
+        )
+        .unwrap();
+        let r = rules(
+            "[derive.r]\nexpr = \"1 / x\"\n[derive.r_lag]\nexpr = \"lag(r, 1)\"\n\
+             [derive.r_lead]\nexpr = \"lead(r, 1)\"\n[derive.x_lag]\nexpr = \"lag(x, 2)\"\n",
+        );
+        let raw: Vec<String> = ["firm", "year", "x"].map(String::from).into();
+        let plan = Plan::new(&r, &raw).unwrap();
+        let (lf, _, not_finite) = plan.apply(df.lazy(), "firm", "year");
+        let out = lf.collect().unwrap();
+        let get = |c: &str| -> Vec<Option<f64>> {
+            out.column(c).unwrap().f64().unwrap().iter().collect()
+        };
+        assert_eq!(get("r"), [Some(0.5), Some(0.25), None, Some(0.2), None]);
+        assert_eq!(get("r_lag"), [None, None, Some(0.5), None, None]);
+        assert_eq!(get("r_lead"), [None, None, Some(0.2), None, None]);
+        assert_eq!(get("x_lag"), [None, None, None, Some(2.0), None]);
+        let counts = plan.null_counts(&out, &not_finite).unwrap();
+        let r = counts.iter().find(|s| s.name == "r").unwrap();
+        assert_eq!((r.non_null, r.nulls), (3, 2));
+        let rows = |reason: &str| {
+            r.null_reasons
+                .iter()
+                .find(|n| n.reason == reason)
+                .map_or(0, |n| n.rows)
+        };
+        assert_eq!((rows(NOT_FINITE), rows(INPUT_MISSING)), (1, 1));
     }
 
     #[test]

@@ -1,6 +1,5 @@
-//! Stage 5, derived variables: the rules' expressions in dependency order, lags by looking
-//! at the nearby rows of the sorted panel (or by a join where keys repeat), each variable's
-//! null reasons counted.
+//! Stage 5, derived variables: the rules' expressions in dependency order, lags by a walk
+//! over each entity's rows of the sorted panel, each variable's null reasons counted.
 
 use super::*;
 
@@ -10,16 +9,14 @@ pub(super) fn derive(
     panel: DataFrame,
     plan: &Plan,
     columns: &[String],
-    layout: Layout,
     input: &InputConfig,
 ) -> Result<(DataFrame, Vec<crate::report::DerivedSummary>)> {
     // Sorted by entity, period and row since the key steps: joins keep the panel's order,
     // repairs and rules only filter or change cells.
-    let (lf, hidden, not_finite) =
-        plan.apply(panel.clone().lazy(), &input.entity, &input.period, layout);
+    let (lf, hidden, not_finite) = plan.apply(panel.clone().lazy(), &input.entity, &input.period);
     let with_hidden = match lf.collect() {
         Ok(df) => df,
-        Err(e) => return Err(culprit(&panel, plan, layout, input).unwrap_or(Error::Polars(e))),
+        Err(e) => return Err(culprit(&panel, plan, input).unwrap_or(Error::Polars(e))),
     };
     // Kept only to trace a failure: its columns not held past this point.
     drop(panel);
@@ -27,14 +24,7 @@ pub(super) fn derive(
     let mut order = vec![col(ROW)];
     order.extend(columns.iter().map(|c| col(c.as_str())));
     order.extend(plan.vars.iter().map(|v| col(v.name.as_str())));
-    let mut panel = with_hidden.lazy().drop(cols(hidden)).select(order);
-    if layout == Layout::Any {
-        // The joins of the lag columns may reorder rows; sorted lags keep the order.
-        panel = panel.sort(
-            [input.entity.as_str(), input.period.as_str(), ROW],
-            Default::default(),
-        );
-    }
+    let panel = with_hidden.lazy().drop(cols(hidden)).select(order);
     // Each column in one chunk (a lag can come out in several): the checks read a column in
     // place only when it is one chunk, and would each copy it otherwise.
     let mut panel = panel.collect()?;
@@ -45,11 +35,11 @@ pub(super) fn derive(
 /// The derived variable whose evaluation fails (text divided, a text that will not convert),
 /// as the error naming it: the variables one more at a time in dependency order, each set
 /// checked by its types, then by its values; the first set that fails ends in the culprit.
-fn culprit(panel: &DataFrame, plan: &Plan, layout: Layout, input: &InputConfig) -> Option<Error> {
+fn culprit(panel: &DataFrame, plan: &Plan, input: &InputConfig) -> Option<Error> {
     let upto = |k: usize| {
         let mut part = plan.clone();
         part.vars.truncate(k + 1);
-        part.apply(panel.clone().lazy(), &input.entity, &input.period, layout)
+        part.apply(panel.clone().lazy(), &input.entity, &input.period)
             .0
     };
     let named = |k: usize, e: PolarsError| {

@@ -14,7 +14,7 @@ use crate::clean::balance::{self, Balance};
 use crate::clean::treat::{Method, Treatment};
 use crate::clean::{self, repair, DuplicatePolicy, Keys, SingletonPolicy};
 use crate::config::InputConfig;
-use crate::derive::{Layout, Plan};
+use crate::derive::Plan;
 use crate::load::{self, ROW};
 use crate::progress::Progress;
 use crate::report::{Cleaned, Findings, InputSummary, Report, SampleStep, VariationFigures};
@@ -165,18 +165,8 @@ pub fn prepare_with(
         .chain(plan.reads())
         .collect();
     crate::core::hold_text_as_codes(&mut sample.panel, &keys_and_inputs)?;
-    let layout = if found.keys.conflicting_keys == 0 || typed.policy != DuplicatePolicy::Report {
-        Layout::SortedUnique
-    } else {
-        Layout::Any
-    };
-    let (mut panel, derived) = derived::derive(
-        std::mem::take(&mut sample.panel),
-        &plan,
-        &columns,
-        layout,
-        input,
-    )?;
+    let (mut panel, derived) =
+        derived::derive(std::mem::take(&mut sample.panel), &plan, &columns, input)?;
     crate::core::hold_text_as_codes(&mut panel, &keys_and_inputs[..2])?;
 
     let mut report = Report::new(input_summary(input, &read.loaded, &read.tables));
