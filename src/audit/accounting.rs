@@ -103,6 +103,9 @@ pub fn with_shifts(
     if shifts.is_empty() {
         return Ok((df, Vec::new()));
     }
+    let mut df = df;
+    let read = shifts.iter().map(|s| s.column.as_str());
+    crate::derive::in_one_chunk(&mut df, read.chain([entity, period]))?;
     let hidden: Vec<String> = shifts.iter().map(|s| s.hidden_name()).collect();
     let columns: Vec<Expr> = shifts
         .iter()

@@ -17,7 +17,7 @@ mod nearby;
 mod nulls;
 mod settle;
 
-pub(crate) use nearby::nearby;
+pub(crate) use nearby::{in_one_chunk, nearby};
 use settle::settled;
 
 /// Rows of each derived float variable made missing for not being finite while the plan's
@@ -223,6 +223,21 @@ impl Plan {
             lf = lf.with_columns(values);
         }
         (lf, hidden, not_finite)
+    }
+
+    /// The keys and the columns the variables' lags and leads read (raw or derived), for
+    /// [`in_one_chunk`].
+    pub fn shifted_columns<'a>(&'a self, entity: &'a str, period: &'a str) -> Vec<&'a str> {
+        let shifts = self
+            .vars
+            .iter()
+            .flat_map(Planned::compiled)
+            .flat_map(|c| &c.shifts);
+        let mut names: Vec<&str> = shifts.map(|s| s.column.as_str()).collect();
+        if !names.is_empty() {
+            names.extend([entity, period]);
+        }
+        names
     }
 
     /// The variables grouped by level, in evaluation order within each: level 0 reads no

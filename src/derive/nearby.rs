@@ -35,6 +35,25 @@ pub(crate) fn nearby(value: Expr, entity: &str, period: &str, k: i64) -> Expr {
     )
 }
 
+/// The columns of `df` among `names` held in one chunk each, so that a walk reads them in
+/// place ([`nearby`] copies a column in several chunks into one first, once per lag); names
+/// `df` does not hold (a derived variable not made yet) are passed by.
+pub(crate) fn in_one_chunk<'a>(
+    df: &mut DataFrame,
+    names: impl IntoIterator<Item = &'a str>,
+) -> PolarsResult<()> {
+    for name in names {
+        let Ok(column) = df.column(name) else {
+            continue;
+        };
+        if column.n_chunks() > 1 {
+            let whole = column.rechunk();
+            df.with_column(whole)?;
+        }
+    }
+    Ok(())
+}
+
 /// `value` shifted by `k` within `entity` (see [`nearby`]): a float column gathered on the
 /// walk, any other by the rows the walk finds.
 fn shifted(value: &Column, entity: &Column, period: &Column, k: i64) -> PolarsResult<Column> {
@@ -227,6 +246,29 @@ mod tests {
         )
         .unwrap();
         assert_eq!(shifted(&df, 1), [None, Some(1.0), None, Some(3.0)]);
+    }
+
+    /// A frame in two chunks (a firm across them) shifts as the same frame in one, and
+    /// `in_one_chunk` leaves the columns named in one chunk, the others as they were.
+    #[test]
+    fn chunks_are_read_whole() {
+        let df = df!(
+            "f" => ["a", "a", "a", "b", "b"],
+            "y" => [2001i64, 2002, 2003, 2001, 2002],
+            "x" => [1.0, 2.0, 3.0, 4.0, 5.0],
+        )
+        .unwrap();
+        let mut two = df.slice(0, 2);
+        two.vstack_mut(&df.slice(2, 3)).unwrap();
+        assert_eq!(two.column("x").unwrap().n_chunks(), 2);
+        assert_eq!(shifted(&two, 1), shifted(&df, 1));
+        assert_eq!(
+            shifted(&two, 1),
+            [None, Some(1.0), Some(2.0), None, Some(4.0)]
+        );
+        in_one_chunk(&mut two, ["f", "y", "not a column"]).unwrap();
+        let chunks = |c: &str| two.column(c).unwrap().n_chunks();
+        assert_eq!((chunks("f"), chunks("y"), chunks("x")), (1, 1, 2));
     }
 
     /// Text and whole numbers shift as they are, their type kept.

@@ -6,13 +6,18 @@ use super::*;
 /// The panel with its derived columns (row number, raw columns, derived columns, in that
 /// order, still sorted by entity, period and row), and the derived variables' report lines.
 pub(super) fn derive(
-    panel: DataFrame,
+    mut panel: DataFrame,
     plan: &Plan,
     columns: &[String],
     input: &InputConfig,
 ) -> Result<(DataFrame, Vec<crate::report::DerivedSummary>)> {
     // Sorted by entity, period and row since the key steps: joins keep the panel's order,
-    // repairs and rules only filter or change cells.
+    // repairs and rules only filter or change cells. The lags read the keys and their columns
+    // whole (the panel is in one chunk a column afterwards anyway).
+    crate::derive::in_one_chunk(
+        &mut panel,
+        plan.shifted_columns(&input.entity, &input.period),
+    )?;
     let (lf, hidden, not_finite) = plan.apply(panel.clone().lazy(), &input.entity, &input.period);
     let with_hidden = match lf.collect() {
         Ok(df) => df,
