@@ -15,6 +15,7 @@ use crate::rules::{JoinSpec, RepeatedKeys, Rules, Unmatched};
 use crate::{Error, Result};
 
 mod join;
+mod sorted;
 
 pub use join::{join, ledger, Joined};
 
