@@ -5,7 +5,7 @@
 use polars::prelude::*;
 
 use super::Context;
-use crate::core::magnitude;
+use crate::core::slips;
 use crate::core::{in_batches, Values};
 use crate::report::UnitSlip;
 use crate::Result;
@@ -46,34 +46,11 @@ pub(super) fn search(ctx: &Context) -> Result<Search> {
     let back = ctx.core.previous_period();
     let pairs = back.iter().filter(|b| **b).count() as u64;
     let log_jump = ctx.settings.log_jump;
-    // Below this |log10 ratio| a change is neither a slip nor a jump (with a margin far above
-    // rounding): most rows, whose logarithm is then not taken.
-    let quiet = 0.99 * (log_jump / std::f64::consts::LN_10).min(3.0 - std::f64::consts::LOG10_2);
-    let (calm_lo, calm_hi) = (10f64.powf(-quiet), 10f64.powf(quiet));
     let one = |v: &String| -> Result<Found> {
         let values = Values::of(ctx.df, v)?;
-        let x = values.view();
-        // The rows with a slip and its magnitude, in row order (few); the same detector as
-        // `log_ratios` and `magnitude`, one row at a time, with no column-sized buffer.
-        let mut hits: Vec<(usize, i8)> = Vec::new();
-        let mut jumps = 0u64;
-        for (r, _) in back.iter().enumerate().skip(1).filter(|(_, back)| **back) {
-            let (Some(a), Some(b)) = (x.get(r), x.get(r - 1)) else {
-                continue;
-            };
-            if !(a > 0.0 && b > 0.0) {
-                continue;
-            }
-            let q = a / b;
-            if q > calm_lo && q < calm_hi {
-                continue;
-            }
-            let ratio = q.log10();
-            jumps += u64::from((ratio * std::f64::consts::LN_10).abs() > log_jump);
-            if let Some(m) = magnitude(ratio) {
-                hits.push((r, m as i8));
-            }
-        }
+        // The rows with a slip and its magnitude, in row order (few), with no column-sized
+        // buffer.
+        let (hits, jumps) = slips(&back, &values.view(), Some(log_jump));
         // A slip is listed once: the jump back of a listed slip is not another slip.
         let at = |i: usize, r: usize| match hits.get(i) {
             Some(&(row, m)) if row == r => m,

@@ -22,7 +22,7 @@ mod values;
 pub use groups::{fewest_for_cutoffs, GroupCodes};
 pub use keys::same_as_previous;
 pub use quantile::{grouped_quantiles, quantiles, quantiles_visiting, type7, type7_many};
-pub use slip::{log_ratios, magnitude};
+pub use slip::{magnitude, slips};
 pub use text::{
     codes, hold_text_as_codes, is_coded, repeats_in, sample_starts, spelled_out,
     spelled_out_schema, Spelling, TEXT_SAMPLE,
