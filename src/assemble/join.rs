@@ -348,6 +348,8 @@ pub fn ledger(main: DataFrame, main_name: &str, tables: Vec<DataFrame>) -> Resul
 
 #[cfg(test)]
 mod tests {
+    use rand::{Rng, SeedableRng};
+
     use super::*;
 
     fn table(df: DataFrame, on: &[&str]) -> Table {
@@ -374,13 +376,8 @@ mod tests {
     /// and on the firm and year.
     #[test]
     fn places_agree_with_the_engine() {
-        let mut state = 99u64;
-        let mut next = || {
-            state = state
-                .wrapping_mul(6_364_136_223_846_793_005)
-                .wrapping_add(1);
-            state >> 33
-        };
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(99);
+        let mut next = || rng.random::<u64>() >> 33;
         let name = |firm: u64| match firm % 4 {
             0 => format!("firm {firm:04} with a name longer than a view"),
             _ => format!("f{firm}"),

@@ -173,6 +173,8 @@ impl Walk<'_> {
 
 #[cfg(test)]
 mod tests {
+    use rand::{Rng, SeedableRng};
+
     use super::*;
 
     /// `x` shifted by `k` within `f` over the sorted frame.
@@ -331,13 +333,8 @@ mod tests {
     #[test]
     fn the_walk_agrees_with_the_join() {
         let (mut f, mut y, mut x) = (Vec::new(), Vec::new(), Vec::new());
-        let mut state = 12_345u64;
-        let mut next = || {
-            state = state
-                .wrapping_mul(6_364_136_223_846_793_005)
-                .wrapping_add(1);
-            state >> 33
-        };
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(12_345);
+        let mut next = || rng.random::<u64>() >> 33;
         for firm in 0..300 {
             let id = if firm % 3 == 0 {
                 format!("firm number {firm:05} of the walk test")
