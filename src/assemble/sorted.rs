@@ -76,10 +76,21 @@ pub(super) fn matched(
     let rows = ids.len();
     // The panel's entities as runs of rows, each name mapped to its run.
     let views = ids.views();
+    let ours = times
+        .as_ref()
+        .map(|(o, _)| o.downcast_as_array().values().as_slice());
+    // The runs, the order checked on the way: should the panel not be in key order after all
+    // (names rising as the engine sorts text, by their bytes; periods within each name), the
+    // engine joins it.
     let mut starts: Vec<usize> = Vec::new();
     for r in 0..rows {
         if r == 0 || (views[r] != views[r - 1] && ids.value(r) != ids.value(r - 1)) {
+            if r > 0 && ids.value(r) < ids.value(r - 1) {
+                return Ok(None);
+            }
             starts.push(r);
+        } else if ours.is_some_and(|p| p[r] < p[r - 1]) {
+            return Ok(None);
         }
     }
     starts.push(rows);
@@ -95,9 +106,6 @@ pub(super) fn matched(
             long.insert(ids.value(run[0]), rows);
         }
     }
-    let ours = times
-        .as_ref()
-        .map(|(o, _)| o.downcast_as_array().values().as_slice());
     let their_ids = their_ids.downcast_as_array();
     let theirs = times.as_ref().map(|(_, t)| t.downcast_as_array());
     // Each table row's key placed at the first panel row holding it (NONE: no panel row), the
@@ -215,7 +223,8 @@ mod tests {
     }
 
     /// Where this way does not apply the caller is told to join by the engine: a key the table
-    /// repeats, a panel row without a name, a period that is not a whole number.
+    /// repeats, a panel row without a name, a period that is not a whole number, a panel not in
+    /// key order (names or periods).
     #[test]
     fn not_applicable_is_none() {
         let panel = df!("f" => ["a", "b"], "y" => [1i64, 1]).unwrap();
@@ -225,5 +234,12 @@ mod tests {
         assert!(matched(&unnamed, &twice, "f", Some("y")).unwrap().is_none());
         let text = df!("f" => ["a"], "y" => ["1"]).unwrap();
         assert!(matched(&panel, &text, "f", Some("y")).unwrap().is_none());
+        let once = df!("f" => ["a"], "y" => [1i64]).unwrap();
+        assert!(matched(&panel, &once, "f", Some("y")).unwrap().is_some());
+        let names = df!("f" => ["b", "a"], "y" => [1i64, 1]).unwrap();
+        assert!(matched(&names, &once, "f", Some("y")).unwrap().is_none());
+        let years = df!("f" => ["a", "a"], "y" => [2i64, 1]).unwrap();
+        assert!(matched(&years, &once, "f", Some("y")).unwrap().is_none());
+        assert!(matched(&years, &once, "f", None).unwrap().is_some());
     }
 }

@@ -1,6 +1,6 @@
 //! Derived variables: order the rules by their dependencies, add gap-aware shifted columns
-//! (the row of period t - k of the same entity, found by a walk over the sorted panel), evaluate each rule with its null conditions, and count
-//! how many nulls each reason produced.
+//! (the row of period t - k of the same entity, found by a walk over the sorted panel),
+//! evaluate each rule with its null conditions, and count how many nulls each reason produced.
 
 use std::collections::{BTreeMap, BTreeSet};
 use std::sync::atomic::AtomicU64;
