@@ -9,7 +9,10 @@ use super::verdict::{
     counted, level_key, line as verdict_line, worst, CheckVerdict, LevelKey, Levels, Status,
 };
 use super::{unit_slips, Check, Context, Settings};
-use crate::core::{fewest_for_cutoffs, in_batches, quantiles, GroupCodes, PanelCore, Values, View};
+use crate::core::{
+    fewest_for_cutoffs, grouped_quantiles, in_batches, quantiles, GroupCodes, PanelCore, Values,
+    View,
+};
 use crate::report::layout::{opt_level, strings, Block, Section};
 pub use crate::report::CutoffGroups;
 use crate::report::{Finding, OutlierLine, Report, ToJson, UnitSlip};
@@ -367,21 +370,29 @@ fn line(
             (q[0], q[1], n as u64)
         }
         (CutoffGroups::Period, _) => {
-            let mut groups: Vec<Vec<f64>> = vec![Vec::new(); core.periods.len()];
-            for (r, v) in x.iter() {
-                groups[core.period[r] as usize].push(v);
-            }
-            let mut smallest = u64::MAX;
-            for g in &mut groups {
-                smallest = smallest.min(g.len() as u64);
-                let q = quantiles(&View::all(g), g.len(), |v| v, &[lo, hi]);
-                let (l, u) = (q[0], q[1]);
-                for v in g.iter() {
-                    below += u64::from(l.is_some_and(|l| *v < l));
-                    above += u64::from(u.is_some_and(|u| *v > u));
+            let nt = core.periods.len();
+            let period = |r: usize| core.period[r] as usize;
+            // Every period's cutoffs from one bracketing pass over the column, then the
+            // values beyond them counted in another; should a bracket miss, each period's
+            // values gathered and selected on their own (the same values either way).
+            let cutoffs = grouped_quantiles(&x, period, nt, &[lo, hi]).unwrap_or_else(|| {
+                let mut groups: Vec<Vec<f64>> = vec![Vec::new(); nt];
+                for (r, v) in x.iter() {
+                    groups[period(r)].push(v);
                 }
+                groups
+                    .iter()
+                    .map(|g| quantiles(&View::all(g), g.len(), |v| v, &[lo, hi]))
+                    .collect()
+            });
+            let mut sizes = vec![0u64; nt];
+            for (r, v) in x.iter() {
+                let t = period(r);
+                sizes[t] += 1;
+                below += u64::from(cutoffs[t][0].is_some_and(|l| v < l));
+                above += u64::from(cutoffs[t][1].is_some_and(|u| v > u));
             }
-            (None, None, if groups.is_empty() { 0 } else { smallest })
+            (None, None, sizes.into_iter().min().unwrap_or(0))
         }
     };
     // Robust z from the pooled median and MAD; with a MAD of zero it is not defined.
@@ -414,5 +425,84 @@ fn line(
             _ => Vec::new(),
         },
         pooled_fallback_groups: fallback,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use polars::prelude::*;
+
+    use super::*;
+
+    /// Type-7 quantile by its definition (numpy's default, linear interpolation between the
+    /// order statistics at (n − 1) p; common practice) over a sorted copy: an implementation
+    /// that shares nothing with the check's bracketing.
+    fn by_definition(sorted: &[f64], p: f64) -> f64 {
+        let h = (sorted.len() - 1) as f64 * p;
+        let lo = h.floor() as usize;
+        let hi = (lo + 1).min(sorted.len() - 1);
+        sorted[lo] + (sorted[hi] - sorted[lo]) * (h - lo as f64)
+    }
+
+    /// The values beyond each period's 1st and 99th percentiles, counted by the check, against
+    /// the definition over each period's sorted values: once with periods large enough for
+    /// the one bracketing pass over the column, once with periods so small that each is
+    /// gathered and selected on its own; missing values left out, ties and a missing period
+    /// value (an empty group) included.
+    #[test]
+    fn beyond_each_periods_cutoffs() {
+        for firms in [80_000usize, 7] {
+            let years = [2001i64, 2002, 2003];
+            let (mut f, mut y, mut x) = (Vec::new(), Vec::new(), Vec::new());
+            for i in 0..firms {
+                for (j, year) in years.iter().enumerate() {
+                    let r = i * years.len() + j;
+                    f.push(format!("e{i:06}"));
+                    y.push(*year);
+                    // Period 2003 holds no value at all; every 13th row is missing.
+                    let value = match j {
+                        0 => ((r * 7_919) % 10_007) as f64,
+                        1 => ((r * 104_729) % 997) as f64 * 0.5,
+                        _ => f64::NAN,
+                    };
+                    x.push((j < 2 && !r.is_multiple_of(13)).then_some(value));
+                }
+            }
+            let names: Vec<&str> = f.iter().map(String::as_str).collect();
+            let core = crate::core::coded(&names, &y);
+            let df = df!("x" => x.clone()).unwrap();
+            let values = Values::of(&df, "x").unwrap();
+            let settings = Settings {
+                by: CutoffGroups::Period,
+                ..Settings::default()
+            };
+            let got = line(&core, None, "x", &values, &settings);
+            // Both ways are taken: one pass for the large periods, each gathered for the small.
+            let period = |r: usize| core.period[r] as usize;
+            let one_pass = grouped_quantiles(&values.view(), period, 3, &[0.01, 0.99]).is_some();
+            assert_eq!(one_pass, firms > 10, "{firms} firms");
+            let (mut below, mut above, mut smallest) = (0u64, 0u64, u64::MAX);
+            for year in years {
+                let mut v: Vec<f64> = (0..x.len())
+                    .filter(|r| y[*r] == year)
+                    .filter_map(|r| x[r])
+                    .collect();
+                smallest = smallest.min(v.len() as u64);
+                if v.is_empty() {
+                    continue;
+                }
+                v.sort_by(f64::total_cmp);
+                let (lo, hi) = (by_definition(&v, 0.01), by_definition(&v, 0.99));
+                below += v.iter().filter(|a| **a < lo).count() as u64;
+                above += v.iter().filter(|a| **a > hi).count() as u64;
+            }
+            assert!(
+                below > 0 && above > 0 || firms < 10,
+                "{firms} firms: something beyond"
+            );
+            assert_eq!((got.below, got.above), (below, above), "{firms} firms");
+            assert_eq!(smallest, 0, "the empty period");
+            assert!(got.small_groups, "{firms} firms: a period too small");
+        }
     }
 }
