@@ -10,7 +10,7 @@ use super::verdict::{
 };
 use super::{unit_slips, Check, Context, Settings};
 use crate::core::{
-    fewest_for_cutoffs, grouped_quantiles, in_batches, quantiles, GroupCodes, PanelCore, Values,
+    fewest_for_cutoffs, in_batches, quantiles, quantiles_by_group, GroupCodes, PanelCore, Values,
     View,
 };
 use crate::report::layout::{opt_level, strings, Block, Section};
@@ -372,19 +372,9 @@ fn line(
         (CutoffGroups::Period, _) => {
             let nt = core.periods.len();
             let period = |r: usize| core.period[r] as usize;
-            // Every period's cutoffs from one bracketing pass over the column, then the
-            // values beyond them counted in another; should a bracket miss, each period's
-            // values gathered and selected on their own (the same values either way).
-            let cutoffs = grouped_quantiles(&x, period, nt, &[lo, hi]).unwrap_or_else(|| {
-                let mut groups: Vec<Vec<f64>> = vec![Vec::new(); nt];
-                for (r, v) in x.iter() {
-                    groups[period(r)].push(v);
-                }
-                groups
-                    .iter()
-                    .map(|g| quantiles(&View::all(g), g.len(), |v| v, &[lo, hi]))
-                    .collect()
-            });
+            // Every period's cutoffs from one bracketing pass over the column (or each period
+            // gathered where it cannot bracket), then the values beyond them counted.
+            let cutoffs = quantiles_by_group(&x, period, nt, &[lo, hi]);
             let mut sizes = vec![0u64; nt];
             for (r, v) in x.iter() {
                 let t = period(r);
@@ -479,7 +469,8 @@ mod tests {
             let got = line(&core, None, "x", &values, &settings);
             // Both ways are taken: one pass for the large periods, each gathered for the small.
             let period = |r: usize| core.period[r] as usize;
-            let one_pass = grouped_quantiles(&values.view(), period, 3, &[0.01, 0.99]).is_some();
+            let one_pass =
+                crate::core::grouped_quantiles(&values.view(), period, 3, &[0.01, 0.99]).is_some();
             assert_eq!(one_pass, firms > 10, "{firms} firms");
             let (mut below, mut above, mut smallest) = (0u64, 0u64, u64::MAX);
             for year in years {

@@ -10,7 +10,7 @@ use super::group_cutoffs::{group_cutoffs, Bounds, Found, Groups};
 use super::histogram::histogram;
 use super::winsorize::{winsorize, Cutoffs, RowGroups};
 use super::{drop_where, Keys};
-use crate::core::{grouped_quantiles, quantiles, PanelCore, Values, View, BATCH};
+use crate::core::{quantiles, quantiles_by_group, PanelCore, Values, BATCH};
 use crate::report::CutoffGroups;
 use crate::report::{Cutoff, Histogram, TreatLine};
 use crate::rules::TreatSpec;
@@ -324,11 +324,6 @@ impl Treatment {
         let mut found = Vec::new();
         let mut counts = Vec::new();
         let mut current = df;
-        // Rows per group, so that each group's values are gathered without regrowing.
-        let mut sizes = vec![0usize; nt];
-        for r in 0..rows {
-            sizes[group.of(r)] += 1;
-        }
         type Treated = (Option<Column>, (u64, u64), Found, Histogram);
         // A variable's cutoffs, its chart and, when trimming, its flags and counts (reading
         // the panel; winsorizing changes the column afterwards, below).
@@ -336,26 +331,13 @@ impl Treatment {
             let values = Values::of(current, v)?;
             let x = values.view();
             let chart = histogram(&x);
-            // Both cutoffs of every group from one bracketing pass over the column
-            // (`core::grouped_quantiles`); groups too small for it gathered and each
-            // bracketed or selected on its own (`core::quantiles`): the values two selections
-            // give either way.
-            let cutoffs = |g: &[f64]| {
-                let q = quantiles(&View::all(g), g.len(), |v| v, &[self.lower, self.upper]);
-                (q[0], q[1])
-            };
+            // Both cutoffs of every group from one bracketing pass over the column, or each
+            // group gathered where that pass cannot bracket (`core::quantiles_by_group`).
             let (mut lo, mut hi): (Vec<Option<f64>>, Vec<Option<f64>>) =
-                match grouped_quantiles(&x, |r| group.of(r), nt, &[self.lower, self.upper]) {
-                    Some(q) => q.into_iter().map(|q| (q[0], q[1])).unzip(),
-                    None => {
-                        let mut groups: Vec<Vec<f64>> =
-                            sizes.iter().map(|n| Vec::with_capacity(*n)).collect();
-                        for (r, value) in x.iter() {
-                            groups[group.of(r)].push(value);
-                        }
-                        groups.iter().map(|g| cutoffs(g)).unzip()
-                    }
-                };
+                quantiles_by_group(&x, |r| group.of(r), nt, &[self.lower, self.upper])
+                    .into_iter()
+                    .map(|q| (q[0], q[1]))
+                    .unzip();
             // Groups of columns: the pooled cutoffs where a group is too small.
             let fallback = groups.map(|groups| {
                 let q = quantiles(&x, x.count(), |v| v, &[self.lower, self.upper]);

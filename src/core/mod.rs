@@ -21,7 +21,9 @@ mod values;
 
 pub use groups::{fewest_for_cutoffs, GroupCodes};
 pub use keys::same_as_previous;
-pub use quantile::{grouped_quantiles, quantiles, quantiles_visiting, type7, type7_many};
+pub use quantile::{
+    grouped_quantiles, quantiles, quantiles_by_group, quantiles_visiting, type7, type7_many,
+};
 pub use slip::{magnitude, slips};
 pub use text::{
     codes, hold_text_as_codes, is_coded, repeats_in, sample_starts, spelled_out,

@@ -195,6 +195,32 @@ pub fn grouped_quantiles(
         .collect()
 }
 
+/// [`grouped_quantiles`], or, where it cannot bracket (a group too small, a bracket missed),
+/// each group's values gathered and selected on its own ([`quantiles`]): the values two
+/// selections give either way. Each group's quantiles at `ps`, groups in code order.
+pub fn quantiles_by_group(
+    x: &View,
+    group: impl Fn(usize) -> usize,
+    groups: usize,
+    ps: &[f64],
+) -> Vec<Vec<Option<f64>>> {
+    if let Some(q) = grouped_quantiles(x, &group, groups, ps) {
+        return q;
+    }
+    let mut sizes = vec![0usize; groups];
+    for (r, _) in x.iter() {
+        sizes[group(r)] += 1;
+    }
+    let mut gathered: Vec<Vec<f64>> = sizes.iter().map(|n| Vec::with_capacity(*n)).collect();
+    for (r, v) in x.iter() {
+        gathered[group(r)].push(v);
+    }
+    gathered
+        .iter()
+        .map(|g| quantiles(&View::all(g), g.len(), |v| v, ps))
+        .collect()
+}
+
 /// The order statistics type-7 interpolation at `ps` reads among `n` values: sorted, distinct
 /// (none when `n` is 0).
 fn ranks(n: usize, ps: &[f64]) -> Vec<usize> {

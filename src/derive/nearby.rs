@@ -273,7 +273,7 @@ mod tests {
         assert_eq!((chunks("f"), chunks("y"), chunks("x")), (1, 1, 2));
     }
 
-    /// Text and whole numbers shift as they are, their type kept.
+    /// Text and whole numbers shift as they are, their type kept (worked by hand).
     #[test]
     fn any_type_shifts() {
         let df = df!(

@@ -30,8 +30,8 @@ pub(super) fn derive(
     order.extend(columns.iter().map(|c| col(c.as_str())));
     order.extend(plan.vars.iter().map(|v| col(v.name.as_str())));
     let panel = with_hidden.lazy().drop(cols(hidden)).select(order);
-    // Each column in one chunk (a lag can come out in several): the checks read a column in
-    // place only when it is one chunk, and would each copy it otherwise.
+    // Each column in one chunk (an expression can come out in several): the checks read a
+    // column in place only when it is one chunk, and would each copy it otherwise.
     let mut panel = panel.collect()?;
     panel.rechunk_mut_par();
     Ok((panel, derived))
