@@ -167,6 +167,54 @@ fn malformed_csv_stops_with_one_located_line() {
             "",
             &["`__row`", "reserved"],
         ),
+        // A row with fewer fields than the header was read with its last values missing,
+        // nothing said; one with more stopped with the engine's words alone, no row named.
+        bad(
+            "short row",
+            b"firm,year,assets\nA,2001,1\nA,2002\nB,2001,3\n",
+            "",
+            &["raw.csv", "row 2", "2 fields where the header has 3"],
+        ),
+        bad(
+            "long row",
+            b"firm,year,assets\nA,2001,1\nA,2002,1,5\nB,2001,3\n",
+            "",
+            &["raw.csv", "row 2", "4 fields where the header has 3"],
+        ),
+        bad(
+            "line break inside a field not quoted",
+            b"firm,year,name,assets\nA,2001,Harbor\nWorks,1\nB,2001,Mill,3\n",
+            "",
+            &[
+                "raw.csv",
+                "row 1",
+                "3 fields where the header has 4",
+                "quoted",
+            ],
+        ),
+        // A cell that made a column of numbers text stopped the rule computing with it with
+        // the engine's words about types ("division with 'String' datatypes"); the cell is
+        // named instead.
+        bad(
+            "text in a column of numbers, derived variable",
+            b"firm,year,assets\nA,2001,10\nA,2002,-\nB,2001,5\nB,2002,6\n",
+            "[derive.x]\nexpr = \"assets / 2\"\n",
+            &[
+                "raw.csv",
+                "row 2, column `assets`: `-` is not a number",
+                "derived variable `x` (`assets / 2`)",
+            ],
+        ),
+        bad(
+            "text in a column of numbers, accounting rule",
+            b"firm,year,assets\nA,2001,10\nA,2002,n.v.\nB,2001,5\nB,2002,6\n",
+            "[[rule]]\nname = \"r\"\nexpr = \"assets > 0\"\n",
+            &[
+                "raw.csv",
+                "row 2, column `assets`: `n.v.` is not a number",
+                "accounting rule `r` (`assets > 0`)",
+            ],
+        ),
         bad(
             "conflicting keys under fail",
             b"firm,year,assets\nA,2001,1\nA,2001,2\n",
@@ -1330,6 +1378,23 @@ fn numbers_written_for_people_are_numbers() {
         report["input"]["notes"][0],
         "column `margin` stays text: most of its first values are numbers, but data row 2 \
          holds `13%`, which is not one"
+    );
+}
+
+/// A number beyond the floats' range beside a marker for a missing one kept the column text
+/// (each alone was read); now it is numbers, the infinity and the marker missing and noted.
+/// Worked by hand: x has 2 and 3 left, mean 2.5.
+#[test]
+fn a_number_out_of_range_beside_a_marker_is_a_number() {
+    let (report, _) = audit_csv("firm,year,x\nA,1,1e400\nA,2,nan\nB,1,2\nB,2,3\n");
+    let x = &report["variation"][0];
+    assert_eq!(x["variable"], "x");
+    assert_eq!(x["n"], 2, "{x}");
+    assert_eq!(x["mean"].as_f64(), Some(2.5), "{x}");
+    let notes = report["input"]["notes"].to_string();
+    assert!(
+        notes.contains("`nan` 1") && notes.contains("infinity 1"),
+        "{notes}"
     );
 }
 

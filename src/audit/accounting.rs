@@ -3,6 +3,7 @@
 //! that nulled or dropped values never reach a derived ratio.
 
 use std::collections::BTreeSet;
+use std::path::Path;
 
 use polars::prelude::*;
 
@@ -29,6 +30,8 @@ pub struct CompiledRule {
     pub null_columns: Vec<String>,
     /// Other periods' values the condition reads (`lag`, `lead`, `diff`, `growth`).
     pub(crate) shifts: BTreeSet<expr::Shift>,
+    /// The raw columns the condition reads.
+    pub(crate) reads: BTreeSet<String>,
 }
 
 /// Compile every rule; library rules whose columns the data lacks are left out.
@@ -85,6 +88,7 @@ pub fn compile(rules: &Rules, raw: &[String]) -> Result<(Vec<CompiledRule>, Vec<
             holds: compiled.expr,
             null_columns,
             shifts: compiled.shifts,
+            reads: compiled.raw_columns,
         });
     }
     Ok((out, skipped))
@@ -218,6 +222,27 @@ fn culprit(df: &DataFrame, rules: &[CompiledRule]) -> Option<Error> {
             .err()?;
         Some(Error::evaluation(rule_label(r), &r.text, &e))
     })
+}
+
+/// `e`, an error naming one of `rules`, as the error naming the first cell that is not a
+/// number (in `file`, among its columns `own`) in a text column that rule reads, where there
+/// is one; else `e` as it is.
+pub fn located(
+    e: Error,
+    df: &DataFrame,
+    rules: &[CompiledRule],
+    file: &Path,
+    own: &[String],
+) -> Error {
+    let Error::RuleExpr { rule, .. } = &e else {
+        return e;
+    };
+    let Some(r) = rules.iter().find(|r| rule_label(r) == *rule) else {
+        return e;
+    };
+    let reads = r.reads.iter().filter(|c| own.contains(c));
+    let what = format!("{} (`{}`)", rule_label(r), r.text);
+    crate::load::text_among_numbers(df, reads, file, &what).unwrap_or(e)
 }
 
 /// How errors name rule `r`.

@@ -264,7 +264,7 @@ impl Plan {
 
 impl Planned {
     /// Its value's expression and its null conditions', compiled.
-    fn compiled(&self) -> impl Iterator<Item = &Compiled> {
+    pub(crate) fn compiled(&self) -> impl Iterator<Item = &Compiled> {
         std::iter::once(&self.value).chain(self.conditions.iter().map(|(_, c)| c))
     }
 

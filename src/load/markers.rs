@@ -200,9 +200,11 @@ fn plain(t: &str, decimal_comma: bool) -> Option<Number> {
     } else {
         std::borrow::Cow::Borrowed(t)
     };
-    // Rust's parser takes words for infinities and NaN; those are markers or text.
+    // Rust's parser takes words for infinities and NaN; those are markers or text. A number
+    // beyond the floats' range (`1e400`) is an infinity, as the reader reads it, which the
+    // pass over values that are not finite then notes and makes missing.
     match t.parse::<f64>() {
-        Ok(v) if v.is_finite() && t.bytes().any(|b| b.is_ascii_digit()) => Some(Number::Decimal(v)),
+        Ok(v) if !v.is_nan() && t.bytes().any(|b| b.is_ascii_digit()) => Some(Number::Decimal(v)),
         _ => None,
     }
 }
@@ -447,6 +449,12 @@ mod tests {
                  holds `-`, which is not one",
             ]
         );
+        // A number beyond the floats' range beside a marker: an infinity, as the reader
+        // reads it alone (the column stayed text).
+        let df = df!("x" => ["1e400", "nan", "-2e999", "2"]).unwrap();
+        let (df, _) = numbers_with_markers(df, &[], false).unwrap();
+        let inf = f64::INFINITY;
+        assert_eq!(floats(&df, "x"), [Some(inf), None, Some(-inf), Some(2.0)]);
         // A decimal comma, as the reader takes it.
         let df = df!("x" => ["1,5", "NA"]).unwrap();
         let (df, _) = numbers_with_markers(df, &[], true).unwrap();

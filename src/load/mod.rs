@@ -12,9 +12,11 @@ use crate::{Error, Result};
 mod budget;
 mod contiguous;
 mod csv_file;
+mod fields;
 mod finite;
 mod footer;
 mod markers;
+mod not_numbers;
 mod period;
 mod sheet;
 mod whole;
@@ -25,6 +27,7 @@ use csv_file::{
 };
 pub(crate) use finite::non_finite_as_missing;
 pub(crate) use markers::numbers_with_markers;
+pub(crate) use not_numbers::text_among_numbers;
 use period::{check_period, check_window, fiscal_year, period_as_int};
 
 /// A column read as text for its codes written with leading zeros: its name, and the data row
@@ -336,6 +339,9 @@ pub fn load(
             file: cfg.path.clone(),
         });
     }
+    if cfg.format == InputFormat::Csv {
+        no_short_rows(&df, source, &cfg.path, cfg.csv.delimiter)?;
+    }
     // A CSV column of numbers with `NA`, `.` or `#N/A` for missing ones: numbers, noted.
     let (df, marked) = if cfg.format == InputFormat::Csv {
         markers::numbers_with_markers(df, &keys, cfg.csv.decimal_comma)?
@@ -411,6 +417,33 @@ pub(crate) fn decimals_as_floats(df: DataFrame, keep: &[&str]) -> Result<(DataFr
     Ok((df.lazy().with_columns(casts).collect()?, notes))
 }
 
+/// A CSV read without error may still have had rows with fewer fields than its header, which
+/// the engine fills with missing values: such a row stops the run, named. Only the rows whose
+/// last value came out missing can be short, so only those are split into fields, in the file
+/// at `source` (the input, or its UTF-8 copy; errors name `input`); a compressed file is not
+/// looked at.
+fn no_short_rows(df: &DataFrame, source: &Path, input: &Path, delimiter: char) -> Result<()> {
+    let Some(last) = df.columns().iter().rev().find(|c| c.name() != ROW) else {
+        return Ok(());
+    };
+    if last.null_count() == 0 {
+        return Ok(());
+    }
+    let rows = df
+        .column(ROW)?
+        .filter(&last.is_null())?
+        .cast(&DataType::UInt64)?;
+    let rows: Vec<u64> = rows.u64()?.into_no_null_iter().collect();
+    match fields::ragged_row_in(source, delimiter as u8, &rows).map_err(Error::io(input))? {
+        Some(ragged) => Err(Error::Unreadable {
+            file: input.to_path_buf(),
+            at: format!(", row {}", ragged.row),
+            message: ragged.message(),
+        }),
+        None => Ok(()),
+    }
+}
+
 /// ", row N" for the first row of `bad` (a frame with the row-number column), for messages.
 pub(crate) fn first_row(bad: &DataFrame) -> Result<String> {
     let row = bad.column(ROW)?.cast(&DataType::Int64)?;
@@ -453,6 +486,15 @@ fn unreadable(path: &Path, format: InputFormat, delimiter: char, e: PolarsError)
             at: format!(", row {row}"),
             message: "a quoted field is never closed (a missing `\"`)".into(),
         };
+    }
+    if message.contains("more fields") {
+        if let Some(ragged) = fields::ragged_row(&bytes, delimiter as u8, None) {
+            return Error::Unreadable {
+                file: path.to_path_buf(),
+                at: format!(", row {}", ragged.row),
+                message: ragged.message(),
+            };
+        }
     }
     Error::Unreadable {
         file: path.to_path_buf(),

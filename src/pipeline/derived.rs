@@ -9,6 +9,7 @@ pub(super) fn derive(
     mut panel: DataFrame,
     plan: &Plan,
     columns: &[String],
+    own: &[String],
     input: &InputConfig,
 ) -> Result<(DataFrame, Vec<crate::report::DerivedSummary>)> {
     // Sorted by entity, period and row since the key steps: joins keep the panel's order,
@@ -21,7 +22,7 @@ pub(super) fn derive(
     let (lf, hidden, not_finite) = plan.apply(panel.clone().lazy(), &input.entity, &input.period);
     let with_hidden = match lf.collect() {
         Ok(df) => df,
-        Err(e) => return Err(culprit(&panel, plan, input).unwrap_or(Error::Polars(e))),
+        Err(e) => return Err(culprit(&panel, plan, own, input).unwrap_or(Error::Polars(e))),
     };
     // Kept only to trace a failure: its columns not held past this point.
     drop(panel);
@@ -40,7 +41,9 @@ pub(super) fn derive(
 /// The derived variable whose evaluation fails (text divided, a text that will not convert),
 /// as the error naming it: the variables one more at a time in dependency order, each set
 /// checked by its types, then by its values; the first set that fails ends in the culprit.
-fn culprit(panel: &DataFrame, plan: &Plan, input: &InputConfig) -> Option<Error> {
+/// Where a column of the input (`own`) it computes with is text, the first cell that is not
+/// a number is named instead of the engine's reason.
+fn culprit(panel: &DataFrame, plan: &Plan, own: &[String], input: &InputConfig) -> Option<Error> {
     let upto = |k: usize| {
         let mut part = plan.clone();
         part.vars.truncate(k + 1);
@@ -49,11 +52,18 @@ fn culprit(panel: &DataFrame, plan: &Plan, input: &InputConfig) -> Option<Error>
     };
     let named = |k: usize, e: PolarsError| {
         let var = &plan.vars[k];
-        Error::evaluation(
-            format!("derived variable `{}`", var.name),
-            &var.rule.expr,
-            &e,
-        )
+        let reads = var
+            .compiled()
+            .flat_map(|c| c.raw_columns.iter())
+            .filter(|c| own.contains(c));
+        let what = format!("derived variable `{}` (`{}`)", var.name, var.rule.expr);
+        load::text_among_numbers(panel, reads, &input.path, &what).unwrap_or_else(|| {
+            Error::evaluation(
+                format!("derived variable `{}`", var.name),
+                &var.rule.expr,
+                &e,
+            )
+        })
     };
     let vars = 0..plan.vars.len();
     vars.clone()

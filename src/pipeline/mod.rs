@@ -165,8 +165,13 @@ pub fn prepare_with(
         .chain(plan.reads())
         .collect();
     crate::core::hold_text_as_codes(&mut sample.panel, &keys_and_inputs)?;
-    let (mut panel, derived) =
-        derived::derive(std::mem::take(&mut sample.panel), &plan, &columns, input)?;
+    let (mut panel, derived) = derived::derive(
+        std::mem::take(&mut sample.panel),
+        &plan,
+        &columns,
+        &raw_columns,
+        input,
+    )?;
     crate::core::hold_text_as_codes(&mut panel, &keys_and_inputs[..2])?;
 
     let mut report = Report::new(input_summary(input, &read.loaded, &read.tables));

@@ -23,7 +23,8 @@ pub(super) fn accounting_rules(
         keys.entity,
         keys.period,
     )?;
-    let lines = accounting::count(&with_shifts, compiled, within.as_ref())?;
+    let lines = accounting::count(&with_shifts, compiled, within.as_ref())
+        .map_err(|e| accounting::located(e, &with_shifts, compiled, keys.file, keys.columns))?;
     let panel = accounting::apply_nulls(with_shifts, compiled)?;
     match (
         accounting::drop_mask(compiled),
