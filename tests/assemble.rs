@@ -199,6 +199,9 @@ fn joined_files_with_bad_settings_or_values_are_named() {
         "currency,year,rate\nEUR,2020,1.5\nEUR,20x1,2\n",
     );
     run("", "`rates.csv`, row 2: `year` holds `20x1`");
+    // A row short of a field was read with its rate missing, nothing said.
+    w.write("rates.csv", "currency,year,rate\nEUR,2020,1.5\nEUR,2021\n");
+    run("", "`rates.csv`, row 2: 2 fields where the header has 3");
     // A file that is not there.
     std::fs::remove_file(w.path("rates.csv")).unwrap();
     run("", "rates.csv");

@@ -134,6 +134,9 @@ pub fn read_raw(
             file: path.to_path_buf(),
         });
     }
+    if format == InputFormat::Csv {
+        no_short_rows(&df, source, path, csv.delimiter)?;
+    }
     let mut notes = coded_notes(&coded);
     notes.extend(coded_notes(&coded_further));
     Ok((df, notes))
@@ -417,8 +420,9 @@ pub(crate) fn decimals_as_floats(df: DataFrame, keep: &[&str]) -> Result<(DataFr
     Ok((df.lazy().with_columns(casts).collect()?, notes))
 }
 
-/// A CSV read without error may still have had rows with fewer fields than its header, which
-/// the engine fills with missing values: such a row stops the run, named. Only the rows whose
+/// A CSV read without error (in the file's order) may still have had rows with fewer fields
+/// than its header, which the engine fills with missing values: such a row stops the run,
+/// named. Only the rows whose
 /// last value came out missing can be short, so only those are split into fields, in the file
 /// at `source` (the input, or its UTF-8 copy; errors name `input`); a compressed file is not
 /// looked at.
@@ -429,11 +433,19 @@ fn no_short_rows(df: &DataFrame, source: &Path, input: &Path, delimiter: char) -
     if last.null_count() == 0 {
         return Ok(());
     }
+    // Data rows from 1, as the frame holds them in the file's order.
     let rows = df
-        .column(ROW)?
-        .filter(&last.is_null())?
-        .cast(&DataType::UInt64)?;
-    let rows: Vec<u64> = rows.u64()?.into_no_null_iter().collect();
+        .select([last.name().clone()])?
+        .lazy()
+        .with_row_index("position", Some(1))
+        .filter(col(last.name().clone()).is_null())
+        .select([col("position").cast(DataType::UInt64)])
+        .collect()?;
+    let rows: Vec<u64> = rows
+        .column("position")?
+        .u64()?
+        .into_no_null_iter()
+        .collect();
     match fields::ragged_row_in(source, delimiter as u8, &rows).map_err(Error::io(input))? {
         Some(ragged) => Err(Error::Unreadable {
             file: input.to_path_buf(),
