@@ -1398,6 +1398,37 @@ fn a_number_out_of_range_beside_a_marker_is_a_number() {
     );
 }
 
+/// A check that examined nothing says so: the keys of a file of blank rows only were said
+/// to be "present and unique", and a single period's missing values to have "no sharp change
+/// between periods". Worked by hand.
+#[test]
+fn what_was_not_examined_is_not_passed() {
+    let status = |report: &serde_json::Value, check: &str| {
+        let checks = report["verdict"]["checks"].as_array().unwrap();
+        let line = checks.iter().find(|c| c["check"] == check).unwrap();
+        (
+            line["status"].as_str().unwrap().to_string(),
+            line["reason"].as_str().unwrap().to_string(),
+        )
+    };
+    let (blank, _) = audit_csv("firm,year,x\n,,\n,,\n");
+    assert_eq!(
+        status(&blank, "Keys"),
+        (
+            "not checked".into(),
+            "no key to check: the 2 rows read were all blank".into()
+        )
+    );
+    let (one, _) = audit_csv("firm,year,x\nA,2001,1\nB,2001,2\nC,2001,5\n");
+    let (s, reason) = status(&one, "Missing values");
+    assert_eq!(s, "pass");
+    assert!(reason.contains("a single period, so no change"), "{reason}");
+    let (two, _) = audit_csv("firm,year,x\nA,2001,1\nA,2002,2\nB,2001,5\n");
+    assert_eq!(status(&two, "Keys").0, "pass");
+    let (_, reason) = status(&two, "Missing values");
+    assert_eq!(reason, "no sharp change in coverage between periods");
+}
+
 /// `audit --format json` of the CSV text `csv` (keys `firm` and `year`) in a fresh folder: the
 /// report, and the text it was parsed from.
 fn audit_csv(csv: &str) -> (serde_json::Value, String) {

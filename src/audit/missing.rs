@@ -158,6 +158,15 @@ impl Check for Missing {
                 NotChecked,
                 "no variable besides the keys".into(),
             )
+        } else if found.is_empty() && r.panel.periods < 2 {
+            // Only the variables with no value at all were looked for.
+            line(
+                "Missing values",
+                Pass,
+                "every variable has a value; a single period, so no change in coverage \
+                 between periods to look for"
+                    .into(),
+            )
         } else if found.is_empty() {
             line(
                 "Missing values",

@@ -181,6 +181,15 @@ pub(super) fn keys(r: &Report, lv: &Levels) -> Option<CheckVerdict> {
         ));
     }
     Some(match found.iter().map(|(status, _)| *status).max() {
+        // Blank rows are no cause for a finding, but a file of nothing else has no key at all.
+        None if r.input.rows > 0 && k.blank_rows >= r.input.rows => line(
+            "Keys",
+            NotChecked,
+            format!(
+                "no key to check: the {} rows read were all blank",
+                r.input.rows
+            ),
+        ),
         None => line(
             "Keys",
             Pass,
