@@ -38,12 +38,16 @@ pub enum Error {
         kind: &'static str,
     },
     /// The period column holds something that is not a whole number.
-    #[error("`{file}`: period column `{column}` must hold integers; row {row} has `{value}`")]
+    #[error(
+        "`{file}`: period column `{column}` must hold integers; row {row} has `{value}`{hint}"
+    )]
     NonIntegerPeriod {
         file: PathBuf,
         column: String,
         row: u64,
         value: String,
+        /// What to do instead, for a date ("" when there is nothing to say).
+        hint: String,
     },
     /// The period column's window holds more periods than a panel may
     /// (`rules::MAX_WINDOW_PERIODS`).

@@ -115,6 +115,18 @@ fn malformed_csv_stops_with_one_located_line() {
             "",
             &["raw.csv", "row 2", "`twenty`"],
         ),
+        // A date where the period should be points to the setting that derives fiscal years.
+        bad(
+            "date as period",
+            b"firm,year,assets\nA,2001-12-31,1\nB,2002-06-30,2\n",
+            "",
+            &[
+                "raw.csv",
+                "row 1",
+                "`2001-12-31`",
+                "`[panel] year_end = \"year\"`",
+            ],
+        ),
         bad(
             "decimal period",
             b"firm,year,assets\nA,2001.5,1\n",

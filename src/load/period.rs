@@ -218,10 +218,31 @@ pub(super) fn check_period(df: &DataFrame, cfg: &InputConfig, dtype: &DataType) 
     }
     let row = first.column(ROW)?.cast(&DataType::UInt64)?.u64()?.get(0);
     let value = first.column("value")?.str()?.get(0).map(str::to_string);
+    let dated = matches!(dtype, DataType::Date | DataType::Datetime(..))
+        || value.as_deref().is_some_and(looks_like_a_date);
     Err(Error::NonIntegerPeriod {
         file: cfg.path.clone(),
         column: cfg.period.clone(),
         row: row.unwrap_or(0),
         value: value.unwrap_or_else(|| dtype.to_string()),
+        hint: if dated {
+            format!(
+                " (a date: `[panel] year_end = \"{}\"` derives fiscal years from it, into a \
+                 period column of another name)",
+                cfg.period
+            )
+        } else {
+            String::new()
+        },
     })
+}
+
+/// Whether `value` starts as a date does, `YYYY-MM-DD` (a timestamp after it or not).
+fn looks_like_a_date(value: &str) -> bool {
+    let b = value.trim().as_bytes();
+    b.len() >= 10
+        && b[..10].iter().enumerate().all(|(i, c)| match i {
+            4 | 7 => *c == b'-',
+            _ => c.is_ascii_digit(),
+        })
 }
