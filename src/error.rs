@@ -149,11 +149,14 @@ pub enum Error {
     #[error("`{path}`: {message}")]
     VerifyInput { path: PathBuf, message: String },
     /// `compare` needs one row per key on each side.
-    #[error("`{file}`: key {entity} in {period} is on rows with different values; `compare` needs one row per key (build both files and compare the bundles)")]
+    #[error("`{file}`: key {entity} in {period} is on rows {first} and {second} with different values; `compare` needs one row per key (build both files and compare the bundles)")]
     CompareKey {
         file: PathBuf,
         entity: String,
         period: i64,
+        /// The first two data rows carrying the key with different values.
+        first: u64,
+        second: u64,
     },
     /// The input file does not exist (or is a folder without Parquet files).
     #[error("`{file}`: no such file")]

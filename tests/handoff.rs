@@ -626,7 +626,8 @@ fn compare_counts_exact_copies_once_and_refuses_a_key_with_two_rows_of_values() 
     // Worked by hand. `old.csv`: A-1 twice with the same values (an exact copy, counted once),
     // a row without its period (left out), B-2 after B-1 out of order; `new.csv`: the same
     // firm-years, B-2's x changed. 6 rows read, 1 without a key, 1 copy, 4 firm-years; 1 cell
-    // changed. A key on rows with different values cannot be matched: refused, naming it.
+    // changed. A key on rows with different values cannot be matched: refused, naming it and
+    // its rows.
     let w = Workdir::new();
     w.write(
         "old.csv",
@@ -660,7 +661,11 @@ fn compare_counts_exact_copies_once_and_refuses_a_key_with_two_rows_of_values() 
     w.write("clash.csv", "f,y,x\nA,1,1.5\nB,1,3\nA,1,1.6\n");
     let mut args = vec!["compare", "clash.csv", "new.csv"];
     args.extend(keys);
-    w.fails(&args, "key A in 1 is on rows with different values");
+    w.fails(&args, "key A in 1 is on rows 1 and 3 with different values");
+    // An exact copy of the first row comes before the row that differs: the rows named are
+    // the first and the one with other values.
+    w.write("clash.csv", "f,y,x\nA,1,1.5\nA,1,1.5\nB,1,3\nA,1,1.6\n");
+    w.fails(&args, "key A in 1 is on rows 1 and 4 with different values");
 }
 
 #[test]

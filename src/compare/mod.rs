@@ -223,9 +223,9 @@ fn bundle_vintage(dir: &Path) -> Result<Vintage> {
 fn raw_vintage(cfg: &InputConfig) -> Result<Vintage> {
     let loaded = crate::load::load(cfg, &[], None)?;
     let (e, p) = (cfg.entity.as_str(), cfg.period.as_str());
+    let row = crate::load::ROW;
     let rows_read = loaded.rows;
-    let mut df = loaded.df;
-    df.drop_in_place(crate::load::ROW)?;
+    let df = loaded.df;
     // Rows without a key left out: a copy of the file only when there are some.
     let keyless = df.column(e)?.null_count() + df.column(p)?.null_count() > 0;
     let keyed = match keyless {
@@ -237,15 +237,17 @@ fn raw_vintage(cfg: &InputConfig) -> Result<Vintage> {
     };
     let rows_without_key = rows_read - keyed.height() as u64;
     // Exact copies are looked for among the rows whose key repeats only (whole rows hashed
-    // there, the keys alone sorted elsewhere), the first of each kept in place.
+    // there, the keys alone sorted elsewhere, the file's row number aside), the first of each
+    // kept in place.
     let keys = pairs::Keys::of(keyed.column(e)?, keyed.column(p)?)?;
-    let (unique, keys) = match keys.repeated() {
+    let (mut unique, keys) = match keys.repeated() {
         None => (keyed, keys),
         Some(repeated) => {
-            let rows = keyed.with_row_index("__row".into(), None)?;
+            let rows = keyed.with_row_index("__at".into(), None)?;
             let values: Vec<String> = keyed
                 .get_column_names()
                 .iter()
+                .filter(|c| c.as_str() != row)
                 .map(|c| c.to_string())
                 .collect();
             let first = rows.filter(&repeated)?.unique_stable(
@@ -254,17 +256,28 @@ fn raw_vintage(cfg: &InputConfig) -> Result<Vintage> {
                 None,
             )?;
             // A key still on two rows has rows with different values: it cannot be matched to
-            // one row of the other vintage (the first such key named).
+            // one row of the other vintage (the first such key named, with its first two rows).
             let conflicting = first.select([e, p])?.is_duplicated()?;
             if let Some(r) = conflicting.iter().position(|c| c == Some(true)) {
+                let entity = first.column(e)?.str()?.get(r).unwrap_or("").to_string();
+                let period = first.column(p)?.i64()?.get(r).unwrap_or(0);
+                let same = first
+                    .clone()
+                    .lazy()
+                    .filter(col(e).eq(lit(entity.clone())).and(col(p).eq(lit(period))))
+                    .select([col(row).cast(DataType::UInt64)])
+                    .collect()?;
+                let rows = same.column(row)?.u64()?;
                 return Err(Error::CompareKey {
                     file: cfg.path.clone(),
-                    entity: first.column(e)?.str()?.get(r).unwrap_or("").to_string(),
-                    period: first.column(p)?.i64()?.get(r).unwrap_or(0),
+                    entity,
+                    period,
+                    first: rows.get(0).unwrap_or(0),
+                    second: rows.get(1).unwrap_or(0),
                 });
             }
             let mut keep: Vec<bool> = repeated.iter().map(|r| r != Some(true)).collect();
-            for r in first.column("__row")?.idx()?.into_no_null_iter() {
+            for r in first.column("__at")?.idx()?.into_no_null_iter() {
                 keep[r as usize] = true;
             }
             let unique = keyed.filter(&BooleanChunked::from_slice("keep".into(), &keep))?;
@@ -272,6 +285,7 @@ fn raw_vintage(cfg: &InputConfig) -> Result<Vintage> {
             (unique, keys)
         }
     };
+    unique.drop_in_place(row)?;
     let exact_copies = rows_read - rows_without_key - unique.height() as u64;
     let entities = keys.entities();
     Ok(Vintage {
