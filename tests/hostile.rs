@@ -227,6 +227,19 @@ fn malformed_csv_stops_with_one_located_line() {
                 "accounting rule `r` (`assets > 0`)",
             ],
         ),
+        // A column the header leaves without a name but which holds values cannot be named
+        // by a rule and showed in the reports as ``: stopped, its place and value named.
+        bad(
+            "unnamed column with values",
+            b"firm,year,,assets\nA,2001,5,1\nA,2002,6,2\n",
+            "",
+            &[
+                "raw.csv",
+                "column 3",
+                "without a name",
+                "data row 1 holds `5`",
+            ],
+        ),
         bad(
             "conflicting keys under fail",
             b"firm,year,assets\nA,2001,1\nA,2001,2\n",
@@ -1439,6 +1452,32 @@ fn what_was_not_examined_is_not_passed() {
     assert_eq!(status(&two, "Keys").0, "pass");
     let (_, reason) = status(&two, "Missing values");
     assert_eq!(reason, "no sharp change in coverage between periods");
+}
+
+/// A delimiter at the end of every line (an export's habit) makes a last column without a
+/// name or a value: it was a variable called `` in every check, and two of them stopped the
+/// run as a repeated name. Left out and noted. Worked by hand.
+#[test]
+fn a_delimiter_at_the_end_of_each_line_adds_no_column() {
+    for csv in [
+        "firm,year,x,\nA,2001,1,\nA,2002,2,\nB,2001,3,\n",
+        "firm,year,x,,\nA,2001,1,,\nA,2002,2,,\nB,2001,3,,\n",
+    ] {
+        let (report, _) = audit_csv(csv);
+        let variables: Vec<&str> = report["variation"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|v| v["variable"].as_str().unwrap())
+            .collect();
+        assert_eq!(variables, ["x"], "{csv}");
+        assert_eq!(report["input"]["columns"], 3);
+        let notes = report["input"]["notes"].to_string();
+        assert!(
+            notes.contains("column 4 of the header has no name and no value"),
+            "{notes}"
+        );
+    }
 }
 
 /// `audit --format json` of the CSV text `csv` (keys `firm` and `year`) in a fresh folder: the

@@ -40,9 +40,9 @@ impl Drop for Transcoded {
     }
 }
 
-/// The first name that appears twice in a CSV header (the engine would rename the copy).
-/// Compressed files are left to the engine.
-pub(super) fn repeated_header_name(path: &Path, delimiter: char) -> Result<Option<String>> {
+/// The names of a CSV header as written (RFC 4180: a doubled quote inside quotes is one
+/// quote); None for a compressed file, which is left to the engine.
+pub(super) fn header_names(path: &Path, delimiter: char) -> Result<Option<Vec<String>>> {
     use std::io::BufRead;
     let file = std::fs::File::open(path).map_err(Error::io(path))?;
     let mut line = Vec::new();
@@ -74,8 +74,75 @@ pub(super) fn repeated_header_name(path: &Path, delimiter: char) -> Result<Optio
         }
     }
     names.push(field);
+    Ok(Some(names))
+}
+
+/// The first name that appears twice in a CSV header (the engine would rename the copy);
+/// names left empty are columns without a name ([`unnamed_columns`]), not repeats.
+pub(super) fn repeated_header_name(path: &Path, delimiter: char) -> Result<Option<String>> {
+    let Some(names) = header_names(path, delimiter)? else {
+        return Ok(None);
+    };
     let mut seen = std::collections::HashSet::new();
-    Ok(names.into_iter().find(|n| !seen.insert(n.clone())))
+    Ok(names
+        .into_iter()
+        .filter(|n| !n.trim().is_empty())
+        .find(|n| !seen.insert(n.clone())))
+}
+
+/// `df` (a CSV file's columns in the order of its header `names`, after the row number when
+/// it has one) without the columns the header leaves unnamed, and a note for each: such a
+/// column with no value at all — what a delimiter at the end of every line makes — is left
+/// out; one holding a value stops the run, naming its place in the header and its first value
+/// (no rule could name it, and the reports would show it without a name).
+pub(super) fn unnamed_columns(
+    df: DataFrame,
+    names: &[String],
+    file: &Path,
+) -> Result<(DataFrame, Vec<String>)> {
+    let columns: Vec<PlSmallStr> = df
+        .get_column_names()
+        .into_iter()
+        .filter(|c| c.as_str() != super::ROW)
+        .cloned()
+        .collect();
+    if columns.len() != names.len() || names.iter().all(|n| !n.trim().is_empty()) {
+        return Ok((df, Vec::new()));
+    }
+    let mut unnamed = Vec::new();
+    let mut notes = Vec::new();
+    for (place, (name, column)) in names.iter().zip(&columns).enumerate() {
+        if !name.trim().is_empty() {
+            continue;
+        }
+        let c = df.column(column)?;
+        if c.null_count() < c.len() {
+            let first = c.as_materialized_series().drop_nulls();
+            let row = c
+                .is_not_null()
+                .iter()
+                .position(|v| v == Some(true))
+                .unwrap_or(0)
+                + 1;
+            let value = first.get(0).map(|v| v.to_string()).unwrap_or_default();
+            return Err(Error::Unreadable {
+                file: file.to_path_buf(),
+                at: format!(", column {}", place + 1),
+                message: format!(
+                    "the header leaves this column without a name, but it holds values (data \
+                     row {row} holds `{}`): give it a name",
+                    value.trim_matches('"')
+                ),
+            });
+        }
+        unnamed.push(column.clone());
+        notes.push(format!(
+            "column {} of the header has no name and no value in any row (a delimiter at the \
+             end of each line): left out",
+            place + 1
+        ));
+    }
+    Ok((df.drop_many(unnamed), notes))
 }
 
 /// The data row (1 = first row after the header) and the 1-based field at the end of

@@ -23,7 +23,8 @@ mod whole;
 
 use budget::check_budget;
 use csv_file::{
-    csv_position, names_as_written, not_utf16, repeated_header_name, unclosed_quote, Transcoded,
+    csv_position, header_names, names_as_written, not_utf16, repeated_header_name, unclosed_quote,
+    unnamed_columns, Transcoded,
 };
 pub(crate) use finite::non_finite_as_missing;
 pub(crate) use markers::numbers_with_markers;
@@ -137,7 +138,8 @@ pub fn read_raw(
     if format == InputFormat::Csv {
         no_short_rows(&df, source, path, csv.delimiter)?;
     }
-    let mut notes = coded_notes(&coded);
+    let (df, mut notes) = without_unnamed(df, format, source, path, csv.delimiter)?;
+    notes.extend(coded_notes(&coded));
     notes.extend(coded_notes(&coded_further));
     Ok((df, notes))
 }
@@ -345,6 +347,11 @@ pub fn load(
     if cfg.format == InputFormat::Csv {
         no_short_rows(&df, source, &cfg.path, cfg.csv.delimiter)?;
     }
+    let (df, unnamed) = without_unnamed(df, cfg.format, source, &cfg.path, cfg.csv.delimiter)?;
+    let columns: Vec<String> = columns
+        .into_iter()
+        .filter(|c| df.schema().contains(c))
+        .collect();
     // A CSV column of numbers with `NA`, `.` or `#N/A` for missing ones: numbers, noted.
     let (df, marked) = if cfg.format == InputFormat::Csv {
         markers::numbers_with_markers(df, &keys, cfg.csv.decimal_comma)?
@@ -382,6 +389,7 @@ pub fn load(
     let (df, non_finite) = non_finite_as_missing(df, &[&cfg.entity, &cfg.period])?;
     check_window(&df, cfg)?;
     let (sheet, mut notes) = sheet.map_or((None, Vec::new()), |s| (Some(s.name), s.notes));
+    notes.extend(unnamed);
     notes.extend(coded_notes(&coded));
     notes.extend(coded_notes(&coded_further));
     notes.extend(marked);
@@ -418,6 +426,24 @@ pub(crate) fn decimals_as_floats(df: DataFrame, keep: &[&str]) -> Result<(DataFr
         return Ok((df, notes));
     }
     Ok((df.lazy().with_columns(casts).collect()?, notes))
+}
+
+/// `df` without the columns a CSV header leaves unnamed ([`unnamed_columns`]), read from the
+/// file at `source` (errors name `input`); other formats as they are.
+fn without_unnamed(
+    df: DataFrame,
+    format: InputFormat,
+    source: &Path,
+    input: &Path,
+    delimiter: char,
+) -> Result<(DataFrame, Vec<String>)> {
+    if format != InputFormat::Csv {
+        return Ok((df, Vec::new()));
+    }
+    match header_names(source, delimiter)? {
+        Some(names) => unnamed_columns(df, &names, input),
+        None => Ok((df, Vec::new())),
+    }
 }
 
 /// A CSV read without error (in the file's order) may still have had rows with fewer fields
