@@ -150,27 +150,24 @@ pub fn grouped_quantiles(
 ) -> Option<Vec<Vec<Option<f64>>>> {
     let (values, ok) = x.parts();
     let present = |r: usize| ok.is_none_or(|ok| ok[r]);
-    let mut sizes = vec![0usize; groups];
-    for r in (0..values.len()).filter(|r| present(*r)) {
-        sizes[group(r)] += 1;
-    }
-    if sizes.iter().any(|n| (1..=SMALL).contains(n)) {
-        return None;
-    }
     // Every `step`-th value of each group, counted within the group: evenly spaced rows of the
     // whole column would, in a panel sorted by entity with the same periods for each (a
     // balanced one), fall on a few periods only whenever the step shares a factor with their
     // number (every third row of a three-period panel is always the same period), leaving the
-    // other periods without a sample and the caller to gather every group.
+    // other periods without a sample and the caller to gather every group. The same pass
+    // counts each group's values.
     let step = values.len().div_ceil(SAMPLE).max(1);
     let mut samples: Vec<Vec<i64>> = vec![Vec::new(); groups];
-    let mut seen = vec![0usize; groups];
+    let mut sizes = vec![0usize; groups];
     for r in (0..values.len()).filter(|r| present(*r)) {
         let g = group(r);
-        if seen[g].is_multiple_of(step) {
+        if sizes[g].is_multiple_of(step) {
             samples[g].push(key(values[r]));
         }
-        seen[g] += 1;
+        sizes[g] += 1;
+    }
+    if sizes.iter().any(|n| (1..=SMALL).contains(n)) {
+        return None;
     }
     let ks: Vec<Vec<usize>> = sizes.iter().map(|n| ranks(*n, ps)).collect();
     let mut tallies = Vec::with_capacity(groups);
