@@ -43,20 +43,23 @@ impl Ragged {
 /// The first of `rows` (ascending data rows; every row when None) of the CSV `bytes` whose
 /// number of fields is not the header's, blank records left aside.
 pub(super) fn ragged_row(bytes: &[u8], delimiter: u8, rows: Option<&[u64]>) -> Option<Ragged> {
-    let mut walk = Walk::new(delimiter, rows);
+    let mut walk = Walk::new(delimiter, rows, 0);
     walk.feed(bytes).or_else(|| walk.end())
 }
 
 /// [`ragged_row`] over the file at `path`, read a block at a time (the file is not held
-/// whole). A compressed file is not looked at: None.
+/// whole), a row allowed to lack the header's last `may_lack` fields (columns without a name
+/// or a value, which a delimiter at the end of the header's line makes). A compressed file is
+/// not looked at: None.
 pub(super) fn ragged_row_in(
     path: &Path,
     delimiter: u8,
     rows: &[u64],
+    may_lack: usize,
 ) -> std::io::Result<Option<Ragged>> {
     let mut file = std::fs::File::open(path)?;
     let mut block = vec![0u8; 8 << 20];
-    let mut walk = Walk::new(delimiter, Some(rows));
+    let mut walk = Walk::new(delimiter, Some(rows), may_lack);
     let mut first = true;
     loop {
         let n = file.read(&mut block)?;
@@ -94,10 +97,12 @@ struct Walk<'a> {
     len: usize,
     first: u8,
     header: usize,
+    /// The header's last fields a row may lack.
+    may_lack: usize,
 }
 
 impl<'a> Walk<'a> {
-    fn new(delimiter: u8, rows: Option<&'a [u64]>) -> Walk<'a> {
+    fn new(delimiter: u8, rows: Option<&'a [u64]>, may_lack: usize) -> Walk<'a> {
         Walk {
             delimiter,
             rows,
@@ -108,6 +113,7 @@ impl<'a> Walk<'a> {
             len: 0,
             first: 0,
             header: 0,
+            may_lack,
         }
     }
 
@@ -183,7 +189,8 @@ impl<'a> Walk<'a> {
             None
         } else if split {
             self.next += usize::from(self.rows.is_some());
-            (!blank && self.fields != self.header).then_some(Ragged {
+            let short = self.fields + self.may_lack < self.header;
+            (!blank && (short || self.fields > self.header)).then_some(Ragged {
                 row: self.row,
                 fields: self.fields,
                 header: self.header,
@@ -238,7 +245,7 @@ mod tests {
         assert_eq!(ragged(text, Some(&[2, 4])), None);
         assert_eq!(ragged(text, Some(&[2, 3])), Some((3, 2, 3)));
         for size in 1..text.len() {
-            let mut walk = Walk::new(b',', Some(&[2, 3]));
+            let mut walk = Walk::new(b',', Some(&[2, 3]), 0);
             let found = text
                 .as_bytes()
                 .chunks(size)
@@ -261,7 +268,7 @@ mod tests {
         text.push_str("G,2001\n");
         std::fs::write(&path, &text).unwrap();
         let last = 400_001;
-        let found = ragged_row_in(&path, b',', &[5, last]).unwrap();
+        let found = ragged_row_in(&path, b',', &[5, last], 0).unwrap();
         assert_eq!(
             found,
             Some(Ragged {
@@ -270,8 +277,12 @@ mod tests {
                 header: 3
             })
         );
-        assert_eq!(ragged_row_in(&path, b',', &[5]).unwrap(), None);
+        assert_eq!(ragged_row_in(&path, b',', &[5], 0).unwrap(), None);
+        // The header ends with two fields without a name: a row may lack them, not more.
+        std::fs::write(&path, "firm,year,x,,\nA,1,2,,\nA,2,3\nA,3\n").unwrap();
+        let found = ragged_row_in(&path, b',', &[1, 2, 3], 2).unwrap();
+        assert_eq!(found.map(|r| (r.row, r.fields, r.header)), Some((3, 2, 5)));
         std::fs::write(&path, [0x1f, 0x8b, 0, 0]).unwrap();
-        assert_eq!(ragged_row_in(&path, b',', &[1]).unwrap(), None);
+        assert_eq!(ragged_row_in(&path, b',', &[1], 0).unwrap(), None);
     }
 }

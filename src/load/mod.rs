@@ -135,10 +135,7 @@ pub fn read_raw(
             file: path.to_path_buf(),
         });
     }
-    if format == InputFormat::Csv {
-        no_short_rows(&df, source, path, csv.delimiter)?;
-    }
-    let (df, mut notes) = without_unnamed(df, format, source, path, csv.delimiter)?;
+    let (df, mut notes) = csv_shape(df, format, source, path, csv.delimiter)?;
     notes.extend(coded_notes(&coded));
     notes.extend(coded_notes(&coded_further));
     Ok((df, notes))
@@ -344,10 +341,7 @@ pub fn load(
             file: cfg.path.clone(),
         });
     }
-    if cfg.format == InputFormat::Csv {
-        no_short_rows(&df, source, &cfg.path, cfg.csv.delimiter)?;
-    }
-    let (df, unnamed) = without_unnamed(df, cfg.format, source, &cfg.path, cfg.csv.delimiter)?;
+    let (df, unnamed) = csv_shape(df, cfg.format, source, &cfg.path, cfg.csv.delimiter)?;
     let columns: Vec<String> = columns
         .into_iter()
         .filter(|c| df.schema().contains(c))
@@ -428,9 +422,11 @@ pub(crate) fn decimals_as_floats(df: DataFrame, keep: &[&str]) -> Result<(DataFr
     Ok((df.lazy().with_columns(casts).collect()?, notes))
 }
 
-/// `df` without the columns a CSV header leaves unnamed ([`unnamed_columns`]), read from the
-/// file at `source` (errors name `input`); other formats as they are.
-fn without_unnamed(
+/// A CSV file read (from `source`, the input or its UTF-8 copy; errors name `input`) checked
+/// against its header: `df` without the columns the header leaves unnamed
+/// ([`unnamed_columns`]), with their notes, and no row short of fields ([`no_short_rows`]).
+/// Other formats, and a compressed CSV, as they are.
+fn csv_shape(
     df: DataFrame,
     format: InputFormat,
     source: &Path,
@@ -440,19 +436,33 @@ fn without_unnamed(
     if format != InputFormat::Csv {
         return Ok((df, Vec::new()));
     }
-    match header_names(source, delimiter)? {
-        Some(names) => unnamed_columns(df, &names, input),
-        None => Ok((df, Vec::new())),
-    }
+    let Some(names) = header_names(source, delimiter)? else {
+        return Ok((df, Vec::new()));
+    };
+    let (df, notes) = unnamed_columns(df, &names, input)?;
+    // Unnamed columns closing the header are empty in every row (else an error above): a row
+    // may lack them.
+    let may_lack = names
+        .iter()
+        .rev()
+        .take_while(|n| n.trim().is_empty())
+        .count();
+    no_short_rows(&df, source, input, delimiter, may_lack)?;
+    Ok((df, notes))
 }
 
 /// A CSV read without error (in the file's order) may still have had rows with fewer fields
 /// than its header, which the engine fills with missing values: such a row stops the run,
-/// named. Only the rows whose
-/// last value came out missing can be short, so only those are split into fields, in the file
-/// at `source` (the input, or its UTF-8 copy; errors name `input`); a compressed file is not
-/// looked at.
-fn no_short_rows(df: &DataFrame, source: &Path, input: &Path, delimiter: char) -> Result<()> {
+/// named. Only the rows whose last value came out missing can be short, so only those are
+/// split into fields, in the file at `source`; a row may lack the header's last `may_lack`
+/// fields.
+fn no_short_rows(
+    df: &DataFrame,
+    source: &Path,
+    input: &Path,
+    delimiter: char,
+    may_lack: usize,
+) -> Result<()> {
     let Some(last) = df.columns().iter().rev().find(|c| c.name() != ROW) else {
         return Ok(());
     };
@@ -472,7 +482,8 @@ fn no_short_rows(df: &DataFrame, source: &Path, input: &Path, delimiter: char) -
         .u64()?
         .into_no_null_iter()
         .collect();
-    match fields::ragged_row_in(source, delimiter as u8, &rows).map_err(Error::io(input))? {
+    let found = fields::ragged_row_in(source, delimiter as u8, &rows, may_lack);
+    match found.map_err(Error::io(input))? {
         Some(ragged) => Err(Error::Unreadable {
             file: input.to_path_buf(),
             at: format!(", row {}", ragged.row),
