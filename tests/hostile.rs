@@ -984,6 +984,18 @@ fn files_researchers_really_get_are_read() {
         std::fs::read_to_string(w.path("gz/panel.csv")).unwrap(),
         want
     );
+    // A compressed file's rows are checked against its header as a plain file's are.
+    w.write("short.csv", "firm,year,assets\nA,2001,1\nA,2002\n");
+    let status = std::process::Command::new("gzip")
+        .args(["-k", "-n"])
+        .arg(w.path("short.csv"))
+        .status()
+        .expect("gzip is needed for this test");
+    assert!(status.success());
+    w.fails(
+        &["audit", "short.csv.gz", "--rules", "rules.toml"],
+        "`short.csv.gz`, row 2: 2 fields where the header has 3",
+    );
 }
 
 /// The engine's Parquet decode setting, which the binary sets unless the user has: a value

@@ -40,18 +40,30 @@ impl Drop for Transcoded {
     }
 }
 
+/// The text of the CSV file at `path`, decompressed on the way when it is gzip or zstd
+/// compressed (as the engine reads such a file).
+pub(super) fn open_text(path: &Path) -> std::io::Result<Box<dyn std::io::Read>> {
+    use std::io::{Read, Seek};
+    let mut file = std::fs::File::open(path)?;
+    let mut magic = [0u8; 4];
+    let n = file.read(&mut magic)?;
+    file.rewind()?;
+    Ok(match &magic[..n] {
+        [0x1f, 0x8b, ..] => Box::new(flate2::read::MultiGzDecoder::new(file)),
+        [0x28, 0xb5, 0x2f, 0xfd] => Box::new(zstd::stream::read::Decoder::new(file)?),
+        _ => Box::new(file),
+    })
+}
+
 /// The names of a CSV header as written (RFC 4180: a doubled quote inside quotes is one
-/// quote); None for a compressed file, which is left to the engine.
+/// quote), of a compressed file too.
 pub(super) fn header_names(path: &Path, delimiter: char) -> Result<Option<Vec<String>>> {
     use std::io::BufRead;
-    let file = std::fs::File::open(path).map_err(Error::io(path))?;
+    let text = open_text(path).map_err(Error::io(path))?;
     let mut line = Vec::new();
-    std::io::BufReader::new(file)
+    std::io::BufReader::new(text)
         .read_until(b'\n', &mut line)
         .map_err(Error::io(path))?;
-    if line.starts_with(&[0x1f, 0x8b]) || line.starts_with(&[0x28, 0xb5, 0x2f, 0xfd]) {
-        return Ok(None);
-    }
     let text = String::from_utf8_lossy(&line);
     let mut names = Vec::new();
     let (mut field, mut quoted) = (String::new(), false);

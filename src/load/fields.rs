@@ -47,27 +47,23 @@ pub(super) fn ragged_row(bytes: &[u8], delimiter: u8, rows: Option<&[u64]>) -> O
     walk.feed(bytes).or_else(|| walk.end())
 }
 
-/// [`ragged_row`] over the file at `path`, read a block at a time (the file is not held
-/// whole), a row allowed to lack the header's last `may_lack` fields (columns without a name
-/// or a value, which a delimiter at the end of the header's line makes). A compressed file is
-/// not looked at: None.
+/// [`ragged_row`] over the file at `path` (decompressed on the way when it is compressed),
+/// read a block at a time (the file is not held whole), a row allowed to lack the header's
+/// last `may_lack` fields (columns without a name or a value, which a delimiter at the end of
+/// the header's line makes).
 pub(super) fn ragged_row_in(
     path: &Path,
     delimiter: u8,
     rows: &[u64],
     may_lack: usize,
 ) -> std::io::Result<Option<Ragged>> {
-    let mut file = std::fs::File::open(path)?;
+    let mut text = super::csv_file::open_text(path)?;
     let mut block = vec![0u8; 8 << 20];
     let mut walk = Walk::new(delimiter, Some(rows), may_lack);
-    let mut first = true;
     loop {
-        let n = file.read(&mut block)?;
+        let n = text.read(&mut block)?;
         if n == 0 {
             return Ok(walk.end());
-        }
-        if std::mem::take(&mut first) && is_compressed(&block[..n]) {
-            return Ok(None);
         }
         if let Some(found) = walk.feed(&block[..n]) {
             return Ok(Some(found));
@@ -76,11 +72,6 @@ pub(super) fn ragged_row_in(
             return Ok(None);
         }
     }
-}
-
-/// Whether a file starting with `start` is gzip or zstd compressed.
-fn is_compressed(start: &[u8]) -> bool {
-    start.starts_with(&[0x1f, 0x8b]) || start.starts_with(&[0x28, 0xb5, 0x2f, 0xfd])
 }
 
 /// The walk over the records, carried from one block of bytes to the next.
@@ -255,8 +246,8 @@ mod tests {
         }
     }
 
-    /// A file read a block at a time: a short row far down is found, a compressed file left
-    /// alone.
+    /// A file read a block at a time: a short row far down is found, in a gzip- or
+    /// zstd-compressed file too.
     #[test]
     fn a_file_a_block_at_a_time() {
         let dir = tempfile::tempdir().unwrap();
@@ -282,7 +273,13 @@ mod tests {
         std::fs::write(&path, "firm,year,x,,\nA,1,2,,\nA,2,3\nA,3\n").unwrap();
         let found = ragged_row_in(&path, b',', &[1, 2, 3], 2).unwrap();
         assert_eq!(found.map(|r| (r.row, r.fields, r.header)), Some((3, 2, 5)));
-        std::fs::write(&path, [0x1f, 0x8b, 0, 0]).unwrap();
-        assert_eq!(ragged_row_in(&path, b',', &[1], 0).unwrap(), None);
+        let mut gz = flate2::write::GzEncoder::new(Vec::new(), flate2::Compression::fast());
+        std::io::Write::write_all(&mut gz, text.as_bytes()).unwrap();
+        std::fs::write(&path, gz.finish().unwrap()).unwrap();
+        let found = ragged_row_in(&path, b',', &[5, last], 0).unwrap();
+        assert_eq!(found.map(|r| r.row), Some(last));
+        std::fs::write(&path, zstd::encode_all(text.as_bytes(), 1).unwrap()).unwrap();
+        let found = ragged_row_in(&path, b',', &[5, last], 0).unwrap();
+        assert_eq!(found.map(|r| r.row), Some(last));
     }
 }

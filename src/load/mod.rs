@@ -425,7 +425,7 @@ pub(crate) fn decimals_as_floats(df: DataFrame, keep: &[&str]) -> Result<(DataFr
 /// A CSV file read (from `source`, the input or its UTF-8 copy; errors name `input`) checked
 /// against its header: `df` without the columns the header leaves unnamed
 /// ([`unnamed_columns`]), with their notes, and no row short of fields ([`no_short_rows`]).
-/// Other formats, and a compressed CSV, as they are.
+/// Other formats as they are.
 fn csv_shape(
     df: DataFrame,
     format: InputFormat,
