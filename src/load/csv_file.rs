@@ -6,6 +6,7 @@ use std::path::Path;
 
 use polars::prelude::*;
 
+use crate::config::InputFormat;
 use crate::{Error, Result};
 
 /// A UTF-8 copy of a Windows-1252 file, removed when dropped.
@@ -57,7 +58,7 @@ pub(super) fn open_text(path: &Path) -> std::io::Result<Box<dyn std::io::Read>> 
 
 /// The names of a CSV header as written (RFC 4180: a doubled quote inside quotes is one
 /// quote), of a compressed file too.
-pub(super) fn header_names(path: &Path, delimiter: char) -> Result<Option<Vec<String>>> {
+fn header_names(path: &Path, delimiter: char) -> Result<Option<Vec<String>>> {
     use std::io::BufRead;
     let text = open_text(path).map_err(Error::io(path))?;
     let mut line = Vec::new();
@@ -107,7 +108,7 @@ pub(super) fn repeated_header_name(path: &Path, delimiter: char) -> Result<Optio
 /// column with no value at all — what a delimiter at the end of every line makes — is left
 /// out; one holding a value stops the run, naming its place in the header and its first value
 /// (no rule could name it, and the reports would show it without a name).
-pub(super) fn unnamed_columns(
+fn unnamed_columns(
     df: DataFrame,
     names: &[String],
     file: &Path,
@@ -155,6 +156,35 @@ pub(super) fn unnamed_columns(
         ));
     }
     Ok((df.drop_many(unnamed), notes))
+}
+
+/// A CSV file read (from `source`, the input or its UTF-8 copy; errors name `input`) checked
+/// against its header: `df` without the columns the header leaves unnamed
+/// ([`unnamed_columns`]), with their notes, and no row short of fields
+/// ([`super::fields::no_short_rows`]). Other formats as they are.
+pub(super) fn csv_shape(
+    df: DataFrame,
+    format: InputFormat,
+    source: &Path,
+    input: &Path,
+    delimiter: char,
+) -> Result<(DataFrame, Vec<String>)> {
+    if format != InputFormat::Csv {
+        return Ok((df, Vec::new()));
+    }
+    let Some(names) = header_names(source, delimiter)? else {
+        return Ok((df, Vec::new()));
+    };
+    let (df, notes) = unnamed_columns(df, &names, input)?;
+    // Unnamed columns closing the header are empty in every row (else an error above): a row
+    // may lack them.
+    let may_lack = names
+        .iter()
+        .rev()
+        .take_while(|n| n.trim().is_empty())
+        .count();
+    super::fields::no_short_rows(&df, source, input, delimiter, may_lack)?;
+    Ok((df, notes))
 }
 
 /// The data row (1 = first row after the header) and the 1-based field at the end of

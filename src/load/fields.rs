@@ -11,6 +11,10 @@
 use std::io::Read;
 use std::path::Path;
 
+use polars::prelude::*;
+
+use crate::{Error, Result};
+
 /// A data row (1 = the first after the header) whose number of fields is not the header's.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub(super) struct Ragged {
@@ -71,6 +75,48 @@ pub(super) fn ragged_row_in(
         if walk.done() {
             return Ok(None);
         }
+    }
+}
+
+/// A CSV read without error (in the file's order) may still have had rows with fewer fields
+/// than its header, which the engine fills with missing values: such a row stops the run,
+/// named. Only the rows whose last value came out missing can be short, so only those are
+/// split into fields, in the file at `source`; a row may lack the header's last `may_lack`
+/// fields.
+pub(super) fn no_short_rows(
+    df: &DataFrame,
+    source: &Path,
+    input: &Path,
+    delimiter: char,
+    may_lack: usize,
+) -> Result<()> {
+    let Some(last) = df.columns().iter().rev().find(|c| c.name() != super::ROW) else {
+        return Ok(());
+    };
+    if last.null_count() == 0 {
+        return Ok(());
+    }
+    // Data rows from 1, as the frame holds them in the file's order.
+    let rows = df
+        .select([last.name().clone()])?
+        .lazy()
+        .with_row_index("position", Some(1))
+        .filter(col(last.name().clone()).is_null())
+        .select([col("position").cast(DataType::UInt64)])
+        .collect()?;
+    let rows: Vec<u64> = rows
+        .column("position")?
+        .u64()?
+        .into_no_null_iter()
+        .collect();
+    let found = ragged_row_in(source, delimiter as u8, &rows, may_lack);
+    match found.map_err(Error::io(input))? {
+        Some(ragged) => Err(Error::Unreadable {
+            file: input.to_path_buf(),
+            at: format!(", row {}", ragged.row),
+            message: ragged.message(),
+        }),
+        None => Ok(()),
     }
 }
 

@@ -23,8 +23,8 @@ mod whole;
 
 use budget::check_budget;
 use csv_file::{
-    csv_position, header_names, names_as_written, not_utf16, repeated_header_name, unclosed_quote,
-    unnamed_columns, Transcoded,
+    csv_position, csv_shape, names_as_written, not_utf16, repeated_header_name, unclosed_quote,
+    Transcoded,
 };
 pub(crate) use finite::non_finite_as_missing;
 pub(crate) use markers::numbers_with_markers;
@@ -420,77 +420,6 @@ pub(crate) fn decimals_as_floats(df: DataFrame, keep: &[&str]) -> Result<(DataFr
         return Ok((df, notes));
     }
     Ok((df.lazy().with_columns(casts).collect()?, notes))
-}
-
-/// A CSV file read (from `source`, the input or its UTF-8 copy; errors name `input`) checked
-/// against its header: `df` without the columns the header leaves unnamed
-/// ([`unnamed_columns`]), with their notes, and no row short of fields ([`no_short_rows`]).
-/// Other formats as they are.
-fn csv_shape(
-    df: DataFrame,
-    format: InputFormat,
-    source: &Path,
-    input: &Path,
-    delimiter: char,
-) -> Result<(DataFrame, Vec<String>)> {
-    if format != InputFormat::Csv {
-        return Ok((df, Vec::new()));
-    }
-    let Some(names) = header_names(source, delimiter)? else {
-        return Ok((df, Vec::new()));
-    };
-    let (df, notes) = unnamed_columns(df, &names, input)?;
-    // Unnamed columns closing the header are empty in every row (else an error above): a row
-    // may lack them.
-    let may_lack = names
-        .iter()
-        .rev()
-        .take_while(|n| n.trim().is_empty())
-        .count();
-    no_short_rows(&df, source, input, delimiter, may_lack)?;
-    Ok((df, notes))
-}
-
-/// A CSV read without error (in the file's order) may still have had rows with fewer fields
-/// than its header, which the engine fills with missing values: such a row stops the run,
-/// named. Only the rows whose last value came out missing can be short, so only those are
-/// split into fields, in the file at `source`; a row may lack the header's last `may_lack`
-/// fields.
-fn no_short_rows(
-    df: &DataFrame,
-    source: &Path,
-    input: &Path,
-    delimiter: char,
-    may_lack: usize,
-) -> Result<()> {
-    let Some(last) = df.columns().iter().rev().find(|c| c.name() != ROW) else {
-        return Ok(());
-    };
-    if last.null_count() == 0 {
-        return Ok(());
-    }
-    // Data rows from 1, as the frame holds them in the file's order.
-    let rows = df
-        .select([last.name().clone()])?
-        .lazy()
-        .with_row_index("position", Some(1))
-        .filter(col(last.name().clone()).is_null())
-        .select([col("position").cast(DataType::UInt64)])
-        .collect()?;
-    let rows: Vec<u64> = rows
-        .column("position")?
-        .u64()?
-        .into_no_null_iter()
-        .collect();
-    let found = fields::ragged_row_in(source, delimiter as u8, &rows, may_lack);
-    match found.map_err(Error::io(input))? {
-        Some(ragged) => Err(Error::Unreadable {
-            file: input.to_path_buf(),
-            at: format!(", row {}", ragged.row),
-            message: ragged.message(),
-        }),
-        None => Ok(()),
-    }
 }
 
 /// ", row N" for the first row of `bad` (a frame with the row-number column), for messages.
