@@ -963,3 +963,43 @@ fn compare_refuses_a_bundle_whose_panel_has_a_firm_year_twice_or_a_row_without_a
     // The bundle as written compares with itself: nothing changed.
     assert_eq!(w.run(&["compare", "b", "b"]).code, 0);
 }
+
+#[test]
+fn a_spreadsheets_spacer_column_is_left_out() {
+    // A column under an empty header cell with nothing in it (a spacer between blocks of
+    // columns) stopped the run as "the header cell is empty", where a CSV file's empty
+    // unnamed column is left out: left out here too, noted. Under an empty header cell with a
+    // value it still stops the run, naming the cell and the first row with a value. Worked by
+    // hand: `x` 1, 2, 3, mean 2.
+    let w = Workdir::new();
+    python(
+        w.dir.path(),
+        "import openpyxl\n\
+         for name, c in [('spacer.xlsx', None), ('unnamed.xlsx', 7)]:\n\
+         \x20   wb = openpyxl.Workbook()\n\
+         \x20   for row in [['firm', 'year', None, 'x'], ['A', 2001, None, 1], \
+         ['A', 2002, c, 2], ['B', 2001, None, 3]]:\n\
+         \x20       wb.active.append(row)\n\
+         \x20   wb.save(name)",
+    );
+    let report = audit_json(&w, "spacer.xlsx");
+    let x = line(&report, "x");
+    assert_eq!((&x["n"], x["mean"].as_f64()), (&3.into(), Some(2.0)), "{x}");
+    assert_eq!(report["input"]["columns"], 3);
+    assert_eq!(
+        report["input"]["notes"][0],
+        "column C of the sheet has no name and no value in any row: left out"
+    );
+    w.fails(
+        &[
+            "audit",
+            "unnamed.xlsx",
+            "--entity",
+            "firm",
+            "--period",
+            "year",
+        ],
+        "`unnamed.xlsx`, sheet `Sheet`, cell C1: the header cell is empty, but the column holds \
+         values (the first in sheet row 3)",
+    );
+}

@@ -167,6 +167,8 @@ pub fn read(path: &Path, sheet: Option<&str>, text: &[&str]) -> Result<Sheet> {
     let header_row = row0 + skip as u32;
     let header_cells = all.get(skip).copied().unwrap_or(&[]);
     let mut header = Vec::with_capacity(header_cells.len());
+    // Columns under an empty header cell with nothing in them (a spacer column), left out.
+    let mut spacers = Vec::new();
     for (j, h) in header_cells.iter().enumerate() {
         let at = format!(
             ", sheet `{name}`, cell {}{}",
@@ -175,7 +177,27 @@ pub fn read(path: &Path, sheet: Option<&str>, text: &[&str]) -> Result<Sheet> {
         );
         let text = match h {
             Data::String(s) if !s.trim().is_empty() => s.trim().to_string(),
-            Data::Empty => return Err(unreadable(path, at, "the header cell is empty")),
+            Data::Empty => {
+                let below = all.get(skip + 1..).unwrap_or_default();
+                let filled = below.iter().position(|r| {
+                    r.get(j)
+                        .is_some_and(|c| as_text(c).is_some() || matches!(c, Data::Error(_)))
+                });
+                if let Some(i) = filled {
+                    let row = header_row as usize + 2 + i;
+                    return Err(unreadable(
+                        path,
+                        at,
+                        format!(
+                            "the header cell is empty, but the column holds values (the first \
+                             in sheet row {row}): give it a name"
+                        ),
+                    ));
+                }
+                spacers.push(j);
+                header.push(String::new());
+                continue;
+            }
             other => other.to_string(),
         };
         if header.contains(&text) {
@@ -228,8 +250,17 @@ pub fn read(path: &Path, sheet: Option<&str>, text: &[&str]) -> Result<Sheet> {
             title.map_or(String::new(), |t| format!(" (the first: `{t}`)"))
         ));
     }
+    for j in &spacers {
+        notes.push(format!(
+            "column {} of the sheet has no name and no value in any row: left out",
+            letters(col0 + *j as u32)
+        ));
+    }
     let mut columns = Vec::with_capacity(header.len());
     for (j, name_j) in header.iter().enumerate() {
+        if spacers.contains(&j) {
+            continue;
+        }
         if text.contains(&name_j.as_str()) {
             let values: Vec<Option<String>> =
                 body.iter().map(|r| r.get(j).and_then(as_text)).collect();
