@@ -996,6 +996,19 @@ fn files_researchers_really_get_are_read() {
         &["audit", "short.csv.gz", "--rules", "rules.toml"],
         "`short.csv.gz`, row 2: 2 fields where the header has 3",
     );
+    // A row with more fields, which the engine refuses, was named as "row 0, byte 0x8b is
+    // not UTF-8": the compressed bytes were read as the text.
+    w.write("long.csv", "firm,year,assets\nA,2001,1\nA,2002,1,5\n");
+    let status = std::process::Command::new("gzip")
+        .args(["-k", "-n"])
+        .arg(w.path("long.csv"))
+        .status()
+        .expect("gzip is needed for this test");
+    assert!(status.success());
+    w.fails(
+        &["audit", "long.csv.gz", "--rules", "rules.toml"],
+        "`long.csv.gz`, row 2: 4 fields where the header has 3",
+    );
 }
 
 /// The engine's Parquet decode setting, which the binary sets unless the user has: a value

@@ -439,7 +439,13 @@ fn unreadable(path: &Path, format: InputFormat, delimiter: char, e: PolarsError)
             message,
         };
     }
-    let Ok(bytes) = std::fs::read(path) else {
+    // The file's text, a compressed one decompressed as the engine read it (its compressed
+    // bytes were taken for text that is not UTF-8).
+    let text = csv_file::open_text(path).and_then(|mut t| {
+        let mut bytes = Vec::new();
+        std::io::Read::read_to_end(&mut t, &mut bytes).map(|_| bytes)
+    });
+    let Ok(bytes) = text else {
         return Error::Unreadable {
             file: path.to_path_buf(),
             at: String::new(),
