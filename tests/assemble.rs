@@ -199,6 +199,30 @@ fn joined_files_with_bad_settings_or_values_are_named() {
         "currency,year,rate\nEUR,2020,1.5\nEUR,20x1,2\n",
     );
     run("", "`rates.csv`, row 2: `year` holds `20x1`");
+    // A cell that made a joined column of numbers text stopped the derived variable, and an
+    // accounting rule, computing with it with the engine's words about types alone; the
+    // joined file's cell is named instead (worked by hand: data row 3 holds `n.v.`).
+    w.write(
+        "rates.csv",
+        "currency,year,rate\nEUR,2020,1.5\nEUR,2021,2\nUSD,2020,n.v.\nUSD,2021,1\n",
+    );
+    run(
+        "",
+        "`rates.csv`, row 3, column `rate`: `n.v.` is not a number, and derived variable \
+         `sales_usd` (`sales * rate`) computes with the column",
+    );
+    w.write(
+        "rule.toml",
+        &rules("").replace(
+            "[derive.sales_usd]\nexpr = \"sales * rate\"",
+            "[[rule]]\nname = \"rate_positive\"\nexpr = \"rate > 0\"",
+        ),
+    );
+    w.fails(
+        &["audit", "p.csv", "--rules", "rule.toml"],
+        "`rates.csv`, row 3, column `rate`: `n.v.` is not a number, and accounting rule \
+         `rate_positive` (`rate > 0`) computes with the column",
+    );
     // A row short of a field was read with its rate missing, nothing said.
     w.write("rates.csv", "currency,year,rate\nEUR,2020,1.5\nEUR,2021\n");
     run("", "`rates.csv`, row 2: 2 fields where the header has 3");

@@ -227,6 +227,20 @@ fn malformed_csv_stops_with_one_located_line() {
                 "accounting rule `r` (`assets > 0`)",
             ],
         ),
+        // Codes written with a leading zero are read as text on purpose; dividing them
+        // stopped with the engine's words about types. The first such code is named, with the
+        // cast that computes with it (worked by hand: data row 2 holds `0123`).
+        bad(
+            "codes with leading zeros in arithmetic",
+            b"firm,year,sic\nA,2001,123\nA,2002,0123\nB,2001,456\n",
+            "[derive.x]\nexpr = \"sic / 100\"\n",
+            &[
+                "raw.csv",
+                "row 2, column `sic`: `0123` is written with a leading zero",
+                "derived variable `x` (`sic / 100`) computes with it",
+                "`CAST(sic AS DOUBLE)`",
+            ],
+        ),
         // A column the header leaves without a name but which holds values cannot be named
         // by a rule and showed in the reports as ``: stopped, its place and value named.
         bad(

@@ -365,6 +365,7 @@ mod tests {
             exact_copies: 0,
             repeated_keys: 0,
             drop_unmatched: false,
+            format: crate::config::InputFormat::Csv,
             notes: Vec::new(),
         }
     }

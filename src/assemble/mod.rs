@@ -43,6 +43,8 @@ pub struct Table {
     exact_copies: u64,
     repeated_keys: u64,
     drop_unmatched: bool,
+    /// Its format.
+    format: crate::config::InputFormat,
     /// What reading it had to decide (numbers with missing-value markers), one sentence each.
     pub notes: Vec<String>,
 }
@@ -54,6 +56,16 @@ impl Table {
             .file_name()
             .map(|n| n.to_string_lossy().to_string())
             .unwrap_or_else(|| self.path.display().to_string())
+    }
+
+    /// Its columns brought in, for naming a cell of one that is not a number.
+    pub(crate) fn source(&self) -> crate::load::Source<'_> {
+        crate::load::Source {
+            file: &self.path,
+            frame: &self.df,
+            columns: &self.brought,
+            format: self.format,
+        }
     }
 }
 
@@ -381,6 +393,7 @@ fn read_table(
         exact_copies,
         repeated_keys,
         drop_unmatched,
+        format,
         notes,
     })
 }

@@ -3,7 +3,6 @@
 //! that nulled or dropped values never reach a derived ratio.
 
 use std::collections::BTreeSet;
-use std::path::Path;
 
 use polars::prelude::*;
 
@@ -225,24 +224,18 @@ fn culprit(df: &DataFrame, rules: &[CompiledRule]) -> Option<Error> {
 }
 
 /// `e`, an error naming one of `rules`, as the error naming the first cell that is not a
-/// number (in `file`, among its columns `own`) in a text column that rule reads, where there
-/// is one; else `e` as it is.
-pub fn located(
-    e: Error,
-    df: &DataFrame,
-    rules: &[CompiledRule],
-    file: &Path,
-    own: &[String],
-) -> Error {
+/// number in a text column that rule reads (of the first of `sources` owning such a column),
+/// where there is one; else `e` as it is.
+pub(crate) fn located(e: Error, rules: &[CompiledRule], sources: &[crate::load::Source]) -> Error {
     let Error::RuleExpr { rule, .. } = &e else {
         return e;
     };
     let Some(r) = rules.iter().find(|r| rule_label(r) == *rule) else {
         return e;
     };
-    let reads = r.reads.iter().filter(|c| own.contains(c));
+    let reads: Vec<&String> = r.reads.iter().collect();
     let what = format!("{} (`{}`)", rule_label(r), r.text);
-    crate::load::text_among_numbers(df, reads, file, &what).unwrap_or(e)
+    crate::load::text_among_numbers(sources, &reads, &what).unwrap_or(e)
 }
 
 /// How errors name rule `r`.

@@ -28,7 +28,7 @@ use csv_file::{
 };
 pub(crate) use finite::non_finite_as_missing;
 pub(crate) use markers::numbers_with_markers;
-pub(crate) use not_numbers::text_among_numbers;
+pub(crate) use not_numbers::{text_among_numbers, Source};
 use period::{check_period, check_window, fiscal_year, period_as_int};
 
 /// A column read as text for its codes written with leading zeros: its name, and the data row

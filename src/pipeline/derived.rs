@@ -10,6 +10,7 @@ pub(super) fn derive(
     plan: &Plan,
     columns: &[String],
     own: &[String],
+    tables: &[crate::assemble::Table],
     input: &InputConfig,
 ) -> Result<(DataFrame, Vec<crate::report::DerivedSummary>)> {
     // Sorted by entity, period and row since the key steps: joins keep the panel's order,
@@ -22,7 +23,18 @@ pub(super) fn derive(
     let (lf, hidden, not_finite) = plan.apply(panel.clone().lazy(), &input.entity, &input.period);
     let with_hidden = match lf.collect() {
         Ok(df) => df,
-        Err(e) => return Err(culprit(&panel, plan, own, input).unwrap_or(Error::Polars(e))),
+        Err(e) => {
+            let main = load::Source {
+                file: &input.path,
+                frame: &panel,
+                columns: own,
+                format: input.format,
+            };
+            let sources: Vec<load::Source> = std::iter::once(main)
+                .chain(tables.iter().map(|t| t.source()))
+                .collect();
+            return Err(culprit(&panel, plan, &sources, input).unwrap_or(Error::Polars(e)));
+        }
     };
     // Kept only to trace a failure: its columns not held past this point.
     drop(panel);
@@ -41,9 +53,14 @@ pub(super) fn derive(
 /// The derived variable whose evaluation fails (text divided, a text that will not convert),
 /// as the error naming it: the variables one more at a time in dependency order, each set
 /// checked by its types, then by its values; the first set that fails ends in the culprit.
-/// Where a column of the input (`own`) it computes with is text, the first cell that is not
-/// a number is named instead of the engine's reason.
-fn culprit(panel: &DataFrame, plan: &Plan, own: &[String], input: &InputConfig) -> Option<Error> {
+/// Where a column of the input or of a joined table (`sources`) it computes with is text, the
+/// first cell that is not a number is named instead of the engine's reason.
+fn culprit(
+    panel: &DataFrame,
+    plan: &Plan,
+    sources: &[load::Source],
+    input: &InputConfig,
+) -> Option<Error> {
     let upto = |k: usize| {
         let mut part = plan.clone();
         part.vars.truncate(k + 1);
@@ -52,12 +69,9 @@ fn culprit(panel: &DataFrame, plan: &Plan, own: &[String], input: &InputConfig) 
     };
     let named = |k: usize, e: PolarsError| {
         let var = &plan.vars[k];
-        let reads = var
-            .compiled()
-            .flat_map(|c| c.raw_columns.iter())
-            .filter(|c| own.contains(c));
+        let reads: Vec<&String> = var.compiled().flat_map(|c| c.raw_columns.iter()).collect();
         let what = format!("derived variable `{}` (`{}`)", var.name, var.rule.expr);
-        load::text_among_numbers(panel, reads, &input.path, &what).unwrap_or_else(|| {
+        load::text_among_numbers(sources, &reads, &what).unwrap_or_else(|| {
             Error::evaluation(
                 format!("derived variable `{}`", var.name),
                 &var.rule.expr,

@@ -154,7 +154,8 @@ pub fn prepare_with(
     )?;
 
     progress.stage("accounting rules");
-    let rule_lines = rules::accounting_rules(&mut sample, &accounting_rules, &keys)?;
+    let rule_lines =
+        rules::accounting_rules(&mut sample, &accounting_rules, &keys, &read.tables, input)?;
 
     progress.stage("derived variables");
     // Nothing after this point evaluates an expression on the panel but the derived
@@ -170,6 +171,7 @@ pub fn prepare_with(
         &plan,
         &columns,
         &raw_columns,
+        &read.tables,
         input,
     )?;
     crate::core::hold_text_as_codes(&mut panel, &keys_and_inputs[..2])?;

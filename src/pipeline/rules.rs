@@ -10,6 +10,8 @@ pub(super) fn accounting_rules(
     sample: &mut Sample,
     compiled: &[accounting::CompiledRule],
     keys: &Keys,
+    tables: &[crate::assemble::Table],
+    input: &InputConfig,
 ) -> Result<Vec<crate::report::RuleLine>> {
     // Rules that read other periods need the panel as it stands.
     if compiled.iter().any(|r| !r.shifts.is_empty()) {
@@ -23,8 +25,18 @@ pub(super) fn accounting_rules(
         keys.entity,
         keys.period,
     )?;
-    let lines = accounting::count(&with_shifts, compiled, within.as_ref())
-        .map_err(|e| accounting::located(e, &with_shifts, compiled, keys.file, keys.columns))?;
+    let lines = accounting::count(&with_shifts, compiled, within.as_ref()).map_err(|e| {
+        let main = crate::load::Source {
+            file: keys.file,
+            frame: &with_shifts,
+            columns: keys.columns,
+            format: input.format,
+        };
+        let sources: Vec<_> = std::iter::once(main)
+            .chain(tables.iter().map(|t| t.source()))
+            .collect();
+        accounting::located(e, compiled, &sources)
+    })?;
     let panel = accounting::apply_nulls(with_shifts, compiled)?;
     match (
         accounting::drop_mask(compiled),
