@@ -245,9 +245,21 @@ pub(crate) fn other_delimiter<'a>(
     let (only, None) = (names.next()?, names.next()) else {
         return None;
     };
+    one_column(only, |part| part.trim() == wanted)
+}
+
+/// The same hint for a header that reads as one column, `only`, holding one of the other
+/// separators: a first line such as `firm;year;x` in a file read with commas.
+pub(crate) fn one_column_header(only: &str) -> Option<String> {
+    one_column(only, |part| !part.trim().is_empty())
+}
+
+/// The hint for a header read as one column, `only`, that splits on `;`, a tab or `|` into
+/// parts of which one is `wanted`.
+fn one_column(only: &str, wanted: impl Fn(&str) -> bool) -> Option<String> {
     let (_, written) = [(';', ";"), ('\t', "\\t"), ('|', "|")]
         .into_iter()
-        .find(|(c, _)| only.split(*c).any(|part| part.trim() == wanted))?;
+        .find(|(c, _)| only.contains(*c) && only.split(*c).any(&wanted))?;
     Some(format!(
         "the header reads as one column, `{}`: its fields seem separated by `{written}` (give \
          `--delimiter '{written}'`)",

@@ -193,6 +193,19 @@ fn malformed_csv_stops_with_one_located_line() {
             "",
             &["raw.csv", "row 2", "4 fields where the header has 3"],
         ),
+        // A file written with `;` and decimal commas, read with commas: its header is one
+        // column and its rows two fields. The row was named, not the delimiter it wants.
+        bad(
+            "semicolons and decimal commas read with commas",
+            "\u{feff}firm;year;assets\r\nA;2001;1,5\r\nB;2001;3\r\n".as_bytes(),
+            "",
+            &[
+                "raw.csv",
+                "row 1: 2 fields where the header has 1",
+                "the header reads as one column, `firm;year;assets`",
+                "give `--delimiter ';'`",
+            ],
+        ),
         bad(
             "line break inside a field not quoted",
             b"firm,year,name,assets\nA,2001,Harbor\nWorks,1\nB,2001,Mill,3\n",

@@ -473,10 +473,22 @@ fn unreadable(path: &Path, format: InputFormat, delimiter: char, e: PolarsError)
     }
     if message.contains("more fields") {
         if let Some(ragged) = fields::ragged_row(&bytes, delimiter as u8, None) {
+            // A header of one column: most likely another delimiter than the one read with.
+            let header = bytes.split(|&b| b == b'\n').next().unwrap_or_default();
+            let header = String::from_utf8_lossy(header);
+            let other = (ragged.header == 1)
+                .then(|| {
+                    let line = header.trim_start_matches('\u{feff}');
+                    crate::error::one_column_header(line.trim_end_matches('\r'))
+                })
+                .flatten();
             return Error::Unreadable {
                 file: path.to_path_buf(),
                 at: format!(", row {}", ragged.row),
-                message: ragged.message(),
+                message: match other {
+                    Some(hint) => format!("{}; {hint}", ragged.message()),
+                    None => ragged.message(),
+                },
             };
         }
     }
