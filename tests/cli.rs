@@ -787,6 +787,52 @@ C,2002,6,1
 }
 
 #[test]
+fn residual_tests_on_too_few_periods_are_not_computable() {
+    // Three firms over two years: no pair of firms shares the 3 periods a correlation needs,
+    // and no firm has two consecutive first differences. The cross-firm test read 0 and "no
+    // evidence" having used no pair; the serial-correlation test was left out unsaid.
+    let w = Workdir::new();
+    w.write(
+        "p.csv",
+        "firm,year,y,x\nA,2001,1,5\nA,2002,2,6\nB,2001,3,7\nB,2002,5,8\nC,2001,5,9\nC,2002,6,1\n",
+    );
+    w.write(
+        "r.toml",
+        "[panel]\nentity = \"firm\"\nperiod = \"year\"\n\
+         [model]\noutcome = \"y\"\nregressors = [\"x\"]\n",
+    );
+    let report = w.audit_json("p.csv", "r.toml");
+    let model = &report["model"];
+    let errors = model["questions"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|q| q["key"] == "independent_errors")
+        .unwrap();
+    assert!(errors["tests"].as_array().unwrap().is_empty(), "{errors}");
+    assert!(
+        errors["answer"]
+            .as_str()
+            .unwrap()
+            .starts_with("not computable"),
+        "{errors}"
+    );
+    let warnings: Vec<&str> = model["warnings"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|w| w.as_str().unwrap())
+        .collect();
+    for want in [
+        "not computable: the Wooldridge test for serial correlation, since only 3 first \
+         differences over consecutive periods exist, fewer than the 4 it needs",
+        "not computable: the Pesaran CD test, since no two entities share 3 periods",
+    ] {
+        assert!(warnings.contains(&want), "{warnings:?}");
+    }
+}
+
+#[test]
 fn unit_slips_are_not_searched_without_consecutive_periods() {
     // Every firm observed every other year: no row has its entity's period before, so no
     // change exists to search (counted by hand: 0 pairs). With the years made consecutive,

@@ -271,6 +271,48 @@ fn model_readiness_reproduces_published_grunfeld_figures() {
 }
 
 #[test]
+fn a_model_without_regressors_matches_the_reference_on_grunfeld() {
+    // An intercept alone (and period effects): the tests of effects then describe the
+    // outcome itself, and every figure is checked against statsmodels / numpy as with
+    // regressors; no regressor means no Hausman test. The report said "invest on ,".
+    let w = Workdir::new();
+    let all =
+        std::fs::read_to_string(crate::util::root().join("tests/reference/data/grunfeld.csv"))
+            .unwrap();
+    let ten: Vec<&str> = all.lines().take(201).collect();
+    w.write("g10.csv", &(ten.join("\n") + "\n"));
+    w.write(
+        "rules.toml",
+        &MODEL_RULES.replace(
+            "regressors = [\"value\", \"capital\"]",
+            "regressors = []\neffects = [\"firm\", \"year\"]",
+        ),
+    );
+    w.ok(&["build", "g10.csv", "--rules", "rules.toml", "--out", "b"]);
+    let md = std::fs::read_to_string(w.path("b/report.md")).unwrap();
+    assert!(
+        md.contains(
+            "Model: invest on an intercept alone, with fixed effects for `firm` and `year`."
+        ),
+        "{md}"
+    );
+    let report: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(w.path("b/report.json")).unwrap()).unwrap();
+    assert!(report["model"]["slopes"].as_array().unwrap().is_empty());
+    check_reference(
+        "model.py",
+        &[
+            Path::new("--two-way"),
+            &w.path("g10.csv"),
+            &w.path("b/report.json"),
+            Path::new("firm"),
+            Path::new("year"),
+            Path::new("invest"),
+        ],
+    );
+}
+
+#[test]
 fn model_readiness_matches_the_reference_on_unbalanced_grunfeld() {
     // Late entry, early exit and internal gaps (the rule in structure.py): the Baltagi–Li LM,
     // Baltagi–Chang variance components and gap-aware Wooldridge differences are exercised.

@@ -125,6 +125,13 @@ fn pesaran_cd_hand_example() {
         s([1.0, 1.0, -1.0, -1.0]),
     ]);
     assert!((cd - (2.0f64 / 6.0).sqrt() * 2.0).abs() < 1e-12, "{cd}");
+    // Two entities sharing 2 periods: no pair is used, the statistic is not computable (it
+    // came out 0, "no evidence", having examined nothing).
+    let short = model::cd_statistic(&[
+        vec![Some(1.0), Some(-1.0), None],
+        vec![Some(2.0), Some(1.0), Some(3.0)],
+    ]);
+    assert!(short.is_nan(), "{short}");
 }
 
 #[test]

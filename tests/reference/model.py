@@ -76,7 +76,8 @@ def main():
     wreg = [regs[j] for j in within_ids]
     tdum = " + C(t)" if two_way else ""
     q = lambda names: " + ".join(f"Q('{r}')" for r in names)
-    pooled = smf.ols(f"y ~ {q(preg)}{tdum}", data=d).fit()
+    # No regressors: an intercept alone (and the period dummies).
+    pooled = smf.ols(f"y ~ {q(preg) or '1'}{tdum}", data=d).fit()
     within = smf.ols(f"y ~ {q(wreg) + ' + ' if wreg else ''}C(e){tdum}", data=d).fit()
     e = pooled.resid.to_numpy()
     rss_p, rss_w = float(pooled.ssr), float(within.ssr)
@@ -162,7 +163,7 @@ def main():
     ok = (d["t"] - prev == 1).to_numpy()
     dy = (d["y"] - d.groupby("e")["y"].shift(1)).to_numpy()[ok]
     dX = (d[regs_w] - d.groupby("e")[regs_w].shift(1)).to_numpy()[ok]
-    bd, *_ = np.linalg.lstsq(dX, dy, rcond=None)
+    bd = np.linalg.lstsq(dX, dy, rcond=None)[0] if regs_w else np.zeros(0)
     u = pd.DataFrame({"e": d["e"].to_numpy()[ok], "t": d["t"].to_numpy()[ok], "u": dy - dX @ bd})
     u["lag"] = u.groupby("e")["u"].shift(1)
     u = u[(u["t"] - u.groupby("e")["t"].shift(1)) == 1]

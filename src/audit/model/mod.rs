@@ -527,19 +527,29 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
         }
     }
     // Wooldridge's test for serial correlation in the idiosyncratic errors.
-    if let Some(t) = wooldridge(&s, &within_keep) {
-        tests.push(t);
+    match wooldridge(&s, &within_keep) {
+        Ok(t) => tests.push(t),
+        Err(why) => out.warnings.push(format!(
+            "not computable: the Wooldridge test for serial correlation, since {why}"
+        )),
     }
     // Pesaran's CD test on the within residuals.
     if n > CD_MAX_ENTITIES {
         out.warnings.push(format!(
             "Pesaran CD test skipped: {n} entities make too many pairs (limit {CD_MAX_ENTITIES})"
         ));
-    } else if let Some((t, skipped)) = pesaran_cd(&e_w, &s) {
-        if skipped > 0 {
-            out.warnings.push(format!("Pesaran CD test: {skipped} entity pairs with fewer than 3 common periods were skipped"));
+    } else {
+        match pesaran_cd(&e_w, &s) {
+            Ok((t, skipped)) => {
+                if skipped > 0 {
+                    out.warnings.push(format!("Pesaran CD test: {skipped} entity pairs with fewer than 3 common periods were skipped"));
+                }
+                tests.push(t);
+            }
+            Err(why) => out
+                .warnings
+                .push(format!("not computable: the Pesaran CD test, since {why}")),
         }
-        tests.push(t);
     }
 
     // Slopes across estimators, each where the estimator identifies it.

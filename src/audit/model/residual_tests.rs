@@ -12,8 +12,9 @@ use crate::report::ModelTest;
 /// Wooldridge (2002, ch. 10) as in Drukker (2003): first differences within entity across
 /// consecutive periods only; pooled OLS of dy on dX without intercept; regress the residual
 /// on its own lag (consecutive periods); cluster-robust (by entity) Wald test that the
-/// coefficient is -0.5, F(1, G - 1).
-pub(super) fn wooldridge(s: &Sample, keep: &[usize]) -> Option<ModelTest> {
+/// coefficient is -0.5, F(1, G - 1). With no regressor the differences of the outcome are
+/// the residuals. Why it is not computable, when it is not.
+pub(super) fn wooldridge(s: &Sample, keep: &[usize]) -> Result<ModelTest, String> {
     let declared: Vec<usize> = keep.iter().copied().filter(|j| *j < s.declared).collect();
     let k = declared.len();
     // Rows whose entity has the period before: one first difference each. A pair of
@@ -51,15 +52,23 @@ pub(super) fn wooldridge(s: &Sample, keep: &[usize]) -> Option<ModelTest> {
     }
     g += &g_part;
     c += &c_part;
-    if m < k + 3 || k == 0 {
-        return None;
+    if m < k + 3 {
+        return Err(format!(
+            "only {m} first differences over consecutive periods exist, fewer than the {} it needs",
+            k + 3
+        ));
     }
     for a in 0..k {
         for b in 0..a {
             g[(b, a)] = g[(a, b)];
         }
     }
-    let b = super::gram::solve(&g, &c)?;
+    let b = if k == 0 {
+        DVector::zeros(0)
+    } else {
+        super::gram::solve(&g, &c)
+            .ok_or("the differenced regressors are collinear (one moves in step with others)")?
+    };
     let mut residual = |r: usize| {
         let dy = diff(r, &mut dx);
         dy - dx.iter().zip(b.iter()).map(|(x, b)| x * b).sum::<f64>()
@@ -67,7 +76,10 @@ pub(super) fn wooldridge(s: &Sample, keep: &[usize]) -> Option<ModelTest> {
     // Residual on its lag, consecutive periods of the same entity only.
     let pairs: Vec<usize> = (2..s.y.len()).filter(|r| paired(*r)).collect();
     if pairs.len() < 3 {
-        return None;
+        return Err(format!(
+            "only {} pairs of consecutive first differences exist, fewer than 3",
+            pairs.len()
+        ));
     }
     let lagged: Vec<(usize, f64, f64)> = pairs
         .iter()
@@ -82,8 +94,12 @@ pub(super) fn wooldridge(s: &Sample, keep: &[usize]) -> Option<ModelTest> {
     }
     let score: Vec<f64> = score.into_iter().flatten().collect();
     let g = score.len() as f64;
-    if g < 2.0 {
-        return None;
+    if g < 2.0 || sxx == 0.0 {
+        return Err(if g < 2.0 {
+            "only one entity has consecutive first differences".to_string()
+        } else {
+            "the residuals of the differenced regression are all zero".to_string()
+        });
     }
     // Cluster-robust variance with the usual small-sample factor G / (G - 1) (one regressor).
     let v = g / (g - 1.0) * score.iter().map(|s| s * s).sum::<f64>() / (sxx * sxx);
@@ -91,7 +107,7 @@ pub(super) fn wooldridge(s: &Sample, keep: &[usize]) -> Option<ModelTest> {
     let p = super::upper_tail(f, |x| {
         FisherSnedecor::new(1.0, g - 1.0).ok().map(|d| d.sf(x))
     });
-    Some(Test::SerialCorrelation.result(
+    Ok(Test::SerialCorrelation.result(
         None,
         f,
         vec![1.0, g - 1.0],
@@ -106,15 +122,15 @@ pub(super) fn wooldridge(s: &Sample, keep: &[usize]) -> Option<ModelTest> {
 
 /// Pesaran (2004) CD on the within residuals: for each pair with at least 3 common periods,
 /// the Pearson correlation over those periods; CD = sqrt(2 / (n (n - 1))) Σ sqrt(T_ij) ρ_ij.
-/// Returns the test and the pairs skipped.
-pub(super) fn pesaran_cd(resid: &DVector<f64>, s: &Sample) -> Option<(ModelTest, u64)> {
+/// Returns the test and the pairs skipped; why it is not computable when no pair is used.
+pub(super) fn pesaran_cd(resid: &DVector<f64>, s: &Sample) -> Result<(ModelTest, u64), String> {
     let n = s.sizes.len();
     let mut rows: Vec<BTreeMap<i64, f64>> = vec![BTreeMap::new(); n];
     for r in 0..resid.len() {
         rows[s.entity[r]].insert(s.period[r], resid[r]);
     }
     let mut total = 0.0;
-    let mut skipped = 0u64;
+    let (mut skipped, mut used) = (0u64, 0u64);
     for i in 0..n {
         for j in i + 1..n {
             let common: Vec<(f64, f64)> = rows[i]
@@ -126,6 +142,7 @@ pub(super) fn pesaran_cd(resid: &DVector<f64>, s: &Sample) -> Option<(ModelTest,
                 skipped += 1;
                 continue;
             }
+            used += 1;
             let (ma, mb) = (
                 common.iter().map(|c| c.0).sum::<f64>() / t as f64,
                 common.iter().map(|c| c.1).sum::<f64>() / t as f64,
@@ -141,11 +158,18 @@ pub(super) fn pesaran_cd(resid: &DVector<f64>, s: &Sample) -> Option<(ModelTest,
             }
         }
     }
+    if used == 0 {
+        return Err(if n < 2 {
+            "there is only one entity".to_string()
+        } else {
+            "no two entities share 3 periods".to_string()
+        });
+    }
     let cd = (2.0 / (n as f64 * (n as f64 - 1.0))).sqrt() * total;
     let p = super::upper_tail(cd.abs(), |x| {
         Normal::new(0.0, 1.0).ok().map(|d| 2.0 * d.sf(x))
     });
-    Some((
+    Ok((
         Test::CrossEntityCorrelation.result(
             Some("on the within residuals"),
             cd,

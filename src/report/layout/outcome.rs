@@ -18,10 +18,15 @@ pub(super) fn model(r: &Report) -> Section {
     } else {
         format!("`{}` and `{}`", r.input.entity, r.input.period)
     };
+    // No regressors is a model too: the tests of effects then describe the outcome itself.
+    let on = if m.regressors.is_empty() {
+        "an intercept alone".to_string()
+    } else {
+        m.regressors.join(", ")
+    };
     let mut blocks = vec![Block::Note(format!(
-        "Model: {} on {}, with fixed effects for {effects}.",
-        m.outcome,
-        m.regressors.join(", "),
+        "Model: {} on {on}, with fixed effects for {effects}.",
+        m.outcome
     ))];
     let mut pairs = vec![
         (
