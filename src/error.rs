@@ -198,9 +198,15 @@ impl Error {
     /// The expression `expr` of `rule` ("derived variable `x`", "accounting rule `r`"), which
     /// the engine could not evaluate on the panel's columns: named, with the engine's reason.
     pub(crate) fn evaluation(rule: String, expr: &str, e: &polars::prelude::PolarsError) -> Error {
+        // The engine's message may already name the rule (a check of ours run in its plan).
+        let said = one_line(&e.to_string());
+        let said = said
+            .strip_prefix(&format!("{rule}: "))
+            .unwrap_or(&said)
+            .to_string();
         Error::RuleExpr {
             rule,
-            message: format!("`{expr}`: {}", one_line(&e.to_string())),
+            message: format!("`{expr}`: {said}"),
         }
     }
 

@@ -119,6 +119,20 @@ fn rule_errors_exit_2_with_one_line_naming_the_derived_variable() {
             "[derive.bad]\nexpr = \"lag(ta_thousands, -1)\"\n",
             "derived variable `bad`: `lag(ta_thousands, -1)`",
         ),
+        // A null_when that is not a condition stopped with the engine's "invalid series
+        // dtype: expected `Boolean`", naming the value's expression as if it were at fault.
+        (
+            "[derive.bad]\nexpr = \"ta_thousands * 2\"\n\
+             null_when = [{ when = \"ta_thousands\", reason = \"r\" }]\n",
+            "derived variable `bad`: `ta_thousands * 2`: its null_when `ta_thousands` gives \
+             number values, not true / false",
+        ),
+        // Our own check inside the engine's plan named the variable twice.
+        (
+            "[derive.bad]\nexpr = \"CASE WHEN ta_thousands AND 1 THEN 1 ELSE 0 END\"\n",
+            "derived variable `bad`: `CASE WHEN ta_thousands AND 1 THEN 1 ELSE 0 END`: AND, OR \
+             and NOT combine conditions",
+        ),
     ];
     for (rules, want) in cases {
         w.write(

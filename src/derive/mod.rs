@@ -286,7 +286,11 @@ fn compile_rule(
     let conditions = rule
         .null_when
         .iter()
-        .map(|n| Ok((n.reason.clone(), expr::compile(&label, &n.when, scope)?)))
+        .map(|n| {
+            let mut c = expr::compile(&label, &n.when, scope)?;
+            c.expr = expr::a_condition(c.expr, format!("its null_when `{}`", n.when));
+            Ok((n.reason.clone(), c))
+        })
         .collect::<Result<_>>()?;
     Ok((value, conditions))
 }

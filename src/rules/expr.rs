@@ -268,6 +268,22 @@ fn conditions_only(expr: Expr, rule: &str) -> Expr {
     })
 }
 
+/// `expr`, which must give true or false (or NULL): anything else stops the run when the
+/// engine plans it, with `what` (the condition named) and the type it gives.
+pub(crate) fn a_condition(expr: Expr, what: String) -> Expr {
+    expr.map(Ok, move |_, field| match field.dtype() {
+        DataType::Boolean | DataType::Null => Ok(field.clone()),
+        other => Err(PolarsError::InvalidOperation(
+            format!(
+                "{what} gives {} values, not true / false: write a condition (such as `x > 0` \
+                 or `x = 1`)",
+                kind(other)
+            )
+            .into(),
+        )),
+    })
+}
+
 /// A data type in words, for the messages about rules.
 fn kind(dtype: &DataType) -> &'static str {
     if dtype.is_primitive_numeric() {
