@@ -414,6 +414,65 @@ fn sure_unit_slips_are_rescaled_and_corrections_applied_with_a_ledger() {
 }
 
 #[test]
+fn corrections_keep_their_value_whatever_the_columns_type() {
+    // Worked by hand. `sales` is read as whole numbers: 52.5 was cut to 52, and a number
+    // beyond 64-bit integers became missing, with the ledger saying 52 and nothing; the
+    // column now becomes floating-point numbers. `listed` (true / false) could not be
+    // corrected at all: the engine's "casting from Utf8View to Boolean not supported".
+    let w = Workdir::new();
+    w.write(
+        "p.csv",
+        "f,y,sales,listed\nA,2001,50,true\nA,2002,52,false\nB,2001,40,true\n",
+    );
+    w.write(
+        "rules.toml",
+        "[panel]\nentity = \"f\"\nperiod = \"y\"\n[repair]\ncorrections = \"fix.csv\"\n",
+    );
+    w.write(
+        "fix.csv",
+        "entity,period,column,value,reason\nA,2002,sales,52.5,restated\n\
+         B,2001,sales,99999999999999999999999,keyed\nA,2002,listed, TRUE ,listed late\n",
+    );
+    w.ok(&["build", "p.csv", "--rules", "rules.toml", "--out", "b"]);
+    let panel = std::fs::read_to_string(w.path("b/panel.csv")).unwrap();
+    assert_eq!(
+        panel.lines().collect::<Vec<_>>(),
+        [
+            "source_row,f,y,sales,listed",
+            "1,A,2001,50.0,true",
+            "2,A,2002,52.5,true",
+            "3,B,2001,1e+23,true",
+        ]
+    );
+    let ledger = std::fs::read_to_string(w.path("b/corrections.csv")).unwrap();
+    for line in [
+        "A,2002,sales,52.0,52.5,corrections file: restated",
+        "B,2001,sales,40.0,1e+23,corrections file: keyed",
+        "A,2002,listed,false,true,corrections file: listed late",
+    ] {
+        assert!(ledger.lines().any(|l| l == line), "{line}: {ledger}");
+    }
+    // Whole numbers in range leave the column as it was.
+    w.write(
+        "fix.csv",
+        "entity,period,column,value,reason\nA,2002,sales,53,restated\n",
+    );
+    w.ok(&["build", "p.csv", "--rules", "rules.toml", "--out", "b3"]);
+    let panel = std::fs::read_to_string(w.path("b3/panel.csv")).unwrap();
+    assert!(panel.contains("\n2,A,2002,53,false\n"), "{panel}");
+    // A word that is neither true nor false names its line.
+    w.write(
+        "fix.csv",
+        "entity,period,column,value,reason\nA,2002,listed,yes,x\n",
+    );
+    w.fails(
+        &["build", "p.csv", "--rules", "rules.toml", "--out", "b2"],
+        "line 2: `listed` holds true / false; the value is neither",
+    );
+    assert!(!w.path("b2").exists());
+}
+
+#[test]
 fn the_fiscal_year_is_derived_from_a_year_end_date_with_a_cutoff_month() {
     let w = Workdir::new();
     run_reference("handoff.py", &[Path::new("xlsx-hostile"), &w.path("")]);

@@ -229,13 +229,14 @@ pub fn apply_corrections(
     }
     let mut ledger = vec![];
     for t in &targets {
-        let dtype = schema.get(t.as_str()).cloned().unwrap_or(DataType::String);
+        let mut dtype = schema.get(t.as_str()).cloned().unwrap_or(DataType::String);
         let numeric = dtype.is_primitive_numeric();
         let mine = c
             .rows
             .clone()
             .lazy()
             .filter(col("column").eq(lit(t.as_str())));
+        let truth = dtype == DataType::Boolean;
         let value = if numeric {
             let text = col("value").str().strip_chars(lit(NULL));
             let text = match c.decimal_comma {
@@ -243,9 +244,37 @@ pub fn apply_corrections(
                 false => text,
             };
             text.cast(DataType::Float64)
+        } else if truth {
+            // `true` or `false` in any case, as the reader takes them.
+            let word = col("value")
+                .str()
+                .strip_chars(lit(NULL))
+                .str()
+                .to_lowercase();
+            when(word.clone().eq(lit("true")))
+                .then(lit(true))
+                .when(word.eq(lit("false")))
+                .then(lit(false))
+                .otherwise(lit(NULL).cast(DataType::Boolean))
         } else {
             col("value")
         };
+        if truth {
+            let bad_word = mine
+                .clone()
+                .filter(col("value").is_not_null().and(value.clone().is_null()))
+                .select([col("__line").min()])
+                .collect()?;
+            if let Some(line) = bad_word.column("__line")?.u32()?.get(0) {
+                return Err(bad(
+                    &c.path,
+                    format!(
+                        "line {line}: `{t}` holds true / false; the value is neither (leave it \
+                         empty for a missing value)"
+                    ),
+                ));
+            }
+        }
         if numeric {
             let bad_number = mine
                 .clone()
@@ -277,6 +306,28 @@ pub fn apply_corrections(
                          empty for a missing value)"
                     ),
                 ));
+            }
+        }
+        // A column of whole numbers given a fraction, or a number beyond its type's range,
+        // becomes a column of floating-point numbers: the cast would cut `1.5` to 1, or make a
+        // wide number missing, unsaid.
+        if dtype.is_integer() {
+            let kept = value.clone().cast(dtype.clone()).cast(DataType::Float64);
+            let widened = mine
+                .clone()
+                .select([value
+                    .clone()
+                    .is_not_null()
+                    .and(value.clone().eq(kept).fill_null(lit(false)).not())
+                    .any(true)
+                    .alias("__wider")])
+                .collect()?;
+            if widened.column("__wider")?.bool()?.get(0) == Some(true) {
+                dtype = DataType::Float64;
+                df = df
+                    .lazy()
+                    .with_column(col(t.as_str()).cast(DataType::Float64))
+                    .collect()?;
             }
         }
         let overrides = mine.select([
