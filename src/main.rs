@@ -49,11 +49,25 @@ fn decode_columns_in_parallel() -> Result<(), panelready::Error> {
     }
 }
 
+/// The engine's warnings on stderr, but for its notices of deprecation: they tell the tool's
+/// developers that a call will change in a later engine version (a correction's text cast to
+/// a date printed two lines of it), which the user can do nothing about.
+fn engine_warnings_for_users() {
+    use polars::error::{set_warning_function, PolarsWarning};
+    fn warn(message: &str, kind: PolarsWarning) {
+        if !matches!(kind, PolarsWarning::Deprecation) {
+            eprintln!("panelready: engine warning: {}", message.replace('\n', " "));
+        }
+    }
+    set_warning_function(warn);
+}
+
 /// The exit code of a run that ended in a panic (an internal error).
 const PANIC_EXIT: i32 = 3;
 
 fn main() {
     small_pages_only();
+    engine_warnings_for_users();
     if let Err(err) = decode_columns_in_parallel() {
         eprintln!("panelready: error: {err}");
         std::process::exit(err.code());
