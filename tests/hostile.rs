@@ -740,11 +740,31 @@ fn bad_paths_and_arguments_are_one_line_errors() {
         std::fs::read_to_string(w.path("full/notes.txt")).unwrap(),
         "mine"
     );
-    // A Parquet file that is not Parquet.
+    // Files of another kind than their names say stopped with the engine's words about the
+    // bytes ("The file must end with PAR1", "byte 0xd1 is not UTF-8", "invalid Zip
+    // archive"); the kind they seem to be is named, by their first bytes (the formats'
+    // specifications: `PAR1`, `PK\3\4`).
     w.write("fake.parquet", "firm,year\nA,2001\n");
     w.fails(
         &["audit", "fake.parquet", "--rules", "rules.toml"],
-        "fake.parquet",
+        "`fake.parquet`: the file looks like text (a CSV file?): give `--input-format csv`",
+    );
+    w.write("fake.xlsx", "firm,year\nA,2001\n");
+    w.fails(
+        &["audit", "fake.xlsx", "--rules", "rules.toml"],
+        "`fake.xlsx`: the file looks like text (a CSV file?)",
+    );
+    w.ok(&["build", "raw.csv", "--rules", "rules.toml", "--out", "made"]);
+    let parquet = std::fs::read(w.path("made/panel.parquet")).unwrap();
+    std::fs::write(w.path("fake.csv"), &parquet).unwrap();
+    w.fails(
+        &["audit", "fake.csv", "--rules", "rules.toml"],
+        "`fake.csv`: the file looks like a Parquet file: give `--input-format parquet`",
+    );
+    std::fs::write(w.path("cut.parquet"), &parquet[..parquet.len() / 2]).unwrap();
+    w.fails(
+        &["audit", "cut.parquet", "--rules", "rules.toml"],
+        "`cut.parquet`: the file is cut short",
     );
     w.fails(&["verify", "nosuch-dir"], "nosuch-dir");
     // A folder without a Parquet file in it was "no such file"; one column named both the

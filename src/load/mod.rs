@@ -19,6 +19,7 @@ mod markers;
 mod not_numbers;
 mod period;
 mod sheet;
+mod sniff;
 mod whole;
 
 use budget::check_budget;
@@ -432,7 +433,21 @@ pub(crate) fn first_row(bad: &DataFrame) -> Result<String> {
 /// first byte that is not UTF-8, or a quote that is never closed.
 fn unreadable(path: &Path, format: InputFormat, delimiter: char, e: PolarsError) -> Error {
     let message = crate::error::one_line(&e.to_string());
+    // A file of another kind than its name says: that is what to say, not the engine's words.
+    if let Some(kind) = sniff::other_kind(path, format) {
+        return Error::Unreadable {
+            file: path.to_path_buf(),
+            at: String::new(),
+            message: kind,
+        };
+    }
     if format != InputFormat::Csv {
+        let message = match format == InputFormat::Parquet && sniff::cut_short_parquet(path) {
+            true => "the file is cut short: it begins as a Parquet file but lacks the end \
+                     every Parquet file has (copy or download it again)"
+                .to_string(),
+            false => message,
+        };
         return Error::Unreadable {
             file: path.to_path_buf(),
             at: String::new(),

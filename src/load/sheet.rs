@@ -112,8 +112,10 @@ pub fn read(path: &Path, sheet: Option<&str>, text: &[&str]) -> Result<Sheet> {
             file: path.to_path_buf(),
         });
     }
-    let mut book =
-        open_workbook_auto(path).map_err(|e| unreadable(path, String::new(), e.to_string()))?;
+    let mut book = open_workbook_auto(path).map_err(|e| {
+        let kind = super::sniff::other_kind(path, crate::config::InputFormat::Spreadsheet);
+        unreadable(path, String::new(), kind.unwrap_or_else(|| e.to_string()))
+    })?;
     let names = book.sheet_names();
     let name = match sheet {
         Some(s) if names.iter().any(|n| n == s) => s.to_string(),
