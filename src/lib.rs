@@ -36,6 +36,27 @@ pub use error::{Error, Result};
 pub use command::build::build;
 use config::Command;
 
+/// A usage error as one line, as every other error is: the parser's message, its tip and the
+/// usage it shows, without its layout (`error: ...`, indented values, blank lines, the
+/// pointer to `--help`, which the line ends with instead).
+fn usage_line(rendered: &str) -> String {
+    let mut parts: Vec<String> = Vec::new();
+    for line in rendered.lines().map(str::trim) {
+        if line.is_empty() || line.starts_with("For more information") {
+            continue;
+        }
+        let line = line.strip_prefix("error: ").unwrap_or(line);
+        if let Some(usage) = line.strip_prefix("Usage: ") {
+            parts.push(format!("(usage: {usage})"));
+        } else if line.starts_with("tip: ") {
+            parts.push(format!("({line})"));
+        } else {
+            parts.push(line.to_string());
+        }
+    }
+    format!("{}; see --help", parts.join(" "))
+}
+
 /// Run panelready with command-line arguments; returns the process exit code.
 /// Errors are printed once, here, as `panelready: error: ...`.
 pub fn run<I: IntoIterator<Item = OsString>>(args: I) -> i32 {
@@ -43,7 +64,18 @@ pub fn run<I: IntoIterator<Item = OsString>>(args: I) -> i32 {
     let cli = match cli::Cli::try_parse_from(&args) {
         Ok(cli) => cli,
         Err(e) => {
-            let _ = e.print();
+            use clap::error::ErrorKind;
+            let help = matches!(
+                e.kind(),
+                ErrorKind::DisplayHelp
+                    | ErrorKind::DisplayVersion
+                    | ErrorKind::DisplayHelpOnMissingArgumentOrSubcommand
+            );
+            if help {
+                let _ = e.print();
+            } else {
+                eprintln!("panelready: error: {}", usage_line(&e.render().to_string()));
+            }
             return if e.use_stderr() { 2 } else { 0 };
         }
     };

@@ -767,6 +767,30 @@ fn bad_paths_and_arguments_are_one_line_errors() {
         "`cut.parquet`: the file is cut short",
     );
     w.fails(&["verify", "nosuch-dir"], "nosuch-dir");
+    // Usage errors were the argument parser's five to seven lines (message, tip, usage, a
+    // pointer to --help); they are one line as every other error is, with all of that in it.
+    w.fails(
+        &["audit", "raw.csv", "--memory-budget", "-1"],
+        "unexpected argument '-1' found (tip: to pass '-1' as a value, use '-- -1') (usage: \
+         panelready audit [OPTIONS] <DATA>); see --help",
+    );
+    w.fails(
+        &["build", "raw.csv"],
+        "the following required arguments were not provided: --out <DIR>",
+    );
+    w.fails(
+        &["audit", "raw.csv", "--format", "xml"],
+        "invalid value 'xml' for '--format <FORMAT>' [possible values: terminal, md, json, html]",
+    );
+    w.fails(&["bogus"], "unrecognized subcommand 'bogus'");
+    // Help asked for is still the parser's, on stdout, exit 0.
+    let help = w.run(&["audit", "--help"]);
+    assert_eq!(help.code, 0);
+    assert!(
+        help.stdout.contains("Usage: panelready audit"),
+        "{}",
+        help.stdout
+    );
     // A folder without a Parquet file in it was "no such file"; one column named both the
     // entity and the period went on to complain that the firm names are not whole numbers.
     std::fs::create_dir(w.path("empty")).unwrap();
