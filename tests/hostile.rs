@@ -766,7 +766,16 @@ fn bad_paths_and_arguments_are_one_line_errors() {
         &["audit", "cut.parquet", "--rules", "rules.toml"],
         "`cut.parquet`: the file is cut short",
     );
-    w.fails(&["verify", "nosuch-dir"], "nosuch-dir");
+    // A folder that is not there, or not a bundle, said "No such file or directory (os
+    // error 2)" of a manifest.json the user never named.
+    w.fails(
+        &["verify", "nosuch-dir"],
+        "`nosuch-dir`: no such folder (give the folder `build --out` wrote)",
+    );
+    w.fails(
+        &["verify", "full"],
+        "`full`: not a bundle: the folder has no manifest.json",
+    );
     // Usage errors were the argument parser's five to seven lines (message, tip, usage, a
     // pointer to --help); they are one line as every other error is, with all of that in it.
     w.fails(

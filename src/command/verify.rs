@@ -92,6 +92,19 @@ fn recognise(path: &Path, sha256: &str, what: &str, name: &str, given: bool) -> 
 /// names instead, recognised by their hashes) and compare every hash.
 pub fn verify(dir: &Path, moved: &Relocated) -> Result<Verification> {
     let manifest_path = dir.join("manifest.json");
+    if !manifest_path.exists() {
+        return Err(Error::VerifyInput {
+            path: dir.to_path_buf(),
+            message: match dir.is_dir() {
+                true => {
+                    "not a bundle: the folder has no manifest.json (give the folder \
+                         `build --out` wrote)"
+                }
+                false => "no such folder (give the folder `build --out` wrote)",
+            }
+            .into(),
+        });
+    }
     let text = fs::read_to_string(&manifest_path).map_err(Error::io(&manifest_path))?;
     let manifest: Manifest = serde_json::from_str(&text).map_err(|e| Error::Manifest {
         path: manifest_path.clone(),
