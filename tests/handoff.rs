@@ -681,6 +681,32 @@ fn compare_says_cells_not_checked_when_there_is_nothing_to_compare() {
 }
 
 #[test]
+fn compare_says_when_added_firms_are_removed_ones_without_their_zeros() {
+    // Worked by hand: a vintage passed through a spreadsheet lost the zeros of `007` and
+    // `0100`; `12` is a new firm. Before, two firms removed and three added, nothing more.
+    let w = Workdir::new();
+    w.write("a.csv", "f,y,x\n007,1,1\n0100,1,2\n55,1,3\n");
+    w.write("b.csv", "f,y,x\n7,1,1\n100,1,2\n55,1,3\n12,1,4\n");
+    let args = [
+        "compare", "a.csv", "b.csv", "--entity", "f", "--period", "y",
+    ];
+    let r = w.run(&[&args[..], &["--format", "json"]].concat());
+    assert_eq!(r.code, 1, "{}", r.stderr);
+    let summary: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+    assert_eq!(
+        summary["ids_rewritten"],
+        serde_json::json!({"entities": 2, "example": ["007", "7"]})
+    );
+    let r = w.run(&args);
+    assert!(
+        r.stdout
+            .contains("2 of the entities added are entities removed written without their"),
+        "{}",
+        r.stdout
+    );
+}
+
+#[test]
 fn compare_counts_exact_copies_once_and_refuses_a_key_with_two_rows_of_values() {
     // Worked by hand. `old.csv`: A-1 twice with the same values (an exact copy, counted once),
     // a row without its period (left out), B-2 after B-1 out of order; `new.csv`: the same

@@ -85,6 +85,8 @@ pub struct Comparison {
     pub entities_added: Vec<String>,
     /// Entities only in the old vintage.
     pub entities_removed: Vec<String>,
+    /// Entities added that are removed ones but for leading zeros, where there are some.
+    pub ids_rewritten: Option<pairs::Rewritten>,
     /// Columns only in the new vintage.
     pub columns_added: Vec<String>,
     /// Columns only in the old vintage.
@@ -467,6 +469,7 @@ pub fn compare(old: &Side, new: &Side, tolerance: &Tolerance) -> Result<(Compari
             firm_years_in_both,
             firm_years_added,
             firm_years_removed,
+            ids_rewritten: pairs::rewritten(&entities_removed, &entities_added),
             entities_added,
             entities_removed,
             columns_added,

@@ -58,6 +58,21 @@ pub(crate) fn page(c: &Comparison) -> Page {
             list(&c.entities_removed)
         )));
     }
+    if let Some(r) = &c.ids_rewritten {
+        let (old, new) = &r.example;
+        firm_years.push(Block::Note(format!(
+            "{} of the entities added {} entities removed written without their leading \
+             zeros, or with others (`{old}` became `{new}`), as a spreadsheet writes ids it \
+             reads as numbers: the ids changed form, perhaps not the firms; write the ids \
+             one way in both files to compare the firms.",
+            r.entities,
+            if r.entities == 1 {
+                "is one of the"
+            } else {
+                "are"
+            }
+        )));
+    }
     let table = Block::Table(
         strings(&[
             "column",

@@ -245,9 +245,62 @@ pub(super) fn merged(old: &Keys, new: &Keys, e: &str, p: &str) -> Result<Merged>
     })
 }
 
+/// Entities removed and added that are one id written two ways: the same but for leading
+/// zeros (`00123` and `123`), as a spreadsheet that read the ids as numbers writes them.
+#[derive(Debug, Clone, PartialEq, Eq, serde::Serialize)]
+pub struct Rewritten {
+    /// How many added entities are a removed one written otherwise.
+    pub entities: u64,
+    /// The first such pair (removed, added), in key order of the removed.
+    pub example: (String, String),
+}
+
+/// The ids of `removed` that come back among `added` but for their leading zeros.
+pub(super) fn rewritten(removed: &[String], added: &[String]) -> Option<Rewritten> {
+    let bare = |id: &str| -> String {
+        let t = id.trim().trim_start_matches('0');
+        if t.is_empty() && !id.trim().is_empty() {
+            "0".into()
+        } else {
+            t.to_string()
+        }
+    };
+    let mut by_bare: std::collections::HashMap<String, &str> =
+        removed.iter().map(|r| (bare(r), r.as_str())).collect();
+    let mut pairs: Vec<(&str, &str)> = added
+        .iter()
+        .filter_map(|a| by_bare.remove(&bare(a)).map(|r| (r, a.as_str())))
+        .collect();
+    pairs.sort_unstable();
+    let first = pairs.first()?;
+    Some(Rewritten {
+        entities: pairs.len() as u64,
+        example: (first.0.to_string(), first.1.to_string()),
+    })
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Worked by hand: `007` and `0100` come back as `7` and `100`; `12` is a new firm; `000`
+    /// comes back as `0`; each removed id is paired once.
+    #[test]
+    fn ids_that_lost_their_zeros() {
+        let ids = |v: &[&str]| v.iter().map(|s| s.to_string()).collect::<Vec<_>>();
+        let found = rewritten(
+            &ids(&["0100", "007", "000", "55"]),
+            &ids(&["0", "100", "12", "7", "07"]),
+        );
+        assert_eq!(
+            found,
+            Some(Rewritten {
+                entities: 3,
+                example: ("000".into(), "0".into()),
+            })
+        );
+        assert_eq!(rewritten(&ids(&["A1"]), &ids(&["B1"])), None);
+    }
 
     fn keys(df: &DataFrame) -> Keys {
         Keys::of(df.column("f").unwrap(), df.column("y").unwrap()).unwrap()
