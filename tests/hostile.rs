@@ -1682,6 +1682,17 @@ fn entity_names_alike_but_for_spaces_or_case_are_shown() {
     let (report, _) = audit_csv("firm,year,x\nK1,2001,1\nK1,2002,2\nK2,2001,3\nK2,2002,4\n");
     assert_eq!(report["keys"]["alike_entities"], 0);
     assert_eq!(keys(&report)["status"], "pass");
+    // Ids that lost their leading zeros in part of the file (a spreadsheet read them as
+    // numbers) were two firms each, unsaid. Worked by hand: `007` / `7` and `0100` / `100`
+    // are two groups; `70` and `10` are other firms.
+    let (report, _) = audit_csv(
+        "firm,year,x\n007,2001,1\n7,2002,2\n70,2001,3\n0100,2001,4\n100,2002,5\n10,2001,6\n",
+    );
+    assert_eq!(report["keys"]["alike_entities"], 2);
+    assert_eq!(
+        report["keys"]["alike_examples"],
+        serde_json::json!([["0100", "100"], ["007", "7"]])
+    );
 }
 
 /// A column named by the command line or a rule that the file has only with spaces around it

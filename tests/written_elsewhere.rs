@@ -859,6 +859,29 @@ fn a_joined_files_names_alike_a_panel_entity_are_pointed_to() {
         "{}",
         md.stdout
     );
+    // A table whose ids lost their leading zeros (`7` where the panel has `007`) matched
+    // nothing for them, unsaid. Worked by hand: `7` is alike `007`; `L2` matches.
+    w.write(
+        "panel.csv",
+        "firm,year,x\n007,2001,1\n007,2002,2\nL2,2001,3\nL2,2002,4\n",
+    );
+    w.write("ratings.csv", "firm,rating\n7,1.5\nL2,2.5\n");
+    let run = w.ok(&[
+        "audit",
+        "panel.csv",
+        "--rules",
+        "rules.toml",
+        "--format",
+        "json",
+    ]);
+    let report: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+    let join = &report["joins"][0];
+    assert_eq!(join["alike_unmatched"], 1, "{join}");
+    assert_eq!(
+        join["alike_example"],
+        serde_json::json!(["7", "007"]),
+        "{join}"
+    );
 }
 
 #[test]

@@ -234,14 +234,19 @@ fn panel_keys_distinct(df: &DataFrame, on: &[String]) -> Result<u64> {
 }
 
 /// The file's unmatched entity names (in `lonely`) that are a panel entity left unmatched (in
-/// `unmatched`) but for surrounding spaces or letter case (`k1 ` in the file, `K1` in the
-/// panel): how many, and the first pair, the file's name then the panel's.
+/// `unmatched`) but for surrounding spaces, letter case or leading zeros (`k1 ` in the file,
+/// `K1` in the panel; `7` and `007`): how many, and the first pair, the file's name then the panel's.
 fn alike_names(
     lonely: &DataFrame,
     unmatched: &DataFrame,
     entity: &str,
 ) -> Result<(u64, Vec<String>)> {
-    let fold = |name: &str| name.trim().to_lowercase();
+    let fold = |name: &str| {
+        name.trim()
+            .to_lowercase()
+            .trim_start_matches('0')
+            .to_string()
+    };
     let panel: std::collections::HashMap<String, &str> = unmatched
         .column(entity)?
         .str()?

@@ -35,7 +35,7 @@ pub const CONFLICTING_KEYS: LevelKey = level_key!("conflicting_keys", Fail);
 /// Rows missing a key, exact copies, or conflicts resolved by a policy.
 pub const KEY_REPAIRS: LevelKey = level_key!("key_repairs", Warn);
 
-/// Entity names alike but for surrounding spaces or letter case.
+/// Entity names alike but for surrounding spaces, letter case or leading zeros.
 pub const ALIKE_ENTITIES: LevelKey = level_key!("alike_entities", Warn);
 
 /// Every finding `[verdict]` may set, in the order the reports judge them: the key steps',
@@ -138,7 +138,7 @@ pub fn judge(r: &Report, lv: &Levels) -> Verdict {
 }
 
 /// The key steps' verdict line: unresolved conflicting keys, or the repairs made; and entity
-/// names alike but for spaces or case, beside either.
+/// names alike but for spaces, case or leading zeros, beside either.
 pub(super) fn keys(r: &Report, lv: &Levels) -> Option<CheckVerdict> {
     use Status::*;
     let k = &r.keys;
@@ -165,7 +165,7 @@ pub(super) fn keys(r: &Report, lv: &Levels) -> Option<CheckVerdict> {
         found.push((
             lv.of(&ALIKE_ENTITIES),
             format!(
-                "{} groups of entity names alike but for spaces or letter case",
+                "{} groups of entity names alike but for spaces, letter case or leading zeros",
                 k.alike_entities
             ),
         ));
@@ -176,7 +176,7 @@ pub(super) fn keys(r: &Report, lv: &Levels) -> Option<CheckVerdict> {
             lv.of(&ALIKE_ENTITIES),
             format!(
                 "{joined_alike} unmatched entity names of joined files alike a panel entity but \
-                 for spaces or letter case"
+                 for spaces, letter case or leading zeros"
             ),
         ));
     }

@@ -173,7 +173,7 @@ fn joins(r: &Report) -> Section {
         ));
         if let [file, panel] = &j.alike_example[..] {
             rows.push((
-                "unmatched names alike a panel entity but for spaces or case",
+                "unmatched names alike a panel entity but for spaces, case or zeros",
                 format!(
                     "{} (first: `{file}` in the file, `{panel}` in the panel)",
                     j.alike_unmatched
@@ -281,7 +281,7 @@ fn keys(r: &Report) -> Section {
         ("rows carrying those keys", k.conflicting_rows.to_string()),
         ("policy for those keys", k.policy.clone()),
         (
-            "entities alike but for spaces or case",
+            "entities alike but for spaces, case or zeros",
             k.alike_entities.to_string(),
         ),
     ]);
@@ -307,8 +307,8 @@ fn keys(r: &Report) -> Section {
             })
             .collect();
         blocks.push(Block::Note(format!(
-            "Entity names that are one name but for surrounding spaces or letter case, most \
-             likely one firm keyed two ways and counted as two entities (first: {}). Correct the \
+            "Entity names that are one name but for surrounding spaces, letter case or leading \
+             zeros, most likely one firm keyed two ways and counted as two entities (first: {}). Correct the \
              names in the raw file; panelready keeps them as they are.",
             list.join("; ")
         )));
