@@ -545,6 +545,24 @@ fn values_of_the_rules_file_are_checked_before_any_file_is_read() {
             "[[join]]\nfile = \"nowhere.csv\"\non = [\"firm\"]\nunmatched = \"lose\"\n",
             "unmatched",
         ),
+        // A value of the wrong shape named the parser's types ("data did not match any
+        // variant of untagged enum BalanceSpec"); it names the setting and what it takes.
+        (
+            "[clean]\nbalance = [2001, 2003]\n",
+            "`[clean] balance` is \"keep\", \"largest\" or { window = [FIRST, LAST] }",
+        ),
+        (
+            "[clean]\ndrop_singletons = 3\n",
+            "`[clean] drop_singletons` is true, false",
+        ),
+        (
+            "[clean]\nwinsorize = { variables = [\"assets\"], lower = 0.1, upper = 0.9, by = 5 }\n",
+            "`by` of a treatment is \"pooled\", \"period\" or a list of columns",
+        ),
+        (
+            "[model]\noutcome = \"assets\"\nregressors = []\neffects = 5\n",
+            "`[model] effects` is a list of the key columns",
+        ),
     ];
     for (rules, want) in cases {
         // `[panel]` appears twice in one case: merge it into the keys' table.

@@ -200,7 +200,10 @@ pub struct ModelSection {
 
 /// How `[model] effects` is written.
 #[derive(Debug, Clone, Deserialize)]
-#[serde(untagged)]
+#[serde(
+    untagged,
+    expecting = "`[model] effects` is a list of the key columns, such as [\"firm_id\"] or [\"firm_id\", \"fiscal_year\"]"
+)]
 pub enum EffectsSpec {
     /// The key columns, e.g. `["firm_id", "fiscal_year"]`.
     Keys(Vec<String>),
@@ -385,7 +388,10 @@ pub struct CleanSection {
 
 /// `by` of a treatment: a word (`"pooled"`, `"period"`) or grouping columns.
 #[derive(Debug, Clone, PartialEq, Eq, Deserialize)]
-#[serde(untagged)]
+#[serde(
+    untagged,
+    expecting = "`by` of a treatment is \"pooled\", \"period\" or a list of columns, such as [\"sector\", \"fiscal_year\"]"
+)]
 pub enum TreatBy {
     /// `"pooled"` or `"period"`.
     Word(String),
@@ -395,7 +401,10 @@ pub enum TreatBy {
 
 /// `[clean] balance`.
 #[derive(Debug, Clone, PartialEq, Eq, Deserialize)]
-#[serde(untagged)]
+#[serde(
+    untagged,
+    expecting = "`[clean] balance` is \"keep\", \"largest\" or { window = [FIRST, LAST] }, FIRST and LAST whole numbers"
+)]
 pub enum BalanceSpec {
     /// `"keep"` or `"largest"`.
     Mode(String),
@@ -408,7 +417,10 @@ pub enum BalanceSpec {
 
 /// `[clean] drop_singletons`.
 #[derive(Debug, Clone, PartialEq, Eq, Deserialize)]
-#[serde(untagged)]
+#[serde(
+    untagged,
+    expecting = "`[clean] drop_singletons` is true, false, \"entity\" or \"entity+period\""
+)]
 pub enum SingletonDrop {
     /// `true` drops entities with one row; `false` keeps everything.
     Flag(bool),
