@@ -142,6 +142,9 @@ pub enum Error {
         option: &'static str,
         message: String,
     },
+    /// An output whose folder is not there.
+    #[error("`{path}`: cannot be written: its folder `{folder}` does not exist")]
+    NoFolder { path: PathBuf, folder: PathBuf },
     /// A bundle's manifest cannot be read.
     #[error("`{path}`: not a panelready manifest: {message}")]
     Manifest { path: PathBuf, message: String },

@@ -784,6 +784,23 @@ fn bad_paths_and_arguments_are_one_line_errors() {
         &["audit", "cut.parquet", "--rules", "rules.toml"],
         "`cut.parquet`: the file is cut short",
     );
+    // An output in a folder that is not there named the temporary file beside it
+    // (`.r.md.partial-1234`: No such file or directory); it names the file and its folder.
+    w.fails(
+        &[
+            "audit",
+            "raw.csv",
+            "--rules",
+            "rules.toml",
+            "--report",
+            "gone/r.md",
+        ],
+        "`gone/r.md`: cannot be written: its folder `gone` does not exist",
+    );
+    w.fails(
+        &["rules", "draft", "raw.csv", "--out", "gone/r.toml"],
+        "`gone/r.toml`: cannot be written: its folder `gone` does not exist",
+    );
     // A folder that is not there, or not a bundle, said "No such file or directory (os
     // error 2)" of a manifest.json the user never named.
     w.fails(

@@ -54,7 +54,8 @@ pub fn write(
     if staging.exists() {
         fs::remove_dir_all(&staging).map_err(Error::io(&staging))?;
     }
-    fs::create_dir(&staging).map_err(Error::io(&staging))?;
+    // An error names the folder asked for, not the staging folder beside it.
+    fs::create_dir(&staging).map_err(Error::io(out))?;
     let result = write_files(cfg, prepared, input_sha256, &staging, progress);
     let manifest = match result {
         Ok(m) => m,
@@ -258,7 +259,17 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
         .map(|n| n.to_string_lossy().to_string())
         .unwrap_or_else(|| "report".into());
     let tmp = path.with_file_name(format!(".{name}.partial-{}", std::process::id()));
-    fs::write(&tmp, bytes).map_err(Error::io(&tmp))?;
+    // An error names the file asked for, not the temporary one beside it.
+    if let Some(folder) = path
+        .parent()
+        .filter(|f| !f.as_os_str().is_empty() && !f.is_dir())
+    {
+        return Err(Error::NoFolder {
+            path: path.to_path_buf(),
+            folder: folder.to_path_buf(),
+        });
+    }
+    fs::write(&tmp, bytes).map_err(Error::io(path))?;
     fs::rename(&tmp, path).map_err(Error::io(path))
 }
 
