@@ -42,6 +42,7 @@ pub(crate) fn text_among_numbers(
     })
 }
 
+/// [`text_among_numbers`] in one source, over the `columns` it owns.
 fn in_source<'a>(
     source: &Source,
     columns: impl IntoIterator<Item = &'a String>,

@@ -24,15 +24,7 @@ pub(super) fn derive(
     let with_hidden = match lf.collect() {
         Ok(df) => df,
         Err(e) => {
-            let main = load::Source {
-                file: &input.path,
-                frame: &panel,
-                columns: own,
-                format: input.format,
-            };
-            let sources: Vec<load::Source> = std::iter::once(main)
-                .chain(tables.iter().map(|t| t.source()))
-                .collect();
+            let sources = super::sources(input, &panel, own, tables);
             return Err(culprit(&panel, plan, &sources, input).unwrap_or(Error::Polars(e)));
         }
     };

@@ -280,3 +280,22 @@ fn input_summary(
         notes: loaded.notes.iter().cloned().chain(joined).collect(),
     }
 }
+
+/// The files a failing expression may have read a text cell from, to name it: the main file
+/// (its columns `own`, held in `frame` beside their row numbers), then each joined table.
+fn sources<'a>(
+    input: &'a InputConfig,
+    frame: &'a DataFrame,
+    own: &'a [String],
+    tables: &'a [crate::assemble::Table],
+) -> Vec<crate::load::Source<'a>> {
+    let main = crate::load::Source {
+        file: &input.path,
+        frame,
+        columns: own,
+        format: input.format,
+    };
+    std::iter::once(main)
+        .chain(tables.iter().map(|t| t.source()))
+        .collect()
+}

@@ -26,15 +26,7 @@ pub(super) fn accounting_rules(
         keys.period,
     )?;
     let lines = accounting::count(&with_shifts, compiled, within.as_ref()).map_err(|e| {
-        let main = crate::load::Source {
-            file: keys.file,
-            frame: &with_shifts,
-            columns: keys.columns,
-            format: input.format,
-        };
-        let sources: Vec<_> = std::iter::once(main)
-            .chain(tables.iter().map(|t| t.source()))
-            .collect();
+        let sources = super::sources(input, &with_shifts, keys.columns, tables);
         accounting::located(e, compiled, &sources)
     })?;
     let panel = accounting::apply_nulls(with_shifts, compiled)?;
