@@ -210,15 +210,20 @@ fn model_test<'a>(report: &'a serde_json::Value, key: &str) -> &'a serde_json::V
         .unwrap_or_else(|| panic!("no test {key}"))
 }
 
-#[test]
-fn model_readiness_reproduces_published_grunfeld_figures() {
-    // Grunfeld 10-firm data (firms 1-10 of tests/reference/data/grunfeld.csv).
-    let w = Workdir::new();
+/// Grunfeld's 10-firm data (firms 1-10 of tests/reference/data/grunfeld.csv) as `g10.csv`.
+fn write_grunfeld_ten(w: &Workdir) {
     let all =
         std::fs::read_to_string(crate::util::root().join("tests/reference/data/grunfeld.csv"))
             .unwrap();
     let ten: Vec<&str> = all.lines().take(201).collect();
     w.write("g10.csv", &(ten.join("\n") + "\n"));
+}
+
+#[test]
+fn model_readiness_reproduces_published_grunfeld_figures() {
+    // Grunfeld 10-firm data (firms 1-10 of tests/reference/data/grunfeld.csv).
+    let w = Workdir::new();
+    write_grunfeld_ten(&w);
     w.write("rules.toml", MODEL_RULES);
     w.ok(&["build", "g10.csv", "--rules", "rules.toml", "--out", "b"]);
     let report: serde_json::Value =
@@ -276,11 +281,7 @@ fn a_model_without_regressors_matches_the_reference_on_grunfeld() {
     // outcome itself, and every figure is checked against statsmodels / numpy as with
     // regressors; no regressor means no Hausman test. The report said "invest on ,".
     let w = Workdir::new();
-    let all =
-        std::fs::read_to_string(crate::util::root().join("tests/reference/data/grunfeld.csv"))
-            .unwrap();
-    let ten: Vec<&str> = all.lines().take(201).collect();
-    w.write("g10.csv", &(ten.join("\n") + "\n"));
+    write_grunfeld_ten(&w);
     w.write(
         "rules.toml",
         &MODEL_RULES.replace(

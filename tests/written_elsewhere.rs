@@ -819,15 +819,18 @@ fn a_joined_files_names_alike_a_panel_entity_are_pointed_to() {
         "[panel]\nentity = \"firm\"\nperiod = \"year\"\n\n[[join]]\nfile = \"ratings.csv\"\n\
          on = [\"firm\"]\n",
     );
-    let run = w.ok(&[
-        "audit",
-        "panel.csv",
-        "--rules",
-        "rules.toml",
-        "--format",
-        "json",
-    ]);
-    let report: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+    let audit = || -> serde_json::Value {
+        let run = w.ok(&[
+            "audit",
+            "panel.csv",
+            "--rules",
+            "rules.toml",
+            "--format",
+            "json",
+        ]);
+        serde_json::from_str(&run.stdout).unwrap()
+    };
+    let report = audit();
     let join = &report["joins"][0];
     assert_eq!(join["rows_unmatched"], 2, "{join}");
     assert_eq!(join["alike_unmatched"], 1, "{join}");
@@ -866,15 +869,7 @@ fn a_joined_files_names_alike_a_panel_entity_are_pointed_to() {
         "firm,year,x\n007,2001,1\n007,2002,2\nL2,2001,3\nL2,2002,4\n",
     );
     w.write("ratings.csv", "firm,rating\n7,1.5\nL2,2.5\n");
-    let run = w.ok(&[
-        "audit",
-        "panel.csv",
-        "--rules",
-        "rules.toml",
-        "--format",
-        "json",
-    ]);
-    let report: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+    let report = audit();
     let join = &report["joins"][0];
     assert_eq!(join["alike_unmatched"], 1, "{join}");
     assert_eq!(
