@@ -1719,9 +1719,10 @@ fn entity_names_alike_but_for_spaces_or_case_are_shown() {
     assert_eq!(keys(&report)["status"], "pass");
     // Ids that lost their leading zeros in part of the file (a spreadsheet read them as
     // numbers) were two firms each, unsaid. Worked by hand: `007` / `7` and `0100` / `100`
-    // are two groups; `70` and `10` are other firms.
+    // are two groups; `70` and `10` are other firms; `0Q` is not an id of digits, so not `Q`.
     let (report, _) = audit_csv(
-        "firm,year,x\n007,2001,1\n7,2002,2\n70,2001,3\n0100,2001,4\n100,2002,5\n10,2001,6\n",
+        "firm,year,x\n007,2001,1\n7,2002,2\n70,2001,3\n0100,2001,4\n100,2002,5\n10,2001,6\n\
+         0Q,2001,7\nQ,2002,8\n",
     );
     assert_eq!(report["keys"]["alike_entities"], 2);
     assert_eq!(

@@ -241,12 +241,7 @@ fn alike_names(
     unmatched: &DataFrame,
     entity: &str,
 ) -> Result<(u64, Vec<String>)> {
-    let fold = |name: &str| {
-        name.trim()
-            .to_lowercase()
-            .trim_start_matches('0')
-            .to_string()
-    };
+    let fold = |name: &str| crate::core::without_zeros(&name.trim().to_lowercase()).to_string();
     let panel: std::collections::HashMap<String, &str> = unmatched
         .column(entity)?
         .str()?

@@ -257,14 +257,7 @@ pub struct Rewritten {
 
 /// The ids of `removed` that come back among `added` but for their leading zeros.
 pub(super) fn rewritten(removed: &[String], added: &[String]) -> Option<Rewritten> {
-    let bare = |id: &str| -> String {
-        let t = id.trim().trim_start_matches('0');
-        if t.is_empty() && !id.trim().is_empty() {
-            "0".into()
-        } else {
-            t.to_string()
-        }
-    };
+    let bare = |id: &str| crate::core::without_zeros(id.trim()).to_string();
     let mut by_bare: std::collections::HashMap<String, &str> =
         removed.iter().map(|r| (bare(r), r.as_str())).collect();
     let mut pairs: Vec<(&str, &str)> = added

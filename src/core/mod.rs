@@ -27,7 +27,7 @@ pub use quantile::{
 pub use slip::{magnitude, slips};
 pub use text::{
     codes, hold_text_as_codes, is_coded, repeats_in, sample_starts, spelled_out,
-    spelled_out_schema, Spelling, TEXT_SAMPLE,
+    spelled_out_schema, without_zeros, Spelling, TEXT_SAMPLE,
 };
 pub use values::{Values, View};
 

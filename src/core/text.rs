@@ -233,6 +233,15 @@ pub fn codes(column: &Column) -> PolarsResult<Option<UInt32Chunked>> {
     Ok(Some(physical.u32()?.clone()))
 }
 
+/// An id of digits alone without its leading zeros (`007` as `7`, as a spreadsheet that read
+/// it as a number writes it); any other name as it is.
+pub fn without_zeros(name: &str) -> &str {
+    match !name.is_empty() && name.bytes().all(|b| b.is_ascii_digit()) {
+        true => name.trim_start_matches('0'),
+        false => name,
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
