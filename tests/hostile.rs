@@ -127,6 +127,17 @@ fn malformed_csv_stops_with_one_located_line() {
                 "`[panel] year_end = \"year\"`",
             ],
         ),
+        // A fiscal-year label (`FY2001`) was refused with nothing said of the year in it.
+        bad(
+            "year label as period",
+            b"firm,year,assets\nA,2001,1\nA,FY2002,1\n",
+            "",
+            &[
+                "raw.csv",
+                "row 2 has `FY2002` (a year with other characters around it: write the period as \
+                 the year alone, `2002`, in the file)",
+            ],
+        ),
         bad(
             "decimal period",
             b"firm,year,assets\nA,2001.5,1\n",

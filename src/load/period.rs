@@ -220,6 +220,7 @@ pub(super) fn check_period(df: &DataFrame, cfg: &InputConfig, dtype: &DataType) 
     let value = first.column("value")?.str()?.get(0).map(str::to_string);
     let dated = matches!(dtype, DataType::Date | DataType::Datetime(..))
         || value.as_deref().is_some_and(looks_like_a_date);
+    let year = value.as_deref().and_then(year_inside).map(str::to_string);
     Err(Error::NonIntegerPeriod {
         file: cfg.path.clone(),
         column: cfg.period.clone(),
@@ -231,10 +232,27 @@ pub(super) fn check_period(df: &DataFrame, cfg: &InputConfig, dtype: &DataType) 
                  period column of another name)",
                 cfg.period
             )
+        } else if let Some(year) = year {
+            format!(
+                " (a year with other characters around it: write the period as the year alone, \
+                 `{year}`, in the file)"
+            )
         } else {
             String::new()
         },
     })
+}
+
+/// The year in a period written with other characters around it (`FY2001`, `2001a`): its one
+/// run of four digits, when that is all the digits it has.
+fn year_inside(value: &str) -> Option<&str> {
+    let t = value.trim();
+    let start = t.find(|c: char| c.is_ascii_digit())?;
+    let digits = t[start..]
+        .find(|c: char| !c.is_ascii_digit())
+        .map_or(t.len(), |n| start + n);
+    let rest_has_digits = t[digits..].bytes().any(|b| b.is_ascii_digit());
+    (digits - start == 4 && !rest_has_digits && t.len() > 4).then(|| &t[start..digits])
 }
 
 /// Whether `value` starts as a date does, `YYYY-MM-DD` (a timestamp after it or not).
@@ -245,4 +263,21 @@ fn looks_like_a_date(value: &str) -> bool {
             4 | 7 => *c == b'-',
             _ => c.is_ascii_digit(),
         })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Worked by hand: one run of four digits among other characters is the year; a year
+    /// alone, two runs of digits (`2001/02`, which year?), a decimal or a short run is not.
+    #[test]
+    fn the_year_inside_a_period_label() {
+        assert_eq!(year_inside("FY2001"), Some("2001"));
+        assert_eq!(year_inside(" 2001a "), Some("2001"));
+        assert_eq!(year_inside("fiscal 1999 "), Some("1999"));
+        for none in ["2001", "2001/02", "2002.5", "FY01", "Q1 2001", "20011"] {
+            assert_eq!(year_inside(none), None, "{none}");
+        }
+    }
 }
