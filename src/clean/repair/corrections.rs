@@ -154,16 +154,7 @@ pub fn apply_corrections(
         v.dedup();
         v
     };
-    let line_of = |filter: Expr| -> Result<Option<u32>> {
-        let hit = c
-            .rows
-            .clone()
-            .lazy()
-            .filter(filter)
-            .select([col("__line").min()])
-            .collect()?;
-        Ok(hit.column("__line")?.u32()?.get(0))
-    };
+    let line_of = |filter: Expr| first_line(c.rows.clone().lazy().filter(filter));
     for t in &targets {
         let forbidden = t.starts_with("__") || t == entity || t == period;
         if forbidden || !schema.contains(t) {
@@ -187,19 +178,13 @@ pub fn apply_corrections(
         .lazy()
         .select([col(entity).alias("entity"), col(period).alias("period")])
         .unique(None, UniqueKeepStrategy::Any);
-    let unmatched = c
-        .rows
-        .clone()
-        .lazy()
-        .join(
-            keys,
-            [col("entity"), col("period")],
-            [col("entity"), col("period")],
-            JoinArgs::new(JoinType::Anti),
-        )
-        .select([col("__line").min()])
-        .collect()?;
-    if let Some(line) = unmatched.column("__line")?.u32()?.get(0) {
+    let unmatched = c.rows.clone().lazy().join(
+        keys,
+        [col("entity"), col("period")],
+        [col("entity"), col("period")],
+        JoinArgs::new(JoinType::Anti),
+    );
+    if let Some(line) = first_line(unmatched)? {
         return Err(bad(
             &c.path,
             format!("line {line}: no row of the data has this entity and period"),
@@ -272,6 +257,12 @@ pub fn apply_corrections(
     Ok((df, ledger))
 }
 
+/// The first line of the corrections file among `lines` (its rows, filtered), if any.
+fn first_line(lines: LazyFrame) -> Result<Option<u32>> {
+    let hit = lines.select([col("__line").min()]).collect()?;
+    Ok(hit.column("__line")?.u32()?.get(0))
+}
+
 /// The overrides' values for column `t` of type `dtype` (`mine`: its lines of the corrections
 /// file), as an expression over their text, and the type the column takes: a value the type
 /// cannot hold is an error naming its line, but for a column of whole numbers given a
@@ -284,14 +275,7 @@ fn typed_value(
     dtype: DataType,
     c: &Corrections,
 ) -> Result<(Expr, DataType)> {
-    let first_line = |filter: Expr| -> Result<Option<u32>> {
-        let hit = mine
-            .clone()
-            .filter(filter)
-            .select([col("__line").min()])
-            .collect()?;
-        Ok(hit.column("__line")?.u32()?.get(0))
-    };
+    let line_where = |filter: Expr| first_line(mine.clone().filter(filter));
     let refuse = |line: u32, what: &str| {
         bad(
             &c.path,
@@ -311,14 +295,14 @@ fn typed_value(
             .when(word.eq(lit("false")))
             .then(lit(false))
             .otherwise(lit(NULL).cast(DataType::Boolean));
-        if let Some(line) = first_line(given.and(value.clone().is_null()))? {
+        if let Some(line) = line_where(given.and(value.clone().is_null()))? {
             return Err(refuse(line, "holds true / false; the value is neither"));
         }
         return Ok((value, dtype));
     }
     if !dtype.is_primitive_numeric() {
         // Any other type (a date, say): a value the cast cannot take would become missing.
-        if let Some(line) = first_line(given.and(text.clone().cast(dtype.clone()).is_null()))? {
+        if let Some(line) = line_where(given.and(text.clone().cast(dtype.clone()).is_null()))? {
             let form = if dtype == DataType::Date {
                 " YYYY-MM-DD"
             } else {
@@ -336,7 +320,7 @@ fn typed_value(
         false => text,
     };
     let value = text.cast(DataType::Float64);
-    if let Some(line) = first_line(given.clone().and(value.clone().is_null()))? {
+    if let Some(line) = line_where(given.clone().and(value.clone().is_null()))? {
         return Err(bad(
             &c.path,
             format!("line {line}: `{t}` holds numbers; the value is not one"),
@@ -344,7 +328,7 @@ fn typed_value(
     }
     // `nan`, `inf`: numbers to the parser, but not values a regression can use.
     let finite = value.clone().is_finite();
-    if let Some(line) = first_line(value.clone().is_not_null().and(finite.not()))? {
+    if let Some(line) = line_where(value.clone().is_not_null().and(finite.not()))? {
         return Err(refuse(line, "takes finite numbers; the value is not one"));
     }
     let kept = value.clone().cast(dtype.clone()).cast(DataType::Float64);
@@ -353,7 +337,7 @@ fn typed_value(
         DataType::Float32 => kept.is_finite().fill_null(lit(false)).not(),
         _ => value.clone().eq(kept).fill_null(lit(false)).not(),
     };
-    let wider = first_line(value.clone().is_not_null().and(lost))?.is_some();
+    let wider = line_where(value.clone().is_not_null().and(lost))?.is_some();
     Ok((value, if wider { DataType::Float64 } else { dtype }))
 }
 
