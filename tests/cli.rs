@@ -321,16 +321,19 @@ fn singleton_drops_land_in_the_ledger() {
 
 #[test]
 fn accounting_rules_flag_null_and_drop() {
-    // Hand-worked: row 2 breaks `positive` (dropped), row 3 breaks `cap` (x set to null).
+    // Hand-worked: row 2 breaks `positive` (dropped), row 3 breaks `cap` and `ceiling` (x set
+    // to null, by `cap`, the first), row 5 breaks `positive` and `cap` (dropped as it was read:
+    // every rule reads the values before any acts).
     let w = Workdir::new();
     w.write(
         "p.csv",
-        "f,y,x,cap\nA,1,5,10\nA,2,-1,10\nB,1,50,10\nB,2,7,10\n",
+        "f,y,x,cap\nA,1,5,10\nA,2,-1,10\nB,1,50,10\nB,2,7,10\nC,1,-30,-40\n",
     );
     let rules = "[panel]\nentity = \"f\"\nperiod = \"y\"\n\
         [[rule]]\nname = \"positive\"\nexpr = \"x > 0\"\naction = \"drop\"\n\
         [[rule]]\nname = \"cap\"\nexpr = \"x <= cap\"\naction = \"null\"\ncolumns = [\"x\"]\n\
-        [[rule]]\nname = \"small\"\nexpr = \"x < 20\"\n";
+        [[rule]]\nname = \"small\"\nexpr = \"x < 20\"\n\
+        [[rule]]\nname = \"ceiling\"\nexpr = \"x < 40\"\naction = \"null\"\ncolumns = [\"x\"]\n";
     w.write("r.toml", rules);
     w.ok(&["build", "p.csv", "--rules", "r.toml", "--out", "out"]);
     let panel = std::fs::read_to_string(w.path("out/panel.csv")).unwrap();
@@ -343,6 +346,16 @@ fn accounting_rules_flag_null_and_drop() {
         ledger.contains("2,accounting rules,rule `positive` does not hold: x > 0,,A,2,-1,10"),
         "{ledger}"
     );
+    assert!(
+        ledger.contains("5,accounting rules,rule `positive` does not hold: x > 0,,C,1,-30,-40"),
+        "{ledger}"
+    );
+    // Every cell a rule blanked, once, with its old value.
+    let corrections = std::fs::read_to_string(w.path("out/corrections.csv")).unwrap();
+    assert_eq!(
+        corrections,
+        "f,y,column,old,new,reason\nB,1,x,50,,rule `cap` does not hold: x <= cap\n"
+    );
     let report: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(w.path("out/report.json")).unwrap()).unwrap();
     let broken: Vec<u64> = report["rules"]
@@ -351,10 +364,14 @@ fn accounting_rules_flag_null_and_drop() {
         .iter()
         .map(|r| r["violations"].as_u64().unwrap())
         .collect();
-    assert_eq!(broken, [1, 1, 1]);
+    assert_eq!(broken, [2, 2, 1, 1]);
     let dictionary = std::fs::read_to_string(w.path("out/dictionary.md")).unwrap();
     assert!(
         dictionary.contains("set to null where rule `cap` does not hold (1 rows)"),
+        "{dictionary}"
+    );
+    assert!(
+        !dictionary.contains("`ceiling` does not hold"),
         "{dictionary}"
     );
     w.write("bad.toml", "[panel]\nentity = \"f\"\nperiod = \"y\"\n[[rule]]\nname = \"r1\"\nexpr = \"x > 0\"\naction = \"delete\"\n");

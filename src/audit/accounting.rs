@@ -243,43 +243,71 @@ fn rule_label(r: &CompiledRule) -> String {
     format!("accounting rule `{}`", r.name)
 }
 
-/// Where a `null` rule does not hold, set its columns to null; returns the new frame.
-pub fn apply_nulls(df: DataFrame, rules: &[CompiledRule]) -> Result<DataFrame> {
-    let mut lf = df.lazy();
+/// Where a `null` rule does not hold, set its columns to null. Returns the new frame and a
+/// corrections-ledger line (entity, period, column, old, new, reason) for every value blanked,
+/// among the rows `within` marks (every row when None): a cell two rules would blank is the
+/// first rule's, a cell already missing is not changed.
+pub fn apply_nulls(
+    df: DataFrame,
+    rules: &[CompiledRule],
+    entity: &str,
+    period: &str,
+    within: Option<&BooleanChunked>,
+) -> Result<(DataFrame, DataFrame)> {
+    let nulling: Vec<(usize, &CompiledRule)> = rules
+        .iter()
+        .enumerate()
+        .filter(|(_, r)| r.action == Action::Null)
+        .collect();
+    let flag = |i: usize| format!("__null{i}");
+    if nulling.is_empty() {
+        return Ok((df, crate::clean::repair::empty_ledger(entity, period)?));
+    }
     // Evaluate every condition on the values as read, then null.
-    let mut flags = Vec::new();
-    for (i, r) in rules
-        .iter()
-        .enumerate()
-        .filter(|(_, r)| r.action == Action::Null)
-    {
-        flags.push(
-            r.holds
-                .clone()
-                .not()
-                .fill_null(lit(false))
-                .alias(format!("__null{i}")),
-        );
+    let mut helpers: Vec<String> = nulling.iter().map(|(i, _)| flag(*i)).collect();
+    let mut flagged = df.lazy().with_columns(
+        nulling
+            .iter()
+            .map(|(i, r)| broken(r).alias(flag(*i)))
+            .collect::<Vec<_>>(),
+    );
+    if let Some(within) = within {
+        let name = "__within";
+        flagged = flagged.with_column(lit(Series::new(name.into(), within.clone())).alias(name));
+        helpers.push(name.to_string());
     }
-    if flags.is_empty() {
-        return Ok(lf.collect()?);
-    }
-    lf = lf.with_columns(flags);
+    let flagged = flagged.collect()?;
+    // Each column's rules in order: a cell is the first breaking rule's.
     let mut touched: Vec<(String, Expr)> = Vec::new();
-    for (i, r) in rules
-        .iter()
-        .enumerate()
-        .filter(|(_, r)| r.action == Action::Null)
-    {
+    let mut lines = Vec::new();
+    for (i, r) in &nulling {
+        let reason = not_holding(&r.name, &r.text);
         for c in &r.null_columns {
-            let flag = col(format!("__null{i}").as_str());
+            let this = col(flag(*i).as_str());
+            let earlier = touched.iter().find(|(name, _)| name == c).map(|(_, e)| e);
+            let mut first = this.clone().and(col(c.as_str()).is_not_null());
+            if let Some(earlier) = earlier {
+                first = first.and(earlier.clone().not());
+            }
+            if within.is_some() {
+                first = first.and(col("__within"));
+            }
+            lines.push(flagged.clone().lazy().filter(first).select([
+                col(entity),
+                col(period),
+                lit(c.as_str()).alias("column"),
+                col(c.as_str()).cast(DataType::String).alias("old"),
+                lit(NULL).cast(DataType::String).alias("new"),
+                lit(reason.as_str()).alias("reason"),
+            ]));
             match touched.iter_mut().find(|(name, _)| name == c) {
-                Some((_, any)) => *any = any.clone().or(flag),
-                None => touched.push((c.clone(), flag)),
+                Some((_, any)) => *any = any.clone().or(this),
+                None => touched.push((c.clone(), this)),
             }
         }
     }
-    let nulling: Vec<Expr> = touched
+    let lines = concat(lines, UnionArgs::default())?.collect()?;
+    let blanked: Vec<Expr> = touched
         .into_iter()
         .map(|(c, flag)| {
             when(flag)
@@ -288,13 +316,17 @@ pub fn apply_nulls(df: DataFrame, rules: &[CompiledRule]) -> Result<DataFrame> {
                 .alias(c.as_str())
         })
         .collect();
-    let helper: Vec<String> = rules
-        .iter()
-        .enumerate()
-        .filter(|(_, r)| r.action == Action::Null)
-        .map(|(i, _)| format!("__null{i}"))
-        .collect();
-    Ok(lf.with_columns(nulling).drop(cols(helper)).collect()?)
+    let df = flagged
+        .lazy()
+        .with_columns(blanked)
+        .drop(cols(helpers))
+        .collect()?;
+    Ok((df, lines))
+}
+
+/// The reason a rule gives in the ledgers where it does not hold.
+pub fn not_holding(name: &str, text: &str) -> String {
+    format!("rule `{name}` does not hold: {text}")
 }
 
 /// Whether a row breaks the rule: its condition is false (unknown is not broken).
@@ -318,7 +350,7 @@ pub fn drop_reason(rules: &[CompiledRule]) -> Option<Expr> {
         .filter(|r| r.action == Action::Drop)
         .rev()
         .fold(None, |rest: Option<Expr>, r| {
-            let reason = lit(format!("rule `{}` does not hold: {}", r.name, r.text));
+            let reason = lit(not_holding(&r.name, &r.text));
             Some(
                 when(broken(r))
                     .then(reason)

@@ -11,9 +11,11 @@ use crate::Result;
 const FORMULA_STARTS: [u8; 6] = [b'=', b'+', b'-', b'@', b'\t', b'\r'];
 
 /// Text cells that a spreadsheet would read as a formula (starting with `=`, `+`, `-`, `@`,
-/// a tab or a carriage return) get a leading `'`. Numeric columns are untouched, and so is a
-/// text column without such a cell: it is not copied (a pass over the values' first bytes
-/// finds the columns that have one first).
+/// a tab or a carriage return) get a leading `'`, unless the whole cell is a number (`-5`,
+/// `-1.5e3`: a spreadsheet reads it as that number and runs nothing; the corrections ledger
+/// holds its old and new values as text). Numeric columns are untouched, and so is a text
+/// column without such a cell: it is not copied (a pass over the values' first bytes finds
+/// the columns that have one first).
 pub fn guard_text(df: &DataFrame) -> Result<DataFrame> {
     let mut guards = Vec::new();
     for (name, dtype) in df.schema().iter() {
@@ -29,6 +31,7 @@ pub fn guard_text(df: &DataFrame) -> Result<DataFrame> {
             })
             .reduce(|a, b| a.or(b))
             .expect("the characters are listed")
+            .and(c.clone().cast(DataType::Float64).is_null())
             .fill_null(lit(false));
         guards.push(
             when(risky)

@@ -281,8 +281,8 @@ mod tests {
     fn formula_like_text_is_guarded_and_numbers_are_not() {
         // The guard list is common practice for CSV files opened in spreadsheets.
         let df = df!(
-            "name" => [Some("=SUM(A1)"), Some("+1"), Some("-x"), Some("@a"), Some("\tb"), Some("ok"), None],
-            "value" => [-1.5, 2.0, -3.0, 4.0, 5.0, 6.0, 7.0],
+            "name" => [Some("=SUM(A1)"), Some("+1x"), Some("-x"), Some("@a"), Some("\tb"), Some("ok"), None, Some("-5"), Some("-1.5e3"), Some("+2"), Some("-2+3")],
+            "value" => [-1.5, 2.0, -3.0, 4.0, 5.0, 6.0, 7.0, 8.0, 9.0, 10.0, 11.0],
         )
         .unwrap();
         let g = guard_text(&df).unwrap();
@@ -291,12 +291,17 @@ mod tests {
             names,
             [
                 Some("'=SUM(A1)"),
-                Some("'+1"),
+                Some("'+1x"),
                 Some("'-x"),
                 Some("'@a"),
                 Some("'\tb"),
                 Some("ok"),
-                None
+                None,
+                // A cell that is a number is read as that number, and runs nothing.
+                Some("-5"),
+                Some("-1.5e3"),
+                Some("+2"),
+                Some("'-2+3"),
             ]
         );
         assert!(g

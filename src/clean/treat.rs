@@ -8,7 +8,7 @@ use rayon::prelude::*;
 
 use super::group_cutoffs::{group_cutoffs, Bounds, Found, Groups};
 use super::histogram::histogram;
-use super::winsorize::{winsorize, Cutoffs, RowGroups};
+use super::winsorize::{winsorize, Changed, Cutoffs, RowGroups};
 use super::{drop_where, Keys};
 use crate::core::{quantiles, quantiles_by_group, PanelCore, Values, BATCH};
 use crate::report::CutoffGroups;
@@ -41,6 +41,23 @@ impl Method {
         }
     }
 }
+
+/// What a treatment did.
+pub struct Treated {
+    /// The panel treated.
+    pub panel: DataFrame,
+    /// The rows trimming removed, in ledger form.
+    pub removed: Option<DataFrame>,
+    /// One report line per variable.
+    pub lines: Vec<TreatLine>,
+    /// A corrections-ledger line (entity, period, column, old, new, reason) for every value
+    /// winsorizing changed: variable by variable, each in the panel's row order.
+    pub changed: Vec<DataFrame>,
+}
+
+/// The corrections ledger's reason for a value winsorizing raised / lowered.
+const RAISED: &str = "winsorized: below its lower cutoff";
+const LOWERED: &str = "winsorized: above its upper cutoff";
 
 /// One treatment, validated.
 #[derive(Debug, Clone)]
@@ -122,13 +139,8 @@ impl Treatment {
         })
     }
 
-    /// Apply to `df`; returns the treated frame, the ledger part (trim) and one line per variable.
-    pub fn apply(
-        &self,
-        df: DataFrame,
-        k: &Keys,
-        core: Option<&PanelCore>,
-    ) -> Result<(DataFrame, Option<DataFrame>, Vec<TreatLine>)> {
+    /// Apply to `df`.
+    pub fn apply(&self, df: DataFrame, k: &Keys, core: Option<&PanelCore>) -> Result<Treated> {
         let x = |v: &str| col(v).cast(DataType::Float64);
         match (self.by, core) {
             (CutoffGroups::Period, Some(core)) if core.rows() == df.height() => {
@@ -186,6 +198,7 @@ impl Treatment {
         // its new values, so that the panel never holds more than one variable's helpers.
         let mut current = df;
         let mut counts: Vec<(u64, u64)> = Vec::new();
+        let mut changed = Vec::new();
         for (i, v) in self.variables.iter().enumerate() {
             let [lo, hi, below, above] =
                 ["lo", "hi", "below", "above"].map(|h| format!("__{h}{i}"));
@@ -212,6 +225,30 @@ impl Treatment {
                     .unwrap_or(0)
             };
             counts.push((get(0), get(1)));
+            if self.method == Method::Winsorize && get(0) + get(1) > 0 {
+                let (raised, lowered) = (col(below.as_str()), col(above.as_str()));
+                changed.push(
+                    marked
+                        .clone()
+                        .filter(raised.clone().or(lowered))
+                        .select([
+                            col(k.entity),
+                            col(k.period),
+                            lit(v.as_str()).alias("column"),
+                            x(v).cast(DataType::String).alias("old"),
+                            when(raised.clone())
+                                .then(col(lo.as_str()))
+                                .otherwise(col(hi.as_str()))
+                                .cast(DataType::String)
+                                .alias("new"),
+                            when(raised)
+                                .then(lit(RAISED))
+                                .otherwise(lit(LOWERED))
+                                .alias("reason"),
+                        ])
+                        .collect()?,
+                );
+            }
             let result = match self.method {
                 Method::Winsorize => when(col(below.as_str()))
                     .then(col(lo.as_str()))
@@ -230,7 +267,16 @@ impl Treatment {
         }
         let (out, removed) = self.finish(current, k)?;
         let lines = self.lines(&cutoffs, &counts, k, histograms)?;
-        Ok((out, removed, lines))
+        let changed = changed
+            .iter()
+            .map(|part| Ok(crate::core::spelled_out(part)?))
+            .collect::<Result<_>>()?;
+        Ok(Treated {
+            panel: out,
+            removed,
+            lines,
+            changed,
+        })
     }
 
     /// Winsorized: the frame as it is. Trimmed: rows beyond a variable's cutoffs (flagged in
@@ -319,15 +365,16 @@ impl Treatment {
         nt: usize,
         periods: Option<&[i64]>,
         groups: Option<&Groups>,
-    ) -> Result<(DataFrame, Option<DataFrame>, Vec<TreatLine>)> {
+    ) -> Result<Treated> {
         let rows = df.height();
         let mut found = Vec::new();
         let mut counts = Vec::new();
+        let mut changed = Vec::new();
         let mut current = df;
-        type Treated = (Option<Column>, (u64, u64), Found, Histogram);
+        type Measured = (Option<Column>, (u64, u64), Found, Histogram);
         // A variable's cutoffs, its chart and, when trimming, its flags and counts (reading
         // the panel; winsorizing changes the column afterwards, below).
-        let one = |i: usize, v: &String, current: &DataFrame| -> Result<Treated> {
+        let one = |i: usize, v: &String, current: &DataFrame| -> Result<Measured> {
             let values = Values::of(current, v)?;
             let x = values.view();
             let chart = histogram(&x);
@@ -377,7 +424,7 @@ impl Treatment {
             let done = batch
                 .par_iter()
                 .map(|(i, v)| one(*i, v, &current))
-                .collect::<Result<Vec<Treated>>>()?;
+                .collect::<Result<Vec<Measured>>>()?;
             let taken = match self.method {
                 Method::Winsorize => batch
                     .iter()
@@ -389,25 +436,26 @@ impl Treatment {
                 .into_par_iter()
                 .zip(taken)
                 .map(|((flags, count, cut, chart), column)| {
-                    let (column, count) = match column {
+                    let (column, count, moved) = match column {
                         Some(column) => {
                             let (lo, hi, _) = &cut;
                             let cut = Cutoffs { group, lo, hi };
-                            let (column, count) = winsorize(column, &cut)?;
-                            (Some(column), count)
+                            let (column, moved) = winsorize(column, &cut)?;
+                            (Some(column), moved.counts(), Some(moved))
                         }
-                        None => (flags, count),
+                        None => (flags, count, None),
                     };
-                    Ok((column, count, cut, chart))
+                    Ok((column, count, cut, chart, moved))
                 })
-                .collect::<Result<Vec<Treated>>>()?;
-            for (column, count, cut, chart) in done {
+                .collect::<Result<Vec<_>>>()?;
+            for (column, count, cut, chart, moved) in done {
                 if let Some(column) = column {
                     current.with_column(column)?;
                 }
                 counts.push(count);
                 found.push(cut);
                 histograms.push(chart);
+                changed.push(moved);
             }
         }
         if self.method == Method::Winsorize {
@@ -427,8 +475,112 @@ impl Treatment {
                 DataFrame::new(nt, table)?
             }
         };
+        let changed = self
+            .variables
+            .iter()
+            .zip(changed)
+            .filter_map(|(v, moved)| Some((v, moved?)))
+            .filter(|(_, moved)| !moved.rows.is_empty())
+            .map(|(v, moved)| ledger_lines(&current, k, v, moved))
+            .collect::<Result<_>>()?;
         let (out, removed) = self.finish(current, k)?;
         let lines = self.lines(&cutoffs, &counts, k, histograms)?;
-        Ok((out, removed, lines))
+        Ok(Treated {
+            panel: out,
+            removed,
+            lines,
+            changed,
+        })
+    }
+}
+
+/// The corrections-ledger lines of the values winsorizing `moved` in `v`, whose new values
+/// `panel` holds: the rows gathered, the text of their keys spelled out.
+fn ledger_lines(panel: &DataFrame, k: &Keys, v: &str, moved: Changed) -> Result<DataFrame> {
+    const OLD: &str = "__old";
+    const RAISED_: &str = "__raised";
+    let rows = IdxCa::from_vec(PlSmallStr::EMPTY, moved.rows);
+    let mut lines = panel.select([k.entity, k.period, v])?.take(&rows)?;
+    lines.with_column(Column::new(OLD.into(), moved.old))?;
+    lines.with_column(Column::new(RAISED_.into(), moved.raised))?;
+    let lines = lines
+        .lazy()
+        .select([
+            col(k.entity),
+            col(k.period),
+            lit(v).alias("column"),
+            col(OLD).cast(DataType::String).alias("old"),
+            col(v).cast(DataType::String).alias("new"),
+            when(col(RAISED_))
+                .then(lit(RAISED))
+                .otherwise(lit(LOWERED))
+                .alias("reason"),
+        ])
+        .collect()?;
+    Ok(crate::core::spelled_out(&lines)?)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Winsorizing by period on the panel core's codes and by the engine's group-by (the path
+    /// taken when no core codes the rows) move the same values to the same cutoffs and list
+    /// the same cells; the typed path itself is checked against numpy in tests/reference.
+    #[test]
+    fn both_paths_list_the_same_cells() {
+        let n = 400;
+        let df = df!(
+            "f" => (0..n).map(|i| format!("F{:03}", i / 8)).collect::<Vec<_>>(),
+            "y" => (0..n as i64).map(|i| 2001 + i % 8).collect::<Vec<_>>(),
+            "x" => (0..n).map(|i| (i % 23 != 0).then(|| ((i * 7919) % 211) as f64 / 3.0)).collect::<Vec<_>>(),
+        )
+        .unwrap();
+        let columns = ["x".to_string()];
+        let k = Keys {
+            file: std::path::Path::new("p.csv"),
+            entity: "f",
+            period: "y",
+            columns: &columns,
+        };
+        let t = Treatment {
+            method: Method::Winsorize,
+            variables: vec!["x".into()],
+            lower: 0.05,
+            upper: 0.9,
+            by: CutoffGroups::Period,
+            groups: Vec::new(),
+        };
+        let core = PanelCore::new(&df, "f", "y").unwrap();
+        let typed = t.apply(df.clone(), &k, Some(&core)).unwrap();
+        let engine = t.apply(df, &k, None).unwrap();
+        // The cutoffs agree to rounding (selection against the engine's interpolation).
+        let close = |a: Option<f64>, b: Option<f64>| match (a, b) {
+            (Some(a), Some(b)) => (a - b).abs() <= 1e-12 * a.abs().max(1.0),
+            (a, b) => a.is_none() && b.is_none(),
+        };
+        let x = |p: &DataFrame| -> Vec<Option<f64>> {
+            p.column("x").unwrap().f64().unwrap().iter().collect()
+        };
+        let (xa, xb) = (x(&typed.panel), x(&engine.panel));
+        assert!(xa.iter().zip(&xb).all(|(a, b)| close(*a, *b)));
+        // The same cells, whatever order each path lists them in, with the same old values.
+        let sorted = |d: &DataFrame| d.sort(["f", "y"], Default::default()).unwrap();
+        let (a, b) = (sorted(&typed.changed[0]), sorted(&engine.changed[0]));
+        assert!(a.height() > 0);
+        for c in ["f", "y", "column", "old", "reason"] {
+            assert!(
+                a.column(c).unwrap().equals(b.column(c).unwrap()),
+                "{c}: {a}\n{b}"
+            );
+        }
+        let new = |d: &DataFrame| -> Vec<Option<f64>> {
+            let n = d.column("new").unwrap().cast(&DataType::Float64).unwrap();
+            n.f64().unwrap().iter().collect()
+        };
+        assert!(new(&a).iter().zip(&new(&b)).all(|(a, b)| close(*a, *b)));
+        let line = &typed.lines[0];
+        assert_eq!((line.below + line.above) as usize, a.height());
+        assert!(line.below > 0 && line.above > 0);
     }
 }

@@ -59,19 +59,46 @@ impl Cutoffs<'_> {
     }
 }
 
-/// `column` winsorized (as floats, under its name; missing values stay missing), and how many
-/// values were raised to the lower cutoff and lowered to the upper one.
-pub(super) fn winsorize(column: Column, cut: &Cutoffs) -> Result<(Column, (u64, u64))> {
+/// The values a pass changed, in row order: each one's row, its old value and whether it was
+/// raised to its lower cutoff (else lowered to its upper one).
+#[derive(Debug, Default, Clone, PartialEq)]
+pub(super) struct Changed {
+    pub rows: Vec<IdxSize>,
+    pub old: Vec<f64>,
+    pub raised: Vec<bool>,
+}
+
+impl Changed {
+    /// Row `r`'s `old` value, if the pass moved it to a cutoff.
+    #[inline(always)]
+    fn note(&mut self, r: usize, old: f64, below: bool, above: bool) {
+        if below || above {
+            self.rows.push(r as IdxSize);
+            self.old.push(old);
+            self.raised.push(below);
+        }
+    }
+
+    /// How many values were raised to the lower cutoff and lowered to the upper one.
+    pub(super) fn counts(&self) -> (u64, u64) {
+        let raised = self.raised.iter().filter(|r| **r).count() as u64;
+        (raised, self.raised.len() as u64 - raised)
+    }
+}
+
+/// `column` winsorized (as floats, under its name; missing values stay missing), and the
+/// values it changed.
+pub(super) fn winsorize(column: Column, cut: &Cutoffs) -> Result<(Column, Changed)> {
     match in_place(column, cut) {
-        (column, Some(counts)) => Ok((column, counts)),
+        (column, Some(changed)) => Ok((column, changed)),
         (column, None) => copied(&column, cut),
     }
 }
 
-/// Within the column's own buffer, with the counts; the column back, unchanged and without
-/// counts, when it is not one chunk of floats that nothing else holds. The slots of missing
+/// Within the column's own buffer, with the values changed; the column back, unchanged and
+/// without them, when it is not one chunk of floats that nothing else holds. The slots of missing
 /// values are left as they are (no pass reads them, and the Parquet writer skips them).
-fn in_place(column: Column, cut: &Cutoffs) -> (Column, Option<(u64, u64)>) {
+fn in_place(column: Column, cut: &Cutoffs) -> (Column, Option<Changed>) {
     if column.dtype() != &DataType::Float64
         || column.as_series().is_none()
         || column.n_chunks() != 1
@@ -84,12 +111,11 @@ fn in_place(column: Column, cut: &Cutoffs) -> (Column, Option<(u64, u64)>) {
     let Some(values) = chunk.get_mut_values() else {
         return (Float64Chunked::with_chunk(name, chunk).into_column(), None);
     };
-    let mut counts = (0u64, 0u64);
+    let mut changed = Changed::default();
     let mut set = |r: usize, v: &mut f64| {
         let (new, below, above) = cut.clip(r, *v);
+        changed.note(r, *v, below, above);
         *v = new;
-        counts.0 += u64::from(below);
-        counts.1 += u64::from(above);
     };
     match &validity {
         None => values.iter_mut().enumerate().for_each(|(r, v)| set(r, v)),
@@ -102,21 +128,20 @@ fn in_place(column: Column, cut: &Cutoffs) -> (Column, Option<(u64, u64)>) {
     }
     (
         Float64Chunked::with_chunk(name, chunk).into_column(),
-        Some(counts),
+        Some(changed),
     )
 }
 
 /// Into a new column of floats.
-fn copied(column: &Column, cut: &Cutoffs) -> Result<(Column, (u64, u64))> {
+fn copied(column: &Column, cut: &Cutoffs) -> Result<(Column, Changed)> {
     let name = column.name().clone();
     let floats = column.cast(&DataType::Float64)?;
     let values = Values::new(floats.f64()?);
     let x = values.view();
-    let mut counts = (0u64, 0u64);
+    let mut changed = Changed::default();
     let mut clip = |r: usize, value: f64| {
         let (new, below, above) = cut.clip(r, value);
-        counts.0 += u64::from(below);
-        counts.1 += u64::from(above);
+        changed.note(r, value, below, above);
         new
     };
     let column = match x.parts() {
@@ -136,17 +161,17 @@ fn copied(column: &Column, cut: &Cutoffs) -> Result<(Column, (u64, u64))> {
             new.into_column().with_name(name)
         }
     };
-    Ok((column, counts))
+    Ok((column, changed))
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
 
-    /// In place and copied give the same values and counts as the definition of winsorizing
-    /// (common practice) applied value by value: a value below its group's lower cutoff
-    /// becomes that cutoff, above the upper the upper; missing values and NaN stay. In place
-    /// keeps the column's own buffer. (The cutoffs and counts on real data are checked against
+    /// In place and copied give the same values, and name the same changed values, as the
+    /// definition of winsorizing (common practice) applied value by value: a value below its
+    /// group's lower cutoff becomes that cutoff, above the upper the upper; missing values and
+    /// NaN stay. In place keeps the column's own buffer. (The cutoffs and counts on real data are checked against
     /// numpy in tests/reference and tests/handoff.)
     #[test]
     fn in_place_and_copied_agree_with_the_definition() {
@@ -168,16 +193,24 @@ mod tests {
         };
         let mut expected = Vec::new();
         let (mut below, mut above) = (0, 0);
+        let mut moved = Changed::default();
         for (r, v) in x.iter().enumerate() {
             expected.push(v.map(|v| {
                 let t = r % 3;
+                let mut note = |raised| {
+                    moved.rows.push(r as IdxSize);
+                    moved.old.push(v);
+                    moved.raised.push(raised);
+                };
                 match (lo[t], hi[t]) {
                     (Some(l), _) if v < l => {
                         below += 1;
+                        note(true);
                         l
                     }
                     (_, Some(h)) if v > h => {
                         above += 1;
+                        note(false);
                         h
                     }
                     _ => v,
@@ -198,16 +231,17 @@ mod tests {
         let own = Column::new("x".into(), x.clone());
         let buffer = |c: &Column| c.f64().unwrap().downcast_as_array().values().as_ptr();
         let before = buffer(&own);
-        let (got, counts) = winsorize(own, &cut).unwrap();
+        let (got, changed) = winsorize(own, &cut).unwrap();
         same(&got);
-        assert_eq!(counts, (below, above));
+        assert_eq!(changed, moved);
+        assert_eq!(changed.counts(), (below, above));
         assert_eq!(before, buffer(&got), "winsorized within its own buffer");
         // Held elsewhere too: copied, the other holder unchanged.
         let shared = Column::new("x".into(), x.clone());
         let other = shared.clone();
-        let (got, counts) = winsorize(shared, &cut).unwrap();
+        let (got, changed) = winsorize(shared, &cut).unwrap();
         same(&got);
-        assert_eq!(counts, (below, above));
+        assert_eq!(changed, moved);
         let untouched: Vec<Option<f64>> = other.f64().unwrap().iter().collect();
         assert_eq!(
             format!("{untouched:?}"),
@@ -220,12 +254,15 @@ mod tests {
             lo: &[Some(-20.0)],
             hi: &[Some(20.0)],
         };
-        let (got, counts) = winsorize(Column::new("x".into(), x.clone()), &pooled).unwrap();
+        let (got, changed) = winsorize(Column::new("x".into(), x.clone()), &pooled).unwrap();
         let want: Vec<Option<f64>> = x.iter().map(|v| v.map(|v| v.clamp(-20.0, 20.0))).collect();
         let got: Vec<Option<f64>> = got.f64().unwrap().iter().collect();
         assert_eq!(format!("{got:?}"), format!("{want:?}"));
         let beyond = |f: fn(f64) -> bool| x.iter().flatten().filter(|v| f(**v)).count() as u64;
-        assert_eq!(counts, (beyond(|v| v < -20.0), beyond(|v| v > 20.0)));
+        assert_eq!(
+            changed.counts(),
+            (beyond(|v| v < -20.0), beyond(|v| v > 20.0))
+        );
         // Integers: copied into floats.
         let ints = Column::new("k".into(), (0..n as i64).collect::<Vec<_>>());
         let (got, _) = winsorize(ints, &cut).unwrap();

@@ -11,6 +11,8 @@ pub(super) struct CleanLines {
     pub balance: Option<crate::report::BalanceLine>,
     /// The variables whose values treatment may have changed.
     pub treated: Vec<String>,
+    /// A corrections-ledger part per variable winsorizing changed.
+    pub changed: Vec<DataFrame>,
 }
 
 /// Clean the sample's panel. `before` codes the panel as the checks saw it.
@@ -24,15 +26,16 @@ pub(super) fn clean(
 ) -> Result<CleanLines> {
     let mut lines = Vec::new();
     let mut treated: Vec<String> = Vec::new();
+    let mut changed = Vec::new();
     for t in treatments {
         treated.extend(t.variables.iter().cloned());
         // Per-period cutoffs on the panel core's codes while the rows are those it codes.
         let core = (sample.panel.height() == before.rows).then(|| before.core());
-        let (rest, removed, treat_lines) =
-            t.apply(std::mem::take(&mut sample.panel), keys, core)?;
-        sample.panel = rest;
-        lines.extend(treat_lines);
-        if let Some(removed) = removed {
+        let done = t.apply(std::mem::take(&mut sample.panel), keys, core)?;
+        sample.panel = done.panel;
+        lines.extend(done.lines);
+        changed.extend(done.changed);
+        if let Some(removed) = done.removed {
             sample.removed("trim", removed)?;
         }
     }
@@ -49,5 +52,6 @@ pub(super) fn clean(
         treatment: lines,
         balance: balance_line,
         treated,
+        changed,
     })
 }

@@ -2,12 +2,31 @@
 
 use super::*;
 
+/// The entries; a `null` rule's cells are counted in the corrections ledger (`corrections`).
 pub(super) fn dictionary(
     panel: &DataFrame,
     report: &Report,
     input: &InputConfig,
     raw: &[String],
-) -> Vec<DictionaryEntry> {
+    corrections: &DataFrame,
+) -> Result<Vec<DictionaryEntry>> {
+    // The ledger's lines per column and reason: a few groups, however many lines.
+    let counts = corrections
+        .clone()
+        .lazy()
+        .group_by([col("column"), col("reason")])
+        .agg([len().cast(DataType::UInt64).alias("n")])
+        .collect()?;
+    let ledger_lines: std::collections::BTreeMap<(&str, &str), u64> = counts
+        .column("column")?
+        .str()?
+        .iter()
+        .zip(counts.column("reason")?.str()?.iter())
+        .zip(counts.column("n")?.u64()?.iter())
+        .filter_map(|((c, r), n)| Some(((c?, r?), n?)))
+        .collect();
+    let lines_of =
+        |column: &str, reason: &str| ledger_lines.get(&(column, reason)).copied().unwrap_or(0);
     let canonical: std::collections::BTreeMap<&String, &String> = input
         .rules
         .file
@@ -23,7 +42,7 @@ pub(super) fn dictionary(
         .get::<crate::report::MissingFigures>()
         .map_or(&[][..], |f| &f.lines);
     let missing = |name: &str| lines.iter().find(|m| m.variable == name).map(|m| m.share);
-    panel
+    Ok(panel
         .get_column_names()
         .iter()
         .map(|n| n.to_string())
@@ -58,11 +77,18 @@ pub(super) fn dictionary(
             let nulled: Vec<String> = report
                 .rules
                 .iter()
-                .filter(|l| l.nulls.contains(&name) && l.violations > 0)
+                .filter(|l| l.nulls.contains(&name))
                 .map(|l| {
+                    (
+                        l,
+                        lines_of(&name, &accounting::not_holding(&l.name, &l.expr)),
+                    )
+                })
+                .filter(|(_, n)| *n > 0)
+                .map(|(l, n)| {
                     format!(
-                        "set to null where rule `{}` does not hold ({} rows)",
-                        l.name, l.violations
+                        "set to null where rule `{}` does not hold ({n} rows)",
+                        l.name
                     )
                 })
                 .collect();
@@ -111,5 +137,5 @@ pub(super) fn dictionary(
                 treatment,
             }
         })
-        .collect()
+        .collect())
 }

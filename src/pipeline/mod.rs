@@ -154,7 +154,7 @@ pub fn prepare_with(
     )?;
 
     progress.stage("accounting rules");
-    let rule_lines =
+    let (rule_lines, blanked) =
         rules::accounting_rules(&mut sample, &accounting_rules, &keys, &read.tables, input)?;
 
     progress.stage("derived variables");
@@ -224,6 +224,10 @@ pub fn prepare_with(
         &before,
     )?;
     report.treatment = cleaning.treatment;
+    let corrections = [repaired.ledger, blanked]
+        .into_iter()
+        .chain(cleaning.changed)
+        .collect();
     report.balance = cleaning.balance;
     let (cleaned, model) = cleaned_figures(
         &before,
@@ -246,7 +250,7 @@ pub fn prepare_with(
         report,
         read,
         &plan,
-        repaired.ledger,
+        repairs::ledger(corrections)?,
         found.join_ledgers,
         input,
     )

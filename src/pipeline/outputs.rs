@@ -53,7 +53,7 @@ pub(super) fn outputs(
             rejected.rename(internal, name.as_str().into())?;
         }
     }
-    let dictionary = dictionary(&panel, &report, input, &read.loaded.columns);
+    let dictionary = dictionary(&panel, &report, input, &read.loaded.columns, &corrections)?;
     let joined_files = read
         .tables
         .iter()

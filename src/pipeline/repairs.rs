@@ -88,3 +88,22 @@ pub(super) fn repair(
     });
     Ok(Repaired { ledger, summary })
 }
+
+/// The corrections ledger from its parts (repairs, then the cells rules blanked), in that
+/// order; the parts' entity and period columns are as read, an empty part's perhaps not.
+pub(super) fn ledger(parts: Vec<DataFrame>) -> Result<DataFrame> {
+    let empty = parts.first().map(|p| p.clear());
+    let mut parts: Vec<DataFrame> = parts.into_iter().filter(|p| p.height() > 0).collect();
+    Ok(match parts.len() {
+        0 => empty.expect("the repairs always return a ledger"),
+        1 => parts.remove(0),
+        _ => concat(
+            parts.into_iter().map(|d| d.lazy()).collect::<Vec<_>>(),
+            UnionArgs {
+                to_supertypes: true,
+                ..Default::default()
+            },
+        )?
+        .collect()?,
+    })
+}

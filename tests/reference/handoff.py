@@ -18,7 +18,8 @@
   handoff.py groups BUNDLE
       recomputes winsorizing of roa and leverage by sector x fiscal year with numpy, groups
       smaller than 1 / (the smaller tail) taking the pooled cutoffs, and the audit's outlier
-      counts by the same groups when the report has them.
+      counts by the same groups when the report has them; corrections.csv must list exactly
+      the cells moved, each with its old value and its cutoff.
   handoff.py yearend DATA_DIR REPORT_JSON
       derives the fiscal year from the demo's year-end dates with pandas (month <= 5: the
       previous year), recounts the key steps on it and the firms whose year-end month changed,
@@ -183,6 +184,7 @@ def groups(bundle):
     from the panel's raw columns by their standard definitions (METHODS.md s.7)."""
     panel = read(f"{bundle}/panel.csv")
     report = json.load(open(f"{bundle}/report.json"))
+    corrections = read(f"{bundle}/corrections.csv")
     lines = {t["variable"]: t for t in report["treatment"]}
     assets = panel["assets_total"]
     raw = {
@@ -198,6 +200,7 @@ def groups(bundle):
         pooled = (np.percentile(present, lo_p), np.percentile(present, hi_p))
         by_group = {tuple(g["group"]): g for g in line["group_cutoffs"]}
         expected = x.copy()
+        moved = []
         below = above = fallbacks = 0
         for (sector, year), idx in panel.groupby(["sector", "fiscal_year"]).groups.items():
             values = x.loc[idx].dropna().to_numpy()
@@ -212,6 +215,10 @@ def groups(bundle):
             below += int((values < lo).sum())
             above += int((values > hi).sum())
             expected.loc[idx] = x.loc[idx].clip(lo, hi)
+            for side, beyond, cut in (("below", x.loc[idx] < lo, lo), ("above", x.loc[idx] > hi, hi)):
+                rows = panel.loc[idx][beyond.to_numpy()]
+                moved += [(f, y, old, cut, side)
+                          for f, y, old in zip(rows["firm_id"], rows["fiscal_year"], x.loc[rows.index])]
         check(f"{v} below", line["below"] == below, (line["below"], below))
         check(f"{v} above", line["above"] == above, (line["above"], above))
         # The audit's outlier counts by the same groups (on the panel before treatment, which
@@ -227,6 +234,23 @@ def groups(bundle):
         both = expected.notna() & got.notna()
         check(f"{v} values", bool(np.allclose(got[both], expected[both], rtol=1e-12, atol=1e-15)))
         check(f"{v} missing alike", bool((expected.isna() == got.isna()).all()))
+        # Every value moved is in corrections.csv, once, with its old value and its cutoff.
+        listed = corrections[corrections["column"] == v]
+        want = pd.DataFrame(moved, columns=["firm_id", "fiscal_year", "old", "new", "side"])
+        got_lines = listed.assign(side=np.where(listed["reason"].str.contains("below"), "below",
+                                                np.where(listed["reason"].str.contains("above"),
+                                                         "above", "?")))
+        key = ["firm_id", "fiscal_year"]
+        check(f"{v} corrections lines", len(listed) == len(want), (len(listed), len(want)))
+        joined = want.merge(got_lines, on=key, how="outer", suffixes=("", "_got"), indicator=True)
+        check(f"{v} corrections cells", bool((joined["_merge"] == "both").all()),
+              joined[joined["_merge"] != "both"].head().to_dict("records"))
+        both = joined[joined["_merge"] == "both"]
+        check(f"{v} corrections sides", bool((both["side"] == both["side_got"]).all()))
+        check(f"{v} corrections old", bool(np.allclose(both["old_got"].astype(float), both["old"],
+                                                         rtol=1e-12, atol=1e-15)))
+        check(f"{v} corrections new", bool(np.allclose(both["new_got"].astype(float), both["new"],
+                                                         rtol=1e-12, atol=1e-15)))
         print(f"{v}: {len(by_group)} groups, {fallbacks} on the pooled cutoffs")
 
 

@@ -242,6 +242,17 @@ pub(super) fn cleaning_blocks(r: &Report) -> Vec<Block> {
             strings(&["treated", "how", "percentiles", "cutoffs", "below", "above"]),
             rows,
         ));
+        let replaced = r
+            .treatment
+            .iter()
+            .any(|t| t.method == "winsorize" && t.below + t.above > 0);
+        if replaced {
+            blocks.push(Block::Note(
+                "Each value winsorizing replaced is listed in the bundle's corrections.csv, \
+                 with its old value and its cutoff."
+                    .into(),
+            ));
+        }
     }
     if let Some(b) = &r.balance {
         let mut text = format!(
