@@ -435,6 +435,14 @@ fn bad_rules_stop_before_any_data_is_read_identically_for_audit_and_build() {
             &["winsorize", "`assets` twice"],
         ),
         bad(
+            // It was taken: the rows trimmed were those winsorizing had moved to its cutoffs.
+            "winsorize and trim one variable",
+            GOOD.as_bytes(),
+            "[clean]\nwinsorize = { variables = [\"assets\"], lower = 0.01, upper = 0.99 }\n\
+             trim = { variables = [\"assets\"], lower = 0.05, upper = 0.95 }\n",
+            &["[clean] winsorize / trim", "both name `assets`"],
+        ),
+        bad(
             "winsorize bad range",
             GOOD.as_bytes(),
             "[clean]\nwinsorize = { variables = [\"assets\"], lower = 0.9, upper = 0.1 }\n",

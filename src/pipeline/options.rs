@@ -181,5 +181,19 @@ pub(super) fn treatments(
             message,
         });
     }
+    // A variable winsorized and then trimmed would be trimmed on the cutoffs of its own
+    // winsorized values, which describe no data: one treatment a variable.
+    if let [first, second] = &treatments[..] {
+        if let Some(v) = second
+            .variables
+            .iter()
+            .find(|v| first.variables.contains(v))
+        {
+            return Err(Error::Setting {
+                setting: "[clean] winsorize / trim",
+                message: format!("both name `{v}`: a variable is winsorized or trimmed, not both"),
+            });
+        }
+    }
     Ok(treatments)
 }
