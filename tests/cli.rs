@@ -478,6 +478,44 @@ fn a_regressor_absorbed_by_entity_effects_is_named_and_kept_where_identified() {
         serde_json::json!(["founded"])
     );
     assert_eq!(report["verdict"]["overall"], "fail");
+    let why = |report: &serde_json::Value, check: &str| -> String {
+        let lines = report["verdict"]["checks"].as_array().unwrap();
+        let line = lines.iter().find(|c| c["check"] == check).unwrap();
+        format!("{} {}", line["status"], line["reason"])
+    };
+    assert!(
+        why(&report, "Model readiness").contains("not identified by the within estimator: founded")
+    );
+    assert!(
+        why(&report, "Absorbed by fixed effects").contains("absorbed by fixed effects: founded")
+    );
+    // `twice` = 2 x exactly (worked by hand): no estimator identifies it, and it is no fixed
+    // effects' doing (it varies within every firm). The absorption check blamed it.
+    let mut csv = String::from("f,y,x,twice,out\n");
+    for (i, f) in ["A", "B", "C", "D"].iter().enumerate() {
+        for y in 1..=5 {
+            let x = (i * 7 + y * 3) % 11;
+            csv.push_str(&format!("{f},{y},{x},{},{}\n", 2 * x, x * 2 + y + i));
+        }
+    }
+    w.write("q.csv", &csv);
+    w.write(
+        "q.toml",
+        "[panel]\nentity = \"f\"\nperiod = \"y\"\n[model]\noutcome = \"out\"\nregressors = [\"x\", \"twice\"]\n",
+    );
+    w.ok(&["build", "q.csv", "--rules", "q.toml", "--out", "q"]);
+    let report: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(w.path("q/report.json")).unwrap()).unwrap();
+    assert_eq!(
+        report["model"]["not_identified"],
+        serde_json::json!(["twice"])
+    );
+    assert!(why(&report, "Model readiness").contains("identified by no estimator: twice"));
+    let absorbed = why(&report, "Absorbed by fixed effects");
+    assert!(
+        !absorbed.contains("twice") && absorbed.starts_with("\"pass\""),
+        "{absorbed}"
+    );
 }
 
 /// A panel that triggers every finding the verdict knows, hand-planted: a gap (F01), a

@@ -104,11 +104,28 @@ impl Check for Variation {
     fn verdict(&self, r: &Report, lv: &Levels) -> Option<CheckVerdict> {
         use Status::*;
         let variation = &r.findings.get::<Figures>()?.lines;
-        // A model regressor counts as absorbed only under the effects the model declares.
+        // A model regressor counts as absorbed only under the effects the model declares. One
+        // that no estimator identifies counts only when it varies by entity or period alone
+        // (in the panel the model is estimated on); a combination of the other regressors is
+        // the model check's finding, not the fixed effects'.
+        let estimated = r
+            .cleaned
+            .as_ref()
+            .and_then(|c| c.findings.get::<Figures>())
+            .map_or(variation, |f| &f.lines);
+        let by_effects = |v: &String| {
+            estimated
+                .iter()
+                .any(|l| l.variable == *v && l.absorbed_by.is_some())
+        };
         let absorbed_regressor: Vec<&str> = r
             .model
             .iter()
-            .flat_map(|m| m.not_identified_within.iter().chain(&m.not_identified))
+            .flat_map(|m| {
+                m.not_identified_within
+                    .iter()
+                    .chain(m.not_identified.iter().filter(|v| by_effects(v)))
+            })
             .map(String::as_str)
             .collect();
         let nearly: Vec<&str> = variation

@@ -70,18 +70,19 @@ pub fn verdict(r: &Report, lv: &Levels) -> Option<CheckVerdict> {
         .chain(&m.not_identified_within)
         .collect();
     let mut findings = Vec::new();
-    if !not_identified.is_empty() {
-        findings.push((
-            lv.of(&super::variation::ABSORBED_REGRESSOR),
-            format!(
-                "not identified by every estimator: {}",
-                not_identified
-                    .iter()
-                    .map(|s| s.as_str())
-                    .collect::<Vec<_>>()
-                    .join(", ")
-            ),
-        ));
+    for (names, what) in [
+        (&m.not_identified, "identified by no estimator"),
+        (
+            &m.not_identified_within,
+            "not identified by the within estimator",
+        ),
+    ] {
+        if !names.is_empty() {
+            findings.push((
+                lv.of(&super::variation::ABSORBED_REGRESSOR),
+                format!("{what}: {}", names.join(", ")),
+            ));
+        }
     }
     let thumbs = m.warnings.len().saturating_sub(not_identified.len());
     if thumbs > 0 {
