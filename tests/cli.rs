@@ -1304,3 +1304,42 @@ fn the_largest_balanced_window_is_a_panel_not_a_single_period() {
     w.write("p.csv", "firm,year,x\nA,2001,1\nB,2001,2\nC,2002,3\n");
     assert_eq!(balance(&w), (2001.into(), 2001.into(), 2.into()));
 }
+
+#[test]
+fn a_model_variable_with_no_value_is_named_as_what_empties_the_sample() {
+    // Worked by hand: `e` is empty in all 12 firm-years, so no row has every model variable.
+    // The report said only "too few rows (0) for 0 entities and 2 regressors".
+    let w = Workdir::new();
+    let mut csv = String::from("firm,year,y,x,e,g\n");
+    for f in ["A", "B", "C", "D"] {
+        for t in 1..=3 {
+            csv.push_str(&format!("{f},{},{},{},,\n", 2000 + t, t * 2 + f.len(), t));
+        }
+    }
+    w.write("p.csv", &csv);
+    let warnings = |regressors: &str| -> Vec<String> {
+        w.write(
+            "r.toml",
+            &format!(
+                "[panel]\nentity = \"firm\"\nperiod = \"year\"\n[model]\noutcome = \"y\"\n\
+                 regressors = {regressors}\n"
+            ),
+        );
+        let r = w.ok(&["audit", "p.csv", "--rules", "r.toml", "--format", "json"]);
+        let report: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+        report["model"]["warnings"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|w| w.as_str().unwrap().to_string())
+            .collect()
+    };
+    assert!(warnings(r#"["x", "e"]"#).contains(
+        &"not computable: `e` has no value in any firm-year, so the estimation sample is \
+          empty and no diagnostic was computed"
+            .to_string()
+    ));
+    assert!(warnings(r#"["e", "x", "g"]"#)
+        .iter()
+        .any(|w| w.starts_with("not computable: `e`, `g` have no value in any firm-year")));
+}

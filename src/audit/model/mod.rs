@@ -174,10 +174,7 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
     let d = s.declared;
     let k_all = s.columns();
     if n < 2 || n_rows <= n + k_all + 1 {
-        out.warnings.push(format!(
-            "not computable: too few rows ({n_rows}) for {n} entities and {k_all} regressors \
-             (period dummies included), so no diagnostic was computed"
-        ));
+        out.warnings.push(s.too_few(&out.cost));
         return Ok(out);
     }
     // Values whose squares summed over the sample pass the largest floating-point number

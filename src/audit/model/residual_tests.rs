@@ -209,6 +209,7 @@ pub fn cd_statistic(series: &[Vec<Option<f64>>]) -> f64 {
         x: DMatrix::zeros(values.len(), 0),
         names: Vec::new(),
         declared: 0,
+        firm_years: values.len(),
         slot: vec![0; values.len()],
         entity,
         period,

@@ -25,6 +25,8 @@ pub(super) struct Sample {
     /// Period dummies in the design: one per period after the first under period effects,
     /// none under entity effects. Dummy `k` is the period in slot `k + 1`.
     pub(super) dummies: usize,
+    /// The panel's firm-years (its distinct keys), before any variable is missing.
+    pub(super) firm_years: usize,
 }
 
 impl Sample {
@@ -32,6 +34,33 @@ impl Sample {
     /// period dummies.
     pub(super) fn columns(&self) -> usize {
         self.declared + self.dummies
+    }
+
+    /// Why a sample too small for any diagnostic is so, from each variable's missing rows
+    /// (`cost`): a variable with no value at all, which empties it on its own, is named.
+    pub(super) fn too_few(&self, cost: &[crate::report::VariableCost]) -> String {
+        let (n_rows, n, k_all) = (self.y.len(), self.sizes.len(), self.columns());
+        let empty: Vec<String> = cost
+            .iter()
+            .filter(|c| self.firm_years > 0 && c.rows as usize == self.firm_years)
+            .map(|c| format!("`{}`", c.variable))
+            .collect();
+        match empty.len() {
+            0 => format!(
+                "not computable: too few rows ({n_rows}) for {n} entities and {k_all} \
+                 regressors (period dummies included), so no diagnostic was computed"
+            ),
+            1 => format!(
+                "not computable: {} has no value in any firm-year, so the estimation sample is \
+                 empty and no diagnostic was computed",
+                empty[0]
+            ),
+            _ => format!(
+                "not computable: {} have no value in any firm-year, so the estimation sample \
+                 is empty and no diagnostic was computed",
+                empty.join(", ")
+            ),
+        }
     }
 
     /// Each entity's first row and its rows' count.
@@ -163,6 +192,7 @@ pub(super) fn extract(
             .map(|(_, r)| rank[core.period[*r] as usize])
             .collect(),
         dummies,
+        firm_years: keys.len(),
     };
     Ok((sample, costs))
 }
