@@ -877,6 +877,39 @@ fn a_joined_files_names_alike_a_panel_entity_are_pointed_to() {
         serde_json::json!(["7", "007"]),
         "{join}"
     );
+    // A rates table on currency and year: the panel's `usd` matched nothing, unsaid, while
+    // the file's `USD` of that year went to the ledger. Worked by hand: `USD` / 2002 is the
+    // file's one unmatched row, `usd` / 2002 the panel's one unmatched key.
+    w.write(
+        "panel.csv",
+        "firm,year,ccy,x\nK1,2001,EUR,1\nK1,2002,EUR,2\nL2,2001,USD,3\nL2,2002,usd,4\n",
+    );
+    w.write(
+        "rates.csv",
+        "ccy,year,rate\nEUR,2001,1.1\nEUR,2002,1.2\nUSD,2001,1\nUSD,2002,1\n",
+    );
+    w.write(
+        "rules.toml",
+        "[panel]\nentity = \"firm\"\nperiod = \"year\"\n\n[[join]]\nfile = \"rates.csv\"\n\
+         on = [\"ccy\", \"year\"]\n",
+    );
+    let report = audit();
+    let join = &report["joins"][0];
+    assert_eq!(join["alike_column"], "ccy", "{join}");
+    assert_eq!(join["alike_unmatched"], 1, "{join}");
+    assert_eq!(
+        join["alike_example"],
+        serde_json::json!(["USD", "usd"]),
+        "{join}"
+    );
+    let keys = verdict(&report, "Keys");
+    assert!(
+        keys["reason"]
+            .as_str()
+            .unwrap()
+            .contains("1 unmatched group values of joined files alike a panel value"),
+        "{keys}"
+    );
 }
 
 #[test]

@@ -79,9 +79,17 @@ pub fn join(panel: DataFrame, t: &Table, k: &Keys) -> Result<Joined> {
     let examples = key_texts(&unmatched_keys.head(Some(5)))?;
     let panel_rows = joined.height() as u64;
     let rows_unmatched = lonely.height() as u64;
-    let (alike_unmatched, alike_example) = match t.on.iter().any(|o| o == k.entity) {
-        true => alike_names(&lonely, &unmatched_keys, k.entity)?,
-        false => (0, Vec::new()),
+    // The names compared: the entity's, or those of the one group column of a table on a
+    // group (and the period) when it holds text (`usd` in the panel, `USD` in a rates table).
+    let groups: Vec<&String> = t.on.iter().filter(|o| *o != k.period).collect();
+    let alike_on = match groups[..] {
+        _ if has(k.entity) => Some(k.entity),
+        [g] if schema.get(g.as_str()) == Some(&DataType::String) => Some(g.as_str()),
+        _ => None,
+    };
+    let (alike_unmatched, alike_example) = match alike_on {
+        Some(c) => alike_names(&lonely, &unmatched_keys, c)?,
+        None => (0, Vec::new()),
     };
     let mut aside = t.set_aside.clone();
     aside.vstack_mut(&lonely)?;
@@ -118,6 +126,7 @@ pub fn join(panel: DataFrame, t: &Table, k: &Keys) -> Result<Joined> {
         panel_keys_unmatched: unmatched_keys.height() as u64,
         examples,
         unmatched: if t.drop_unmatched { "drop" } else { "keep" }.into(),
+        alike_column: alike_on.unwrap_or_default().to_string(),
         alike_unmatched,
         alike_example,
     };
@@ -233,23 +242,24 @@ fn panel_keys_distinct(df: &DataFrame, on: &[String]) -> Result<u64> {
         .height() as u64)
 }
 
-/// The file's unmatched entity names (in `lonely`) that are a panel entity left unmatched (in
-/// `unmatched`) but for surrounding spaces, letter case or leading zeros (`k1 ` in the file,
-/// `K1` in the panel; `7` and `007`): how many, and the first pair, the file's name then the panel's.
+/// The file's unmatched names in `column` (the entity or a group; its rows in `lonely`) that
+/// are a panel name left unmatched (in `unmatched`) but for surrounding spaces, letter case or
+/// leading zeros (`k1 ` in the file, `K1` in the panel; `7` and `007`): how many, and the
+/// first pair, the file's name then the panel's.
 fn alike_names(
     lonely: &DataFrame,
     unmatched: &DataFrame,
-    entity: &str,
+    column: &str,
 ) -> Result<(u64, Vec<String>)> {
     let fold = |name: &str| crate::core::without_zeros(&name.trim().to_lowercase()).to_string();
     let panel: std::collections::HashMap<String, &str> = unmatched
-        .column(entity)?
+        .column(column)?
         .str()?
         .iter()
         .flatten()
         .map(|name| (fold(name), name))
         .collect();
-    let mut names: Vec<&str> = lonely.column(entity)?.str()?.iter().flatten().collect();
+    let mut names: Vec<&str> = lonely.column(column)?.str()?.iter().flatten().collect();
     names.sort_unstable();
     names.dedup();
     let mut count = 0;

@@ -170,15 +170,30 @@ pub(super) fn keys(r: &Report, lv: &Levels) -> Option<CheckVerdict> {
             ),
         ));
     }
-    let joined_alike: u64 = r.joins.iter().map(|j| j.alike_unmatched).sum();
-    if joined_alike > 0 {
-        found.push((
-            lv.of(&ALIKE_ENTITIES),
-            format!(
-                "{joined_alike} unmatched entity names of joined files alike a panel entity but \
-                 for spaces, letter case or leading zeros"
-            ),
-        ));
+    // The joined files' unmatched names alike a panel one: entities, then group values.
+    let by_entity = |on_entity: bool| -> u64 {
+        r.joins
+            .iter()
+            .filter(|j| j.kind.starts_with("entity") == on_entity)
+            .map(|j| j.alike_unmatched)
+            .sum()
+    };
+    for (n, what) in [
+        (
+            by_entity(true),
+            "entity names of joined files alike a panel entity",
+        ),
+        (
+            by_entity(false),
+            "group values of joined files alike a panel value",
+        ),
+    ] {
+        if n > 0 {
+            found.push((
+                lv.of(&ALIKE_ENTITIES),
+                format!("{n} unmatched {what} but for spaces, letter case or leading zeros"),
+            ));
+        }
     }
     Some(match found.iter().map(|(status, _)| *status).max() {
         // Blank rows are no cause for a finding, but a file of nothing else has no key at all.

@@ -145,6 +145,13 @@ fn joins(r: &Report) -> Section {
             j.kind,
             j.on.join(", ")
         )));
+        let alike = match j.kind.starts_with("entity") {
+            true => "unmatched names alike a panel entity but for spaces, case or zeros".into(),
+            false => format!(
+                "unmatched `{}` values alike a panel one but for spaces, case or zeros",
+                j.alike_column
+            ),
+        };
         let mut rows = vec![
             ("columns brought in", j.columns.join(", ")),
             ("rows in the file", j.rows.to_string()),
@@ -173,7 +180,7 @@ fn joins(r: &Report) -> Section {
         ));
         if let [file, panel] = &j.alike_example[..] {
             rows.push((
-                "unmatched names alike a panel entity but for spaces, case or zeros",
+                alike.as_str(),
                 format!(
                     "{} (first: `{file}` in the file, `{panel}` in the panel)",
                     j.alike_unmatched

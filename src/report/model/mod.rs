@@ -279,8 +279,12 @@ pub struct JoinLine {
     pub examples: Vec<String>,
     /// What happened to unmatched panel rows: "keep" (empty columns) or "drop" (ledger).
     pub unmatched: String,
-    /// The file's unmatched entity names that are an unmatched panel entity but for spaces or
-    /// letter case (`k1 ` against `K1`): most likely one firm keyed two ways.
+    /// The column whose unmatched names are compared: the entity, or the one group column of
+    /// a table on a group (and the period) when it holds text; empty when none is.
+    pub alike_column: String,
+    /// The file's unmatched names in that column that are an unmatched panel name but for
+    /// spaces, letter case or leading zeros (`k1 ` against `K1`): most likely one firm (or
+    /// one group) keyed two ways.
     pub alike_unmatched: u64,
     /// The first such pair: the file's name, then the panel's.
     pub alike_example: Vec<String>,
