@@ -101,9 +101,7 @@ fn write_files(
         order: p.rejected_order.as_ref(),
     };
     write("rejected.csv", &mut |f| write_csv(f, rejected, None))?;
-    write("corrections.csv", &mut |f| {
-        write_csv(f, Rows::of(&p.corrections), None)
-    })?;
+    write("corrections.csv", &mut |f| write_ledger(f, &p.corrections))?;
 
     progress.stage("writing the reports and the dictionary");
     for (file, format) in [
@@ -167,6 +165,23 @@ impl<'a> Rows<'a> {
 /// at a time (the same bytes as in one go), showing the rows written on `progress`.
 fn write_csv<W: Write>(f: W, rows: Rows, progress: Option<&Progress>) -> Result<()> {
     write_csv_sliced(f, rows, progress, CSV_SLICE)
+}
+
+/// The corrections ledger as one CSV: its parts in order, each a slice of rows at a time in
+/// the ledger's shape (`LedgerPart::slice`), guarded as [`write_csv`] guards.
+fn write_ledger<W: Write>(f: W, parts: &[crate::clean::repair::LedgerPart]) -> Result<()> {
+    let ready = |part: DataFrame| dates_as_text(guard_text(&crate::core::spelled_out(&part)?)?);
+    let first = parts.first().expect("the ledger has a part for its header");
+    let mut writer = CsvWriter::new(f)
+        .include_header(true)
+        .batched(ready(first.slice(0, 0)?)?.schema())?;
+    for part in parts {
+        for offset in (0..part.rows.height()).step_by(CSV_SLICE) {
+            writer.write_batch(&ready(part.slice(offset, CSV_SLICE)?)?)?;
+        }
+    }
+    writer.finish()?;
+    Ok(())
 }
 
 /// [`write_csv`], `slice` rows at a time.

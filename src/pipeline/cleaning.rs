@@ -11,11 +11,12 @@ pub(super) struct CleanLines {
     pub balance: Option<crate::report::BalanceLine>,
     /// The variables whose values treatment may have changed.
     pub treated: Vec<String>,
-    /// A corrections-ledger part per variable winsorizing changed.
-    pub changed: Vec<DataFrame>,
+    /// A corrections-ledger part per variable winsorizing changed (with `record`).
+    pub changed: Vec<repair::LedgerPart>,
 }
 
-/// Clean the sample's panel. `before` codes the panel as the checks saw it.
+/// Clean the sample's panel. `before` codes the panel as the checks saw it; `record` asks for
+/// the corrections-ledger lines of the values changed.
 pub(super) fn clean(
     sample: &mut Sample,
     treatments: Vec<Treatment>,
@@ -23,6 +24,7 @@ pub(super) fn clean(
     singletons: SingletonPolicy,
     keys: &Keys,
     before: &audit::KeyFrames,
+    record: bool,
 ) -> Result<CleanLines> {
     let mut lines = Vec::new();
     let mut treated: Vec<String> = Vec::new();
@@ -31,7 +33,7 @@ pub(super) fn clean(
         treated.extend(t.variables.iter().cloned());
         // Per-period cutoffs on the panel core's codes while the rows are those it codes.
         let core = (sample.panel.height() == before.rows).then(|| before.core());
-        let done = t.apply(std::mem::take(&mut sample.panel), keys, core)?;
+        let done = t.apply(std::mem::take(&mut sample.panel), keys, core, record)?;
         sample.panel = done.panel;
         lines.extend(done.lines);
         changed.extend(done.changed);

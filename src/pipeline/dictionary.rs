@@ -8,25 +8,41 @@ pub(super) fn dictionary(
     report: &Report,
     input: &InputConfig,
     raw: &[String],
-    corrections: &DataFrame,
+    corrections: &[repair::LedgerPart],
 ) -> Result<Vec<DictionaryEntry>> {
-    // The ledger's lines per column and reason: a few groups, however many lines.
-    let counts = corrections
-        .clone()
-        .lazy()
-        .group_by([col("column"), col("reason")])
-        .agg([len().cast(DataType::UInt64).alias("n")])
-        .collect()?;
-    let ledger_lines: std::collections::BTreeMap<(&str, &str), u64> = counts
-        .column("column")?
-        .str()?
-        .iter()
-        .zip(counts.column("reason")?.str()?.iter())
-        .zip(counts.column("n")?.u64()?.iter())
-        .filter_map(|((c, r), n)| Some(((c?, r?), n?)))
-        .collect();
-    let lines_of =
-        |column: &str, reason: &str| ledger_lines.get(&(column, reason)).copied().unwrap_or(0);
+    // The ledger's lines per column and reason, from the parts held as lines (winsorizing's
+    // name no rule): a few groups, however many lines.
+    let mut ledger_lines: std::collections::BTreeMap<(String, String), u64> = Default::default();
+    for part in corrections {
+        let rows = &part.rows;
+        if !(rows.schema().contains("column") && rows.schema().contains("reason")) {
+            continue;
+        }
+        let counts = rows
+            .clone()
+            .lazy()
+            .group_by([col("column"), col("reason")])
+            .agg([len().cast(DataType::UInt64).alias("n")])
+            .collect()?;
+        let (c, r, n) = (
+            counts.column("column")?.str()?,
+            counts.column("reason")?.str()?,
+            counts.column("n")?.u64()?,
+        );
+        for ((c, r), n) in c.iter().zip(r.iter()).zip(n.iter()) {
+            if let (Some(c), Some(r), Some(n)) = (c, r, n) {
+                *ledger_lines
+                    .entry((c.to_string(), r.to_string()))
+                    .or_default() += n;
+            }
+        }
+    }
+    let lines_of = |column: &str, reason: &str| {
+        ledger_lines
+            .get(&(column.to_string(), reason.to_string()))
+            .copied()
+            .unwrap_or(0)
+    };
     let canonical: std::collections::BTreeMap<&String, &String> = input
         .rules
         .file

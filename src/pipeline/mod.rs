@@ -63,9 +63,9 @@ pub struct Prepared {
     /// The ledger's rows by `source_row` (the order `rejected.csv` is written in, gathered a
     /// slice at a time as it is written); None when `rejected` is in that order already.
     pub rejected_order: Option<IdxCa>,
-    /// The corrections ledger: every cell a repair changed (entity, period, column, old, new,
-    /// reason).
-    pub corrections: DataFrame,
+    /// The corrections ledger, part by part: every cell a step changed (entity, period,
+    /// column, old, new, reason).
+    pub corrections: Vec<repair::LedgerPart>,
     /// The corrections file's name and hash, if one was applied.
     pub corrections_file: Option<(std::path::PathBuf, String)>,
     /// One entry per column of the panel, for `dictionary.md`.
@@ -222,10 +222,12 @@ pub fn prepare_with(
         typed.singletons,
         &keys,
         &before,
+        mode == Mode::Build,
     )?;
     report.treatment = cleaning.treatment;
     let corrections = [repaired.ledger, blanked]
         .into_iter()
+        .map(repair::LedgerPart::lines)
         .chain(cleaning.changed)
         .collect();
     report.balance = cleaning.balance;
@@ -250,7 +252,7 @@ pub fn prepare_with(
         report,
         read,
         &plan,
-        repairs::ledger(corrections)?,
+        repairs::ledger(corrections),
         found.join_ledgers,
         input,
     )

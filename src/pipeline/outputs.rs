@@ -10,7 +10,7 @@ pub(super) fn outputs(
     report: Report,
     read: Read,
     plan: &Plan,
-    corrections: DataFrame,
+    corrections: Vec<repair::LedgerPart>,
     join_ledgers: Vec<DataFrame>,
     input: &InputConfig,
 ) -> Result<Prepared> {

@@ -89,21 +89,14 @@ pub(super) fn repair(
     Ok(Repaired { ledger, summary })
 }
 
-/// The corrections ledger from its parts (repairs, then the cells rules blanked), in that
-/// order; the parts' entity and period columns are as read, an empty part's perhaps not.
-pub(super) fn ledger(parts: Vec<DataFrame>) -> Result<DataFrame> {
-    let empty = parts.first().map(|p| p.clear());
-    let mut parts: Vec<DataFrame> = parts.into_iter().filter(|p| p.height() > 0).collect();
-    Ok(match parts.len() {
-        0 => empty.expect("the repairs always return a ledger"),
-        1 => parts.remove(0),
-        _ => concat(
-            parts.into_iter().map(|d| d.lazy()).collect::<Vec<_>>(),
-            UnionArgs {
-                to_supertypes: true,
-                ..Default::default()
-            },
-        )?
-        .collect()?,
-    })
+/// The corrections ledger from its parts (repairs, the cells rules blanked, winsorizing's),
+/// in that order: those with lines, or the first (empty) for the header.
+pub(super) fn ledger(parts: Vec<repair::LedgerPart>) -> Vec<repair::LedgerPart> {
+    let first_empty = parts.iter().all(|p| p.rows.height() == 0);
+    parts
+        .into_iter()
+        .enumerate()
+        .filter(|(i, p)| p.rows.height() > 0 || (first_empty && *i == 0))
+        .map(|(_, p)| p)
+        .collect()
 }

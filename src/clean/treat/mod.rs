@@ -8,6 +8,7 @@ use rayon::prelude::*;
 
 use super::group_cutoffs::{group_cutoffs, Bounds, Found, Groups};
 use super::histogram::histogram;
+use super::repair::LedgerPart;
 use super::winsorize::{winsorize, Changed, Cutoffs, RowGroups};
 use super::{drop_where, Keys};
 use crate::core::{quantiles, quantiles_by_group, PanelCore, Values, BATCH};
@@ -51,8 +52,18 @@ pub struct Treated {
     /// One report line per variable.
     pub lines: Vec<TreatLine>,
     /// A corrections-ledger line (entity, period, column, old, new, reason) for every value
-    /// winsorizing changed: variable by variable, each in the panel's row order.
-    pub changed: Vec<DataFrame>,
+    /// winsorizing changed: variable by variable, each in the panel's row order (none unless
+    /// asked for).
+    pub changed: Vec<LedgerPart>,
+}
+
+/// How the typed path groups the rows: each row's group (`rows.of(r)`, one of `count`), and
+/// what names the groups in the cutoffs table: periods, or groups of columns (none: pooled).
+struct Grouping<'a> {
+    rows: RowGroups<'a>,
+    count: usize,
+    periods: Option<&'a [i64]>,
+    columns: Option<&'a Groups>,
 }
 
 /// The corrections ledger's reason for a value winsorizing raised / lowered.
@@ -139,18 +150,37 @@ impl Treatment {
         })
     }
 
-    /// Apply to `df`.
-    pub fn apply(&self, df: DataFrame, k: &Keys, core: Option<&PanelCore>) -> Result<Treated> {
+    /// Apply to `df`; with `record`, the corrections-ledger lines of the values winsorizing
+    /// changed too (a dry run has no ledger to write).
+    pub fn apply(
+        &self,
+        df: DataFrame,
+        k: &Keys,
+        core: Option<&PanelCore>,
+        record: bool,
+    ) -> Result<Treated> {
         let x = |v: &str| col(v).cast(DataType::Float64);
         match (self.by, core) {
             (CutoffGroups::Period, Some(core)) if core.rows() == df.height() => {
                 let group = RowGroups::Codes(&core.period);
                 let periods = Some(&core.periods[..]);
-                return self.by_codes(df, k, group, core.periods.len(), periods, None);
+                let grouping = Grouping {
+                    rows: group,
+                    count: core.periods.len(),
+                    periods,
+                    columns: None,
+                };
+                return self.by_codes(df, k, grouping, record);
             }
             // One group of every row, on the typed path.
             (CutoffGroups::Pooled, _) => {
-                return self.by_codes(df, k, RowGroups::One, 1, None, None);
+                let grouping = Grouping {
+                    rows: RowGroups::One,
+                    count: 1,
+                    periods: None,
+                    columns: None,
+                };
+                return self.by_codes(df, k, grouping, record);
             }
             (CutoffGroups::Groups, _) => {
                 // Per group, on the typed path as by period; a group with fewer values than
@@ -159,7 +189,13 @@ impl Treatment {
                 let groups = Groups::of(&df, &self.groups, self.lower, self.upper)?;
                 let group = RowGroups::Codes(&groups.codes.codes);
                 let count = groups.codes.count();
-                return self.by_codes(df, k, group, count, None, Some(&groups));
+                let grouping = Grouping {
+                    rows: group,
+                    count,
+                    periods: None,
+                    columns: Some(&groups),
+                };
+                return self.by_codes(df, k, grouping, record);
             }
             (CutoffGroups::Period, _) => {}
         }
@@ -225,7 +261,7 @@ impl Treatment {
                     .unwrap_or(0)
             };
             counts.push((get(0), get(1)));
-            if self.method == Method::Winsorize && get(0) + get(1) > 0 {
+            if record && self.method == Method::Winsorize && get(0) + get(1) > 0 {
                 let (raised, lowered) = (col(below.as_str()), col(above.as_str()));
                 changed.push(
                     marked
@@ -269,7 +305,7 @@ impl Treatment {
         let lines = self.lines(&cutoffs, &counts, k, histograms)?;
         let changed = changed
             .iter()
-            .map(|part| Ok(crate::core::spelled_out(part)?))
+            .map(|part| Ok(LedgerPart::lines(crate::core::spelled_out(part)?)))
             .collect::<Result<_>>()?;
         Ok(Treated {
             panel: out,
@@ -361,11 +397,15 @@ impl Treatment {
         &self,
         df: DataFrame,
         k: &Keys,
-        group: RowGroups,
-        nt: usize,
-        periods: Option<&[i64]>,
-        groups: Option<&Groups>,
+        grouping: Grouping,
+        record: bool,
     ) -> Result<Treated> {
+        let Grouping {
+            rows: group,
+            count: nt,
+            periods,
+            columns: groups,
+        } = grouping;
         let rows = df.height();
         let mut found = Vec::new();
         let mut counts = Vec::new();
@@ -479,9 +519,10 @@ impl Treatment {
             .variables
             .iter()
             .zip(changed)
+            .filter(|_| record)
             .filter_map(|(v, moved)| Some((v, moved?)))
             .filter(|(_, moved)| !moved.rows.is_empty())
-            .map(|(v, moved)| ledger_lines(&current, k, v, moved))
+            .map(|(v, moved)| ledger_part(&current, k, v, moved))
             .collect::<Result<_>>()?;
         let (out, removed) = self.finish(current, k)?;
         let lines = self.lines(&cutoffs, &counts, k, histograms)?;
@@ -494,93 +535,35 @@ impl Treatment {
     }
 }
 
-/// The corrections-ledger lines of the values winsorizing `moved` in `v`, whose new values
-/// `panel` holds: the rows gathered, the text of their keys spelled out.
-fn ledger_lines(panel: &DataFrame, k: &Keys, v: &str, moved: Changed) -> Result<DataFrame> {
+/// The corrections-ledger part of the values winsorizing `moved` in `v`, whose new values
+/// `panel` holds: the rows' keys gathered, their old and new values and tails as they are,
+/// the text made a slice at a time as the ledger is written.
+fn ledger_part(panel: &DataFrame, k: &Keys, v: &str, moved: Changed) -> Result<LedgerPart> {
     const OLD: &str = "__old";
+    const NEW: &str = "__new";
     const RAISED_: &str = "__raised";
     let rows = IdxCa::from_vec(PlSmallStr::EMPTY, moved.rows);
-    let mut lines = panel.select([k.entity, k.period, v])?.take(&rows)?;
+    let mut lines = panel.select([k.entity, k.period])?.take(&rows)?;
+    let new = panel.column(v)?.take(&rows)?.with_name(NEW.into());
+    lines.with_column(new)?;
     lines.with_column(Column::new(OLD.into(), moved.old))?;
     lines.with_column(Column::new(RAISED_.into(), moved.raised))?;
-    let lines = lines
-        .lazy()
-        .select([
-            col(k.entity),
-            col(k.period),
-            lit(v).alias("column"),
-            col(OLD).cast(DataType::String).alias("old"),
-            col(v).cast(DataType::String).alias("new"),
-            when(col(RAISED_))
-                .then(lit(RAISED))
-                .otherwise(lit(LOWERED))
-                .alias("reason"),
-        ])
-        .collect()?;
-    Ok(crate::core::spelled_out(&lines)?)
+    let shape = vec![
+        col(k.entity),
+        col(k.period),
+        lit(v).alias("column"),
+        col(OLD).cast(DataType::String).alias("old"),
+        col(NEW).cast(DataType::String).alias("new"),
+        when(col(RAISED_))
+            .then(lit(RAISED))
+            .otherwise(lit(LOWERED))
+            .alias("reason"),
+    ];
+    Ok(LedgerPart {
+        rows: crate::core::spelled_out(&lines)?,
+        shape,
+    })
 }
 
 #[cfg(test)]
-mod tests {
-    use super::*;
-
-    /// Winsorizing by period on the panel core's codes and by the engine's group-by (the path
-    /// taken when no core codes the rows) move the same values to the same cutoffs and list
-    /// the same cells; the typed path itself is checked against numpy in tests/reference.
-    #[test]
-    fn both_paths_list_the_same_cells() {
-        let n = 400;
-        let df = df!(
-            "f" => (0..n).map(|i| format!("F{:03}", i / 8)).collect::<Vec<_>>(),
-            "y" => (0..n as i64).map(|i| 2001 + i % 8).collect::<Vec<_>>(),
-            "x" => (0..n).map(|i| (i % 23 != 0).then(|| ((i * 7919) % 211) as f64 / 3.0)).collect::<Vec<_>>(),
-        )
-        .unwrap();
-        let columns = ["x".to_string()];
-        let k = Keys {
-            file: std::path::Path::new("p.csv"),
-            entity: "f",
-            period: "y",
-            columns: &columns,
-        };
-        let t = Treatment {
-            method: Method::Winsorize,
-            variables: vec!["x".into()],
-            lower: 0.05,
-            upper: 0.9,
-            by: CutoffGroups::Period,
-            groups: Vec::new(),
-        };
-        let core = PanelCore::new(&df, "f", "y").unwrap();
-        let typed = t.apply(df.clone(), &k, Some(&core)).unwrap();
-        let engine = t.apply(df, &k, None).unwrap();
-        // The cutoffs agree to rounding (selection against the engine's interpolation).
-        let close = |a: Option<f64>, b: Option<f64>| match (a, b) {
-            (Some(a), Some(b)) => (a - b).abs() <= 1e-12 * a.abs().max(1.0),
-            (a, b) => a.is_none() && b.is_none(),
-        };
-        let x = |p: &DataFrame| -> Vec<Option<f64>> {
-            p.column("x").unwrap().f64().unwrap().iter().collect()
-        };
-        let (xa, xb) = (x(&typed.panel), x(&engine.panel));
-        assert!(xa.iter().zip(&xb).all(|(a, b)| close(*a, *b)));
-        // The same cells, whatever order each path lists them in, with the same old values.
-        let sorted = |d: &DataFrame| d.sort(["f", "y"], Default::default()).unwrap();
-        let (a, b) = (sorted(&typed.changed[0]), sorted(&engine.changed[0]));
-        assert!(a.height() > 0);
-        for c in ["f", "y", "column", "old", "reason"] {
-            assert!(
-                a.column(c).unwrap().equals(b.column(c).unwrap()),
-                "{c}: {a}\n{b}"
-            );
-        }
-        let new = |d: &DataFrame| -> Vec<Option<f64>> {
-            let n = d.column("new").unwrap().cast(&DataType::Float64).unwrap();
-            n.f64().unwrap().iter().collect()
-        };
-        assert!(new(&a).iter().zip(&new(&b)).all(|(a, b)| close(*a, *b)));
-        let line = &typed.lines[0];
-        assert_eq!((line.below + line.above) as usize, a.height());
-        assert!(line.below > 0 && line.above > 0);
-    }
-}
+mod tests;
