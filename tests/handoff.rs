@@ -580,7 +580,9 @@ fn winsorizing_and_outlier_counts_by_any_groups_match_numpy_with_a_pooled_fallba
     check(&[Path::new("groups"), &w.path("b")]);
     let md = std::fs::read_to_string(w.path("b/report.md")).unwrap();
     assert!(
-        md.contains("Each value winsorizing replaced is listed in the bundle's corrections.csv"),
+        md.contains(
+            "`build` lists each value winsorizing replaced in the bundle's corrections.csv"
+        ),
         "{md}"
     );
     // At 1.5% a group needs 67 values: some of the 90 sector-years have fewer and take the

@@ -248,7 +248,7 @@ pub(super) fn cleaning_blocks(r: &Report) -> Vec<Block> {
             .any(|t| t.method == "winsorize" && t.below + t.above > 0);
         if replaced {
             blocks.push(Block::Note(
-                "Each value winsorizing replaced is listed in the bundle's corrections.csv, \
+                "`build` lists each value winsorizing replaced in the bundle's corrections.csv, \
                  with its old value and its cutoff."
                     .into(),
             ));
