@@ -442,14 +442,18 @@ fn a_regressor_absorbed_by_entity_effects_is_named_and_kept_where_identified() {
     // `founded` never changes within a firm: the within estimator does not identify it, pooled
     // OLS and random effects do (METHODS.md s.3).
     let w = Workdir::new();
-    let mut csv = String::from("f,y,x,founded,out\n");
-    for (i, f) in ["A", "B", "C", "D"].iter().enumerate() {
-        for y in 1..=5 {
-            let x = (i * 7 + y * 3) % 11;
-            csv.push_str(&format!("{f},{y},{x},{},{}\n", 1990 + i, x * 2 + y + i));
+    // Four firms over five years, `x` varying within each; `third` gives the third column.
+    let panel = |name: &str, third: &dyn Fn(usize, usize) -> usize| -> String {
+        let mut csv = format!("f,y,x,{name},out\n");
+        for (i, f) in ["A", "B", "C", "D"].iter().enumerate() {
+            for y in 1..=5 {
+                let x = (i * 7 + y * 3) % 11;
+                csv.push_str(&format!("{f},{y},{x},{},{}\n", third(i, x), x * 2 + y + i));
+            }
         }
-    }
-    w.write("p.csv", &csv);
+        csv
+    };
+    w.write("p.csv", &panel("founded", &|i, _| 1990 + i));
     w.write(
         "r.toml",
         "[panel]\nentity = \"f\"\nperiod = \"y\"\n[model]\noutcome = \"out\"\nregressors = [\"x\", \"founded\"]\n",
@@ -491,14 +495,7 @@ fn a_regressor_absorbed_by_entity_effects_is_named_and_kept_where_identified() {
     );
     // `twice` = 2 x exactly (worked by hand): no estimator identifies it, and it is no fixed
     // effects' doing (it varies within every firm). The absorption check blamed it.
-    let mut csv = String::from("f,y,x,twice,out\n");
-    for (i, f) in ["A", "B", "C", "D"].iter().enumerate() {
-        for y in 1..=5 {
-            let x = (i * 7 + y * 3) % 11;
-            csv.push_str(&format!("{f},{y},{x},{},{}\n", 2 * x, x * 2 + y + i));
-        }
-    }
-    w.write("q.csv", &csv);
+    w.write("q.csv", &panel("twice", &|_, x| 2 * x));
     w.write(
         "q.toml",
         "[panel]\nentity = \"f\"\nperiod = \"y\"\n[model]\noutcome = \"out\"\nregressors = [\"x\", \"twice\"]\n",
