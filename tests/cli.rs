@@ -367,7 +367,9 @@ fn accounting_rules_flag_null_and_drop() {
     assert_eq!(broken, [2, 2, 1, 1]);
     let dictionary = std::fs::read_to_string(w.path("out/dictionary.md")).unwrap();
     assert!(
-        dictionary.contains("set to null where rule `cap` does not hold (1 rows)"),
+        dictionary.contains(
+            "set to null where rule `cap` does not hold (1 rows, each in corrections.csv)"
+        ),
         "{dictionary}"
     );
     assert!(

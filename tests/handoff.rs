@@ -585,6 +585,11 @@ fn winsorizing_and_outlier_counts_by_any_groups_match_numpy_with_a_pooled_fallba
         ),
         "{md}"
     );
+    let dictionary = std::fs::read_to_string(w.path("b/dictionary.md")).unwrap();
+    assert!(
+        dictionary.contains("each value replaced is in corrections.csv"),
+        "{dictionary}"
+    );
     // At 1.5% a group needs 67 values: some of the 90 sector-years have fewer and take the
     // pooled cutoffs, the others their own; both paths are exercised.
     let report: serde_json::Value =

@@ -84,8 +84,14 @@ pub(super) fn dictionary(
                     } else {
                         "cutoffs per period in report.json".to_string()
                     };
+                    let listed = match t.method.as_str() {
+                        "winsorize" if t.below + t.above > 0 => {
+                            "; each value replaced is in corrections.csv"
+                        }
+                        _ => "",
+                    };
                     format!(
-                        "{} at percentiles {} / {} ({}); {} below, {} above",
+                        "{} at percentiles {} / {} ({}); {} below, {} above{listed}",
                         t.method, t.lower_percentile, t.upper_percentile, cuts, t.below, t.above
                     )
                 })
@@ -103,7 +109,8 @@ pub(super) fn dictionary(
                 .filter(|(_, n)| *n > 0)
                 .map(|(l, n)| {
                     format!(
-                        "set to null where rule `{}` does not hold ({n} rows)",
+                        "set to null where rule `{}` does not hold ({n} rows, each in \
+                         corrections.csv)",
                         l.name
                     )
                 })
