@@ -225,11 +225,6 @@ pub fn prepare_with(
         mode == Mode::Build,
     )?;
     report.treatment = cleaning.treatment;
-    let corrections = [repaired.ledger, blanked]
-        .into_iter()
-        .map(repair::LedgerPart::lines)
-        .chain(cleaning.changed)
-        .collect();
     report.balance = cleaning.balance;
     let (cleaned, model) = cleaned_figures(
         &before,
@@ -247,6 +242,12 @@ pub fn prepare_with(
     report.sample_construction = std::mem::take(&mut sample.steps);
     report.verdict = Some(audit::verdict::judge(&report, &typed.levels));
 
+    // Every cell a step changed: the repairs', the rules' blanks, winsorizing's.
+    let corrections = [repaired.ledger, blanked]
+        .into_iter()
+        .map(repair::LedgerPart::lines)
+        .chain(cleaning.changed)
+        .collect();
     outputs::outputs(
         sample,
         report,

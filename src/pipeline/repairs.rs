@@ -92,11 +92,11 @@ pub(super) fn repair(
 /// The corrections ledger from its parts (repairs, the cells rules blanked, winsorizing's),
 /// in that order: those with lines, or the first (empty) for the header.
 pub(super) fn ledger(parts: Vec<repair::LedgerPart>) -> Vec<repair::LedgerPart> {
-    let first_empty = parts.iter().all(|p| p.rows.height() == 0);
+    let none_has_lines = parts.iter().all(|p| p.rows.height() == 0);
     parts
         .into_iter()
         .enumerate()
-        .filter(|(i, p)| p.rows.height() > 0 || (first_empty && *i == 0))
+        .filter(|(i, p)| p.rows.height() > 0 || (none_has_lines && *i == 0))
         .map(|(_, p)| p)
         .collect()
 }
