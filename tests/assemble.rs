@@ -164,27 +164,24 @@ fn joined_files_with_bad_settings_or_values_are_named() {
     run("unmatched = \"skip\"", "[[join]]");
     run("duplicates = \"last\"", "keep-first");
     // A key named twice stopped the engine with a message that named no file.
-    w.write(
-        "twice.toml",
+    // Rules of their own, refused naming `want`.
+    let refused = |toml: &str, want: &str| {
+        w.write("other.toml", toml);
+        w.fails(&["audit", "p.csv", "--rules", "other.toml"], want);
+    };
+    refused(
         &rules("").replace(
             "on = [\"currency\", \"year\"]",
             "on = [\"currency\", \"year\", \"year\"]",
         ),
-    );
-    w.fails(
-        &["audit", "p.csv", "--rules", "twice.toml"],
         "`rates.csv`: `on` names `year` twice",
     );
     run(
         "columns = [\"fx\"]",
         "`rates.csv`: no column `fx` (named in `columns`",
     );
-    w.write(
-        "clash.toml",
+    refused(
         &rules("rename = { rate = \"sales\" }").replace("sales * rate", "sales"),
-    );
-    w.fails(
-        &["audit", "p.csv", "--rules", "clash.toml"],
         "`rates.csv`: no column `sales` (the panel already has this column",
     );
     // A key column the file lacks.
@@ -211,15 +208,11 @@ fn joined_files_with_bad_settings_or_values_are_named() {
         "`rates.csv`, row 3, column `rate`: `n.v.` is not a number, and derived variable \
          `sales_usd` (`sales * rate`) computes with the column",
     );
-    w.write(
-        "rule.toml",
+    refused(
         &rules("").replace(
             "[derive.sales_usd]\nexpr = \"sales * rate\"",
             "[[rule]]\nname = \"rate_positive\"\nexpr = \"rate > 0\"",
         ),
-    );
-    w.fails(
-        &["audit", "p.csv", "--rules", "rule.toml"],
         "`rates.csv`, row 3, column `rate`: `n.v.` is not a number, and accounting rule \
          `rate_positive` (`rate > 0`) computes with the column",
     );

@@ -263,27 +263,21 @@ impl Treatment {
             counts.push((get(0), get(1)));
             if record && self.method == Method::Winsorize && get(0) + get(1) > 0 {
                 let (raised, lowered) = (col(below.as_str()), col(above.as_str()));
-                changed.push(
-                    marked
-                        .clone()
-                        .filter(raised.clone().or(lowered))
-                        .select([
-                            col(k.entity),
-                            col(k.period),
-                            lit(v.as_str()).alias("column"),
-                            x(v).cast(DataType::String).alias("old"),
-                            when(raised.clone())
-                                .then(col(lo.as_str()))
-                                .otherwise(col(hi.as_str()))
-                                .cast(DataType::String)
-                                .alias("new"),
-                            when(raised)
-                                .then(lit(RAISED))
-                                .otherwise(lit(LOWERED))
-                                .alias("reason"),
-                        ])
-                        .collect()?,
-                );
+                let moved = marked
+                    .clone()
+                    .filter(raised.clone().or(lowered))
+                    .select([
+                        col(k.entity),
+                        col(k.period),
+                        x(v).alias(OLD),
+                        when(raised.clone())
+                            .then(col(lo.as_str()))
+                            .otherwise(col(hi.as_str()))
+                            .alias(NEW),
+                        raised.alias(RAISED_),
+                    ])
+                    .collect()?;
+                changed.push(winsorized_part(moved, k, v)?);
             }
             let result = match self.method {
                 Method::Winsorize => when(col(below.as_str()))
@@ -303,10 +297,6 @@ impl Treatment {
         }
         let (out, removed) = self.finish(current, k)?;
         let lines = self.lines(&cutoffs, &counts, k, histograms)?;
-        let changed = changed
-            .iter()
-            .map(|part| Ok(LedgerPart::lines(crate::core::spelled_out(part)?)))
-            .collect::<Result<_>>()?;
         Ok(Treated {
             panel: out,
             removed,
@@ -535,19 +525,27 @@ impl Treatment {
     }
 }
 
+/// A winsorized value's old and new value and tail (raised to the lower cutoff or not), as a
+/// corrections-ledger part holds them beside the keys.
+const OLD: &str = "__old";
+const NEW: &str = "__new";
+const RAISED_: &str = "__raised";
+
 /// The corrections-ledger part of the values winsorizing `moved` in `v`, whose new values
-/// `panel` holds: the rows' keys gathered, their old and new values and tails as they are,
-/// the text made a slice at a time as the ledger is written.
+/// `panel` holds: the rows' keys gathered, their old and new values and tails as they are.
 fn ledger_part(panel: &DataFrame, k: &Keys, v: &str, moved: Changed) -> Result<LedgerPart> {
-    const OLD: &str = "__old";
-    const NEW: &str = "__new";
-    const RAISED_: &str = "__raised";
     let rows = IdxCa::from_vec(PlSmallStr::EMPTY, moved.rows);
     let mut lines = panel.select([k.entity, k.period])?.take(&rows)?;
     let new = panel.column(v)?.take(&rows)?.with_name(NEW.into());
     lines.with_column(new)?;
     lines.with_column(Column::new(OLD.into(), moved.old))?;
     lines.with_column(Column::new(RAISED_.into(), moved.raised))?;
+    winsorized_part(lines, k, v)
+}
+
+/// `lines` (the keys, [`OLD`], [`NEW`], [`RAISED_`]) of variable `v` as a corrections-ledger
+/// part: the text made a slice at a time as the ledger is written.
+fn winsorized_part(lines: DataFrame, k: &Keys, v: &str) -> Result<LedgerPart> {
     let shape = vec![
         col(k.entity),
         col(k.period),
