@@ -7,10 +7,10 @@ use polars::prelude::*;
 
 use super::verdict::{self, counted, level_key, worst, CheckVerdict, LevelKey, Levels, Status};
 use super::{own, Check, Context};
-use crate::core::{in_batches, PanelCore, Values};
+use crate::core::{in_batches, quantiles, PanelCore, Values};
 use crate::report::layout::{opt, opt_level, strings, Block, Section};
 use crate::report::{
-    Absorbed, Finding, Report, ToJson, VariationFigures as Figures, VariationLine,
+    Absorbed, Finding, Report, Spread, ToJson, VariationFigures as Figures, VariationLine,
     VARIATION_CONVENTION,
 };
 use crate::Result;
@@ -215,13 +215,17 @@ fn variation(read: &Figures, r: &Report) -> Section {
                     .into(),
             ));
             blocks.extend(variation_blocks(&c.lines));
+            blocks.extend(spread_blocks(&c.lines));
             blocks.push(Block::Note(
                 "The panel as read (after the key steps and accounting rules, before treatment):"
                     .into(),
             ));
             blocks.extend(variation_blocks(&read.lines));
         }
-        None => blocks.extend(variation_blocks(&read.lines)),
+        None => {
+            blocks.extend(variation_blocks(&read.lines));
+            blocks.extend(spread_blocks(&read.lines));
+        }
     }
     Section {
         title: "Variation",
@@ -285,6 +289,48 @@ fn variation_blocks(lines: &[VariationLine]) -> Vec<Block> {
         )));
     }
     blocks
+}
+
+/// Where each numeric variable's values lie: the table a paper's descriptive statistics
+/// start from.
+fn spread_blocks(lines: &[VariationLine]) -> Vec<Block> {
+    let rows: Vec<Vec<String>> = lines
+        .iter()
+        .filter_map(|v| {
+            let s = v.spread?;
+            Some(vec![
+                v.variable.clone(),
+                v.n.to_string(),
+                opt_level(Some(s.min)),
+                opt_level(Some(s.p25)),
+                opt_level(Some(s.median)),
+                opt_level(Some(s.p75)),
+                opt_level(Some(s.max)),
+            ])
+        })
+        .collect();
+    if rows.is_empty() {
+        return Vec::new();
+    }
+    vec![
+        Block::Table(
+            strings(&[
+                "variable",
+                "n",
+                "smallest",
+                "25th percentile",
+                "median",
+                "75th percentile",
+                "largest",
+            ]),
+            rows,
+        ),
+        Block::Note(
+            "Over each variable's non-missing rows; percentiles by linear interpolation \
+             (Hyndman-Fan type 7)."
+                .into(),
+        ),
+    ]
 }
 
 fn absorbed(read: &Figures) -> Section {
@@ -386,6 +432,7 @@ fn line(core: &PanelCore, variable: &str, x: &Values, nearly: f64) -> VariationL
     }
     VariationLine {
         variable: variable.to_string(),
+        spread: spread(x, m.n),
         n: m.n,
         mean: finite(m.mean),
         sd_total: finite(sd(m.tss)),
@@ -402,6 +449,25 @@ fn line(core: &PanelCore, variable: &str, x: &Values, nearly: f64) -> VariationL
         nearly_absorbed: not_computable.is_none() && absorbed_by.is_none() && within_share < nearly,
         not_computable,
     }
+}
+
+/// The extremes and quartiles of the `n` values of `x`, read in place (core::quantiles: one
+/// pass with three brackets); none without values, or should one not be a finite number.
+fn spread(x: &Values, n: u64) -> Option<Spread> {
+    let x = x.view();
+    let (min, max) = x.extremes()?;
+    let q = quantiles(&x, n as usize, |v| v, &[0.25, 0.5, 0.75]);
+    let spread = Spread {
+        min,
+        p25: q[0]?,
+        median: q[1]?,
+        p75: q[2]?,
+        max,
+    };
+    [min, spread.p25, spread.median, spread.p75, max]
+        .iter()
+        .all(|v| v.is_finite())
+        .then_some(spread)
 }
 
 /// Text and other non-numeric variables: only whether each entity (or each period) holds
@@ -448,6 +514,7 @@ pub(super) fn categorical(ctx: &Context) -> Result<Vec<VariationLine>> {
             within_share: None,
             two_way_share: None,
             zero_within_entities: 0,
+            spread: None,
             absorbed_by,
             nearly_absorbed: false,
             not_computable: None,

@@ -241,3 +241,39 @@ fn two_way_meets_least_squares_on_dummies_with_repeats_and_many_periods() {
     }
     meets_dummies(&f, &y, &x);
 }
+
+#[test]
+fn extremes_skip_the_rows_without_a_value() {
+    // Against the plain definition (the least and the greatest of the values present, found
+    // one by one): columns of every length from 0 to 40 across the kernel's eight lanes, one
+    // across three of its blocks of 4,096 rows, a missing row's slot holding a value below and above every real one, and
+    // a column with no value at all (None).
+    for len in (0..40usize).chain([2 * 4096 + 13]) {
+        let v: Vec<f64> = (0..len).map(|i| ((i * 7919) % 23) as f64 - 11.0).collect();
+        let ok: Vec<bool> = (0..len).map(|i| i % 3 != 1).collect();
+        let slots: Vec<f64> = v
+            .iter()
+            .zip(&ok)
+            .enumerate()
+            .map(|(i, (x, o))| match (o, i % 2) {
+                (true, _) => *x,
+                (false, 0) => -1e9,
+                (false, _) => 1e9,
+            })
+            .collect();
+        let bits: polars_arrow::bitmap::Bitmap = ok.iter().copied().collect();
+        let x = Float64Chunked::from_vec_validity("x".into(), slots, Some(bits));
+        let x = Values::new(&x);
+        let present: Vec<f64> = v
+            .iter()
+            .zip(&ok)
+            .filter(|(_, o)| **o)
+            .map(|(x, _)| *x)
+            .collect();
+        let want = present.iter().copied().reduce(f64::min).map(|lo| {
+            let hi = present.iter().copied().reduce(f64::max).unwrap();
+            (lo, hi)
+        });
+        assert_eq!(x.view().extremes(), want, "length {len}");
+    }
+}

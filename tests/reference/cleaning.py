@@ -89,6 +89,15 @@ def main():
         for v in ["invest", "value", "capital"]:
             ok = np.allclose(want[v].to_numpy(), got[v].to_numpy(), rtol=1e-12)
             same(f"panel.{v} values", True, bool(ok))
+    # The cleaned panel's smallest value, quartiles and largest value (balancing removed rows,
+    # so every variable's are computed again): numpy's min, percentile (linear, Hyndman & Fan
+    # type 7) and max of the reference's own cleaned panel.
+    lines = {v["variable"]: v for v in report["cleaned"]["variation"]}
+    for v in ["invest", "value", "capital"]:
+        x = want[v].dropna().to_numpy(dtype="float64")
+        for k, w in zip(["min", "p25", "median", "p75", "max"],
+                        [x.min(), *np.percentile(x, [25, 50, 75]), x.max()]):
+            same(f"cleaned.{v}.{k}", float(w), lines[v].get(k))
     for f in failures:
         print("MISMATCH", f)
     print(f"cleaning: {checked[0] - len(failures)} passed, {len(failures)} failed")

@@ -19,7 +19,8 @@
       recomputes winsorizing of roa and leverage by sector x fiscal year with numpy, groups
       smaller than 1 / (the smaller tail) taking the pooled cutoffs, and the audit's outlier
       counts by the same groups when the report has them; corrections.csv must list exactly
-      the cells moved, each with its old value and its cutoff.
+      the cells moved, each with its old value and its cutoff; and the cleaned panel's
+      smallest value, quartiles and largest value of every numeric column, by pandas.
   handoff.py yearend DATA_DIR REPORT_JSON
       derives the fiscal year from the demo's year-end dates with pandas (month <= 5: the
       previous year), recounts the key steps on it and the firms whose year-end month changed,
@@ -252,6 +253,27 @@ def groups(bundle):
         check(f"{v} corrections new", bool(np.allclose(both["new_got"].astype(float), both["new"],
                                                          rtol=1e-12, atol=1e-15)))
         print(f"{v}: {len(by_group)} groups, {fallbacks} on the pooled cutoffs")
+    spread(panel, report["cleaned"]["variation"])
+
+
+def spread(panel, lines):
+    """Each numeric variable's smallest value, quartiles and largest value in the cleaned
+    panel as handed over: pandas' min, quantile (linear interpolation, its default: Hyndman &
+    Fan 1996 type 7) and max over the non-missing values. The treated variables' figures are
+    computed again after winsorizing, the others' carried over from the panel as read; both
+    must match the bundle's panel."""
+    seen = 0
+    for line in lines:
+        if "min" not in line:
+            continue
+        x = panel[line["variable"]].dropna().astype("float64")
+        want = {"min": x.min(), "p25": x.quantile(0.25), "median": x.quantile(0.5),
+                "p75": x.quantile(0.75), "max": x.max()}
+        for k, w in want.items():
+            check(f"spread {line['variable']} {k}",
+                  bool(np.isclose(line[k], float(w), rtol=1e-12, atol=1e-15)), (line[k], w))
+        seen += 1
+    check("spread lines", seen >= 20, seen)
 
 
 def xlsx_hostile(outdir):

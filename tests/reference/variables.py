@@ -70,6 +70,13 @@ def check_variation(df, entity, period, report):
         same(p + ".mean", float(x.mean()), line["mean"])
         same(p + ".sd_total", float(np.sqrt(tss / (n - 1))), line["sd_total"])
         same(p + ".sd_within", float(np.sqrt(wss / (n - 1))), line["sd_within"])
+        # Smallest value, quartiles and largest value: pandas' min, quantile (linear, its
+        # default: Hyndman & Fan 1996 type 7) and max.
+        same(p + ".min", float(x.min()), line.get("min"))
+        same(p + ".p25", float(x.quantile(0.25)), line.get("p25"))
+        same(p + ".median", float(x.quantile(0.5)), line.get("median"))
+        same(p + ".p75", float(x.quantile(0.75)), line.get("p75"))
+        same(p + ".max", float(x.max()), line.get("max"))
         same(p + ".sd_between", float(x.groupby(d[entity]).mean().std(ddof=1)), line["sd_between"])
         same(p + ".within_share", wss / tss if tss > 0 else 0.0, line["within_share"])
         g = x.groupby(d[entity])

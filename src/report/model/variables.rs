@@ -54,6 +54,10 @@ pub struct VariationLine {
     pub two_way_share: Option<f64>,
     /// Entities with two or more values, all equal.
     pub zero_within_entities: u64,
+    /// The smallest value, the quartiles (type-7 percentiles 25, 50 and 75) and the largest
+    /// value; absent for text variables and a variable without values.
+    #[serde(skip_serializing_if = "Option::is_none", flatten)]
+    pub spread: Option<Spread>,
     /// The effects that absorb the variable, if any.
     pub absorbed_by: Option<Absorbed>,
     /// Within share below the `nearly_absorbed` threshold: fixed-effects estimates will be
@@ -64,6 +68,21 @@ pub struct VariationLine {
     /// text variables.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub not_computable: Option<String>,
+}
+
+/// Where a numeric variable's values lie: the extremes and the quartiles.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Spread {
+    /// The smallest value.
+    pub min: f64,
+    /// The 25th percentile.
+    pub p25: f64,
+    /// The median.
+    pub median: f64,
+    /// The 75th percentile.
+    pub p75: f64,
+    /// The largest value.
+    pub max: f64,
 }
 
 /// The missing-values check's figures.
