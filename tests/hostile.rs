@@ -1917,3 +1917,55 @@ fn a_model_with_nothing_to_explain_is_not_computable() {
         assert_eq!(tests, 0, "{name}: {model}");
     }
 }
+
+/// A CSV export that kept codes' leading zeros by writing each such cell as a spreadsheet
+/// formula for text (`="007"`): the firm `="007"` was a firm of its own beside the `007` of
+/// other rows and of a joined file, and a period written so stopped the read. Each such cell
+/// now holds the text between its quotes, noted per column. Worked by hand: firms 007 (three
+/// years) and 0012; sales 1,234.5, 2,000 and 950 (the fourth `=""`, missing), mean
+/// 1,394.8333…; sic stays text (codes with leading zeros); staff joins both firms, 10 on three
+/// rows and 20 on one, mean 12.5.
+#[test]
+fn cells_written_as_spreadsheet_formulas_hold_their_text() {
+    let w = Workdir::new();
+    w.write(
+        "raw.csv",
+        "firm,year,sales,sic,name\n=\"007\",=\"2001\",=\"1234.5\",=\"0100\",Alpha\n\
+         =\"007\",2002,2000,=\"0100\",Alpha\n007,2003,950,0100,Alpha\n\
+         =\"0012\",2001,=\"\",=\"2000\",Beta\n",
+    );
+    w.write("staff.csv", "firm,staff\n007,10\n=\"0012\",20\n");
+    w.write(
+        "r.toml",
+        "[panel]\nentity = \"firm\"\nperiod = \"year\"\n[[join]]\nfile = \"staff.csv\"\non = [\"firm\"]\n",
+    );
+    let r = w.ok(&["audit", "raw.csv", "--rules", "r.toml", "--format", "json"]);
+    let report: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+    assert_eq!(report["panel"]["rows"], 4);
+    assert_eq!(report["panel"]["entities"], 2);
+    assert_eq!(report["panel"]["first_period"], 2001);
+    let line = |v: &str| {
+        report["variation"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|l| l["variable"] == v)
+            .unwrap()
+            .clone()
+    };
+    assert_eq!(line("sales")["n"], 3);
+    assert!((line("sales")["mean"].as_f64().unwrap() - 4184.5 / 3.0).abs() < 1e-9);
+    assert!(line("sic")["mean"].is_null(), "sic is codes, not amounts");
+    assert_eq!(line("staff")["mean"], 12.5);
+    assert_eq!(report["joins"][0]["panel_rows_unmatched"], 0);
+    let notes = report["input"]["notes"].as_array().unwrap();
+    assert_eq!(
+        notes[0],
+        "column `firm`: 3 cells written as a spreadsheet formula for text (the first \
+         `=\"007\"`, data row 1) read as the text between its quotes"
+    );
+    assert!(notes.iter().any(|n| {
+        n == "joined `staff.csv`, column `firm`: 1 cell written as a spreadsheet \
+                     formula for text (the first `=\"0012\"`) read as the text between its quotes"
+    }));
+}

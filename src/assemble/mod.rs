@@ -158,6 +158,13 @@ fn read_table(
     let (raw, read_notes) = crate::load::read_raw(path, format, csv, spec.sheet.as_deref(), &text)?;
     // Numbers with `NA`, `.` or `#N/A` for missing ones, as in the main file; the columns
     // matched on stay as read.
+    // A cell a spreadsheet wrote as `="007"` holds `007`, as in the main file (the columns
+    // matched on too, so that such keys meet the panel's).
+    let (raw, formulas) = if format == crate::config::InputFormat::Csv {
+        crate::load::formula_text(raw, None)?
+    } else {
+        (raw, Vec::new())
+    };
     let (raw, notes) = if format == crate::config::InputFormat::Csv {
         let on: Vec<String> = raw
             .get_column_names()
@@ -174,6 +181,7 @@ fn read_table(
     let (raw, non_finite) = crate::load::non_finite_as_missing(raw, &[])?;
     let notes: Vec<String> = read_notes
         .into_iter()
+        .chain(formulas)
         .chain(notes)
         .chain(decimals)
         .chain(non_finite)

@@ -15,6 +15,7 @@ mod csv_file;
 mod fields;
 mod finite;
 mod footer;
+mod formula;
 mod markers;
 mod not_numbers;
 mod period;
@@ -28,6 +29,7 @@ use csv_file::{
     Transcoded,
 };
 pub(crate) use finite::non_finite_as_missing;
+pub(crate) use formula::formula_text;
 pub(crate) use markers::numbers_with_markers;
 pub(crate) use not_numbers::{text_among_numbers, Source};
 use period::{check_period, check_window, fiscal_year, period_as_int};
@@ -347,7 +349,13 @@ pub fn load(
         .into_iter()
         .filter(|c| df.schema().contains(c))
         .collect();
-    // A CSV column of numbers with `NA`, `.` or `#N/A` for missing ones: numbers, noted.
+    // A CSV cell a spreadsheet wrote as `="007"`: the text it holds, noted. Then a CSV column
+    // of numbers with `NA`, `.` or `#N/A` for missing ones: numbers, noted.
+    let (df, formulas) = if cfg.format == InputFormat::Csv {
+        formula::formula_text(df, Some(ROW))?
+    } else {
+        (df, Vec::new())
+    };
     let (df, marked) = if cfg.format == InputFormat::Csv {
         markers::numbers_with_markers(df, &keys, cfg.csv.decimal_comma)?
     } else {
@@ -387,6 +395,7 @@ pub fn load(
     notes.extend(unnamed);
     notes.extend(coded_notes(&coded));
     notes.extend(coded_notes(&coded_further));
+    notes.extend(formulas);
     notes.extend(marked);
     notes.extend(decimals);
     notes.extend(non_finite);
