@@ -269,7 +269,8 @@ impl Treatment {
                     .select([
                         col(k.entity),
                         col(k.period),
-                        x(v).alias(OLD),
+                        // As the column holds it: a whole number stays one (`1`, not `1.0`).
+                        col(v.as_str()).alias(OLD),
                         when(raised.clone())
                             .then(col(lo.as_str()))
                             .otherwise(col(hi.as_str()))
@@ -400,6 +401,13 @@ impl Treatment {
         let mut found = Vec::new();
         let mut counts = Vec::new();
         let mut changed = Vec::new();
+        // Each variable's type before winsorizing makes it floats: the old values of a
+        // column of whole numbers are written as whole numbers.
+        let types: Vec<DataType> = self
+            .variables
+            .iter()
+            .map(|v| Ok(df.column(v)?.dtype().clone()))
+            .collect::<Result<_>>()?;
         let mut current = df;
         type Measured = (Option<Column>, (u64, u64), Found, Histogram);
         // A variable's cutoffs, its chart and, when trimming, its flags and counts (reading
@@ -508,11 +516,12 @@ impl Treatment {
         let changed = self
             .variables
             .iter()
+            .zip(&types)
             .zip(changed)
             .filter(|_| record)
             .filter_map(|(v, moved)| Some((v, moved?)))
             .filter(|(_, moved)| !moved.rows.is_empty())
-            .map(|(v, moved)| ledger_part(&current, k, v, moved))
+            .map(|((v, was), moved)| ledger_part(&current, k, (v, was), moved))
             .collect::<Result<_>>()?;
         let (out, removed) = self.finish(current, k)?;
         let lines = self.lines(&cutoffs, &counts, k, histograms)?;
@@ -531,14 +540,27 @@ const OLD: &str = "__old";
 const NEW: &str = "__new";
 const RAISED_: &str = "__raised";
 
-/// The corrections-ledger part of the values winsorizing `moved` in `v`, whose new values
-/// `panel` holds: the rows' keys gathered, their old and new values and tails as they are.
-fn ledger_part(panel: &DataFrame, k: &Keys, v: &str, moved: Changed) -> Result<LedgerPart> {
+/// The corrections-ledger part of the values winsorizing `moved` in `v` (of type `was`
+/// before), whose new values `panel` holds: the rows' keys gathered, their old and new values
+/// and tails as they are.
+fn ledger_part(
+    panel: &DataFrame,
+    k: &Keys,
+    (v, was): (&str, &DataType),
+    moved: Changed,
+) -> Result<LedgerPart> {
     let rows = IdxCa::from_vec(PlSmallStr::EMPTY, moved.rows);
     let mut lines = panel.select([k.entity, k.period])?.take(&rows)?;
     let new = panel.column(v)?.take(&rows)?.with_name(NEW.into());
     lines.with_column(new)?;
-    lines.with_column(Column::new(OLD.into(), moved.old))?;
+    // Whole numbers read as floats for the pass: exact, and written back as they came.
+    let old = Column::new(OLD.into(), moved.old);
+    let old = if was.is_integer() {
+        old.cast(was)?
+    } else {
+        old
+    };
+    lines.with_column(old)?;
     lines.with_column(Column::new(RAISED_.into(), moved.raised))?;
     winsorized_part(lines, k, v)
 }

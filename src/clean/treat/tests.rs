@@ -71,3 +71,52 @@ fn both_paths_list_the_same_cells() {
     assert_eq!((line.below + line.above) as usize, a.height());
     assert!(line.below > 0 && line.above > 0);
 }
+
+/// A column of whole numbers (a head count) becomes floats when winsorized, but the old
+/// values the ledger lists are the file's: `7`, not `7.0`, on both paths. Worked by hand:
+/// each listed old value is the row's original whole number, written as it.
+#[test]
+fn whole_numbers_keep_their_old_values_whole() {
+    let n = 200;
+    let df = df!(
+        "f" => (0..n).map(|i| format!("F{:03}", i / 5)).collect::<Vec<_>>(),
+        "y" => (0..n as i64).map(|i| 2001 + i % 5).collect::<Vec<_>>(),
+        "staff" => (0..n as i64).map(|i| (i * 7919) % 157).collect::<Vec<_>>(),
+    )
+    .unwrap();
+    let columns = ["staff".to_string()];
+    let k = Keys {
+        file: std::path::Path::new("p.csv"),
+        entity: "f",
+        period: "y",
+        columns: &columns,
+    };
+    let t = Treatment {
+        method: Method::Winsorize,
+        variables: vec!["staff".into()],
+        lower: 0.05,
+        upper: 0.95,
+        by: CutoffGroups::Period,
+        groups: Vec::new(),
+    };
+    let core = PanelCore::new(&df, "f", "y").unwrap();
+    for treated in [
+        t.apply(df.clone(), &k, Some(&core), true).unwrap(),
+        t.apply(df.clone(), &k, None, true).unwrap(),
+    ] {
+        let part = &treated.changed[0];
+        let lines = part.slice(0, part.rows.height()).unwrap();
+        assert!(lines.height() > 0);
+        let keys = lines.select(["f", "y"]).unwrap();
+        let olds = lines.column("old").unwrap().str().unwrap().clone();
+        for (r, old) in olds.iter().enumerate() {
+            let (f, y) = (
+                keys.column("f").unwrap().str().unwrap().get(r).unwrap(),
+                keys.column("y").unwrap().i64().unwrap().get(r).unwrap(),
+            );
+            let at = (0..n).find(|i| format!("F{:03}", i / 5) == f && 2001 + (*i as i64) % 5 == y);
+            let want = (at.unwrap() as i64 * 7919) % 157;
+            assert_eq!(old, Some(want.to_string().as_str()), "{f} {y}");
+        }
+    }
+}
