@@ -11,7 +11,7 @@ DATA_CSV holds unique (entity, period) keys (no key steps needed). Pooled and wi
 and residual sums of squares come from statsmodels OLS (the within estimator as OLS with
 entity dummies); the LM tests follow Breusch & Pagan (1980) and Baltagi & Li (1990) for
 unbalanced panels, Honda (1985) one-sided; variance components Swamy & Arora as extended by
-Baltagi & Chang (1994); Hausman (1978); Wooldridge's serial-correlation test as in Drukker
+Baltagi & Chang (1994); Hausman (1978); variance inflation factors by statsmodels; Wooldridge's serial-correlation test as in Drukker
 (2003); Pesaran's (2004) CD over pairs with at least 3 common periods. numpy for the rest,
 scipy for p-values. Exits 1 on any mismatch with the report.
 """
@@ -23,6 +23,7 @@ import numpy as np
 import pandas as pd
 import statsmodels.formula.api as smf
 from scipy import stats
+from statsmodels.stats.outliers_influence import variance_inflation_factor
 
 failures, checked = [], [0]
 
@@ -157,6 +158,31 @@ def main():
             # Not identified by the within estimator: the report shows no number.
             same(f"slope {r} within is null", 0.0, 0.0 if s["within"] is None else 1.0)
     regs_w = [regs[j] for j in within_ids]
+
+    # Collinearity: statsmodels' variance_inflation_factor (1 / (1 - R^2) of a column on the
+    # design's other columns) on the pooled design [1, identified regressors, D], and on the
+    # within design [regressors it identifies, D] with entity means removed (no constant:
+    # the columns have mean zero); numpy's corrcoef for the most correlated other regressor.
+    lines = {c["variable"]: c for c in m["collinearity"]}
+    same("collinearity lines", len(pooled_ids), len(lines))
+    Xw = pd.DataFrame(np.column_stack([X[:, within_ids], D]))
+    Xw = (Xw - Xw.groupby(groups).transform("mean")).to_numpy()
+    C = np.corrcoef(X[:, pooled_ids].T) if len(pooled_ids) > 1 else None
+    for i, j in enumerate(pooled_ids):
+        c = lines[regs[j]]
+        same(f"vif {regs[j]} pooled", variance_inflation_factor(Xp, 1 + i), c["vif_pooled"], rel=1e-6)
+        if j in within_ids:
+            w = within_ids.index(j)
+            same(f"vif {regs[j]} within", variance_inflation_factor(Xw, w), c["vif_within"], rel=1e-6)
+        else:
+            same(f"vif {regs[j]} within is null", 0.0, 0.0 if c["vif_within"] is None else 1.0)
+        if C is not None:
+            row = np.abs(C[i]).copy()
+            row[i] = -1
+            k = int(np.argmax(row))
+            same(f"{regs[j]} correlation", float(C[i, k]), c["correlation"])
+            if c["closest"] != regs[pooled_ids[k]]:
+                failures.append(f"{regs[j]} closest: reference {regs[pooled_ids[k]]}, report {c['closest']}")
 
     # Wooldridge (Drukker 2003): differences over consecutive periods only.
     prev = d.groupby("e")["t"].shift(1)

@@ -15,6 +15,7 @@ use super::Context;
 use crate::report::{ErrorSplit, ModelReport, Report, Slope, VariationLine};
 use crate::Result;
 
+mod collinearity;
 mod gram;
 mod linalg;
 mod questions;
@@ -169,6 +170,7 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
         not_identified: Vec::new(),
         not_identified_within: Vec::new(),
         hausman_compares: Vec::new(),
+        collinearity: Vec::new(),
         warnings: Vec::new(),
     };
     let d = s.declared;
@@ -281,7 +283,7 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
         ));
         return Ok(out);
     }
-    let se_p: Vec<f64> = match gp.try_inverse() {
+    let se_p: Vec<f64> = match gp.clone().try_inverse() {
         Some(inv) => (0..k_p)
             .map(|c| (rss_p / (n_rows - k_p) as f64 * inv[(c, c)]).sqrt())
             .collect(),
@@ -302,6 +304,7 @@ fn diagnose(ctx: &Context, spec: &ModelSpec, variation: &[VariationLine]) -> Res
             }
         }
     };
+    out.collinearity = collinearity::lines(&s.names[..d], &gp, &pooled_cols, &gw, &within_keep);
     let e_w = within_design.residuals(&within_keep, &b_w);
     let rss_w = e_w.norm_squared();
     let df_w = (n_rows - n - k_w) as f64;

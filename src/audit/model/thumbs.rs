@@ -59,6 +59,8 @@ pub(super) fn warnings(
             }
         ));
     }
+    let moving_together = super::collinearity::warnings(&out.collinearity);
+    out.warnings.extend(moving_together);
     for v in &spec.regressors {
         let identified = !out.not_identified.contains(v) && !out.not_identified_within.contains(v);
         if let Some(line) = variation.iter().find(|l| &l.variable == v) {

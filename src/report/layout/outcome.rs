@@ -67,6 +67,7 @@ pub(super) fn model(r: &Report) -> Section {
             _ => {}
         }
     }
+    blocks.extend(collinearity(m));
     for w in &m.warnings {
         blocks.push(Block::Note(format!("Warning: {w}.")));
     }
@@ -175,6 +176,49 @@ fn slopes(m: &ModelReport) -> Vec<Block> {
         }
     }
     out
+}
+
+/// How much the regressors move together, when there is one or more.
+fn collinearity(m: &ModelReport) -> Vec<Block> {
+    if m.collinearity.is_empty() {
+        return Vec::new();
+    }
+    let factor = |v: Option<f64>| v.map_or("–".into(), |v| format!("{v:.2}"));
+    let rows = m
+        .collinearity
+        .iter()
+        .map(|c| {
+            vec![
+                c.variable.clone(),
+                factor(c.vif_pooled),
+                factor(c.vif_within),
+                c.closest.clone().unwrap_or_else(|| "–".into()),
+                c.correlation.map_or("–".into(), |r| format!("{r:+.3}")),
+            ]
+        })
+        .collect();
+    vec![
+        Block::Heading("Do the regressors move together? (collinearity)".into()),
+        Block::Table(
+            strings(&[
+                "regressor",
+                "variance inflation, pooled",
+                "variance inflation, within",
+                "most correlated with",
+                "correlation",
+            ]),
+            rows,
+        ),
+        Block::Note(
+            "Variance inflation factor: 1 / (1 - R²) of the regressor on the other columns of \
+             the design (pooled: the intercept, any period dummies and the other regressors; \
+             within: the same after removing entity means, the variation a fixed-effects slope \
+             rests on). The variance of the regressor's slope is that many times what it would \
+             be were the regressor unrelated to the others. Correlation: Pearson, over the \
+             estimation sample."
+                .into(),
+        ),
+    ]
 }
 
 pub(super) fn sample(r: &Report) -> Section {

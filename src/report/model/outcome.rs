@@ -37,6 +37,8 @@ pub struct ModelReport {
     pub not_identified_within: Vec<String>,
     /// The regressors the Hausman test compares (those both estimators identify).
     pub hausman_compares: Vec<String>,
+    /// How much each regressor the pooled design identifies moves with the others.
+    pub collinearity: Vec<Collinearity>,
     /// Rules of thumb that apply, each with its source.
     pub warnings: Vec<String>,
 }
@@ -114,6 +116,23 @@ pub struct Slope {
     pub sign_flip: bool,
     /// The sign flips or the move exceeds 2 pooled standard errors.
     pub material: bool,
+}
+
+/// How much one regressor moves with the others in the estimation sample.
+#[derive(Debug, Clone, Serialize)]
+pub struct Collinearity {
+    /// The regressor.
+    pub variable: String,
+    /// Variance inflation factor, 1 / (1 − R²) of the regressor on the intercept, any period
+    /// dummies and the other regressors.
+    pub vif_pooled: Option<f64>,
+    /// The same after removing entity means (null when the within estimator does not
+    /// identify the regressor).
+    pub vif_within: Option<f64>,
+    /// The other regressor it is most correlated with (null without another).
+    pub closest: Option<String>,
+    /// That Pearson correlation in the estimation sample.
+    pub correlation: Option<f64>,
 }
 
 /// The figures of the cleaned panel written by `build`.
