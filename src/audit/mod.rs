@@ -136,6 +136,54 @@ pub struct Context<'a> {
     pub outlier_groups: Option<GroupCodes>,
     /// Where a check that goes through the variables a few at a time reports how far it is.
     progress: Option<&'a crate::progress::Progress>,
+    /// Each variable's pooled quantiles, once computed ([`Context::pooled`]).
+    pooled: std::sync::Mutex<std::collections::HashMap<String, Pooled>>,
+}
+
+/// A variable's pooled quantiles over the panel's rows with a value: at the outlier cutoffs'
+/// percentiles and the quartiles (type 7), and its extremes.
+#[derive(Debug, Clone, Copy)]
+pub(crate) struct Pooled {
+    pub(crate) min: Option<f64>,
+    pub(crate) max: Option<f64>,
+    pub(crate) lower: Option<f64>,
+    pub(crate) upper: Option<f64>,
+    pub(crate) p25: Option<f64>,
+    pub(crate) median: Option<f64>,
+    pub(crate) p75: Option<f64>,
+}
+
+impl Pooled {
+    /// The pooled quantiles of the values of `x`, from one bracketing pass
+    /// (core::quantiles_visiting), the extremes taken on the way: a comparison that keeps
+    /// the lower (higher) value, which costs the pass little, where a pass of their own
+    /// would read the column from memory again.
+    pub(crate) fn of(x: &crate::core::View, s: &Settings) -> Pooled {
+        let ps = [s.lower, s.upper, 0.25, 0.5, 0.75];
+        let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
+        let (q, _) = crate::core::quantiles_visiting(
+            x,
+            x.count(),
+            |v| v,
+            &ps,
+            |_| {
+                |v: f64, _| {
+                    lo = if v < lo { v } else { lo };
+                    hi = if v > hi { v } else { hi };
+                }
+            },
+        );
+        let seen = lo <= hi;
+        Pooled {
+            min: seen.then_some(lo),
+            max: seen.then_some(hi),
+            lower: q[0],
+            upper: q[1],
+            p25: q[2],
+            median: q[3],
+            p75: q[4],
+        }
+    }
 }
 
 /// A context's key frames and codes, kept when its panel is let go.
@@ -314,7 +362,23 @@ impl<'a> Context<'a> {
             core,
             outlier_groups,
             progress: None,
+            pooled: Default::default(),
         })
+    }
+
+    /// The pooled quantiles of variable `v`, whose values are `x`: from one pass over the
+    /// column the first time a check asks (the variation's quartiles), then shared (the
+    /// outliers' cutoffs and median), so that the column is read once for both.
+    pub(crate) fn pooled(&self, v: &str, x: &crate::core::View) -> Pooled {
+        let cached = self.pooled.lock().map(|m| m.get(v).copied());
+        if let Ok(Some(q)) = cached {
+            return q;
+        }
+        let pooled = Pooled::of(x, &self.settings);
+        if let Ok(mut m) = self.pooled.lock() {
+            m.insert(v.to_string(), pooled);
+        }
+        pooled
     }
 
     /// The same context, reporting the checks' progress through the variables to `progress`.

@@ -8,7 +8,7 @@ pub use super::robust_z::MAD_SCALE;
 use super::verdict::{
     counted, level_key, line as verdict_line, worst, CheckVerdict, LevelKey, Levels, Status,
 };
-use super::{unit_slips, Check, Context, Settings};
+use super::{unit_slips, Check, Context, Pooled, Settings};
 use crate::core::{
     fewest_for_cutoffs, in_batches, quantiles, quantiles_by_group, GroupCodes, PanelCore, Values,
     View,
@@ -56,7 +56,15 @@ impl Check for Outliers {
             vars,
             |v| {
                 let x = Values::of(ctx.df, v)?;
-                Ok(line(&ctx.core, ctx.outlier_groups.as_ref(), v, &x, s))
+                let pooled = ctx.pooled(v, &x.view());
+                Ok(line(
+                    &ctx.core,
+                    ctx.outlier_groups.as_ref(),
+                    v,
+                    &x,
+                    pooled,
+                    s,
+                ))
             },
             |batch, lines| {
                 f.lines.extend(lines);
@@ -315,6 +323,7 @@ fn line(
     groups: Option<&GroupCodes>,
     variable: &str,
     x: &Values,
+    pooled: Pooled,
     s: &Settings,
 ) -> OutlierLine {
     let (lo, hi) = (s.lower, s.upper);
@@ -324,15 +333,12 @@ fn line(
     let (mut below, mut above) = (0u64, 0u64);
     let smallest = fewest_for_cutoffs(lo, hi) as u64;
     let mut fallback = None;
-    let mut median: Option<Option<f64>> = None;
     let (lower, upper, min_group) = match (s.by, groups) {
         (CutoffGroups::Groups, Some(codes)) => {
             // Per group; a group too small, or a row without a group, takes the pooled cutoffs
-            // (as winsorizing by groups does).
-            // The pooled cutoffs and the median (for the robust z below) from one pass.
-            let q = quantiles(&x, n, |v| v, &[lo, hi, 0.5]);
-            let pooled = (q[0], q[1]);
-            median = Some(q[2]);
+            // (as winsorizing by groups does), shared with the variation's quartiles
+            // (`Context::pooled`).
+            let pooled_cutoffs = (pooled.lower, pooled.upper);
             // The values of each group (codes 0, 1, ...), and those of rows without one last.
             let loose = codes.loose();
             let slot = |r: usize| codes.codes[r] as usize;
@@ -349,7 +355,7 @@ fn line(
                 let small = code == loose || (g.len() as u64) < smallest;
                 let (l, u) = if small {
                     fell_back += u64::from(code != loose);
-                    pooled
+                    pooled_cutoffs
                 } else {
                     let q = quantiles(&View::all(g), g.len(), |v| v, &[lo, hi]);
                     (q[0], q[1])
@@ -363,11 +369,9 @@ fn line(
             (None, None, n as u64)
         }
         (CutoffGroups::Pooled | CutoffGroups::Groups, _) => {
-            // The cutoffs and the median (for the robust z below) from one pass.
-            // Counted below, in the same pass as the robust z.
-            let q = quantiles(&x, n, |v| v, &[lo, hi, 0.5]);
-            median = Some(q[2]);
-            (q[0], q[1], n as u64)
+            // The cutoffs, shared with the variation's quartiles (`Context::pooled`). Counted
+            // below, in the same pass as the robust z.
+            (pooled.lower, pooled.upper, n as u64)
         }
         (CutoffGroups::Period, _) => {
             let nt = core.periods.len();
@@ -385,13 +389,10 @@ fn line(
             (None, None, sizes.into_iter().min().unwrap_or(0))
         }
     };
-    // Robust z from the pooled median and MAD; with a MAD of zero it is not defined.
-    let median = match median {
-        Some(m) => m,
-        None => quantiles(&x, n, |v| v, &[0.5])[0],
-    };
+    // Robust z from the pooled median (`Context::pooled`) and MAD; with a MAD of zero it is
+    // not defined.
     let (mut robust_z_beyond, mut mad) = (None, None);
-    if let Some(m) = median {
+    if let Some(m) = pooled.median {
         let pass = mad_pass(&x, n, m, (lower, upper), s.robust_z);
         below += pass.below;
         above += pass.above;
@@ -466,7 +467,8 @@ mod tests {
                 by: CutoffGroups::Period,
                 ..Settings::default()
             };
-            let got = line(&core, None, "x", &values, &settings);
+            let pooled = Pooled::of(&values.view(), &settings);
+            let got = line(&core, None, "x", &values, pooled, &settings);
             // Both ways are taken: one pass for the large periods, each gathered for the small.
             let period = |r: usize| core.period[r] as usize;
             let one_pass =

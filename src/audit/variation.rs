@@ -6,8 +6,8 @@
 use polars::prelude::*;
 
 use super::verdict::{self, counted, level_key, worst, CheckVerdict, LevelKey, Levels, Status};
-use super::{own, Check, Context};
-use crate::core::{in_batches, quantiles, PanelCore, Values};
+use super::{own, Check, Context, Pooled};
+use crate::core::{in_batches, PanelCore, Values};
 use crate::report::layout::{opt, opt_level, strings, Block, Section};
 use crate::report::{
     Absorbed, Finding, Report, Spread, ToJson, VariationFigures as Figures, VariationLine,
@@ -39,7 +39,8 @@ pub(super) fn lines(ctx: &Context, vars: &[String]) -> Result<Vec<VariationLine>
         vars,
         |v| {
             let x = Values::of(ctx.df, v)?;
-            Ok(line(core, v, &x, ctx.settings.nearly_absorbed))
+            let q = ctx.pooled(v, &x.view());
+            Ok(line(core, v, &x, q, ctx.settings.nearly_absorbed))
         },
         |batch, part| {
             lines.extend(part);
@@ -380,7 +381,7 @@ fn absorbed(read: &Figures) -> Section {
 
 /// The variation line of one numeric variable; the two-way residual only when neither
 /// effect alone absorbs it.
-fn line(core: &PanelCore, variable: &str, x: &Values, nearly: f64) -> VariationLine {
+fn line(core: &PanelCore, variable: &str, x: &Values, q: Pooled, nearly: f64) -> VariationLine {
     let (m, sums) = core.moments_and_sums(x);
     let n = m.n as f64;
     let sd = |ss: f64| {
@@ -432,7 +433,7 @@ fn line(core: &PanelCore, variable: &str, x: &Values, nearly: f64) -> VariationL
     }
     VariationLine {
         variable: variable.to_string(),
-        spread: spread(x, m.n),
+        spread: spread(q),
         n: m.n,
         mean: finite(m.mean),
         sd_total: finite(sd(m.tss)),
@@ -451,23 +452,26 @@ fn line(core: &PanelCore, variable: &str, x: &Values, nearly: f64) -> VariationL
     }
 }
 
-/// The extremes and quartiles of the `n` values of `x`, read in place (core::quantiles: one
-/// pass with three brackets); none without values, or should one not be a finite number.
-fn spread(x: &Values, n: u64) -> Option<Spread> {
-    let x = x.view();
-    let (min, max) = x.extremes()?;
-    let q = quantiles(&x, n as usize, |v| v, &[0.25, 0.5, 0.75]);
+/// A variable's extremes and quartiles, from its pooled quantiles `q`; none without values,
+/// or should one not be a finite number.
+fn spread(q: Pooled) -> Option<Spread> {
     let spread = Spread {
-        min,
-        p25: q[0]?,
-        median: q[1]?,
-        p75: q[2]?,
-        max,
+        min: q.min?,
+        p25: q.p25?,
+        median: q.median?,
+        p75: q.p75?,
+        max: q.max?,
     };
-    [min, spread.p25, spread.median, spread.p75, max]
-        .iter()
-        .all(|v| v.is_finite())
-        .then_some(spread)
+    [
+        spread.min,
+        spread.p25,
+        spread.median,
+        spread.p75,
+        spread.max,
+    ]
+    .iter()
+    .all(|v| v.is_finite())
+    .then_some(spread)
 }
 
 /// Text and other non-numeric variables: only whether each entity (or each period) holds

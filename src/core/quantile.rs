@@ -389,7 +389,7 @@ mod tests {
         // checked by hand below, and against numpy in tests/reference): sizes 1 to 300, ties,
         // NaN and both zeros, the probabilities the outlier check asks for and the extremes.
         let mut next = xorshift(0x2545_f491_4f6c_dd1du64);
-        let ps = [0.01, 0.99, 0.5, 0.0, 1.0, 0.25];
+        let ps = [0.01, 0.99, 0.5, 0.0, 1.0, 0.25, 0.75];
         for n in 1..300usize {
             let v: Vec<f64> = (0..n)
                 .map(|_| match next() % 20 {
@@ -416,7 +416,7 @@ mod tests {
         // deviations the MAD takes.
         use polars::prelude::*;
         let mut next = xorshift(0x9e37_79b9_7f4a_7c15u64);
-        let ps = [0.01, 0.99, 0.5, 0.0, 1.0, 0.25];
+        let ps = [0.01, 0.99, 0.5, 0.0, 1.0, 0.25, 0.75];
         let n = 3 * SMALL + 17;
         let columns: Vec<Vec<Option<f64>>> = vec![
             (0..n).map(|_| Some((next() % 1000) as f64 / 7.0)).collect(),
@@ -449,14 +449,18 @@ mod tests {
                 col.iter().copied(),
             ));
             let present: Vec<f64> = col.iter().flatten().copied().collect();
-            let got = quantiles(&values.view(), present.len(), |v| v, &ps);
-            for (p, q) in ps.iter().zip(&got) {
-                let want = type7(&mut present.clone(), *p);
-                assert_eq!(
-                    q.map(f64::to_bits),
-                    want.map(f64::to_bits),
-                    "column {c}, p {p}"
-                );
+            // And the outlier cutoffs with the quartiles, five brackets apart (the checks'
+            // shared pass, `audit::Pooled`).
+            for ps in [&ps[..], &[0.01, 0.99, 0.25, 0.5, 0.75]] {
+                let got = quantiles(&values.view(), present.len(), |v| v, ps);
+                for (p, q) in ps.iter().zip(&got) {
+                    let want = type7(&mut present.clone(), *p);
+                    assert_eq!(
+                        q.map(f64::to_bits),
+                        want.map(f64::to_bits),
+                        "column {c}, p {p}"
+                    );
+                }
             }
             let m = 3.5;
             let got = quantiles(&values.view(), present.len(), |v| (v - m).abs(), &[0.5]);

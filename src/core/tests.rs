@@ -243,12 +243,15 @@ fn two_way_meets_least_squares_on_dummies_with_repeats_and_many_periods() {
 }
 
 #[test]
-fn extremes_skip_the_rows_without_a_value() {
-    // Against the plain definition (the least and the greatest of the values present, found
-    // one by one): columns of every length from 0 to 40 across the kernel's eight lanes, one
-    // across three of its blocks of 4,096 rows, a missing row's slot holding a value below and above every real one, and
-    // a column with no value at all (None).
-    for len in (0..40usize).chain([2 * 4096 + 13]) {
+fn extremes_and_quartiles_skip_the_rows_without_a_value() {
+    // The checks' shared pooled pass (audit::Pooled) against the plain definitions: the least
+    // and the greatest of the values present, found one by one, and type-7 quartiles of a
+    // copy (`type7`, itself checked against numpy). Columns of every length from 0 to 40,
+    // and two beyond the size under which the values are copied (so that the visit rides on
+    // the bracketing pass), a missing row's slot holding a value below and above every real
+    // one; a column with no value at all has none.
+    let settings = crate::audit::Settings::default();
+    for len in (0..40usize).chain([2 * 4096 + 13, 2 * 65_536 + 13]) {
         let v: Vec<f64> = (0..len).map(|i| ((i * 7919) % 23) as f64 - 11.0).collect();
         let ok: Vec<bool> = (0..len).map(|i| i % 3 != 1).collect();
         let slots: Vec<f64> = v
@@ -270,10 +273,23 @@ fn extremes_skip_the_rows_without_a_value() {
             .filter(|(_, o)| **o)
             .map(|(x, _)| *x)
             .collect();
-        let want = present.iter().copied().reduce(f64::min).map(|lo| {
-            let hi = present.iter().copied().reduce(f64::max).unwrap();
-            (lo, hi)
-        });
-        assert_eq!(x.view().extremes(), want, "length {len}");
+        let got = crate::audit::Pooled::of(&x.view(), &settings);
+        assert_eq!(
+            got.min,
+            present.iter().copied().reduce(f64::min),
+            "length {len}"
+        );
+        assert_eq!(
+            got.max,
+            present.iter().copied().reduce(f64::max),
+            "length {len}"
+        );
+        for (p, q) in [(0.25, got.p25), (0.5, got.median), (0.75, got.p75)] {
+            assert_eq!(
+                q,
+                crate::core::type7(&mut present.clone(), p),
+                "length {len}, p {p}"
+            );
+        }
     }
 }

@@ -63,32 +63,6 @@ impl<'a> View<'a> {
         (self.v, self.ok)
     }
 
-    /// The smallest and the largest value present (by `<`, for values that are numbers),
-    /// None without values. Eight lanes at a time, a missing row read as the lane's own
-    /// value, so that the loop has no branch and no chain from one value to the next.
-    pub fn extremes(&self) -> Option<(f64, f64)> {
-        const LANES: usize = 8;
-        let (mut lo, mut hi) = ([f64::INFINITY; LANES], [f64::NEG_INFINITY; LANES]);
-        let mut any = false;
-        let mut take = |v: &[f64], ok: Option<&[bool]>| {
-            for (j, &x) in v.iter().enumerate() {
-                let present = ok.is_none_or(|ok| ok[j]);
-                let l = j % LANES;
-                lo[l] = if present && x < lo[l] { x } else { lo[l] };
-                hi[l] = if present && x > hi[l] { x } else { hi[l] };
-                any |= present;
-            }
-        };
-        let mut at = 0;
-        for chunk in self.v.chunks(LANES * 512) {
-            take(chunk, self.ok.map(|ok| &ok[at..at + chunk.len()]));
-            at += chunk.len();
-        }
-        let lo = lo.into_iter().fold(f64::INFINITY, f64::min);
-        let hi = hi.into_iter().fold(f64::NEG_INFINITY, f64::max);
-        any.then_some((lo, hi))
-    }
-
     /// The values present, in row order.
     pub fn present(&self) -> Vec<f64> {
         match self.ok {

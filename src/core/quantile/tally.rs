@@ -3,7 +3,7 @@
 use super::{each_mapped, from_key, key, select_each};
 
 /// Most brackets [`Tally::add_each`] places a value among without a branch per bracket.
-const FIXED: usize = 4;
+const FIXED: usize = 5;
 
 /// One pass's tally against the brackets: `gap[j]` counts the values between bracket j - 1
 /// and bracket j; of those inside bracket j, the ones equal to its lower or upper bound are
@@ -77,6 +77,7 @@ impl Tally {
             2 => self.add_fixed::<2, M, V>(values, ok, map, visit),
             3 => self.add_fixed::<3, M, V>(values, ok, map, visit),
             4 => self.add_fixed::<4, M, V>(values, ok, map, visit),
+            5 => self.add_fixed::<5, M, V>(values, ok, map, visit),
             _ => each_mapped(values, ok, map, |v, a| {
                 self.add(a);
                 visit(v, a);
