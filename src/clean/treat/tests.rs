@@ -2,6 +2,35 @@
 
 use super::*;
 
+/// `df` (entity `f`, period `y`) with `v` winsorized by period at the percentiles `(lower,
+/// upper)`, on the panel core's codes or (`core` false) by the engine's group-by; with
+/// `record`, the corrections-ledger lines too.
+fn by_period(
+    df: &DataFrame,
+    v: &str,
+    (lower, upper): (f64, f64),
+    record: bool,
+    core: bool,
+) -> Treated {
+    let columns = [v.to_string()];
+    let k = Keys {
+        file: std::path::Path::new("p.csv"),
+        entity: "f",
+        period: "y",
+        columns: &columns,
+    };
+    let t = Treatment {
+        method: Method::Winsorize,
+        variables: vec![v.into()],
+        lower,
+        upper,
+        by: CutoffGroups::Period,
+        groups: Vec::new(),
+    };
+    let codes = core.then(|| PanelCore::new(df, "f", "y").unwrap());
+    t.apply(df.clone(), &k, codes.as_ref(), record).unwrap()
+}
+
 /// Winsorizing by period on the panel core's codes and by the engine's group-by (the path
 /// taken when no core codes the rows) move the same values to the same cutoffs and list
 /// the same cells; the typed path itself is checked against numpy in tests/reference.
@@ -14,28 +43,10 @@ fn both_paths_list_the_same_cells() {
         "x" => (0..n).map(|i| (i % 23 != 0).then(|| ((i * 7919) % 211) as f64 / 3.0)).collect::<Vec<_>>(),
     )
     .unwrap();
-    let columns = ["x".to_string()];
-    let k = Keys {
-        file: std::path::Path::new("p.csv"),
-        entity: "f",
-        period: "y",
-        columns: &columns,
-    };
-    let t = Treatment {
-        method: Method::Winsorize,
-        variables: vec!["x".into()],
-        lower: 0.05,
-        upper: 0.9,
-        by: CutoffGroups::Period,
-        groups: Vec::new(),
-    };
-    let core = PanelCore::new(&df, "f", "y").unwrap();
-    let typed = t.apply(df.clone(), &k, Some(&core), true).unwrap();
-    let engine = t.apply(df.clone(), &k, None, true).unwrap();
+    let typed = by_period(&df, "x", (0.05, 0.9), true, true);
+    let engine = by_period(&df, "x", (0.05, 0.9), true, false);
     // A dry run lists nothing.
-    assert!(t
-        .apply(df, &k, Some(&core), false)
-        .unwrap()
+    assert!(by_period(&df, "x", (0.05, 0.9), false, true)
         .changed
         .is_empty());
     // The cutoffs agree to rounding (selection against the engine's interpolation).
@@ -84,25 +95,9 @@ fn whole_numbers_keep_their_old_values_whole() {
         "staff" => (0..n as i64).map(|i| (i * 7919) % 157).collect::<Vec<_>>(),
     )
     .unwrap();
-    let columns = ["staff".to_string()];
-    let k = Keys {
-        file: std::path::Path::new("p.csv"),
-        entity: "f",
-        period: "y",
-        columns: &columns,
-    };
-    let t = Treatment {
-        method: Method::Winsorize,
-        variables: vec!["staff".into()],
-        lower: 0.05,
-        upper: 0.95,
-        by: CutoffGroups::Period,
-        groups: Vec::new(),
-    };
-    let core = PanelCore::new(&df, "f", "y").unwrap();
     for treated in [
-        t.apply(df.clone(), &k, Some(&core), true).unwrap(),
-        t.apply(df.clone(), &k, None, true).unwrap(),
+        by_period(&df, "staff", (0.05, 0.95), true, true),
+        by_period(&df, "staff", (0.05, 0.95), true, false),
     ] {
         let part = &treated.changed[0];
         let lines = part.slice(0, part.rows.height()).unwrap();
