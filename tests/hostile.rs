@@ -1968,4 +1968,8 @@ fn cells_written_as_spreadsheet_formulas_hold_their_text() {
         n == "joined `staff.csv`, column `firm`: 1 cell written as a spreadsheet \
                      formula for text (the first `=\"0012\"`) read as the text between its quotes"
     }));
+    // `rules draft` reads the cells as `build` does: the years written so are a period
+    // (it found no period before).
+    let draft = w.ok(&["rules", "draft", "raw.csv"]).stdout;
+    assert!(draft.contains("period = \"year\""), "{draft}");
 }

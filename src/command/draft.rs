@@ -1,6 +1,6 @@
 //! `panelready rules draft`: a starter rules file guessed from a raw file.
 
-use crate::config::DraftConfig;
+use crate::config::{DraftConfig, InputFormat};
 use crate::{bundle, draft, load, Result};
 
 use super::stdout_write;
@@ -8,6 +8,11 @@ use super::stdout_write;
 /// Run `rules draft`.
 pub fn run(cfg: &DraftConfig) -> Result<i32> {
     let (df, _) = load::read_raw(&cfg.data, cfg.format, &cfg.csv, cfg.sheet.as_deref(), &[])?;
+    // A CSV cell a spreadsheet wrote as `="007"` holds `007`, as `build` reads it.
+    let (df, _) = match cfg.format {
+        InputFormat::Csv => load::formula_text(df, None)?,
+        _ => (df, Vec::new()),
+    };
     let name = cfg
         .data
         .file_name()
