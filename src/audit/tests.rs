@@ -183,3 +183,35 @@ fn key_frames_count_each_key_once() {
     let ids: Vec<Option<&str>> = e.column("f").unwrap().str().unwrap().iter().collect();
     assert_eq!(ids, [Some("a"), Some("b")]);
 }
+
+#[test]
+fn a_text_variable_counts_its_values_and_the_first_of_the_most_common() {
+    // Worked by hand: 126 rows; `Docks` on rows 0, 3, …, 123 and `Mills` on rows 1, 4, …,
+    // 124 (42 each, a tie: `Docks` comes first), `Quay` once, the rest missing: 3 distinct
+    // values in 85 rows.
+    let f: Vec<String> = (0..126).map(|i| format!("F{:02}", i / 7)).collect();
+    let y: Vec<i64> = (0..126).map(|i| 2001 + i % 7).collect();
+    let sector: Vec<Option<&str>> = (0..126)
+        .map(|i| match (i % 3, i) {
+            (0, _) => Some("Docks"),
+            (1, _) => Some("Mills"),
+            (_, 2) => Some("Quay"),
+            _ => None,
+        })
+        .collect();
+    let mut df = df!("f" => f, "y" => y, "sector" => sector).unwrap();
+    crate::core::hold_text_as_codes(&mut df, &["f".to_string()]).unwrap();
+    assert!(crate::core::is_coded(df.column("sector").unwrap().dtype()));
+    let ctx = Context::new(&df, "f", "y", Options::default()).unwrap();
+    let lines = super::variation::categorical(&ctx).unwrap();
+    let t = lines[0].text_values.clone().unwrap();
+    assert_eq!((lines[0].variable.as_str(), lines[0].n), ("sector", 85));
+    assert_eq!(
+        t,
+        crate::report::TextValues {
+            distinct: 3,
+            most_common: "Docks".into(),
+            most_common_rows: 42,
+        }
+    );
+}

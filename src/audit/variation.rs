@@ -10,8 +10,8 @@ use super::{own, Check, Context, Pooled};
 use crate::core::{in_batches, PanelCore, Values};
 use crate::report::layout::{opt, opt_level, strings, Block, Section};
 use crate::report::{
-    Absorbed, Finding, Report, Spread, ToJson, VariationFigures as Figures, VariationLine,
-    VARIATION_CONVENTION,
+    Absorbed, Finding, Report, Spread, TextValues, ToJson, VariationFigures as Figures,
+    VariationLine, VARIATION_CONVENTION,
 };
 use crate::Result;
 
@@ -217,6 +217,7 @@ fn variation(read: &Figures, r: &Report) -> Section {
             ));
             blocks.extend(variation_blocks(&c.lines));
             blocks.extend(spread_blocks(&c.lines));
+            blocks.extend(text_blocks(&c.lines));
             blocks.push(Block::Note(
                 "The panel as read (after the key steps and accounting rules, before treatment):"
                     .into(),
@@ -226,6 +227,7 @@ fn variation(read: &Figures, r: &Report) -> Section {
         None => {
             blocks.extend(variation_blocks(&read.lines));
             blocks.extend(spread_blocks(&read.lines));
+            blocks.extend(text_blocks(&read.lines));
         }
     }
     Section {
@@ -334,6 +336,46 @@ fn spread_blocks(lines: &[VariationLine]) -> Vec<Block> {
     ]
 }
 
+/// How each text variable held as codes spreads over its rows.
+fn text_blocks(lines: &[VariationLine]) -> Vec<Block> {
+    let rows: Vec<Vec<String>> = lines
+        .iter()
+        .filter_map(|v| {
+            let t = v.text_values.as_ref()?;
+            Some(vec![
+                v.variable.clone(),
+                v.n.to_string(),
+                t.distinct.to_string(),
+                t.most_common.clone(),
+                format!(
+                    "{:.1}%",
+                    100.0 * t.most_common_rows as f64 / v.n.max(1) as f64
+                ),
+            ])
+        })
+        .collect();
+    if rows.is_empty() {
+        return Vec::new();
+    }
+    vec![
+        Block::Table(
+            strings(&[
+                "text variable",
+                "n",
+                "distinct values",
+                "most common",
+                "its share of n",
+            ]),
+            rows,
+        ),
+        Block::Note(
+            "Text whose values repeat (held as codes); a column whose values nearly all differ, \
+             such as a name, is not counted."
+                .into(),
+        ),
+    ]
+}
+
 fn absorbed(read: &Figures) -> Section {
     let words = |a: Absorbed| match a {
         Absorbed::Entity => "entity effects (no change within any entity)",
@@ -434,6 +476,7 @@ fn line(core: &PanelCore, variable: &str, x: &Values, q: Pooled, nearly: f64) ->
     VariationLine {
         variable: variable.to_string(),
         spread: spread(q),
+        text_values: None,
         n: m.n,
         mean: finite(m.mean),
         sd_total: finite(sd(m.tss)),
@@ -519,6 +562,10 @@ pub(super) fn categorical(ctx: &Context) -> Result<Vec<VariationLine>> {
             two_way_share: None,
             zero_within_entities: 0,
             spread: None,
+            text_values: match &compared {
+                Compared::Codes(codes) => most_common(codes, column)?,
+                Compared::Text(_) => None,
+            },
             absorbed_by,
             nearly_absorbed: false,
             not_computable: None,
@@ -534,6 +581,38 @@ pub(super) fn categorical(ctx: &Context) -> Result<Vec<VariationLine>> {
 
 /// A non-numeric variable as [`categorical`] compares it: text held as codes by its codes,
 /// anything else as text.
+/// The distinct values of a column held as `codes` and the most common one (of those tied,
+/// the one met first), from one pass over the codes; none without a value.
+fn most_common(codes: &UInt32Chunked, column: &Column) -> Result<Option<TextValues>> {
+    // Per code: its rows and the first row holding it.
+    let (mut rows, mut first): (Vec<u64>, Vec<usize>) = (Vec::new(), Vec::new());
+    for (r, c) in codes.iter().enumerate() {
+        let Some(c) = c.map(|c| c as usize) else {
+            continue;
+        };
+        if c >= rows.len() {
+            rows.resize(c + 1, 0);
+            first.resize(c + 1, usize::MAX);
+        }
+        rows[c] += 1;
+        first[c] = first[c].min(r);
+    }
+    let best = (0..rows.len())
+        .filter(|c| rows[*c] > 0)
+        .max_by(|a, b| rows[*a].cmp(&rows[*b]).then(first[*b].cmp(&first[*a])));
+    let Some(best) = best else {
+        return Ok(None);
+    };
+    Ok(Some(TextValues {
+        distinct: rows.iter().filter(|n| **n > 0).count() as u64,
+        most_common: column
+            .as_materialized_series()
+            .str_value(first[best])?
+            .into_owned(),
+        most_common_rows: rows[best],
+    }))
+}
+
 enum Compared {
     Codes(UInt32Chunked),
     Text(Column),

@@ -52,8 +52,20 @@ def grunfeld_age(out):
     g.to_csv(out, index=False, float_format="%.10g")
 
 
-def check_variation(df, entity, period, report):
+def check_variation(df, entity, period, report, expect_text=False):
     lines = {v["variable"]: v for v in report["variation"]}
+    # Text variables: pandas' nunique and value_counts (missing values left out); the most
+    # common value is one holding the most rows.
+    text = [n for n, l in lines.items() if "distinct" in l and n in df.columns]
+    if expect_text:  # the demo panel has sector, region and year-end dates as text
+        same("text variables counted", True, len(text) >= 2)
+    for name in text:
+        line = lines[name]
+        counts = df[name].dropna().astype(str).value_counts()
+        same(f"variation.{name}.distinct", int(counts.size), line["distinct"])
+        same(f"variation.{name}.most_common_rows", int(counts.iloc[0]), line["most_common_rows"])
+        same(f"variation.{name}.most_common holds them", int(counts.iloc[0]),
+             int(counts.get(line["most_common"], -1)))
     for name, line in lines.items():
         if line["sd_total"] is None:
             continue
@@ -191,7 +203,7 @@ def main():
         df = assemble.with_joins(df, raw_path, entity, period)
     if "age" in derived:
         df["age"] = df[period] - df["founded"]  # the Grunfeld check's invented firm age
-    check_variation(df, entity, period, report)
+    check_variation(df, entity, period, report, expect_text=planted is not None)
     check_missing(df, report)
     check_outliers(df, report)
     check_slips_and_rules(df, entity, period, report, planted)

@@ -58,6 +58,10 @@ pub struct VariationLine {
     /// value; absent for text variables and a variable without values.
     #[serde(skip_serializing_if = "Option::is_none", flatten)]
     pub spread: Option<Spread>,
+    /// A text variable held as codes: how many distinct values and the most common one;
+    /// absent for numbers and for text whose values nearly all differ (not held as codes).
+    #[serde(skip_serializing_if = "Option::is_none", flatten)]
+    pub text_values: Option<TextValues>,
     /// The effects that absorb the variable, if any.
     pub absorbed_by: Option<Absorbed>,
     /// Within share below the `nearly_absorbed` threshold: fixed-effects estimates will be
@@ -83,6 +87,17 @@ pub struct Spread {
     pub p75: f64,
     /// The largest value.
     pub max: f64,
+}
+
+/// How a text variable's values are spread over its rows.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct TextValues {
+    /// Distinct values (missing not counted).
+    pub distinct: u64,
+    /// The value in the most rows (of those tied, the one met first in the panel's order).
+    pub most_common: String,
+    /// Rows holding it.
+    pub most_common_rows: u64,
 }
 
 /// The missing-values check's figures.
