@@ -312,27 +312,30 @@ fn spread_blocks(lines: &[VariationLine]) -> Vec<Block> {
             ])
         })
         .collect();
+    table_with_note(
+        &[
+            "variable",
+            "n",
+            "smallest",
+            "25th percentile",
+            "median",
+            "75th percentile",
+            "largest",
+        ],
+        rows,
+        "Over each variable's non-missing rows; percentiles by linear interpolation \
+         (Hyndman-Fan type 7).",
+    )
+}
+
+/// A table and the note beneath it; nothing without rows.
+fn table_with_note(header: &[&str], rows: Vec<Vec<String>>, note: &str) -> Vec<Block> {
     if rows.is_empty() {
         return Vec::new();
     }
     vec![
-        Block::Table(
-            strings(&[
-                "variable",
-                "n",
-                "smallest",
-                "25th percentile",
-                "median",
-                "75th percentile",
-                "largest",
-            ]),
-            rows,
-        ),
-        Block::Note(
-            "Over each variable's non-missing rows; percentiles by linear interpolation \
-             (Hyndman-Fan type 7)."
-                .into(),
-        ),
+        Block::Table(strings(header), rows),
+        Block::Note(note.into()),
     ]
 }
 
@@ -354,26 +357,18 @@ fn text_blocks(lines: &[VariationLine]) -> Vec<Block> {
             ])
         })
         .collect();
-    if rows.is_empty() {
-        return Vec::new();
-    }
-    vec![
-        Block::Table(
-            strings(&[
-                "text variable",
-                "n",
-                "distinct values",
-                "most common",
-                "its share of n",
-            ]),
-            rows,
-        ),
-        Block::Note(
-            "Text whose values repeat (held as codes); a column whose values nearly all differ, \
-             such as a name, is not counted."
-                .into(),
-        ),
-    ]
+    table_with_note(
+        &[
+            "text variable",
+            "n",
+            "distinct values",
+            "most common",
+            "its share of n",
+        ],
+        rows,
+        "Text whose values repeat (held as codes); a column whose values nearly all differ, \
+         such as a name, is not counted.",
+    )
 }
 
 fn absorbed(read: &Figures) -> Section {
