@@ -12,6 +12,7 @@ mod missing;
 pub mod model;
 mod outliers;
 mod robust_z;
+mod spread;
 mod unit_slips;
 mod variation;
 pub mod verdict;

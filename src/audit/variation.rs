@@ -5,13 +5,14 @@
 
 use polars::prelude::*;
 
+use super::spread::{most_common, spread, spread_blocks, text_blocks};
 use super::verdict::{self, counted, level_key, worst, CheckVerdict, LevelKey, Levels, Status};
 use super::{own, Check, Context, Pooled};
 use crate::core::{in_batches, PanelCore, Values};
 use crate::report::layout::{opt, opt_level, strings, Block, Section};
 use crate::report::{
-    Absorbed, Finding, Report, Spread, TextValues, ToJson, VariationFigures as Figures,
-    VariationLine, VARIATION_CONVENTION,
+    Absorbed, Finding, Report, ToJson, VariationFigures as Figures, VariationLine,
+    VARIATION_CONVENTION,
 };
 use crate::Result;
 
@@ -294,83 +295,6 @@ fn variation_blocks(lines: &[VariationLine]) -> Vec<Block> {
     blocks
 }
 
-/// Where each numeric variable's values lie: the table a paper's descriptive statistics
-/// start from.
-fn spread_blocks(lines: &[VariationLine]) -> Vec<Block> {
-    let rows: Vec<Vec<String>> = lines
-        .iter()
-        .filter_map(|v| {
-            let s = v.spread?;
-            Some(vec![
-                v.variable.clone(),
-                v.n.to_string(),
-                opt_level(Some(s.min)),
-                opt_level(Some(s.p25)),
-                opt_level(Some(s.median)),
-                opt_level(Some(s.p75)),
-                opt_level(Some(s.max)),
-            ])
-        })
-        .collect();
-    table_with_note(
-        &[
-            "variable",
-            "n",
-            "smallest",
-            "25th percentile",
-            "median",
-            "75th percentile",
-            "largest",
-        ],
-        rows,
-        "Over each variable's non-missing rows; percentiles by linear interpolation \
-         (Hyndman-Fan type 7).",
-    )
-}
-
-/// A table and the note beneath it; nothing without rows.
-fn table_with_note(header: &[&str], rows: Vec<Vec<String>>, note: &str) -> Vec<Block> {
-    if rows.is_empty() {
-        return Vec::new();
-    }
-    vec![
-        Block::Table(strings(header), rows),
-        Block::Note(note.into()),
-    ]
-}
-
-/// How each text variable held as codes spreads over its rows.
-fn text_blocks(lines: &[VariationLine]) -> Vec<Block> {
-    let rows: Vec<Vec<String>> = lines
-        .iter()
-        .filter_map(|v| {
-            let t = v.text_values.as_ref()?;
-            Some(vec![
-                v.variable.clone(),
-                v.n.to_string(),
-                t.distinct.to_string(),
-                t.most_common.clone(),
-                format!(
-                    "{:.1}%",
-                    100.0 * t.most_common_rows as f64 / v.n.max(1) as f64
-                ),
-            ])
-        })
-        .collect();
-    table_with_note(
-        &[
-            "text variable",
-            "n",
-            "distinct values",
-            "most common",
-            "its share of n",
-        ],
-        rows,
-        "Text whose values repeat (held as codes); a column whose values nearly all differ, \
-         such as a name, is not counted.",
-    )
-}
-
 fn absorbed(read: &Figures) -> Section {
     let words = |a: Absorbed| match a {
         Absorbed::Entity => "entity effects (no change within any entity)",
@@ -490,28 +414,6 @@ fn line(core: &PanelCore, variable: &str, x: &Values, q: Pooled, nearly: f64) ->
     }
 }
 
-/// A variable's extremes and quartiles, from its pooled quantiles `q`; none without values,
-/// or should one not be a finite number.
-fn spread(q: Pooled) -> Option<Spread> {
-    let spread = Spread {
-        min: q.min?,
-        p25: q.p25?,
-        median: q.median?,
-        p75: q.p75?,
-        max: q.max?,
-    };
-    [
-        spread.min,
-        spread.p25,
-        spread.median,
-        spread.p75,
-        spread.max,
-    ]
-    .iter()
-    .all(|v| v.is_finite())
-    .then_some(spread)
-}
-
 /// Text and other non-numeric variables: only whether each entity (or each period) holds
 /// a single value, which makes the variable's dummies absorbed by those effects. One pass over
 /// the sorted panel per variable for entities; periods by the panel core's codes.
@@ -576,38 +478,6 @@ pub(super) fn categorical(ctx: &Context) -> Result<Vec<VariationLine>> {
 
 /// A non-numeric variable as [`categorical`] compares it: text held as codes by its codes,
 /// anything else as text.
-/// The distinct values of a column held as `codes` and the most common one (of those tied,
-/// the one met first), from one pass over the codes; none without a value.
-fn most_common(codes: &UInt32Chunked, column: &Column) -> Result<Option<TextValues>> {
-    // Per code: its rows and the first row holding it.
-    let (mut rows, mut first): (Vec<u64>, Vec<usize>) = (Vec::new(), Vec::new());
-    for (r, c) in codes.iter().enumerate() {
-        let Some(c) = c.map(|c| c as usize) else {
-            continue;
-        };
-        if c >= rows.len() {
-            rows.resize(c + 1, 0);
-            first.resize(c + 1, usize::MAX);
-        }
-        rows[c] += 1;
-        first[c] = first[c].min(r);
-    }
-    let best = (0..rows.len())
-        .filter(|c| rows[*c] > 0)
-        .max_by(|a, b| rows[*a].cmp(&rows[*b]).then(first[*b].cmp(&first[*a])));
-    let Some(best) = best else {
-        return Ok(None);
-    };
-    Ok(Some(TextValues {
-        distinct: rows.iter().filter(|n| **n > 0).count() as u64,
-        most_common: column
-            .as_materialized_series()
-            .str_value(first[best])?
-            .into_owned(),
-        most_common_rows: rows[best],
-    }))
-}
-
 enum Compared {
     Codes(UInt32Chunked),
     Text(Column),

@@ -351,15 +351,12 @@ pub fn load(
         .collect();
     // A CSV cell a spreadsheet wrote as `="007"`: the text it holds, noted. Then a CSV column
     // of numbers with `NA`, `.` or `#N/A` for missing ones: numbers, noted.
-    let (df, formulas) = if cfg.format == InputFormat::Csv {
-        formula::formula_text(df, Some(ROW))?
+    let (df, formulas, marked) = if cfg.format == InputFormat::Csv {
+        let (df, formulas) = formula::formula_text(df, Some(ROW))?;
+        let (df, marked) = markers::numbers_with_markers(df, &keys, cfg.csv.decimal_comma)?;
+        (df, formulas, marked)
     } else {
-        (df, Vec::new())
-    };
-    let (df, marked) = if cfg.format == InputFormat::Csv {
-        markers::numbers_with_markers(df, &keys, cfg.csv.decimal_comma)?
-    } else {
-        (df, Vec::new())
+        (df, Vec::new(), Vec::new())
     };
     let (df, columns, year_end_changes) = match &cfg.rules.file.panel.year_end {
         Some(date) => {
