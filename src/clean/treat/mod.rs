@@ -296,10 +296,22 @@ impl Treatment {
                 .drop(cols([lo, hi, below, above]))
                 .collect()?;
         }
-        let (out, removed) = self.finish(current, k)?;
         let lines = self.lines(&cutoffs, &counts, k, histograms)?;
+        self.treated(current, k, lines, changed)
+    }
+
+    /// What either path hands back: the panel `current` finished (trimmed rows to the
+    /// ledger), the treatment's lines and the ledger parts of the values it changed.
+    fn treated(
+        &self,
+        current: DataFrame,
+        k: &Keys,
+        lines: Vec<TreatLine>,
+        changed: Vec<LedgerPart>,
+    ) -> Result<Treated> {
+        let (panel, removed) = self.finish(current, k)?;
         Ok(Treated {
-            panel: out,
+            panel,
             removed,
             lines,
             changed,
@@ -523,14 +535,8 @@ impl Treatment {
             .filter(|(_, moved)| !moved.rows.is_empty())
             .map(|((v, was), moved)| ledger_part(&current, k, (v, was), moved))
             .collect::<Result<_>>()?;
-        let (out, removed) = self.finish(current, k)?;
         let lines = self.lines(&cutoffs, &counts, k, histograms)?;
-        Ok(Treated {
-            panel: out,
-            removed,
-            lines,
-            changed,
-        })
+        self.treated(current, k, lines, changed)
     }
 }
 
