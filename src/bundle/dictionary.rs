@@ -69,20 +69,22 @@ pub(super) fn parquet_labels(
     KeyValueMetadata::from_static(kv)
 }
 
-/// The data dictionary as Markdown: one row per column of the cleaned panel.
+/// The data dictionary as Markdown: one row per column of the cleaned panel, then where each
+/// column's values lie in it.
 pub(super) fn dictionary_md(entries: &[crate::pipeline::DictionaryEntry]) -> String {
     let cell = |s: &str| s.replace('|', "\\|");
     let mut out = String::from(
         "# Data dictionary\n\nOne row per column of `panel.csv` / `panel.parquet`.\n\n\
          Cutoffs are rounded for reading; report.json has them in full precision.\n\n\
-         | variable | label | definition | unit | source | missing in the cleaned panel | values changed by `build` |\n\
-         |---|---|---|---|---|---:|---|\n",
+         | variable | type | label | definition | unit | source | missing in the cleaned panel | values changed by `build` |\n\
+         |---|---|---|---|---|---|---:|---|\n",
     );
     for e in entries {
         out.push_str(&format!(
-            "| `{}` | {} | {} | {} | {} | {} | {} |\n",
+            "| `{}` | {} | {} | {} | {} | {} | {} | {} |\n",
             // A pipe splits a table's cell even inside backticks (GitHub's table syntax).
             cell(&e.name),
+            e.kind,
             cell(&e.label),
             cell(&e.definition),
             cell(&e.unit),
@@ -91,6 +93,63 @@ pub(super) fn dictionary_md(entries: &[crate::pipeline::DictionaryEntry]) -> Str
                 .map_or("–".into(), |s| format!("{:.1}%", s * 100.0)),
             cell(&e.treatment),
         ));
+    }
+    let level = crate::report::level;
+    let numbers: Vec<String> = entries
+        .iter()
+        .filter_map(|e| {
+            let v = e.values.as_ref()?;
+            let s = v.spread?;
+            Some(format!(
+                "| `{}` | {} | {} | {} | {} | {} | {} |\n",
+                cell(&e.name),
+                v.n,
+                level(s.min),
+                level(s.p25),
+                level(s.median),
+                level(s.p75),
+                level(s.max)
+            ))
+        })
+        .collect();
+    if !numbers.is_empty() {
+        out.push_str(
+            "\n## Where the values lie in the cleaned panel\n\n\
+             | variable | n | smallest | 25th percentile | median | 75th percentile | largest |\n\
+             |---|---:|---:|---:|---:|---:|---:|\n",
+        );
+        out.extend(numbers);
+        out.push_str(
+            "\nOver each variable's non-missing rows; percentiles by linear interpolation \
+             (Hyndman-Fan type 7); to four significant digits (dictionary.json holds them in \
+             full).\n",
+        );
+    }
+    let text: Vec<String> = entries
+        .iter()
+        .filter_map(|e| {
+            let v = e.values.as_ref()?;
+            let t = v.text.as_ref()?;
+            Some(format!(
+                "| `{}` | {} | {} | {} | {:.1}% |\n",
+                cell(&e.name),
+                v.n,
+                t.distinct,
+                cell(&t.most_common),
+                100.0 * t.most_common_rows as f64 / v.n.max(1) as f64
+            ))
+        })
+        .collect();
+    if !text.is_empty() {
+        out.push_str(
+            "\n| text variable | n | distinct values | most common | its share of n |\n\
+             |---|---:|---:|---|---:|\n",
+        );
+        out.extend(text);
+        out.push_str(
+            "\nText whose values repeat; a column whose values nearly all differ, such as a \
+             name, is not counted.\n",
+        );
     }
     out
 }

@@ -58,6 +58,19 @@ pub(super) fn dictionary(
         .get::<crate::report::MissingFigures>()
         .map_or(&[][..], |f| &f.lines);
     let missing = |name: &str| lines.iter().find(|m| m.variable == name).map(|m| m.share);
+    // Where values lie: the Variation section's lines for the cleaned panel.
+    let variation = findings
+        .get::<VariationFigures>()
+        .map_or(&[][..], |f| &f.lines);
+    let values = |name: &str| {
+        let line = variation.iter().find(|l| l.variable == name)?;
+        (line.spread.is_some() || line.text_values.is_some()).then(|| ColumnValues {
+            n: line.n,
+            spread: line.spread,
+            text: line.text_values.clone(),
+        })
+    };
+    let schema = crate::core::spelled_out_schema(panel.schema());
     Ok(panel
         .get_column_names()
         .iter()
@@ -152,6 +165,8 @@ pub(super) fn dictionary(
             };
             DictionaryEntry {
                 missing_share: missing(&name),
+                kind: schema.get(&name).map_or_else(String::new, kind),
+                values: values(&name),
                 label: derived.map(|d| d.label.clone()).unwrap_or_default(),
                 name,
                 definition,
@@ -161,4 +176,17 @@ pub(super) fn dictionary(
             }
         })
         .collect())
+}
+
+/// A column's type in words, for readers who do not know the engine's names.
+fn kind(dtype: &DataType) -> String {
+    match dtype {
+        d if d.is_integer() => "whole number".into(),
+        d if d.is_float() => "number".into(),
+        DataType::String => "text".into(),
+        DataType::Boolean => "yes/no".into(),
+        DataType::Date => "date".into(),
+        DataType::Datetime(..) => "date and time".into(),
+        d => d.to_string(),
+    }
 }

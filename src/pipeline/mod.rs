@@ -107,6 +107,26 @@ pub struct DictionaryEntry {
     pub missing_share: Option<f64>,
     /// Outlier treatment and accounting-rule nulls applied, in words.
     pub treatment: String,
+    /// Its type in the panel, in words (`whole number`, `number`, `text`, `date`, ...).
+    #[serde(rename = "type")]
+    pub kind: String,
+    /// Where its values lie in the cleaned panel, for a variable the checks describe (not the
+    /// keys or `source_row`; not text whose values nearly all differ).
+    pub values: Option<ColumnValues>,
+}
+
+/// Where a column's values lie in the cleaned panel: a number's extremes and quartiles, a
+/// text's distinct values and most common one (the Variation section's figures).
+#[derive(Debug, Clone, serde::Serialize)]
+pub struct ColumnValues {
+    /// Rows with a value.
+    pub n: u64,
+    /// The smallest value, the quartiles and the largest value (numbers).
+    #[serde(flatten, skip_serializing_if = "Option::is_none")]
+    pub spread: Option<crate::report::Spread>,
+    /// Distinct values and the most common one (text held as codes).
+    #[serde(flatten, skip_serializing_if = "Option::is_none")]
+    pub text: Option<crate::report::TextValues>,
 }
 
 /// Run the pipeline on one input: the stages in order, each in its own module.

@@ -12,7 +12,8 @@
       appeared; the change ledger must list exactly those cells.
   handoff.py parquet BUNDLE
       reads panel.parquet's key-value metadata with pyarrow: each column's entry must equal
-      dictionary.json's, and the labels must be the rules' labels.
+      dictionary.json's, and the labels must be the rules' labels; each entry's type and
+      where the column's values lie, recomputed from panel.parquet with pyarrow and pandas.
   handoff.py xlsx CSV XLSX
       writes the CSV as a spreadsheet with openpyxl (numbers as numbers, one sheet "panel").
   handoff.py groups BUNDLE
@@ -161,6 +162,55 @@ def parquet(bundle):
     labels = {e["name"]: e["label"] for e in dictionary["columns"]}
     # rules/standard.toml's label for size.
     check("size label", labels["size"] == "Firm size: natural log of total assets", labels["size"])
+    dictionary_values(bundle, dictionary)
+
+
+def dictionary_values(bundle, dictionary):
+    """Each column's type and where its values lie, recomputed from panel.parquet with pyarrow
+    (the type) and pandas: a number's count, min, quantiles (linear interpolation, pandas'
+    default: Hyndman & Fan 1996 type 7) and max over the non-missing values; a text's count,
+    distinct values and most common value (of those tied, the first met in the file's order)."""
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    table = pq.read_table(f"{bundle}/panel.parquet")
+    panel = table.to_pandas()
+    keys = {"source_row", "firm_id", "fiscal_year"}
+    numbers = texts = 0
+    for entry in dictionary["columns"]:
+        name, values = entry["name"], entry["values"]
+        t = table.schema.field(name).type
+        want = ("whole number" if pa.types.is_integer(t) else
+                "number" if pa.types.is_floating(t) else
+                "text" if pa.types.is_string(t) or pa.types.is_large_string(t)
+                or pa.types.is_string_view(t) else str(t))
+        check(f"{name} type", entry["type"] == want, (entry["type"], want))
+        x = panel[name].dropna()
+        if name in keys:
+            check(f"{name} no values", values is None, values)
+            continue
+        check(f"{name} has values", values is not None)
+        if values is None:
+            continue
+        check(f"{name} n", values["n"] == len(x), (values["n"], len(x)))
+        if entry["type"] == "text":
+            counts = x.value_counts(sort=False)
+            tied = counts[counts == counts.max()].index
+            first = x[x.isin(tied)].iloc[0]
+            check(f"{name} distinct", values["distinct"] == len(counts), (values["distinct"], len(counts)))
+            check(f"{name} most common", values["most_common"] == first, (values["most_common"], first))
+            check(f"{name} most common rows", values["most_common_rows"] == counts.max())
+            texts += 1
+            continue
+        x = x.astype("float64")
+        want = {"min": x.min(), "p25": x.quantile(0.25), "median": x.quantile(0.5),
+                "p75": x.quantile(0.75), "max": x.max()}
+        for k, w in want.items():
+            check(f"{name} {k}", bool(np.isclose(values[k], float(w), rtol=1e-12, atol=1e-15)),
+                  (values[k], w))
+        numbers += 1
+    check("dictionary numbers", numbers >= 20, numbers)
+    check("dictionary texts", texts >= 3, texts)
 
 
 def xlsx(csv_path, xlsx_path):
