@@ -1484,8 +1484,8 @@ fn derived_numbers_that_are_not_finite_are_missing_with_their_reason() {
 }
 
 /// A CSV file written by a program that marks a missing number with a word or a sign (`NA`
-/// from R, `.` from Stata, `#N/A` from a spreadsheet): the column is numbers with those cells
-/// missing, not text that every check passes by, and the input notes say so. Worked by hand:
+/// or `.` from statistics programs, `#N/A` from a spreadsheet): the column is numbers with
+/// those cells missing, not text that every check passes by, and the input notes say so. Worked by hand:
 /// `sales` 1.5, 3, 4.5, 2, 3 and one `NA` — mean 14 / 5 = 2.8, one missing of six; `staff`
 /// whole numbers with a `.` and a `#N/A`; `code` text holding `NA` (a region code) stays text.
 #[test]
@@ -1562,6 +1562,33 @@ fn numbers_written_for_people_are_numbers() {
         report["input"]["notes"][0],
         "column `margin` stays text: most of its first values are numbers, but data row 2 \
          holds `13%`, which is not one"
+    );
+}
+
+/// Digits grouped by spaces or apostrophes, as European exports write them, are numbers; they
+/// were text, silently: the report said "No numeric variables". A column of amounts each with
+/// a currency sign stays text, now with a note that names its first cell. Worked by hand:
+/// assets mean (1,234.5 + 2,000 + 3,000 + 10,000) / 4 = 4,058.625.
+#[test]
+fn digits_grouped_by_spaces_are_numbers_and_signed_amounts_are_noted() {
+    let (report, _) = audit_csv(
+        "firm,year,assets,price\nA,2001,1 234.5,$5\nA,2002,2\u{a0}000,$6\nB,2001,3'000,$7\nB,2002,10 000,$8\n",
+    );
+    let assets = &report["variation"][0];
+    assert_eq!(assets["variable"], "assets");
+    assert!(
+        (assets["mean"].as_f64().unwrap() - 4058.625).abs() < 1e-12,
+        "{assets}"
+    );
+    assert_eq!(
+        report["input"]["notes"],
+        serde_json::json!([
+            "column `assets`: 4 cells with thousands separators (the first `1 234.5`), the \
+             column as numbers",
+            "column `price` stays text: its values are numbers written with a currency or \
+             percent sign (data row 1 holds `$5`); take the sign out in the file (and say in a \
+             label what the unit is) to use them as numbers"
+        ])
     );
 }
 

@@ -1,7 +1,8 @@
 //! Numbers written for people. Programs write a missing number into a CSV file as a word or
-//! a sign — `NA` (R), `.` (Stata, SAS), `nan` (Python), `#N/A` and `#DIV/0!` (spreadsheets),
+//! a sign — `NA`, `.`, `nan`, `#N/A` and `#DIV/0!` (spreadsheets),
 //! `NULL` (databases) — and spreadsheets export numbers as they show them, with thousands
-//! separators (`1,234.5`) and negative amounts in parentheses (`(1,234)`, accounts' way). The
+//! separators (`1,234.5`; `1 234,5` and `1'234.5` in European exports) and negative amounts
+//! in parentheses (`(1,234)`, accounts' way). The
 //! engine, meeting any of these, reads the whole column as text, which every check then passes
 //! by. A column whose cells are all numbers but for such cells is read as numbers (markers as
 //! missing), and the report's input notes say how many cells of each kind. A dash, which
@@ -209,15 +210,22 @@ fn plain(t: &str, decimal_comma: bool) -> Option<Number> {
     }
 }
 
+/// Thousands separators besides the comma (the point under `decimal_comma`), whichever the
+/// decimal mark: a space, a no-break space, a narrow no-break space and a thin space (the
+/// grouping ISO 80000-1 recommends, and what French and Nordic exports write), an apostrophe
+/// and a right single quotation mark (Swiss exports). Common practice.
+const OTHER_SEPARATORS: [char; 6] = [' ', '\u{a0}', '\u{202f}', '\u{2009}', '\'', '\u{2019}'];
+
 /// `t` as a number with thousands separators: a sign, then one to three digits and groups of
-/// exactly three after a separator (a comma; a point under `decimal_comma`), then perhaps the
-/// decimal point and digits (`-1,234,567.5`; `1.234,5`).
+/// exactly three after a separator (a comma, a point under `decimal_comma`, or one of
+/// [`OTHER_SEPARATORS`]; one kind in a number), then perhaps the decimal point and digits
+/// (`-1,234,567.5`; `1.234,5`; `1 234 567,5`; `1'234.5`).
 fn grouped(t: &str, decimal_comma: bool) -> Option<Number> {
-    let (separator, point) = if decimal_comma {
-        ('.', ',')
-    } else {
-        (',', '.')
-    };
+    let point = if decimal_comma { ',' } else { '.' };
+    let main = if decimal_comma { '.' } else { ',' };
+    let separator = t
+        .chars()
+        .find(|c| *c == main || OTHER_SEPARATORS.contains(c))?;
     let (sign, body) = match t.strip_prefix('-') {
         Some(rest) => ("-", rest),
         None => ("", t.strip_prefix('+').unwrap_or(t)),
@@ -243,6 +251,40 @@ fn grouped(t: &str, decimal_comma: bool) -> Option<Number> {
             .ok()
             .map(Number::Decimal),
     }
+}
+
+/// Signs that make a number an amount in a unit: currencies and the percent sign.
+const UNIT_SIGNS: [char; 5] = ['$', '€', '£', '¥', '%'];
+
+/// The data row and value of the first of `values` written with a currency or percent sign,
+/// when most of its first values are numbers once the sign is taken off (`$1,200`, `12%`,
+/// `-€5`) and some carry one; None otherwise. A guess at the unit would decide what the
+/// number means (a share or a percentage, which currency), so such a column is only noted.
+fn signed_amounts<'a>(values: &'a StringChunked, decimal_comma: bool) -> Option<(usize, &'a str)> {
+    let unsigned = |v: &str| -> Option<bool> {
+        let t = v.trim();
+        let (sign, body) = match t.strip_prefix('-') {
+            Some(rest) => ("-", rest.trim_start()),
+            None => ("", t),
+        };
+        let stripped = body
+            .trim_start_matches(UNIT_SIGNS)
+            .trim_end_matches(UNIT_SIGNS)
+            .trim();
+        let had_sign = stripped.len() != body.len();
+        let number = format!("{sign}{stripped}");
+        matches!(cell(Some(&number), decimal_comma), Some(Cell::Number(..))).then_some(had_sign)
+    };
+    let first: Vec<Option<bool>> = values.iter().flatten().take(LOOK).map(unsigned).collect();
+    let numbers = first.iter().filter(|c| c.is_some()).count();
+    let signed = first.iter().filter(|c| **c == Some(true)).count();
+    if signed == 0 || 2 * numbers < first.len() {
+        return None;
+    }
+    values
+        .iter()
+        .enumerate()
+        .find_map(|(i, v)| v.filter(|v| unsigned(v) == Some(true)).map(|v| (i + 1, v)))
 }
 
 /// `df` with each text column not in `keep` that holds numbers (plain, with thousands
@@ -299,6 +341,13 @@ pub(crate) fn numbers_with_markers(
                          data row {row} holds `{value}`, which is not one"
                     ));
                 }
+            } else if let Some((row, value)) = signed_amounts(&values, decimal_comma) {
+                notes.push(format!(
+                    "column `{name}` stays text: its values are numbers written with a currency \
+                     or percent sign (data row {row} holds `{}`); take the sign out in the file \
+                     (and say in a label what the unit is) to use them as numbers",
+                    shortened(value)
+                ));
             }
             continue;
         };
@@ -507,6 +556,75 @@ mod tests {
         let (df, _) = numbers_with_markers(df, &[], true).unwrap();
         assert_eq!(floats(&df, "x"), [Some(1234.5), Some(2.0)]);
         assert_eq!(floats(&df, "y"), [Some(1.234), None]);
+    }
+
+    /// Worked by hand: digits grouped by spaces (a plain one, a no-break one, a narrow
+    /// no-break one, as ISO 80000-1 and French or Nordic exports write them) or by an
+    /// apostrophe (Swiss exports), with a decimal point or, under a decimal comma, a comma.
+    /// Two kinds in one number (`1,234 567`), a group of other than three digits (`12 34`),
+    /// a first group of four (`1234 567`) or two numbers side by side (`2001 2002`) keep a
+    /// column text.
+    #[test]
+    fn digits_grouped_by_spaces_or_apostrophes_are_numbers() {
+        let df = df!(
+            "a" => ["1 234.5", "2\u{a0}000", "3", "-1\u{202f}234\u{202f}567"],
+            "b" => ["1'234", "12'345'678", "NA", "(1'000)"],
+            "m" => ["1,234 567", "5", "6", "7"],
+            "n" => ["12 34", "5", "6", "7"],
+            "f" => ["1234 567", "5", "6", "7"],
+            "y" => ["2001 2002", "5", "6", "7"],
+        )
+        .unwrap();
+        let (df, notes) = numbers_with_markers(df, &[], false).unwrap();
+        assert_eq!(
+            floats(&df, "a"),
+            [Some(1234.5), Some(2000.0), Some(3.0), Some(-1234567.0)]
+        );
+        assert_eq!(
+            wholes(&df, "b"),
+            [Some(1234), Some(12345678), None, Some(-1000)]
+        );
+        still_text(&df, &["m", "n", "f", "y"]);
+        assert_eq!(
+            notes[0],
+            "column `a`: 3 cells with thousands separators (the first `1 234.5`), the column \
+             as numbers"
+        );
+        let df = df!("x" => ["1 234,5", "2\u{2009}000,25", "7"]).unwrap();
+        let (df, _) = numbers_with_markers(df, &[], true).unwrap();
+        assert_eq!(floats(&df, "x"), [Some(1234.5), Some(2000.25), Some(7.0)]);
+    }
+
+    /// Worked by hand: a column of amounts each written with a currency sign (`$`, `€`
+    /// before or after, a minus before it) or a percent sign stays text, since the sign
+    /// decides the unit, and the note names its first such cell; one whose first values are
+    /// mostly words (`Docks`, `$5`) is not noted.
+    #[test]
+    fn amounts_with_currency_or_percent_signs_stay_text_and_are_noted() {
+        let df = df!(
+            "usd" => ["$1,200", "$5", "-$7.5", "NA"],
+            "eur" => ["12 €", "3€", "€4", "5"],
+            "pct" => ["12%", "5.5%", "-1%", "0%"],
+            "words" => ["Docks", "Mills", "Quay", "$5"],
+        )
+        .unwrap();
+        let (df, notes) = numbers_with_markers(df, &[], false).unwrap();
+        still_text(&df, &["usd", "eur", "pct", "words"]);
+        let sign = |name: &str, row: usize, value: &str| {
+            format!(
+                "column `{name}` stays text: its values are numbers written with a currency or \
+                 percent sign (data row {row} holds `{value}`); take the sign out in the file \
+                 (and say in a label what the unit is) to use them as numbers"
+            )
+        };
+        assert_eq!(
+            notes,
+            [
+                sign("usd", 1, "$1,200"),
+                sign("eur", 1, "12 €"),
+                sign("pct", 1, "12%"),
+            ]
+        );
     }
 
     /// Worked by hand: numbers padded with spaces, as fixed-width exports write them, or with
