@@ -29,8 +29,8 @@ pub type NotFinite = BTreeMap<String, Arc<AtomicU64>>;
 pub const INPUT_MISSING: &str = "an input is missing (or the earlier period is absent)";
 
 /// Why a derived number that is not finite is missing instead.
-pub const NOT_FINITE: &str =
-    "not a finite number (a division by zero, a logarithm of zero or less, an infinite input)";
+pub const NOT_FINITE: &str = "not a finite number (a division by zero, a logarithm of zero or \
+                              less, a square root of a negative number, an infinite input)";
 
 /// One derived variable, compiled.
 #[derive(Debug, Clone)]
