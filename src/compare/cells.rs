@@ -153,7 +153,12 @@ pub(super) fn changes(
 /// Whether each row's number changed beyond the tolerance (`|new − old| > abs + rel · |old|`)
 /// or appeared or vanished, as `compare`'s expressions for numbers compute it, both sides read
 /// as floating-point numbers.
-fn numbers_changed(old: &Column, new: &Column, abs: f64, rel: f64) -> Result<BooleanChunked> {
+pub(super) fn numbers_changed(
+    old: &Column,
+    new: &Column,
+    abs: f64,
+    rel: f64,
+) -> Result<BooleanChunked> {
     let (old, new) = (old.cast(&DataType::Float64)?, new.cast(&DataType::Float64)?);
     Ok(old
         .f64()?

@@ -5,7 +5,8 @@
 //! two vintages' keys in key order); then each shared column is gathered from both
 //! vintages in the matched order (read as it is where that is its own) and compared, one
 //! column at a time — a bundle's read from its panel.parquet then, its keys alone held
-//! throughout.
+//! throughout. A column removed whose values a column added holds is named beside it
+//! (`renamed.rs`).
 
 use std::path::Path;
 
@@ -22,8 +23,11 @@ use cells::{gather, Kind};
 mod cells;
 mod page;
 mod pairs;
+mod renamed;
 
 pub(crate) use page::page;
+pub use renamed::SameValues;
+use renamed::{same_values, Matched};
 
 /// One vintage as compared.
 #[derive(Debug, Clone, Serialize)]
@@ -91,6 +95,9 @@ pub struct Comparison {
     pub columns_added: Vec<String>,
     /// Columns only in the old vintage.
     pub columns_removed: Vec<String>,
+    /// A column only in the old vintage and one only in the new holding the same values on
+    /// every firm-year in both: perhaps one column renamed.
+    pub same_values: Vec<SameValues>,
     /// Every shared column.
     pub columns: Vec<ColumnChanges>,
     /// Whether any cell was compared: false when the vintages share no column besides the
@@ -404,6 +411,23 @@ pub fn compare(old: &Side, new: &Side, tolerance: &Tolerance) -> Result<(Compari
                 .all(|(i, r)| r as usize == i)
     };
     let (whole_old, whole_new) = (whole(&at_old, &old), whole(&at_new, &new));
+    let matched_old = Matched {
+        vintage: &old,
+        at: &at_old,
+        whole: whole_old,
+    };
+    let matched_new = Matched {
+        vintage: &new,
+        at: &at_new,
+        whole: whole_new,
+    };
+    let same_values = same_values(
+        &columns_removed,
+        &columns_added,
+        &matched_old,
+        &matched_new,
+        tolerance,
+    )?;
     let mut ledger = vec![
         row_event(&pairs, &e, &p, col("__io").is_null(), "firm-year added")?,
         row_event(&pairs, &e, &p, col("__in").is_null(), "firm-year removed")?,
@@ -413,19 +437,11 @@ pub fn compare(old: &Side, new: &Side, tolerance: &Tolerance) -> Result<(Compari
     // every column.
     let mut columns = Vec::with_capacity(shared.len());
     for (i, c) in shared.iter().enumerate() {
-        let gathered = |v: &Vintage, at: &IdxCa, whole: bool, tag: &str| -> Result<Column> {
-            let column = v.column(c)?;
-            let column = match whole {
-                true => column,
-                false => gather(&column, at)?,
-            };
-            Ok(column.with_name(tag.into()))
-        };
         let frame = DataFrame::new_infer_height(vec![
             matched.column(&e)?.clone(),
             matched.column(&p)?.clone(),
-            gathered(&old, &at_old, whole_old, "__o")?,
-            gathered(&new, &at_new, whole_new, "__n")?,
+            matched_old.column(c)?.with_name("__o".into()),
+            matched_new.column(c)?.with_name("__n".into()),
         ])?;
         let kind = kinds[i];
         let dtypes = (old_schema.get(c.as_str()), new_schema.get(c.as_str()));
@@ -474,6 +490,7 @@ pub fn compare(old: &Side, new: &Side, tolerance: &Tolerance) -> Result<(Compari
             entities_removed,
             columns_added,
             columns_removed,
+            same_values,
             columns,
             cells_checked,
             changed,

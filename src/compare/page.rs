@@ -133,6 +133,19 @@ pub(crate) fn page(c: &Comparison) -> Page {
             list(&c.columns_removed)
         )));
     }
+    if !c.same_values.is_empty() {
+        let pairs: Vec<String> = c
+            .same_values
+            .iter()
+            .map(|s| format!("`{}` (old) as `{}` (new)", s.old, s.new))
+            .collect();
+        cells.push(Block::Note(format!(
+            "The same values under another name, on every firm-year in both (missing in the \
+             same ones, numbers within the tolerance): {}. Perhaps renamed; if so, these \
+             cells did not change.",
+            pairs.join("; ")
+        )));
+    }
     let overrides: Vec<String> = c
         .tolerance
         .by_column

@@ -4,12 +4,13 @@
       writes OUTDIR/old.csv (the demo bundle's cleaned panel without `source_row`) and
       OUTDIR/new.csv: a seeded copy with firm-years removed and added, a whole firm removed,
       numbers changed (some within, some beyond the tolerance the test passes), text changed,
-      values blanked and filled.
+      values blanked and filled, two columns renamed and one copied under a new name.
   handoff.py compare OUTDIR SUMMARY_JSON CHANGES_CSV
       recounts with pandas what `compare` reports: firm-years and entities added and removed,
       and per column the cells changed beyond |new - old| > abs + rel * |old| (abs 0,
       rel 1e-6, revenue abs 10, the options the test passes), values that vanished or
-      appeared; the change ledger must list exactly those cells.
+      appeared; the change ledger must list exactly those cells; and the columns only in one
+      vintage that hold another's values under a new name.
   handoff.py parquet BUNDLE
       reads panel.parquet's key-value metadata with pyarrow: each column's entry must equal
       dictionary.json's, and the labels must be the rules' labels; each entry's type and
@@ -83,6 +84,11 @@ def perturb(panel_csv, outdir):
     new.loc[idx[37:39], "op_profit"] = np.nan
     blank = new.index[new["rnd_spend"].isna()][:1]
     new.loc[blank, "rnd_spend"] = 12.5
+    # Two columns renamed, their values kept (a provider's new field names), and a copy of a
+    # column both vintages keep under a new name: only the renamed pairs hold a removed
+    # column's values.
+    new = new.rename(columns={"region": "area", "cur_assets": "current_assets"})
+    new["debt_short_copy"] = new["debt_short"]
     old.to_csv(f"{outdir}/old.csv", index=False)
     new.to_csv(f"{outdir}/new.csv", index=False)
     # The same two vintages with the new one's rows in key order, as bundles and many exports
@@ -112,7 +118,7 @@ def compare(outdir, summary_json, changes_csv):
     both = m[m["_merge"] == "both"]
     by_col = {c["column"]: c for c in summary["columns"]}
     expected_cells = set()
-    for c in [c for c in old.columns if c not in keys]:
+    for c in [c for c in old.columns if c not in keys and c in new.columns]:
         o, n = both[f"{c}__o"], both[f"{c}__n"]
         presence = o.isna() != n.isna()
         if pd.api.types.is_numeric_dtype(o) and pd.api.types.is_numeric_dtype(n):
@@ -127,6 +133,33 @@ def compare(outdir, summary_json, changes_csv):
         check(f"{c}: became present", int((o.isna() & n.notna()).sum()) == by_col[c]["became_present"])
         for _, r in both[changed].iterrows():
             expected_cells.add((r["firm_id"], int(r["fiscal_year"]), c))
+    # Columns only in one vintage holding the same values on every firm-year in both (missing
+    # alike, numbers within the tolerance, text equal), values that vary; each column paired
+    # once, a removed column with the first added one that matches.
+    removed_cols = [c for c in old.columns if c not in keys and c not in new.columns]
+    added_cols = [c for c in new.columns if c not in keys and c not in old.columns]
+    same, taken = [], set()
+    for r in removed_cols:
+        o = both[r]
+        for a in added_cols:
+            n = both[a]
+            if a in taken or o.nunique() < 2 or not (o.isna() == n.isna()).all():
+                continue
+            if pd.api.types.is_numeric_dtype(o) and pd.api.types.is_numeric_dtype(n):
+                tol_abs = 10.0 if r == "revenue" else 0.0
+                alike = ((n - o).abs() <= tol_abs + 1e-6 * o.abs())[o.notna()].all()
+            elif pd.api.types.is_numeric_dtype(o) or pd.api.types.is_numeric_dtype(n):
+                alike = False
+            else:
+                alike = (o.astype(str) == n.astype(str)).all()
+            if alike:
+                same.append((r, a))
+                taken.add(a)
+                break
+    got = [(p["old"], p["new"]) for p in summary["same_values"]]
+    check("same values under another name", got == same, (got, same))
+    check("renamed pairs planted", same == [("region", "area"), ("cur_assets", "current_assets")],
+          same)
     # Planted changes are found: 10 revenue changes beyond 10, none of the 10 below it; 5
     # large asset changes, none of the 10 tiny ones.
     check("revenue beyond tolerance", by_col["revenue"]["cells_changed"] == 10)
