@@ -70,6 +70,7 @@ pub(super) fn text_blocks(lines: &[VariationLine]) -> Vec<Block> {
                     "{:.1}%",
                     100.0 * t.most_common_rows as f64 / v.n.max(1) as f64
                 ),
+                t.entities_changing.to_string(),
             ])
         })
         .collect();
@@ -80,10 +81,12 @@ pub(super) fn text_blocks(lines: &[VariationLine]) -> Vec<Block> {
             "distinct values",
             "most common",
             "its share of n",
+            "entities whose value changes",
         ],
         rows,
         "Text whose values repeat (held as codes); a column whose values nearly all differ, \
-         such as a name, is not counted.",
+         such as a name, is not counted. An entity's value changes when it holds two or more \
+         different values over its periods (an industry reclassified, say), missing ones aside.",
     )
 }
 
@@ -110,14 +113,32 @@ pub(super) fn spread(q: Pooled) -> Option<Spread> {
 }
 
 /// The distinct values of a column held as `codes` and the most common one (of those tied,
-/// the one met first), from one pass over the codes; none without a value.
-pub(super) fn most_common(codes: &UInt32Chunked, column: &Column) -> Result<Option<TextValues>> {
+/// the one met first), and the entities holding two or more different values (the rows of
+/// entity i are `starts[i]..starts[i + 1]`, missing values aside), from one pass over the
+/// codes; none without a value.
+pub(super) fn most_common(
+    codes: &UInt32Chunked,
+    column: &Column,
+    starts: &[usize],
+) -> Result<Option<TextValues>> {
     // Per code: its rows and the first row holding it.
     let (mut rows, mut first): (Vec<u64>, Vec<usize>) = (Vec::new(), Vec::new());
+    // The entity's first value, whether another followed, and the entities that changed.
+    let (mut next, mut seen, mut changed, mut changing) = (1, None, false, 0u64);
     for (r, c) in codes.iter().enumerate() {
-        let Some(c) = c.map(|c| c as usize) else {
+        while next < starts.len() && r >= starts[next] {
+            changing += u64::from(changed);
+            (seen, changed) = (None, false);
+            next += 1;
+        }
+        let Some(c) = c else {
             continue;
         };
+        match seen {
+            None => seen = Some(c),
+            Some(s) => changed |= s != c,
+        }
+        let c = c as usize;
         if c >= rows.len() {
             rows.resize(c + 1, 0);
             first.resize(c + 1, usize::MAX);
@@ -125,6 +146,7 @@ pub(super) fn most_common(codes: &UInt32Chunked, column: &Column) -> Result<Opti
         rows[c] += 1;
         first[c] = first[c].min(r);
     }
+    changing += u64::from(changed);
     let best = (0..rows.len())
         .filter(|c| rows[*c] > 0)
         .max_by(|a, b| rows[*a].cmp(&rows[*b]).then(first[*b].cmp(&first[*a])));
@@ -138,5 +160,6 @@ pub(super) fn most_common(codes: &UInt32Chunked, column: &Column) -> Result<Opti
             .str_value(first[best])?
             .into_owned(),
         most_common_rows: rows[best],
+        entities_changing: changing,
     }))
 }

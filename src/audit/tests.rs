@@ -212,6 +212,28 @@ fn a_text_variable_counts_its_values_and_the_first_of_the_most_common() {
             distinct: 3,
             most_common: "Docks".into(),
             most_common_rows: 42,
+            // Every firm's seven rows hold both `Docks` and `Mills`.
+            entities_changing: 18,
         }
     );
+    // Worked by hand: 30 firms of three years; a firm k with k % 3 = 0 holds `A`, `A` and a
+    // missing value (no change), k % 3 = 1 `A`, `B`, `A` (a change), k % 3 = 2 a missing
+    // value, then `C`, `C` (no change): 10 entities change.
+    let f: Vec<String> = (0..90).map(|i| format!("F{:02}", i / 3)).collect();
+    let y: Vec<i64> = (0..90).map(|i| 2001 + i % 3).collect();
+    let sector: Vec<Option<&str>> = (0..90)
+        .map(|i| match ((i / 3) % 3, i % 3) {
+            (0, 2) | (2, 0) => None,
+            (0, _) | (1, 0) | (1, 2) => Some("A"),
+            (1, _) => Some("B"),
+            _ => Some("C"),
+        })
+        .collect();
+    let mut df = df!("f" => f, "y" => y, "sector" => sector).unwrap();
+    crate::core::hold_text_as_codes(&mut df, &["f".to_string()]).unwrap();
+    assert!(crate::core::is_coded(df.column("sector").unwrap().dtype()));
+    let ctx = Context::new(&df, "f", "y", Options::default()).unwrap();
+    let lines = super::variation::categorical(&ctx).unwrap();
+    let t = lines[0].text_values.clone().unwrap();
+    assert_eq!((t.distinct, t.entities_changing), (3, 10));
 }

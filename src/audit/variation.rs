@@ -460,7 +460,7 @@ pub(super) fn categorical(ctx: &Context) -> Result<Vec<VariationLine>> {
             zero_within_entities: 0,
             spread: None,
             text_values: match &compared {
-                Compared::Codes(codes) => most_common(codes, column)?,
+                Compared::Codes(codes) => most_common(codes, column, &core.starts)?,
                 Compared::Text(_) => None,
             },
             absorbed_by,

@@ -131,24 +131,26 @@ pub(super) fn dictionary_md(entries: &[crate::pipeline::DictionaryEntry]) -> Str
             let v = e.values.as_ref()?;
             let t = v.text.as_ref()?;
             Some(format!(
-                "| `{}` | {} | {} | {} | {:.1}% |\n",
+                "| `{}` | {} | {} | {} | {:.1}% | {} |\n",
                 cell(&e.name),
                 v.n,
                 t.distinct,
                 cell(&t.most_common),
-                100.0 * t.most_common_rows as f64 / v.n.max(1) as f64
+                100.0 * t.most_common_rows as f64 / v.n.max(1) as f64,
+                t.entities_changing
             ))
         })
         .collect();
     if !text.is_empty() {
         out.push_str(
-            "\n| text variable | n | distinct values | most common | its share of n |\n\
-             |---|---:|---:|---|---:|\n",
+            "\n| text variable | n | distinct values | most common | its share of n | entities \
+             whose value changes |\n|---|---:|---:|---|---:|---:|\n",
         );
         out.extend(text);
         out.push_str(
             "\nText whose values repeat; a column whose values nearly all differ, such as a \
-             name, is not counted.\n",
+             name, is not counted. An entity's value changes when it holds two or more \
+             different values over its periods, missing ones aside.\n",
         );
     }
     out

@@ -233,6 +233,9 @@ def dictionary_values(bundle, dictionary):
             check(f"{name} distinct", values["distinct"] == len(counts), (values["distinct"], len(counts)))
             check(f"{name} most common", values["most_common"] == first, (values["most_common"], first))
             check(f"{name} most common rows", values["most_common_rows"] == counts.max())
+            changing = int((panel.groupby("firm_id")[name].nunique() > 1).sum())
+            check(f"{name} entities changing", values["entities_changing"] == changing,
+                  (values["entities_changing"], changing))
             texts += 1
             continue
         x = x.astype("float64")

@@ -57,6 +57,7 @@ def check_variation(df, entity, period, report, expect_text=False):
     # Text variables: pandas' nunique and value_counts (missing values left out); the most
     # common value is one holding the most rows.
     text = [n for n, l in lines.items() if "distinct" in l and n in df.columns]
+    changing_text = []
     if expect_text:  # the demo panel has sector, region and year-end dates as text
         same("text variables counted", True, len(text) >= 2)
     for name in text:
@@ -66,6 +67,13 @@ def check_variation(df, entity, period, report, expect_text=False):
         same(f"variation.{name}.most_common_rows", int(counts.iloc[0]), line["most_common_rows"])
         same(f"variation.{name}.most_common holds them", int(counts.iloc[0]),
              int(counts.get(line["most_common"], -1)))
+        # Entities holding two or more different values: pandas' nunique per entity (missing
+        # values left out).
+        changing = int((df.groupby(entity)[name].nunique() > 1).sum())
+        same(f"variation.{name}.entities_changing", changing, line["entities_changing"])
+        changing_text.append((name, changing))
+    if expect_text:  # the demo's year-end dates change every year: some entity changes
+        same("an entity's text changes", True, any(c > 0 for _, c in changing_text))
     for name, line in lines.items():
         if line["sd_total"] is None:
             continue

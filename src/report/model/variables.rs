@@ -98,6 +98,9 @@ pub struct TextValues {
     pub most_common: String,
     /// Rows holding it.
     pub most_common_rows: u64,
+    /// Entities holding two or more different values over their periods (missing ones
+    /// aside).
+    pub entities_changing: u64,
 }
 
 /// The missing-values check's figures.
