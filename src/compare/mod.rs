@@ -26,8 +26,8 @@ mod pairs;
 mod renamed;
 
 pub(crate) use page::page;
+use renamed::same_values;
 pub use renamed::SameValues;
-use renamed::{same_values, Matched};
 
 /// One vintage as compared.
 #[derive(Debug, Clone, Serialize)]
@@ -329,6 +329,25 @@ fn numeric(dtype: &DataType) -> bool {
 }
 
 /// Compare two vintages; returns the summary and the change ledger.
+/// One vintage's side of the firm-years in both: where its rows are, and whether they are
+/// its own rows in its own order (read as they are, not gathered).
+struct Matched<'a> {
+    vintage: &'a Vintage,
+    at: &'a IdxCa,
+    whole: bool,
+}
+
+impl Matched<'_> {
+    /// Column `c` over the firm-years in both, in the matched order.
+    fn column(&self, c: &str) -> Result<Column> {
+        let column = self.vintage.column(c)?;
+        match self.whole {
+            true => Ok(column),
+            false => gather(&column, self.at),
+        }
+    }
+}
+
 pub fn compare(old: &Side, new: &Side, tolerance: &Tolerance) -> Result<(Comparison, DataFrame)> {
     let old = vintage(old)?;
     let new = vintage(new)?;

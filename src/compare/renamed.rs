@@ -14,25 +14,6 @@ pub struct SameValues {
     pub new: String,
 }
 
-/// One vintage's side of the firm-years in both: where its rows are, and whether they are
-/// its own rows in its own order (read as they are, not gathered).
-pub(super) struct Matched<'a> {
-    pub(super) vintage: &'a Vintage,
-    pub(super) at: &'a IdxCa,
-    pub(super) whole: bool,
-}
-
-impl Matched<'_> {
-    /// Column `c` over the firm-years in both, in the matched order.
-    pub(super) fn column(&self, c: &str) -> Result<Column> {
-        let column = self.vintage.column(c)?;
-        match self.whole {
-            true => Ok(column),
-            false => gather(&column, self.at),
-        }
-    }
-}
-
 /// What a column must share with another to hold the same values: its missing cells and,
 /// for numbers, its extremes (compared within the tolerance); and whether its values vary
 /// (two columns of one value alike, dummies both always 1, say nothing of a new name).
