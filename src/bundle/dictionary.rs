@@ -94,12 +94,18 @@ pub(super) fn dictionary_md(entries: &[crate::pipeline::DictionaryEntry]) -> Str
             cell(&e.treatment),
         ));
     }
-    let level = crate::report::level;
     let numbers: Vec<String> = entries
         .iter()
         .filter_map(|e| {
             let v = e.values.as_ref()?;
             let s = v.spread?;
+            // A whole number as the column holds it (`2`, not `2.000`); other values, and a
+            // percentile between two whole numbers, to four significant digits.
+            let whole = e.kind == "whole number";
+            let level = |x: f64| match whole && x.fract() == 0.0 && x.abs() < 1e15 {
+                true => format!("{x:.0}"),
+                false => crate::report::level(x),
+            };
             Some(format!(
                 "| `{}` | {} | {} | {} | {} | {} | {} |\n",
                 cell(&e.name),
@@ -154,4 +160,90 @@ pub(super) fn dictionary_md(entries: &[crate::pipeline::DictionaryEntry]) -> Str
         );
     }
     out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::pipeline::{ColumnValues, DictionaryEntry};
+    use crate::report::{Spread, TextValues};
+
+    fn entry(name: &str, kind: &str, values: ColumnValues) -> DictionaryEntry {
+        DictionaryEntry {
+            name: name.into(),
+            label: String::new(),
+            definition: "raw column".into(),
+            unit: String::new(),
+            source: "input file".into(),
+            missing_share: Some(0.0),
+            treatment: String::new(),
+            kind: kind.into(),
+            values: Some(values),
+        }
+    }
+
+    /// Worked by hand: a head count's whole values as the column holds them (`2`, `40`), its
+    /// median between two whole numbers to four significant digits; a ratio's values to four
+    /// significant digits; a text's counts, its share of n to one decimal.
+    #[test]
+    fn the_dictionary_lays_out_where_values_lie() {
+        let spread = |min, p25, median, p75, max| Spread {
+            min,
+            p25,
+            median,
+            p75,
+            max,
+        };
+        let entries = [
+            entry(
+                "staff",
+                "whole number",
+                ColumnValues {
+                    n: 4,
+                    spread: Some(spread(2.0, 3.0, 10.5, 19.0, 40.0)),
+                    text: None,
+                },
+            ),
+            entry(
+                "roa",
+                "number",
+                ColumnValues {
+                    n: 3,
+                    spread: Some(spread(-0.5, 0.0, 0.125, 2.0, 3.0)),
+                    text: None,
+                },
+            ),
+            entry(
+                "sector",
+                "text",
+                ColumnValues {
+                    n: 8,
+                    spread: None,
+                    text: Some(TextValues {
+                        distinct: 3,
+                        most_common: "Docks".into(),
+                        most_common_rows: 5,
+                        entities_changing: 1,
+                    }),
+                },
+            ),
+        ];
+        let md = dictionary_md(&entries);
+        assert!(
+            md.contains("| `staff` | whole number |  | raw column |"),
+            "{md}"
+        );
+        assert!(
+            md.contains("| `staff` | 4 | 2 | 3 | 10.50 | 19 | 40 |"),
+            "{md}"
+        );
+        assert!(
+            md.contains("| `roa` | 3 | -0.5000 | 0 | 0.1250 | 2.000 | 3.000 |"),
+            "{md}"
+        );
+        assert!(
+            md.contains("| `sector` | 8 | 3 | Docks | 62.5% | 1 |"),
+            "{md}"
+        );
+    }
 }
