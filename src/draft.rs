@@ -213,6 +213,93 @@ fn guess_period(df: &DataFrame) -> Option<Guess> {
     best.map(|(_, _, g)| g)
 }
 
+/// Names that suggest a fiscal-year-end date (common practice in accounts files).
+const YEAR_END_HINTS: [&str; 4] = ["yearend", "fye", "end", "date"];
+
+/// The month up to which a year end belongs to the previous fiscal year, as `[panel]
+/// year_end_cutoff` defaults.
+const YEAR_END_CUTOFF: i64 = 5;
+
+/// The year and month of a date written `YYYY-MM-DD` (the form `[panel] year_end` reads),
+/// with a day from 1 to 31 (the loader checks the month's length).
+fn year_month(text: &str) -> Option<(i64, i64)> {
+    let b = text.trim().as_bytes();
+    if b.len() != 10 || b[4] != b'-' || b[7] != b'-' {
+        return None;
+    }
+    let number = |r: std::ops::Range<usize>| -> Option<i64> {
+        let part = std::str::from_utf8(&b[r]).ok()?;
+        part.bytes()
+            .all(|c| c.is_ascii_digit())
+            .then(|| part.parse().ok())?
+    };
+    let (year, month, day) = (number(0..4)?, number(5..7)?, number(8..10)?);
+    ((1..=12).contains(&month) && (1..=31).contains(&day)).then_some((year, month))
+}
+
+/// A column of fiscal-year-end dates, where no column of years is found: text (or dates)
+/// of which at least 99% of the values are dates `YYYY-MM-DD` between 1900 and 2100, in two
+/// or more fiscal years; a name hint first. With it, the fiscal year of each row: the date's
+/// year, less one when it ends in month [`YEAR_END_CUTOFF`] or earlier.
+fn guess_year_end(df: &DataFrame) -> Option<(Guess, Int64Chunked)> {
+    let mut best: Option<(bool, Guess, Int64Chunked)> = None;
+    for name in df.get_column_names() {
+        let c = df.column(name).ok()?;
+        if !matches!(c.dtype(), DataType::String | DataType::Date) {
+            continue;
+        }
+        let text = c.cast(&DataType::String).ok()?;
+        let dates: Vec<Option<(i64, i64)>> = text
+            .str()
+            .ok()?
+            .iter()
+            .map(|v| v.and_then(year_month))
+            .collect();
+        let present = text.len() - text.null_count();
+        let read = dates.iter().flatten().count();
+        if present == 0 || (read as f64) < 0.99 * present as f64 {
+            continue;
+        }
+        let fiscal: Int64Chunked = dates
+            .iter()
+            .map(|d| d.map(|(y, m)| y - i64::from(m <= YEAR_END_CUTOFF)))
+            .collect();
+        let (Some(lo), Some(hi)) = (fiscal.min(), fiscal.max()) else {
+            continue;
+        };
+        if lo == hi || lo < 1900 || hi > 2100 {
+            continue;
+        }
+        let hint = hinted(name, &YEAR_END_HINTS);
+        let guess = Guess {
+            column: name.to_string(),
+            why: format!(
+                "dates written YYYY-MM-DD in {read} of {present} rows with a value, fiscal \
+                 years {lo}..{hi}{}",
+                if hint {
+                    "; the name suggests a year end"
+                } else {
+                    ""
+                }
+            ),
+            repeats: 0,
+        };
+        if best.as_ref().is_none_or(|(h, _, _)| hint && !h) {
+            best = Some((hint, guess, fiscal));
+        }
+    }
+    best.map(|(_, g, f)| (g, f))
+}
+
+/// A column name not in `df`: `fiscal_year`, or that with a number after it.
+fn unused_name(df: &DataFrame) -> String {
+    let taken = |n: &str| df.get_column_names().iter().any(|c| c.as_str() == n);
+    std::iter::once("fiscal_year".to_string())
+        .chain((2..).map(|i| format!("fiscal_year_{i}")))
+        .find(|n| !taken(n))
+        .unwrap_or_default()
+}
+
 fn guess_entity(df: &DataFrame, period: &str) -> Result<Option<Guess>> {
     let rows = df.height();
     let mut best: Option<((bool, bool, u64), Guess)> = None;
@@ -291,22 +378,52 @@ fn quote(s: &str) -> String {
 
 /// The draft rules file for `df`, read from `file_name`.
 pub fn draft(df: &DataFrame, file_name: &str) -> Result<String> {
-    let period = guess_period(df).ok_or_else(|| Error::Unreadable {
-        file: file_name.into(),
-        at: String::new(),
-        message: "no column of whole numbers between 1900 and 2100 to use as the period; \
-                  write [panel] by hand"
-            .into(),
-    })?;
-    let entity = guess_entity(df, &period.column)?.ok_or_else(|| Error::Unreadable {
+    // A column of years; else, or when no entity repeats over it (a founding year), fiscal
+    // years from a column of year-end dates, under a new name.
+    let by_dates = guess_year_end(df).map(|(year_end, fiscal)| {
+        let name = unused_name(df);
+        let mut keyed = df.clone();
+        let period = Guess {
+            column: name.clone(),
+            why: format!(
+                "the fiscal year, derived from `{}` (year_end below)",
+                year_end.column
+            ),
+            repeats: 0,
+        };
+        keyed.with_column(fiscal.with_name(name.as_str().into()).into_column())?;
+        PolarsResult::Ok((period, Some(year_end), keyed))
+    });
+    let candidates: Vec<(Guess, Option<Guess>, DataFrame)> = guess_period(df)
+        .map(|period| Ok((period, None, df.clone())))
+        .into_iter()
+        .chain(by_dates)
+        .collect::<PolarsResult<_>>()?;
+    let Some(first) = candidates.first().map(|c| c.0.column.clone()) else {
+        return Err(Error::Unreadable {
+            file: file_name.into(),
+            at: String::new(),
+            message: "no column of whole numbers between 1900 and 2100, nor of year-end dates \
+                      YYYY-MM-DD, to use as the period; write [panel] by hand"
+                .into(),
+        });
+    };
+    let mut chosen = None;
+    for (period, year_end, keyed) in candidates {
+        if let Some(entity) = guess_entity(&keyed, &period.column)? {
+            chosen = Some((entity, period, year_end, keyed));
+            break;
+        }
+    }
+    let (entity, period, year_end, keyed) = chosen.ok_or_else(|| Error::Unreadable {
         file: file_name.into(),
         at: String::new(),
         message: format!(
-            "no text or integer column repeats over `{}` with (nearly) unique pairs; write \
-             [panel] by hand",
-            period.column
+            "no text or integer column repeats over `{first}` with (nearly) unique pairs; write \
+             [panel] by hand"
         ),
     })?;
+    let df = &keyed;
     let names: Vec<String> = df
         .get_column_names()
         .iter()
@@ -321,7 +438,8 @@ pub fn draft(df: &DataFrame, file_name: &str) -> Result<String> {
                 .find(|n| synonyms.contains(&normal(n).as_str()))
         });
         if let Some(raw) = guess {
-            if *raw != entity.column && *raw != period.column {
+            let year_end = year_end.as_ref().map(|g| g.column.as_str());
+            if *raw != entity.column && *raw != period.column && Some(raw.as_str()) != year_end {
                 mapping.push((canonical, raw.clone()));
             }
         }
@@ -333,13 +451,24 @@ pub fn draft(df: &DataFrame, file_name: &str) -> Result<String> {
          include = [\"standard\"]   # the built-in ratio library (`panelready ratios`)\n\n\
          [panel]\n\
          entity = {}   # guessed: {}\n\
-         period = {}   # guessed: {}\n\n",
+         period = {}   # guessed: {}\n",
         env!("CARGO_PKG_VERSION"),
         quote(&entity.column),
         entity.why,
         quote(&period.column),
         period.why,
     );
+    if let Some(y) = &year_end {
+        out.push_str(&format!(
+            "year_end = {}   # guessed: {}\n\
+             year_end_cutoff = {YEAR_END_CUTOFF}   # a year ending in month {YEAR_END_CUTOFF} or \
+             earlier is the previous fiscal year\n#   (common practice); 0 keeps the calendar \
+             year\n",
+            quote(&y.column),
+            y.why
+        ));
+    }
+    out.push('\n');
     out.push_str("[columns]   # canonical name = your column\n");
     for (canonical, raw) in &mapping {
         out.push_str(&format!(
@@ -431,5 +560,34 @@ mod tests {
         assert!(text.contains("unique on 6 of 6 rows"), "{text}");
         let rules = Rules::from_text(None, text).unwrap();
         assert_eq!(rules.file.panel.entity.as_deref(), Some("company_code"));
+    }
+
+    /// Worked by hand: no column of years but a founding year, constant within each firm, so
+    /// no entity repeats over it; the fiscal year then comes from the year-end dates (B's
+    /// March year ends are the previous fiscal year), under a name the file does not use.
+    /// Dates in another form, or a 13th month, are not dates.
+    #[test]
+    fn without_a_year_column_the_fiscal_year_comes_from_year_end_dates() {
+        let df = df!(
+            "firm" => ["A", "A", "B", "B"],
+            "founded" => [1990i64, 1990, 1985, 1985],
+            "fiscal_year" => ["x", "y", "z", "w"],
+            "fye" => ["2001-12-31", "2002-12-31", "2002-03-31", "2003-03-31"],
+        )
+        .unwrap();
+        let text = draft(&df, "x.csv").unwrap();
+        for want in [
+            "entity = \"firm\"",
+            "period = \"fiscal_year_2\"",
+            "year_end = \"fye\"",
+            "fiscal years 2001..2002",
+        ] {
+            assert!(text.contains(want), "lacks {want}:\n{text}");
+        }
+        let rules = Rules::from_text(None, text).unwrap();
+        assert_eq!(rules.file.panel.year_end.as_deref(), Some("fye"));
+        assert_eq!(year_month("2001-12-31"), Some((2001, 12)));
+        assert_eq!(year_month("31/12/2001"), None);
+        assert_eq!(year_month("2001-13-01"), None);
     }
 }

@@ -283,6 +283,60 @@ fn fiscal_years_from_the_demo_year_end_dates_match_pandas() {
     );
 }
 
+#[test]
+fn a_draft_without_a_year_column_derives_the_fiscal_year_from_the_year_end_dates() {
+    // The demo's accounts without their fiscal-year column: `rules draft` finds no column of
+    // years, takes the fiscal year from the `year_end` dates, and an audit with the draft
+    // recounts, by pandas (handoff.py on the original files), the key steps on that period and
+    // the firms whose year-end month changed.
+    let w = Workdir::new();
+    w.ok(&["demo", "--out", "d", "--data-only"]);
+    let raw = std::fs::read_to_string(w.path("d/data/velmora_accounts.csv")).unwrap();
+    let at = raw
+        .lines()
+        .next()
+        .unwrap()
+        .split(',')
+        .position(|c| c == "fiscal_year")
+        .unwrap();
+    let without: String = raw
+        .lines()
+        .map(|line| {
+            let cells: Vec<&str> = line.split(',').collect();
+            let kept: Vec<&str> = [&cells[..at], &cells[at + 1..]].concat();
+            kept.join(",") + "\n"
+        })
+        .collect();
+    w.write("dates.csv", &without);
+    w.ok(&["rules", "draft", "dates.csv", "--out", "dates.toml"]);
+    let draft = std::fs::read_to_string(w.path("dates.toml")).unwrap();
+    for want in [
+        "entity = \"firm_id\"",
+        "period = \"fiscal_year\"",
+        "year_end = \"year_end\"",
+        "year_end_cutoff = 5",
+    ] {
+        assert!(draft.contains(want), "draft lacks {want}:\n{draft}");
+    }
+    w.run(&[
+        "audit",
+        "dates.csv",
+        "--rules",
+        "dates.toml",
+        "--report",
+        "dates.json",
+    ]);
+    let out = run_reference(
+        "handoff.py",
+        &[
+            std::path::Path::new("yearend"),
+            &w.path("d/data"),
+            &w.path("dates.json"),
+        ],
+    );
+    assert!(out.contains(" 0 failed"), "{out}");
+}
+
 /// A joined CSV table's numbers with cells marking a missing number (`NA`, `#N/A`) are read as
 /// numbers, as the main file's are, and the report's input notes say so naming the table; a
 /// matched column stays as read (the currency code `NA` is a key, not a marker). Worked by
