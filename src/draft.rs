@@ -8,6 +8,9 @@ use polars::prelude::*;
 use crate::derive::Plan;
 use crate::rules::{Rules, CANONICAL_COLUMNS};
 use crate::{Error, Result};
+use year_end::{guess_year_end, unused_name, YEAR_END_CUTOFF};
+
+mod year_end;
 
 /// Common raw names of each canonical column, compared after lowercasing and dropping every
 /// character that is not a letter or digit (common practice in firm-accounts files).
@@ -213,91 +216,30 @@ fn guess_period(df: &DataFrame) -> Option<Guess> {
     best.map(|(_, _, g)| g)
 }
 
-/// Names that suggest a fiscal-year-end date (common practice in accounts files).
-const YEAR_END_HINTS: [&str; 4] = ["yearend", "fye", "end", "date"];
+/// Names that suggest number codes of a classification (common practice: industry codes
+/// such as SIC, NAICS or NACE, countries, regions).
+const CATEGORY_HINTS: [&str; 10] = [
+    "sic", "naics", "nace", "isic", "industry", "sector", "country", "region", "category", "class",
+];
 
-/// The month up to which a year end belongs to the previous fiscal year, as `[panel]
-/// year_end_cutoff` defaults.
-const YEAR_END_CUTOFF: i64 = 5;
-
-/// The year and month of a date written `YYYY-MM-DD` (the form `[panel] year_end` reads),
-/// with a day from 1 to 31 (the loader checks the month's length).
-fn year_month(text: &str) -> Option<(i64, i64)> {
-    let b = text.trim().as_bytes();
-    if b.len() != 10 || b[4] != b'-' || b[7] != b'-' {
-        return None;
-    }
-    let number = |r: std::ops::Range<usize>| -> Option<i64> {
-        let part = std::str::from_utf8(&b[r]).ok()?;
-        part.bytes()
-            .all(|c| c.is_ascii_digit())
-            .then(|| part.parse().ok())?
-    };
-    let (year, month, day) = (number(0..4)?, number(5..7)?, number(8..10)?);
-    ((1..=12).contains(&month) && (1..=31).contains(&day)).then_some((year, month))
-}
-
-/// A column of fiscal-year-end dates, where no column of years is found: text (or dates)
-/// of which at least 99% of the values are dates `YYYY-MM-DD` between 1900 and 2100, in two
-/// or more fiscal years; a name hint first. With it, the fiscal year of each row: the date's
-/// year, less one when it ends in month [`YEAR_END_CUTOFF`] or earlier.
-fn guess_year_end(df: &DataFrame) -> Option<(Guess, Int64Chunked)> {
-    let mut best: Option<(bool, Guess, Int64Chunked)> = None;
+/// Columns of whole numbers that by their name are codes of categories, besides `keys`: each
+/// with two or more distinct values, and at most one in sixteen rows.
+fn guess_categories(df: &DataFrame, keys: &[&str]) -> Result<Vec<String>> {
+    let mut found = Vec::new();
     for name in df.get_column_names() {
-        let c = df.column(name).ok()?;
-        if !matches!(c.dtype(), DataType::String | DataType::Date) {
+        let c = df.column(name)?;
+        if keys.contains(&name.as_str()) || !c.dtype().is_integer() {
             continue;
         }
-        let text = c.cast(&DataType::String).ok()?;
-        let dates: Vec<Option<(i64, i64)>> = text
-            .str()
-            .ok()?
-            .iter()
-            .map(|v| v.and_then(year_month))
-            .collect();
-        let present = text.len() - text.null_count();
-        let read = dates.iter().flatten().count();
-        if present == 0 || (read as f64) < 0.99 * present as f64 {
+        if !hinted(name, &CATEGORY_HINTS) {
             continue;
         }
-        let fiscal: Int64Chunked = dates
-            .iter()
-            .map(|d| d.map(|(y, m)| y - i64::from(m <= YEAR_END_CUTOFF)))
-            .collect();
-        let (Some(lo), Some(hi)) = (fiscal.min(), fiscal.max()) else {
-            continue;
-        };
-        if lo == hi || lo < 1900 || hi > 2100 {
-            continue;
-        }
-        let hint = hinted(name, &YEAR_END_HINTS);
-        let guess = Guess {
-            column: name.to_string(),
-            why: format!(
-                "dates written YYYY-MM-DD in {read} of {present} rows with a value, fiscal \
-                 years {lo}..{hi}{}",
-                if hint {
-                    "; the name suggests a year end"
-                } else {
-                    ""
-                }
-            ),
-            repeats: 0,
-        };
-        if best.as_ref().is_none_or(|(h, _, _)| hint && !h) {
-            best = Some((hint, guess, fiscal));
+        let distinct = c.drop_nulls().n_unique()?;
+        if distinct >= 2 && distinct * 16 <= c.len() {
+            found.push(name.to_string());
         }
     }
-    best.map(|(_, g, f)| (g, f))
-}
-
-/// A column name not in `df`: `fiscal_year`, or that with a number after it.
-fn unused_name(df: &DataFrame) -> String {
-    let taken = |n: &str| df.get_column_names().iter().any(|c| c.as_str() == n);
-    std::iter::once("fiscal_year".to_string())
-        .chain((2..).map(|i| format!("fiscal_year_{i}")))
-        .find(|n| !taken(n))
-        .unwrap_or_default()
+    Ok(found)
 }
 
 fn guess_entity(df: &DataFrame, period: &str) -> Result<Option<Guess>> {
@@ -468,6 +410,21 @@ pub fn draft(df: &DataFrame, file_name: &str) -> Result<String> {
             y.why
         ));
     }
+    let keys = [
+        entity.column.as_str(),
+        period.column.as_str(),
+        year_end.as_ref().map_or("", |y| y.column.as_str()),
+    ];
+    let categories = guess_categories(df, &keys)?;
+    if !categories.is_empty() {
+        let names: Vec<String> = categories.iter().map(|c| quote(c)).collect();
+        out.push_str(&format!(
+            "categorical = [{}]   # guessed from the names: whole numbers that code categories \
+             (an industry,\n#   a country), never averaged or winsorized; take out any that \
+             are amounts\n",
+            names.join(", ")
+        ));
+    }
     out.push('\n');
     out.push_str("[columns]   # canonical name = your column\n");
     for (canonical, raw) in &mapping {
@@ -539,6 +496,7 @@ pub fn draft(df: &DataFrame, file_name: &str) -> Result<String> {
 
 #[cfg(test)]
 mod tests {
+    use super::year_end::year_month;
     use super::*;
 
     #[test]
@@ -560,6 +518,33 @@ mod tests {
         assert!(text.contains("unique on 6 of 6 rows"), "{text}");
         let rules = Rules::from_text(None, text).unwrap();
         assert_eq!(rules.file.panel.entity.as_deref(), Some("company_code"));
+    }
+
+    /// Worked by hand: an industry code and a country code, whole numbers that repeat, are
+    /// drafted as categories; a head count (no such name) and a code column with a value on
+    /// nearly every row (an identifier) are not.
+    #[test]
+    fn number_codes_named_as_categories_are_drafted_categorical() {
+        let n = 64;
+        let df = df!(
+            "firm" => (0..n).map(|i| format!("F{}", i / 4)).collect::<Vec<_>>(),
+            "year" => (0..n).map(|i| 2001 + (i % 4) as i64).collect::<Vec<_>>(),
+            "sic_code" => (0..n).map(|i| [2834i64, 3571, 6021][i % 3]).collect::<Vec<_>>(),
+            "country" => (0..n).map(|i| 276 + (i % 2) as i64).collect::<Vec<_>>(),
+            "employees" => (0..n).map(|i| [10i64, 20][i % 2]).collect::<Vec<_>>(),
+            "industry_id" => (0..n as i64).collect::<Vec<_>>(),
+        )
+        .unwrap();
+        let text = draft(&df, "x.csv").unwrap();
+        assert!(
+            text.contains("categorical = [\"sic_code\", \"country\"]"),
+            "{text}"
+        );
+        let rules = Rules::from_text(None, text).unwrap();
+        assert_eq!(
+            rules.file.panel.categorical,
+            Some(vec!["sic_code".to_string(), "country".to_string()])
+        );
     }
 
     /// Worked by hand: no column of years but a founding year, constant within each firm, so
