@@ -254,6 +254,28 @@ fn awkward_spreadsheets_are_refused_or_reported() {
     let mut args = vec!["audit", "mixed.xlsx", "--sheet", "blank"];
     args.extend(keys);
     w.fails(&args, "sheet `blank` is empty (no header, no data rows)");
+    // Numbers typed as text with thousands separators or in parentheses are numbers, noted
+    // (they were text without a word): assets mean (1,234.5 + 2,000 − 3,000 + 1,500) / 4 =
+    // 433.625. Percentages typed with their sign stay text, noted with the first cell.
+    let mut args = vec!["audit", "written.xlsx", "--format", "json"];
+    args.extend(keys);
+    let report: serde_json::Value = serde_json::from_str(&w.ok(&args).stdout).unwrap();
+    let assets = &report["variation"][0];
+    assert_eq!(assets["variable"], "assets");
+    assert!(
+        (assets["mean"].as_f64().unwrap() - 433.625).abs() < 1e-12,
+        "{assets}"
+    );
+    assert_eq!(
+        report["input"]["notes"],
+        serde_json::json!([
+            "column `assets`: 3 cells of text with thousands separators or in parentheses for \
+             a negative number (the first in sheet row 2) read as numbers",
+            "column `margin` stays text: its values are numbers written with a currency or \
+             percent sign (sheet row 2 holds `5%`); take the sign out (and say in a label what \
+             the unit is) to use them as numbers"
+        ])
+    );
 }
 
 #[test]

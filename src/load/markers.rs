@@ -261,20 +261,37 @@ const UNIT_SIGNS: [char; 5] = ['$', '€', '£', '¥', '%'];
 /// `-€5`) and some carry one; None otherwise. A guess at the unit would decide what the
 /// number means (a share or a percentage, which currency), so such a column is only noted.
 fn signed_amounts(values: &StringChunked, decimal_comma: bool) -> Option<(usize, &str)> {
-    mostly_numbers_when(values, |v| {
-        let t = v.trim();
-        let (sign, body) = match t.strip_prefix('-') {
-            Some(rest) => ("-", rest.trim_start()),
-            None => ("", t),
-        };
-        let stripped = body
-            .trim_start_matches(UNIT_SIGNS)
-            .trim_end_matches(UNIT_SIGNS)
-            .trim();
-        let number = format!("{sign}{stripped}");
-        matches!(cell(Some(&number), decimal_comma), Some(Cell::Number(..)))
-            .then_some(stripped.len() != body.len())
-    })
+    mostly_numbers_when(values, |v| unit_signed(v, decimal_comma))
+}
+
+/// Whether `v` is a number once a currency or percent sign is taken off it (`$1,200`,
+/// `12%`, `-€5`): None when it is not a number even so, else whether it had such a sign.
+pub(super) fn unit_signed(v: &str, decimal_comma: bool) -> Option<bool> {
+    let t = v.trim();
+    let (sign, body) = match t.strip_prefix('-') {
+        Some(rest) => ("-", rest.trim_start()),
+        None => ("", t),
+    };
+    let stripped = body
+        .trim_start_matches(UNIT_SIGNS)
+        .trim_end_matches(UNIT_SIGNS)
+        .trim();
+    let number = format!("{sign}{stripped}");
+    matches!(cell(Some(&number), decimal_comma), Some(Cell::Number(..)))
+        .then_some(stripped.len() != body.len())
+}
+
+/// `t` as a number written for people — with thousands separators, or in parentheses for a
+/// negative one — as a CSV column of them is read (with a decimal point); None for any other
+/// text, a plain number included.
+pub(super) fn written_for_people(t: &str) -> Option<f64> {
+    match cell(Some(t), false)? {
+        Cell::Number(n, Written::Grouped | Written::Parenthesized) => Some(match n {
+            Number::Whole(v) => v as f64,
+            Number::Decimal(v) => v,
+        }),
+        _ => None,
+    }
 }
 
 /// The data row and value of the first of `values` that is a number with a decimal comma

@@ -61,6 +61,8 @@ enum Cell {
     Missing,
     Number(f64),
     NumberLike(f64),
+    /// Text holding a number with thousands separators or in parentheses (`1,234.5`, `(12)`).
+    Written(f64),
     /// Text marking a missing number (`n/a`).
     Marker,
     Text(String),
@@ -86,7 +88,10 @@ fn cell(d: &Data) -> Cell {
             } else {
                 match t.parse::<f64>() {
                     Ok(x) if x.is_finite() => Cell::NumberLike(x),
-                    _ => Cell::Text(s.clone()),
+                    _ => match super::markers::written_for_people(t) {
+                        Some(x) => Cell::Written(x),
+                        None => Cell::Text(s.clone()),
+                    },
                 }
             }
         }
@@ -292,7 +297,7 @@ pub fn read(path: &Path, sheet: Option<&str>, text: &[&str]) -> Result<Sheet> {
             ));
         }
         let first_text = cells.iter().position(|c| matches!(c, Cell::Text(_)));
-        let number_like = cells
+        let typed_as_text = cells
             .iter()
             .filter(|c| matches!(c, Cell::NumberLike(_)))
             .count();
@@ -300,6 +305,12 @@ pub fn read(path: &Path, sheet: Option<&str>, text: &[&str]) -> Result<Sheet> {
             .iter()
             .filter(|c| matches!(c, Cell::Number(_)))
             .count();
+        // Text written for people reads as a number too, noted apart.
+        let written = cells
+            .iter()
+            .filter(|c| matches!(c, Cell::Written(_)))
+            .count();
+        let number_like = typed_as_text + written;
         let markers = cells.iter().filter(|c| matches!(c, Cell::Marker)).count();
         if first_text.is_none() && markers > 0 && numbers + number_like > 0 {
             let marked = body.iter().filter_map(|r| match r.get(j) {
@@ -317,21 +328,30 @@ pub fn read(path: &Path, sheet: Option<&str>, text: &[&str]) -> Result<Sheet> {
                 text_column(name_j, &cells, &body, j)
             }
             None => {
-                if number_like > 0 && numbers > 0 {
+                if typed_as_text > 0 && numbers > 0 {
                     let first = cells
                         .iter()
                         .position(|c| matches!(c, Cell::NumberLike(_)))
                         .unwrap_or(0);
                     notes.push(format!(
                         "column `{name_j}`: {} of text that reads as a number (the first in sheet row {}) read as numbers",
-                        super::markers::how_many_cells(number_like),
+                        super::markers::how_many_cells(typed_as_text),
+                        sheet_row(first)
+                    ));
+                }
+                if let Some(first) = cells.iter().position(|c| matches!(c, Cell::Written(_))) {
+                    notes.push(format!(
+                        "column `{name_j}`: {} of text with thousands separators or in \
+                         parentheses for a negative number (the first in sheet row {}) read as \
+                         numbers",
+                        super::markers::how_many_cells(written),
                         sheet_row(first)
                     ));
                 }
                 let values: Vec<Option<f64>> = cells
                     .iter()
                     .map(|c| match c {
-                        Cell::Number(x) | Cell::NumberLike(x) => Some(*x),
+                        Cell::Number(x) | Cell::NumberLike(x) | Cell::Written(x) => Some(*x),
                         _ => None,
                     })
                     .collect();
@@ -352,7 +372,31 @@ pub fn read(path: &Path, sheet: Option<&str>, text: &[&str]) -> Result<Sheet> {
                 }
             }
             Some(t) => {
-                if numbers + number_like > 0 {
+                // Text that is a number but for a currency or percent sign, in most cells
+                // holding something: the sign decides the unit, so the column stays text.
+                let filled: Vec<(usize, &str)> = body
+                    .iter()
+                    .enumerate()
+                    .filter_map(|(i, r)| match r.get(j) {
+                        Some(Data::String(v)) if !v.trim().is_empty() => Some((i, v.as_str())),
+                        _ => None,
+                    })
+                    .collect();
+                let signed = filled
+                    .iter()
+                    .find(|(_, v)| super::markers::unit_signed(v, false) == Some(true));
+                let amounts = filled
+                    .iter()
+                    .filter(|(_, v)| super::markers::unit_signed(v, false).is_some())
+                    .count();
+                if let (Some((i, v)), true) = (signed, 2 * amounts >= filled.len()) {
+                    notes.push(format!(
+                        "column `{name_j}` stays text: its values are numbers written with a \
+                         currency or percent sign (sheet row {} holds `{v}`); take the sign out \
+                         (and say in a label what the unit is) to use them as numbers",
+                        sheet_row(*i)
+                    ));
+                } else if numbers + number_like > 0 {
                     notes.push(format!(
                         "column `{name_j}` mixes numbers and text (the first text in sheet row {}): read as text",
                         sheet_row(t)

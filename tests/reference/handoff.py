@@ -30,7 +30,8 @@
   handoff.py xlsx-hostile OUTDIR
       writes merged.xlsx (merged cells) and mixed.xlsx (a number typed as text in a number
       column, a number in a text column, a sheet with only a header, an empty sheet) and
-      dates.xlsx (year-end dates).
+      dates.xlsx (year-end dates) and written.xlsx (numbers typed as text with thousands
+      separators, in parentheses or with a percent sign).
 
 Prints `N passed, M failed`; exits 1 on any mismatch.
 """
@@ -397,7 +398,16 @@ def xlsx_hostile(outdir):
                               ("B", dt.date(2021, 6, 30), 6)]:
         ws.append([firm, day, assets])
     wb.save(f"{outdir}/dates.xlsx")
-    print("wrote merged.xlsx and mixed.xlsx")
+    # Numbers typed as text as people write them: with thousands separators and a negative in
+    # parentheses (`assets`), and with a percent sign (`margin`).
+    wb = Workbook()
+    ws = wb.active
+    ws.append(["firm", "year", "assets", "margin"])
+    for row in [["A", 2001, "1,234.5", "5%"], ["A", 2002, "2 000", "6%"],
+                ["B", 2001, "(3,000)", "7%"], ["B", 2002, 1500, "8%"]]:
+        ws.append(row)
+    wb.save(f"{outdir}/written.xlsx")
+    print("wrote merged.xlsx, mixed.xlsx, dates.xlsx and written.xlsx")
 
 
 def yearend(data_dir, report_json):
