@@ -76,7 +76,7 @@ pub(super) fn text_blocks(lines: &[VariationLine]) -> Vec<Block> {
         .collect();
     table_with_note(
         &[
-            "text variable",
+            "variable",
             "n",
             "distinct values",
             "most common",
@@ -84,8 +84,8 @@ pub(super) fn text_blocks(lines: &[VariationLine]) -> Vec<Block> {
             "entities whose value changes",
         ],
         rows,
-        "Text whose values repeat (held as codes); a column whose values nearly all differ, \
-         such as a name, is not counted. An entity's value changes when it holds two or more \
+        "Text whose values repeat (held as codes), and number codes declared categorical; text \
+         whose values nearly all differ, such as a name, is not counted. An entity's value changes when it holds two or more \
          different values over its periods (an industry reclassified, say), missing ones aside.",
     )
 }
@@ -162,4 +162,29 @@ pub(super) fn most_common(
         most_common_rows: rows[best],
         entities_changing: changing,
     }))
+}
+
+/// Codes for a column of whole numbers (number codes declared categorical, an industry code):
+/// equal numbers, equal codes, numbered as first met; missing where the number is. None for
+/// any other column, or one whose numbers do not all fit 64-bit integers.
+pub(super) fn number_codes(column: &Column) -> Result<Option<UInt32Chunked>> {
+    if !column.dtype().is_integer() {
+        return Ok(None);
+    }
+    let x = column.cast(&DataType::Int64)?;
+    if x.null_count() != column.null_count() {
+        return Ok(None);
+    }
+    let mut seen = std::collections::HashMap::new();
+    let codes: UInt32Chunked = x
+        .i64()?
+        .iter()
+        .map(|v| {
+            v.map(|v| {
+                let next = seen.len() as u32;
+                *seen.entry(v).or_insert(next)
+            })
+        })
+        .collect();
+    Ok(Some(codes))
 }

@@ -5,7 +5,7 @@
 
 use polars::prelude::*;
 
-use super::spread::{most_common, spread, spread_blocks, text_blocks};
+use super::spread::{most_common, number_codes, spread, spread_blocks, text_blocks};
 use super::verdict::{self, counted, level_key, worst, CheckVerdict, LevelKey, Levels, Status};
 use super::{own, Check, Context, Pooled};
 use crate::core::{in_batches, PanelCore, Values};
@@ -430,7 +430,11 @@ pub(super) fn categorical(ctx: &Context) -> Result<Vec<VariationLine>> {
         let n = column.len() - column.null_count();
         let compared = match crate::core::codes(column)? {
             Some(codes) => Compared::Codes(codes),
-            None => Compared::Text(column.cast(&DataType::String)?),
+            // Number codes declared categorical (an industry code): codes of their own.
+            None => match number_codes(column)? {
+                Some(codes) => Compared::Codes(codes),
+                None => Compared::Text(column.cast(&DataType::String)?),
+            },
         };
         let core = &ctx.core;
         let one_value = |group: &[u32], groups: usize| -> Result<bool> {

@@ -149,13 +149,13 @@ pub(super) fn dictionary_md(entries: &[crate::pipeline::DictionaryEntry]) -> Str
         .collect();
     if !text.is_empty() {
         out.push_str(
-            "\n| text variable | n | distinct values | most common | its share of n | entities \
+            "\n| variable | n | distinct values | most common | its share of n | entities \
              whose value changes |\n|---|---:|---:|---|---:|---:|\n",
         );
         out.extend(text);
         out.push_str(
-            "\nText whose values repeat; a column whose values nearly all differ, such as a \
-             name, is not counted. An entity's value changes when it holds two or more \
+            "\nText whose values repeat, and number codes declared categorical; text whose \
+             values nearly all differ, such as a name, is not counted. An entity's value changes when it holds two or more \
              different values over its periods, missing ones aside.\n",
         );
     }

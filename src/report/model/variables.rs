@@ -58,7 +58,8 @@ pub struct VariationLine {
     /// value; absent for text variables and a variable without values.
     #[serde(skip_serializing_if = "Option::is_none", flatten)]
     pub spread: Option<Spread>,
-    /// A text variable held as codes: how many distinct values and the most common one;
+    /// A text variable held as codes, or number codes declared categorical: how many distinct
+    /// values and the most common one;
     /// absent for numbers and for text whose values nearly all differ (not held as codes).
     #[serde(skip_serializing_if = "Option::is_none", flatten)]
     pub text_values: Option<TextValues>,
