@@ -36,6 +36,7 @@ pub(super) struct Counted {
     pub became_missing: u64,
     pub became_present: u64,
     pub largest_change: Option<f64>,
+    pub case_or_spaces_only: Option<u64>,
 }
 
 /// The column `c` compared: `frame` holds the keys (named `e` and `p`) and the old and new
@@ -118,6 +119,18 @@ pub(super) fn changes(
                 .alias("x"),
         );
     }
+    if kind == Kind::Text {
+        // Changed text that is the same but for letter case or surrounding spaces.
+        let folded = |x: Expr| x.str().strip_chars(lit(NULL)).str().to_lowercase();
+        aggs.push(
+            c_.clone()
+                .and(folded(o.clone()).eq(folded(n.clone())))
+                .fill_null(false)
+                .sum()
+                .cast(DataType::UInt64)
+                .alias("f"),
+        );
+    }
     let counts = cells.clone().lazy().select(aggs).collect()?;
     let get = |name: &str| -> Result<u64> { Ok(counts.column(name)?.u64()?.get(0).unwrap_or(0)) };
     let counted = Counted {
@@ -127,6 +140,10 @@ pub(super) fn changes(
         largest_change: match numbers {
             None => None,
             Some(_) => counts.column("x")?.f64()?.get(0),
+        },
+        case_or_spaces_only: match kind {
+            Kind::Text => Some(get("f")?),
+            _ => None,
         },
     };
     let difference = match numbers {

@@ -66,6 +66,10 @@ pub struct ColumnChanges {
     pub became_present: u64,
     /// The largest absolute change among changed numbers.
     pub largest_change: Option<f64>,
+    /// Of the cells changed, text the same but for letter case or surrounding spaces (text
+    /// columns only).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub case_or_spaces_only: Option<u64>,
 }
 
 /// The comparison, as `--format json` writes it.
@@ -474,6 +478,7 @@ pub fn compare(old: &Side, new: &Side, tolerance: &Tolerance) -> Result<(Compari
             became_missing: counted.became_missing,
             became_present: counted.became_present,
             largest_change: counted.largest_change,
+            case_or_spaces_only: counted.case_or_spaces_only,
         });
         ledger.push(changed);
     }

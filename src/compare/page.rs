@@ -133,6 +133,19 @@ pub(crate) fn page(c: &Comparison) -> Page {
             list(&c.columns_removed)
         )));
     }
+    let folded: Vec<String> = c
+        .columns
+        .iter()
+        .filter_map(|k| Some((k, k.case_or_spaces_only.filter(|n| *n > 0)?)))
+        .map(|(k, n)| format!("`{}` {n} of {}", k.column, k.cells_changed))
+        .collect();
+    if c.cells_checked && !folded.is_empty() {
+        cells.push(Block::Note(format!(
+            "Text changed only in letter case or surrounding spaces (`Mills` and `MILLS `): {}. \
+             The same words written another way, perhaps by a new export; they count as changed.",
+            folded.join(", ")
+        )));
+    }
     if !c.same_values.is_empty() {
         let pairs: Vec<String> = c
             .same_values

@@ -4,7 +4,8 @@
       writes OUTDIR/old.csv (the demo bundle's cleaned panel without `source_row`) and
       OUTDIR/new.csv: a seeded copy with firm-years removed and added, a whole firm removed,
       numbers changed (some within, some beyond the tolerance the test passes), text changed,
-      values blanked and filled, two columns renamed and one copied under a new name.
+      values blanked and filled, text changed only in case and spaces, two columns renamed
+      and one copied under a new name.
   handoff.py compare OUTDIR SUMMARY_JSON CHANGES_CSV
       recounts with pandas what `compare` reports: firm-years and entities added and removed,
       and per column the cells changed beyond |new - old| > abs + rel * |old| (abs 0,
@@ -85,6 +86,11 @@ def perturb(panel_csv, outdir):
     new.loc[idx[37:39], "op_profit"] = np.nan
     blank = new.index[new["rnd_spend"].isna()][:1]
     new.loc[blank, "rnd_spend"] = 12.5
+    # Seven other firm-years' sector in capitals with a trailing space: changed only in case
+    # and spaces.
+    rest = [i for i in new.index[:-3] if i not in set(idx)]
+    recased = np.random.default_rng(11).choice(rest, 7, replace=False)
+    new.loc[recased, "sector"] = new.loc[recased, "sector"].str.upper() + " "
     # Two columns renamed, their values kept (a provider's new field names), and a copy of a
     # column both vintages keep under a new name: only the renamed pairs hold a removed
     # column's values.
@@ -130,6 +136,13 @@ def compare(outdir, summary_json, changes_csv):
         changed = presence | (o.notna() & n.notna() & value)
         check(f"{c}: cells changed", int(changed.sum()) == by_col[c]["cells_changed"],
               (int(changed.sum()), by_col[c]))
+        if not pd.api.types.is_numeric_dtype(o) and not pd.api.types.is_numeric_dtype(n):
+            fold = lambda x: x.astype(str).str.strip().str.lower()
+            folded = int((changed & o.notna() & n.notna() & (fold(o) == fold(n))).sum())
+            check(f"{c}: case or spaces only", by_col[c].get("case_or_spaces_only") == folded,
+                  (by_col[c].get("case_or_spaces_only"), folded))
+            if c == "sector":
+                check("sector recased planted", folded == 7, folded)
         check(f"{c}: became missing", int((o.notna() & n.isna()).sum()) == by_col[c]["became_missing"])
         check(f"{c}: became present", int((o.isna() & n.notna()).sum()) == by_col[c]["became_present"])
         for _, r in both[changed].iterrows():
