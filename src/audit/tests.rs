@@ -184,6 +184,16 @@ fn key_frames_count_each_key_once() {
     assert_eq!(ids, [Some("a"), Some("b")]);
 }
 
+/// The variation line of `v`, the one variable of `df` besides the keys `f` and `y`, its text
+/// held as codes (it must repeat enough to be).
+fn categorical_line(mut df: DataFrame, v: &str, options: Options) -> crate::report::VariationLine {
+    crate::core::hold_text_as_codes(&mut df, &["f".to_string()]).unwrap();
+    let column = df.column(v).unwrap();
+    assert!(crate::core::is_coded(column.dtype()) || column.dtype().is_integer());
+    let ctx = Context::new(&df, "f", "y", options).unwrap();
+    super::variation::categorical(&ctx).unwrap().remove(0)
+}
+
 #[test]
 fn a_text_variable_counts_its_values_and_the_first_of_the_most_common() {
     // Worked by hand: 126 rows; `Docks` on rows 0, 3, …, 123 and `Mills` on rows 1, 4, …,
@@ -199,13 +209,10 @@ fn a_text_variable_counts_its_values_and_the_first_of_the_most_common() {
             _ => None,
         })
         .collect();
-    let mut df = df!("f" => f, "y" => y, "sector" => sector).unwrap();
-    crate::core::hold_text_as_codes(&mut df, &["f".to_string()]).unwrap();
-    assert!(crate::core::is_coded(df.column("sector").unwrap().dtype()));
-    let ctx = Context::new(&df, "f", "y", Options::default()).unwrap();
-    let lines = super::variation::categorical(&ctx).unwrap();
-    let t = lines[0].text_values.clone().unwrap();
-    assert_eq!((lines[0].variable.as_str(), lines[0].n), ("sector", 85));
+    let df = df!("f" => f, "y" => y, "sector" => sector).unwrap();
+    let line = categorical_line(df, "sector", Options::default());
+    let t = line.text_values.clone().unwrap();
+    assert_eq!((line.variable.as_str(), line.n), ("sector", 85));
     assert_eq!(
         t,
         crate::report::TextValues {
@@ -229,12 +236,10 @@ fn a_text_variable_counts_its_values_and_the_first_of_the_most_common() {
             _ => Some("C"),
         })
         .collect();
-    let mut df = df!("f" => f, "y" => y, "sector" => sector).unwrap();
-    crate::core::hold_text_as_codes(&mut df, &["f".to_string()]).unwrap();
-    assert!(crate::core::is_coded(df.column("sector").unwrap().dtype()));
-    let ctx = Context::new(&df, "f", "y", Options::default()).unwrap();
-    let lines = super::variation::categorical(&ctx).unwrap();
-    let t = lines[0].text_values.clone().unwrap();
+    let df = df!("f" => f, "y" => y, "sector" => sector).unwrap();
+    let t = categorical_line(df, "sector", Options::default())
+        .text_values
+        .unwrap();
     assert_eq!((t.distinct, t.entities_changing), (3, 10));
     // Worked by hand: an industry code declared categorical, 20 firms of two years: firms
     // with an even number hold 2834, the odd ones 3571, and F07 moves from 3571 to 6021 in its
@@ -253,10 +258,9 @@ fn a_text_variable_counts_its_values_and_the_first_of_the_most_common() {
         categorical: vec!["sic".into()],
         ..Options::default()
     };
-    let ctx = Context::new(&df, "f", "y", options).unwrap();
-    let lines = super::variation::categorical(&ctx).unwrap();
+    let line = categorical_line(df, "sic", options);
     assert_eq!(
-        lines[0].text_values,
+        line.text_values,
         Some(crate::report::TextValues {
             distinct: 3,
             most_common: "2834".into(),
@@ -264,5 +268,5 @@ fn a_text_variable_counts_its_values_and_the_first_of_the_most_common() {
             entities_changing: 1,
         })
     );
-    assert!(lines[0].absorbed_by.is_none());
+    assert!(line.absorbed_by.is_none());
 }
