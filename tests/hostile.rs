@@ -1592,6 +1592,30 @@ fn digits_grouped_by_spaces_are_numbers_and_signed_amounts_are_noted() {
     );
 }
 
+/// Years written with two digits (98, 99, 00, 01) were taken as periods 0 to 99 without a
+/// word: 99 and 00 are then 99 periods apart and a lag across them is missing. A period
+/// column whose name says years, holding 0 to 99 only, gets a note; a running count of
+/// quarters in a column named `quarter` does not. Worked by hand.
+#[test]
+fn two_digit_years_are_noted() {
+    let (report, _) = audit_csv("firm,year,x\nA,98,1\nA,99,2\nA,0,3\nA,1,4\nB,99,5\nB,0,6\n");
+    assert_eq!(
+        report["input"]["notes"],
+        serde_json::json!([
+            "period column `year` holds 0 to 99: years written with two digits? Write them in \
+             full (2001), or `99` and `00` are 99 periods apart, not one, and every lag across \
+             them is missing"
+        ])
+    );
+    let w = Workdir::new();
+    w.write("q.csv", "firm,quarter,x\nA,1,1\nA,2,2\nB,1,3\nB,2,4\n");
+    let r = w.ok(&[
+        "audit", "q.csv", "--entity", "firm", "--period", "quarter", "--format", "json",
+    ]);
+    let report: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+    assert!(report["input"]["notes"].is_null(), "{}", report["input"]);
+}
+
 /// A number beyond the floats' range beside a marker for a missing one kept the column text
 /// (each alone was read); now it is numbers, the infinity and the marker missing and noted.
 /// Worked by hand: x has 2 and 3 left, mean 2.5.

@@ -387,8 +387,8 @@ pub fn load(
     let df = df.lazy().with_columns(casts).collect()?;
     let (df, decimals) = decimals_as_floats(df, &[&cfg.entity, &cfg.period])?;
     let (df, non_finite) = non_finite_as_missing(df, &[&cfg.entity, &cfg.period])?;
-    check_window(&df, cfg)?;
     let (sheet, mut notes) = sheet.map_or((None, Vec::new()), |s| (Some(s.name), s.notes));
+    notes.extend(check_window(&df, cfg)?);
     notes.extend(unnamed);
     notes.extend(coded_notes(&coded));
     notes.extend(coded_notes(&coded_further));

@@ -1,5 +1,6 @@
 //! The period column: read as whole numbers (`period_as_int`, `check_period`), at most
-//! `rules::MAX_WINDOW_PERIODS` of them from the first to the last (`check_window`), or derived
+//! `rules::MAX_WINDOW_PERIODS` of them from the first to the last (`check_window`, which
+//! notes years written with two digits), or derived
 //! from a fiscal-year-end date (`fiscal_year`).
 
 use polars::prelude::*;
@@ -150,16 +151,19 @@ pub(super) fn period_as_int(period: &str, dtype: &DataType) -> Expr {
 }
 
 /// Fail when the periods (whole numbers by now) span more than a panel's window may hold,
-/// naming the rows of the first and the last period.
-pub(super) fn check_window(df: &DataFrame, cfg: &InputConfig) -> Result<()> {
+/// naming the rows of the first and the last period; else the notes on them (years written
+/// with two digits).
+pub(super) fn check_window(df: &DataFrame, cfg: &InputConfig) -> Result<Vec<String>> {
     let periods = df.column(&cfg.period)?.i64()?;
     let (Some(first), Some(last)) = (periods.min(), periods.max()) else {
-        return Ok(());
+        return Ok(Vec::new());
     };
     let window = i128::from(last) - i128::from(first) + 1;
     let most = crate::rules::MAX_WINDOW_PERIODS;
     if window <= i128::from(most) {
-        return Ok(());
+        return Ok(two_digit_years(&cfg.period, first, last)
+            .into_iter()
+            .collect());
     }
     let row_of = |value: i64| -> Result<u64> {
         let hit = df
@@ -180,6 +184,28 @@ pub(super) fn check_window(df: &DataFrame, cfg: &InputConfig) -> Result<()> {
         last_row: row_of(last)?,
         periods: window,
         most,
+    })
+}
+
+/// Names of a period column that say it holds years (common practice in accounts files).
+const YEAR_NAMES: [&str; 5] = ["year", "yr", "fy", "jahr", "annee"];
+
+/// A note when the period column's name says it holds years and every period is from 0 to
+/// 99: years written with two digits, which sort and lag wrongly across a century's turn (`99`
+/// and `00` are 99 periods apart, not one).
+fn two_digit_years(name: &str, first: i64, last: i64) -> Option<String> {
+    let n: String = name
+        .chars()
+        .filter(char::is_ascii_alphanumeric)
+        .collect::<String>()
+        .to_lowercase();
+    let yearly = YEAR_NAMES.iter().any(|y| n.contains(y));
+    (yearly && first >= 0 && last <= 99).then(|| {
+        format!(
+            "period column `{name}` holds {first} to {last}: years written with two digits? \
+             Write them in full (2001), or `99` and `00` are 99 periods apart, not one, and \
+             every lag across them is missing"
+        )
     })
 }
 
