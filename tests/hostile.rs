@@ -1594,8 +1594,9 @@ fn digits_grouped_by_spaces_are_numbers_and_signed_amounts_are_noted() {
 
 /// Years written with two digits (98, 99, 00, 01) were taken as periods 0 to 99 without a
 /// word: 99 and 00 are then 99 periods apart and a lag across them is missing. A period
-/// column whose name says years, holding 0 to 99 only, gets a note; a running count of
-/// quarters in a column named `quarter` does not. Worked by hand.
+/// column whose name says years, holding 0 to 99 only with some below 50 and some above,
+/// gets a note; years 1 and 2 of a study, and a running count of quarters in a column named
+/// `quarter`, do not. Worked by hand.
 #[test]
 fn two_digit_years_are_noted() {
     let (report, _) = audit_csv("firm,year,x\nA,98,1\nA,99,2\nA,0,3\nA,1,4\nB,99,5\nB,0,6\n");
@@ -1607,8 +1608,10 @@ fn two_digit_years_are_noted() {
              them is missing"
         ])
     );
+    let (report, _) = audit_csv("firm,year,x\nA,1,1\nA,2,2\nB,1,3\nB,2,4\n");
+    assert!(report["input"]["notes"].is_null(), "{}", report["input"]);
     let w = Workdir::new();
-    w.write("q.csv", "firm,quarter,x\nA,1,1\nA,2,2\nB,1,3\nB,2,4\n");
+    w.write("q.csv", "firm,quarter,x\nA,1,1\nA,2,2\nB,1,3\nB,50,4\n");
     let r = w.ok(&[
         "audit", "q.csv", "--entity", "firm", "--period", "quarter", "--format", "json",
     ]);

@@ -191,8 +191,9 @@ pub(super) fn check_window(df: &DataFrame, cfg: &InputConfig) -> Result<Vec<Stri
 const YEAR_NAMES: [&str; 5] = ["year", "yr", "fy", "jahr", "annee"];
 
 /// A note when the period column's name says it holds years and every period is from 0 to
-/// 99: years written with two digits, which sort and lag wrongly across a century's turn (`99`
-/// and `00` are 99 periods apart, not one).
+/// 99, some below 50 and some above: years written with two digits across a century's turn,
+/// which sort and lag wrongly there (`99` and `00` are 99 periods apart, not one). Two-digit
+/// years on one side of the turn (`05` to `15`) are consecutive whole numbers all the same.
 fn two_digit_years(name: &str, first: i64, last: i64) -> Option<String> {
     let n: String = name
         .chars()
@@ -200,7 +201,7 @@ fn two_digit_years(name: &str, first: i64, last: i64) -> Option<String> {
         .collect::<String>()
         .to_lowercase();
     let yearly = YEAR_NAMES.iter().any(|y| n.contains(y));
-    (yearly && first >= 0 && last <= 99).then(|| {
+    (yearly && first >= 0 && first < 50 && last >= 50 && last <= 99).then(|| {
         format!(
             "period column `{name}` holds {first} to {last}: years written with two digits? \
              Write them in full (2001), or `99` and `00` are 99 periods apart, not one, and \
