@@ -201,7 +201,7 @@ fn two_digit_years(name: &str, first: i64, last: i64) -> Option<String> {
         .collect::<String>()
         .to_lowercase();
     let yearly = YEAR_NAMES.iter().any(|y| n.contains(y));
-    (yearly && first >= 0 && first < 50 && last >= 50 && last <= 99).then(|| {
+    (yearly && (0..50).contains(&first) && (50..=99).contains(&last)).then(|| {
         format!(
             "period column `{name}` holds {first} to {last}: years written with two digits? \
              Write them in full (2001), or `99` and `00` are 99 periods apart, not one, and \
