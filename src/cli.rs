@@ -38,16 +38,18 @@ pub(crate) enum CliCommand {
     #[command(subcommand)]
     Rules(RulesCommand),
     /// Compare two vintages of one panel (two raw files or two bundles): firm-years and
-    /// entities added and removed, cells changed beyond a tolerance (exit 1 if anything
+    /// entities added and removed, columns added and removed (and those holding the same
+    /// values under another name), cells changed beyond a tolerance (exit 1 if anything
     /// changed).
     Compare(CompareArgs),
 }
 
 #[derive(Debug, Subcommand)]
 pub(crate) enum RulesCommand {
-    /// Write a starter rules file guessed from DATA: the entity and period columns, the
-    /// canonical columns from common raw names (every guess commented), the standard library,
-    /// the ratios it can compute, commented [clean] and [model] sections.
+    /// Write a starter rules file guessed from DATA: the entity and period columns (the period
+    /// from fiscal-year-end dates where no column of years fits), number codes of categories,
+    /// the canonical columns from common raw names (every guess commented), the standard
+    /// library, the ratios it can compute, commented [clean] and [model] sections.
     Draft(DraftArgs),
 }
 
