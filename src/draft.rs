@@ -6,7 +6,7 @@
 use polars::prelude::*;
 
 use crate::derive::Plan;
-use crate::rules::{Rules, CANONICAL_COLUMNS};
+use crate::rules::{name_suggests, plain_name, Rules, CANONICAL_COLUMNS};
 use crate::{Error, Result};
 use year_end::{guess_year_end, unused_name, YEAR_END_CUTOFF};
 
@@ -118,23 +118,11 @@ const SYNONYMS: [(&str, &[&str]); 10] = [
     ),
 ];
 
-fn normal(name: &str) -> String {
-    name.chars()
-        .filter(|c| c.is_ascii_alphanumeric())
-        .flat_map(|c| c.to_lowercase())
-        .collect()
-}
-
 /// Names that suggest a period column, and an entity column (common practice).
 const PERIOD_HINTS: [&str; 6] = ["year", "fyear", "fiscal", "period", "yr", "jahr"];
 const ENTITY_HINTS: [&str; 8] = [
     "firm", "company", "entity", "id", "code", "ticker", "isin", "name",
 ];
-
-fn hinted(name: &str, hints: &[&str]) -> bool {
-    let n = normal(name);
-    hints.iter().any(|h| n.contains(h))
-}
 
 /// A guessed key with what the guess rests on.
 struct Guess {
@@ -187,7 +175,7 @@ fn guess_period(df: &DataFrame) -> Option<Guess> {
             v.dedup();
             v.len()
         };
-        let hint = hinted(name, &PERIOD_HINTS);
+        let hint = name_suggests(name, &PERIOD_HINTS);
         let (lo, hi) = (
             values.iter().min().copied().unwrap_or(0),
             values.iter().max().copied().unwrap_or(0),
@@ -231,7 +219,7 @@ fn guess_categories(df: &DataFrame, keys: &[&str]) -> Result<Vec<String>> {
         if keys.contains(&name.as_str()) || !c.dtype().is_integer() {
             continue;
         }
-        if !hinted(name, &CATEGORY_HINTS) {
+        if !name_suggests(name, &CATEGORY_HINTS) {
             continue;
         }
         let distinct = c.drop_nulls().n_unique()?;
@@ -284,7 +272,7 @@ fn guess_entity(df: &DataFrame, period: &str) -> Result<Option<Guess>> {
         if share < 0.99 || !repeats {
             continue;
         }
-        let hint = hinted(name, &ENTITY_HINTS);
+        let hint = name_suggests(name, &ENTITY_HINTS);
         let repeated = with_keys - pairs;
         let guess = Guess {
             column: name.to_string(),
@@ -373,11 +361,13 @@ pub fn draft(df: &DataFrame, file_name: &str) -> Result<String> {
         .collect();
     let mut mapping = Vec::new();
     for (canonical, synonyms) in SYNONYMS {
-        let exact = names.iter().find(|n| normal(n) == normal(canonical));
+        let exact = names
+            .iter()
+            .find(|n| plain_name(n) == plain_name(canonical));
         let guess = exact.or_else(|| {
             names
                 .iter()
-                .find(|n| synonyms.contains(&normal(n).as_str()))
+                .find(|n| synonyms.contains(&plain_name(n).as_str()))
         });
         if let Some(raw) = guess {
             let year_end = year_end.as_ref().map(|g| g.column.as_str());

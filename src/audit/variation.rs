@@ -443,9 +443,19 @@ pub(super) fn categorical(ctx: &Context) -> Result<Vec<VariationLine>> {
                 Compared::Text(text) => holds_one_value(group, groups, text.str()?.iter()),
             })
         };
+        let text_values = match &compared {
+            Compared::Codes(codes) => most_common(codes, column, &core.starts)?,
+            Compared::Text(_) => None,
+        };
+        // Codes: an entity holds one value when it is not among those whose value changes,
+        // counted above; text: its own pass.
+        let one_per_entity = match &text_values {
+            Some(t) => t.entities_changing == 0,
+            None => one_value(&core.entity, core.entities())?,
+        };
         let absorbed_by = if n < 2 {
             None
-        } else if one_value(&core.entity, core.entities())? {
+        } else if one_per_entity {
             Some(Absorbed::Entity)
         } else if one_value(&core.period, core.periods.len())? {
             Some(Absorbed::Period)
@@ -463,10 +473,7 @@ pub(super) fn categorical(ctx: &Context) -> Result<Vec<VariationLine>> {
             two_way_share: None,
             zero_within_entities: 0,
             spread: None,
-            text_values: match &compared {
-                Compared::Codes(codes) => most_common(codes, column, &core.starts)?,
-                Compared::Text(_) => None,
-            },
+            text_values,
             absorbed_by,
             nearly_absorbed: false,
             not_computable: None,

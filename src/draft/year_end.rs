@@ -3,7 +3,8 @@
 
 use polars::prelude::*;
 
-use super::{hinted, Guess};
+use super::Guess;
+use crate::rules::name_suggests;
 
 /// Names that suggest a fiscal-year-end date (common practice in accounts files).
 const YEAR_END_HINTS: [&str; 4] = ["yearend", "fye", "end", "date"];
@@ -62,7 +63,7 @@ pub(super) fn guess_year_end(df: &DataFrame) -> Option<(Guess, Int64Chunked)> {
         if lo == hi || lo < 1900 || hi > 2100 {
             continue;
         }
-        let hint = hinted(name, &YEAR_END_HINTS);
+        let hint = name_suggests(name, &YEAR_END_HINTS);
         let guess = Guess {
             column: name.to_string(),
             why: format!(

@@ -260,13 +260,13 @@ const UNIT_SIGNS: [char; 5] = ['$', '€', '£', '¥', '%'];
 /// when most of its first values are numbers once the sign is taken off (`$1,200`, `12%`,
 /// `-€5`) and some carry one; None otherwise. A guess at the unit would decide what the
 /// number means (a share or a percentage, which currency), so such a column is only noted.
-fn signed_amounts(values: &StringChunked, decimal_comma: bool) -> Option<(usize, &str)> {
+pub(super) fn signed_amounts(values: &StringChunked, decimal_comma: bool) -> Option<(usize, &str)> {
     mostly_numbers_when(values, |v| unit_signed(v, decimal_comma))
 }
 
 /// Whether `v` is a number once a currency or percent sign is taken off it (`$1,200`,
 /// `12%`, `-€5`): None when it is not a number even so, else whether it had such a sign.
-pub(super) fn unit_signed(v: &str, decimal_comma: bool) -> Option<bool> {
+fn unit_signed(v: &str, decimal_comma: bool) -> Option<bool> {
     let t = v.trim();
     let (sign, body) = match t.strip_prefix('-') {
         Some(rest) => ("-", rest.trim_start()),

@@ -195,12 +195,7 @@ const YEAR_NAMES: [&str; 5] = ["year", "yr", "fy", "jahr", "annee"];
 /// which sort and lag wrongly there (`99` and `00` are 99 periods apart, not one). Two-digit
 /// years on one side of the turn (`05` to `15`) are consecutive whole numbers all the same.
 fn two_digit_years(name: &str, first: i64, last: i64) -> Option<String> {
-    let n: String = name
-        .chars()
-        .filter(char::is_ascii_alphanumeric)
-        .collect::<String>()
-        .to_lowercase();
-    let yearly = YEAR_NAMES.iter().any(|y| n.contains(y));
+    let yearly = crate::rules::name_suggests(name, &YEAR_NAMES);
     (yearly && (0..50).contains(&first) && (50..=99).contains(&last)).then(|| {
         format!(
             "period column `{name}` holds {first} to {last}: years written with two digits? \

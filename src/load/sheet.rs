@@ -373,28 +373,21 @@ pub fn read(path: &Path, sheet: Option<&str>, text: &[&str]) -> Result<Sheet> {
             }
             Some(t) => {
                 // Text that is a number but for a currency or percent sign, in most cells
-                // holding something: the sign decides the unit, so the column stays text.
-                let filled: Vec<(usize, &str)> = body
+                // holding text: the sign decides the unit, so the column stays text (the CSV
+                // reader's test, on the column's text cells).
+                let text: StringChunked = body
                     .iter()
-                    .enumerate()
-                    .filter_map(|(i, r)| match r.get(j) {
-                        Some(Data::String(v)) if !v.trim().is_empty() => Some((i, v.as_str())),
+                    .map(|r| match r.get(j) {
+                        Some(Data::String(v)) if !v.trim().is_empty() => Some(v.as_str()),
                         _ => None,
                     })
                     .collect();
-                let signed = filled
-                    .iter()
-                    .find(|(_, v)| super::markers::unit_signed(v, false) == Some(true));
-                let amounts = filled
-                    .iter()
-                    .filter(|(_, v)| super::markers::unit_signed(v, false).is_some())
-                    .count();
-                if let (Some((i, v)), true) = (signed, 2 * amounts >= filled.len()) {
+                if let Some((row, v)) = super::markers::signed_amounts(&text, false) {
                     notes.push(format!(
                         "column `{name_j}` stays text: its values are numbers written with a \
                          currency or percent sign (sheet row {} holds `{v}`); take the sign out \
                          (and say in a label what the unit is) to use them as numbers",
-                        sheet_row(*i)
+                        sheet_row(row - 1)
                     ));
                 } else if numbers + number_like > 0 {
                     notes.push(format!(

@@ -30,6 +30,22 @@ pub const STANDARD_LIBRARY: &str = include_str!("../../rules/standard.toml");
 /// lag would be wrong, and the chart as large as the window. Also the longest lag or lead.
 pub const MAX_WINDOW_PERIODS: i64 = 1_000;
 
+/// A column name as names are compared when one is guessed from it: lower case, letters and
+/// digits only (`Total Assets` and `total_assets` are `totalassets`).
+pub(crate) fn plain_name(name: &str) -> String {
+    name.chars()
+        .filter(|c| c.is_ascii_alphanumeric())
+        .flat_map(|c| c.to_lowercase())
+        .collect()
+}
+
+/// Whether column `name`, as [`plain_name`] writes it, holds one of `hints` (`fiscal_year`
+/// holds `year`).
+pub(crate) fn name_suggests(name: &str, hints: &[&str]) -> bool {
+    let n = plain_name(name);
+    hints.iter().any(|h| n.contains(h))
+}
+
 /// Canonical columns that hold levels (amounts), searched for unit slips by default.
 pub const LEVEL_COLUMNS: [&str; 8] = [
     "total_assets",
