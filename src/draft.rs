@@ -211,7 +211,8 @@ const CATEGORY_HINTS: [&str; 10] = [
 ];
 
 /// Columns of whole numbers that by their name are codes of categories, besides `keys`: each
-/// with two or more distinct values, and at most one in sixteen rows.
+/// with two or more distinct values, and at most one in sixteen rows (the share at which the
+/// loader holds text as codes, `core::text`: values that repeat, not an identifier).
 fn guess_categories(df: &DataFrame, keys: &[&str]) -> Result<Vec<String>> {
     let mut found = Vec::new();
     for name in df.get_column_names() {

@@ -253,7 +253,8 @@ fn grouped(t: &str, decimal_comma: bool) -> Option<Number> {
     }
 }
 
-/// Signs that make a number an amount in a unit: currencies and the percent sign.
+/// Signs that make a number an amount in a unit: the currencies an export most often writes
+/// beside a number, and the percent sign (common practice).
 const UNIT_SIGNS: [char; 5] = ['$', '€', '£', '¥', '%'];
 
 /// The data row and value of the first of `values` written with a currency or percent sign,
