@@ -67,14 +67,22 @@ pub struct PanelCore {
 }
 
 /// What the moments' passes leave for the two-way residual: each entity's sum and count of
-/// values, each period's count of values, and the period sums of the entity-demeaned values.
+/// values, each period's count of values, the period sums of the entity-demeaned values and
+/// their sum of squares.
 #[derive(Debug, Clone)]
 pub struct TwoWaySums {
     e_sum: Vec<f64>,
     e_n: Vec<u32>,
     p_n: Vec<u64>,
     b: Vec<f64>,
+    wss: f64,
 }
+
+/// The two-way residual sum of squares is read from the period system's solution, without a
+/// pass of its own, when it is at least this share of the sum of squares around the entity
+/// means; below it, the difference of two sums that nearly cancel would lose digits (an age
+/// whose residual is zero), and the residual is summed row by row instead.
+const RESIDUAL_BY_DIFFERENCE: f64 = 1e-2;
 
 impl PanelCore {
     /// Codes for `df`, which must be sorted by `entity` then `period`; rows missing a key are
@@ -223,7 +231,16 @@ impl PanelCore {
             sd_between,
             flat,
         };
-        (moments, TwoWaySums { e_sum, e_n, p_n, b })
+        (
+            moments,
+            TwoWaySums {
+                e_sum,
+                e_n,
+                p_n,
+                b,
+                wss,
+            },
+        )
     }
 
     /// Residual sum of squares of `x` on entity and period effects together, exactly: remove
@@ -310,8 +327,11 @@ impl PanelCore {
     }
 
     /// [`PanelCore::two_way`] from the sums of [`PanelCore::moments_and_sums`] on the same
-    /// `x`: the period system (built once for variables with a value on every row), its
-    /// solution, and one pass for the residual.
+    /// `x`: the period system (built once for variables with a value on every row) and its
+    /// solution. The period effects explain b'beta of the entity-demeaned sum of squares (the
+    /// normal equations A beta = b, Frisch–Waugh–Lovell), so the residual is what is left of
+    /// it; only where that is a small part of it (see [`RESIDUAL_BY_DIFFERENCE`]) is it summed
+    /// by one more pass over the rows.
     pub fn two_way_from(&self, x: &Values, sums: &TwoWaySums) -> f64 {
         let x = x.view();
         let nt = self.periods.len();
@@ -322,8 +342,12 @@ impl PanelCore {
         } else {
             self.period_system(&x, sums)
         };
-        let b = sums.b.clone();
-        let beta = solve_psd(DMatrix::from_row_slice(nt, nt, &a), &DVector::from_vec(b));
+        let b = DVector::from_vec(sums.b.clone());
+        let beta = solve_psd(DMatrix::from_row_slice(nt, nt, &a), &b);
+        let left = sums.wss - b.dot(&beta);
+        if left >= RESIDUAL_BY_DIFFERENCE * sums.wss {
+            return left;
+        }
         match x.parts() {
             (values, None) => self.residual(values, |_| true, &beta, sums),
             (values, Some(ok)) => self.residual(values, |r| ok[r], &beta, sums),
