@@ -94,6 +94,7 @@ pub(super) fn dictionary_md(entries: &[crate::pipeline::DictionaryEntry]) -> Str
             cell(&e.treatment),
         ));
     }
+    out.push_str(&keys_md(entries));
     let numbers: Vec<String> = entries
         .iter()
         .filter_map(|e| {
@@ -162,10 +163,49 @@ pub(super) fn dictionary_md(entries: &[crate::pipeline::DictionaryEntry]) -> Str
     out
 }
 
+/// The keys in words: the entities the entity key names, the periods the period key holds,
+/// and the rows, each one entity in one period (the key steps leave no key twice).
+fn keys_md(entries: &[crate::pipeline::DictionaryEntry]) -> String {
+    let entity = entries
+        .iter()
+        .find_map(|e| Some((&e.name, e.values.as_ref()?.entities?, e.values.as_ref()?.n)));
+    let period = entries
+        .iter()
+        .find_map(|e| Some((&e.name, e.values.as_ref()?.periods?)));
+    let Some((entity, entities, rows)) = entity else {
+        return String::new();
+    };
+    let plural = |n: u64, one: &str, many: &str| match n {
+        1 => format!("1 {one}"),
+        n => format!("{n} {many}"),
+    };
+    let periods = match period {
+        Some((name, p)) if p.first == p.last => {
+            format!(" and `{name}` 1 period, {}", p.first)
+        }
+        Some((name, p)) => format!(
+            " and `{name}` {} from {} to {}",
+            plural(p.periods, "period", "periods"),
+            p.first,
+            p.last
+        ),
+        None => String::new(),
+    };
+    let each = match rows {
+        1 => "its one row is".to_string(),
+        n => format!("each of the {n} rows is"),
+    };
+    format!(
+        "\n## The keys\n\n`{entity}` names {}{periods}; {each} one entity in one period, \
+         none twice.\n",
+        plural(entities, "entity", "entities"),
+    )
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::pipeline::{ColumnValues, DictionaryEntry};
+    use crate::pipeline::{ColumnValues, DictionaryEntry, PeriodsObserved};
     use crate::report::{Spread, TextValues};
 
     fn entry(name: &str, kind: &str, values: ColumnValues) -> DictionaryEntry {
@@ -202,6 +242,8 @@ mod tests {
                     n: 4,
                     spread: Some(spread(2.0, 3.0, 10.5, 19.0, 40.0)),
                     text: None,
+                    entities: None,
+                    periods: None,
                 },
             ),
             entry(
@@ -211,6 +253,8 @@ mod tests {
                     n: 3,
                     spread: Some(spread(-0.5, 0.0, 0.125, 2.0, 3.0)),
                     text: None,
+                    entities: None,
+                    periods: None,
                 },
             ),
             entry(
@@ -225,6 +269,8 @@ mod tests {
                         most_common_rows: 5,
                         entities_changing: 1,
                     }),
+                    entities: None,
+                    periods: None,
                 },
             ),
         ];
@@ -243,6 +289,62 @@ mod tests {
         );
         assert!(
             md.contains("| `sector` | 8 | 3 | Docks | 62.5% | 1 |"),
+            "{md}"
+        );
+        assert!(!md.contains("## The keys"), "{md}");
+    }
+
+    /// Worked by hand: the keys' sentence, with a gap in the periods (4 of 2019..2024), with
+    /// one period, and with one entity and one row.
+    #[test]
+    fn the_dictionary_names_the_keys_entities_and_periods() {
+        let key = |name: &str, kind: &str, n, entities, periods| {
+            entry(
+                name,
+                kind,
+                ColumnValues {
+                    n,
+                    spread: None,
+                    text: None,
+                    entities,
+                    periods,
+                },
+            )
+        };
+        let observed = |periods, first, last| PeriodsObserved {
+            periods,
+            first,
+            last,
+        };
+        let md = dictionary_md(&[
+            key("firm", "text", 9, Some(3), None),
+            key(
+                "year",
+                "whole number",
+                9,
+                None,
+                Some(observed(4, 2019, 2024)),
+            ),
+        ]);
+        assert!(
+            md.contains(
+                "## The keys\n\n`firm` names 3 entities and `year` 4 periods from 2019 to \
+                 2024; each of the 9 rows is one entity in one period, none twice.\n"
+            ),
+            "{md}"
+        );
+        let md = dictionary_md(&[
+            key("firm", "text", 1, Some(1), None),
+            key(
+                "year",
+                "whole number",
+                1,
+                None,
+                Some(observed(1, 2020, 2020)),
+            ),
+        ]);
+        assert!(
+            md.contains("`firm` names 1 entity and `year` 1 period, 2020; its one row is one"),
             "{md}"
         );
     }

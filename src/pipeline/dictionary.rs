@@ -62,12 +62,40 @@ pub(super) fn dictionary(
     let variation = findings
         .get::<VariationFigures>()
         .map_or(&[][..], |f| &f.lines);
+    // The keys: the panel at a glance (of the cleaned panel, as handed over).
+    let glance = report.cleaned.as_ref().map_or(&report.panel, |c| &c.panel);
     let values = |name: &str| {
+        let key = ColumnValues {
+            n: glance.rows,
+            spread: None,
+            text: None,
+            entities: None,
+            periods: None,
+        };
+        if name == input.entity {
+            return Some(ColumnValues {
+                entities: Some(glance.entities),
+                ..key
+            });
+        }
+        if name == input.period {
+            let periods = glance
+                .first_period
+                .zip(glance.last_period)
+                .map(|(first, last)| PeriodsObserved {
+                    periods: glance.periods,
+                    first,
+                    last,
+                });
+            return Some(ColumnValues { periods, ..key });
+        }
         let line = variation.iter().find(|l| l.variable == name)?;
         (line.spread.is_some() || line.text_values.is_some()).then(|| ColumnValues {
             n: line.n,
             spread: line.spread,
             text: line.text_values.clone(),
+            entities: None,
+            periods: None,
         })
     };
     let schema = crate::core::spelled_out_schema(panel.schema());

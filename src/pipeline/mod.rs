@@ -110,8 +110,8 @@ pub struct DictionaryEntry {
     /// Its type in the panel, in words (`whole number`, `number`, `text`, `date`, ...).
     #[serde(rename = "type")]
     pub kind: String,
-    /// Where its values lie in the cleaned panel, for a variable the checks describe (not the
-    /// keys or `source_row`; not text whose values nearly all differ).
+    /// Where its values lie in the cleaned panel, for a variable the checks describe and for
+    /// the keys (not `source_row`; not text whose values nearly all differ).
     pub values: Option<ColumnValues>,
 }
 
@@ -127,6 +127,23 @@ pub struct ColumnValues {
     /// Distinct values and the most common one (text held as codes).
     #[serde(flatten, skip_serializing_if = "Option::is_none")]
     pub text: Option<crate::report::TextValues>,
+    /// The entity key's distinct values: the entities.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub entities: Option<u64>,
+    /// The period key's periods observed, the first and the last.
+    #[serde(flatten, skip_serializing_if = "Option::is_none")]
+    pub periods: Option<PeriodsObserved>,
+}
+
+/// The periods the period key holds in the cleaned panel.
+#[derive(Debug, Clone, Copy, serde::Serialize)]
+pub struct PeriodsObserved {
+    /// Distinct periods.
+    pub periods: u64,
+    /// The first period.
+    pub first: i64,
+    /// The last period.
+    pub last: i64,
 }
 
 /// Run the pipeline on one input: the stages in order, each in its own module.

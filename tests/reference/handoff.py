@@ -216,7 +216,8 @@ def dictionary_values(bundle, dictionary):
     """Each column's type and where its values lie, recomputed from panel.parquet with pyarrow
     (the type) and pandas: a number's count, min, quantiles (linear interpolation, pandas'
     default: Hyndman & Fan 1996 type 7) and max over the non-missing values; a text's count,
-    distinct values and most common value (of those tied, the first met in the file's order)."""
+    distinct values and most common value (of those tied, the first met in the file's order);
+    the keys' rows, entities, periods, first and last period."""
     import pyarrow as pa
     import pyarrow.parquet as pq
 
@@ -233,8 +234,19 @@ def dictionary_values(bundle, dictionary):
                 or pa.types.is_string_view(t) else str(t))
         check(f"{name} type", entry["type"] == want, (entry["type"], want))
         x = panel[name].dropna()
-        if name in keys:
+        if name == "source_row":
             check(f"{name} no values", values is None, values)
+            continue
+        if name in keys:
+            # The keys: every row has both (pandas' count), the entities and the periods are
+            # their distinct values (nunique), the first and last periods their min and max.
+            want = {"n": len(panel)}
+            if name == "firm_id":
+                want["entities"] = int(panel[name].nunique())
+            else:
+                want.update(periods=int(panel[name].nunique()), first=int(panel[name].min()),
+                            last=int(panel[name].max()))
+            check(f"{name} values", values == want, (values, want))
             continue
         check(f"{name} has values", values is not None)
         if values is None:
