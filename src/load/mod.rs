@@ -19,6 +19,7 @@ mod formula;
 mod markers;
 mod not_numbers;
 mod period;
+pub(crate) use period::IsoDate;
 mod sheet;
 mod sniff;
 mod whole;

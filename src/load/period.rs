@@ -27,6 +27,76 @@ fn days_in_month(year: Expr, month: Expr) -> Expr {
         .otherwise(lit(31i64))
 }
 
+/// A text `YYYY-MM-DD` taken apart by expressions (the engine is built without its date
+/// parser): whether it is a day of the Gregorian calendar, and its year, month and day (from
+/// text that is not, whatever its digits say, or missing).
+pub(crate) struct IsoDate {
+    pub(crate) well_formed: Expr,
+    pub(crate) year: Expr,
+    pub(crate) month: Expr,
+    pub(crate) day: Expr,
+}
+
+impl IsoDate {
+    /// The parts of `text` (without surrounding spaces).
+    pub(crate) fn of(text: Expr) -> IsoDate {
+        // `len` characters from `start` of a YYYY-MM-DD date.
+        let part = |start: i32, len: i32| text.clone().str().slice(lit(start), lit(len));
+        let [year, month, day] =
+            [(0, 4), (5, 2), (8, 2)].map(|(s, l)| part(s, l).cast(DataType::Int64));
+        let well_formed = text
+            .clone()
+            .str()
+            .len_chars()
+            .eq(lit(10u32))
+            .and(part(4, 1).eq(lit("-")))
+            .and(part(7, 1).eq(lit("-")))
+            .and(year.clone().is_not_null())
+            .and(
+                month
+                    .clone()
+                    .gt_eq(lit(1))
+                    .and(month.clone().lt_eq(lit(12))),
+            )
+            .and(
+                day.clone().gt_eq(lit(1)).and(
+                    day.clone()
+                        .lt_eq(days_in_month(year.clone(), month.clone())),
+                ),
+            )
+            .fill_null(lit(false));
+        IsoDate {
+            well_formed,
+            year,
+            month,
+            day,
+        }
+    }
+
+    /// The date as the engine's date type (days since 1970-01-01), missing where the text is
+    /// not a date: the days from the civil date by counting 400-year eras of 146,097 days from
+    /// a year that starts in March (H. Hinnant, "chrono-Compatible Low-Level Date
+    /// Algorithms", `days_from_civil`, common practice). Years are shifted by one era so that
+    /// every division is of non-negative numbers (`0000-01-01` included).
+    pub(crate) fn date(self) -> Expr {
+        let march = self.month.clone().lt_eq(lit(2i64));
+        let y = self.year - when(march.clone()).then(lit(1i64)).otherwise(lit(0i64)) + lit(400i64);
+        let era = y.clone().floor_div(lit(400i64));
+        let yoe = y - era.clone() * lit(400i64);
+        let m = when(march)
+            .then(self.month.clone() + lit(9i64))
+            .otherwise(self.month - lit(3i64));
+        let doy = (lit(153i64) * m + lit(2i64)).floor_div(lit(5i64)) + self.day - lit(1i64);
+        let doe = yoe.clone() * lit(365i64) + yoe.clone().floor_div(lit(4i64))
+            - yoe.floor_div(lit(100i64))
+            + doy;
+        let days = (era - lit(1i64)) * lit(146_097i64) + doe - lit(719_468i64);
+        when(self.well_formed)
+            .then(days.cast(DataType::Int32).cast(DataType::Date))
+            .otherwise(lit(NULL).cast(DataType::Date))
+    }
+}
+
 /// Derive the period column (`cfg.period`) from a fiscal-year-end date column of text
 /// `YYYY-MM-DD`: the date's year, less one when its month is `cutoff` or earlier (common
 /// practice: a year ending January–May belongs to the previous fiscal year). A date that is not
@@ -46,30 +116,12 @@ pub(super) fn fiscal_year(
         .cast(DataType::String)
         .str()
         .strip_chars(lit(NULL));
-    // `len` characters from `start` of a YYYY-MM-DD date.
-    let part = |start: i32, len: i32| text.clone().str().slice(lit(start), lit(len));
-    let [year, month, day] =
-        [(0, 4), (5, 2), (8, 2)].map(|(s, l)| part(s, l).cast(DataType::Int64));
-    let well_formed = text
-        .clone()
-        .str()
-        .len_chars()
-        .eq(lit(10u32))
-        .and(part(4, 1).eq(lit("-")))
-        .and(part(7, 1).eq(lit("-")))
-        .and(year.clone().is_not_null())
-        .and(
-            month
-                .clone()
-                .gt_eq(lit(1))
-                .and(month.clone().lt_eq(lit(12))),
-        )
-        .and(
-            day.clone()
-                .gt_eq(lit(1))
-                .and(day.lt_eq(days_in_month(year.clone(), month.clone()))),
-        )
-        .fill_null(lit(false));
+    let IsoDate {
+        well_formed,
+        year,
+        month,
+        ..
+    } = IsoDate::of(text.clone());
     let marked = df
         .lazy()
         .with_columns([
@@ -301,5 +353,62 @@ mod tests {
         for none in ["2001", "2001/02", "2002.5", "FY01", "Q1 2001", "20011"] {
             assert_eq!(year_inside(none), None, "{none}");
         }
+    }
+
+    /// Worked by hand: days since 1970-01-01 (the engine's dates). 2000-01-01 is 30 years of
+    /// 365 days and 7 leap days (1972–1996) on, 10,957; 2000-03-01 is 31 + 29 more (2000 is a
+    /// leap year, divisible by 400); 1900-01-01 is 70 years and 17 leap days (1904–1968)
+    /// before, and 1900-03-01 31 + 28 after it (1900 is not: a century not divisible by
+    /// 400). A 29 February of a year that is not a leap year, a month 13, a day 0 and other
+    /// forms are not dates.
+    #[test]
+    fn dates_as_days_since_1970() {
+        let texts = [
+            "1970-01-01",
+            "1970-01-03",
+            "1969-12-31",
+            "2000-01-01",
+            "2000-02-29",
+            "2000-03-01",
+            "1900-01-01",
+            "1900-03-01",
+            "2024-12-31",
+            "1900-02-29",
+            "2023-02-29",
+            "2023-13-01",
+            "2023-04-00",
+            "2023-04-31",
+            "23-04-01",
+            "2023/04/01",
+            "2023-4-1",
+        ];
+        let df = df!("t" => texts).unwrap();
+        let out = df
+            .lazy()
+            .select([IsoDate::of(col("t")).date().cast(DataType::Int32)])
+            .collect()
+            .unwrap();
+        let days: Vec<Option<i32>> = out.column("t").unwrap().i32().unwrap().iter().collect();
+        let want = [
+            Some(0),
+            Some(2),
+            Some(-1),
+            Some(10_957),
+            Some(10_957 + 31 + 28),
+            Some(10_957 + 31 + 29),
+            Some(-25_567),
+            Some(-25_567 + 31 + 28),
+            // 2024-01-01: 54 years of 365 days and 13 leap days (1972–2020); 2024 is one.
+            Some(54 * 365 + 13 + 365),
+            None,
+            None,
+            None,
+            None,
+            None,
+            None,
+            None,
+            None,
+        ];
+        assert_eq!(days, want);
     }
 }

@@ -300,17 +300,22 @@ fn typed_value(
         }
         return Ok((value, dtype));
     }
+    if dtype == DataType::Date {
+        let date = crate::load::IsoDate::of(text).date();
+        if let Some(line) = line_where(given.and(date.clone().is_null()))? {
+            return Err(refuse(
+                line,
+                &format!("holds values of type {dtype} YYYY-MM-DD; the value is not one"),
+            ));
+        }
+        return Ok((date, dtype));
+    }
     if !dtype.is_primitive_numeric() {
         // Any other type (a date, say): a value the cast cannot take would become missing.
         if let Some(line) = line_where(given.and(text.clone().cast(dtype.clone()).is_null()))? {
-            let form = if dtype == DataType::Date {
-                " YYYY-MM-DD"
-            } else {
-                ""
-            };
             return Err(refuse(
                 line,
-                &format!("holds values of type {dtype}{form}; the value is not one"),
+                &format!("holds values of type {dtype}; the value is not one"),
             ));
         }
         return Ok((text, dtype));
