@@ -28,8 +28,8 @@ fn days_in_month(year: Expr, month: Expr) -> Expr {
 }
 
 /// A text `YYYY-MM-DD` taken apart by expressions (the engine is built without its date
-/// parser): whether it is a day of the Gregorian calendar, and its year, month and day (from
-/// text that is not, whatever its digits say, or missing).
+/// parser): whether it is a day of the Gregorian calendar, and its year, month and day as
+/// their digits say (to be read only where it is one).
 pub(crate) struct IsoDate {
     pub(crate) well_formed: Expr,
     pub(crate) year: Expr,
@@ -76,8 +76,9 @@ impl IsoDate {
     /// The date as the engine's date type (days since 1970-01-01), missing where the text is
     /// not a date: the days from the civil date by counting 400-year eras of 146,097 days from
     /// a year that starts in March (H. Hinnant, "chrono-Compatible Low-Level Date
-    /// Algorithms", `days_from_civil`, common practice). Years are shifted by one era so that
-    /// every division is of non-negative numbers (`0000-01-01` included).
+    /// Algorithms", `days_from_civil`, from memory; the test below checks it by hand). Years
+    /// are shifted by one era so that every division is of non-negative numbers
+    /// (`0000-01-01` included).
     pub(crate) fn date(self) -> Expr {
         let march = self.month.clone().lt_eq(lit(2i64));
         let y = self.year - when(march.clone()).then(lit(1i64)).otherwise(lit(0i64)) + lit(400i64);

@@ -311,7 +311,8 @@ fn typed_value(
         return Ok((date, dtype));
     }
     if !dtype.is_primitive_numeric() {
-        // Any other type (a date, say): a value the cast cannot take would become missing.
+        // Any other type (a date and time, say): a value the cast cannot take would become
+        // missing.
         if let Some(line) = line_where(given.and(text.clone().cast(dtype.clone()).is_null()))? {
             return Err(refuse(
                 line,
