@@ -4,6 +4,7 @@
 use polars::prelude::*;
 
 use super::Guess;
+use crate::load::IsoDate;
 use crate::rules::name_suggests;
 
 /// Names that suggest a fiscal-year-end date (common practice in accounts files).
@@ -12,23 +13,6 @@ const YEAR_END_HINTS: [&str; 4] = ["yearend", "fye", "end", "date"];
 /// The month up to which a year end belongs to the previous fiscal year, as `[panel]
 /// year_end_cutoff` defaults.
 pub(super) const YEAR_END_CUTOFF: i64 = 5;
-
-/// The year and month of a date written `YYYY-MM-DD` (the form `[panel] year_end` reads),
-/// with a day from 1 to 31 (the loader checks the month's length).
-pub(super) fn year_month(text: &str) -> Option<(i64, i64)> {
-    let b = text.trim().as_bytes();
-    if b.len() != 10 || b[4] != b'-' || b[7] != b'-' {
-        return None;
-    }
-    let number = |r: std::ops::Range<usize>| -> Option<i64> {
-        let part = std::str::from_utf8(&b[r]).ok()?;
-        part.bytes()
-            .all(|c| c.is_ascii_digit())
-            .then(|| part.parse().ok())?
-    };
-    let (year, month, day) = (number(0..4)?, number(5..7)?, number(8..10)?);
-    ((1..=12).contains(&month) && (1..=31).contains(&day)).then_some((year, month))
-}
 
 /// A column of fiscal-year-end dates, where no column of years is found: text (or dates)
 /// of which at least 99% of the values are dates `YYYY-MM-DD` between 1900 and 2100, in two
@@ -41,22 +25,31 @@ pub(super) fn guess_year_end(df: &DataFrame) -> Option<(Guess, Int64Chunked)> {
         if !matches!(c.dtype(), DataType::String | DataType::Date) {
             continue;
         }
-        let text = c.cast(&DataType::String).ok()?;
-        let dates: Vec<Option<(i64, i64)>> = text
-            .str()
-            .ok()?
-            .iter()
-            .map(|v| v.and_then(year_month))
-            .collect();
-        let present = text.len() - text.null_count();
-        let read = dates.iter().flatten().count();
+        // The dates as `[panel] year_end` reads them (`load::IsoDate`, the loader's test).
+        let date = IsoDate::of(
+            col(name.clone())
+                .cast(DataType::String)
+                .str()
+                .strip_chars(lit(NULL)),
+        );
+        let before_cutoff = when(date.month.lt_eq(lit(YEAR_END_CUTOFF)))
+            .then(lit(1i64))
+            .otherwise(lit(0i64));
+        let read = df
+            .clone()
+            .lazy()
+            .select([when(date.well_formed)
+                .then(date.year - before_cutoff)
+                .otherwise(lit(NULL).cast(DataType::Int64))
+                .alias("fiscal")])
+            .collect()
+            .ok()?;
+        let fiscal = read.column("fiscal").ok()?.i64().ok()?.clone();
+        let present = c.len() - c.null_count();
+        let read = fiscal.len() - fiscal.null_count();
         if present == 0 || (read as f64) < 0.99 * present as f64 {
             continue;
         }
-        let fiscal: Int64Chunked = dates
-            .iter()
-            .map(|d| d.map(|(y, m)| y - i64::from(m <= YEAR_END_CUTOFF)))
-            .collect();
         let (Some(lo), Some(hi)) = (fiscal.min(), fiscal.max()) else {
             continue;
         };
