@@ -288,7 +288,10 @@ fn guess_entity(df: &DataFrame, period: &str) -> Result<Option<Guess>> {
                 },
                 if hint { "; the name suggests an entity" } else { "" },
                 if (with_keys as usize) < rows {
-                    format!("; {} rows miss one of the two", rows - with_keys as usize)
+                    match rows - with_keys as usize {
+                        1 => "; 1 row misses one of the two".to_string(),
+                        n => format!("; {n} rows miss one of the two"),
+                    }
                 } else {
                     String::new()
                 }

@@ -387,7 +387,7 @@ fn blank_rows_go_to_the_ledger_as_blank_not_as_missing_keys() {
         keys["reason"]
             .as_str()
             .unwrap()
-            .starts_with("1 rows missing a key, 0 exact copies"),
+            .starts_with("1 row missing a key, 0 exact copies"),
         "{keys}"
     );
     let ledger = std::fs::read_to_string(w.path("b/rejected.csv")).unwrap();
@@ -408,6 +408,45 @@ fn blank_rows_go_to_the_ledger_as_blank_not_as_missing_keys() {
     assert_eq!(manifest["rows"]["input"], 7);
     assert_eq!(manifest["rows"]["kept"], 4);
     assert_eq!(manifest["rows"]["rejected"], 3);
+}
+
+#[test]
+fn a_missing_value_marker_in_the_period_column_is_a_missing_period() {
+    // `NA` for a missing year (as R's `write.csv` writes a missing number; common practice)
+    // stopped the run: "period column `year` must hold integers; row 2 has `NA`", where an
+    // empty cell sent its row to the ledger as a missing key. Both do the same now, the
+    // marker noted as in any column of numbers; the entity, text, keeps a firm named `NA`.
+    // Worked by hand: 5 rows read, the row with `NA` for its year left out, 4 kept.
+    let w = Workdir::new();
+    w.write(
+        "na.csv",
+        "firm,year,x\nA,2001,1\nA,NA,2\nA,2002,3\nNA,2001,4\nNA,2002,5\n",
+    );
+    w.ok(&[
+        "build", "na.csv", "--entity", "firm", "--period", "year", "--out", "b",
+    ]);
+    let report = w.json("b/report.json");
+    assert_eq!(report["keys"]["missing_key_rows"], 1, "{}", report["keys"]);
+    assert!(
+        notes(&report).contains(
+            &"column `year`: 1 cell marking a missing number (`NA` 1) read as missing, the \
+              column as numbers"
+        ),
+        "{:?}",
+        notes(&report)
+    );
+    let rejected = std::fs::read_to_string(w.path("b/rejected.csv")).unwrap();
+    assert!(
+        rejected.contains("\n2,missing keys,period missing,,A,,2\n"),
+        "{rejected}"
+    );
+    let panel = std::fs::read_to_string(w.path("b/panel.csv")).unwrap();
+    assert!(panel.contains("\n4,NA,2001,4\n5,NA,2002,5\n"), "{panel}");
+    assert_eq!(report["panel"]["entities"], 2, "{}", report["panel"]);
+    // `rules draft` reads the file as `build` does: the year column is the period.
+    let draft = w.ok(&["rules", "draft", "na.csv"]).stdout;
+    assert!(draft.contains("period = \"year\""), "{draft}");
+    assert!(draft.contains("1 row misses one of the two"), "{draft}");
 }
 
 #[test]

@@ -156,8 +156,11 @@ pub(super) fn keys(r: &Report, lv: &Levels) -> Option<CheckVerdict> {
         found.push((
             lv.of(&KEY_REPAIRS),
             format!(
-                "{} rows missing a key, {} exact copies, {} conflicting keys resolved by {}",
-                k.missing_key_rows, k.exact_duplicate_rows, k.conflicting_keys, k.policy
+                "{} missing a key, {}, {} resolved by {}",
+                counted(k.missing_key_rows, "row", "rows"),
+                counted(k.exact_duplicate_rows, "exact copy", "exact copies"),
+                counted(k.conflicting_keys, "conflicting key", "conflicting keys"),
+                k.policy
             ),
         ));
     }

@@ -8,10 +8,15 @@ use super::stdout_write;
 /// Run `rules draft`.
 pub fn run(cfg: &DraftConfig) -> Result<i32> {
     let (df, _) = load::read_raw(&cfg.data, cfg.format, &cfg.csv, cfg.sheet.as_deref(), &[])?;
-    // A CSV cell a spreadsheet wrote as `="007"` holds `007`, as `build` reads it.
-    let (df, _) = match cfg.format {
-        InputFormat::Csv => load::formula_text(df, None)?,
-        _ => (df, Vec::new()),
+    // A CSV cell a spreadsheet wrote as `="007"` holds `007`, and a column of numbers with
+    // `NA` or `.` for missing ones is numbers, as `build` reads them (a year column with a
+    // missing year included).
+    let df = match cfg.format {
+        InputFormat::Csv => {
+            let (df, _) = load::formula_text(df, None)?;
+            load::numbers_with_markers(df, &[], cfg.csv.decimal_comma)?.0
+        }
+        _ => df,
     };
     let name = cfg
         .data

@@ -12,6 +12,7 @@ use crate::{Error, Result};
 mod budget;
 mod contiguous;
 mod csv_file;
+mod digest;
 mod fields;
 mod finite;
 mod footer;
@@ -19,7 +20,6 @@ mod formula;
 mod markers;
 mod not_numbers;
 mod period;
-pub(crate) use period::IsoDate;
 mod sheet;
 mod sniff;
 mod whole;
@@ -29,10 +29,12 @@ use csv_file::{
     csv_position, csv_shape, names_as_written, not_utf16, repeated_header_name, unclosed_quote,
     Transcoded,
 };
+pub use digest::sha256_hex;
 pub(crate) use finite::non_finite_as_missing;
 pub(crate) use formula::formula_text;
 pub(crate) use markers::numbers_with_markers;
 pub(crate) use not_numbers::{text_among_numbers, Source};
+pub(crate) use period::IsoDate;
 use period::{check_period, check_window, fiscal_year, period_as_int};
 
 /// A column read as text for its codes written with leading zeros: its name, and the data row
@@ -354,7 +356,12 @@ pub fn load(
     // of numbers with `NA`, `.` or `#N/A` for missing ones: numbers, noted.
     let (df, formulas, marked) = if cfg.format == InputFormat::Csv {
         let (df, formulas) = formula::formula_text(df, Some(ROW))?;
-        let (df, marked) = markers::numbers_with_markers(df, &keys, cfg.csv.decimal_comma)?;
+        // The period too (whole numbers only: a marker there is a missing period).
+        let text = [
+            cfg.entity.as_str(),
+            cfg.rules.file.panel.year_end.as_deref().unwrap_or(""),
+        ];
+        let (df, marked) = markers::numbers_with_markers(df, &text, cfg.csv.decimal_comma)?;
         (df, formulas, marked)
     } else {
         (df, Vec::new(), Vec::new())
@@ -588,13 +595,4 @@ fn scan(
         InputFormat::Spreadsheet => sheet::read(input, None, text)?.df.lazy(),
     };
     Ok(lf)
-}
-
-/// Lowercase hex SHA-256.
-pub fn sha256_hex(bytes: &[u8]) -> String {
-    use sha2::Digest;
-    sha2::Sha256::digest(bytes)
-        .iter()
-        .map(|b| format!("{b:02x}"))
-        .collect()
 }
