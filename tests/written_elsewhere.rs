@@ -415,8 +415,9 @@ fn a_missing_value_marker_in_the_period_column_is_a_missing_period() {
     // `NA` for a missing year (as R's `write.csv` writes a missing number; common practice)
     // stopped the run: "period column `year` must hold integers; row 2 has `NA`", where an
     // empty cell sent its row to the ledger as a missing key. Both do the same now, the
-    // marker noted as in any column of numbers; the entity, text, keeps a firm named `NA`.
-    // Worked by hand: 5 rows read, the row with `NA` for its year left out, 4 kept.
+    // marker noted as in any column of numbers; the entity, text, keeps a firm named `NA`,
+    // noted too (it may have meant a missing firm). Worked by hand: 5 rows read, the row
+    // with `NA` for its year left out, 4 kept; 2 cells of the entity hold `NA`.
     let w = Workdir::new();
     w.write(
         "na.csv",
@@ -431,6 +432,15 @@ fn a_missing_value_marker_in_the_period_column_is_a_missing_period() {
         notes(&report).contains(
             &"column `year`: 1 cell marking a missing number (`NA` 1) read as missing, the \
               column as numbers"
+        ),
+        "{:?}",
+        notes(&report)
+    );
+    assert!(
+        notes(&report).contains(
+            &"column `firm` (the entity): 2 cells (`NA` 2) with a marker other programs write \
+              for a missing value, read as entities of that name; leave a cell empty for a \
+              missing entity, whose row then goes to the ledger"
         ),
         "{:?}",
         notes(&report)

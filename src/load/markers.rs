@@ -117,10 +117,45 @@ pub(super) fn is_marker(text: &str) -> bool {
     MARKERS.iter().any(|m| t.eq_ignore_ascii_case(m))
 }
 
-/// The note's words for the marker cells `marked` (as written): how many, each marker with
-/// how often in order of first appearance — "2 cells marking a missing number (`NA` 1, `.` 1)
-/// read as missing".
-pub(super) fn markers_read_as_missing<'a>(marked: impl Iterator<Item = &'a str>) -> String {
+/// A note when the entity column holds markers for a missing value (`NA` as R writes a
+/// missing text): those cells are read as entities of that name, as any other text in the
+/// entity is, and only an empty cell is a missing entity. Rows are skipped by their first
+/// byte, which no marker's is for most ids.
+pub(super) fn entity_markers(df: &DataFrame, entity: &str) -> Result<Option<String>> {
+    let Ok(DataType::String) = df.column(entity).map(|c| c.dtype().clone()) else {
+        return Ok(None);
+    };
+    let ids = df.column(entity)?.str()?;
+    let marked: Vec<&str> = ids
+        .iter()
+        .flatten()
+        .filter(|v| may_be_marker(v) && is_marker(v))
+        .collect();
+    if marked.is_empty() {
+        return Ok(None);
+    }
+    let (cells, listed) = counted_markers(marked.into_iter());
+    Ok(Some(format!(
+        "column `{entity}` (the entity): {} ({listed}) with a marker other programs write for \
+         a missing value, read as entities of that name; leave a cell empty for a missing \
+         entity, whose row then goes to the ledger",
+        how_many_cells(cells)
+    )))
+}
+
+/// Whether `text` may be a marker by its first byte (one of those of [`MARKERS`], any
+/// case): most entity ids are passed over by one comparison.
+fn may_be_marker(text: &str) -> bool {
+    let first = text.trim_start().as_bytes().first();
+    matches!(
+        first.map(u8::to_ascii_lowercase),
+        Some(b'n' | b'#' | b'.' | b'-' | b'+' | b'i')
+    )
+}
+
+/// The marker cells `marked` (as written) counted: how many, and each marker with how often
+/// in order of first appearance ("`NA` 1, `.` 1").
+fn counted_markers<'a>(marked: impl Iterator<Item = &'a str>) -> (usize, String) {
     let mut seen: Vec<(&str, usize)> = Vec::new();
     for v in marked.map(str::trim) {
         match seen.iter_mut().find(|(s, _)| *s == v) {
@@ -129,11 +164,17 @@ pub(super) fn markers_read_as_missing<'a>(marked: impl Iterator<Item = &'a str>)
         }
     }
     let listed: Vec<String> = seen.iter().map(|(s, n)| format!("`{s}` {n}")).collect();
-    let cells = seen.iter().map(|(_, n)| n).sum();
+    (seen.iter().map(|(_, n)| n).sum(), listed.join(", "))
+}
+
+/// The note's words for the marker cells `marked` (as written): how many, each marker with
+/// how often in order of first appearance — "2 cells marking a missing number (`NA` 1, `.` 1)
+/// read as missing".
+pub(super) fn markers_read_as_missing<'a>(marked: impl Iterator<Item = &'a str>) -> String {
+    let (cells, listed) = counted_markers(marked);
     format!(
-        "{} marking a missing number ({}) read as missing",
-        how_many_cells(cells),
-        listed.join(", ")
+        "{} marking a missing number ({listed}) read as missing",
+        how_many_cells(cells)
     )
 }
 

@@ -402,6 +402,7 @@ pub fn load(
     notes.extend(coded_notes(&coded_further));
     notes.extend(formulas);
     notes.extend(marked);
+    notes.extend(markers::entity_markers(&df, &cfg.entity)?);
     notes.extend(decimals);
     notes.extend(non_finite);
     Ok(Loaded {

@@ -257,3 +257,15 @@ fn codes_with_leading_zeros_are_found() {
     );
     assert!(leading_zero("007") && !leading_zero("0") && !leading_zero("0.5"));
 }
+
+/// Every marker, in either case and after spaces, gets past the first-byte test the entity's
+/// note runs before comparing a cell with the markers.
+#[test]
+fn the_first_byte_test_lets_every_marker_through() {
+    for m in MARKERS {
+        for written in [m.to_string(), m.to_uppercase(), format!("  {m}")] {
+            assert!(may_be_marker(&written), "{written}");
+        }
+    }
+    assert!(!may_be_marker("F000123") && !may_be_marker(""));
+}
