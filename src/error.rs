@@ -121,7 +121,7 @@ pub enum Error {
         message: String,
     },
     /// The data has conflicting duplicate keys and the policy says to stop.
-    #[error("`{file}`: {keys} entity-period keys appear on rows with different values (first: entity `{entity}`, period {period}); choose a policy in `[clean] duplicates`")]
+    #[error("`{file}`: {} on rows with different values (first: entity `{entity}`, period {period}); choose a policy in `[clean] duplicates`", keys_appear(*.keys))]
     ConflictingKeys {
         file: PathBuf,
         keys: u64,
@@ -287,3 +287,11 @@ pub(crate) fn one_line(message: &str) -> String {
 
 /// The result type used throughout panelready.
 pub type Result<T, E = Error> = std::result::Result<T, E>;
+
+/// "1 entity-period key appears", "2 entity-period keys appear".
+fn keys_appear(keys: u64) -> String {
+    match keys {
+        1 => "1 entity-period key appears".to_string(),
+        n => format!("{n} entity-period keys appear"),
+    }
+}

@@ -282,7 +282,12 @@ fn malformed_csv_stops_with_one_located_line() {
             "conflicting keys under fail",
             b"firm,year,assets\nA,2001,1\nA,2001,2\n",
             "",
-            &["raw.csv", "entity `A`", "2001"],
+            &[
+                "raw.csv",
+                "1 entity-period key appears",
+                "entity `A`",
+                "2001",
+            ],
         ),
     ];
     // Year-end dates that no calendar has (Gregorian, common practice; Python's

@@ -148,8 +148,12 @@ pub(super) fn keys(r: &Report, lv: &Levels) -> Option<CheckVerdict> {
         found.push((
             lv.of(&CONFLICTING_KEYS),
             format!(
-                "{} entity-period keys appear on rows with different values",
-                k.conflicting_keys
+                "{} on rows with different values",
+                counted(
+                    k.conflicting_keys,
+                    "entity-period key appears",
+                    "entity-period keys appear"
+                )
             ),
         ));
     } else if k.missing_key_rows + k.exact_duplicate_rows + k.conflicting_rows > 0 {
@@ -168,8 +172,8 @@ pub(super) fn keys(r: &Report, lv: &Levels) -> Option<CheckVerdict> {
         found.push((
             lv.of(&ALIKE_ENTITIES),
             format!(
-                "{} groups of entity names alike but for spaces, letter case or leading zeros",
-                k.alike_entities
+                "{} of entity names alike but for spaces, letter case or leading zeros",
+                counted(k.alike_entities, "group", "groups")
             ),
         ));
     }
