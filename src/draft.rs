@@ -288,10 +288,14 @@ fn guess_entity(df: &DataFrame, period: &str) -> Result<Option<Guess>> {
                 },
                 if hint { "; the name suggests an entity" } else { "" },
                 if (with_keys as usize) < rows {
-                    match rows - with_keys as usize {
-                        1 => "; 1 row misses one of the two".to_string(),
-                        n => format!("; {n} rows miss one of the two"),
-                    }
+                    format!(
+                        "; {} one of the two",
+                        crate::report::layout::counted(
+                            (rows - with_keys as usize) as u64,
+                            "row misses",
+                            "rows miss"
+                        )
+                    )
                 } else {
                     String::new()
                 }

@@ -288,7 +288,8 @@ pub(crate) fn one_line(message: &str) -> String {
 /// The result type used throughout panelready.
 pub type Result<T, E = Error> = std::result::Result<T, E>;
 
-/// "1 entity-period key appears", "2 entity-period keys appear".
+/// "1 entity-period key appears", "2 entity-period keys appear" (the report's `counted` is
+/// above this module, which the report itself uses).
 fn keys_appear(keys: u64) -> String {
     match keys {
         1 => "1 entity-period key appears".to_string(),

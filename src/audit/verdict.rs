@@ -3,6 +3,7 @@
 
 use std::collections::BTreeMap;
 
+pub(crate) use crate::report::layout::counted;
 use crate::report::Report;
 pub use crate::report::{CheckVerdict, Status, Verdict};
 
@@ -254,11 +255,6 @@ fn emptied(r: &Report) -> Option<CheckVerdict> {
             ),
         )
     })
-}
-
-/// `n` and the noun after it, singular for one: "1 singleton", "3 singletons".
-pub(crate) fn counted(n: u64, one: &str, many: &str) -> String {
-    format!("{n} {}", if n == 1 { one } else { many })
 }
 
 /// One line at the worst level among several findings, their reasons joined.

@@ -166,18 +166,16 @@ pub(super) fn dictionary_md(entries: &[crate::pipeline::DictionaryEntry]) -> Str
 /// The keys in words: the entities the entity key names, the periods the period key holds,
 /// and the rows, each one entity in one period (the key steps leave no key twice).
 fn keys_md(entries: &[crate::pipeline::DictionaryEntry]) -> String {
-    let entity = entries
-        .iter()
-        .find_map(|e| Some((&e.name, e.values.as_ref()?.entities?, e.values.as_ref()?.n)));
+    use crate::report::layout::counted;
+    let entity = entries.iter().find_map(|e| {
+        let v = e.values.as_ref()?;
+        Some((&e.name, v.entities?, v.n))
+    });
     let period = entries
         .iter()
         .find_map(|e| Some((&e.name, e.values.as_ref()?.periods?)));
     let Some((entity, entities, rows)) = entity else {
         return String::new();
-    };
-    let plural = |n: u64, one: &str, many: &str| match n {
-        1 => format!("1 {one}"),
-        n => format!("{n} {many}"),
     };
     let periods = match period {
         Some((name, p)) if p.first == p.last => {
@@ -185,7 +183,7 @@ fn keys_md(entries: &[crate::pipeline::DictionaryEntry]) -> String {
         }
         Some((name, p)) => format!(
             " and `{name}` {} from {} to {}",
-            plural(p.periods, "period", "periods"),
+            counted(p.periods, "period", "periods"),
             p.first,
             p.last
         ),
@@ -198,7 +196,7 @@ fn keys_md(entries: &[crate::pipeline::DictionaryEntry]) -> String {
     format!(
         "\n## The keys\n\n`{entity}` names {}{periods}; {each} one entity in one period, \
          none twice.\n",
-        plural(entities, "entity", "entities"),
+        counted(entities, "entity", "entities"),
     )
 }
 

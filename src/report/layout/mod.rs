@@ -30,6 +30,11 @@ pub enum Block {
     Heading(String),
 }
 
+/// `n` and the noun after it, singular for one: "1 singleton", "3 singletons".
+pub(crate) fn counted(n: u64, one: &str, many: &str) -> String {
+    format!("{n} {}", if n == 1 { one } else { many })
+}
+
 /// A number with up to `digits` decimals, trailing zeros kept for alignment.
 pub(crate) fn num(x: f64, digits: usize) -> String {
     if x.is_finite() {
