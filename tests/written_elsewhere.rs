@@ -457,6 +457,31 @@ fn a_missing_value_marker_in_the_period_column_is_a_missing_period() {
     let draft = w.ok(&["rules", "draft", "na.csv"]).stdout;
     assert!(draft.contains("period = \"year\""), "{draft}");
     assert!(draft.contains("1 row misses one of the two"), "{draft}");
+    // Every year `NA` (a column of markers alone, which elsewhere stays text) stopped the
+    // run with "must hold integers; row 1 has `NA`"; a column of empty periods wrote a bundle
+    // with every row in the ledger. Both do that now. Worked by hand: 2 rows read, 0 kept.
+    w.write("all_na.csv", "firm,year,x\nA,NA,1\nB,na,2\n");
+    let out = w.ok(&[
+        "build",
+        "all_na.csv",
+        "--entity",
+        "firm",
+        "--period",
+        "year",
+        "--out",
+        "c",
+    ]);
+    assert!(out.stdout.contains("2 rows read, 0 kept"), "{}", out.stdout);
+    let report = w.json("c/report.json");
+    assert_eq!(report["keys"]["missing_key_rows"], 2, "{}", report["keys"]);
+    assert!(
+        notes(&report).contains(
+            &"column `year`: 2 cells marking a missing number (`NA` 1, `na` 1) read as \
+              missing, the column as numbers"
+        ),
+        "{:?}",
+        notes(&report)
+    );
 }
 
 #[test]

@@ -371,10 +371,23 @@ fn mostly_numbers_when(
 /// `df` with each text column not in `keep` that holds numbers (plain, with thousands
 /// separators or in parentheses) and markers only — at least one number, and at least one
 /// marker or number the reader does not read — read as numbers (whole numbers as integers, as
-/// the reader would have read them), and a note for each column so read.
+/// the reader would have read them), and a note for each column so read. A column of markers
+/// alone stays text (nothing says it holds numbers).
 pub(crate) fn numbers_with_markers(
+    df: DataFrame,
+    keep: &[&str],
+    decimal_comma: bool,
+) -> Result<(DataFrame, Vec<String>)> {
+    numbers_with_markers_and(df, keep, None, decimal_comma)
+}
+
+/// [`numbers_with_markers`], and the column `period`, which holds whole numbers or nothing,
+/// read as whole numbers even when every cell is a marker or empty: every period missing,
+/// whose rows then go to the ledger as rows with empty periods do.
+pub(super) fn numbers_with_markers_and(
     mut df: DataFrame,
     keep: &[&str],
+    period: Option<&str>,
     decimal_comma: bool,
 ) -> Result<(DataFrame, Vec<String>)> {
     let text: Vec<PlSmallStr> = df
@@ -460,7 +473,7 @@ pub(crate) fn numbers_with_markers(
         let (bracketed, first_bracketed) = written(Written::Parenthesized);
         // A text column of plain numbers only comes of a read that took every column as
         // text (after one that a wide number stopped): numbers, as the reader reads them.
-        if numbers == 0 {
+        if numbers == 0 && (markers == 0 || period != Some(name.as_str())) {
             continue;
         }
         let mut parts = Vec::new();

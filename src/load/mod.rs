@@ -361,7 +361,8 @@ pub fn load(
             cfg.entity.as_str(),
             cfg.rules.file.panel.year_end.as_deref().unwrap_or(""),
         ];
-        let (df, marked) = markers::numbers_with_markers(df, &text, cfg.csv.decimal_comma)?;
+        let (period, comma) = (Some(cfg.period.as_str()), cfg.csv.decimal_comma);
+        let (df, marked) = markers::numbers_with_markers_and(df, &text, period, comma)?;
         (df, formulas, marked)
     } else {
         (df, Vec::new(), Vec::new())
