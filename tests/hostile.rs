@@ -2032,3 +2032,64 @@ fn cells_written_as_spreadsheet_formulas_hold_their_text() {
     let draft = w.ok(&["rules", "draft", "raw.csv"]).stdout;
     assert!(draft.contains("period = \"year\""), "{draft}");
 }
+
+#[test]
+fn whole_numbers_past_64_bits_stop_with_the_values() {
+    // A product of two whole-number amounts past the 64-bit integers' largest value,
+    // 9,223,372,036,854,775,807 (2^63 - 1, two's complement: from memory), came out wrapped
+    // around: 5e9 * 4e9 as 1,553,255,926,290,448,384 in panel.csv, with nothing said. Worked
+    // by hand: 5e9 * 4e9 = 2e19, 4e9 squared = 1.6e19, 9e18 + 9e18 = 1.8e19, all past it; the
+    // same expressions on the small rows of this file stay within it.
+    const BIG: &[u8] = b"firm,year,a,b\nA,2001,5000000000,4000000000\nA,2002,3,4\n\
+                         B,2001,9000000000000000000,9000000000000000000\nB,2002,7,8\n";
+    let derive = |expr: &str| format!("[derive.x]\nexpr = \"{expr}\"\n");
+    let cases = [
+        bad(
+            "product",
+            BIG,
+            &derive("a * b"),
+            &[
+                "derived variable `x`",
+                "5000000000 * 4000000000 is beyond",
+                "CAST",
+            ],
+        ),
+        bad(
+            "power",
+            BIG,
+            &derive("POWER(b, 2)"),
+            &["`x`", "POWER(4000000000, 2) is beyond"],
+        ),
+        bad(
+            "sum inside a ratio",
+            BIG,
+            &derive("(a + b) / 2"),
+            &["`x`", "9000000000000000000 + 9000000000000000000 is beyond"],
+        ),
+        bad(
+            "null condition",
+            BIG,
+            "[derive.x]\nexpr = \"a\"\nnull_when = [{ when = \"a * b < 0\", reason = \"r\" }]\n",
+            &["`x`", "5000000000 * 4000000000"],
+        ),
+        bad(
+            "accounting rule",
+            BIG,
+            "[[rule]]\nname = \"p\"\nexpr = \"a * b > 0\"\naction = \"flag\"\n",
+            &["accounting rule `p`", "5000000000 * 4000000000 is beyond"],
+        ),
+    ];
+    for case in &cases {
+        check_bad(case);
+    }
+    // Within the range the values are the engine's, as before: 3 * 4, 7 * 8, in whole numbers.
+    let w = Workdir::new();
+    w.write("small.csv", "firm,year,a,b\nA,2001,3,4\nA,2002,7,8\n");
+    w.write("rules.toml", &format!("{KEYS}{}", derive("a * b - 1")));
+    w.ok(&["build", "small.csv", "--rules", "rules.toml", "--out", "b"]);
+    let panel = std::fs::read_to_string(w.path("b/panel.csv")).unwrap();
+    assert!(
+        panel.ends_with("1,A,2001,3,4,11\n2,A,2002,7,8,55\n"),
+        "{panel}"
+    );
+}

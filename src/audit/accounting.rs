@@ -93,6 +93,19 @@ pub fn compile(rules: &Rules, raw: &[String]) -> Result<(Vec<CompiledRule>, Vec<
     Ok((out, skipped))
 }
 
+/// `rules` with the whole-number steps of their conditions checked against their types' edge
+/// (`rules::checked`), the types those of `schema`'s columns.
+pub fn checked(rules: &[CompiledRule], schema: &Schema) -> Vec<CompiledRule> {
+    let checked = |e: &Expr| crate::rules::checked::checked_integers(e.clone(), schema);
+    rules
+        .iter()
+        .map(|r| CompiledRule {
+            holds: checked(&r.holds),
+            ..r.clone()
+        })
+        .collect()
+}
+
 /// Add the hidden columns of other periods' values the rules read (gap-aware, by a walk over
 /// the sorted panel's entities, as for derived variables); returns the frame and the hidden
 /// columns' names.

@@ -184,11 +184,18 @@ impl Plan {
             if !shifted.is_empty() {
                 lf = lf.with_columns(shifted);
             }
+            // Whole-number steps checked against their type's edge (the columns' types are
+            // known once the level's inputs are in the plan).
+            let schema = lf.collect_schema().ok();
+            let checked = |e: Expr| match &schema {
+                Some(schema) => crate::rules::checked::checked_integers(e, schema),
+                None => e,
+            };
             // A number that is not finite (a division by zero, the logarithm of zero) is
             // missing, with its own reason: which variables are numbers, the engine says.
             let plain: Vec<Expr> = level
                 .iter()
-                .map(|var| var.value.expr.clone().alias(var.name.as_str()))
+                .map(|var| checked(var.value.expr.clone()).alias(var.name.as_str()))
                 .collect();
             let types = lf
                 .clone()
@@ -203,7 +210,7 @@ impl Plan {
                 .unwrap_or_else(|_| vec![None; level.len()]);
             let mut values: Vec<Expr> = Vec::new();
             for (var, dtype) in level.iter().zip(types) {
-                let expr = var.value.expr.clone();
+                let expr = checked(var.value.expr.clone());
                 // A lag or lead is its column's value as it stands (a derived one already
                 // finite): no second look, which would evaluate the shift again.
                 let copied = matches!(expr, Expr::Column(_));
@@ -211,9 +218,9 @@ impl Plan {
                     // Its rows made missing in place, the not-finite ones counted on the way.
                     let count = Arc::new(AtomicU64::new(0));
                     not_finite.insert(var.name.clone(), count.clone());
-                    settled(expr, var.any_condition(), count)
+                    settled(expr, var.any_condition().map(checked), count)
                 } else {
-                    match var.any_condition() {
+                    match var.any_condition().map(checked) {
                         Some(cond) => when(cond).then(lit(NULL)).otherwise(expr),
                         None => expr,
                     }

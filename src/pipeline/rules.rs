@@ -26,6 +26,7 @@ pub(super) fn accounting_rules(
         keys.entity,
         keys.period,
     )?;
+    let compiled = &accounting::checked(compiled, with_shifts.schema());
     let lines = accounting::count(&with_shifts, compiled, within.as_ref()).map_err(|e| {
         let sources = super::sources(input, &with_shifts, keys.columns, tables);
         accounting::located(e, compiled, &sources)

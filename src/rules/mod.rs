@@ -2,6 +2,7 @@
 //! `policy`), the built-in libraries it can include, and the translation of derived-variable
 //! expressions into polars plans (`expr`).
 
+pub(crate) mod checked;
 pub(crate) mod expr;
 mod policy;
 
