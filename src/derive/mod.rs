@@ -28,6 +28,11 @@ pub type NotFinite = BTreeMap<String, Arc<AtomicU64>>;
 /// The reason counted when a value is null and no declared condition explains it.
 pub const INPUT_MISSING: &str = "an input is missing (or the earlier period is absent)";
 
+/// Why a derived value is missing though every column it reads has a value and no condition
+/// holds: the expression itself gives none there.
+pub const NO_VALUE: &str = "no value from the expression though every input is present (a \
+                            remainder of a division by zero, a CASE without ELSE, NULLIF)";
+
 /// Why a derived number that is not finite is missing instead.
 pub const NOT_FINITE: &str = "not a finite number (a division by zero, a logarithm of zero or \
                               less, a square root of a negative number, an infinite input)";
@@ -496,6 +501,42 @@ mod tests {
                 .map_or(0, |n| n.rows)
         };
         assert_eq!((rows(NOT_FINITE), rows(INPUT_MISSING)), (1, 1));
+    }
+
+    /// A value the expression does not give though its inputs are there is not counted as an
+    /// input missing. Worked by hand: m = n % d (whole numbers; a remainder of a division by
+    /// zero is missing) and c = CASE WHEN n > 2 THEN 1 END (no ELSE) over n = 1, 2, 3, missing,
+    /// d = 0, 2, 0, 1, and lag(n, 1) over years 1, 2, 4, 5: m gives none on 2 rows with inputs,
+    /// 1 without; c none on 2 with, 1 without; the lag misses its earlier period twice.
+    #[test]
+    fn no_value_with_every_input_present_has_its_own_reason() {
+        let df = df!(
+            "firm" => ["a", "a", "a", "a"],
+            "year" => [1i64, 2, 4, 5],
+            "n" => [Some(1i64), Some(2), Some(3), None],
+            "d" => [0i64, 2, 0, 1],
+        )
+        .unwrap();
+        let r = rules(
+            "[derive.m]\nexpr = \"n % d\"\n[derive.c]\nexpr = \"CASE WHEN n > 2 THEN 1 END\"\n\
+             [derive.l]\nexpr = \"lag(n, 1)\"\n",
+        );
+        let raw: Vec<String> = ["firm", "year", "n", "d"].map(String::from).into();
+        let plan = Plan::new(&r, &raw).unwrap();
+        let (lf, _, not_finite) = plan.apply(df.lazy(), "firm", "year");
+        let out = lf.collect().unwrap();
+        let counts = plan.null_counts(&out, &not_finite).unwrap();
+        let reasons = |name: &str| -> Vec<(String, u64)> {
+            let s = counts.iter().find(|s| s.name == name).unwrap();
+            s.null_reasons
+                .iter()
+                .map(|n| (n.reason.clone(), n.rows))
+                .collect()
+        };
+        let two_one = vec![(NO_VALUE.to_string(), 2), (INPUT_MISSING.to_string(), 1)];
+        assert_eq!(reasons("m"), two_one);
+        assert_eq!(reasons("c"), two_one);
+        assert_eq!(reasons("l"), [(INPUT_MISSING.to_string(), 2)]);
     }
 
     #[test]

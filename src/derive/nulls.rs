@@ -4,7 +4,7 @@ use std::sync::atomic::Ordering;
 
 use polars::prelude::*;
 
-use super::{NotFinite, Plan, INPUT_MISSING, NOT_FINITE};
+use super::{NotFinite, Plan, INPUT_MISSING, NOT_FINITE, NO_VALUE};
 use crate::report::{DerivedSummary, NullCount};
 use crate::Result;
 
@@ -31,13 +31,20 @@ impl Plan {
                 );
                 earlier = earlier.or(c);
             }
-            aggs.push(
-                col(name)
-                    .is_null()
-                    .and(earlier.not())
-                    .sum()
-                    .alias(format!("{i}_input")),
-            );
+            let unexplained = col(name).is_null().and(earlier.not());
+            aggs.push(unexplained.clone().sum().alias(format!("{i}_input")));
+            // Of those, the rows where every column the value reads has one (the hidden
+            // columns of its lags and leads included).
+            let v = &var.value;
+            let present = v
+                .raw_columns
+                .iter()
+                .chain(&v.derived_deps)
+                .cloned()
+                .chain(v.shifts.iter().map(|s| s.hidden_name()))
+                .map(|c| col(c.as_str()).is_not_null())
+                .fold(lit(true), |all, c| all.and(c));
+            aggs.push(unexplained.and(present).sum().alias(format!("{i}_present")));
         }
         let counts = df.clone().lazy().select(aggs).collect()?;
         let get = |name: String| -> Result<u64> {
@@ -59,13 +66,23 @@ impl Plan {
             let finite = not_finite
                 .get(&var.name)
                 .map_or(0, |count| count.load(Ordering::Relaxed));
-            let input = get(format!("{i}_input"))?.saturating_sub(finite);
+            // Rows not finite had every input too (a missing input gives a missing value).
+            let no_value = get(format!("{i}_present"))?.saturating_sub(finite);
+            let input = get(format!("{i}_input"))?
+                .saturating_sub(finite)
+                .saturating_sub(no_value);
             // Listed only when it happened, so that a report without such values reads as
             // before.
             if finite > 0 {
                 nulls.push(NullCount {
                     reason: NOT_FINITE.to_string(),
                     rows: finite,
+                });
+            }
+            if no_value > 0 {
+                nulls.push(NullCount {
+                    reason: NO_VALUE.to_string(),
+                    rows: no_value,
                 });
             }
             nulls.push(NullCount {
