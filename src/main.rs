@@ -51,8 +51,8 @@ fn decode_columns_in_parallel() -> Result<(), panelready::Error> {
 
 /// The engine's warnings on stderr, but for its notices of deprecation: they tell the tool's
 /// developers that a call will change in a later engine version (a correction's text cast to
-/// a date and time prints two lines of it; dates are taken apart by expressions, without the
-/// cast), which the user can do nothing about.
+/// a time of day or a duration may print one; dates and dates with times are taken apart by
+/// expressions, without the cast), which the user can do nothing about.
 fn engine_warnings_for_users() {
     use polars::error::{set_warning_function, PolarsWarning};
     fn warn(message: &str, kind: PolarsWarning) {

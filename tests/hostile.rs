@@ -2093,3 +2093,96 @@ fn whole_numbers_past_64_bits_stop_with_the_values() {
         "{panel}"
     );
 }
+
+#[test]
+fn corrections_to_dates_and_times_take_the_form_panel_csv_writes() {
+    // A correction to a Parquet file's date-and-time column went through the engine's cast
+    // of text, which took `2002-03-05T10:30:00` alone: not the `2002-03-05 10:30:00.000000`
+    // panel.csv writes, nor any value at all for a column with a time zone, with a message
+    // that did not say the form. Worked by hand: 2002-03-05 10:30 UTC is 1,015,324,200 s
+    // after 1970 (Python's `datetime(2002, 3, 5, 10, 30, tzinfo=timezone.utc).timestamp()`);
+    // 11:30 at +01:00 is the same instant.
+    use polars::prelude::*;
+    let w = Workdir::new();
+    let stamp = |unit: TimeUnit, zone: Option<&str>| {
+        let zone = zone.map(|z| TimeZone::opt_try_new(Some(z)).unwrap().unwrap());
+        Column::new("filed".into(), [0i64, 0, 0, 0])
+            .cast(&DataType::Datetime(unit, zone))
+            .unwrap()
+    };
+    for (name, column, value, want) in [
+        (
+            "naive.parquet",
+            stamp(TimeUnit::Microseconds, None),
+            "2002-03-05 10:30:00.000000",
+            "2002-03-05 10:30:00.000000",
+        ),
+        (
+            "zoned.parquet",
+            stamp(TimeUnit::Milliseconds, Some("Europe/Berlin")),
+            "2002-03-05T10:30Z",
+            "2002-03-05 11:30:00.000+01:00",
+        ),
+    ] {
+        let mut df = df!(
+            "firm" => ["A", "A", "B", "B"],
+            "year" => [2001i64, 2002, 2001, 2002],
+            "x" => [1.0, 2.0, 3.0, 4.0],
+        )
+        .unwrap();
+        df.with_column(column).unwrap();
+        let f = std::fs::File::create(w.path(name)).unwrap();
+        ParquetWriter::new(f).finish(&mut df).unwrap();
+        w.write(
+            "corr.csv",
+            &format!("entity,period,column,value,reason\nB,2001,filed,{value},fix\n"),
+        );
+        w.write(
+            "rules.toml",
+            &format!("{KEYS}[repair]\ncorrections = \"corr.csv\"\n"),
+        );
+        let out = format!("out_{name}");
+        w.ok(&["build", name, "--rules", "rules.toml", "--out", &out]);
+        let panel = std::fs::read_to_string(w.path(&format!("{out}/panel.csv"))).unwrap();
+        assert!(
+            panel.contains(&format!("\n3,B,2001,3.0,{want}\n")),
+            "{name}: {panel}"
+        );
+        // The value as panel.csv writes it goes back in as the same value.
+        w.write(
+            "corr.csv",
+            &format!("entity,period,column,value,reason\nB,2001,filed,{want},fix\n"),
+        );
+        let again = format!("again_{name}");
+        w.ok(&["build", name, "--rules", "rules.toml", "--out", &again]);
+        let panel = std::fs::read_to_string(w.path(&format!("{again}/panel.csv"))).unwrap();
+        assert!(
+            panel.contains(&format!("\n3,B,2001,3.0,{want}\n")),
+            "{name}: {panel}"
+        );
+    }
+    // Refused, naming the line and the form: a 30 February; no offset for a zoned column.
+    for (name, value, form) in [
+        ("naive.parquet", "2002-02-30 10:00", "no offset from UTC"),
+        (
+            "zoned.parquet",
+            "2002-03-05 10:30:00",
+            "its offset from UTC",
+        ),
+    ] {
+        w.write(
+            "corr.csv",
+            &format!("entity,period,column,value,reason\nB,2001,filed,{value},fix\n"),
+        );
+        let r = w.run(&["build", name, "--rules", "rules.toml", "--out", "refused"]);
+        assert_eq!(r.code, 2, "{name}: {}", r.stderr);
+        for want in ["line 2", "`YYYY-MM-DD HH:MM:SS`", form] {
+            assert!(
+                r.stderr.contains(want),
+                "{name}: lacks {want}: {}",
+                r.stderr
+            );
+        }
+        assert!(!w.path("refused").exists());
+    }
+}

@@ -17,6 +17,7 @@ impl Plan {
         not_finite: &NotFinite,
     ) -> Result<Vec<DerivedSummary>> {
         let mut aggs = Vec::new();
+        let mut unexplained_by_var = Vec::new();
         for (i, var) in self.vars.iter().enumerate() {
             let name = var.name.as_str();
             aggs.push(col(name).is_not_null().sum().alias(format!("{i}_ok")));
@@ -33,8 +34,26 @@ impl Plan {
             }
             let unexplained = col(name).is_null().and(earlier.not());
             aggs.push(unexplained.clone().sum().alias(format!("{i}_input")));
-            // Of those, the rows where every column the value reads has one (the hidden
-            // columns of its lags and leads included).
+            unexplained_by_var.push(unexplained);
+        }
+        let counts = df.clone().lazy().select(aggs).collect()?;
+        let get = |name: String| -> Result<u64> {
+            let v = counts.column(&name)?.cast(&DataType::UInt64)?;
+            Ok(v.u64()?.get(0).unwrap_or(0))
+        };
+        let finite = |var: &super::Planned| {
+            not_finite
+                .get(&var.name)
+                .map_or(0, |count| count.load(Ordering::Relaxed))
+        };
+        // Of the nulls no condition explains, beyond those not finite, the rows where every
+        // column the value reads has one (the hidden columns of its lags and leads included):
+        // counted in a second pass, for the variables that have such nulls only.
+        let mut present_aggs = Vec::new();
+        for (i, (var, unexplained)) in self.vars.iter().zip(unexplained_by_var).enumerate() {
+            if get(format!("{i}_input"))? <= finite(var) {
+                continue;
+            }
             let v = &var.value;
             let present = v
                 .raw_columns
@@ -44,12 +63,17 @@ impl Plan {
                 .chain(v.shifts.iter().map(|s| s.hidden_name()))
                 .map(|c| col(c.as_str()).is_not_null())
                 .fold(lit(true), |all, c| all.and(c));
-            aggs.push(unexplained.and(present).sum().alias(format!("{i}_present")));
+            present_aggs.push(unexplained.and(present).sum().alias(format!("{i}")));
         }
-        let counts = df.clone().lazy().select(aggs).collect()?;
-        let get = |name: String| -> Result<u64> {
-            let v = counts.column(&name)?.cast(&DataType::UInt64)?;
-            Ok(v.u64()?.get(0).unwrap_or(0))
+        let present_counts = match present_aggs.is_empty() {
+            true => DataFrame::empty(),
+            false => df.clone().lazy().select(present_aggs).collect()?,
+        };
+        let present = |i: usize| -> Result<u64> {
+            match present_counts.column(&i.to_string()) {
+                Ok(v) => Ok(v.cast(&DataType::UInt64)?.u64()?.get(0).unwrap_or(0)),
+                Err(_) => Ok(0),
+            }
         };
         let mut out = Vec::new();
         for (i, var) in self.vars.iter().enumerate() {
@@ -63,11 +87,9 @@ impl Plan {
             // The rows made missing for not being finite, counted as the values were made; the
             // nulls no condition explains hold them too (they had a value, so the two are
             // apart).
-            let finite = not_finite
-                .get(&var.name)
-                .map_or(0, |count| count.load(Ordering::Relaxed));
+            let finite = finite(var);
             // Rows not finite had every input too (a missing input gives a missing value).
-            let no_value = get(format!("{i}_present"))?.saturating_sub(finite);
+            let no_value = present(i)?.saturating_sub(finite);
             let input = get(format!("{i}_input"))?
                 .saturating_sub(finite)
                 .saturating_sub(no_value);

@@ -310,9 +310,20 @@ fn typed_value(
         }
         return Ok((date, dtype));
     }
+    if let DataType::Datetime(unit, zone) = &dtype {
+        let value = super::instant::date_time(text, *unit, zone.as_ref());
+        if let Some(line) = line_where(given.and(value.clone().is_null()))? {
+            let forms = super::instant::forms(*unit, zone.as_ref());
+            return Err(refuse(
+                line,
+                &format!("holds {forms}; the value is not one"),
+            ));
+        }
+        return Ok((value, dtype));
+    }
     if !dtype.is_primitive_numeric() {
-        // Any other type (a date and time, say): a value the cast cannot take would become
-        // missing.
+        // Any other type (a time of day, a duration): a value the cast cannot take would
+        // become missing.
         if let Some(line) = line_where(given.and(text.clone().cast(dtype.clone()).is_null()))? {
             return Err(refuse(
                 line,

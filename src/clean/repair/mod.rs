@@ -14,6 +14,7 @@ use crate::Result;
 pub use crate::rules::SlipPolicy;
 
 mod corrections;
+mod instant;
 
 pub use corrections::{apply_corrections, read_corrections, Corrections, CORRECTION_COLUMNS};
 
