@@ -1246,17 +1246,7 @@ fn long_lags_read_exactly_k_periods_back() {
 fn parquet_columns_of_every_kind_are_read_or_named() {
     use polars::prelude::*;
     let w = Workdir::new();
-    let write = |name: &str, extra: Column| {
-        let mut df = df!(
-            "firm" => ["A", "A", "B", "B"],
-            "year" => [2001i64, 2002, 2001, 2002],
-            "x" => [1.0, 2.0, 3.0, 4.0],
-        )
-        .unwrap();
-        df.with_column(extra).unwrap();
-        let f = std::fs::File::create(w.path(name)).unwrap();
-        ParquetWriter::new(f).finish(&mut df).unwrap();
-    };
+    let write = |name: &str, extra: Column| four_rows_with(&w, name, extra);
     // Dates (days since 1970-01-01) and times of day as a date-time: read, kept as they are in
     // panel.parquet, written in panel.csv as ISO 8601 text (worked by hand: 2002-01-01 is day
     // 32 × 365 + 8 leap days = 11688, so day 11687 is 2001-12-31). Before, panel.csv could
@@ -2124,42 +2114,23 @@ fn corrections_to_dates_and_times_take_the_form_panel_csv_writes() {
             "2002-03-05 11:30:00.000+01:00",
         ),
     ] {
-        let mut df = df!(
-            "firm" => ["A", "A", "B", "B"],
-            "year" => [2001i64, 2002, 2001, 2002],
-            "x" => [1.0, 2.0, 3.0, 4.0],
-        )
-        .unwrap();
-        df.with_column(column).unwrap();
-        let f = std::fs::File::create(w.path(name)).unwrap();
-        ParquetWriter::new(f).finish(&mut df).unwrap();
-        w.write(
-            "corr.csv",
-            &format!("entity,period,column,value,reason\nB,2001,filed,{value},fix\n"),
-        );
+        four_rows_with(&w, name, column);
         w.write(
             "rules.toml",
             &format!("{KEYS}[repair]\ncorrections = \"corr.csv\"\n"),
         );
-        let out = format!("out_{name}");
-        w.ok(&["build", name, "--rules", "rules.toml", "--out", &out]);
-        let panel = std::fs::read_to_string(w.path(&format!("{out}/panel.csv"))).unwrap();
-        assert!(
-            panel.contains(&format!("\n3,B,2001,3.0,{want}\n")),
-            "{name}: {panel}"
-        );
-        // The value as panel.csv writes it goes back in as the same value.
-        w.write(
-            "corr.csv",
-            &format!("entity,period,column,value,reason\nB,2001,filed,{want},fix\n"),
-        );
-        let again = format!("again_{name}");
-        w.ok(&["build", name, "--rules", "rules.toml", "--out", &again]);
-        let panel = std::fs::read_to_string(w.path(&format!("{again}/panel.csv"))).unwrap();
-        assert!(
-            panel.contains(&format!("\n3,B,2001,3.0,{want}\n")),
-            "{name}: {panel}"
-        );
+        // Built with `value` for B's 2001, the panel holds `want` there; the value as
+        // panel.csv writes it goes back in as the same value.
+        for (given, out) in [(value, "out"), (want, "again")] {
+            write_correction(&w, given);
+            let out = format!("{out}_{name}");
+            w.ok(&["build", name, "--rules", "rules.toml", "--out", &out]);
+            let panel = std::fs::read_to_string(w.path(&format!("{out}/panel.csv"))).unwrap();
+            assert!(
+                panel.contains(&format!("\n3,B,2001,3.0,{want}\n")),
+                "{name}, {given}: {panel}"
+            );
+        }
     }
     // Refused, naming the line and the form: a 30 February; no offset for a zoned column.
     for (name, value, form) in [
@@ -2170,10 +2141,7 @@ fn corrections_to_dates_and_times_take_the_form_panel_csv_writes() {
             "its offset from UTC",
         ),
     ] {
-        w.write(
-            "corr.csv",
-            &format!("entity,period,column,value,reason\nB,2001,filed,{value},fix\n"),
-        );
+        write_correction(&w, value);
         let r = w.run(&["build", name, "--rules", "rules.toml", "--out", "refused"]);
         assert_eq!(r.code, 2, "{name}: {}", r.stderr);
         for want in ["line 2", "`YYYY-MM-DD HH:MM:SS`", form] {
@@ -2185,4 +2153,27 @@ fn corrections_to_dates_and_times_take_the_form_panel_csv_writes() {
         }
         assert!(!w.path("refused").exists());
     }
+}
+
+/// corr.csv with one correction: `value` for column `filed` of B's 2001.
+fn write_correction(w: &Workdir, value: &str) {
+    w.write(
+        "corr.csv",
+        &format!("entity,period,column,value,reason\nB,2001,filed,{value},fix\n"),
+    );
+}
+
+/// A Parquet file `name` of four rows — firms A and B, years 2001 and 2002, `x` 1 to 4 —
+/// and the column `extra`.
+fn four_rows_with(w: &Workdir, name: &str, extra: polars::prelude::Column) {
+    use polars::prelude::*;
+    let mut df = df!(
+        "firm" => ["A", "A", "B", "B"],
+        "year" => [2001i64, 2002, 2001, 2002],
+        "x" => [1.0, 2.0, 3.0, 4.0],
+    )
+    .unwrap();
+    df.with_column(extra).unwrap();
+    let f = std::fs::File::create(w.path(name)).unwrap();
+    ParquetWriter::new(f).finish(&mut df).unwrap();
 }
