@@ -198,9 +198,14 @@ impl Plan {
             };
             // A number that is not finite (a division by zero, the logarithm of zero) is
             // missing, with its own reason: which variables are numbers, the engine says.
+            let exprs: Vec<Expr> = level
+                .iter()
+                .map(|var| checked(var.value.expr.clone()))
+                .collect();
             let plain: Vec<Expr> = level
                 .iter()
-                .map(|var| checked(var.value.expr.clone()).alias(var.name.as_str()))
+                .zip(&exprs)
+                .map(|(var, expr)| expr.clone().alias(var.name.as_str()))
                 .collect();
             let types = lf
                 .clone()
@@ -214,8 +219,7 @@ impl Plan {
                 })
                 .unwrap_or_else(|_| vec![None; level.len()]);
             let mut values: Vec<Expr> = Vec::new();
-            for (var, dtype) in level.iter().zip(types) {
-                let expr = checked(var.value.expr.clone());
+            for ((var, dtype), expr) in level.iter().zip(types).zip(exprs) {
                 // A lag or lead is its column's value as it stands (a derived one already
                 // finite): no second look, which would evaluate the shift again.
                 let copied = matches!(expr, Expr::Column(_));

@@ -2,10 +2,10 @@
 //! multiplies and raises whole numbers in their own type and wraps around past its largest
 //! value: `x * y` of two amounts of 5 and 4 billion came out as 1.55e18, and `POWER(x, 400)`
 //! of 3 as a number of no meaning, with nothing said. Here each such step on whole numbers
-//! is computed as the engine types it and checked against the same step in floating point;
-//! a result beyond the type stops the run with the values and the way out (a floating-point
-//! column, as SQL engines that check it do: common practice). Steps on floats or dates are
-//! left to the engine as they are.
+//! is computed in the type the engine gives it and checked against the same step in 128-bit
+//! integers, where it is exact; a result beyond the type stops the run with the values and
+//! the way out (a floating-point column), as SQL engines that check their integers do
+//! (common practice). Steps on floats or dates are left to the engine as they are.
 
 use polars::prelude::*;
 

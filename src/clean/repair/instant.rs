@@ -25,11 +25,7 @@ pub(super) fn date_time(text: Expr, unit: TimeUnit, zone: Option<&TimeZone>) -> 
     let date = IsoDate::of(part(1));
     let days = date.date().cast(DataType::Int32).cast(DataType::Int64);
     let (hours, minutes, seconds) = (or_zero(number(2)), or_zero(number(3)), or_zero(number(4)));
-    let places = match unit {
-        TimeUnit::Milliseconds => 3i64,
-        TimeUnit::Microseconds => 6,
-        TimeUnit::Nanoseconds => 9,
-    };
+    let places = i64::from(places(unit));
     let per_second = 10i64.pow(places as u32);
     // The decimals of a second as a count of `unit`s: `.5` in microseconds is 500,000.
     let decimals = part(5);
@@ -75,8 +71,11 @@ pub(super) fn date_time(text: Expr, unit: TimeUnit, zone: Option<&TimeZone>) -> 
         ),
         None => offset.is_null(),
     };
-    // 2^63 units, as a float: a count of seconds that many units would not fit in 64 bits.
-    let most = 2f64.powi(63) / per_second as f64;
+    // The count of units as a float, which rounds to 2^63 or beyond wherever the count does
+    // not fit in 64 bits (and, harmlessly, within a few microseconds of that edge).
+    let as_float = |e: Expr| e.cast(DataType::Float64);
+    let units =
+        as_float(seconds_since.clone()) * lit(per_second as f64) + as_float(fraction.clone());
     let fits = text
         .clone()
         .str()
@@ -87,13 +86,7 @@ pub(super) fn date_time(text: Expr, unit: TimeUnit, zone: Option<&TimeZone>) -> 
         .and(seconds.lt_eq(lit(59i64)))
         .and(written.fill_null(lit(0i64)).lt_eq(lit(places)))
         .and(offset_fits)
-        .and(
-            seconds_since
-                .clone()
-                .cast(DataType::Float64)
-                .abs()
-                .lt(lit(most)),
-        )
+        .and(units.abs().lt(lit(2f64.powi(63))))
         .fill_null(lit(false));
     let value = seconds_since * lit(per_second) + fraction;
     when(fits)
@@ -102,13 +95,18 @@ pub(super) fn date_time(text: Expr, unit: TimeUnit, zone: Option<&TimeZone>) -> 
         .cast(DataType::Datetime(unit, zone.cloned()))
 }
 
-/// The forms a correction to a date-and-time column takes, for the message refusing one.
-pub(super) fn forms(unit: TimeUnit, zone: Option<&TimeZone>) -> String {
-    let places = match unit {
+/// The decimals of a second a column of `unit` holds.
+fn places(unit: TimeUnit) -> u32 {
+    match unit {
         TimeUnit::Milliseconds => 3,
         TimeUnit::Microseconds => 6,
         TimeUnit::Nanoseconds => 9,
-    };
+    }
+}
+
+/// The forms a correction to a date-and-time column takes, for the message refusing one.
+pub(super) fn forms(unit: TimeUnit, zone: Option<&TimeZone>) -> String {
+    let places = places(unit);
     let zone = match zone {
         Some(z) => format!(" and its offset from UTC (`+01:00`, `Z`; the column's zone is {z})"),
         None => " and no offset from UTC (the column has no time zone)".into(),
@@ -201,9 +199,30 @@ mod tests {
             ),
             [Some(s * 1000), Some(s * 1000), Some(s * 1000), None, None]
         );
-        // Nanoseconds from 1970 end in April 2262: 2262-04-11 23:47:16 fits, 2263 does not.
+        // Nanoseconds from 1970 end at 2^63 - 1, 2262-04-11 23:47:16.854775807 (Python's
+        // `datetime(2262, 4, 11, 23, 47, 16, tzinfo=timezone.utc).timestamp()` is
+        // 9,223,372,036 s): 23:47:16.8 fits, 23:47:16.9 and 2263 do not, nor before 1677.
         let ns = TimeUnit::Nanoseconds;
-        let v = read(&["2262-04-11 23:47:16", "2263-01-01"], ns, None);
-        assert!(v[0].is_some() && v[1].is_none(), "{v:?}");
+        let v = read(
+            &[
+                "2262-04-11 23:47:16.8",
+                "2262-04-11 23:47:16.9",
+                "2263-01-01",
+                "1677-09-21 00:12:44",
+                "1677-09-21 00:12:43",
+            ],
+            ns,
+            None,
+        );
+        assert_eq!(
+            v,
+            [
+                Some(9_223_372_036_800_000_000),
+                None,
+                None,
+                Some(-9_223_372_036_000_000_000),
+                None
+            ]
+        );
     }
 }
