@@ -31,7 +31,8 @@ pub const INPUT_MISSING: &str = "an input is missing (or the earlier period is a
 /// Why a derived value is missing though every column it reads has a value and no condition
 /// holds: the expression itself gives none there.
 pub const NO_VALUE: &str = "no value from the expression though every input is present (a \
-                            remainder of a division by zero, a CASE without ELSE, NULLIF)";
+                            growth from a value of zero or less, a remainder of a division by \
+                            zero, a CASE without ELSE, NULLIF)";
 
 /// Why a derived number that is not finite is missing instead.
 pub const NOT_FINITE: &str = "not a finite number (a division by zero, a logarithm of zero or \

@@ -8,6 +8,7 @@ published definition, and compares with panelready's panel.csv. Exits 1 on any m
 Nothing here imports or calls panelready.
 """
 
+import json
 import os
 import sys
 import tomllib
@@ -111,6 +112,24 @@ def main():
         else:
             bad = np.flatnonzero(~ok | (np.isnan(a) != np.isnan(b)))[:3]
             failures.append(f"{name}: {len(bad)}+ mismatches, e.g. ref {a[bad]} tool {b[bad]}")
+    # Null reasons of the growth variables (report.json, counted on the panel before
+    # cleaning, which here is `load_raw`'s: no rule drops rows before derivation): a growth
+    # from a previous value of zero or less has every input and no value; a previous period
+    # absent (or its value missing) is an input missing. Counted with pandas on the raw file.
+    report = json.load(open(os.path.join(os.path.dirname(panel_path), "report.json")))
+    raw = load_raw(raw_path)
+    for name, column in [("asset_growth", "assets_total"), ("sales_growth", "revenue")]:
+        previous = lag(raw, column, 1)
+        no_value = int(((previous <= 0) & raw[column].notna()).sum())
+        missing = int((previous.isna() | raw[column].isna()).sum())
+        line = next(d for d in report["derived"] if d["name"] == name)
+        reasons = {n["reason"].split(" (")[0]: n["rows"] for n in line["null_reasons"]}
+        got = (reasons.get("no value from the expression though every input is present", 0),
+               reasons.get("an input is missing", 0))
+        if got == (no_value, missing):
+            passed += 1
+        else:
+            failures.append(f"{name} null reasons: ref {(no_value, missing)} tool {got}")
     for f in failures:
         print("MISMATCH", f)
     print(f"ratios: {passed} passed, {len(failures)} failed")
