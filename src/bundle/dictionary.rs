@@ -314,16 +314,14 @@ mod tests {
             first,
             last,
         };
-        let md = dictionary_md(&[
-            key("firm", "text", 9, Some(3), None),
-            key(
-                "year",
-                "whole number",
-                9,
-                None,
-                Some(observed(4, 2019, 2024)),
-            ),
-        ]);
+        // The keys of a panel of `rows` rows naming `entities` entities in `periods`.
+        let keys_md = |rows, entities, periods| {
+            dictionary_md(&[
+                key("firm", "text", rows, Some(entities), None),
+                key("year", "whole number", rows, None, Some(periods)),
+            ])
+        };
+        let md = keys_md(9, 3, observed(4, 2019, 2024));
         assert!(
             md.contains(
                 "## The keys\n\n`firm` names 3 entities and `year` 4 periods from 2019 to \
@@ -331,16 +329,7 @@ mod tests {
             ),
             "{md}"
         );
-        let md = dictionary_md(&[
-            key("firm", "text", 1, Some(1), None),
-            key(
-                "year",
-                "whole number",
-                1,
-                None,
-                Some(observed(1, 2020, 2020)),
-            ),
-        ]);
+        let md = keys_md(1, 1, observed(1, 2020, 2020));
         assert!(
             md.contains("`firm` names 1 entity and `year` 1 period, 2020; its one row is one"),
             "{md}"

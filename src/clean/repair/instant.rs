@@ -76,11 +76,10 @@ pub(super) fn date_time(text: Expr, unit: TimeUnit, zone: Option<&TimeZone>) -> 
     let as_float = |e: Expr| e.cast(DataType::Float64);
     let units =
         as_float(seconds_since.clone()) * lit(per_second as f64) + as_float(fraction.clone());
-    let fits = text
+    // A text not of the form matches no group: its days are missing.
+    let fits = days
         .clone()
-        .str()
-        .contains(lit(FORM), true)
-        .and(days.is_not_null())
+        .is_not_null()
         .and(hours.lt_eq(lit(23i64)))
         .and(minutes.lt_eq(lit(59i64)))
         .and(seconds.lt_eq(lit(59i64)))
